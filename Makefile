@@ -1,0 +1,140 @@
+# SPDX-License-Identifier: MIT
+# sinew: plain GNU Makefile. `make` builds build/sinew and build/libsinew.a.
+# Knobs: SANITIZE=1 (ASan+UBSan), OPENMP=0, DEBUG=1, ARCH=native. Each knob set gets
+# its own build folder so objects never mix.
+
+CC      ?= cc
+PREFIX  ?= /usr/local
+DESTDIR ?=
+SANITIZE ?= 0
+OPENMP  ?= 1
+DEBUG   ?= 0
+ARCH    ?=
+PYTHON  ?= /usr/bin/python3
+
+BUILD := build
+ifeq ($(SANITIZE),1)
+BUILD := $(BUILD)/asan
+endif
+ifeq ($(OPENMP),0)
+BUILD := $(BUILD)/noomp
+endif
+ifeq ($(DEBUG),1)
+BUILD := $(BUILD)/debug
+endif
+ifneq ($(ARCH),)
+BUILD := $(BUILD)/arch-$(ARCH)
+endif
+
+PKGS := libpng libturbojpeg libcjson
+PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
+PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
+CMOCKA_CFLAGS := $(shell pkg-config --cflags cmocka 2>/dev/null)
+CMOCKA_LIBS   := $(shell pkg-config --libs cmocka 2>/dev/null)
+
+WARN := -Wall -Wextra -Wpedantic -Wshadow -Wstrict-prototypes -Wmissing-prototypes \
+        -Wformat=2 -Wvla -Wundef -Wno-format-nonliteral -Werror
+OPT  := -O2
+ifeq ($(DEBUG),1)
+OPT  := -O0
+endif
+CFLAGS_ALL := -std=c11 $(OPT) -g $(WARN) -I. $(PKG_CFLAGS) -MMD -MP $(CFLAGS)
+LDFLAGS_ALL := $(LDFLAGS)
+LIBS_ALL := $(PKG_LIBS) -lm
+ifeq ($(OPENMP),1)
+CFLAGS_ALL += -fopenmp
+LDFLAGS_ALL += -fopenmp
+endif
+ifeq ($(SANITIZE),1)
+CFLAGS_ALL += -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all
+LDFLAGS_ALL += -fsanitize=address,undefined
+endif
+ifneq ($(ARCH),)
+CFLAGS_ALL += -march=$(ARCH)
+endif
+
+LIB_SRC  := $(sort $(wildcard flow/*.c))
+TOOL_SRC := $(sort $(wildcard tools/*.c))
+TEST_SUPPORT_SRC := $(sort $(wildcard tests/support/*.c))
+TEST_UNIT_SRC := $(sort $(wildcard tests/unit/test_*.c))
+DEMO_SRC := $(sort $(wildcard demo/*.c))
+
+LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/obj/%.o)
+TOOL_OBJ := $(TOOL_SRC:%.c=$(BUILD)/obj/%.o)
+TEST_SUPPORT_OBJ := $(TEST_SUPPORT_SRC:%.c=$(BUILD)/obj/%.o)
+TEST_BINS := $(TEST_UNIT_SRC:tests/unit/%.c=$(BUILD)/tests/%)
+DEMO_BINS := $(DEMO_SRC:demo/%.c=$(BUILD)/demo/%)
+
+LIB := $(BUILD)/libsinew.a
+BIN := $(BUILD)/sinew
+
+.SECONDARY:
+.PHONY: all deps test check demo bench fuzz install clean info lint format tests-build
+all: $(BIN) $(LIB)
+
+$(BUILD)/obj/%.o: %.c
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS_ALL) -c $< -o $@
+
+$(BUILD)/obj/tests/%.o: tests/%.c
+	@mkdir -p $(dir $@)
+	$(CC) $(CFLAGS_ALL) $(CMOCKA_CFLAGS) -c $< -o $@
+
+$(LIB): $(LIB_OBJ)
+	@mkdir -p $(dir $@)
+	rm -f $@
+	ar rcs $@ $^
+
+$(BIN): $(TOOL_OBJ) $(LIB)
+	$(CC) $(LDFLAGS_ALL) -o $@ $(TOOL_OBJ) $(LIB) $(LIBS_ALL)
+
+$(BUILD)/tests/%: $(BUILD)/obj/tests/unit/%.o $(TEST_SUPPORT_OBJ) $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(LDFLAGS_ALL) -o $@ $< $(TEST_SUPPORT_OBJ) $(LIB) $(CMOCKA_LIBS) $(LIBS_ALL)
+
+$(BUILD)/demo/%: $(BUILD)/obj/demo/%.o $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(LDFLAGS_ALL) -o $@ $< $(LIB) $(LIBS_ALL)
+
+# Install missing Debian packages (as root) or print the command to do so.
+deps:
+	@tools/install-deps
+
+tests-build: $(BIN) $(LIB) $(TEST_BINS) $(DEMO_BINS)
+
+# Runs every unit test binary and end-to-end script; ends with "N passed, N failed".
+test: deps
+	@$(MAKE) --no-print-directory tests-build
+	@SINEW_BUILD=$(BUILD) PYTHON=$(PYTHON) tests/run
+
+check: test
+
+demo: deps
+	@$(MAKE) --no-print-directory all
+	@SINEW_BUILD=$(BUILD) demo/run
+
+bench: deps
+	@$(MAKE) --no-print-directory all
+	@SINEW_BUILD=$(BUILD) tools/bench
+
+install: $(BIN) $(LIB)
+	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/lib/pkgconfig \
+	    $(DESTDIR)$(PREFIX)/include/sinew/flow
+	install -m 755 $(BIN) $(DESTDIR)$(PREFIX)/bin/sinew
+	install -m 644 $(LIB) $(DESTDIR)$(PREFIX)/lib/libsinew.a
+	install -m 644 $(wildcard flow/*.h) $(DESTDIR)$(PREFIX)/include/sinew/flow/
+	sed -e 's|@PREFIX@|$(PREFIX)|g' -e 's|@VERSION@|$(shell sed -n 's/^#define SINEW_VERSION_STRING "\(.*\)"/\1/p' flow/core.h)|g' \
+	    tools/sinew.pc.in > $(DESTDIR)$(PREFIX)/lib/pkgconfig/sinew.pc
+
+info:
+	@echo "BUILD=$(BUILD) CC=$(CC)"
+	@echo "CFLAGS=$(CFLAGS_ALL)"
+	@echo "LIBS=$(LIBS_ALL)"
+
+format:
+	clang-format -i flow/*.c flow/*.h flow/internal/*.h tools/*.c tools/*.h tests/unit/*.c tests/support/*.c tests/support/*.h
+
+clean:
+	rm -rf build
+
+-include $(shell find $(BUILD)/obj -name '*.d' 2>/dev/null)

@@ -1,0 +1,431 @@
+/* SPDX-License-Identifier: MIT */
+/* Context, status strings, images and atomic output files.
+ *
+ * The context replaces process-wide state: every allocation goes through its
+ * allocator hooks (so tests can make the Nth allocation fail), every limit is read
+ * from it, and the last error's detail message lives in it. Images own their pixel
+ * buffer together with a copy of the allocator hooks that made it, so they can be
+ * freed without the context. */
+#define _POSIX_C_SOURCE 200809L
+#include <errno.h>
+#include <fcntl.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include "flow/core.h"
+#include "flow/internal/base.h"
+
+struct sinew_ctx {
+    sinew_allocator alloc;
+    int64_t max_pixels;
+    int threads;
+    char message[1024];
+};
+
+static void *default_alloc(void *ud, size_t n)
+{
+    (void)ud;
+    void *p = NULL;
+    if (n == 0)
+        n = 1;
+    if (posix_memalign(&p, 64, n) != 0)
+        return NULL;
+    return p;
+}
+
+static void default_free(void *ud, void *p)
+{
+    (void)ud;
+    free(p);
+}
+
+const char *sinew_strerror(int status)
+{
+    switch (status) {
+    case SINEW_OK: return "success";
+    case SINEW_EINVAL: return "invalid argument";
+    case SINEW_ENOMEM: return "out of memory";
+    case SINEW_EOVERFLOW: return "size overflow";
+    case SINEW_ELIMIT: return "limit exceeded";
+    case SINEW_ESIZE: return "sizes do not match";
+    case SINEW_EIO: return "input/output error";
+    case SINEW_EFORMAT: return "malformed file";
+    case SINEW_EUNSUPPORTED: return "unsupported";
+    case SINEW_ECONFIG: return "bad configuration";
+    case SINEW_EVALUE: return "invalid value";
+    case SINEW_EINTERRUPTED: return "interrupted";
+    case SINEW_EINTERNAL: return "internal error";
+    default: return "unknown status";
+    }
+}
+
+sinew_ctx *sinew_ctx_new_with(const sinew_allocator *a)
+{
+    sinew_allocator al = {default_alloc, default_free, NULL};
+    if (a && a->alloc && a->free)
+        al = *a;
+    sinew_ctx *ctx = al.alloc(al.ud, sizeof *ctx);
+    if (!ctx)
+        return NULL;
+    memset(ctx, 0, sizeof *ctx);
+    ctx->alloc = al;
+    ctx->max_pixels = SINEW_DEFAULT_MAX_PIXELS;
+    ctx->threads = 0;
+    return ctx;
+}
+
+sinew_ctx *sinew_ctx_new(void)
+{
+    return sinew_ctx_new_with(NULL);
+}
+
+void sinew_ctx_free(sinew_ctx *ctx)
+{
+    if (!ctx)
+        return;
+    sinew_allocator al = ctx->alloc;
+    al.free(al.ud, ctx);
+}
+
+const char *sinew_ctx_message(const sinew_ctx *ctx)
+{
+    return ctx ? ctx->message : "";
+}
+
+void sinew_ctx_clear(sinew_ctx *ctx)
+{
+    if (ctx)
+        ctx->message[0] = '\0';
+}
+
+int sinew_ctx_set_max_pixels(sinew_ctx *ctx, int64_t max_pixels)
+{
+    if (!ctx)
+        return SINEW_EINVAL;
+    if (max_pixels < 1)
+        return sinew__fail(ctx, SINEW_EINVAL, "pixel limit must be at least 1");
+    ctx->max_pixels = max_pixels;
+    return SINEW_OK;
+}
+
+int64_t sinew_ctx_max_pixels(const sinew_ctx *ctx)
+{
+    return ctx ? ctx->max_pixels : SINEW_DEFAULT_MAX_PIXELS;
+}
+
+int sinew_ctx_set_threads(sinew_ctx *ctx, int threads)
+{
+    if (!ctx)
+        return SINEW_EINVAL;
+    if (threads < 0 || threads > 4096)
+        return sinew__fail(ctx, SINEW_EINVAL, "thread count %d out of range 0..4096", threads);
+    ctx->threads = threads;
+    return SINEW_OK;
+}
+
+int sinew_ctx_threads(const sinew_ctx *ctx)
+{
+    return ctx ? ctx->threads : 0;
+}
+
+int sinew__fail(sinew_ctx *ctx, int status, const char *fmt, ...)
+{
+    if (ctx) {
+        va_list ap;
+        va_start(ap, fmt);
+        vsnprintf(ctx->message, sizeof ctx->message, fmt, ap);
+        va_end(ap);
+    }
+    return status;
+}
+
+void *sinew__alloc(sinew_ctx *ctx, size_t n)
+{
+    void *p = ctx->alloc.alloc(ctx->alloc.ud, n ? n : 1);
+    if (!p)
+        sinew__fail(ctx, SINEW_ENOMEM, "out of memory allocating %zu bytes", n);
+    return p;
+}
+
+void *sinew__calloc(sinew_ctx *ctx, size_t count, size_t size)
+{
+    size_t n;
+    if (sinew__mul_size(count, size, &n)) {
+        sinew__fail(ctx, SINEW_EOVERFLOW, "allocation size overflow (%zu x %zu)", count, size);
+        return NULL;
+    }
+    void *p = sinew__alloc(ctx, n);
+    if (p)
+        memset(p, 0, n ? n : 1);
+    return p;
+}
+
+void sinew__free(sinew_ctx *ctx, void *p)
+{
+    if (p)
+        ctx->alloc.free(ctx->alloc.ud, p);
+}
+
+void *sinew_ctx_alloc(sinew_ctx *ctx, size_t n)
+{
+    if (!ctx || n == 0)
+        return NULL;
+    return sinew__alloc(ctx, n);
+}
+
+void sinew_ctx_dealloc(sinew_ctx *ctx, void *p)
+{
+    if (ctx)
+        sinew__free(ctx, p);
+}
+
+int sinew__check_dims(sinew_ctx *ctx, const char *what, int64_t width, int64_t height)
+{
+    if (width < 1 || height < 1)
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: invalid dimensions %lldx%lld", what,
+                           (long long)width, (long long)height);
+    if (width > ctx->max_pixels || height > ctx->max_pixels ||
+        width > ctx->max_pixels / height)
+        return sinew__fail(ctx, SINEW_ELIMIT,
+                           "%s: %lldx%lld exceeds the limit of %lld pixels", what,
+                           (long long)width, (long long)height, (long long)ctx->max_pixels);
+    return SINEW_OK;
+}
+
+/* ---- images ---- */
+
+size_t sinew_type_size(sinew_type t)
+{
+    switch (t) {
+    case SINEW_U8: return 1;
+    case SINEW_U16: return 2;
+    case SINEW_F32: return 4;
+    }
+    return 0;
+}
+
+int sinew_image_alloc(sinew_ctx *ctx, sinew_image *img, int width, int height, int channels,
+                      sinew_type type)
+{
+    if (!ctx || !img)
+        return SINEW_EINVAL;
+    memset(img, 0, sizeof *img);
+    size_t es = sinew_type_size(type);
+    if (es == 0 || channels < 1 || channels > 4)
+        return sinew__fail(ctx, SINEW_EINVAL, "image: bad type or channel count %d", channels);
+    int rc = sinew__check_dims(ctx, "image", width, height);
+    if (rc)
+        return rc;
+    size_t row, stride, total;
+    if (sinew__mul_size((size_t)width, (size_t)channels * es, &row) ||
+        sinew__add_size(row, 63, &stride))
+        return sinew__fail(ctx, SINEW_EOVERFLOW, "image: %dx%d row size overflows", width, height);
+    stride &= ~(size_t)63;
+    if (sinew__mul_size(stride, (size_t)height, &total))
+        return sinew__fail(ctx, SINEW_EOVERFLOW, "image: %dx%d size overflows", width, height);
+    unsigned char *p = sinew__alloc(ctx, total);
+    if (!p)
+        return SINEW_ENOMEM;
+    memset(p, 0, total);
+    img->width = width;
+    img->height = height;
+    img->channels = channels;
+    img->type = type;
+    img->stride = stride;
+    img->data = p;
+    img->owner_ = ctx->alloc;
+    return SINEW_OK;
+}
+
+void sinew_image_free(sinew_image *img)
+{
+    if (!img)
+        return;
+    if (img->data && img->owner_.free)
+        img->owner_.free(img->owner_.ud, img->data);
+    memset(img, 0, sizeof *img);
+}
+
+int sinew_image_copy(sinew_ctx *ctx, sinew_image *dst, const sinew_image *src)
+{
+    if (!ctx || !dst || !src || !src->data)
+        return SINEW_EINVAL;
+    int rc = sinew_image_alloc(ctx, dst, src->width, src->height, src->channels, src->type);
+    if (rc)
+        return rc;
+    size_t row = (size_t)src->width * (size_t)src->channels * sinew_type_size(src->type);
+    for (int y = 0; y < src->height; y++)
+        memcpy(sinew_image_row(dst, y), sinew_image_row(src, y), row);
+    return SINEW_OK;
+}
+
+int sinew_image_same_shape(const sinew_image *a, const sinew_image *b)
+{
+    return a && b && a->width == b->width && a->height == b->height &&
+           a->channels == b->channels && a->type == b->type;
+}
+
+/* ---- atomic output ---- */
+
+struct sinew_outfile {
+    FILE *fp;
+    sinew_ctx *ctx;
+    char *path;
+    char *tmp;
+};
+
+int sinew_outfile_open(sinew_ctx *ctx, sinew_outfile **out, const char *path)
+{
+    if (!ctx || !out || !path || !*path)
+        return SINEW_EINVAL;
+    *out = NULL;
+    struct stat st;
+    if (stat(path, &st) == 0 && S_ISDIR(st.st_mode))
+        return sinew__fail(ctx, SINEW_EIO, "%s: is a directory", path);
+    size_t n = strlen(path);
+    sinew_outfile *f = sinew__calloc(ctx, 1, sizeof *f);
+    if (!f)
+        return SINEW_ENOMEM;
+    f->ctx = ctx;
+    f->path = sinew__alloc(ctx, n + 1);
+    f->tmp = sinew__alloc(ctx, n + 32);
+    if (!f->path || !f->tmp) {
+        sinew__free(ctx, f->path);
+        sinew__free(ctx, f->tmp);
+        sinew__free(ctx, f);
+        return SINEW_ENOMEM;
+    }
+    memcpy(f->path, path, n + 1);
+    /* Temporary name in the same folder: dir/.name.tmp-XXXXXX */
+    const char *slash = strrchr(path, '/');
+    size_t dirlen = slash ? (size_t)(slash - path + 1) : 0;
+    snprintf(f->tmp, n + 32, "%.*s.%s.tmp-XXXXXX", (int)dirlen, path, path + dirlen);
+    int fd = mkstemp(f->tmp);
+    if (fd < 0) {
+        int e = errno;
+        sinew__free(ctx, f->path);
+        sinew__free(ctx, f->tmp);
+        sinew__free(ctx, f);
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot create: %s", path, strerror(e));
+    }
+    /* mkstemp makes 0600; give outputs the usual permissions (honouring umask). */
+    mode_t um = umask(0);
+    umask(um);
+    (void)fchmod(fd, 0666 & ~um);
+    f->fp = fdopen(fd, "wb");
+    if (!f->fp) {
+        int e = errno;
+        close(fd);
+        unlink(f->tmp);
+        sinew__free(ctx, f->path);
+        sinew__free(ctx, f->tmp);
+        sinew__free(ctx, f);
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open: %s", path, strerror(e));
+    }
+    *out = f;
+    return SINEW_OK;
+}
+
+void *sinew_outfile_stream(sinew_outfile *f)
+{
+    return f ? f->fp : NULL;
+}
+
+static void outfile_release(sinew_outfile *f)
+{
+    sinew_ctx *ctx = f->ctx;
+    sinew__free(ctx, f->path);
+    sinew__free(ctx, f->tmp);
+    sinew__free(ctx, f);
+}
+
+void sinew_outfile_abort(sinew_outfile *f)
+{
+    if (!f)
+        return;
+    if (f->fp)
+        fclose(f->fp);
+    unlink(f->tmp);
+    outfile_release(f);
+}
+
+int sinew_outfile_commit(sinew_ctx *ctx, sinew_outfile *f)
+{
+    if (!f)
+        return SINEW_EINVAL;
+    int err = 0;
+    if (ferror(f->fp) || fflush(f->fp) != 0)
+        err = errno ? errno : EIO;
+    if (!err && fsync(fileno(f->fp)) != 0 && errno != EINVAL)
+        err = errno;
+    if (fclose(f->fp) != 0 && !err)
+        err = errno ? errno : EIO;
+    f->fp = NULL;
+    if (!err && rename(f->tmp, f->path) != 0)
+        err = errno;
+    if (err) {
+        unlink(f->tmp);
+        int rc = sinew__fail(ctx, SINEW_EIO, "%s: cannot write: %s", f->path, strerror(err));
+        outfile_release(f);
+        return rc;
+    }
+    outfile_release(f);
+    return SINEW_OK;
+}
+
+int sinew_write_file(sinew_ctx *ctx, const char *path, const void *buf, size_t len)
+{
+    sinew_outfile *f;
+    int rc = sinew_outfile_open(ctx, &f, path);
+    if (rc)
+        return rc;
+    if (len && fwrite(buf, 1, len, f->fp) != len) {
+        int e = errno;
+        sinew_outfile_abort(f);
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot write: %s", path, strerror(e ? e : EIO));
+    }
+    return sinew_outfile_commit(ctx, f);
+}
+
+int sinew_read_file(sinew_ctx *ctx, const char *path, size_t max_bytes, unsigned char **buf,
+                    size_t *len)
+{
+    if (!ctx || !path || !buf || !len)
+        return SINEW_EINVAL;
+    *buf = NULL;
+    *len = 0;
+    FILE *fp = fopen(path, "rb");
+    if (!fp)
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open: %s", path, strerror(errno));
+    struct stat st;
+    if (fstat(fileno(fp), &st) != 0 || S_ISDIR(st.st_mode)) {
+        fclose(fp);
+        return sinew__fail(ctx, SINEW_EIO, "%s: not a regular file", path);
+    }
+    if ((uint64_t)st.st_size > (uint64_t)max_bytes) {
+        fclose(fp);
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s: file of %lld bytes exceeds the limit of %zu",
+                           path, (long long)st.st_size, max_bytes);
+    }
+    size_t cap = (size_t)st.st_size;
+    unsigned char *p = sinew__alloc(ctx, cap + 1);
+    if (!p) {
+        fclose(fp);
+        return SINEW_ENOMEM;
+    }
+    size_t got = fread(p, 1, cap, fp);
+    int bad = ferror(fp);
+    fclose(fp);
+    if (bad) {
+        sinew__free(ctx, p);
+        return sinew__fail(ctx, SINEW_EIO, "%s: read error", path);
+    }
+    p[got] = 0;
+    *buf = p;
+    *len = got;
+    return SINEW_OK;
+}

@@ -1,0 +1,42 @@
+/* SPDX-License-Identifier: MIT */
+/* Private helpers shared by library modules: error reporting, checked size
+ * arithmetic, allocation through the context. Never included by tools/ or users. */
+#ifndef SINEW_INTERNAL_BASE_H
+#define SINEW_INTERNAL_BASE_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "flow/core.h"
+
+#if defined(__GNUC__)
+#define SINEW__PRINTF(a, b) __attribute__((format(printf, a, b)))
+#else
+#define SINEW__PRINTF(a, b)
+#endif
+
+/* Record `status` with a formatted detail message on ctx and return status.
+ * Convention: messages that concern a file start with the path: "PATH: problem". */
+int sinew__fail(sinew_ctx *ctx, int status, const char *fmt, ...) SINEW__PRINTF(3, 4);
+
+/* Allocation through the context's allocator; sets ENOMEM message on failure. */
+void *sinew__alloc(sinew_ctx *ctx, size_t n);
+void *sinew__calloc(sinew_ctx *ctx, size_t count, size_t size); /* zeroed, overflow-checked */
+void sinew__free(sinew_ctx *ctx, void *p);
+
+/* Checked arithmetic: return 0 and store the result, or return nonzero on overflow. */
+static inline int sinew__mul_size(size_t a, size_t b, size_t *out)
+{
+    return __builtin_mul_overflow(a, b, out);
+}
+static inline int sinew__add_size(size_t a, size_t b, size_t *out)
+{
+    return __builtin_add_overflow(a, b, out);
+}
+
+/* Validate image dimensions from a header before allocating anything: dims >= 1,
+ * width*height within the context's pixel limit. `what` names the file or object
+ * for the message. Returns SINEW_OK, EFORMAT (non-positive) or ELIMIT. */
+int sinew__check_dims(sinew_ctx *ctx, const char *what, int64_t width, int64_t height);
+
+#endif

@@ -1,0 +1,76 @@
+/* SPDX-License-Identifier: MIT */
+/* Reading and writing images, flow fields and plain arrays.
+ *
+ * Every reader checks header dimensions against the context's pixel limit before
+ * allocating, refuses truncated or inconsistent files with SINEW_EFORMAT and a message
+ * naming the file, and never guesses a value scale. Every writer is atomic (temporary
+ * file in the same folder, then rename): on failure the final path is untouched. */
+#ifndef SINEW_IO_H
+#define SINEW_IO_H
+
+#include "flow/core.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ---- images ----
+ * sinew_image_read detects the format from the content (PNG signature, JPEG SOI,
+ * "P5"/"P6" binary PGM/PPM), not from the extension.
+ *   PNG:  8/16-bit gray, gray+alpha, RGB, RGBA; palette expands to RGB(A); bit depths
+ *         below 8 expand to 8. 16-bit stays SINEW_U16 raw codes.
+ *   JPEG: 8-bit gray or RGB (TurboJPEG API); CMYK is EUNSUPPORTED.
+ *   PGM/PPM: maxval <= 255 -> SINEW_U8, 256..65535 -> SINEW_U16 (big-endian on disk),
+ *         values kept as stored (not rescaled to full range).
+ * The result is an owned image; free with sinew_image_free. */
+int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path);
+
+/* Write a PNG: SINEW_U8 or SINEW_U16, 1..4 channels (gray, gray+alpha, RGB, RGBA). */
+int sinew_image_write_png(sinew_ctx *ctx, const char *path, const sinew_image *img);
+
+/* ---- flow fields ----
+ * In memory a flow field is a SINEW_F32 image with 2 channels (u, v) in pixels;
+ * NaN in either component means unknown. On disk: */
+typedef enum sinew_flow_format {
+    SINEW_FLOW_AUTO = 0, /* from the path's extension */
+    SINEW_FLOW_FLO,      /* .flo  Middlebury: unknown written as 1e10, read as |c| > 1e9 */
+    SINEW_FLOW_KITTI,    /* .png  KITTI 16-bit: (value - 2^15) / 64, B channel = valid */
+    SINEW_FLOW_PFM,      /* .pfm  3-channel "PF", third channel 0, rows bottom to top;
+                            unknown written as NaN */
+    SINEW_FLOW_NPY,      /* .npy  float32 H x W x 2, C order; unknown as NaN */
+    SINEW_FLOW_NPY16     /* .npy  float16 H x W x 2 (writer choice; the reader accepts both) */
+} sinew_flow_format;
+
+/* Format from the extension (.flo .png .pfm .npy, case-insensitive); EUNSUPPORTED with a
+ * message naming the path if unknown. .npy maps to SINEW_FLOW_NPY (float32). */
+int sinew_flow_format_from_path(sinew_ctx *ctx, const char *path, sinew_flow_format *fmt);
+
+/* Read a flow field; fmt = SINEW_FLOW_AUTO picks by extension. PFM accepts "PF" (the
+ * third channel is ignored) and both byte orders; .npy accepts float32/float16/float64
+ * (little or big endian), shape H x W x 2, C order, header versions 1.0 and 2.0.
+ * Non-finite values other than the format's unknown code are read as unknown (NaN). */
+int sinew_flow_read(sinew_ctx *ctx, sinew_image *flow, const char *path, sinew_flow_format fmt);
+
+/* Write a flow field (SINEW_F32, 2 channels) in the given format (AUTO: by extension).
+ * KITTI PNG refuses finite vectors outside the representable range [-512, 512) with
+ * SINEW_EVALUE naming the file. */
+int sinew_flow_write(sinew_ctx *ctx, const char *path, const sinew_image *flow,
+                     sinew_flow_format fmt);
+
+/* ---- plain arrays ----
+ * .npy arrays of 2 or 3 dimensions map to SINEW_F32 images: H x W -> 1 channel,
+ * H x W x C -> C channels (C <= 4). Readers accept float16/32/64 and convert to float32.
+ * Writers emit format version 1.0 with '<f4' (or '<f2' when half = 1). */
+int sinew_npy_read_image(sinew_ctx *ctx, sinew_image *out, const char *path);
+int sinew_npy_write_image(sinew_ctx *ctx, const char *path, const sinew_image *img, int half);
+/* Write a 2-D float32 table (rows x cols, row-major, `data` contiguous) as .npy. */
+int sinew_npy_write_table(sinew_ctx *ctx, const char *path, const float *data, size_t rows,
+                          size_t cols);
+/* PFM scalar ("Pf") or 3-channel ("PF") maps, e.g. float depth in metres. */
+int sinew_pfm_read_image(sinew_ctx *ctx, sinew_image *out, const char *path);
+int sinew_pfm_write_image(sinew_ctx *ctx, const char *path, const sinew_image *img);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,6 @@
+/* SPDX-License-Identifier: MIT */
+/* Umbrella header: include this to get the whole public sinew API. */
+#ifndef SINEW_H
+#define SINEW_H
+#include "flow/core.h"
+#endif

@@ -1,0 +1,105 @@
+/* SPDX-License-Identifier: MIT */
+#define _POSIX_C_SOURCE 200809L
+#include "tests/support/testutil.h"
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+char *tu_tmpdir(void)
+{
+    const char *base = getenv("TMPDIR");
+    char tmpl[512];
+    snprintf(tmpl, sizeof tmpl, "%s/sinew-test.XXXXXX", base && *base ? base : "/tmp");
+    char *d = mkdtemp(tmpl);
+    assert_non_null(d);
+    return strdup(d);
+}
+
+void tu_rmtree(const char *dir)
+{
+    if (!dir)
+        return;
+    char cmd[1200];
+    snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
+    if (system(cmd) != 0)
+        fprintf(stderr, "warning: could not remove %s\n", dir);
+}
+
+char *tu_path(char *buf, size_t n, const char *dir, const char *name)
+{
+    snprintf(buf, n, "%s/%s", dir, name);
+    return buf;
+}
+
+const char *tu_data_dir(void)
+{
+    const char *d = getenv("SINEW_DATA");
+    if (!d || !*d)
+        d = "../shared/data";
+    struct stat st;
+    if (stat(d, &st) != 0 || !S_ISDIR(st.st_mode))
+        return NULL;
+    return d;
+}
+
+const char *tu_data_file(char *buf, size_t n, const char *rel)
+{
+    const char *d = tu_data_dir();
+    if (!d)
+        return NULL;
+    snprintf(buf, n, "%s/%s", d, rel);
+    struct stat st;
+    return stat(buf, &st) == 0 ? buf : NULL;
+}
+
+void tu_write_bytes(const char *path, const void *data, size_t n)
+{
+    FILE *f = fopen(path, "wb");
+    assert_non_null(f);
+    if (n)
+        assert_int_equal(fwrite(data, 1, n, f), n);
+    assert_int_equal(fclose(f), 0);
+}
+
+int tu_file_exists(const char *path)
+{
+    struct stat st;
+    return stat(path, &st) == 0;
+}
+
+const char *tu_python(void)
+{
+    const char *p = getenv("PYTHON");
+    return p && *p ? p : "/usr/bin/python3";
+}
+
+static void *fa_alloc(void *ud, size_t n)
+{
+    tu_failalloc *fa = ud;
+    fa->calls++;
+    if (fa->fail_at > 0 && fa->calls == fa->fail_at)
+        return NULL;
+    void *p = NULL;
+    if (posix_memalign(&p, 64, n ? n : 1) != 0)
+        return NULL;
+    fa->live++;
+    return p;
+}
+
+static void fa_free(void *ud, void *p)
+{
+    tu_failalloc *fa = ud;
+    if (p) {
+        fa->live--;
+        free(p);
+    }
+}
+
+sinew_ctx *tu_ctx_failing(tu_failalloc *fa)
+{
+    sinew_allocator a = {fa_alloc, fa_free, fa};
+    return sinew_ctx_new_with(&a);
+}

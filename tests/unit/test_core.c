@@ -1,0 +1,115 @@
+/* SPDX-License-Identifier: MIT */
+/* Unit tests for flow/core.c: context, images, limits, atomic output files. */
+#include "tests/support/testutil.h"
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+static void test_core_strerror_covers_all(void **state)
+{
+    (void)state;
+    for (int s = SINEW_OK; s <= SINEW_EINTERNAL; s++)
+        assert_string_not_equal(sinew_strerror(s), "unknown status");
+    assert_string_equal(sinew_strerror(9999), "unknown status");
+}
+
+static void test_core_image_alloc_layout(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_image img;
+    assert_int_equal(sinew_image_alloc(ctx, &img, 5, 3, 3, SINEW_U16), SINEW_OK);
+    assert_int_equal(img.stride % 64, 0);
+    assert_true(img.stride >= 5 * 3 * 2);
+    assert_int_equal(((uintptr_t)img.data) % 64, 0);
+    assert_int_equal(sinew_image_row_u16(&img, 2)[14], 0);
+    sinew_image cp;
+    sinew_image_row_u16(&img, 1)[4] = 777;
+    assert_int_equal(sinew_image_copy(ctx, &cp, &img), SINEW_OK);
+    assert_true(sinew_image_same_shape(&cp, &img));
+    assert_int_equal(sinew_image_row_u16(&cp, 1)[4], 777);
+    sinew_image_free(&cp);
+    sinew_image_free(&img);
+    sinew_image_free(&img); /* double free of a zeroed struct is harmless */
+    sinew_ctx_free(ctx);
+}
+
+static void test_core_pixel_limit_refuses_huge(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_image img;
+    assert_int_equal(sinew_image_alloc(ctx, &img, 200000, 200000, 1, SINEW_U8), SINEW_ELIMIT);
+    assert_null(img.data);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "200000x200000"));
+    assert_int_equal(sinew_ctx_set_max_pixels(ctx, 100), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &img, 11, 10, 1, SINEW_U8), SINEW_ELIMIT);
+    assert_int_equal(sinew_image_alloc(ctx, &img, 10, 10, 1, SINEW_U8), SINEW_OK);
+    sinew_image_free(&img);
+    assert_int_equal(sinew_image_alloc(ctx, &img, 0, 10, 1, SINEW_U8), SINEW_EFORMAT);
+    assert_int_equal(sinew_image_alloc(ctx, &img, 10, 10, 5, SINEW_U8), SINEW_EINVAL);
+    assert_int_equal(sinew_ctx_set_max_pixels(ctx, 0), SINEW_EINVAL);
+    sinew_ctx_free(ctx);
+}
+
+static void test_core_alloc_failure_is_clean(void **state)
+{
+    (void)state;
+    tu_failalloc fa = {2, 0, 0}; /* call 1 = the context itself, call 2 = the image */
+    sinew_ctx *ctx = tu_ctx_failing(&fa);
+    assert_non_null(ctx);
+    sinew_image img;
+    assert_int_equal(sinew_image_alloc(ctx, &img, 4, 4, 1, SINEW_F32), SINEW_ENOMEM);
+    assert_null(img.data);
+    assert_int_equal(fa.live, 1);
+    sinew_ctx_free(ctx);
+    assert_int_equal(fa.live, 0);
+}
+
+static void test_core_outfile_atomic(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    char p[600];
+    tu_path(p, sizeof p, dir, "a.bin");
+    assert_int_equal(sinew_write_file(ctx, p, "hello", 5), SINEW_OK);
+    unsigned char *buf;
+    size_t len;
+    assert_int_equal(sinew_read_file(ctx, p, 100, &buf, &len), SINEW_OK);
+    assert_int_equal(len, 5);
+    assert_memory_equal(buf, "hello", 5);
+    sinew_ctx_dealloc(ctx, buf);
+    assert_int_equal(sinew_read_file(ctx, p, 4, &buf, &len), SINEW_ELIMIT);
+    /* abort leaves the old content */
+    sinew_outfile *f;
+    assert_int_equal(sinew_outfile_open(ctx, &f, p), SINEW_OK);
+    fputs("partial", (FILE *)sinew_outfile_stream(f));
+    sinew_outfile_abort(f);
+    assert_int_equal(sinew_read_file(ctx, p, 100, &buf, &len), SINEW_OK);
+    assert_int_equal(len, 5);
+    sinew_ctx_dealloc(ctx, buf);
+    /* a directory as output path is an error naming it */
+    assert_int_equal(sinew_write_file(ctx, dir, "x", 1), SINEW_EIO);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "is a directory"));
+    /* missing folder */
+    tu_path(p, sizeof p, dir, "nope/a.bin");
+    assert_int_equal(sinew_write_file(ctx, p, "x", 1), SINEW_EIO);
+    assert_non_null(strstr(sinew_ctx_message(ctx), p));
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_core_strerror_covers_all),
+        cmocka_unit_test(test_core_image_alloc_layout),
+        cmocka_unit_test(test_core_pixel_limit_refuses_huge),
+        cmocka_unit_test(test_core_alloc_failure_is_clean),
+        cmocka_unit_test(test_core_outfile_atomic),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}

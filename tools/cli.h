@@ -1,0 +1,36 @@
+/* SPDX-License-Identifier: MIT */
+/* Shared helpers for the sinew command-line front end: error printing, strict number
+ * parsing, the research-use notice. Built only on the public flow/ headers. */
+#ifndef SINEW_CLI_H
+#define SINEW_CLI_H
+
+#include "flow/sinew.h"
+
+/* Exit codes: 0 success, 1 runtime failure, 2 usage error. */
+enum { CLI_OK = 0, CLI_FAIL = 1, CLI_USAGE = 2 };
+
+/* The notice shown in every --help. */
+extern const char cli_notice[];
+
+/* Print "sinew: CMD: message" as one line on stderr (newlines in the message are
+ * replaced by spaces). Returns CLI_FAIL. */
+int cli_error(const char *cmd, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* Same with exit code CLI_USAGE and a hint to run --help. */
+int cli_usage_error(const char *cmd, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* Print the context's message for a failed status (or the generic text). Returns CLI_FAIL. */
+int cli_status(const char *cmd, sinew_ctx *ctx, int status);
+
+/* Strict parsers: the whole string must be a number in range; 0 on success. */
+int cli_parse_int(const char *s, long min, long max, long *out);
+int cli_parse_double(const char *s, double *out);
+/* Parse "WxH". */
+int cli_parse_size(const char *s, int *w, int *h);
+
+/* Create a context with the thread count from --threads (0 = default); prints on failure. */
+sinew_ctx *cli_ctx(const char *cmd, int threads);
+
+#define SINEW_CMD(name, summary) int cmd_##name(int argc, char **argv);
+#include "tools/commands.def"
+#undef SINEW_CMD
+
+#endif

@@ -3,4 +3,5 @@
 #ifndef SINEW_H
 #define SINEW_H
 #include "flow/core.h"
+#include "flow/metrics.h"
 #endif

@@ -37,8 +37,8 @@ static int check_same_size(sinew_ctx *ctx, const sinew_image *a, const char *wa,
                            const sinew_image *b, const char *wb)
 {
     if (a->width != b->width || a->height != b->height)
-        return sinew__fail(ctx, SINEW_ESIZE, "%s is %dx%d but %s is %dx%d", wa, a->width,
-                           a->height, wb, b->width, b->height);
+        return sinew__fail(ctx, SINEW_ESIZE, "%s is %dx%d but %s is %dx%d", wa, a->width, a->height,
+                           wb, b->width, b->height);
     return SINEW_OK;
 }
 
@@ -50,7 +50,8 @@ static inline int flow_known(float u, float v)
 /* Angle in degrees between (u, v, 1) and (ug, vg, 1); Barron, Fleet, Beauchemin 1994. */
 static inline double angular_error_deg(double u, double v, double ug, double vg)
 {
-    double c = (1.0 + u * ug + v * vg) / (sqrt(1.0 + u * u + v * v) * sqrt(1.0 + ug * ug + vg * vg));
+    double c =
+        (1.0 + u * ug + v * vg) / (sqrt(1.0 + u * u + v * v) * sqrt(1.0 + ug * ug + vg * vg));
     if (c > 1.0)
         c = 1.0;
     if (c < -1.0)
@@ -259,8 +260,7 @@ void sinew_flow_summary_mean(sinew_flow_summary *out, const sinew_flow_summary *
 /* ---- occlusion masks ---- */
 
 int sinew_mask_scores_compute(sinew_ctx *ctx, sinew_mask_scores *out, const sinew_image *pred,
-                              const sinew_image *truth, const sinew_image *valid,
-                              unsigned bits)
+                              const sinew_image *truth, const sinew_image *valid, unsigned bits)
 {
     if (!ctx || !out)
         return SINEW_EINVAL;
@@ -268,7 +268,8 @@ int sinew_mask_scores_compute(sinew_ctx *ctx, sinew_mask_scores *out, const sine
     int st;
     if ((st = check_image(ctx, pred, "predicted mask", SINEW_U8, 1)) ||
         (st = check_image(ctx, truth, "ground-truth occlusion", SINEW_U8, 1)) ||
-        (st = check_same_size(ctx, pred, "the predicted mask", truth, "the ground-truth occlusion")))
+        (st =
+             check_same_size(ctx, pred, "the predicted mask", truth, "the ground-truth occlusion")))
         return st;
     if (valid && ((st = check_image(ctx, valid, "validity mask", SINEW_U8, 1)) ||
                   (st = check_same_size(ctx, valid, "the validity mask", truth,
@@ -375,12 +376,12 @@ int sinew_sparsification(sinew_ctx *ctx, const float *uncertainty, const float *
         return SINEW_EINVAL;
     if (!uncertainty || !error || n < 1 || steps < 1)
         return sinew__fail(ctx, SINEW_EINVAL,
-                           "sparsification: need n >= 1 values and steps >= 1 (n=%zu, steps=%d)",
-                           n, steps);
+                           "sparsification: need n >= 1 values and steps >= 1 (n=%zu, steps=%d)", n,
+                           steps);
     for (size_t i = 0; i < n; i++) {
         if (!isfinite(uncertainty[i]))
-            return sinew__fail(ctx, SINEW_EVALUE,
-                               "sparsification: uncertainty %zu is not finite", i);
+            return sinew__fail(ctx, SINEW_EVALUE, "sparsification: uncertainty %zu is not finite",
+                               i);
         if (!isfinite(error[i]) || error[i] < 0.0f)
             return sinew__fail(ctx, SINEW_EVALUE,
                                "sparsification: error %zu is not a finite value >= 0", i);

@@ -33,16 +33,16 @@ extern "C" {
 /* Raw sums of one region over one or more pairs. Adding two of these (field by field,
  * sinew_flow_errors_add) pools pixels; the ratios are taken only when summarising. */
 typedef struct sinew_flow_stats {
-    int64_t n_pairs;  /* pairs that contributed (for pooled sums) */
-    int64_t n_gt;     /* pixels with known ground truth inside the evaluation mask */
-    int64_t n_valid;  /* of those, pixels where the estimate is known too (scored) */
-    double sum_epe;   /* sum of EE over scored pixels, px */
-    double sum_ae;    /* sum of AE over scored pixels, degrees */
-    int64_t n_r05;    /* scored pixels with EE > 0.5 px */
-    int64_t n_r1;     /* EE > 1 px */
-    int64_t n_r3;     /* EE > 3 px */
-    int64_t n_r5;     /* EE > 5 px */
-    int64_t n_fl;     /* KITTI outliers: EE > 3 px and EE > 0.05 |gt| */
+    int64_t n_pairs; /* pairs that contributed (for pooled sums) */
+    int64_t n_gt;    /* pixels with known ground truth inside the evaluation mask */
+    int64_t n_valid; /* of those, pixels where the estimate is known too (scored) */
+    double sum_epe;  /* sum of EE over scored pixels, px */
+    double sum_ae;   /* sum of AE over scored pixels, degrees */
+    int64_t n_r05;   /* scored pixels with EE > 0.5 px */
+    int64_t n_r1;    /* EE > 1 px */
+    int64_t n_r3;    /* EE > 3 px */
+    int64_t n_r5;    /* EE > 5 px */
+    int64_t n_fl;    /* KITTI outliers: EE > 3 px and EE > 0.05 |gt| */
 } sinew_flow_stats;
 
 /* Regions: all scored pixels, non-occluded, occluded. */
@@ -95,12 +95,12 @@ const char *sinew_averaging_text(sinew_averaging a);
 /* Final numbers of one region. Values are NaN when n_valid is 0 (nothing scored). */
 typedef struct sinew_flow_summary {
     sinew_averaging averaging;
-    int64_t n_pairs;    /* pairs pooled or averaged (mean: pairs with n_valid > 0) */
-    int64_t n_gt;       /* total pixels with known ground truth */
-    int64_t n_valid;    /* total scored pixels */
-    double epe;         /* px */
-    double aae_deg;     /* degrees */
-    double r05_pct;     /* % of scored pixels with EE > 0.5 px */
+    int64_t n_pairs; /* pairs pooled or averaged (mean: pairs with n_valid > 0) */
+    int64_t n_gt;    /* total pixels with known ground truth */
+    int64_t n_valid; /* total scored pixels */
+    double epe;      /* px */
+    double aae_deg;  /* degrees */
+    double r05_pct;  /* % of scored pixels with EE > 0.5 px */
     double r1_pct;
     double r3_pct;
     double r5_pct;
@@ -114,8 +114,7 @@ void sinew_flow_stats_summarize(sinew_flow_summary *out, const sinew_flow_stats 
 /* Mean of per-pair summaries (averaging = SINEW_AVG_PAIR_MEAN): each field is the
  * unweighted mean over the pairs with n_valid > 0; n_gt/n_valid are totals. pairs may
  * be NULL when n == 0 (result: NaN values, zero counts). */
-void sinew_flow_summary_mean(sinew_flow_summary *out, const sinew_flow_summary *pairs,
-                             size_t n);
+void sinew_flow_summary_mean(sinew_flow_summary *out, const sinew_flow_summary *pairs, size_t n);
 
 /* ---- occlusion masks ---------------------------------------------------------------
  * Confusion counts of a predicted occlusion mask against the ground truth. */
@@ -129,8 +128,7 @@ typedef struct sinew_mask_scores {
  * SINEW_U8 1 channel, nonzero = count this pixel. Same sizes. *out is overwritten.
  * EINVAL / ESIZE / ENOMEM. Deterministic for any thread count. */
 int sinew_mask_scores_compute(sinew_ctx *ctx, sinew_mask_scores *out, const sinew_image *pred,
-                              const sinew_image *truth, const sinew_image *valid,
-                              unsigned bits);
+                              const sinew_image *truth, const sinew_image *valid, unsigned bits);
 /* precision = tp/(tp+fp), recall = tp/(tp+fn), F1 = 2PR/(P+R); each NaN when its
  * denominator is 0. Any output pointer may be NULL. */
 void sinew_mask_scores_rates(const sinew_mask_scores *s, double *precision, double *recall,

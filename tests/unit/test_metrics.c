@@ -66,13 +66,13 @@ static void test_metrics_hand_computed_pair(void **state)
     sinew_flow_summary s;
     sinew_flow_stats_summarize(&s, a);
     assert_int_equal(s.averaging, SINEW_AVG_POOLED);
-    assert_close(s.epe, (0.0 + 1.0 + 5.0) / 3.0, EPS);                     /* = 2 */
+    assert_close(s.epe, (0.0 + 1.0 + 5.0) / 3.0, EPS); /* = 2 */
     assert_close(s.aae_deg, (0.0 + 35.26438968275465 + 78.69006752597979) / 3.0, 1e-9);
     assert_close(s.r05_pct, 100.0 * 2 / 3, EPS); /* EE 1 and 5 are > 0.5 */
     assert_close(s.r1_pct, 100.0 * 1 / 3, EPS);  /* only EE 5 (> is strict: 1 is not > 1) */
     assert_close(s.r3_pct, 100.0 * 1 / 3, EPS);
-    assert_close(s.r5_pct, 0.0, EPS);            /* 5 is not > 5 */
-    assert_close(s.fl_all_pct, 100.0 / 3, EPS);  /* 5 > 3 and 5 > 0.05*5 */
+    assert_close(s.r5_pct, 0.0, EPS);           /* 5 is not > 5 */
+    assert_close(s.fl_all_pct, 100.0 / 3, EPS); /* 5 > 3 and 5 > 0.05*5 */
     assert_close(s.density_pct, 100.0, EPS);
     sinew_image_free(&est);
     sinew_image_free(&gt);
@@ -93,7 +93,7 @@ static void test_metrics_missing_estimate_lowers_density(void **state)
     sinew_flow_stats_summarize(&s, &e.region[SINEW_REGION_ALL]);
     assert_int_equal(s.n_gt, 3);
     assert_int_equal(s.n_valid, 2);
-    assert_close(s.epe, 0.5, EPS);              /* (0 + 1) / 2 */
+    assert_close(s.epe, 0.5, EPS);               /* (0 + 1) / 2 */
     assert_close(s.density_pct, 200.0 / 3, EPS); /* 2 of 3 */
     sinew_image_free(&est);
     sinew_image_free(&gt);
@@ -177,16 +177,18 @@ static void test_metrics_angular_error_formula(void **state)
     sinew_image est, gt;
     assert_int_equal(sinew_image_alloc(ctx, &est, 1, 1, 2, SINEW_F32), SINEW_OK);
     assert_int_equal(sinew_image_alloc(ctx, &gt, 1, 1, 2, SINEW_F32), SINEW_OK);
-    const float cases[][4] = {{0.5f, -0.25f, 0.4f, -0.2f}, {-3, 2, 1, 1},     {10, 0, 0, 10},
-                              {0, 0, -2, 0},               {1e-3f, 0, 0, 0}, {-7.5f, 3, 7.5f, -3}};
+    const float cases[][4] = {
+        {0.5f, -0.25f, 0.4f, -0.2f}, {-3, 2, 1, 1}, {10, 0, 0, 10}, {0, 0, -2, 0}, {1e-3f, 0, 0, 0},
+        {-7.5f, 3, 7.5f, -3}};
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
         double u = cases[i][0], v = cases[i][1], ug = cases[i][2], vg = cases[i][3];
         flow_set(&est, 0, 0, (float)u, (float)v);
         flow_set(&gt, 0, 0, (float)ug, (float)vg);
         sinew_flow_errors r;
         assert_int_equal(sinew_flow_errors_compute(ctx, &r, &est, &gt, NULL, NULL), SINEW_OK);
-        double ref = acos((1 + u * ug + v * vg) / (sqrt(1 + u * u + v * v) * sqrt(1 + ug * ug + vg * vg))) *
-                     180.0 / 3.14159265358979323846;
+        double ref =
+            acos((1 + u * ug + v * vg) / (sqrt(1 + u * u + v * v) * sqrt(1 + ug * ug + vg * vg))) *
+            180.0 / 3.14159265358979323846;
         assert_close(r.region[SINEW_REGION_ALL].sum_ae, ref, 1e-9);
     }
     /* Second case worked by hand: est (-3,2), gt (1,1): dot = 1 - 3 + 2 = 0 -> 90 deg. */

@@ -3,5 +3,6 @@
 #ifndef SINEW_H
 #define SINEW_H
 #include "flow/core.h"
+#include "flow/draw.h"
 #include "flow/metrics.h"
 #endif

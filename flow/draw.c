@@ -207,12 +207,12 @@ static const struct {
     uint8_t c[3];
     const char *name;
 } reasons[SINEW_DRAW_REASONS] = {
-    {{232, 112, 92}, "FB MISMATCH"},   /* bit 0: forward-backward inconsistent (coral) */
-    {{92, 164, 232}, "LEAVES FRAME"},  /* bit 1: target outside the frame (sky blue) */
-    {{236, 192, 72}, "MOTION EDGE"},   /* bit 2: motion boundary (amber) */
-    {{172, 124, 224}, "PHOTOMETRIC"},  /* bit 3: photometric error (violet) */
-    {{150, 160, 172}, "USER IGNORE"},  /* bit 4: user ignore mask (slate gray) */
-    {{112, 204, 152}, "SATURATED"},    /* bit 5: saturated pixels (mint) */
+    {{232, 112, 92}, "FB MISMATCH"},  /* bit 0: forward-backward inconsistent (coral) */
+    {{92, 164, 232}, "LEAVES FRAME"}, /* bit 1: target outside the frame (sky blue) */
+    {{236, 192, 72}, "MOTION EDGE"},  /* bit 2: motion boundary (amber) */
+    {{172, 124, 224}, "PHOTOMETRIC"}, /* bit 3: photometric error (violet) */
+    {{150, 160, 172}, "USER IGNORE"}, /* bit 4: user ignore mask (slate gray) */
+    {{112, 204, 152}, "SATURATED"},   /* bit 5: saturated pixels (mint) */
 };
 
 int sinew_reason_style(int bit, uint8_t rgb[3], const char **name)
@@ -283,8 +283,7 @@ static int clip_segment(double *x0, double *y0, double *x1, double *y1, double h
 void sinew_image_draw_line(sinew_image *img, double x0, double y0, double x1, double y1,
                            const uint8_t rgb[3])
 {
-    if (!is_canvas(img) || !rgb || !isfinite(x0) || !isfinite(y0) || !isfinite(x1) ||
-        !isfinite(y1))
+    if (!is_canvas(img) || !rgb || !isfinite(x0) || !isfinite(y0) || !isfinite(x1) || !isfinite(y1))
         return;
     if (!clip_segment(&x0, &y0, &x1, &y1, img->width, img->height))
         return;
@@ -368,8 +367,8 @@ static uint8_t frame_dim(const sinew_image *f, int x, int y)
     int nc = f->channels;
     for (int b = 0; b < (nc >= 3 ? 3 : 1); b++) {
         size_t i = (size_t)x * nc + b;
-        c[b] = f->type == SINEW_U8 ? sinew_image_row_u8(f, y)[i]
-                                   : sinew_image_row_u16(f, y)[i] / 257;
+        c[b] =
+            f->type == SINEW_U8 ? sinew_image_row_u8(f, y)[i] : sinew_image_row_u16(f, y)[i] / 257;
     }
     int g = nc >= 3 ? (77 * c[0] + 150 * c[1] + 29 * c[2] + 128) >> 8 : c[0];
     return (uint8_t)(20 + (140 * g + 127) / 255);
@@ -378,6 +377,7 @@ static uint8_t frame_dim(const sinew_image *f, int x, int y)
 /* Paint the dimmed frame (or black) into rows 0..fh-1, columns x0.. of the canvas. */
 static void paint_frame(sinew_ctx *ctx, sinew_image *out, const sinew_image *frame, int x0)
 {
+    (void)ctx; /* only the thread count is read, and not at all without OpenMP */
     if (!frame)
         return;
     const int w = frame->width, h = frame->height;
@@ -598,8 +598,8 @@ int sinew_draw_heatmap(sinew_ctx *ctx, sinew_image *out, const sinew_image *map,
     return SINEW_OK;
 }
 
-int sinew_draw_epe(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow,
-                   const sinew_image *gt, double max_epe, int legend)
+int sinew_draw_epe(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow, const sinew_image *gt,
+                   double max_epe, int legend)
 {
     if (!ctx || !out)
         return SINEW_EINVAL;

@@ -87,8 +87,8 @@ int sinew_draw_heatmap(sinew_ctx *ctx, sinew_image *out, const sinew_image *map,
 /* Endpoint-error heatmap of flow against ground truth gt (both SINEW_F32 2-channel,
  * same size, else SINEW_ESIZE): |flow - gt| per pixel, NaN where either is unknown,
  * drawn from 0 to max_epe (<= 0: automatic as in sinew_draw_heatmap). */
-int sinew_draw_epe(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow,
-                   const sinew_image *gt, double max_epe, int legend);
+int sinew_draw_epe(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow, const sinew_image *gt,
+                   double max_epe, int legend);
 
 /* Rejection reasons over the frame: mask is SINEW_U8 1-channel (bits as in
  * flow/check.h; bits 6 and 7 are ignored). A pixel with reasons takes the colour of its

@@ -91,8 +91,8 @@ int sinew_text_width(const char *text, int scale)
 int sinew_image_draw_text(sinew_image *img, int x, int y, int scale, const char *text,
                           const uint8_t rgb[3])
 {
-    if (!img || !img->data || img->type != SINEW_U8 || img->channels != 3 || !text ||
-        !rgb || scale < 1)
+    if (!img || !img->data || img->type != SINEW_U8 || img->channels != 3 || !text || !rgb ||
+        scale < 1)
         return 0;
     int cx = x;
     for (const char *p = text; *p; p++, cx += 6 * scale) {

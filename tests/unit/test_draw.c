@@ -97,9 +97,9 @@ static void test_draw_wheel_entries_match_construction(void **state)
     /* Segment starts worked by hand from the segment table (published-numbers.md 6.2):
      * 0 red, 15 yellow, 21 green, 25 cyan, 36 blue, 49 magenta, 7 = 255*7/15 = 119 green,
      * 54 = 255 - 255*5/6 = 43 blue. */
-    const int hand[][4] = {{0, 255, 0, 0},     {7, 255, 119, 0}, {15, 255, 255, 0},
-                           {21, 0, 255, 0},    {25, 0, 255, 255}, {36, 0, 0, 255},
-                           {49, 255, 0, 255},  {54, 255, 0, 43}};
+    const int hand[][4] = {{0, 255, 0, 0},    {7, 255, 119, 0},  {15, 255, 255, 0},
+                           {21, 0, 255, 0},   {25, 0, 255, 255}, {36, 0, 0, 255},
+                           {49, 255, 0, 255}, {54, 255, 0, 43}};
     for (size_t i = 0; i < sizeof hand / sizeof hand[0]; i++) {
         sinew_wheel_entry(hand[i][0], rgb);
         expect_rgb(rgb, hand[i][1], hand[i][2], hand[i][3]);
@@ -385,8 +385,8 @@ static void test_draw_reasons_bit_colours(void **state)
     uint8_t *m = sinew_image_row_u8(&mask, 0);
     for (int b = 0; b < 6; b++)
         m[b] = (uint8_t)(1u << b);
-    m[6] = 0x0C;  /* bits 2 and 3: the lowest (2) wins */
-    m[7] = 0xC0;  /* bits 6, 7: not reasons */
+    m[6] = 0x0C; /* bits 2 and 3: the lowest (2) wins */
+    m[7] = 0xC0; /* bits 6, 7: not reasons */
     assert_int_equal(sinew_draw_reasons(ctx, &out, &frame, &mask, 0), SINEW_OK);
     /* Gray 100 -> g = (77+150+29)*100+128 >> 8 = 100; dimmed 20 + (14000+127)/255 = 75. */
     const int dim = 75;

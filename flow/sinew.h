@@ -5,4 +5,5 @@
 #include "flow/core.h"
 #include "flow/draw.h"
 #include "flow/metrics.h"
+#include "flow/run.h"
 #endif

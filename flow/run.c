@@ -1,0 +1,640 @@
+/* SPDX-License-Identifier: MIT */
+/* The run engine: resume, per-pair done records, error records, cancel.
+ *
+ * Invariants that make kills, shards and resumes safe:
+ *  - a pair's files live only in OUTDIR/pairs/NAME and are written only by the shard
+ *    that owns the pair (index % n == k);
+ *  - every file is written under a temporary name, fsynced and renamed;
+ *  - done.json is written last and names the pair key (SHA-256 of the sinew version,
+ *    the options text, the pair and the digests of its input files) plus the size and
+ *    digest of every output, so a resumed run trusts a pair only if all of it is
+ *    there and was made from the same inputs and options;
+ *  - before a pair is recomputed its folder is emptied, so stale files of older
+ *    options never mix with new ones;
+ *  - no output contains a time, host name or thread count, so a whole run, a sharded
+ *    run and any resumed run produce the same bytes.
+ * Input digests are cached per run (each input file is read once for hashing). */
+#define _POSIX_C_SOURCE 200809L
+#include <dirent.h>
+#include <errno.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <cJSON.h>
+
+#include "flow/internal/base.h"
+#include "flow/internal/run.h"
+#include "flow/run.h"
+
+enum { ROLE_COLOR = 0, ROLE_DEPTH, ROLE_LABELS, NROLES };
+static const char *const role_name[NROLES] = {"color", "depth", "labels"};
+
+typedef struct {
+    unsigned char digest[32];
+    uint64_t bytes;
+    unsigned char state; /* 0 unknown, 1 known */
+} digest_entry;
+
+struct sinew_run {
+    sinew_ctx *ctx;
+    sinew_run_spec spec;
+    digest_entry *cache;     /* nframes * NROLES */
+    digest_entry intrinsics;
+};
+
+/* ---- small helpers shared with manifest.c ---- */
+
+int sinew__path_join(sinew_ctx *ctx, char *buf, size_t n, const char *a, const char *b)
+{
+    int w = snprintf(buf, n, "%s/%s", a, b);
+    if (w < 0 || (size_t)w >= n)
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s/%s: path too long", a, b);
+    return SINEW_OK;
+}
+
+int sinew__mkdirs(sinew_ctx *ctx, const char *path)
+{
+    char buf[SINEW__PATH_MAX];
+    size_t n = strlen(path);
+    if (n == 0 || n >= sizeof buf)
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s: path too long", path);
+    memcpy(buf, path, n + 1);
+    for (size_t i = 1; i <= n; i++) {
+        if (buf[i] != '/' && buf[i] != '\0')
+            continue;
+        char c = buf[i];
+        buf[i] = '\0';
+        if (mkdir(buf, 0777) != 0 && errno != EEXIST)
+            return sinew__fail(ctx, SINEW_EIO, "%s: cannot create folder: %s", buf,
+                               strerror(errno));
+        buf[i] = c;
+    }
+    struct stat st;
+    if (stat(path, &st) != 0 || !S_ISDIR(st.st_mode))
+        return sinew__fail(ctx, SINEW_EIO, "%s: not a folder", path);
+    return SINEW_OK;
+}
+
+int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj)
+{
+    char *text = cJSON_Print(obj);
+    if (!text)
+        return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory formatting JSON", path);
+    size_t n = strlen(text);
+    text[n] = '\n'; /* replace the terminator: cJSON output is text, add a final newline */
+    int rc = sinew_write_file(ctx, path, text, n + 1);
+    cJSON_free(text);
+    return rc;
+}
+
+int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON **out)
+{
+    *out = NULL;
+    unsigned char *buf;
+    size_t len;
+    int rc = sinew_read_file(ctx, path, max_bytes, &buf, &len);
+    if (rc)
+        return rc;
+    const char *end = NULL;
+    cJSON *j = cJSON_ParseWithLengthOpts((const char *)buf, len, &end, 0);
+    size_t off = end ? (size_t)(end - (const char *)buf) : 0;
+    sinew_ctx_dealloc(ctx, buf);
+    if (!j)
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: invalid JSON near byte %zu", path, off);
+    *out = j;
+    return SINEW_OK;
+}
+
+static cJSON *json_digest_entry(const char *key, const char *value, uint64_t bytes,
+                                const unsigned char digest[32])
+{
+    char hex[65];
+    sinew_sha256_hex(digest, hex);
+    cJSON *o = cJSON_CreateObject();
+    if (!o || !cJSON_AddStringToObject(o, key, value) ||
+        !cJSON_AddNumberToObject(o, "bytes", (double)bytes) ||
+        !cJSON_AddStringToObject(o, "sha256", hex)) {
+        cJSON_Delete(o);
+        return NULL;
+    }
+    return o;
+}
+
+/* ---- inputs and keys ---- */
+
+static int digest_cached(sinew_run *run, digest_entry *e, const char *path)
+{
+    if (e->state)
+        return SINEW_OK;
+    int rc = sinew_sha256_file(run->ctx, path, e->digest, &e->bytes);
+    if (rc)
+        return rc;
+    e->state = 1;
+    return SINEW_OK;
+}
+
+int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_t *nin,
+                           char *fwd, char *bwd, size_t pathn)
+{
+    const sinew_run_spec *s = &run->spec;
+    sinew_pair p = s->pairs[index];
+    size_t n = 0;
+    int rc;
+    static const char *const end_name[2] = {"0", "1"};
+    for (int r = 0; r < NROLES; r++)
+        for (int end = 0; end < 2; end++) {
+            int32_t f = end ? p.j : p.i;
+            const sinew_run_frame *fr = &s->frames[f];
+            const char *path = r == ROLE_COLOR ? fr->color : r == ROLE_DEPTH ? fr->depth
+                                                                             : fr->labels;
+            if (!path)
+                continue;
+            digest_entry *e = &run->cache[(size_t)f * NROLES + (size_t)r];
+            if ((rc = digest_cached(run, e, path)))
+                return rc;
+            in[n].path = path;
+            snprintf(in[n].role, sizeof in[n].role, "%s%s", role_name[r], end_name[end]);
+            memcpy(in[n].digest, e->digest, 32);
+            in[n].bytes = e->bytes;
+            n++;
+        }
+    if (s->intrinsics) {
+        if ((rc = digest_cached(run, &run->intrinsics, s->intrinsics)))
+            return rc;
+        in[n].path = s->intrinsics;
+        snprintf(in[n].role, sizeof in[n].role, "intrinsics");
+        memcpy(in[n].digest, run->intrinsics.digest, 32);
+        in[n].bytes = run->intrinsics.bytes;
+        n++;
+    }
+    if (s->flow_from) {
+        char name[SINEW_PAIR_NAME_MAX];
+        sinew_pair_name(name, p);
+        if ((rc = sinew_run_find_import(run->ctx, s->flow_from, name, fwd, bwd, pathn)))
+            return rc;
+        const char *paths[2] = {fwd, bwd};
+        const char *roles[2] = {"flow_forward", "flow_backward"};
+        for (int k = 0; k < 2; k++) {
+            if ((rc = sinew_sha256_file(run->ctx, paths[k], in[n].digest, &in[n].bytes)))
+                return rc;
+            in[n].path = paths[k];
+            snprintf(in[n].role, sizeof in[n].role, "%s", roles[k]);
+            n++;
+        }
+    }
+    *nin = n;
+    return SINEW_OK;
+}
+
+void sinew__run_pair_key(const sinew_run *run, size_t index, const sinew__input *in,
+                         size_t nin, char hex[65])
+{
+    char name[SINEW_PAIR_NAME_MAX], line[160];
+    sinew_pair_name(name, run->spec.pairs[index]);
+    sinew_sha256 s;
+    sinew_sha256_init(&s);
+    int w = snprintf(line, sizeof line, "sinew-pair-key 1\nversion %s\npair %s\noptions ",
+                     SINEW_VERSION_STRING, name);
+    sinew_sha256_update(&s, line, (size_t)w);
+    const char *opt = run->spec.options ? run->spec.options : "";
+    sinew_sha256_update(&s, opt, strlen(opt));
+    sinew_sha256_update(&s, "\n", 1);
+    for (size_t k = 0; k < nin; k++) {
+        char h[65];
+        sinew_sha256_hex(in[k].digest, h);
+        w = snprintf(line, sizeof line, "input %s %s %llu\n", in[k].role, h,
+                     (unsigned long long)in[k].bytes);
+        sinew_sha256_update(&s, line, (size_t)w);
+    }
+    unsigned char d[32];
+    sinew_sha256_final(&s, d);
+    sinew_sha256_hex(d, hex);
+}
+
+int sinew__run_pair_dir(sinew_run *run, size_t index, char *buf, size_t n)
+{
+    char name[SINEW_PAIR_NAME_MAX], rel[SINEW_PAIR_NAME_MAX + 8];
+    sinew_pair_name(name, run->spec.pairs[index]);
+    snprintf(rel, sizeof rel, "pairs/%s", name);
+    return sinew__path_join(run->ctx, buf, n, run->spec.outdir, rel);
+}
+
+/* ---- setup ---- */
+
+int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
+{
+    if (!ctx || !out || !spec || !spec->outdir || !*spec->outdir ||
+        (spec->nframes && !spec->frames) || (spec->npairs && !spec->pairs))
+        return SINEW_EINVAL;
+    *out = NULL;
+    if (spec->nframes > SINEW_RUN_MAX_FRAMES)
+        return sinew__fail(ctx, SINEW_ELIMIT, "sequence has %zu frames, limit %d",
+                           spec->nframes, SINEW_RUN_MAX_FRAMES);
+    if (spec->npairs > SINEW_RUN_MAX_PAIRS)
+        return sinew__fail(ctx, SINEW_ELIMIT, "schedule has %zu pairs, limit %d", spec->npairs,
+                           SINEW_RUN_MAX_PAIRS);
+    if (spec->shard_n < 1 || spec->shard_k < 0 || spec->shard_k >= spec->shard_n)
+        return sinew__fail(ctx, SINEW_ECONFIG, "shard %d/%d: need 0 <= K < N", spec->shard_k,
+                           spec->shard_n);
+    for (size_t f = 0; f < spec->nframes; f++)
+        if (!spec->frames[f].color)
+            return sinew__fail(ctx, SINEW_ECONFIG, "frame %zu has no colour image", f);
+    for (size_t q = 0; q < spec->npairs; q++) {
+        sinew_pair p = spec->pairs[q];
+        if (p.i < 0 || p.j < 0 || (size_t)p.i >= spec->nframes || (size_t)p.j >= spec->nframes ||
+            p.i == p.j)
+            return sinew__fail(ctx, SINEW_ECONFIG, "pair %zu (%d, %d) is out of range", q,
+                               (int)p.i, (int)p.j);
+    }
+    int rc = sinew__mkdirs(ctx, spec->outdir);
+    char pairs[SINEW__PATH_MAX];
+    if (!rc)
+        rc = sinew__path_join(ctx, pairs, sizeof pairs, spec->outdir, "pairs");
+    if (!rc)
+        rc = sinew__mkdirs(ctx, pairs);
+    if (rc)
+        return rc;
+    sinew_run *run = sinew__calloc(ctx, 1, sizeof *run);
+    if (!run)
+        return SINEW_ENOMEM;
+    run->ctx = ctx;
+    run->spec = *spec;
+    if (spec->nframes) {
+        run->cache = sinew__calloc(ctx, spec->nframes, NROLES * sizeof *run->cache);
+        if (!run->cache) {
+            sinew__free(ctx, run);
+            return SINEW_ENOMEM;
+        }
+    }
+    *out = run;
+    return SINEW_OK;
+}
+
+void sinew_run_free(sinew_run *run)
+{
+    if (!run)
+        return;
+    sinew_ctx *ctx = run->ctx;
+    sinew__free(ctx, run->cache);
+    sinew__free(ctx, run);
+}
+
+const sinew_run_spec *sinew__run_spec(const sinew_run *run)
+{
+    return &run->spec;
+}
+
+sinew_ctx *sinew__run_ctx(const sinew_run *run)
+{
+    return run->ctx;
+}
+
+/* ---- pair folders ---- */
+
+/* Remove every regular file in a pair folder (outputs, records, stale temporaries). */
+static int empty_dir(sinew_ctx *ctx, const char *dir)
+{
+    DIR *d = opendir(dir);
+    if (!d)
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open folder: %s", dir, strerror(errno));
+    struct dirent *e;
+    char p[SINEW__PATH_MAX];
+    int rc = SINEW_OK;
+    while ((e = readdir(d)) != NULL) {
+        if (!strcmp(e->d_name, ".") || !strcmp(e->d_name, ".."))
+            continue;
+        if (sinew__path_join(ctx, p, sizeof p, dir, e->d_name))
+            continue;
+        struct stat st;
+        if (lstat(p, &st) == 0 && S_ISREG(st.st_mode) && unlink(p) != 0 && errno != ENOENT) {
+            rc = sinew__fail(ctx, SINEW_EIO, "%s: cannot remove: %s", p, strerror(errno));
+            break;
+        }
+    }
+    closedir(d);
+    return rc;
+}
+
+static int cmp_str(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
+
+/* The pair's outputs: regular files other than the records and temporaries, sorted
+ * by name (byte order) so the done record is deterministic. */
+static int list_outputs(sinew_ctx *ctx, const char *dir, char ***names, size_t *n)
+{
+    *names = NULL;
+    *n = 0;
+    DIR *d = opendir(dir);
+    if (!d)
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open folder: %s", dir, strerror(errno));
+    size_t cap = 0;
+    struct dirent *e;
+    int rc = SINEW_OK;
+    while ((e = readdir(d)) != NULL) {
+        const char *nm = e->d_name;
+        if (nm[0] == '.' || !strcmp(nm, SINEW__DONE_FILE) || !strcmp(nm, SINEW__ERROR_FILE))
+            continue;
+        if (*n == cap) {
+            size_t nc = cap ? cap * 2 : 16;
+            char **g = sinew__calloc(ctx, nc, sizeof *g);
+            if (!g) {
+                rc = SINEW_ENOMEM;
+                break;
+            }
+            if (*names)
+                memcpy(g, *names, *n * sizeof *g);
+            sinew__free(ctx, *names);
+            *names = g;
+            cap = nc;
+        }
+        size_t l = strlen(nm);
+        char *c = sinew__alloc(ctx, l + 1);
+        if (!c) {
+            rc = SINEW_ENOMEM;
+            break;
+        }
+        memcpy(c, nm, l + 1);
+        (*names)[(*n)++] = c;
+    }
+    closedir(d);
+    if (!rc && *n > 1)
+        qsort(*names, *n, sizeof **names, cmp_str);
+    return rc;
+}
+
+static void free_names(sinew_ctx *ctx, char **names, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        sinew__free(ctx, names[i]);
+    sinew__free(ctx, names);
+}
+
+static cJSON *record_head(const sinew_run *run, size_t index, const char *name)
+{
+    sinew_pair p = run->spec.pairs[index];
+    cJSON *o = cJSON_CreateObject();
+    cJSON *fr = cJSON_CreateArray();
+    if (!o || !fr || !cJSON_AddStringToObject(o, "pair", name)) {
+        cJSON_Delete(o);
+        cJSON_Delete(fr);
+        return NULL;
+    }
+    cJSON_AddItemToObject(o, "frames", fr);
+    cJSON_AddItemToArray(fr, cJSON_CreateNumber(p.i));
+    cJSON_AddItemToArray(fr, cJSON_CreateNumber(p.j));
+    return o;
+}
+
+static int write_error_record(sinew_run *run, size_t index, const char *name, const char *dir,
+                              const char *message)
+{
+    cJSON *o = record_head(run, index, name);
+    if (!o || !cJSON_AddStringToObject(o, "status", "failed") ||
+        !cJSON_AddStringToObject(o, "error", message)) {
+        cJSON_Delete(o);
+        return sinew__fail(run->ctx, SINEW_ENOMEM, "out of memory");
+    }
+    char p[SINEW__PATH_MAX];
+    int rc = sinew__path_join(run->ctx, p, sizeof p, dir, SINEW__ERROR_FILE);
+    if (!rc)
+        rc = sinew__json_write(run->ctx, p, o);
+    cJSON_Delete(o);
+    return rc;
+}
+
+static int write_done_record(sinew_run *run, size_t index, const char *name, const char *dir,
+                             const char *key, const sinew__input *in, size_t nin)
+{
+    sinew_ctx *ctx = run->ctx;
+    char **names = NULL;
+    size_t nn = 0;
+    int rc = list_outputs(ctx, dir, &names, &nn);
+    cJSON *o = NULL;
+    if (rc)
+        goto done;
+    o = record_head(run, index, name);
+    cJSON *ins = cJSON_CreateArray(), *outs = cJSON_CreateArray();
+    if (!o || !ins || !outs) {
+        cJSON_Delete(ins);
+        cJSON_Delete(outs);
+        rc = sinew__fail(ctx, SINEW_ENOMEM, "out of memory");
+        goto done;
+    }
+    cJSON_AddStringToObject(o, "key", key);
+    cJSON_AddStringToObject(o, "sinew_version", SINEW_VERSION_STRING);
+    cJSON_AddItemToObject(o, "inputs", ins);
+    cJSON_AddItemToObject(o, "outputs", outs);
+    for (size_t k = 0; k < nin; k++) {
+        cJSON *e = json_digest_entry("role", in[k].role, in[k].bytes, in[k].digest);
+        if (!e || !cJSON_AddStringToObject(e, "path", in[k].path)) {
+            cJSON_Delete(e);
+            rc = sinew__fail(ctx, SINEW_ENOMEM, "out of memory");
+            goto done;
+        }
+        cJSON_AddItemToArray(ins, e);
+    }
+    for (size_t k = 0; k < nn; k++) {
+        char p[SINEW__PATH_MAX];
+        unsigned char d[32];
+        uint64_t bytes;
+        if ((rc = sinew__path_join(ctx, p, sizeof p, dir, names[k])) ||
+            (rc = sinew_sha256_file(ctx, p, d, &bytes)))
+            goto done;
+        cJSON *e = json_digest_entry("file", names[k], bytes, d);
+        if (!e) {
+            rc = sinew__fail(ctx, SINEW_ENOMEM, "out of memory");
+            goto done;
+        }
+        cJSON_AddItemToArray(outs, e);
+    }
+    char p[SINEW__PATH_MAX];
+    if (!(rc = sinew__path_join(ctx, p, sizeof p, dir, SINEW__DONE_FILE)))
+        rc = sinew__json_write(ctx, p, o);
+done:
+    cJSON_Delete(o);
+    free_names(ctx, names, nn);
+    return rc;
+}
+
+int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, int verify,
+                             cJSON **record)
+{
+    sinew_ctx *ctx = run->ctx;
+    if (record)
+        *record = NULL;
+    char p[SINEW__PATH_MAX];
+    if (sinew__path_join(ctx, p, sizeof p, dir, SINEW__DONE_FILE))
+        return SINEW_PAIR_PENDING;
+    struct stat st;
+    if (stat(p, &st) != 0)
+        return SINEW_PAIR_PENDING;
+    cJSON *j = NULL;
+    if (sinew__json_read(ctx, p, (size_t)64 << 20, &j))
+        return SINEW_PAIR_PENDING;
+    const cJSON *k = cJSON_GetObjectItemCaseSensitive(j, "key");
+    const cJSON *outs = cJSON_GetObjectItemCaseSensitive(j, "outputs");
+    int ok = cJSON_IsString(k) && !strcmp(k->valuestring, key) && cJSON_IsArray(outs);
+    const cJSON *e;
+    cJSON_ArrayForEach(e, outs)
+    {
+        if (!ok || !verify)
+            break;
+        const cJSON *f = cJSON_GetObjectItemCaseSensitive(e, "file");
+        const cJSON *b = cJSON_GetObjectItemCaseSensitive(e, "bytes");
+        const cJSON *h = cJSON_GetObjectItemCaseSensitive(e, "sha256");
+        char fp[SINEW__PATH_MAX], hex[65];
+        unsigned char d[32];
+        uint64_t bytes;
+        ok = cJSON_IsString(f) && cJSON_IsNumber(b) && cJSON_IsString(h) &&
+             !strchr(f->valuestring, '/') &&
+             !sinew__path_join(ctx, fp, sizeof fp, dir, f->valuestring) && stat(fp, &st) == 0 &&
+             (double)st.st_size == b->valuedouble &&
+             !sinew_sha256_file(ctx, fp, d, &bytes);
+        if (ok) {
+            sinew_sha256_hex(d, hex);
+            ok = !strcmp(hex, h->valuestring);
+        }
+    }
+    sinew_ctx_clear(ctx);
+    if (ok && record)
+        *record = j;
+    else
+        cJSON_Delete(j);
+    return ok ? SINEW_PAIR_SKIPPED : SINEW_PAIR_PENDING;
+}
+
+/* ---- execution ---- */
+
+int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
+                      sinew_run_progress_fn progress, void *progress_ud,
+                      sinew_run_result *result)
+{
+    if (result)
+        memset(result, 0, sizeof *result);
+    if (!run || !fn || !result)
+        return SINEW_EINVAL;
+    sinew_ctx *ctx = run->ctx;
+    const sinew_run_spec *s = &run->spec;
+    for (size_t q = 0; q < s->npairs; q++)
+        if (sinew_shard_owns(q, s->shard_k, s->shard_n))
+            result->total++;
+    sinew__input in[SINEW__MAX_INPUTS];
+    char fwd[SINEW__PATH_MAX], bwd[SINEW__PATH_MAX], dir[SINEW__PATH_MAX];
+    char first_msg[1024] = "";
+    for (size_t q = 0; q < s->npairs; q++) {
+        if (!sinew_shard_owns(q, s->shard_k, s->shard_n))
+            continue;
+        if (s->cancel && *s->cancel) {
+            result->interrupted = 1;
+            break;
+        }
+        char name[SINEW_PAIR_NAME_MAX], key[65];
+        sinew_pair_name(name, s->pairs[q]);
+        size_t nin = 0;
+        sinew_pair_status st = SINEW_PAIR_COMPUTED;
+        int rc = sinew__run_pair_dir(run, q, dir, sizeof dir);
+        if (!rc)
+            rc = sinew__mkdirs(ctx, dir);
+        if (!rc)
+            rc = sinew__run_pair_inputs(run, q, in, &nin, fwd, bwd, sizeof fwd);
+        if (!rc) {
+            sinew__run_pair_key(run, q, in, nin, key);
+            if (s->resume && sinew__run_record_status(run, dir, key, 1, NULL) ==
+                                 SINEW_PAIR_SKIPPED)
+                st = SINEW_PAIR_SKIPPED;
+        }
+        if (!rc && st == SINEW_PAIR_COMPUTED)
+            rc = empty_dir(ctx, dir);
+        if (!rc && st == SINEW_PAIR_COMPUTED) {
+            sinew_run_job job = {q, s->pairs[q], name, dir, s->flow_from ? fwd : NULL,
+                                 s->flow_from ? bwd : NULL};
+            char *stats = NULL;
+            rc = fn(fn_ud, ctx, &job, &stats);
+            if (!rc && !stats)
+                rc = sinew__fail(ctx, SINEW_EINTERNAL, "%s: pair function gave no stats", name);
+            char sp[SINEW__PATH_MAX];
+            if (!rc && !(rc = sinew__path_join(ctx, sp, sizeof sp, dir, SINEW__STATS_FILE))) {
+                size_t n = strlen(stats);
+                stats[n] = '\n'; /* the stats buffer is NUL-terminated; replace it */
+                rc = sinew_write_file(ctx, sp, stats, n + 1);
+                stats[n] = '\0';
+            }
+            sinew_ctx_dealloc(ctx, stats);
+            if (!rc)
+                rc = write_done_record(run, q, name, dir, key, in, nin);
+        }
+        char msg[1024] = "";
+        if (rc) {
+            st = SINEW_PAIR_FAILED;
+            snprintf(msg, sizeof msg, "%s", sinew_ctx_message(ctx)[0] ? sinew_ctx_message(ctx)
+                                                                      : sinew_strerror(rc));
+            if (!result->status) {
+                result->status = rc;
+                snprintf(first_msg, sizeof first_msg, "%s", msg);
+            }
+            /* leave only the error record: outputs of a failed pair are not results */
+            struct stat dst;
+            if (stat(dir, &dst) == 0 && S_ISDIR(dst.st_mode) && !empty_dir(ctx, dir))
+                (void)write_error_record(run, q, name, dir, msg);
+            result->failed++;
+        } else if (st == SINEW_PAIR_SKIPPED) {
+            result->skipped++;
+        } else {
+            result->computed++;
+        }
+        if (progress) {
+            sinew_run_progress pr = {result->total,
+                                     result->computed + result->skipped + result->failed,
+                                     result->computed,
+                                     result->skipped,
+                                     result->failed,
+                                     q,
+                                     name,
+                                     st,
+                                     msg};
+            progress(progress_ud, &pr);
+        }
+        if (rc && s->on_error == SINEW_RUN_STOP)
+            break;
+    }
+    if (result->status) {
+        sinew__fail(ctx, result->status, "%s", first_msg);
+        return result->status;
+    }
+    if (result->interrupted)
+        return sinew__fail(ctx, SINEW_EINTERRUPTED, "interrupted: %zu of %zu pairs finished",
+                           result->computed + result->skipped, result->total);
+    return SINEW_OK;
+}
+
+int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd,
+                          char *bwd, size_t n)
+{
+    if (!ctx || !dir || !name || !fwd || !bwd)
+        return SINEW_EINVAL;
+    static const char *const ext[] = {"flo", "npy", "pfm", "png"};
+    char *out[2] = {fwd, bwd};
+    static const char *const base[2] = {"forward", "backward"};
+    for (int k = 0; k < 2; k++) {
+        int found = 0;
+        for (size_t e = 0; e < sizeof ext / sizeof ext[0] && !found; e++) {
+            int w = snprintf(out[k], n, "%s/%s/%s.%s", dir, name, base[k], ext[e]);
+            if (w < 0 || (size_t)w >= n)
+                return sinew__fail(ctx, SINEW_ELIMIT, "%s/%s: path too long", dir, name);
+            struct stat st;
+            found = stat(out[k], &st) == 0 && S_ISREG(st.st_mode);
+        }
+        if (!found) {
+            snprintf(out[k], n, "%s/%s/%s.flo", dir, name, base[k]);
+            return sinew__fail(ctx, SINEW_EIO,
+                               "%s: imported flow not found (also tried .npy, .pfm, .png)",
+                               out[k]);
+        }
+    }
+    return SINEW_OK;
+}

@@ -1,0 +1,229 @@
+/* SPDX-License-Identifier: MIT */
+/* Whole-sequence runs: content hashes (SHA-256), pair schedules with stable output
+ * names, deterministic sharding, colour/depth association by timestamp, and the run
+ * engine that gives resume, per-pair "done" records and the run manifest.
+ *
+ * The engine does not know how a pair is processed: the caller passes a pair function
+ * (the `sinew run` command passes the flow/check/match/lift pipeline; tests pass a
+ * cheap stand-in). The engine owns everything around it: which pairs this shard owns,
+ * which pairs are already complete and up to date, cleaning a pair folder before it
+ * is recomputed, the "done" record written last, error records, the cancel flag and
+ * the manifest. Layout and file formats are documented in docs/formats.md. */
+#ifndef SINEW_RUN_H
+#define SINEW_RUN_H
+
+#include <signal.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include "flow/core.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ---- SHA-256 (FIPS 180-4) ------------------------------------------------------ */
+typedef struct sinew_sha256 {
+    uint32_t h[8];
+    uint64_t bytes;          /* message length so far */
+    unsigned char block[64]; /* pending partial block */
+    size_t fill;             /* bytes pending in block */
+} sinew_sha256;
+
+/* Start a digest. Never fails. */
+void sinew_sha256_init(sinew_sha256 *s);
+/* Add n bytes (data may be NULL when n == 0). */
+void sinew_sha256_update(sinew_sha256 *s, const void *data, size_t n);
+/* Finish: write the 32-byte digest. The state must be re-initialised before reuse. */
+void sinew_sha256_final(sinew_sha256 *s, unsigned char digest[32]);
+/* Lower-case hex of a digest into hex[65] (NUL-terminated). */
+void sinew_sha256_hex(const unsigned char digest[32], char hex[65]);
+/* Digest of a whole file, read in blocks (memory does not grow with file size).
+ * bytes (may be NULL) receives the file size. EIO naming the path if it cannot be
+ * opened or read. */
+int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32],
+                      uint64_t *bytes);
+
+/* ---- pair schedules ------------------------------------------------------------
+ * Frames are numbered 0..nframes-1 in sequence order. A pair (i, j) means flow from
+ * frame i to frame j (forward) and from j to i (backward). */
+typedef struct sinew_pair {
+    int32_t i;
+    int32_t j;
+} sinew_pair;
+
+typedef enum sinew_schedule_kind {
+    SINEW_SCHEDULE_CONSECUTIVE = 0, /* (0,1) (1,2) ... (n-2,n-1) */
+    SINEW_SCHEDULE_GAP,             /* (0,k) (1,k+1) ... : every frame to the k-th next */
+    SINEW_SCHEDULE_KEYFRAME,        /* every `every`-th frame i to each of i+1..i+window */
+    SINEW_SCHEDULE_LIST             /* explicit pairs, kept in the given order */
+} sinew_schedule_kind;
+
+typedef struct sinew_schedule {
+    sinew_schedule_kind kind;
+    int gap;                 /* GAP: k >= 1 */
+    int every;               /* KEYFRAME: keyframe spacing >= 1 (keyframes 0, every, 2*every...) */
+    int window;              /* KEYFRAME: partners per keyframe >= 1 */
+    const sinew_pair *list;  /* LIST: borrowed */
+    size_t list_len;
+} sinew_schedule;
+
+/* Limits checked before any allocation. Frame numbers in pair names have 6 digits. */
+#define SINEW_RUN_MAX_FRAMES 1000000
+#define SINEW_RUN_MAX_PAIRS 10000000
+
+/* Expand a schedule for nframes frames into *pairs (allocated on ctx; free with
+ * sinew_ctx_dealloc; NULL when *npairs is 0). Pairs whose partner falls past the
+ * last frame are dropped. ECONFIG for a bad parameter, a LIST pair out of range,
+ * i == j, or a pair listed twice (it would share an output folder); ELIMIT beyond the
+ * limits above. Order: increasing i then j, except LIST which keeps its order. */
+int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes,
+                         sinew_pair **pairs, size_t *npairs);
+
+/* Stable output name of a pair: "%06d-%06d" of (i, j), e.g. "000012-000013". buf needs
+ * at least SINEW_PAIR_NAME_MAX bytes. Returns buf. */
+#define SINEW_PAIR_NAME_MAX 16
+char *sinew_pair_name(char *buf, sinew_pair p);
+
+/* Shard ownership: pair number `index` (position in the schedule, 0-based) belongs to
+ * shard k of n exactly when index % n == k. Deterministic and independent of which
+ * pairs are already done, so shards never write the same pair. */
+static inline int sinew_shard_owns(size_t index, int k, int n)
+{
+    return n <= 1 || (int)(index % (size_t)n) == k;
+}
+
+/* ---- timestamp association -----------------------------------------------------
+ * Match two stamp lists (seconds): a candidate is (a, b) with
+ * |ta[a] - (tb[b] + offset)| < max_diff; candidates are taken greedily from the
+ * smallest difference (ties: smaller a, then smaller b), each stamp used at most once.
+ * This is the procedure of the published TUM RGB-D association tool (max difference
+ * 0.02 s, offset 0; ../shared/notes/published-numbers.md section 7, tagged V2 for the
+ * defaults and M-hi for the greedy rule).
+ * match[a] receives the index into tb, or -1 if a has no partner. Returns the number
+ * of matches through *nmatched. ECONFIG if max_diff <= 0 or any stamp is not finite. */
+int sinew_associate(sinew_ctx *ctx, const double *ta, size_t na, const double *tb, size_t nb,
+                    double max_diff, double offset, int32_t *match, size_t *nmatched);
+
+/* A "timestamp filename" list (rgb.txt / depth.txt style): one entry per line, '#'
+ * lines and blank lines ignored, extra columns refused. Strings and arrays are
+ * allocated on ctx; free with sinew_stamp_list_free. */
+typedef struct sinew_stamp_list {
+    size_t n;
+    double *t;
+    char **name;
+} sinew_stamp_list;
+int sinew_stamp_list_read(sinew_ctx *ctx, const char *path, sinew_stamp_list *out);
+void sinew_stamp_list_free(sinew_ctx *ctx, sinew_stamp_list *l);
+
+/* ---- the run engine ------------------------------------------------------------ */
+typedef struct sinew_run_frame {
+    const char *color;  /* image path, required */
+    const char *depth;  /* depth map path or NULL */
+    const char *labels; /* label image path or NULL */
+} sinew_run_frame;
+
+typedef enum sinew_run_on_error {
+    SINEW_RUN_STOP = 0, /* the first failing pair ends the run */
+    SINEW_RUN_SKIP      /* record the failure beside the pair and carry on */
+} sinew_run_on_error;
+
+/* Everything the engine needs; all pointers are borrowed for the life of the run. */
+typedef struct sinew_run_spec {
+    const sinew_run_frame *frames;
+    size_t nframes;
+    const char *intrinsics;   /* shared input file hashed into every key, or NULL */
+    const sinew_pair *pairs;  /* the expanded schedule */
+    size_t npairs;
+    const char *flow_from;    /* folder of imported flows (see sinew_run_find_import) or NULL */
+    const char *options;      /* canonical text of every option that changes outputs
+                                 (e.g. compact JSON); part of every pair key */
+    const char *outdir;       /* output folder (created if missing) */
+    int shard_k, shard_n;     /* this process owns pairs with index % n == k; n = 1: all */
+    int resume;               /* skip pairs whose done record matches */
+    sinew_run_on_error on_error;
+    const volatile sig_atomic_t *cancel; /* nonzero: stop before the next pair; may be NULL */
+} sinew_run_spec;
+
+/* What the pair function receives. */
+typedef struct sinew_run_job {
+    size_t index;            /* position in the schedule */
+    sinew_pair pair;
+    const char *name;        /* sinew_pair_name of the pair */
+    const char *dir;         /* OUTDIR/pairs/NAME, exists and holds no outputs */
+    const char *flow_fwd;    /* imported forward flow path (flow_from set) or NULL */
+    const char *flow_bwd;    /* imported backward flow path or NULL */
+} sinew_run_job;
+
+/* Process one pair: write every output into job->dir (atomically, e.g. through
+ * sinew_outfile_* or the io.h writers) and return the pair's statistics as a JSON
+ * object text in *stats (allocated with sinew_ctx_alloc on ctx; the engine frees it
+ * and writes it to stats.json). Return a status; on failure set the ctx message
+ * naming the file. */
+typedef int (*sinew_run_pair_fn)(void *ud, sinew_ctx *ctx, const sinew_run_job *job,
+                                 char **stats);
+
+typedef enum sinew_pair_status {
+    SINEW_PAIR_PENDING = 0,
+    SINEW_PAIR_COMPUTED,  /* processed in this run */
+    SINEW_PAIR_SKIPPED,   /* already complete and up to date (resume) */
+    SINEW_PAIR_FAILED
+} sinew_pair_status;
+
+/* Reported after every owned pair. */
+typedef struct sinew_run_progress {
+    size_t total;     /* pairs owned by this shard */
+    size_t finished;  /* computed + skipped + failed so far */
+    size_t computed, skipped, failed;
+    size_t index;     /* the pair just finished */
+    const char *name;
+    sinew_pair_status status;
+    const char *message; /* failure detail or "" */
+} sinew_run_progress;
+typedef void (*sinew_run_progress_fn)(void *ud, const sinew_run_progress *p);
+
+typedef struct sinew_run_result {
+    size_t total, computed, skipped, failed;
+    int interrupted;     /* stopped by the cancel flag */
+    int status;          /* first failure's status (SINEW_OK if none) */
+} sinew_run_result;
+
+typedef struct sinew_run sinew_run;
+
+/* Prepare a run: validates the spec (ECONFIG for bad shard numbers, pairs out of
+ * range, limits) and creates OUTDIR and OUTDIR/pairs. Free with sinew_run_free. */
+int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec);
+void sinew_run_free(sinew_run *run);
+
+/* Process every owned pair in schedule order. For each: stop if *cancel is set;
+ * hash the inputs (each file once per run) and form the pair key
+ * SHA-256(version, options, pair, input digests); with resume, skip the pair when
+ * its done record carries that key and every listed output has the recorded size
+ * and digest; otherwise empty the pair folder, call fn, write stats.json, then write
+ * done.json last (atomically). A failure writes error.json beside the pair; with
+ * SINEW_RUN_STOP the run ends there. Returns SINEW_OK when every owned pair ended
+ * computed or skipped, SINEW_EINTERRUPTED when cancelled, otherwise the first
+ * failure's status (its message stays on ctx). *result is always filled. */
+int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
+                      sinew_run_progress_fn progress, void *progress_ud,
+                      sinew_run_result *result);
+
+/* Rebuild OUTDIR/manifest.json from the per-pair records of every pair in the
+ * schedule (all shards): inputs with sizes and SHA-256, options, version, and per
+ * pair its status ("done" when the done record matches the current key, "failed"
+ * with the message, otherwise "pending") and stats. Written atomically (temporary
+ * name, fsync, rename), so shards or a merge step never leave a torn manifest.
+ * Counts are returned through the optional pointers. */
+int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed,
+                             size_t *npending);
+
+/* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
+ * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).
+ * Paths are written into fwd/bwd (size n); EIO naming the missing file. */
+int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd,
+                          char *bwd, size_t n);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,565 @@
+/* SPDX-License-Identifier: MIT */
+/* Unit tests for the run machinery: SHA-256, schedules and pair names, shards,
+ * timestamp association, stamp lists, and the engine (resume, error policies,
+ * cancel, manifest, shards giving the same bytes as a whole run). The engine tests
+ * use a cheap stand-in pair function; tests/cli/test_run.sh covers the real
+ * pipeline. */
+#define _POSIX_C_SOURCE 200809L
+#include "tests/support/testutil.h"
+
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+static void hex_of(const void *msg, size_t n, char hex[65])
+{
+    sinew_sha256 s;
+    unsigned char d[32];
+    sinew_sha256_init(&s);
+    sinew_sha256_update(&s, msg, n);
+    sinew_sha256_final(&s, d);
+    sinew_sha256_hex(d, hex);
+}
+
+/* Vectors: FIPS 180-2 Appendix B.1-B.3 / NIST "SHA256.pdf" examples with
+ * intermediate values (one-block "abc", two-block 448-bit message, one million 'a'),
+ * the empty-string digest and the 896-bit message of the NIST example set (from
+ * memory; cross-checked with Debian python3 hashlib before committing). */
+static void test_run_sha256_nist_vectors(void **state)
+{
+    (void)state;
+    char hex[65];
+    hex_of("", 0, hex);
+    assert_string_equal(hex, "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855");
+    hex_of("abc", 3, hex);
+    assert_string_equal(hex, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    const char *m448 = "abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq";
+    hex_of(m448, strlen(m448), hex);
+    assert_string_equal(hex, "248d6a61d20638b8e5c026930c3e6039a33ce45964ff2167f6ecedd419db06c1");
+    const char *m896 = "abcdefghbcdefghicdefghijdefghijkefghijklfghijklmghijklmnhijklmno"
+                       "ijklmnopjklmnopqklmnopqrlmnopqrsmnopqrstnopqrstu";
+    hex_of(m896, strlen(m896), hex);
+    assert_string_equal(hex, "cf5b16a778af8380036ce59e7b0492370b249b11e8f07a51afac45037afee9d1");
+    /* one million 'a', fed in uneven pieces to exercise the block buffer */
+    char a[1000];
+    memset(a, 'a', sizeof a);
+    sinew_sha256 s;
+    unsigned char d[32];
+    sinew_sha256_init(&s);
+    size_t left = 1000000, step = 1;
+    while (left) {
+        size_t n = step < left ? step : left;
+        n = n < sizeof a ? n : sizeof a;
+        sinew_sha256_update(&s, a, n);
+        left -= n;
+        step = step * 7 % 997 + 1;
+    }
+    sinew_sha256_final(&s, d);
+    sinew_sha256_hex(d, hex);
+    assert_string_equal(hex, "cdc76e5c9914fb9281a1c7e284d73e67f1809a48a497200e046d39ccc7112cd0");
+}
+
+static void test_run_sha256_file_matches_memory(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    char p[600];
+    tu_path(p, sizeof p, dir, "f.bin");
+    size_t n = 200003; /* more than three 64 KiB chunks, not a multiple of 64 */
+    unsigned char *buf = malloc(n);
+    for (size_t i = 0; i < n; i++)
+        buf[i] = (unsigned char)(i * 2654435761u >> 13);
+    tu_write_bytes(p, buf, n);
+    char h1[65], h2[65];
+    hex_of(buf, n, h1);
+    unsigned char d[32];
+    uint64_t bytes = 0;
+    assert_int_equal(sinew_sha256_file(ctx, p, d, &bytes), SINEW_OK);
+    sinew_sha256_hex(d, h2);
+    assert_string_equal(h1, h2);
+    assert_int_equal(bytes, n);
+    tu_path(p, sizeof p, dir, "missing.bin");
+    assert_int_equal(sinew_sha256_file(ctx, p, d, NULL), SINEW_EIO);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "missing.bin"));
+    free(buf);
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
+static size_t expand(sinew_ctx *ctx, sinew_schedule s, size_t n, sinew_pair **p)
+{
+    size_t np = 0;
+    assert_int_equal(sinew_schedule_pairs(ctx, &s, n, p, &np), SINEW_OK);
+    return np;
+}
+
+static void test_run_schedule_kinds_and_names(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_pair *p;
+    sinew_schedule s = {SINEW_SCHEDULE_CONSECUTIVE, 0, 0, 0, NULL, 0};
+    assert_int_equal(expand(ctx, s, 5, &p), 4);
+    assert_int_equal(p[3].i, 3);
+    assert_int_equal(p[3].j, 4);
+    sinew_ctx_dealloc(ctx, p);
+    assert_int_equal(expand(ctx, s, 1, &p), 0);
+    assert_null(p);
+
+    s.kind = SINEW_SCHEDULE_GAP;
+    s.gap = 2;
+    assert_int_equal(expand(ctx, s, 5, &p), 3);
+    assert_int_equal(p[0].i, 0);
+    assert_int_equal(p[0].j, 2);
+    assert_int_equal(p[2].i, 2);
+    assert_int_equal(p[2].j, 4);
+    sinew_ctx_dealloc(ctx, p);
+
+    /* keyframes every 3rd frame, each to the next 2: (0,1)(0,2)(3,4)(3,5)(6,7)? n=7 */
+    s.kind = SINEW_SCHEDULE_KEYFRAME;
+    s.every = 3;
+    s.window = 2;
+    assert_int_equal(expand(ctx, s, 7, &p), 4);
+    const int want[4][2] = {{0, 1}, {0, 2}, {3, 4}, {3, 5}};
+    for (int k = 0; k < 4; k++) {
+        assert_int_equal(p[k].i, want[k][0]);
+        assert_int_equal(p[k].j, want[k][1]);
+    }
+    sinew_ctx_dealloc(ctx, p);
+    s.every = 0;
+    size_t np;
+    assert_int_equal(sinew_schedule_pairs(ctx, &s, 7, &p, &np), SINEW_ECONFIG);
+
+    const sinew_pair list[] = {{4, 1}, {0, 2}};
+    s = (sinew_schedule){SINEW_SCHEDULE_LIST, 0, 0, 0, list, 2};
+    assert_int_equal(expand(ctx, s, 5, &p), 2);
+    assert_int_equal(p[0].i, 4); /* list order is kept; backward pairs allowed */
+    sinew_ctx_dealloc(ctx, p);
+    const sinew_pair dup[] = {{0, 1}, {2, 3}, {0, 1}};
+    s.list = dup;
+    s.list_len = 3;
+    assert_int_equal(sinew_schedule_pairs(ctx, &s, 5, &p, &np), SINEW_ECONFIG);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "listed twice"));
+    const sinew_pair bad[] = {{0, 5}};
+    s.list = bad;
+    s.list_len = 1;
+    assert_int_equal(sinew_schedule_pairs(ctx, &s, 5, &p, &np), SINEW_ECONFIG);
+    s = (sinew_schedule){SINEW_SCHEDULE_CONSECUTIVE, 0, 0, 0, NULL, 0};
+    assert_int_equal(sinew_schedule_pairs(ctx, &s, SINEW_RUN_MAX_FRAMES + 1, &p, &np),
+                     SINEW_ELIMIT);
+    /* keyframe windows can multiply pairs: refused before allocation */
+    s = (sinew_schedule){SINEW_SCHEDULE_KEYFRAME, 0, 1, 100000, NULL, 0};
+    assert_int_equal(sinew_schedule_pairs(ctx, &s, 500000, &p, &np), SINEW_ELIMIT);
+
+    char name[SINEW_PAIR_NAME_MAX];
+    assert_string_equal(sinew_pair_name(name, (sinew_pair){12, 13}), "000012-000013");
+    assert_string_equal(sinew_pair_name(name, (sinew_pair){999999, 0}), "999999-000000");
+    sinew_ctx_free(ctx);
+}
+
+static void test_run_shards_partition_pairs(void **state)
+{
+    (void)state;
+    for (int n = 1; n <= 5; n++)
+        for (size_t q = 0; q < 23; q++) {
+            int owners = 0;
+            for (int k = 0; k < n; k++)
+                owners += sinew_shard_owns(q, k, n);
+            assert_int_equal(owners, 1);
+            assert_true(sinew_shard_owns(q, (int)(q % (size_t)n), n));
+        }
+}
+
+/* Crafted example in the style of a TUM RGB-D rgb.txt/depth.txt pair (30 Hz colour,
+ * depth stamps offset by a few milliseconds, one depth frame dropped, one colour
+ * frame with two depth candidates). Rule: |ta - tb| < 0.02 s, greedy on the smallest
+ * difference, each stamp used once (published-numbers.md section 7). */
+static void test_run_associate_greedy_within_tolerance(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    const double ta[] = {100.000, 100.033, 100.066, 100.100, 100.133};
+    const double tb[] = {100.004, 100.030, 100.045, 100.104, 100.160};
+    int32_t m[5];
+    size_t nm;
+    assert_int_equal(sinew_associate(ctx, ta, 5, tb, 5, 0.02, 0.0, m, &nm), SINEW_OK);
+    /* 100.000-100.004 (4 ms), 100.033-100.030 (3 ms); 100.066 -> 100.045 is 21 ms: none;
+     * 100.100-100.104 (4 ms); 100.133 -> 100.160 is 27 ms: none. 100.045 is unused:
+     * its nearest colour stamp 100.033 already took the closer 100.030. */
+    assert_int_equal(nm, 3);
+    assert_int_equal(m[0], 0);
+    assert_int_equal(m[1], 1);
+    assert_int_equal(m[2], -1);
+    assert_int_equal(m[3], 3);
+    assert_int_equal(m[4], -1);
+    /* greedy on the smallest difference: b=0 goes to a=1 (1 ms) although it is also
+     * a=0's nearest (10 ms); a=0 then takes b=1 (15 ms < 20 ms) */
+    const double ta2[] = {10.000, 10.009};
+    const double tb2[] = {10.010, 10.015};
+    assert_int_equal(sinew_associate(ctx, ta2, 2, tb2, 2, 0.02, 0.0, m, &nm), SINEW_OK);
+    assert_int_equal(nm, 2);
+    assert_int_equal(m[1], 0);
+    assert_int_equal(m[0], 1);
+    sinew_ctx_free(ctx);
+}
+
+static void test_run_associate_offset_and_errors(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    const double ta[] = {1.0, 2.0};
+    const double tb[] = {0.5, 1.5};
+    int32_t m[2];
+    size_t nm;
+    assert_int_equal(sinew_associate(ctx, ta, 2, tb, 2, 0.02, 0.0, m, &nm), SINEW_OK);
+    assert_int_equal(nm, 0);
+    assert_int_equal(sinew_associate(ctx, ta, 2, tb, 2, 0.02, 0.5, m, &nm), SINEW_OK);
+    assert_int_equal(nm, 2);
+    assert_int_equal(m[0], 0);
+    assert_int_equal(m[1], 1);
+    assert_int_equal(sinew_associate(ctx, ta, 2, tb, 2, 0.0, 0.0, m, &nm), SINEW_ECONFIG);
+    sinew_ctx_free(ctx);
+}
+
+static void test_run_stamp_list_read(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    char p[600];
+    tu_path(p, sizeof p, dir, "rgb.txt");
+    const char *txt = "# color images\n# file: 'x.bag'\n# timestamp filename\n"
+                      "1305031102.175304 rgb/1305031102.175304.png\n\n"
+                      "1305031102.211214 rgb/1305031102.211214.png\r\n";
+    tu_write_bytes(p, txt, strlen(txt));
+    sinew_stamp_list l;
+    assert_int_equal(sinew_stamp_list_read(ctx, p, &l), SINEW_OK);
+    assert_int_equal(l.n, 2);
+    assert_true(l.t[1] > 1305031102.2112 && l.t[1] < 1305031102.2113);
+    assert_string_equal(l.name[1], "rgb/1305031102.211214.png");
+    sinew_stamp_list_free(ctx, &l);
+    const char *bad = "1.0 a.png extra\n";
+    tu_write_bytes(p, bad, strlen(bad));
+    assert_int_equal(sinew_stamp_list_read(ctx, p, &l), SINEW_EFORMAT);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "line 1"));
+    const char *bad2 = "x a.png\n";
+    tu_write_bytes(p, bad2, strlen(bad2));
+    assert_int_equal(sinew_stamp_list_read(ctx, p, &l), SINEW_EFORMAT);
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
+/* ---- engine with a stand-in pair function ---- */
+
+typedef struct {
+    int calls;
+    int fail_index; /* -1: never */
+    sig_atomic_t *cancel_after;
+    int cancel_at;
+} fake;
+
+/* Writes out.txt = the two colour files' contents, and stats {"pair": index}. */
+static int fake_pair(void *ud, sinew_ctx *ctx, const sinew_run_job *job, char **stats)
+{
+    fake *f = ud;
+    f->calls++;
+    if (f->cancel_after && f->calls == f->cancel_at)
+        *f->cancel_after = 1;
+    if ((int)job->index == f->fail_index)
+        return SINEW_EFORMAT; /* no message: the engine falls back to the status text */
+    char p[700];
+    snprintf(p, sizeof p, "%s/out.txt", job->dir);
+    char body[64];
+    int n = snprintf(body, sizeof body, "%d->%d\n", (int)job->pair.i, (int)job->pair.j);
+    int rc = sinew_write_file(ctx, p, body, (size_t)n);
+    if (rc)
+        return rc;
+    *stats = sinew_ctx_alloc(ctx, 64);
+    if (!*stats)
+        return SINEW_ENOMEM;
+    snprintf(*stats, 64, "{\"index\": %zu}", job->index);
+    return SINEW_OK;
+}
+
+typedef struct {
+    char *dir;
+    char in[8][600];
+    sinew_run_frame frames[8];
+    sinew_pair *pairs;
+    size_t npairs;
+    sinew_ctx *ctx;
+} fixture;
+
+static void fixture_make(fixture *fx)
+{
+    memset(fx, 0, sizeof *fx);
+    fx->ctx = sinew_ctx_new();
+    fx->dir = tu_tmpdir();
+    for (int f = 0; f < 6; f++) {
+        char nm[32], body[32];
+        snprintf(nm, sizeof nm, "frame%d.png", f);
+        tu_path(fx->in[f], sizeof fx->in[f], fx->dir, nm);
+        int n = snprintf(body, sizeof body, "pixels of frame %d", f);
+        tu_write_bytes(fx->in[f], body, (size_t)n);
+        fx->frames[f].color = fx->in[f];
+    }
+    sinew_schedule s = {SINEW_SCHEDULE_CONSECUTIVE, 0, 0, 0, NULL, 0};
+    assert_int_equal(sinew_schedule_pairs(fx->ctx, &s, 6, &fx->pairs, &fx->npairs), SINEW_OK);
+}
+
+static void fixture_free(fixture *fx)
+{
+    sinew_ctx_dealloc(fx->ctx, fx->pairs);
+    tu_rmtree(fx->dir);
+    free(fx->dir);
+    sinew_ctx_free(fx->ctx);
+}
+
+static sinew_run_spec spec_for(fixture *fx, const char *outname, char *outdir, size_t n)
+{
+    tu_path(outdir, n, fx->dir, outname);
+    sinew_run_spec s;
+    memset(&s, 0, sizeof s);
+    s.frames = fx->frames;
+    s.nframes = 6;
+    s.pairs = fx->pairs;
+    s.npairs = fx->npairs;
+    s.options = "{\"flow\":\"fake\"}";
+    s.outdir = outdir;
+    s.shard_n = 1;
+    return s;
+}
+
+static int run_once(sinew_ctx *ctx, const sinew_run_spec *s, fake *f, sinew_run_result *res,
+                    int manifest)
+{
+    sinew_run *run;
+    assert_int_equal(sinew_run_new(ctx, &run, s), SINEW_OK);
+    int rc = sinew_run_execute(run, fake_pair, f, NULL, NULL, res);
+    if (manifest)
+        assert_int_equal(sinew_run_write_manifest(run, NULL, NULL, NULL), SINEW_OK);
+    sinew_run_free(run);
+    return rc;
+}
+
+static int same_tree(const char *a, const char *b)
+{
+    char cmd[1400];
+    snprintf(cmd, sizeof cmd, "diff -r '%s' '%s' >/dev/null", a, b);
+    return system(cmd) == 0;
+}
+
+static void test_run_engine_resume_skips_only_up_to_date(void **state)
+{
+    (void)state;
+    fixture fx;
+    fixture_make(&fx);
+    char out[600], p[700];
+    sinew_run_spec s = spec_for(&fx, "out", out, sizeof out);
+    fake f = {0, -1, NULL, 0};
+    sinew_run_result r;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
+    assert_int_equal(r.computed, 5);
+    assert_int_equal(f.calls, 5);
+    snprintf(p, sizeof p, "%s/pairs/000002-000003/done.json", out);
+    assert_true(tu_file_exists(p));
+
+    s.resume = 1;
+    f.calls = 0;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
+    assert_int_equal(r.skipped, 5);
+    assert_int_equal(f.calls, 0);
+
+    /* a changed input frame invalidates exactly the two pairs that use it */
+    tu_write_bytes(fx.in[3], "new pixels", 10);
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
+    assert_int_equal(r.computed, 2);
+    assert_int_equal(r.skipped, 3);
+    /* a damaged output is redone */
+    snprintf(p, sizeof p, "%s/pairs/000000-000001/out.txt", out);
+    tu_write_bytes(p, "0->X\n", 5);
+    f.calls = 0;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
+    assert_int_equal(f.calls, 1);
+    /* changed options redo everything; stale extra files are removed */
+    snprintf(p, sizeof p, "%s/pairs/000004-000005/stale.flo", out);
+    tu_write_bytes(p, "x", 1);
+    s.options = "{\"flow\":\"other\"}";
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
+    assert_int_equal(r.computed, 5);
+    assert_false(tu_file_exists(p));
+    fixture_free(&fx);
+}
+
+static void test_run_engine_shards_match_whole_run(void **state)
+{
+    (void)state;
+    fixture fx;
+    fixture_make(&fx);
+    char whole[600], sh[600];
+    sinew_run_spec s = spec_for(&fx, "whole", whole, sizeof whole);
+    fake f = {0, -1, NULL, 0};
+    sinew_run_result r;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
+    sinew_run_spec t = spec_for(&fx, "sharded", sh, sizeof sh);
+    t.shard_n = 3;
+    size_t total = 0;
+    for (int k = 0; k < 3; k++) {
+        t.shard_k = k;
+        assert_int_equal(run_once(fx.ctx, &t, &f, &r, 0), SINEW_OK);
+        total += r.computed;
+    }
+    assert_int_equal(total, 5);
+    /* merge: an unsharded resume computes nothing and writes the manifest */
+    t.shard_n = 1;
+    t.shard_k = 0;
+    t.resume = 1;
+    f.calls = 0;
+    assert_int_equal(run_once(fx.ctx, &t, &f, &r, 1), SINEW_OK);
+    assert_int_equal(f.calls, 0);
+    assert_true(same_tree(whole, sh));
+    fixture_free(&fx);
+}
+
+static void test_run_engine_error_policies(void **state)
+{
+    (void)state;
+    fixture fx;
+    fixture_make(&fx);
+    char out[600], p[700];
+    sinew_run_spec s = spec_for(&fx, "out", out, sizeof out);
+    /* a missing frame: named in the error; skip policy carries on */
+    unlink(fx.in[4]);
+    s.on_error = SINEW_RUN_SKIP;
+    fake f = {0, -1, NULL, 0};
+    sinew_run_result r;
+    sinew_run *run;
+    assert_int_equal(sinew_run_new(fx.ctx, &run, &s), SINEW_OK);
+    assert_int_equal(sinew_run_execute(run, fake_pair, &f, NULL, NULL, &r), SINEW_EIO);
+    assert_non_null(strstr(sinew_ctx_message(fx.ctx), "frame4.png"));
+    assert_int_equal(r.computed, 3);
+    assert_int_equal(r.failed, 2);
+    size_t nd, nf, np;
+    assert_int_equal(sinew_run_write_manifest(run, &nd, &nf, &np), SINEW_OK);
+    assert_int_equal(nd, 3);
+    assert_int_equal(nf, 2);
+    assert_int_equal(np, 0);
+    sinew_run_free(run);
+    snprintf(p, sizeof p, "%s/pairs/000003-000004/error.json", out);
+    assert_true(tu_file_exists(p));
+    snprintf(p, sizeof p, "%s/manifest.json", out);
+    unsigned char *buf;
+    size_t len;
+    assert_int_equal(sinew_read_file(fx.ctx, p, 1 << 20, &buf, &len), SINEW_OK);
+    assert_non_null(strstr((char *)buf, "\"status\":\t\"failed\""));
+    assert_non_null(strstr((char *)buf, "frame4.png: cannot open"));
+    sinew_ctx_dealloc(fx.ctx, buf);
+
+    /* stop policy: the first failure ends the run; earlier pairs are kept */
+    char out2[600];
+    s = spec_for(&fx, "out2", out2, sizeof out2);
+    s.on_error = SINEW_RUN_STOP;
+    assert_int_equal(sinew_run_new(fx.ctx, &run, &s), SINEW_OK);
+    assert_int_equal(sinew_run_execute(run, fake_pair, &f, NULL, NULL, &r), SINEW_EIO);
+    assert_int_equal(r.computed, 3);
+    assert_int_equal(r.failed, 1);
+    assert_int_equal(sinew_run_write_manifest(run, &nd, &nf, &np), SINEW_OK);
+    assert_int_equal(nd, 3);
+    assert_int_equal(nf, 2); /* pair 4-5 was never tried but its input is missing too */
+    sinew_run_free(run);
+    snprintf(p, sizeof p, "%s/pairs/000002-000003/done.json", out2);
+    assert_true(tu_file_exists(p));
+
+    /* a pair function failure without message still records a reason */
+    tu_write_bytes(fx.in[4], "back", 4);
+    f.fail_index = 1;
+    s.on_error = SINEW_RUN_SKIP;
+    assert_int_equal(sinew_run_new(fx.ctx, &run, &s), SINEW_OK);
+    sinew_ctx_clear(fx.ctx);
+    assert_int_equal(sinew_run_execute(run, fake_pair, &f, NULL, NULL, &r), SINEW_EFORMAT);
+    assert_int_equal(r.failed, 1);
+    sinew_run_free(run);
+    fixture_free(&fx);
+}
+
+static void test_run_engine_cancel_stops_between_pairs(void **state)
+{
+    (void)state;
+    fixture fx;
+    fixture_make(&fx);
+    char out[600];
+    sinew_run_spec s = spec_for(&fx, "out", out, sizeof out);
+    static volatile sig_atomic_t flag; /* stands in for the CLI's signal flag */
+    flag = 0;
+    s.cancel = &flag;
+    fake f = {0, -1, (sig_atomic_t *)&flag, 2};
+    sinew_run_result r;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_EINTERRUPTED);
+    assert_int_equal(r.computed, 2); /* the pair in progress finishes */
+    assert_true(r.interrupted);
+    flag = 0;
+    s.resume = 1;
+    f.cancel_after = NULL;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
+    assert_int_equal(r.skipped, 2);
+    assert_int_equal(r.computed, 3);
+    fixture_free(&fx);
+}
+
+static void test_run_engine_rejects_bad_spec(void **state)
+{
+    (void)state;
+    fixture fx;
+    fixture_make(&fx);
+    char out[600];
+    sinew_run_spec s = spec_for(&fx, "out", out, sizeof out);
+    sinew_run *run;
+    s.shard_k = 3;
+    s.shard_n = 3;
+    assert_int_equal(sinew_run_new(fx.ctx, &run, &s), SINEW_ECONFIG);
+    s.shard_k = 0;
+    s.shard_n = 1;
+    sinew_pair bad = {0, 9};
+    s.pairs = &bad;
+    s.npairs = 1;
+    assert_int_equal(sinew_run_new(fx.ctx, &run, &s), SINEW_ECONFIG);
+    /* alloc failures: clean error, nothing leaked */
+    s = spec_for(&fx, "out", out, sizeof out);
+    for (long k = 2; k < 4; k++) {
+        tu_failalloc fa = {k, 0, 0};
+        sinew_ctx *c = tu_ctx_failing(&fa);
+        int rc = sinew_run_new(c, &run, &s);
+        if (rc == SINEW_OK)
+            sinew_run_free(run);
+        else
+            assert_int_equal(rc, SINEW_ENOMEM);
+        sinew_ctx_free(c);
+        assert_int_equal(fa.live, 0);
+    }
+    fixture_free(&fx);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_run_sha256_nist_vectors),
+        cmocka_unit_test(test_run_sha256_file_matches_memory),
+        cmocka_unit_test(test_run_schedule_kinds_and_names),
+        cmocka_unit_test(test_run_shards_partition_pairs),
+        cmocka_unit_test(test_run_associate_greedy_within_tolerance),
+        cmocka_unit_test(test_run_associate_offset_and_errors),
+        cmocka_unit_test(test_run_stamp_list_read),
+        cmocka_unit_test(test_run_engine_resume_skips_only_up_to_date),
+        cmocka_unit_test(test_run_engine_shards_match_whole_run),
+        cmocka_unit_test(test_run_engine_error_policies),
+        cmocka_unit_test(test_run_engine_cancel_stops_between_pairs),
+        cmocka_unit_test(test_run_engine_rejects_bad_spec),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}

@@ -41,7 +41,7 @@ typedef struct {
 struct sinew_run {
     sinew_ctx *ctx;
     sinew_run_spec spec;
-    digest_entry *cache;     /* nframes * NROLES */
+    digest_entry *cache; /* nframes * NROLES */
     digest_entry intrinsics;
 };
 
@@ -136,8 +136,8 @@ static int digest_cached(sinew_run *run, digest_entry *e, const char *path)
     return SINEW_OK;
 }
 
-int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_t *nin,
-                           char *fwd, char *bwd, size_t pathn)
+int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_t *nin, char *fwd,
+                           char *bwd, size_t pathn)
 {
     const sinew_run_spec *s = &run->spec;
     sinew_pair p = s->pairs[index];
@@ -148,8 +148,9 @@ int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_
         for (int end = 0; end < 2; end++) {
             int32_t f = end ? p.j : p.i;
             const sinew_run_frame *fr = &s->frames[f];
-            const char *path = r == ROLE_COLOR ? fr->color : r == ROLE_DEPTH ? fr->depth
-                                                                             : fr->labels;
+            const char *path = r == ROLE_COLOR   ? fr->color
+                               : r == ROLE_DEPTH ? fr->depth
+                                                 : fr->labels;
             if (!path)
                 continue;
             digest_entry *e = &run->cache[(size_t)f * NROLES + (size_t)r];
@@ -189,8 +190,8 @@ int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_
     return SINEW_OK;
 }
 
-void sinew__run_pair_key(const sinew_run *run, size_t index, const sinew__input *in,
-                         size_t nin, char hex[65])
+void sinew__run_pair_key(const sinew_run *run, size_t index, const sinew__input *in, size_t nin,
+                         char hex[65])
 {
     char name[SINEW_PAIR_NAME_MAX], line[160];
     sinew_pair_name(name, run->spec.pairs[index]);
@@ -231,8 +232,8 @@ int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
         return SINEW_EINVAL;
     *out = NULL;
     if (spec->nframes > SINEW_RUN_MAX_FRAMES)
-        return sinew__fail(ctx, SINEW_ELIMIT, "sequence has %zu frames, limit %d",
-                           spec->nframes, SINEW_RUN_MAX_FRAMES);
+        return sinew__fail(ctx, SINEW_ELIMIT, "sequence has %zu frames, limit %d", spec->nframes,
+                           SINEW_RUN_MAX_FRAMES);
     if (spec->npairs > SINEW_RUN_MAX_PAIRS)
         return sinew__fail(ctx, SINEW_ELIMIT, "schedule has %zu pairs, limit %d", spec->npairs,
                            SINEW_RUN_MAX_PAIRS);
@@ -246,8 +247,8 @@ int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
         sinew_pair p = spec->pairs[q];
         if (p.i < 0 || p.j < 0 || (size_t)p.i >= spec->nframes || (size_t)p.j >= spec->nframes ||
             p.i == p.j)
-            return sinew__fail(ctx, SINEW_ECONFIG, "pair %zu (%d, %d) is out of range", q,
-                               (int)p.i, (int)p.j);
+            return sinew__fail(ctx, SINEW_ECONFIG, "pair %zu (%d, %d) is out of range", q, (int)p.i,
+                               (int)p.j);
     }
     int rc = sinew__mkdirs(ctx, spec->outdir);
     char pairs[SINEW__PATH_MAX];
@@ -493,8 +494,7 @@ int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, i
         ok = cJSON_IsString(f) && cJSON_IsNumber(b) && cJSON_IsString(h) &&
              !strchr(f->valuestring, '/') &&
              !sinew__path_join(ctx, fp, sizeof fp, dir, f->valuestring) && stat(fp, &st) == 0 &&
-             (double)st.st_size == b->valuedouble &&
-             !sinew_sha256_file(ctx, fp, d, &bytes);
+             (double)st.st_size == b->valuedouble && !sinew_sha256_file(ctx, fp, d, &bytes);
         if (ok) {
             sinew_sha256_hex(d, hex);
             ok = !strcmp(hex, h->valuestring);
@@ -511,8 +511,7 @@ int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, i
 /* ---- execution ---- */
 
 int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
-                      sinew_run_progress_fn progress, void *progress_ud,
-                      sinew_run_result *result)
+                      sinew_run_progress_fn progress, void *progress_ud, sinew_run_result *result)
 {
     if (result)
         memset(result, 0, sizeof *result);
@@ -544,15 +543,14 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
             rc = sinew__run_pair_inputs(run, q, in, &nin, fwd, bwd, sizeof fwd);
         if (!rc) {
             sinew__run_pair_key(run, q, in, nin, key);
-            if (s->resume && sinew__run_record_status(run, dir, key, 1, NULL) ==
-                                 SINEW_PAIR_SKIPPED)
+            if (s->resume && sinew__run_record_status(run, dir, key, 1, NULL) == SINEW_PAIR_SKIPPED)
                 st = SINEW_PAIR_SKIPPED;
         }
         if (!rc && st == SINEW_PAIR_COMPUTED)
             rc = empty_dir(ctx, dir);
         if (!rc && st == SINEW_PAIR_COMPUTED) {
-            sinew_run_job job = {q, s->pairs[q], name, dir, s->flow_from ? fwd : NULL,
-                                 s->flow_from ? bwd : NULL};
+            sinew_run_job job = {
+                q, s->pairs[q], name, dir, s->flow_from ? fwd : NULL, s->flow_from ? bwd : NULL};
             char *stats = NULL;
             rc = fn(fn_ud, ctx, &job, &stats);
             if (!rc && !stats)
@@ -571,8 +569,8 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
         char msg[1024] = "";
         if (rc) {
             st = SINEW_PAIR_FAILED;
-            snprintf(msg, sizeof msg, "%s", sinew_ctx_message(ctx)[0] ? sinew_ctx_message(ctx)
-                                                                      : sinew_strerror(rc));
+            snprintf(msg, sizeof msg, "%s",
+                     sinew_ctx_message(ctx)[0] ? sinew_ctx_message(ctx) : sinew_strerror(rc));
             if (!result->status) {
                 result->status = rc;
                 snprintf(first_msg, sizeof first_msg, "%s", msg);
@@ -612,8 +610,8 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
     return SINEW_OK;
 }
 
-int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd,
-                          char *bwd, size_t n)
+int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd, char *bwd,
+                          size_t n)
 {
     if (!ctx || !dir || !name || !fwd || !bwd)
         return SINEW_EINVAL;
@@ -632,8 +630,7 @@ int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, cha
         if (!found) {
             snprintf(out[k], n, "%s/%s/%s.flo", dir, name, base[k]);
             return sinew__fail(ctx, SINEW_EIO,
-                               "%s: imported flow not found (also tried .npy, .pfm, .png)",
-                               out[k]);
+                               "%s: imported flow not found (also tried .npy, .pfm, .png)", out[k]);
         }
     }
     return SINEW_OK;

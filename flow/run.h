@@ -41,8 +41,7 @@ void sinew_sha256_hex(const unsigned char digest[32], char hex[65]);
 /* Digest of a whole file, read in blocks (memory does not grow with file size).
  * bytes (may be NULL) receives the file size. EIO naming the path if it cannot be
  * opened or read. */
-int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32],
-                      uint64_t *bytes);
+int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32], uint64_t *bytes);
 
 /* ---- pair schedules ------------------------------------------------------------
  * Frames are numbered 0..nframes-1 in sequence order. A pair (i, j) means flow from
@@ -61,10 +60,10 @@ typedef enum sinew_schedule_kind {
 
 typedef struct sinew_schedule {
     sinew_schedule_kind kind;
-    int gap;                 /* GAP: k >= 1 */
-    int every;               /* KEYFRAME: keyframe spacing >= 1 (keyframes 0, every, 2*every...) */
-    int window;              /* KEYFRAME: partners per keyframe >= 1 */
-    const sinew_pair *list;  /* LIST: borrowed */
+    int gap;                /* GAP: k >= 1 */
+    int every;              /* KEYFRAME: keyframe spacing >= 1 (keyframes 0, every, 2*every...) */
+    int window;             /* KEYFRAME: partners per keyframe >= 1 */
+    const sinew_pair *list; /* LIST: borrowed */
     size_t list_len;
 } sinew_schedule;
 
@@ -132,27 +131,27 @@ typedef enum sinew_run_on_error {
 typedef struct sinew_run_spec {
     const sinew_run_frame *frames;
     size_t nframes;
-    const char *intrinsics;   /* shared input file hashed into every key, or NULL */
-    const sinew_pair *pairs;  /* the expanded schedule */
+    const char *intrinsics;  /* shared input file hashed into every key, or NULL */
+    const sinew_pair *pairs; /* the expanded schedule */
     size_t npairs;
-    const char *flow_from;    /* folder of imported flows (see sinew_run_find_import) or NULL */
-    const char *options;      /* canonical text of every option that changes outputs
-                                 (e.g. compact JSON); part of every pair key */
-    const char *outdir;       /* output folder (created if missing) */
-    int shard_k, shard_n;     /* this process owns pairs with index % n == k; n = 1: all */
-    int resume;               /* skip pairs whose done record matches */
+    const char *flow_from; /* folder of imported flows (see sinew_run_find_import) or NULL */
+    const char *options;   /* canonical text of every option that changes outputs
+                              (e.g. compact JSON); part of every pair key */
+    const char *outdir;    /* output folder (created if missing) */
+    int shard_k, shard_n;  /* this process owns pairs with index % n == k; n = 1: all */
+    int resume;            /* skip pairs whose done record matches */
     sinew_run_on_error on_error;
     const volatile sig_atomic_t *cancel; /* nonzero: stop before the next pair; may be NULL */
 } sinew_run_spec;
 
 /* What the pair function receives. */
 typedef struct sinew_run_job {
-    size_t index;            /* position in the schedule */
+    size_t index; /* position in the schedule */
     sinew_pair pair;
-    const char *name;        /* sinew_pair_name of the pair */
-    const char *dir;         /* OUTDIR/pairs/NAME, exists and holds no outputs */
-    const char *flow_fwd;    /* imported forward flow path (flow_from set) or NULL */
-    const char *flow_bwd;    /* imported backward flow path or NULL */
+    const char *name;     /* sinew_pair_name of the pair */
+    const char *dir;      /* OUTDIR/pairs/NAME, exists and holds no outputs */
+    const char *flow_fwd; /* imported forward flow path (flow_from set) or NULL */
+    const char *flow_bwd; /* imported backward flow path or NULL */
 } sinew_run_job;
 
 /* Process one pair: write every output into job->dir (atomically, e.g. through
@@ -160,22 +159,21 @@ typedef struct sinew_run_job {
  * object text in *stats (allocated with sinew_ctx_alloc on ctx; the engine frees it
  * and writes it to stats.json). Return a status; on failure set the ctx message
  * naming the file. */
-typedef int (*sinew_run_pair_fn)(void *ud, sinew_ctx *ctx, const sinew_run_job *job,
-                                 char **stats);
+typedef int (*sinew_run_pair_fn)(void *ud, sinew_ctx *ctx, const sinew_run_job *job, char **stats);
 
 typedef enum sinew_pair_status {
     SINEW_PAIR_PENDING = 0,
-    SINEW_PAIR_COMPUTED,  /* processed in this run */
-    SINEW_PAIR_SKIPPED,   /* already complete and up to date (resume) */
+    SINEW_PAIR_COMPUTED, /* processed in this run */
+    SINEW_PAIR_SKIPPED,  /* already complete and up to date (resume) */
     SINEW_PAIR_FAILED
 } sinew_pair_status;
 
 /* Reported after every owned pair. */
 typedef struct sinew_run_progress {
-    size_t total;     /* pairs owned by this shard */
-    size_t finished;  /* computed + skipped + failed so far */
+    size_t total;    /* pairs owned by this shard */
+    size_t finished; /* computed + skipped + failed so far */
     size_t computed, skipped, failed;
-    size_t index;     /* the pair just finished */
+    size_t index; /* the pair just finished */
     const char *name;
     sinew_pair_status status;
     const char *message; /* failure detail or "" */
@@ -184,8 +182,8 @@ typedef void (*sinew_run_progress_fn)(void *ud, const sinew_run_progress *p);
 
 typedef struct sinew_run_result {
     size_t total, computed, skipped, failed;
-    int interrupted;     /* stopped by the cancel flag */
-    int status;          /* first failure's status (SINEW_OK if none) */
+    int interrupted; /* stopped by the cancel flag */
+    int status;      /* first failure's status (SINEW_OK if none) */
 } sinew_run_result;
 
 typedef struct sinew_run sinew_run;
@@ -205,8 +203,7 @@ void sinew_run_free(sinew_run *run);
  * computed or skipped, SINEW_EINTERRUPTED when cancelled, otherwise the first
  * failure's status (its message stays on ctx). *result is always filled. */
 int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
-                      sinew_run_progress_fn progress, void *progress_ud,
-                      sinew_run_result *result);
+                      sinew_run_progress_fn progress, void *progress_ud, sinew_run_result *result);
 
 /* Rebuild OUTDIR/manifest.json from the per-pair records of every pair in the
  * schedule (all shards): inputs with sizes and SHA-256, options, version, and per
@@ -214,14 +211,13 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
  * with the message, otherwise "pending") and stats. Written atomically (temporary
  * name, fsync, rename), so shards or a merge step never leave a torn manifest.
  * Counts are returned through the optional pointers. */
-int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed,
-                             size_t *npending);
+int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, size_t *npending);
 
 /* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
  * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).
  * Paths are written into fwd/bwd (size n); EIO naming the missing file. */
-int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd,
-                          char *bwd, size_t n);
+int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd, char *bwd,
+                          size_t n);
 
 #ifdef __cplusplus
 }

@@ -27,7 +27,8 @@ char *sinew_pair_name(char *buf, sinew_pair p)
 static int64_t schedule_count(const sinew_schedule *s, int64_t n)
 {
     switch (s->kind) {
-    case SINEW_SCHEDULE_CONSECUTIVE: return n > 1 ? n - 1 : 0;
+    case SINEW_SCHEDULE_CONSECUTIVE:
+        return n > 1 ? n - 1 : 0;
     case SINEW_SCHEDULE_GAP:
         if (s->gap < 1)
             return -1;
@@ -42,7 +43,8 @@ static int64_t schedule_count(const sinew_schedule *s, int64_t n)
         }
         return c;
     }
-    case SINEW_SCHEDULE_LIST: return (int64_t)s->list_len;
+    case SINEW_SCHEDULE_LIST:
+        return (int64_t)s->list_len;
     }
     return -1;
 }
@@ -124,8 +126,8 @@ int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes
                 int i = c[q].i, j = c[q].j;
                 sinew__free(ctx, c);
                 sinew__free(ctx, p);
-                return sinew__fail(ctx, SINEW_ECONFIG, "schedule: pair (%d, %d) is listed twice",
-                                   i, j);
+                return sinew__fail(ctx, SINEW_ECONFIG, "schedule: pair (%d, %d) is listed twice", i,
+                                   j);
             }
         sinew__free(ctx, c);
     }
@@ -336,8 +338,8 @@ int sinew_stamp_list_read(sinew_ctx *ctx, const char *path, sinew_stamp_list *ou
         if (nt != 2 || *end || errno || !isfinite(t)) {
             sinew_stamp_list_free(ctx, out);
             sinew_ctx_dealloc(ctx, buf);
-            return sinew__fail(ctx, SINEW_EFORMAT,
-                               "%s: line %zu: expected 'timestamp filename'", path, lineno);
+            return sinew__fail(ctx, SINEW_EFORMAT, "%s: line %zu: expected 'timestamp filename'",
+                               path, lineno);
         }
         size_t nl = strlen(tok[1]);
         char *name = sinew__alloc(ctx, nl + 1);

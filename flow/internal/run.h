@@ -41,11 +41,11 @@ sinew_ctx *sinew__run_ctx(const sinew_run *run);
 int sinew__run_pair_dir(sinew_run *run, size_t index, char *buf, size_t n);
 /* Hash the inputs of pair `index` (cached per frame file); fwd/bwd receive imported
  * flow paths when the spec imports flows. */
-int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_t *nin,
-                           char *fwd, char *bwd, size_t pathn);
+int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_t *nin, char *fwd,
+                           char *bwd, size_t pathn);
 /* The pair key (hex) from the inputs. */
-void sinew__run_pair_key(const sinew_run *run, size_t index, const sinew__input *in,
-                         size_t nin, char hex[65]);
+void sinew__run_pair_key(const sinew_run *run, size_t index, const sinew__input *in, size_t nin,
+                         char hex[65]);
 /* SINEW_PAIR_SKIPPED when dir/done.json carries `key` (and, with verify, every listed
  * output has its recorded size and digest), otherwise SINEW_PAIR_PENDING. When record
  * is non-NULL and the pair is complete, *record receives the parsed done record. */

@@ -3,6 +3,7 @@
 #ifndef SINEW_H
 #define SINEW_H
 #include "flow/core.h"
+#include "flow/check.h"
 #include "flow/draw.h"
 #include "flow/metrics.h"
 #include "flow/run.h"

@@ -1,0 +1,129 @@
+/* SPDX-License-Identifier: MIT */
+/* Forward-backward consistency, occlusion and reliability masks, and per-pixel
+ * confidence for a pair of flow fields (frame 0 -> frame 1 and frame 1 -> frame 0).
+ * Formulas, constants and citations: docs/methods.md, section "Consistency, occlusion
+ * and confidence"; file layouts: docs/formats.md. */
+#ifndef SINEW_CHECK_H
+#define SINEW_CHECK_H
+
+#include "flow/core.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* Mask bits: a pixel is kept iff its mask value is 0; otherwise each set bit is one
+ * reason to reject it (several may be set). */
+#define SINEW_MASK_FB (1u << 0)        /* forward-backward inconsistent */
+#define SINEW_MASK_OUTSIDE (1u << 1)   /* target x + w(x) is outside frame 1 */
+#define SINEW_MASK_BOUNDARY (1u << 2)  /* motion boundary (flow gradient too large) */
+#define SINEW_MASK_PHOTO (1u << 3)     /* photometric residual too large */
+#define SINEW_MASK_IGNORE (1u << 4)    /* inside the user's ignore mask */
+#define SINEW_MASK_SATURATED (1u << 5) /* clipped near-white source or target pixel */
+#define SINEW_MASK_UNKNOWN                                                                         \
+    (1u << 6) /* forward flow at x, or backward flow at the                                        \
+                 target, is unknown (NaN/Inf) */
+#define SINEW_MASK_NBITS 7
+/* Bits that mean "occluded or leaves the view": the occlusion estimate. */
+#define SINEW_MASK_OCCLUSION (SINEW_MASK_FB | SINEW_MASK_OUTSIDE)
+
+/* Which pixels of the user's ignore mask are ignored. There is no default: a caller
+ * that passes an ignore mask must say which polarity it uses. */
+typedef enum sinew_ignore_polarity {
+    SINEW_IGNORE_UNSET = 0,   /* invalid when an ignore mask is given */
+    SINEW_IGNORE_NONZERO = 1, /* pixels whose first channel is nonzero are ignored */
+    SINEW_IGNORE_ZERO = 2     /* pixels whose first channel is zero are ignored */
+} sinew_ignore_polarity;
+
+/* Parameters; sinew_check_params_default fills the documented defaults. All values
+ * must be finite and >= 0 (EINVAL otherwise). Flow in px, intensities normalised to
+ * [0, 1] (8-bit value / 255, 16-bit value / 65535). */
+typedef struct sinew_check_params {
+    /* Forward-backward test (Sundaram, Brox, Keutzer, ECCV 2010): inconsistent if
+     * |w + ŵ|² > fb_alpha (|w|² + |ŵ|²) + fb_beta.  Defaults 0.01 and 0.5 px². */
+    double fb_alpha, fb_beta;
+    /* Motion boundary (same paper): |∇u|² + |∇v|² > boundary_alpha |w|² + boundary_beta.
+     * Defaults 0.01 and 0.002. Gradients by central differences (see docs). */
+    double boundary_alpha, boundary_beta;
+    /* Photometric residual after a robust global gain/offset fit: rejected if
+     * |I1(x + w) - (g I0(x) + o)| > photo_threshold. Default 0.1. */
+    double photo_threshold;
+    /* Saturated: every colour channel >= saturation_level (fraction of full scale), at
+     * x in frame 0 or at the nearest pixel to x + w in frame 1. Default 0.98
+     * (8-bit values 250..255). Values > 1 disable the test. */
+    double saturation_level;
+    /* Half-width of the square window of the structure tensor (px). Default 2 (5x5). */
+    int texture_radius;
+    /* Polarity of the ignore mask; must be set when an ignore mask is given. */
+    sinew_ignore_polarity ignore_polarity;
+    /* Confidence c = c_fb * c_photo * c_texture * c_boundary * c_sat (0 for OUTSIDE,
+     * IGNORE and UNKNOWN pixels), each factor in [0, 1]:
+     *   c_fb       = exp(-conf_fb_weight * e² / (conf_fb_alpha (|w|² + |ŵ|²) + conf_fb_beta))
+     *   c_photo    = exp(-(r / conf_photo_scale)²)            (1 without frames)
+     *   c_texture  = λmin / (λmin + conf_texture_scale)      (1 without frames)
+     *   c_boundary = f + (1 - f) (1 - exp(-d / conf_boundary_scale)),
+     *                f = conf_boundary_floor, d = distance (px) to the nearest boundary
+     *                pixel (1 when there is none)
+     *   c_sat      = conf_saturated for SATURATED pixels, else 1.
+     * Defaults were tuned for ranking (AUSE); see docs/methods.md. */
+    double conf_fb_alpha, conf_fb_beta, conf_fb_weight;
+    double conf_photo_scale;
+    double conf_texture_scale;
+    double conf_boundary_scale, conf_boundary_floor;
+    double conf_saturated;
+} sinew_check_params;
+
+/* Fill *p with the defaults listed above. */
+void sinew_check_params_default(sinew_check_params *p);
+
+/* Inputs. forward and backward: SINEW_F32 2-channel flow fields of equal size, NaN =
+ * unknown. frame0/frame1: optional (both or neither), SINEW_U8 or SINEW_U16 with 1..4
+ * channels (alpha ignored; colour converted to luma 0.299 R + 0.587 G + 0.114 B), same
+ * width and height as the flow. ignore: optional SINEW_U8 or SINEW_U16 image of the
+ * same width and height; only its first channel is read. All borrowed. */
+typedef struct sinew_check_input {
+    const sinew_image *forward;
+    const sinew_image *backward;
+    const sinew_image *frame0;
+    const sinew_image *frame1;
+    const sinew_image *ignore;
+} sinew_check_input;
+
+/* Counts and fitted values of one run. */
+typedef struct sinew_check_stats {
+    int64_t pixels;                   /* width * height */
+    int64_t kept;                     /* mask == 0 */
+    int64_t reason[SINEW_MASK_NBITS]; /* pixels with bit i set */
+    double gain, offset;              /* photometric fit I1 ≈ gain I0 + offset (1, 0
+                                         without frames) */
+    int64_t fit_pixels;               /* pixels used by the final fit (0 w/o frames) */
+} sinew_check_stats;
+
+/* Outputs, allocated by the caller with the flow's width and height; each may be NULL
+ * (then it is computed in scratch memory and dropped):
+ *   fb_error:   SINEW_F32 1 channel, |w(x) + ŵ(x + w(x))| in px; NaN when the target
+ *               is outside frame 1 or a flow value involved is unknown.
+ *   mask:       SINEW_U8 1 channel, bits SINEW_MASK_*.
+ *   confidence: SINEW_F32 1 channel in [0, 1] (never NaN). */
+typedef struct sinew_check_output {
+    sinew_image *fb_error;
+    sinew_image *mask;
+    sinew_image *confidence;
+    sinew_check_stats stats; /* filled on success */
+} sinew_check_output;
+
+/* Run the check. p = NULL uses the defaults. Returns SINEW_OK; EINVAL (NULL flow, bad
+ * types or parameters, ignore mask without polarity), ESIZE (sizes disagree; the
+ * message names both sizes), ENOMEM. Deterministic: bit-identical outputs for every
+ * thread count of ctx. Outputs are undefined on failure. */
+int sinew_check_run(sinew_ctx *ctx, sinew_check_output *out, const sinew_check_input *in,
+                    const sinew_check_params *p);
+
+/* Short name of mask bit i (0..SINEW_MASK_NBITS-1), e.g. "fb_inconsistent"; NULL
+ * otherwise. Static storage. */
+const char *sinew_check_bit_name(int bit);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

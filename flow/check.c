@@ -212,6 +212,7 @@ static inline double pix(const sinew_image *img, int y, int x, int c)
 
 static void to_gray(const sinew_image *img, float *g, int nthreads)
 {
+    (void)nthreads; /* unused without OpenMP */
     int w = img->width, h = img->height, ch = img->channels;
     SINEW_PARALLEL_FOR(nthreads)
     for (int y = 0; y < h; y++) {
@@ -347,6 +348,7 @@ static int scratch_alloc(sinew_ctx *ctx, scratch *s, int w, int h, int frames, i
 static void pass_geometry(const sinew_check_input *in, const sinew_check_params *p, scratch *s,
                           int nthreads)
 {
+    (void)nthreads; /* unused without OpenMP */
     const sinew_image *F = in->forward, *B = in->backward;
     int w = F->width, h = F->height;
     const int frames = s->gray0 != NULL;
@@ -415,6 +417,7 @@ static void pass_geometry(const sinew_check_input *in, const sinew_check_params 
 static int64_t fit_gain(scratch *s, int w, int h, double g0, double o0, double limit, double *g,
                         double *o, int nthreads)
 {
+    (void)nthreads; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nthreads)
     for (int y = 0; y < h; y++) {
         double n = 0, sx = 0, sy = 0, sxx = 0, sxy = 0;
@@ -531,6 +534,7 @@ static void pass_photo(const sinew_check_params *p, scratch *s, int w, int h, si
  * (one-sided at the border), units (intensity/px)². */
 static void pass_texture(scratch *s, int w, int h, int r, int nthreads)
 {
+    (void)nthreads; /* unused without OpenMP */
     const float *g = s->gray0;
     size_t n = (size_t)w * h;
     float *P = s->t3a, *T = s->t3b;
@@ -633,6 +637,7 @@ static void dt_line(scratch *s, size_t first, size_t step, int n, size_t nmax)
 
 static void pass_distance(scratch *s, int w, int h, int nthreads)
 {
+    (void)nthreads; /* unused without OpenMP */
     size_t nmax = (size_t)(w > h ? w : h);
     SINEW_PARALLEL_FOR(nthreads)
     for (int y = 0; y < h; y++) {
@@ -652,6 +657,7 @@ static void pass_distance(scratch *s, int w, int h, int nthreads)
 static void pass_confidence(const sinew_check_params *p, scratch *s, sinew_image *conf, int w,
                             int h, int nthreads)
 {
+    (void)nthreads; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nthreads)
     for (int y = 0; y < h; y++) {
         float *out = sinew_image_row_f32(conf, y);

@@ -3,8 +3,12 @@
 #ifndef SINEW_H
 #define SINEW_H
 #include "flow/core.h"
+#include "flow/camera.h"
 #include "flow/check.h"
+#include "flow/depth.h"
 #include "flow/draw.h"
+#include "flow/lift.h"
+#include "flow/match.h"
 #include "flow/metrics.h"
 #include "flow/run.h"
 #endif

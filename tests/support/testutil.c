@@ -2,6 +2,7 @@
 #define _POSIX_C_SOURCE 200809L
 #include "tests/support/testutil.h"
 
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -74,6 +75,12 @@ const char *tu_python(void)
 {
     const char *p = getenv("PYTHON");
     return p && *p ? p : "/usr/bin/python3";
+}
+
+void tu_near_check(double a, double b, double eps, const char *what, const char *file, int line)
+{
+    if (!(fabs(a - b) <= eps))
+        fail_msg("%s:%d: %s = %.17g, expected %.17g (tolerance %g)", file, line, what, a, b, eps);
 }
 
 static void *fa_alloc(void *ud, size_t n)

@@ -28,6 +28,12 @@ int tu_file_exists(const char *path);
 /* Python with numpy (Debian python3-numpy): $PYTHON or /usr/bin/python3. */
 const char *tu_python(void);
 
+/* Double-precision closeness check (cmocka's float assertion rounds to float): fails
+ * the test with both values and the expression text when |a - b| > eps or either is
+ * NaN. */
+#define assert_near(a, b, eps) tu_near_check((a), (b), (eps), #a, __FILE__, __LINE__)
+void tu_near_check(double a, double b, double eps, const char *what, const char *file, int line);
+
 /* A context whose allocator fails the Nth allocation (1-based; 0 = never) and counts
  * live blocks so tests can check for leaks after a failure. */
 typedef struct tu_failalloc {

@@ -1,0 +1,708 @@
+/* SPDX-License-Identifier: MIT */
+/* Unit tests for flow/depth.c, flow/match.c and flow/lift.c: depth conventions, every
+ * rejection rule on a synthetic plane with known motion, sampling, labels, thread
+ * determinism, the rigid fit, and allocation failures. */
+#include "tests/support/testutil.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* ---- depth conventions ---- */
+
+static void test_lift_depth_codes_and_scale(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_image raw, z;
+    assert_int_equal(sinew_image_alloc(ctx, &raw, 4, 2, 1, SINEW_U16), SINEW_OK);
+    uint16_t *r0 = sinew_image_row_u16(&raw, 0), *r1 = sinew_image_row_u16(&raw, 1);
+    /* TUM RGB-D convention (published-numbers.md §7 [V2]): 5000 = 1 m, 10000 = 2 m,
+     * 0 = missing; 65535 is the saturated/invalid code of many sensors (common practice). */
+    r0[0] = 5000;
+    r0[1] = 10000;
+    r0[2] = 0;
+    r0[3] = 65535;
+    r1[0] = 100;   /* 0.02 m: below near */
+    r1[1] = 60000; /* 12 m: beyond far */
+    r1[2] = 2500;
+    r1[3] = 1;
+    sinew_depth_params p;
+    sinew_depth_params_default(&p);
+    p.scale = 5000;
+    p.near = 0.1;
+    p.far = 10;
+    sinew_depth_stats st;
+    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", &st), SINEW_OK);
+    const float *z0 = sinew_image_row_f32(&z, 0), *z1 = sinew_image_row_f32(&z, 1);
+    assert_near(z0[0], 1.0, 0);
+    assert_near(z0[1], 2.0, 0);
+    assert_true(isnan(z0[2]) && isnan(z0[3]) && isnan(z1[0]) && isnan(z1[1]) && isnan(z1[3]));
+    assert_near(z1[2], 0.5, 0);
+    assert_int_equal(st.total, 8);
+    assert_int_equal(st.valid, 3);
+    assert_int_equal(st.invalid_code, 2);
+    assert_int_equal(st.out_of_range, 3);
+    double med;
+    size_t n;
+    assert_int_equal(sinew_depth_median(ctx, &z, &med, &n), SINEW_OK);
+    assert_int_equal(n, 3);
+    assert_near(med, 1.0, 0);
+    sinew_image_free(&z);
+    /* Millimetre sensors: scale 1000 (7-Scenes, SOURCES.md §2). */
+    p.scale = 1000;
+    p.near = 0;
+    p.far = INFINITY;
+    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), SINEW_OK);
+    assert_near(sinew_image_row_f32(&z, 0)[1], 10.0, 0);
+    assert_near(sinew_image_row_f32(&z, 1)[3], 0.001, 1e-9);
+    sinew_image_free(&z);
+    /* Bad settings name the file. */
+    p.scale = 0;
+    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), SINEW_EVALUE);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "d.png"));
+    p.scale = NAN;
+    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), SINEW_EVALUE);
+    sinew_depth_params_default(&p);
+    p.near = 3;
+    p.far = 2;
+    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), SINEW_EVALUE);
+    sinew_image_free(&raw);
+    /* 8-bit depth is refused. */
+    assert_int_equal(sinew_image_alloc(ctx, &raw, 4, 2, 1, SINEW_U8), SINEW_OK);
+    sinew_depth_params_default(&p);
+    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d8.png", NULL),
+                     SINEW_EUNSUPPORTED);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "d8.png"));
+    sinew_image_free(&raw);
+    sinew_ctx_free(ctx);
+}
+
+static void test_lift_depth_float_ray_disparity(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_camera cam;
+    sinew_camera_init(&cam, 10, 10, 0, 0, 0, 0);
+    sinew_image raw, z;
+    assert_int_equal(sinew_image_alloc(ctx, &raw, 11, 1, 1, SINEW_F32), SINEW_OK);
+    float *r = sinew_image_row_f32(&raw, 0);
+    for (int x = 0; x < 11; x++)
+        r[x] = 2.0f;
+    r[1] = NAN;
+    r[2] = INFINITY;
+    r[3] = -1;
+    r[4] = 0;
+    sinew_depth_params p;
+    sinew_depth_params_default(&p);
+    sinew_depth_stats st;
+    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.npy", &st), SINEW_OK);
+    assert_int_equal(st.invalid_code, 4);
+    assert_near(sinew_image_row_f32(&z, 0)[0], 2.0, 0);
+    sinew_image_free(&z);
+    /* Ray distance: pixel (10, 0) with fx = 10, cx = 0 has ray (1, 0, 1), length sqrt 2:
+     * a ray distance of 2 is z = 2 / sqrt(2). */
+    p.kind = SINEW_DEPTH_RAY;
+    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.npy", NULL), SINEW_EINVAL);
+    assert_int_equal(sinew_depth_convert(ctx, &p, &cam, &raw, &z, "d.npy", NULL), SINEW_OK);
+    assert_near(sinew_image_row_f32(&z, 0)[10], 2.0 / sqrt(2.0), 1e-6);
+    assert_near(sinew_image_row_f32(&z, 0)[0], 2.0, 0);
+    sinew_image_free(&z);
+    /* Disparity: z = fx * baseline / d; fx = 10, b = 0.1 m, d = 2 px -> 0.5 m. */
+    p.kind = SINEW_DEPTH_DISPARITY;
+    assert_int_equal(sinew_depth_convert(ctx, &p, &cam, &raw, &z, "disp.pfm", NULL),
+                     SINEW_EVALUE); /* no baseline */
+    assert_non_null(strstr(sinew_ctx_message(ctx), "disp.pfm"));
+    p.baseline = 0.1;
+    assert_int_equal(sinew_depth_convert(ctx, &p, &cam, &raw, &z, "disp.pfm", NULL), SINEW_OK);
+    assert_near(sinew_image_row_f32(&z, 0)[5], 0.5, 1e-7);
+    assert_true(isnan(sinew_image_row_f32(&z, 0)[4])); /* zero disparity: invalid */
+    sinew_image_free(&z);
+    sinew_image_free(&raw);
+    sinew_ctx_free(ctx);
+}
+
+/* ---- a synthetic scene with known motion ----
+ * 40x30 camera, fx = fy = 50, cx = 19.5, cy = 14.5; both frames see a plane at z = 2 m;
+ * the scene moves by t = (0.02, 0.01, 0) m, so the flow is (50*0.02/2, 50*0.01/2) =
+ * (0.5, 0.25) px everywhere and X1 = X0 + t exactly. */
+enum { W = 40, H = 30 };
+static const double TX = 0.02, TY = 0.01;
+
+typedef struct scene {
+    sinew_ctx *ctx;
+    sinew_camera cam;
+    sinew_image flow, d0, d1, mask, conf, l0, l1;
+    sinew_match_inputs in;
+    sinew_match_params p;
+} scene;
+
+static void scene_init(scene *s, int threads)
+{
+    memset(s, 0, sizeof *s);
+    s->ctx = sinew_ctx_new();
+    assert_int_equal(sinew_ctx_set_threads(s->ctx, threads), SINEW_OK);
+    sinew_camera_init(&s->cam, 50, 50, 19.5, 14.5, W, H);
+    assert_int_equal(sinew_image_alloc(s->ctx, &s->flow, W, H, 2, SINEW_F32), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(s->ctx, &s->d0, W, H, 1, SINEW_F32), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(s->ctx, &s->d1, W, H, 1, SINEW_F32), SINEW_OK);
+    for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++) {
+            sinew_image_row_f32(&s->flow, y)[2 * x] = (float)(50 * TX / 2);
+            sinew_image_row_f32(&s->flow, y)[2 * x + 1] = (float)(50 * TY / 2);
+            sinew_image_row_f32(&s->d0, y)[x] = 2.0f;
+            sinew_image_row_f32(&s->d1, y)[x] = 2.0f;
+        }
+    s->in.flow = &s->flow;
+    s->in.depth0 = &s->d0;
+    s->in.depth1 = &s->d1;
+    s->in.camera = &s->cam;
+    sinew_match_params_default(&s->p);
+}
+
+static void scene_free(scene *s)
+{
+    sinew_image *imgs[] = {&s->flow, &s->d0, &s->d1, &s->mask, &s->conf, &s->l0, &s->l1};
+    for (size_t i = 0; i < sizeof imgs / sizeof imgs[0]; i++)
+        sinew_image_free(imgs[i]);
+    sinew_ctx_free(s->ctx);
+}
+
+static void build(scene *s, sinew_matches *m)
+{
+    int rc = sinew_matches_build(s->ctx, &s->in, &s->p, m);
+    if (rc)
+        fail_msg("build: %s", sinew_ctx_message(s->ctx));
+    /* Every pixel is either kept or counted under exactly one reason. */
+    size_t total = m->rows;
+    for (int r = 0; r < SINEW_REJECT_COUNT; r++)
+        total += m->rejected[r];
+    assert_int_equal(total, m->pixels);
+}
+
+/* Row index of the match from source pixel (x, y), or -1. */
+static long find_row(const sinew_matches *m, int x, int y)
+{
+    for (size_t i = 0; i < m->rows; i++) {
+        const float *r = m->data + i * (size_t)m->cols;
+        if (r[0] == x && r[1] == y)
+            return (long)i;
+    }
+    return -1;
+}
+
+static void test_lift_plane_exact(void **state)
+{
+    (void)state;
+    scene s;
+    scene_init(&s, 0);
+    sinew_matches m;
+    build(&s, &m);
+    assert_int_equal(m.cols, 11);
+    const char *want[] = {"u0", "v0", "u1", "v1", "weight", "X0", "Y0", "Z0", "X1", "Y1", "Z1"};
+    for (int i = 0; i < 11; i++)
+        assert_string_equal(m.columns[i], want[i]);
+    /* The target leaves [0, W-1] x [0, H-1] in the last column and row only. */
+    assert_int_equal(m.rejected[SINEW_REJECT_OUTSIDE], W + H - 1);
+    assert_int_equal(m.rows, (size_t)(W - 1) * (H - 1));
+    for (size_t i = 0; i < m.rows; i++) {
+        const float *r = m.data + i * (size_t)m.cols;
+        double x = r[0], y = r[1];
+        /* Hand formula: X0 = ((u - cx) z / fx, (v - cy) z / fy, z). */
+        double X0 = (x - 19.5) * 2 / 50, Y0 = (y - 14.5) * 2 / 50;
+        assert_near(r[2], x + 0.5, 1e-6);
+        assert_near(r[3], y + 0.25, 1e-6);
+        assert_near(r[4], 1.0, 0);
+        assert_near(r[5], X0, 1e-6);
+        assert_near(r[6], Y0, 1e-6);
+        assert_near(r[7], 2.0, 0);
+        assert_near(r[8], X0 + TX, 1e-6);
+        assert_near(r[9], Y0 + TY, 1e-6);
+        assert_near(r[10], 2.0, 1e-6);
+    }
+    /* Rows are in raster order of the source pixel. */
+    assert_int_equal(find_row(&m, 0, 0), 0);
+    assert_int_equal(find_row(&m, 1, 0), 1);
+    assert_int_equal(find_row(&m, 0, 1), W - 1);
+    sinew_matches_free(s.ctx, &m);
+    scene_free(&s);
+}
+
+static void test_lift_reject_flow_mask_weight_labels(void **state)
+{
+    (void)state;
+    scene s;
+    scene_init(&s, 0);
+    sinew_image_row_f32(&s.flow, 5)[2 * 5] = NAN;
+    assert_int_equal(sinew_image_alloc(s.ctx, &s.mask, W, H, 1, SINEW_U8), SINEW_OK);
+    sinew_image_row_u8(&s.mask, 5)[6] = 1 << 0;
+    sinew_image_row_u8(&s.mask, 5)[7] = 1 << 2;
+    sinew_image_row_u8(&s.mask, 5)[5] = 1 << 2; /* also flow-unknown: counted there */
+    assert_int_equal(sinew_image_alloc(s.ctx, &s.conf, W, H, 1, SINEW_F32), SINEW_OK);
+    for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++)
+            sinew_image_row_f32(&s.conf, y)[x] = 0.5f;
+    sinew_image_row_f32(&s.conf, 5)[8] = 0;
+    sinew_image_row_f32(&s.conf, 6)[8] = NAN;
+    assert_int_equal(sinew_image_alloc(s.ctx, &s.l0, W, H, 1, SINEW_U8), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(s.ctx, &s.l1, W, H, 1, SINEW_U16), SINEW_OK);
+    for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++) {
+            sinew_image_row_u8(&s.l0, y)[x] = x < 20 ? 1 : 7;
+            sinew_image_row_u16(&s.l1, y)[x] = x < 20 ? 1 : 7;
+        }
+    /* (9, 5) lands at (9.5, 5.25): nearest target pixel (10, 5). */
+    sinew_image_row_u16(&s.l1, 5)[10] = 300;
+    s.in.mask = &s.mask;
+    s.in.confidence = &s.conf;
+    s.in.labels0 = &s.l0;
+    s.in.labels1 = &s.l1;
+    sinew_matches m;
+    build(&s, &m);
+    assert_int_equal(m.rejected[SINEW_REJECT_FLOW_UNKNOWN], 1);
+    assert_int_equal(m.rejected[SINEW_REJECT_MASKED], 2);
+    assert_int_equal(m.mask_bits[0], 1);
+    assert_int_equal(m.mask_bits[2], 2);
+    assert_int_equal(m.rejected[SINEW_REJECT_LOW_WEIGHT], 2);
+    assert_int_equal(m.rejected[SINEW_REJECT_LABEL_CHANGE], 0);
+    assert_int_equal(m.cols, 13);
+    assert_string_equal(m.columns[11], "label0");
+    assert_string_equal(m.columns[12], "label1");
+    long i = find_row(&m, 9, 5);
+    assert_true(i >= 0);
+    assert_near(m.data[i * m.cols + 11], 1, 0);
+    assert_near(m.data[i * m.cols + 12], 300, 0);
+    assert_near(m.data[i * m.cols + 4], 0.5, 0);
+    /* (19, y) lands at nearest x = 20: label 1 -> 7 for every kept row y. */
+    assert_int_equal(m.label_changed, 1 + (H - 1));
+    assert_int_equal(m.label_count, 2);
+    assert_int_equal(m.label_ids[0], 1);
+    assert_int_equal(m.label_ids[1], 7);
+    assert_int_equal(m.label_kept[0] + m.label_kept[1], m.rows);
+    assert_true(find_row(&m, 5, 5) < 0 && find_row(&m, 6, 5) < 0 && find_row(&m, 8, 5) < 0);
+    size_t rows = m.rows;
+    sinew_matches_free(s.ctx, &m);
+    /* Dropping label changes. */
+    s.p.drop_label_change = 1;
+    build(&s, &m);
+    assert_int_equal(m.rejected[SINEW_REJECT_LABEL_CHANGE], 1 + (H - 1));
+    assert_int_equal(m.rows, rows - (1 + (H - 1)));
+    assert_int_equal(m.label_changed, 0);
+    sinew_matches_free(s.ctx, &m);
+    /* min_weight */
+    s.p.drop_label_change = 0;
+    s.p.min_weight = 0.5;
+    build(&s, &m);
+    assert_int_equal(m.rows, 0);
+    sinew_matches_free(s.ctx, &m);
+    scene_free(&s);
+}
+
+static void test_lift_reject_depth_holes_and_edges(void **state)
+{
+    (void)state;
+    scene s;
+    scene_init(&s, 0);
+    sinew_image_row_f32(&s.d0, 10)[20] = NAN;
+    sinew_image_row_f32(&s.d1, 20)[30] = NAN;
+    sinew_matches m;
+    build(&s, &m);
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH0_INVALID], 1);
+    /* The 8 neighbours of the hole see it in their 3x3 window. */
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH0_EDGE], 8);
+    /* Target (x + 0.5, y + 0.25) needs depth1 at x..x+1, y..y+1: the hole at (30, 20)
+     * is needed by x in {29, 30}, y in {19, 20}. */
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH1_HOLE], 4);
+    /* The 3x3 window around the nearest target pixel (x + 1, y) holds (30, 20) for
+     * x in 28..30, y in 19..21: 9 sources, 4 of them already holes. */
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH1_EDGE], 5);
+    sinew_matches_free(s.ctx, &m);
+    /* edge_radius 0: only the bilinear neighbours matter. */
+    s.p.edge_radius = 0;
+    build(&s, &m);
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH0_EDGE], 0);
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH1_EDGE], 0);
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH1_HOLE], 4);
+    sinew_matches_free(s.ctx, &m);
+    scene_free(&s);
+}
+
+static void test_lift_reject_straddle_displacement(void **state)
+{
+    (void)state;
+    scene s;
+    scene_init(&s, 0);
+    /* A step in frame 1: x >= 30 is at 3 m (50 % jump). */
+    for (int y = 0; y < H; y++)
+        for (int x = 30; x < W; x++)
+            sinew_image_row_f32(&s.d1, y)[x] = 3.0f;
+    s.p.max_displacement = 0.5;
+    sinew_matches m;
+    build(&s, &m);
+    /* x = 29 interpolates between 2 m and 3 m: straddle, in all H - 1 inside rows. */
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH1_STRADDLE], H - 1);
+    /* x = 28: nearest target 29, its window 28..30 crosses the step. */
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH1_EDGE], H - 1);
+    /* x = 30..38 move from 2 m to 3 m: |X1 - X0| >= 1 m > 0.5 m. */
+    assert_int_equal(m.rejected[SINEW_REJECT_DISPLACEMENT], 9 * (H - 1));
+    sinew_matches_free(s.ctx, &m);
+    /* A 4 % step is below the default 5 % edge threshold: everything interpolates. */
+    for (int y = 0; y < H; y++)
+        for (int x = 30; x < W; x++)
+            sinew_image_row_f32(&s.d1, y)[x] = 2.08f;
+    s.p.max_displacement = INFINITY;
+    build(&s, &m);
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH1_STRADDLE], 0);
+    assert_int_equal(m.rejected[SINEW_REJECT_DEPTH1_EDGE], 0);
+    long i = find_row(&m, 29, 3);
+    assert_true(i >= 0);
+    assert_near(m.data[i * m.cols + 10], 2.04, 1e-6); /* bilinear: halfway */
+    sinew_matches_free(s.ctx, &m);
+    scene_free(&s);
+}
+
+static void test_lift_normals(void **state)
+{
+    (void)state;
+    scene s;
+    scene_init(&s, 0);
+    s.p.normals = 1;
+    sinew_matches m;
+    build(&s, &m);
+    assert_int_equal(m.cols, 17);
+    assert_int_equal(sinew_matches_column(&m, "nx0"), 11);
+    assert_int_equal(sinew_matches_column(&m, "nz1"), 16);
+    /* Normals need all four neighbours: sources on x = 0 or y = 0, and those whose
+     * nearest target (x + 1, y) is on the last column (x = W - 2). */
+    assert_int_equal(m.rejected[SINEW_REJECT_NORMAL], (H - 1) + (W - 1) + (H - 1) - 2);
+    for (size_t i = 0; i < m.rows; i++) {
+        const float *r = m.data + i * (size_t)m.cols;
+        /* A fronto-parallel plane faces the camera: n = (0, 0, -1). */
+        assert_near(r[11], 0, 1e-6);
+        assert_near(r[12], 0, 1e-6);
+        assert_near(r[13], -1, 1e-6);
+        assert_near(r[16], -1, 1e-6);
+    }
+    sinew_matches_free(s.ctx, &m);
+    /* A tilted plane z = 2 + 0.01 x (pixels): normal ~ (-a, 0, -...) normalised, with
+     * X = (u - cx) z / fx; checked against the plane's own normal direction. */
+    for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++) {
+            double X0 = (x - 19.5) / 50, ray = 1; /* plane n.X = d with n = (0.2, 0, -1) */
+            (void)ray;
+            /* z such that 0.2 * X + (-1) * z = -2 with X = X0 * z */
+            double z = 2 / (1 - 0.2 * X0);
+            sinew_image_row_f32(&s.d0, y)[x] = (float)z;
+            sinew_image_row_f32(&s.d1, y)[x] = (float)z;
+        }
+    build(&s, &m);
+    double len = sqrt(0.04 + 1);
+    for (size_t i = 0; i < m.rows; i++) {
+        const float *r = m.data + i * (size_t)m.cols;
+        assert_near(r[11], 0.2 / len, 1e-4);
+        assert_near(r[12], 0, 1e-4);
+        assert_near(r[13], -1 / len, 1e-4);
+    }
+    sinew_matches_free(s.ctx, &m);
+    scene_free(&s);
+}
+
+static void test_lift_sampling_stride_topk(void **state)
+{
+    (void)state;
+    scene s;
+    scene_init(&s, 0);
+    s.in.depth0 = s.in.depth1 = NULL; /* 2-D matches */
+    s.in.camera = NULL;
+    assert_int_equal(sinew_image_alloc(s.ctx, &s.conf, W, H, 1, SINEW_F32), SINEW_OK);
+    for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++) /* a deterministic pattern with many ties */
+            sinew_image_row_f32(&s.conf, y)[x] = (float)((x * 7 + y * 13) % 10) / 10.0f;
+    s.in.confidence = &s.conf;
+    sinew_matches m;
+    s.p.sampling = SINEW_SAMPLE_STRIDE;
+    s.p.stride = 4;
+    build(&s, &m);
+    assert_int_equal(m.cols, 5);
+    for (size_t i = 0; i < m.rows; i++) {
+        const float *r = m.data + i * (size_t)m.cols;
+        assert_true((int)r[0] % 4 == 0 && (int)r[1] % 4 == 0);
+        assert_true(r[4] > 0);
+    }
+    /* grid x in 0..36 (10), y in 0..28 (8); minus zero-confidence ones */
+    size_t zero = 0;
+    for (int y = 0; y < H - 1; y += 4)
+        for (int x = 0; x < W - 1; x += 4)
+            zero += (x * 7 + y * 13) % 10 == 0;
+    assert_int_equal(m.rows, 80 - zero);
+    sinew_matches_free(s.ctx, &m);
+
+    /* Top-K with 10x10 cells: 4 x 3 = 12 cells. K = 12 gives each cell its best. */
+    s.p.sampling = SINEW_SAMPLE_TOP_K;
+    s.p.cell = 10;
+    s.p.top_k = 12;
+    build(&s, &m);
+    assert_int_equal(m.rows, 12);
+    int per_cell[12] = {0};
+    for (size_t i = 0; i < m.rows; i++) {
+        const float *r = m.data + i * (size_t)m.cols;
+        per_cell[((int)r[1] / 10) * 4 + (int)r[0] / 10]++;
+        assert_near(r[4], 0.9, 1e-6); /* every cell holds a 0.9 */
+    }
+    for (int c = 0; c < 12; c++)
+        assert_int_equal(per_cell[c], 1);
+    /* Ties broken by raster index: the first 0.9 of cell 0 is the smallest index. */
+    long first = -1;
+    for (int y = 0; y < 10 && first < 0; y++)
+        for (int x = 0; x < 10; x++)
+            if ((x * 7 + y * 13) % 10 == 9) {
+                first = (long)y * W + x;
+                break;
+            }
+    assert_near(m.data[0] + m.data[1] * W, (double)first, 0);
+    assert_int_equal(m.rejected[SINEW_REJECT_SAMPLING],
+                     m.pixels - 12 - m.rejected[SINEW_REJECT_OUTSIDE] -
+                         m.rejected[SINEW_REJECT_LOW_WEIGHT]);
+    sinew_matches_free(s.ctx, &m);
+    /* K larger than the cells: each cell gets two before any gets three. */
+    s.p.top_k = 30;
+    build(&s, &m);
+    assert_int_equal(m.rows, 30);
+    memset(per_cell, 0, sizeof per_cell);
+    for (size_t i = 0; i < m.rows; i++) {
+        const float *r = m.data + i * (size_t)m.cols;
+        per_cell[((int)r[1] / 10) * 4 + (int)r[0] / 10]++;
+    }
+    for (int c = 0; c < 12; c++)
+        assert_true(per_cell[c] >= 2 && per_cell[c] <= 3);
+    sinew_matches_free(s.ctx, &m);
+    /* A per-cell cap. */
+    s.p.top_k = 1000;
+    s.p.per_cell = 2;
+    build(&s, &m);
+    assert_int_equal(m.rows, 24);
+    sinew_matches_free(s.ctx, &m);
+    scene_free(&s);
+}
+
+static void test_lift_threads_bit_identical(void **state)
+{
+    (void)state;
+    scene s[2];
+    sinew_matches m[2];
+    for (int t = 0; t < 2; t++) {
+        scene_init(&s[t], t + 1);
+        for (int y = 0; y < H; y++)
+            for (int x = 0; x < W; x++) {
+                sinew_image_row_f32(&s[t].d0, y)[x] = (float)(1.5 + 0.3 * sin(x * 0.7 + y * 0.3));
+                sinew_image_row_f32(&s[t].d1, y)[x] = (float)(1.5 + 0.3 * cos(x * 0.2 - y * 0.5));
+                sinew_image_row_f32(&s[t].flow, y)[2 * x] = (float)(0.8 * sin(y * 0.9));
+            }
+        s[t].p.normals = 1;
+        s[t].p.edge_rel = 0.2;
+        build(&s[t], &m[t]);
+    }
+    assert_int_equal(m[0].rows, m[1].rows);
+    assert_true(m[0].rows > 100);
+    assert_memory_equal(m[0].data, m[1].data, m[0].rows * (size_t)m[0].cols * sizeof(float));
+    assert_memory_equal(m[0].rejected, m[1].rejected, sizeof m[0].rejected);
+    for (int t = 0; t < 2; t++) {
+        sinew_matches_free(s[t].ctx, &m[t]);
+        scene_free(&s[t]);
+    }
+}
+
+static void test_lift_bad_inputs(void **state)
+{
+    (void)state;
+    scene s;
+    scene_init(&s, 0);
+    sinew_matches m;
+    sinew_image small;
+    assert_int_equal(sinew_image_alloc(s.ctx, &small, W - 1, H, 1, SINEW_F32), SINEW_OK);
+    s.in.depth1 = &small;
+    s.in.depth1_name = "d1.png";
+    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_ESIZE);
+    assert_non_null(strstr(sinew_ctx_message(s.ctx), "d1.png"));
+    assert_null(m.data);
+    s.in.depth1 = NULL;
+    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_EINVAL);
+    s.in.depth1 = &s.d1;
+    s.in.confidence = &s.flow; /* 2 channels */
+    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_EUNSUPPORTED);
+    s.in.confidence = NULL;
+    s.p.edge_rel = NAN;
+    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_EINVAL);
+    sinew_match_params_default(&s.p);
+    s.p.sampling = SINEW_SAMPLE_STRIDE;
+    s.p.stride = 0;
+    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_EINVAL);
+    sinew_image_free(&small);
+    scene_free(&s);
+}
+
+static void test_lift_build_alloc_failures(void **state)
+{
+    (void)state;
+    scene s;
+    scene_init(&s, 1);
+    s.p.sampling = SINEW_SAMPLE_TOP_K;
+    s.p.top_k = 50;
+    assert_int_equal(sinew_image_alloc(s.ctx, &s.l0, W, H, 1, SINEW_U8), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(s.ctx, &s.l1, W, H, 1, SINEW_U8), SINEW_OK);
+    s.in.labels0 = &s.l0;
+    s.in.labels1 = &s.l1;
+    int ok = 0;
+    for (long n = 2; n < 20; n++) {
+        tu_failalloc fa = {n, 0, 0};
+        sinew_ctx *ctx = tu_ctx_failing(&fa);
+        sinew_matches m;
+        int rc = sinew_matches_build(ctx, &s.in, &s.p, &m);
+        assert_true(rc == SINEW_OK || rc == SINEW_ENOMEM);
+        if (rc == SINEW_OK) {
+            ok = 1;
+            assert_int_equal(m.rows, 50);
+            sinew_matches_free(ctx, &m);
+        }
+        assert_int_equal(fa.live, 1);
+        sinew_ctx_free(ctx);
+    }
+    assert_true(ok);
+    scene_free(&s);
+}
+
+/* ---- rigid fit ---- */
+
+static void rot_from_axis_angle(double ax, double ay, double az, double deg, double R[9])
+{
+    double n = sqrt(ax * ax + ay * ay + az * az), a = deg * 3.14159265358979323846 / 180;
+    ax /= n;
+    ay /= n;
+    az /= n;
+    double c = cos(a), s = sin(a), C = 1 - c;
+    double M[9] = {c + ax * ax * C,      ax * ay * C - az * s, ax * az * C + ay * s,
+                   ay * ax * C + az * s, c + ay * ay * C,      ay * az * C - ax * s,
+                   az * ax * C - ay * s, az * ay * C + ax * s, c + az * az * C};
+    memcpy(R, M, sizeof M);
+}
+
+static void test_lift_rigid_fit_recovers_motion(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_rigid T;
+    rot_from_axis_angle(0.3, -1, 0.5, 3.3, T.R);
+    T.t[0] = 0.012;
+    T.t[1] = -0.004;
+    T.t[2] = 0.0071;
+    enum { N = 500 };
+    float *rows = calloc(N * 7, sizeof(float));
+    unsigned seed = 12345;
+    for (int i = 0; i < N; i++) {
+        float *r = rows + i * 7;
+        double p[3], q[3];
+        for (int k = 0; k < 3; k++) {
+            seed = seed * 1103515245u + 12345u;
+            p[k] = ((seed >> 8) & 0xffff) / 65535.0 * 2 - 1 + (k == 2 ? 3 : 0);
+        }
+        sinew_rigid_apply(&T, p, q);
+        r[0] = 1;
+        for (int k = 0; k < 3; k++) {
+            r[1 + k] = (float)p[k];
+            r[4 + k] = (float)q[k];
+        }
+    }
+    /* Outliers with weight 0 must not matter. */
+    rows[7 * 10 + 0] = 0;
+    rows[7 * 10 + 4] += 5;
+    sinew_rigid F;
+    double rms, dt, deg;
+    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, rows, N, 7, &F, &rms), SINEW_OK);
+    sinew_rigid_distance(&F, &T, &dt, &deg);
+    assert_true(dt < 1e-6);
+    assert_true(deg < 1e-4);
+    assert_true(rms < 1e-6);
+    /* A mirror image is not a rotation: the fit stays proper (det R = +1). */
+    for (int i = 0; i < N; i++)
+        rows[i * 7 + 4] = -rows[i * 7 + 1];
+    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, rows, N, 7, &F, NULL), SINEW_OK);
+    double det = F.R[0] * (F.R[4] * F.R[8] - F.R[5] * F.R[7]) -
+                 F.R[1] * (F.R[3] * F.R[8] - F.R[5] * F.R[6]) +
+                 F.R[2] * (F.R[3] * F.R[7] - F.R[4] * F.R[6]);
+    assert_near(det, 1, 1e-9);
+    /* Collinear points are refused. */
+    for (int i = 0; i < N; i++)
+        for (int k = 0; k < 3; k++)
+            rows[i * 7 + 1 + k] = rows[i * 7 + 4 + k] = (float)(i * 0.01);
+    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, NULL, N, 7, &F, NULL), SINEW_EVALUE);
+    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, NULL, 2, 7, &F, NULL), SINEW_EVALUE);
+    rows[0] = -1;
+    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, rows, N, 7, &F, NULL), SINEW_EVALUE);
+    free(rows);
+    /* Composition, inverse and relative pose. */
+    sinew_rigid I, Ti, P0, P1, rel;
+    sinew_rigid_invert(&T, &Ti);
+    sinew_rigid_compose(&T, &Ti, &I);
+    sinew_rigid_identity(&P0);
+    sinew_rigid_distance(&I, &P0, &dt, &deg);
+    assert_true(dt < 1e-12 && deg < 1e-6);
+    /* Camera 1 = camera 0 moved by T in the world: a world point seen by camera 0 at X
+     * is seen by camera 1 at inv(P1) P0 X. */
+    P1 = T;
+    sinew_rigid_relative(&P0, &P1, &rel);
+    sinew_rigid_distance(&rel, &Ti, &dt, &deg);
+    assert_true(dt < 1e-12 && deg < 1e-6);
+    sinew_ctx_free(ctx);
+}
+
+static void test_lift_pose_file(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    char p[600];
+    tu_path(p, sizeof p, dir, "pose.txt");
+    /* 7-Scenes layout: tab separated, CRLF (SOURCES.md §2). */
+    const char *t = "  1.0e+000\t0\t0\t0.5\t\r\n0 1 0 -0.25\r\n0 0 1 2\r\n0 0 0 1\r\n";
+    tu_write_bytes(p, t, strlen(t));
+    sinew_rigid T;
+    assert_int_equal(sinew_rigid_load(ctx, &T, p), SINEW_OK);
+    assert_near(T.t[0], 0.5, 0);
+    assert_near(T.t[2], 2, 0);
+    const char *bad = "2 0 0 0  0 1 0 0  0 0 1 0  0 0 0 1";
+    tu_write_bytes(p, bad, strlen(bad));
+    assert_int_equal(sinew_rigid_load(ctx, &T, p), SINEW_EVALUE);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "pose.txt"));
+    const char *shortm = "1 0 0 0  0 1 0 0  0 0 1 0";
+    tu_write_bytes(p, shortm, strlen(shortm));
+    assert_int_equal(sinew_rigid_load(ctx, &T, p), SINEW_EFORMAT);
+    char buf[600];
+    if (tu_data_file(buf, sizeof buf, "7scenes/tsdf-fusion-frames-150-154/frame-000150.pose.txt")) {
+        assert_int_equal(sinew_rigid_load(ctx, &T, buf), SINEW_OK);
+        assert_near(T.t[0], -9.1287065e-001, 1e-12); /* first row, last column of the file */
+    }
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_lift_depth_codes_and_scale),
+        cmocka_unit_test(test_lift_depth_float_ray_disparity),
+        cmocka_unit_test(test_lift_plane_exact),
+        cmocka_unit_test(test_lift_reject_flow_mask_weight_labels),
+        cmocka_unit_test(test_lift_reject_depth_holes_and_edges),
+        cmocka_unit_test(test_lift_reject_straddle_displacement),
+        cmocka_unit_test(test_lift_normals),
+        cmocka_unit_test(test_lift_sampling_stride_topk),
+        cmocka_unit_test(test_lift_threads_bit_identical),
+        cmocka_unit_test(test_lift_bad_inputs),
+        cmocka_unit_test(test_lift_build_alloc_failures),
+        cmocka_unit_test(test_lift_rigid_fit_recovers_motion),
+        cmocka_unit_test(test_lift_pose_file),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}

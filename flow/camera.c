@@ -45,13 +45,11 @@ int sinew_camera_check(sinew_ctx *ctx, const sinew_camera *cam, const char *what
     const struct {
         const char *name;
         double v;
-    } f[] = {{"fx", cam->fx}, {"fy", cam->fy}, {"cx", cam->cx}, {"cy", cam->cy},
-             {"k1", cam->k1}, {"k2", cam->k2}, {"k3", cam->k3}, {"p1", cam->p1},
-             {"p2", cam->p2}};
+    } f[] = {{"fx", cam->fx}, {"fy", cam->fy}, {"cx", cam->cx}, {"cy", cam->cy}, {"k1", cam->k1},
+             {"k2", cam->k2}, {"k3", cam->k3}, {"p1", cam->p1}, {"p2", cam->p2}};
     for (size_t i = 0; i < sizeof f / sizeof f[0]; i++)
         if (!isfinite(f[i].v))
-            return sinew__fail(ctx, SINEW_EVALUE, "%s: %s is not a finite number", what,
-                               f[i].name);
+            return sinew__fail(ctx, SINEW_EVALUE, "%s: %s is not a finite number", what, f[i].name);
     if (!(cam->fx > 0))
         return sinew__fail(ctx, SINEW_EVALUE, "%s: fx must be > 0 (got %g)", what, cam->fx);
     if (!(cam->fy > 0))
@@ -271,15 +269,23 @@ static int load_json(sinew_ctx *ctx, sinew_camera *cam, const char *text, const 
         if (idx < 6)
             have |= 1 << idx;
         switch (idx) {
-        case 0: c.fx = v; break;
-        case 1: c.fy = v; break;
-        case 2: c.cx = v; break;
-        case 3: c.cy = v; break;
+        case 0:
+            c.fx = v;
+            break;
+        case 1:
+            c.fy = v;
+            break;
+        case 2:
+            c.cx = v;
+            break;
+        case 3:
+            c.cy = v;
+            break;
         case 4:
         case 5:
             if (v != floor(v) || v < 1 || v > (1 << 20)) {
-                rc = sinew__fail(ctx, SINEW_EVALUE, "%s: \"%s\" must be a positive integer",
-                                 path, k);
+                rc = sinew__fail(ctx, SINEW_EVALUE, "%s: \"%s\" must be a positive integer", path,
+                                 k);
                 goto done;
             }
             if (idx == 4)
@@ -287,11 +293,21 @@ static int load_json(sinew_ctx *ctx, sinew_camera *cam, const char *text, const 
             else
                 c.height = (int)v;
             break;
-        case 6: c.k1 = v; break;
-        case 7: c.k2 = v; break;
-        case 8: c.k3 = v; break;
-        case 9: c.p1 = v; break;
-        default: c.p2 = v; break;
+        case 6:
+            c.k1 = v;
+            break;
+        case 7:
+            c.k2 = v;
+            break;
+        case 8:
+            c.k3 = v;
+            break;
+        case 9:
+            c.p1 = v;
+            break;
+        default:
+            c.p2 = v;
+            break;
         }
     }
     if ((have & 15) != 15) {
@@ -354,15 +370,14 @@ static int load_matrix(sinew_ctx *ctx, sinew_camera *cam, const char *text, cons
                            path, n);
     for (int i = 0; i < 9; i++)
         if (!isfinite(m[i]))
-            return sinew__fail(ctx, SINEW_EVALUE, "%s: matrix entry %d is not finite", path,
-                               i + 1);
+            return sinew__fail(ctx, SINEW_EVALUE, "%s: matrix entry %d is not finite", path, i + 1);
     if (m[3] != 0 || m[6] != 0 || m[7] != 0 || m[8] != 1)
         return sinew__fail(ctx, SINEW_EVALUE,
                            "%s: not an intrinsic matrix (expected [fx 0 cx; 0 fy cy; 0 0 1])",
                            path);
     if (m[1] != 0)
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: non-zero skew %g is not supported",
-                           path, m[1]);
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: non-zero skew %g is not supported", path,
+                           m[1]);
     sinew_camera c;
     sinew_camera_init(&c, m[0], m[4], m[2], m[5], 0, 0);
     int rc = sinew_camera_check(ctx, &c, path);

@@ -24,11 +24,11 @@ extern "C" {
  * pixels (0 = unknown, e.g. from a bare 3x3 matrix file: then no rescaling is done).
  * All distortion coefficients zero = ideal pinhole. */
 typedef struct sinew_camera {
-    double fx, fy;         /* focal lengths in pixels, > 0 */
-    double cx, cy;         /* principal point in pixels (pixel centres at integers) */
-    int width, height;     /* calibration image size in pixels; 0 = unknown */
-    double k1, k2, k3;     /* radial coefficients */
-    double p1, p2;         /* tangential coefficients */
+    double fx, fy;     /* focal lengths in pixels, > 0 */
+    double cx, cy;     /* principal point in pixels (pixel centres at integers) */
+    int width, height; /* calibration image size in pixels; 0 = unknown */
+    double k1, k2, k3; /* radial coefficients */
+    double p1, p2;     /* tangential coefficients */
 } sinew_camera;
 
 /* Fill a pinhole camera without distortion (no validation; see sinew_camera_check). */

@@ -43,8 +43,8 @@ int sinew_depth_convert(sinew_ctx *ctx, const sinew_depth_params *p, const sinew
     if (!what)
         what = "depth";
     if (raw->channels != 1)
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: depth must have 1 channel (got %d)", what, raw->channels);
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: depth must have 1 channel (got %d)", what,
+                           raw->channels);
     if (raw->type == SINEW_U8)
         return sinew__fail(ctx, SINEW_EUNSUPPORTED,
                            "%s: 8-bit images cannot hold depth (expected 16-bit codes or float "
@@ -67,8 +67,8 @@ int sinew_depth_convert(sinew_ctx *ctx, const sinew_depth_params *p, const sinew
             return rc;
     }
     if (p->kind == SINEW_DEPTH_DISPARITY && (!isfinite(p->baseline) || !(p->baseline > 0)))
-        return sinew__fail(ctx, SINEW_EVALUE, "%s: disparity needs a baseline > 0 (got %g)",
-                           what, p->baseline);
+        return sinew__fail(ctx, SINEW_EVALUE, "%s: disparity needs a baseline > 0 (got %g)", what,
+                           p->baseline);
     int rc = sinew_image_alloc(ctx, z, raw->width, raw->height, 1, SINEW_F32);
     if (rc)
         return rc;

@@ -15,8 +15,8 @@ extern "C" {
 
 /* What the stored values measure. */
 typedef enum sinew_depth_kind {
-    SINEW_DEPTH_Z = 0,   /* distance along the optical axis (the usual RGB-D convention) */
-    SINEW_DEPTH_RAY,     /* Euclidean distance from the camera centre along the pixel ray */
+    SINEW_DEPTH_Z = 0,    /* distance along the optical axis (the usual RGB-D convention) */
+    SINEW_DEPTH_RAY,      /* Euclidean distance from the camera centre along the pixel ray */
     SINEW_DEPTH_DISPARITY /* stereo disparity in pixels: z = fx * baseline / d */
 } sinew_depth_kind;
 
@@ -28,8 +28,8 @@ typedef struct sinew_depth_params {
      * for disparity the pixel (e.g. 256). Must be > 0. SINEW_F32 input is taken as
      * metres (or pixels of disparity) and `scale` is ignored. Default 1000. */
     double scale;
-    double near, far;  /* valid z range in metres, inclusive; default 0 and +inf */
-    double baseline;   /* metres, for SINEW_DEPTH_DISPARITY (> 0) */
+    double near, far; /* valid z range in metres, inclusive; default 0 and +inf */
+    double baseline;  /* metres, for SINEW_DEPTH_DISPARITY (> 0) */
 } sinew_depth_params;
 
 /* Defaults: z depth, scale 1000, near 0, far +inf, baseline 0. */
@@ -39,8 +39,8 @@ void sinew_depth_params_default(sinew_depth_params *p);
 typedef struct sinew_depth_stats {
     size_t total;
     size_t valid;
-    size_t invalid_code;  /* 0 or 65535 codes, NaN/Inf, <= 0, zero disparity */
-    size_t out_of_range;  /* finite but outside [near, far] */
+    size_t invalid_code; /* 0 or 65535 codes, NaN/Inf, <= 0, zero disparity */
+    size_t out_of_range; /* finite but outside [near, far] */
 } sinew_depth_stats;
 
 /* Convert a raw depth map to z in metres. raw: SINEW_U16 (codes; 0 and 65535 are

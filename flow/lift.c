@@ -161,8 +161,8 @@ void sinew_rigid_compose(const sinew_rigid *a, const sinew_rigid *b, sinew_rigid
         for (int j = 0; j < 3; j++)
             o.R[3 * i + j] = a->R[3 * i] * b->R[j] + a->R[3 * i + 1] * b->R[3 + j] +
                              a->R[3 * i + 2] * b->R[6 + j];
-        o.t[i] = a->R[3 * i] * b->t[0] + a->R[3 * i + 1] * b->t[1] + a->R[3 * i + 2] * b->t[2] +
-                 a->t[i];
+        o.t[i] =
+            a->R[3 * i] * b->t[0] + a->R[3 * i + 1] * b->t[1] + a->R[3 * i + 2] * b->t[2] + a->t[i];
     }
     *c = o;
 }
@@ -215,8 +215,7 @@ int sinew_rigid_load(sinew_ctx *ctx, sinew_rigid *T, const char *path)
         double v = strtod(s, &end);
         if (end == s || n >= 16) {
             sinew_ctx_dealloc(ctx, buf);
-            return sinew__fail(ctx, SINEW_EFORMAT, "%s: expected 16 numbers (a 4x4 matrix)",
-                               path);
+            return sinew__fail(ctx, SINEW_EFORMAT, "%s: expected 16 numbers (a 4x4 matrix)", path);
         }
         m[n++] = v;
         s = end;
@@ -242,8 +241,7 @@ int sinew_rigid_load(sinew_ctx *ctx, sinew_rigid *T, const char *path)
             for (int k = 0; k < 3; k++)
                 d += o.R[3 * k + i] * o.R[3 * k + j];
             if (fabs(d - (i == j)) > 1e-3)
-                return sinew__fail(ctx, SINEW_EVALUE, "%s: rotation part is not orthonormal",
-                                   path);
+                return sinew__fail(ctx, SINEW_EVALUE, "%s: rotation part is not orthonormal", path);
         }
     *T = o;
     return SINEW_OK;
@@ -383,8 +381,8 @@ int sinew_rigid_fit(sinew_ctx *ctx, const float *src, const float *dst, const fl
     sinew_rigid o;
     for (int r = 0; r < 3; r++)
         for (int c = 0; c < 3; c++)
-            o.R[3 * r + c] = V[3 * r] * U[3 * c] + V[3 * r + 1] * U[3 * c + 1] +
-                             d * V[3 * r + 2] * U[3 * c + 2];
+            o.R[3 * r + c] =
+                V[3 * r] * U[3 * c] + V[3 * r + 1] * U[3 * c + 1] + d * V[3 * r + 2] * U[3 * c + 2];
     for (int r = 0; r < 3; r++)
         o.t[r] = cd[r] - (o.R[3 * r] * cs[0] + o.R[3 * r + 1] * cs[1] + o.R[3 * r + 2] * cs[2]);
     if (rms) {

@@ -20,10 +20,9 @@
 #define KEPT ((unsigned char)SINEW_REJECT_COUNT)
 
 static const char *const reject_names[SINEW_REJECT_COUNT] = {
-    "flow_unknown",    "masked",           "outside",      "low_weight",
-    "label_change",    "depth0_invalid",   "depth0_edge",  "depth1_hole",
-    "depth1_straddle", "depth1_edge",      "displacement", "normal",
-    "not_sampled",
+    "flow_unknown",   "masked",      "outside",     "low_weight",      "label_change",
+    "depth0_invalid", "depth0_edge", "depth1_hole", "depth1_straddle", "depth1_edge",
+    "displacement",   "normal",      "not_sampled",
 };
 
 const char *sinew_reject_name(int reason)
@@ -155,10 +154,11 @@ static int check_image(sinew_ctx *ctx, const sinew_image *img, const char *name,
         return sinew__fail(ctx, SINEW_ESIZE, "%s: %s is %dx%d but the flow is %dx%d", name, role,
                            img->width, img->height, w, h);
     if (img->channels != channels || !(types & (int)img->type))
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: %s must be a %d-channel %s image", name, role, channels,
-                           types == SINEW_F32 ? "float" : types == SINEW_U8 ? "8-bit"
-                                                                            : "8/16-bit");
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: %s must be a %d-channel %s image", name,
+                           role, channels,
+                           types == SINEW_F32  ? "float"
+                           : types == SINEW_U8 ? "8-bit"
+                                               : "8/16-bit");
     return SINEW_OK;
 }
 
@@ -173,16 +173,15 @@ static int check_inputs(sinew_ctx *ctx, const sinew_match_inputs *in, const sine
     int w = in->flow->width, h = in->flow->height, rc;
     if (in->mask && (rc = check_image(ctx, in->mask, in->mask_name, "mask", w, h, 1, SINEW_U8)))
         return rc;
-    if (in->confidence && (rc = check_image(ctx, in->confidence, in->confidence_name,
-                                            "confidence", w, h, 1, SINEW_F32)))
+    if (in->confidence && (rc = check_image(ctx, in->confidence, in->confidence_name, "confidence",
+                                            w, h, 1, SINEW_F32)))
         return rc;
     if (!in->labels0 != !in->labels1)
         return sinew__fail(ctx, SINEW_EINVAL, "matches: give label images for both frames");
-    if (in->labels0 &&
-        ((rc = check_image(ctx, in->labels0, in->labels0_name, "labels0", w, h, 1,
-                           SINEW_U8 | SINEW_U16)) ||
-         (rc = check_image(ctx, in->labels1, in->labels1_name, "labels1", w, h, 1,
-                           SINEW_U8 | SINEW_U16))))
+    if (in->labels0 && ((rc = check_image(ctx, in->labels0, in->labels0_name, "labels0", w, h, 1,
+                                          SINEW_U8 | SINEW_U16)) ||
+                        (rc = check_image(ctx, in->labels1, in->labels1_name, "labels1", w, h, 1,
+                                          SINEW_U8 | SINEW_U16))))
         return rc;
     if (!in->depth0 != !in->depth1)
         return sinew__fail(ctx, SINEW_EINVAL, "matches: give depth maps for both frames");
@@ -201,8 +200,8 @@ static int check_inputs(sinew_ctx *ctx, const sinew_match_inputs *in, const sine
     if (p->sampling != SINEW_SAMPLE_ALL && p->sampling != SINEW_SAMPLE_STRIDE &&
         p->sampling != SINEW_SAMPLE_TOP_K)
         return sinew__fail(ctx, SINEW_EINVAL, "matches: unknown sampling mode");
-    if (isnan(p->min_weight) || !(p->edge_rel > 0) || p->edge_radius < 0 ||
-        p->edge_radius > 16 || isnan(p->max_displacement) || !(p->max_displacement > 0))
+    if (isnan(p->min_weight) || !(p->edge_rel > 0) || p->edge_radius < 0 || p->edge_radius > 16 ||
+        isnan(p->max_displacement) || !(p->max_displacement > 0))
         return sinew__fail(ctx, SINEW_EINVAL,
                            "matches: bad thresholds (edge_rel > 0, edge_radius 0..16, "
                            "max_displacement > 0)");
@@ -309,8 +308,8 @@ static int label_stats(sinew_ctx *ctx, sinew_matches *m)
     return SINEW_OK;
 }
 
-int sinew_matches_build(sinew_ctx *ctx, const sinew_match_inputs *in,
-                        const sinew_match_params *p, sinew_matches *out)
+int sinew_matches_build(sinew_ctx *ctx, const sinew_match_inputs *in, const sinew_match_params *p,
+                        sinew_matches *out)
 {
     if (!ctx || !in || !p || !out)
         return SINEW_EINVAL;

@@ -50,24 +50,24 @@ typedef enum sinew_sampling {
 /* Settings; initialise with sinew_match_params_default. */
 typedef struct sinew_match_params {
     sinew_sampling sampling;
-    int stride;           /* STRIDE: grid step in pixels, >= 1 (default 4) */
-    size_t top_k;         /* TOP_K: number of matches wanted, >= 1 (default 10000) */
+    int stride;   /* STRIDE: grid step in pixels, >= 1 (default 4) */
+    size_t top_k; /* TOP_K: number of matches wanted, >= 1 (default 10000) */
     /* TOP_K spreads matches: the image is cut into cell x cell squares; candidates are
      * ranked inside their cell by weight (ties: smaller raster index first); then all
      * rank-0 candidates come first (by weight, then index), then all rank-1, and so on;
      * the first top_k are kept. per_cell > 0 also caps the matches per cell. */
-    int cell;             /* default 32 */
-    int per_cell;         /* default 0 = no cap */
-    double min_weight;    /* keep only weight > min_weight (default 0) */
+    int cell;              /* default 32 */
+    int per_cell;          /* default 0 = no cap */
+    double min_weight;     /* keep only weight > min_weight (default 0) */
     int drop_label_change; /* reject when label0 != label1 (default 0) */
     /* Lifting (ignored without depth maps). */
-    double edge_rel;      /* relative depth jump (max - min) / min counted as an edge;
-                             default 0.05 (common practice for Kinect-class sensors) */
-    int edge_radius;      /* half-size in pixels of the window checked for edges at both
-                             ends (0 = only the bilinear neighbours); default 1 */
+    double edge_rel;         /* relative depth jump (max - min) / min counted as an edge;
+                                default 0.05 (common practice for Kinect-class sensors) */
+    int edge_radius;         /* half-size in pixels of the window checked for edges at both
+                                ends (0 = only the bilinear neighbours); default 1 */
     double max_displacement; /* metres; rows with |X1 - X0| above are rejected;
                                 default +inf (off) */
-    int normals;          /* add unit normals n0, n1 from depth gradients (default 0) */
+    int normals;             /* add unit normals n0, n1 from depth gradients (default 0) */
 } sinew_match_params;
 
 void sinew_match_params_default(sinew_match_params *p);
@@ -84,9 +84,9 @@ typedef struct sinew_match_inputs {
     const sinew_image *depth0;     /* optional: SINEW_F32 z in metres, NaN = invalid
                                       (sinew_depth_convert); with depth1 and camera */
     const sinew_image *depth1;
-    const sinew_camera *camera;    /* intrinsics fitted to the image size */
-    const char *flow_name, *mask_name, *confidence_name, *labels0_name, *labels1_name,
-        *depth0_name, *depth1_name;
+    const sinew_camera *camera; /* intrinsics fitted to the image size */
+    const char *flow_name, *mask_name, *confidence_name, *labels0_name, *labels1_name, *depth0_name,
+        *depth1_name;
 } sinew_match_inputs;
 
 #define SINEW_MATCH_MAX_COLUMNS 19
@@ -104,25 +104,25 @@ typedef struct sinew_matches {
     int cols;
     float *data;
     const char *columns[SINEW_MATCH_MAX_COLUMNS]; /* static strings */
-    int width, height;                 /* size of the flow field */
+    int width, height;                            /* size of the flow field */
     int has_depth, has_normals, has_labels, has_mask, has_confidence;
-    size_t pixels;                     /* width * height */
+    size_t pixels; /* width * height */
     size_t rejected[SINEW_REJECT_COUNT];
-    size_t mask_bits[8];               /* pixels with each mask bit set (all pixels) */
+    size_t mask_bits[8]; /* pixels with each mask bit set (all pixels) */
     /* Label statistics (has_labels): for every label id seen at a kept source pixel,
      * the number of kept matches; sorted by id. */
     size_t label_count;
     uint32_t *label_ids;
     size_t *label_kept;
-    size_t label_changed;              /* kept matches with label0 != label1 */
+    size_t label_changed; /* kept matches with label0 != label1 */
 } sinew_matches;
 
 /* Build the match table. Returns SINEW_EINVAL (bad arguments or parameters), SINEW_ESIZE
  * (an input's size differs from the flow's; the message names it), SINEW_EUNSUPPORTED
  * (wrong image type/channels), SINEW_ENOMEM. Threads: rows in parallel; the result is
  * bit-identical for any thread count. */
-int sinew_matches_build(sinew_ctx *ctx, const sinew_match_inputs *in,
-                        const sinew_match_params *p, sinew_matches *out);
+int sinew_matches_build(sinew_ctx *ctx, const sinew_match_inputs *in, const sinew_match_params *p,
+                        sinew_matches *out);
 
 /* Release the table's buffers and zero the struct (NULL is fine). */
 void sinew_matches_free(sinew_ctx *ctx, sinew_matches *m);
@@ -132,13 +132,13 @@ int sinew_matches_column(const sinew_matches *m, const char *name);
 
 /* Provenance recorded in the sidecar. Every field may be NULL/NaN. */
 typedef struct sinew_match_sources {
-    const char *command;           /* e.g. "sinew lift" */
+    const char *command; /* e.g. "sinew lift" */
     const char *check_dir;
-    const char *intrinsics;        /* intrinsics file, or the value string */
-    const sinew_camera *camera;    /* as used (fitted to the images) */
+    const char *intrinsics;          /* intrinsics file, or the value string */
+    const sinew_camera *camera;      /* as used (fitted to the images) */
     const sinew_camera *camera_file; /* as loaded, before rescaling */
     const sinew_depth_params *depth;
-    double depth_median[2];        /* median valid z of depth0/depth1, metres */
+    double depth_median[2]; /* median valid z of depth0/depth1, metres */
 } sinew_match_sources;
 
 /* Write the table to `npy_path` (.npy, float32, rows x cols) and the JSON sidecar beside

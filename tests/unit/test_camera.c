@@ -89,8 +89,7 @@ static void test_camera_distortion_round_trip(void **state)
     double xd, yd;
     sinew_camera_distort(&c, 0.1, -0.2, &xd, &yd);
     assert_near(xd, 0.10108826625 + 0.000216 + 0.000182, 1e-12);
-    assert_near(yd, -0.2021765325 - 0.0054 * (0.05 + 0.08) + 2 * 0.0026 * 0.1 * -0.2,
-                       1e-12);
+    assert_near(yd, -0.2021765325 - 0.0054 * (0.05 + 0.08) + 2 * 0.0026 * 0.1 * -0.2, 1e-12);
     /* Without distortion only rounding remains. */
     seven_scenes(&c);
     assert_int_equal(sinew_camera_roundtrip_error(ctx, &c, 0, 0, 7, &err, NULL), SINEW_OK);
@@ -227,8 +226,8 @@ static void test_camera_hostile_values(void **state)
     expect_bad(ctx, dir, "{\"fx\": 0, \"fy\": 585, \"cx\": 320, \"cy\": 240}", SINEW_EVALUE, "fx");
     expect_bad(ctx, dir, "{\"fx\": NaN, \"fy\": 585, \"cx\": 320, \"cy\": 240}", SINEW_EVALUE,
                "NaN");
-    expect_bad(ctx, dir, "{\"fx\": 585, \"fy\": -Infinity, \"cx\": 320, \"cy\": 240}",
-               SINEW_EVALUE, NULL);
+    expect_bad(ctx, dir, "{\"fx\": 585, \"fy\": -Infinity, \"cx\": 320, \"cy\": 240}", SINEW_EVALUE,
+               NULL);
     expect_bad(ctx, dir, "{\"fx\": \"585\", \"fy\": 585, \"cx\": 320, \"cy\": 240}", SINEW_EVALUE,
                "fx");
     expect_bad(ctx, dir, "{\"fx\": 585, \"fy\": 585, \"cx\": 320, \"cy\": 240, \"k4\": 0}",

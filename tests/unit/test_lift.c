@@ -461,9 +461,9 @@ static void test_lift_sampling_stride_topk(void **state)
                 break;
             }
     assert_near(m.data[0] + m.data[1] * W, (double)first, 0);
-    assert_int_equal(m.rejected[SINEW_REJECT_SAMPLING],
-                     m.pixels - 12 - m.rejected[SINEW_REJECT_OUTSIDE] -
-                         m.rejected[SINEW_REJECT_LOW_WEIGHT]);
+    assert_int_equal(m.rejected[SINEW_REJECT_SAMPLING], m.pixels - 12 -
+                                                            m.rejected[SINEW_REJECT_OUTSIDE] -
+                                                            m.rejected[SINEW_REJECT_LOW_WEIGHT]);
     sinew_matches_free(s.ctx, &m);
     /* K larger than the cells: each cell gets two before any gets three. */
     s.p.top_k = 30;

@@ -16,6 +16,7 @@
 #include <string.h>
 
 #include "flow/draw.h"
+#include "flow/check.h"
 #include "flow/internal/base.h"
 #include "flow/internal/parallel.h"
 
@@ -168,7 +169,7 @@ int sinew_flow_max_magnitude(sinew_ctx *ctx, const sinew_image *flow, double *ma
 
 /* ---- colour map "dusk" ---------------------------------------------------------- */
 
-/* Control points in sRGB bytes; L* rises 7.7 -> 14.6 -> 28.4 -> 60.4 -> 93.0
+/* Control points in sRGB bytes; L* rises 7.7 -> 24.6 -> 43.5 -> 65.2 -> 93.0
  * (checked in tests/unit/test_draw.c). Linear interpolation in sRGB between them. */
 static const struct {
     double t;
@@ -203,16 +204,22 @@ void sinew_colourmap(double t, uint8_t rgb[3])
 
 /* ---- reasons --------------------------------------------------------------------- */
 
+_Static_assert(SINEW_DRAW_REASONS == SINEW_MASK_NBITS, "one colour per mask bit");
+_Static_assert(SINEW_MASK_FB == 1u && SINEW_MASK_SATURATED == 1u << 5 &&
+                   SINEW_MASK_UNKNOWN == 1u << 6,
+               "reason colours follow the mask bit order of flow/check.h");
+
 static const struct {
     uint8_t c[3];
     const char *name;
 } reasons[SINEW_DRAW_REASONS] = {
-    {{232, 112, 92}, "FB MISMATCH"},  /* bit 0: forward-backward inconsistent (coral) */
-    {{92, 164, 232}, "LEAVES FRAME"}, /* bit 1: target outside the frame (sky blue) */
-    {{236, 192, 72}, "MOTION EDGE"},  /* bit 2: motion boundary (amber) */
-    {{172, 124, 224}, "PHOTOMETRIC"}, /* bit 3: photometric error (violet) */
-    {{150, 160, 172}, "USER IGNORE"}, /* bit 4: user ignore mask (slate gray) */
-    {{112, 204, 152}, "SATURATED"},   /* bit 5: saturated pixels (mint) */
+    {{232, 112, 92}, "FB MISMATCH"},   /* bit 0: forward-backward inconsistent (coral) */
+    {{92, 164, 232}, "LEAVES FRAME"},  /* bit 1: target outside the frame (sky blue) */
+    {{236, 192, 72}, "MOTION EDGE"},   /* bit 2: motion boundary (amber) */
+    {{172, 124, 224}, "PHOTOMETRIC"},  /* bit 3: photometric error (violet) */
+    {{150, 160, 172}, "USER IGNORE"},  /* bit 4: user ignore mask (slate gray) */
+    {{112, 204, 152}, "SATURATED"},    /* bit 5: saturated pixels (mint) */
+    {{226, 128, 190}, "UNKNOWN FLOW"}, /* bit 6: flow unknown here or at the target (rose) */
 };
 
 int sinew_reason_style(int bit, uint8_t rgb[3], const char **name)
@@ -674,7 +681,7 @@ int sinew_draw_reasons(sinew_ctx *ctx, sinew_image *out, const sinew_image *fram
         const uint8_t *m = sinew_image_row_u8(mask, y);
         uint8_t *o = sinew_image_row_u8(out, y);
         for (int x = 0; x < w; x++) {
-            unsigned bits = m[x] & 0x3Fu;
+            unsigned bits = m[x] & 0x7Fu;
             if (!bits)
                 continue;
             const uint8_t *c = reasons[__builtin_ctz(bits)].c;

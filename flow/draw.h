@@ -44,8 +44,8 @@ void sinew_colourmap(double t, uint8_t rgb[3]);
 #define SINEW_DRAW_NOVALUE_B 56
 
 /* ---- rejection reasons (mask bits, see flow/check.h) ---- */
-#define SINEW_DRAW_REASONS 6
-/* Overlay colour and short legend name of mask bit `bit` (0..5). SINEW_EINVAL otherwise.
+#define SINEW_DRAW_REASONS 7
+/* Overlay colour and short legend name of mask bit `bit` (0..6). SINEW_EINVAL otherwise.
  * name may be NULL; *name is static storage. */
 int sinew_reason_style(int bit, uint8_t rgb[3], const char **name);
 /* Blend of a reason colour c over the dimmed frame value f, per channel (integer
@@ -91,7 +91,7 @@ int sinew_draw_epe(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow, co
                    double max_epe, int legend);
 
 /* Rejection reasons over the frame: mask is SINEW_U8 1-channel (bits as in
- * flow/check.h; bits 6 and 7 are ignored). A pixel with reasons takes the colour of its
+ * flow/check.h; bit 7 is ignored). A pixel with reasons takes the colour of its
  * lowest set bit blended over the dimmed frame as described above.
  * frame may be NULL (black); otherwise its size must match the mask. */
 int sinew_draw_reasons(sinew_ctx *ctx, sinew_image *out, const sinew_image *frame,

@@ -383,17 +383,17 @@ static void test_draw_reasons_bit_colours(void **state)
     assert_int_equal(sinew_image_alloc(ctx, &frame, 10, 2, 3, SINEW_U8), SINEW_OK);
     memset(frame.data, 100, frame.stride * 2);
     uint8_t *m = sinew_image_row_u8(&mask, 0);
-    for (int b = 0; b < 6; b++)
+    for (int b = 0; b < 7; b++)
         m[b] = (uint8_t)(1u << b);
-    m[6] = 0x0C; /* bits 2 and 3: the lowest (2) wins */
-    m[7] = 0xC0; /* bits 6, 7: not reasons */
+    m[7] = 0x0C; /* bits 2 and 3: the lowest (2) wins */
+    m[8] = 0x80; /* bit 7: reserved, not a reason */
     assert_int_equal(sinew_draw_reasons(ctx, &out, &frame, &mask, 0), SINEW_OK);
     /* Gray 100 -> g = (77+150+29)*100+128 >> 8 = 100; dimmed 20 + (14000+127)/255 = 75. */
     const int dim = 75;
     expect_rgb(px(&out, 9, 1), dim, dim, dim);
-    expect_rgb(px(&out, 7, 0), dim, dim, dim);
-    uint8_t seen[6][3];
-    for (int b = 0; b < 6; b++) {
+    expect_rgb(px(&out, 8, 0), dim, dim, dim);
+    uint8_t seen[7][3];
+    for (int b = 0; b < 7; b++) {
         uint8_t c[3];
         const char *name = NULL;
         assert_int_equal(sinew_reason_style(b, c, &name), SINEW_OK);
@@ -406,8 +406,8 @@ static void test_draw_reasons_bit_colours(void **state)
         for (int o = 0; o < b; o++) /* one distinct colour per bit */
             assert_memory_not_equal(seen[o], seen[b], 3);
     }
-    assert_memory_equal(px(&out, 6, 0), seen[2], 3);
-    assert_int_equal(sinew_reason_style(6, NULL, NULL), SINEW_EINVAL);
+    assert_memory_equal(px(&out, 7, 0), seen[2], 3);
+    assert_int_equal(sinew_reason_style(7, NULL, NULL), SINEW_EINVAL);
     sinew_image_free(&out);
     /* Legend adds a strip; without a frame the background is black. */
     assert_int_equal(sinew_draw_reasons(ctx, &out, NULL, &mask, 1), SINEW_OK);

@@ -47,16 +47,16 @@ static inline int flow_known(float u, float v)
     return isfinite(u) && isfinite(v);
 }
 
-/* Angle in degrees between (u, v, 1) and (ug, vg, 1); Barron, Fleet, Beauchemin 1994. */
+/* Angle in degrees between a = (u, v, 1) and b = (ug, vg, 1) (Barron, Fleet, Beauchemin
+ * 1994). The published form is acos(a.b / (|a| |b|)); atan2(|a x b|, a.b) is the same
+ * angle, needs no clamp, and stays accurate for small angles, where acos of a value
+ * rounded near 1 gives spurious errors of ~1e-6 degrees (identical vectors then score
+ * exactly 0). The unit tests compare it with the published acos form. */
 static inline double angular_error_deg(double u, double v, double ug, double vg)
 {
-    double c =
-        (1.0 + u * ug + v * vg) / (sqrt(1.0 + u * u + v * v) * sqrt(1.0 + ug * ug + vg * vg));
-    if (c > 1.0)
-        c = 1.0;
-    if (c < -1.0)
-        c = -1.0;
-    return acos(c) * RAD2DEG;
+    double cx = v - vg, cy = ug - u, cz = u * vg - v * ug; /* a x b */
+    double dot = 1.0 + u * ug + v * vg;
+    return atan2(sqrt(cx * cx + cy * cy + cz * cz), dot) * RAD2DEG;
 }
 
 static inline void stats_add_pixel(sinew_flow_stats *s, double ee, double ae, double gmag)

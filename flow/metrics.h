@@ -5,8 +5,10 @@
  *
  * Per-pixel definitions (docs/methods.md, section "Metrics", gives sources):
  *   EE  = sqrt((u - ug)^2 + (v - vg)^2)                              [px]
- *   AE  = acos(clamp((1 + u*ug + v*vg) /
- *              (sqrt(1 + u^2 + v^2) * sqrt(1 + ug^2 + vg^2)), -1, 1)) [deg]
+ *   AE  = acos((1 + u*ug + v*vg) / (sqrt(1 + u^2 + v^2) * sqrt(1 + ug^2 + vg^2)))  [deg]
+ *         the angle between (u, v, 1) and (ug, vg, 1), evaluated as the equal but
+ *         numerically stable atan2(|a x b|, a . b) (no clamp needed; exact 0 for equal
+ *         vectors)
  *   Rx  = EE > x for x in {0.5, 1, 3, 5}
  *   Fl  = EE > 3 px AND EE > 0.05 * |(ug, vg)|   (KITTI 2015 devkit)
  *

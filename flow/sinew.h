@@ -3,6 +3,7 @@
 #ifndef SINEW_H
 #define SINEW_H
 #include "flow/core.h"
+#include "flow/io.h"
 #include "flow/camera.h"
 #include "flow/check.h"
 #include "flow/depth.h"

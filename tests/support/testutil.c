@@ -110,3 +110,48 @@ sinew_ctx *tu_ctx_failing(tu_failalloc *fa)
     sinew_allocator a = {fa_alloc, fa_free, fa};
     return sinew_ctx_new_with(&a);
 }
+
+int tu_fixture_setup(void **state)
+{
+    tu_fixture *f = calloc(1, sizeof *f);
+    if (!f)
+        return -1;
+    f->dir = tu_tmpdir();
+    f->ctx = sinew_ctx_new();
+    *state = f;
+    return f->ctx ? 0 : -1;
+}
+
+int tu_fixture_teardown(void **state)
+{
+    tu_fixture *f = *state;
+    tu_rmtree(f->dir);
+    free(f->dir);
+    sinew_ctx_free(f->ctx);
+    free(f);
+    return 0;
+}
+
+const char *tu_fixture_path(tu_fixture *f, const char *name)
+{
+    return tu_path(f->p, sizeof f->p, f->dir, name);
+}
+
+void tu_fail_each_allocation(const char *what, tu_alloc_op op, void *ud)
+{
+    for (long n = 2; n < 100000; n++) {
+        tu_failalloc fa = {n, 0, 0};
+        sinew_ctx *ctx = tu_ctx_failing(&fa);
+        assert_non_null(ctx);
+        int rc = op(ctx, ud);
+        if (fa.live != 1)
+            fail_msg("%s: allocation %ld failing left %ld blocks live", what, n, fa.live - 1);
+        if (rc != SINEW_OK && rc != SINEW_ENOMEM)
+            fail_msg("%s: allocation %ld failing gave status %d: %s", what, n, rc,
+                     sinew_ctx_message(ctx));
+        sinew_ctx_free(ctx);
+        if (rc == SINEW_OK)
+            return;
+    }
+    fail_msg("%s: never succeeded", what);
+}

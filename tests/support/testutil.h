@@ -43,4 +43,23 @@ typedef struct tu_failalloc {
 } tu_failalloc;
 sinew_ctx *tu_ctx_failing(tu_failalloc *fa);
 
+/* Per-test fixture: a fresh temporary folder and a default context. Use
+ * tu_fixture_setup/tu_fixture_teardown as cmocka setup/teardown; *state is a tu_fixture. */
+typedef struct tu_fixture {
+    char *dir;
+    sinew_ctx *ctx;
+    char p[700];
+} tu_fixture;
+int tu_fixture_setup(void **state);
+int tu_fixture_teardown(void **state);
+/* dir + "/" + name in the fixture's own buffer (valid until the next call). */
+const char *tu_fixture_path(tu_fixture *f, const char *name);
+
+/* Allocation-failure sweep: run op on a fresh failing context with the Nth allocation
+ * failing, for N = 2, 3, ... (1 is the context itself) until op succeeds. Each failing
+ * run must return SINEW_ENOMEM and leave only the context allocated (no leak); op must
+ * free whatever it produced. Fails the test otherwise. */
+typedef int (*tu_alloc_op)(sinew_ctx *ctx, void *ud);
+void tu_fail_each_allocation(const char *what, tu_alloc_op op, void *ud);
+
 #endif

@@ -1,0 +1,98 @@
+/* SPDX-License-Identifier: MIT */
+/* Binary PGM (P5) and PPM (P6) reading, and the content-sniffing dispatch behind
+ * sinew_image_read.
+ *
+ * Netpbm header: magic, width, height, maxval as decimal tokens separated by
+ * whitespace, '#' comments allowed between them, then exactly one whitespace byte and
+ * the raster, rows top to bottom. maxval <= 255 gives 1 byte per sample, otherwise 2
+ * bytes, most significant first. Samples are kept as stored (no rescaling to the full
+ * range); the caller knows what maxval meant. Bytes after the raster are refused. */
+#include <stdio.h>
+#include <string.h>
+
+#include "flow/internal/io.h"
+#include "flow/io.h"
+
+int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out)
+{
+    memset(out, 0, sizeof *out);
+    char tok[32];
+    int rc = sinew__io_token(ctx, path, fp, tok, sizeof tok, 1, "PNM header");
+    if (rc)
+        return rc;
+    int channels = !strcmp(tok, "P5") ? 1 : !strcmp(tok, "P6") ? 3 : 0;
+    if (!channels)
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
+                           "%s: only binary PGM/PPM (P5/P6) are supported", path);
+    int64_t v[3];
+    for (int i = 0; i < 3; i++) {
+        rc = sinew__io_token(ctx, path, fp, tok, sizeof tok, 1, "PNM header");
+        if (rc)
+            return rc;
+        if (sinew__io_parse_uint(tok, &v[i]))
+            return sinew__fail(ctx, SINEW_EFORMAT, "%s: malformed PNM header field '%s'", path,
+                               tok);
+    }
+    rc = sinew__check_dims(ctx, path, v[0], v[1]);
+    if (rc)
+        return rc;
+    if (v[2] < 1 || v[2] > 65535)
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: PNM maxval %lld outside 1..65535", path,
+                           (long long)v[2]);
+    int wide = v[2] > 255;
+    rc = sinew_image_alloc(ctx, out, (int)v[0], (int)v[1], channels,
+                           wide ? SINEW_U16 : SINEW_U8);
+    if (rc)
+        return rc;
+    size_t n = (size_t)out->width * (size_t)channels;
+    for (int y = 0; y < out->height && !rc; y++) {
+        unsigned char *row = sinew_image_row(out, y);
+        rc = sinew__io_read(ctx, path, fp, row, n * (wide ? 2 : 1), "PNM raster");
+        if (!rc && wide) {
+            uint16_t *r16 = (uint16_t *)(void *)row;
+            for (size_t i = 0; i < n; i++) {
+                uint16_t s = (uint16_t)(row[2 * i] << 8 | row[2 * i + 1]);
+                r16[i] = s;
+            }
+        }
+    }
+    if (!rc)
+        rc = sinew__io_expect_end(ctx, path, fp, "PNM raster");
+    if (rc)
+        sinew_image_free(out);
+    return rc;
+}
+
+int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path)
+{
+    if (out)
+        memset(out, 0, sizeof *out);
+    if (!ctx || !out || !path)
+        return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read image: missing argument") : SINEW_EINVAL;
+    FILE *fp;
+    int rc = sinew__io_open(ctx, path, &fp);
+    if (rc)
+        return rc;
+    unsigned char sig[8];
+    size_t got = fread(sig, 1, sizeof sig, fp);
+    if (ferror(fp)) {
+        fclose(fp);
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot read", path);
+    }
+    rewind(fp);
+    static const unsigned char png_sig[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1a, '\n'};
+    if (got == 0)
+        rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: empty file", path);
+    else if (got == 8 && !memcmp(sig, png_sig, 8))
+        rc = sinew__png_read_fp(ctx, path, fp, out);
+    else if (got >= 3 && sig[0] == 0xff && sig[1] == 0xd8 && sig[2] == 0xff)
+        rc = sinew__jpeg_read_fp(ctx, path, fp, out);
+    else if (got >= 2 && sig[0] == 'P' && sig[1] >= '1' && sig[1] <= '7')
+        rc = sinew__pnm_read_fp(ctx, path, fp, out);
+    else
+        rc = sinew__fail(ctx, SINEW_EFORMAT,
+                         "%s: not a PNG, JPEG or binary PGM/PPM image (unrecognised content)",
+                         path);
+    fclose(fp);
+    return rc;
+}

@@ -25,6 +25,13 @@ endif
 ifneq ($(ARCH),)
 BUILD := $(BUILD)/arch-$(ARCH)
 endif
+# FUZZ=1: clang with libFuzzer instrumentation, ASan+UBSan, no OpenMP (used by `make fuzz`).
+FUZZ ?= 0
+ifeq ($(FUZZ),1)
+BUILD := build/fuzz
+CC := clang
+OPENMP := 0
+endif
 
 PKGS := libpng libturbojpeg libcjson
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
@@ -52,12 +59,20 @@ endif
 ifneq ($(ARCH),)
 CFLAGS_ALL += -march=$(ARCH)
 endif
+ifeq ($(FUZZ),1)
+CFLAGS_ALL += -fsanitize=fuzzer-no-link,address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all
+endif
 
 LIB_SRC  := $(sort $(wildcard flow/*.c))
 TOOL_SRC := $(sort $(wildcard tools/*.c))
 TEST_SUPPORT_SRC := $(sort $(wildcard tests/support/*.c))
 TEST_UNIT_SRC := $(sort $(wildcard tests/unit/test_*.c))
 DEMO_SRC := $(sort $(wildcard demo/*.c))
+
+FUZZ_TARGETS := $(sort $(patsubst tests/fuzz/fuzz_%.c,%,$(wildcard tests/fuzz/fuzz_*.c)))
+FUZZ_REPLAY := $(FUZZ_TARGETS:%=$(BUILD)/fuzz/replay_%)
+FUZZ_BINS := $(FUZZ_TARGETS:%=$(BUILD)/fuzz/fuzz_%)
+SECONDS ?= 60
 
 LIB_OBJ  := $(LIB_SRC:%.c=$(BUILD)/obj/%.o)
 TOOL_OBJ := $(TOOL_SRC:%.c=$(BUILD)/obj/%.o)
@@ -69,7 +84,7 @@ LIB := $(BUILD)/libsinew.a
 BIN := $(BUILD)/sinew
 
 .SECONDARY:
-.PHONY: all deps test check demo bench fuzz install clean info lint format tests-build
+.PHONY: all deps test check demo bench fuzz fuzz-build install clean info lint format tests-build
 all: $(BIN) $(LIB)
 
 $(BUILD)/obj/%.o: %.c
@@ -96,11 +111,30 @@ $(BUILD)/demo/%: $(BUILD)/obj/demo/%.o $(LIB)
 	@mkdir -p $(dir $@)
 	$(CC) $(LDFLAGS_ALL) -o $@ $< $(LIB) $(LIBS_ALL)
 
+# Fuzz targets: a replay program per target (normal builds, run by `make test`) and
+# a libFuzzer binary per target (FUZZ=1 builds, run by `make fuzz`).
+$(BUILD)/fuzz/replay_%: $(BUILD)/obj/tests/fuzz/fuzz_%.o $(BUILD)/obj/tests/fuzz/replay.o \
+		$(BUILD)/obj/tests/fuzz/common.o $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(LDFLAGS_ALL) -o $@ $(filter %.o,$^) $(LIB) $(LIBS_ALL)
+
+$(BUILD)/fuzz/fuzz_%: $(BUILD)/obj/tests/fuzz/fuzz_%.o $(BUILD)/obj/tests/fuzz/common.o $(LIB)
+	@mkdir -p $(dir $@)
+	$(CC) $(LDFLAGS_ALL) -fsanitize=fuzzer,address,undefined -o $@ $(filter %.o,$^) $(LIB) $(LIBS_ALL)
+
+fuzz-build: $(FUZZ_BINS)
+
+# `make fuzz SECONDS=N`: run every target for N seconds (needs clang; installs it if missing).
+fuzz:
+	@SINEW_EXTRA_DEPS="clang libclang-rt-dev" tools/install-deps
+	@$(MAKE) --no-print-directory FUZZ=1 fuzz-build
+	@tools/fuzz-run build/fuzz/fuzz $(SECONDS) $(FUZZ_TARGETS)
+
 # Install missing Debian packages (as root) or print the command to do so.
 deps:
 	@tools/install-deps
 
-tests-build: $(BIN) $(LIB) $(TEST_BINS) $(DEMO_BINS)
+tests-build: $(BIN) $(LIB) $(TEST_BINS) $(DEMO_BINS) $(FUZZ_REPLAY)
 
 # Runs every unit test binary and end-to-end script; ends with "N passed, N failed".
 test: deps

@@ -1,0 +1,16 @@
+/* SPDX-License-Identifier: MIT */
+/* Fuzz target: Middlebury .flo flow files. */
+#include "tests/fuzz/fuzz.h"
+
+int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
+{
+    sinew_ctx *ctx = fuzz_ctx();
+    const char *path = ctx ? fuzz_file(data, size, ".flo") : NULL;
+    if (path) {
+        sinew_image img;
+        if (sinew_flow_read(ctx, &img, path, SINEW_FLOW_FLO) == SINEW_OK)
+            sinew_image_free(&img);
+    }
+    sinew_ctx_free(ctx);
+    return 0;
+}

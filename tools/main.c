@@ -1,6 +1,7 @@
 /* SPDX-License-Identifier: MIT */
 /* sinew: the command-line front end. Dispatches to one function per subcommand
  * (tools/cmd_*.c), listed in tools/commands.def. */
+#include <signal.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -41,6 +42,9 @@ static void usage(FILE *out)
 
 int main(int argc, char **argv)
 {
+    /* A file-size limit (ulimit -f) must surface as a write error with a message, not
+     * kill the process with SIGXFSZ halfway through an output. */
+    signal(SIGXFSZ, SIG_IGN);
     if (argc < 2) {
         usage(stderr);
         return CLI_USAGE;

@@ -1,0 +1,62 @@
+# SPDX-License-Identifier: MIT
+# Hostile environments for the real binary: disk full, file-size limit, read-only output
+# folder, output path that is a directory. Each must give one error line naming the file,
+# a non-zero exit, no partial output, and leave earlier outputs intact.
+. tests/cli/lib.sh
+
+tiny=$(mktemp -d "${TMPDIR:-/tmp}/sinew-tiny.XXXXXX")
+cleanup_mounts() { umount "$tiny" 2>/dev/null; rm -rf "$tiny" "$T"; }
+trap cleanup_mounts EXIT
+
+# A small flow field made by the binary itself (no dataset needed): convert a seed .flo.
+seed=tests/fuzz/corpus/flo/flow.flo
+"$SINEW_BIN" convert "$seed" "$T/small.npy" || fail "setup" "convert of $seed failed"
+
+big=""
+if have_data middlebury; then big="$SINEW_DATA/middlebury/Grove2/flow10.flo"; fi
+
+# --- disk full: a 64 KiB tmpfs -------------------------------------------------------
+if mount -t tmpfs -o size=64k tmpfs "$tiny" 2>/dev/null; then
+    expect_ok "disk-full: small output fits" "$SINEW_BIN" convert "$seed" "$tiny/first.flo"
+    cp "$tiny/first.flo" "$T/first.copy"
+    if [ -n "$big" ]; then
+        expect_error "disk-full: large output is refused cleanly" "$tiny/big.npy" \
+            "big\.npy.*(No space|space)" "$SINEW_BIN" convert "$big" "$tiny/big.npy"
+        expect_error "disk-full: overwrite keeps the old file" - "first\.flo" \
+            "$SINEW_BIN" convert "$big" "$tiny/first.flo"
+        if cmp -s "$tiny/first.flo" "$T/first.copy"; then pass "disk-full: earlier output intact"
+        else fail "disk-full: earlier output intact" "first.flo changed"; fi
+        if ls -a "$tiny" | grep -q '\.tmp-'; then fail "disk-full: no temporary files" "$(ls -a "$tiny")"
+        else pass "disk-full: no temporary files"; fi
+    else
+        skip "disk-full: large output" "needs \$SINEW_DATA/middlebury (Grove2 ground truth as a 2.4 MB input)"
+    fi
+    # --- read-only folder ---
+    mount -o remount,ro "$tiny" 2>/dev/null && {
+        expect_error "read-only folder" "$tiny/ro.flo" "ro\.flo.*(Read-only|read-only)" \
+            "$SINEW_BIN" convert "$seed" "$tiny/ro.flo"
+    } || skip "read-only folder" "cannot remount the test tmpfs read-only"
+    umount "$tiny"
+else
+    skip "disk-full and read-only folder" "cannot mount a tmpfs (needs root)"
+fi
+
+# --- file-size limit (ulimit -f, in 512-byte blocks): SIGXFSZ must not kill the writer ---
+if [ -n "$big" ]; then
+    ( ulimit -f 64; exec "$SINEW_BIN" convert "$big" "$T/limited.flo" ) >"$T/out" 2>"$T/err"; rc=$?
+    if [ "$rc" -ge 128 ]; then fail "file-size limit" "killed by a signal (exit $rc)"
+    elif [ "$rc" -eq 0 ]; then fail "file-size limit" "exit 0 despite the limit"
+    elif [ "$(wc -l <"$T/err")" -ne 1 ] || ! grep -q 'limited\.flo' "$T/err"; then
+        fail "file-size limit" "stderr: $(cat "$T/err")"
+    elif [ -e "$T/limited.flo" ] || ls -a "$T" | grep -q 'limited.flo.tmp-'; then
+        fail "file-size limit" "partial output left behind"
+    else pass "file-size limit"; fi
+else
+    skip "file-size limit" "needs \$SINEW_DATA/middlebury"
+fi
+
+# --- output path that is a directory ---
+mkdir -p "$T/adir.flo"
+expect_error "output is a directory" - "adir\.flo.*directory" "$SINEW_BIN" convert "$seed" "$T/adir.flo"
+# --- output folder that does not exist ---
+expect_error "missing output folder" "$T/nope/x.flo" "nope/x\.flo" "$SINEW_BIN" convert "$seed" "$T/nope/x.flo"

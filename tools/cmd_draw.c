@@ -1,0 +1,501 @@
+/* SPDX-License-Identifier: MIT */
+/* sinew draw KIND: write one PNG picture of a flow field, an error or confidence map,
+ * a rejection mask or a match table (flow/draw.h does the drawing, flow/io.h the
+ * files). Inputs are checked against each other here so messages name the files. */
+#define _GNU_SOURCE
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <cJSON.h>
+
+#include "flow/io.h"
+#include "tools/cli.h"
+
+static const char *const CMD = "draw";
+
+/* Which options each kind reads (bit flags). */
+enum {
+    O_FLOW = 1 << 0,
+    O_TRUTH = 1 << 1,
+    O_FRAME = 1 << 2,
+    O_FRAME1 = 1 << 3,
+    O_MAP = 1 << 4,
+    O_MASK = 1 << 5,
+    O_TABLE = 1 << 6,
+    O_COLUMNS = 1 << 7,
+    O_MAX = 1 << 8,
+    O_STEP = 1 << 9,
+    O_SCALE = 1 << 10,
+    O_COUNT = 1 << 11,
+    O_SIZE = 1 << 12,
+    O_LEGEND = 1 << 13
+};
+
+typedef struct kind {
+    const char *name;
+    unsigned required, allowed;
+    const char *what;
+} kind;
+
+static const kind kinds[] = {
+    {"flow", O_FLOW, O_FLOW | O_MAX | O_LEGEND, "flow in the colour-wheel coding"},
+    {"arrows", O_FLOW, O_FLOW | O_FRAME | O_STEP | O_SCALE | O_LEGEND, "arrow glyphs on a grid"},
+    {"fb-error", O_MAP, O_MAP | O_MAX | O_LEGEND, "forward-backward error heatmap"},
+    {"confidence", O_MAP, O_MAP | O_LEGEND, "confidence map (0..1)"},
+    {"epe", O_FLOW | O_TRUTH, O_FLOW | O_TRUTH | O_MAX | O_LEGEND, "endpoint error vs truth"},
+    {"reasons", O_MASK, O_MASK | O_FRAME | O_LEGEND, "rejection reasons over the frame"},
+    {"matches", O_TABLE | O_FRAME | O_FRAME1,
+     O_TABLE | O_COLUMNS | O_FRAME | O_FRAME1 | O_COUNT | O_LEGEND, "match segments side by side"},
+    {"wheel", 0, O_SIZE, "the colour-wheel legend alone"},
+};
+
+static const char *const opt_names[] = {"--flow",  "--truth", "--frame",   "--frame1",   "--map",
+                                        "--mask",  "--table", "--columns", "--max",      "--step",
+                                        "--scale", "--count", "--size",    "--no-legend"};
+
+static void usage(void)
+{
+    printf("usage: sinew draw KIND [OPTIONS] --out PICTURE.png\n"
+           "\n"
+           "Write one PNG picture (8-bit RGB). Kinds:\n");
+    for (size_t i = 0; i < sizeof kinds / sizeof kinds[0]; i++)
+        printf("  %-11s %s\n", kinds[i].name, kinds[i].what);
+    printf(
+        "\n"
+        "inputs:\n"
+        "  --flow FILE      flow field (.flo, KITTI .png, .pfm, .npy); kinds flow, arrows, epe\n"
+        "  --truth FILE     ground-truth flow for epe (same size as --flow)\n"
+        "  --frame IMAGE    frame shown under arrows/reasons; left frame of matches\n"
+        "  --frame1 IMAGE   right frame of matches\n"
+        "  --map FILE       1-channel float map (.npy or .pfm): fb error in pixels or\n"
+        "                   confidence in 0..1; NaN = no value\n"
+        "  --mask FILE      reason bits, 8-bit gray PNG/PGM or integer .npy (bit 0 fb\n"
+        "                   mismatch, 1 leaves frame, 2 motion edge, 3 photometric,\n"
+        "                   4 user ignore, 5 saturated, 6 unknown flow; as sinew check writes)\n"
+        "  --table FILE     N x C float32 .npy match table\n"
+        "  --columns FILE   JSON sidecar naming the table columns {\"columns\": [\"u0\", ...]};\n"
+        "                   default: TABLE with .json for .npy, then TABLE.json\n"
+        "\n"
+        "drawing:\n"
+        "  --out, -o FILE   output PNG (written atomically)\n"
+        "  --max VALUE      value at the top of the scale (pixels): wheel radius for flow,\n"
+        "                   colour-bar end for fb-error/epe; default: the input's maximum.\n"
+        "                   Give the same value for every frame of a sequence to compare.\n"
+        "  --step PX        arrow grid spacing (default 16)\n"
+        "  --scale K        arrow length per pixel of motion (default 1)\n"
+        "  --count N        matches drawn, evenly spaced over the table (default 300)\n"
+        "  --size PX        wheel size (default 256)\n"
+        "  --no-legend      picture only, no legend strip below\n"
+        "  --threads N      worker threads (0 = all cores, default)\n"
+        "\n"
+        "examples:\n"
+        "  sinew draw flow --flow pair/forward.flo --max 20 -o forward.png\n"
+        "  sinew draw arrows --flow fwd.flo --frame frame10.png --step 12 -o arrows.png\n"
+        "  sinew draw reasons --mask mask.png --frame frame10.png -o reasons.png\n"
+        "  sinew draw epe --flow fwd.flo --truth flow10.flo --max 3 -o epe.png\n"
+        "  sinew draw matches --table m.npy --frame a.png --frame1 b.png -o m.png\n"
+        "  sinew draw wheel --size 128 -o wheel.png\n"
+        "\n%s",
+        cli_notice);
+}
+
+typedef struct opts {
+    const char *out, *flow, *truth, *frame, *frame1, *map, *mask, *table, *columns;
+    double max;
+    long step, count, size, threads;
+    double scale;
+    int legend;
+    unsigned given;
+} opts;
+
+/* ---- input helpers (each names the file in its message) ---- */
+
+static int read_flow(sinew_ctx *ctx, sinew_image *f, const char *path)
+{
+    int st = sinew_flow_read(ctx, f, path, SINEW_FLOW_AUTO);
+    return st ? cli_status(CMD, ctx, st) : 0;
+}
+
+static int read_frame(sinew_ctx *ctx, sinew_image *f, const char *path)
+{
+    int st = sinew_image_read(ctx, f, path);
+    return st ? cli_status(CMD, ctx, st) : 0;
+}
+
+static int ends_with(const char *s, const char *suffix)
+{
+    size_t n = strlen(s), m = strlen(suffix);
+    return n >= m && !strcasecmp(s + n - m, suffix);
+}
+
+static int read_map(sinew_ctx *ctx, sinew_image *m, const char *path)
+{
+    int st;
+    if (ends_with(path, ".npy"))
+        st = sinew_npy_read_image(ctx, m, path);
+    else if (ends_with(path, ".pfm"))
+        st = sinew_pfm_read_image(ctx, m, path);
+    else
+        return cli_error(CMD, "%s: maps are read from .npy or .pfm", path);
+    if (st)
+        return cli_status(CMD, ctx, st);
+    if (m->type != SINEW_F32 || m->channels != 1) {
+        sinew_image_free(m);
+        return cli_error(CMD, "%s: expected a 1-channel map, got %d channels", path, m->channels);
+    }
+    return 0;
+}
+
+static int read_mask(sinew_ctx *ctx, sinew_image *mask, const char *path)
+{
+    sinew_image raw;
+    int st = ends_with(path, ".npy") ? sinew_npy_read_image(ctx, &raw, path)
+                                     : sinew_image_read(ctx, &raw, path);
+    if (st)
+        return cli_status(CMD, ctx, st);
+    if (raw.channels != 1 || raw.type == SINEW_U16) {
+        sinew_image_free(&raw);
+        return cli_error(CMD, "%s: a mask must be 8-bit with one channel", path);
+    }
+    if (raw.type == SINEW_U8) {
+        *mask = raw;
+        return 0;
+    }
+    st = sinew_image_alloc(ctx, mask, raw.width, raw.height, 1, SINEW_U8);
+    if (st) {
+        sinew_image_free(&raw);
+        return cli_status(CMD, ctx, st);
+    }
+    for (int y = 0; y < raw.height; y++) {
+        const float *r = sinew_image_row_f32(&raw, y);
+        uint8_t *o = sinew_image_row_u8(mask, y);
+        for (int x = 0; x < raw.width; x++) {
+            if (!(r[x] >= 0 && r[x] <= 255) || r[x] != floorf(r[x])) {
+                sinew_image_free(&raw);
+                sinew_image_free(mask);
+                return cli_error(CMD, "%s: mask value at (%d, %d) is not an integer 0..255", path,
+                                 x, y);
+            }
+            o[x] = (uint8_t)r[x];
+        }
+    }
+    sinew_image_free(&raw);
+    return 0;
+}
+
+static int same_size(const sinew_image *a, const char *pa, const sinew_image *b, const char *pb)
+{
+    if (a->width == b->width && a->height == b->height)
+        return 0;
+    return cli_error(CMD, "%s is %dx%d but %s is %dx%d", pb, b->width, b->height, pa, a->width,
+                     a->height);
+}
+
+/* Column indices from the sidecar: {"columns": ["u0", "v0", "u1", "v1", "weight", ...]}. */
+static int read_columns(sinew_ctx *ctx, const char *path, size_t ncols, sinew_match_table *t)
+{
+    unsigned char *buf = NULL;
+    size_t len = 0;
+    int st = sinew_read_file(ctx, path, (size_t)1 << 20, &buf, &len);
+    if (st)
+        return cli_status(CMD, ctx, st);
+    cJSON *root = cJSON_ParseWithLength((const char *)buf, len);
+    sinew_ctx_dealloc(ctx, buf);
+    if (!root)
+        return cli_error(CMD, "%s: not valid JSON", path);
+    int rc = 0;
+    const cJSON *cols = cJSON_GetObjectItemCaseSensitive(root, "columns");
+    if (!cJSON_IsArray(cols)) {
+        rc = cli_error(CMD, "%s: no \"columns\" array", path);
+        goto done;
+    }
+    if ((size_t)cJSON_GetArraySize(cols) != ncols) {
+        rc = cli_error(CMD, "%s: names %d columns but the table has %zu", path,
+                       cJSON_GetArraySize(cols), ncols);
+        goto done;
+    }
+    int *slot[5] = {&t->u0, &t->v0, &t->u1, &t->v1, &t->weight};
+    static const char *const want[5] = {"u0", "v0", "u1", "v1", "weight"};
+    for (int k = 0; k < 5; k++)
+        *slot[k] = -1;
+    int i = 0;
+    const cJSON *c;
+    cJSON_ArrayForEach(c, cols)
+    {
+        if (!cJSON_IsString(c)) {
+            rc = cli_error(CMD, "%s: column %d is not a string", path, i);
+            goto done;
+        }
+        for (int k = 0; k < 5; k++)
+            if (!strcmp(c->valuestring, want[k]))
+                *slot[k] = i;
+        i++;
+    }
+    for (int k = 0; k < 4; k++)
+        if (*slot[k] < 0) {
+            rc = cli_error(CMD, "%s: no column named \"%s\"", path, want[k]);
+            goto done;
+        }
+done:
+    cJSON_Delete(root);
+    return rc;
+}
+
+static int file_exists(const char *p)
+{
+    FILE *f = fopen(p, "rb");
+    if (f)
+        fclose(f);
+    return f != NULL;
+}
+
+static int draw_matches(sinew_ctx *ctx, sinew_image *out, const opts *o)
+{
+    sinew_image tab = {0}, f0 = {0}, f1 = {0};
+    float *data = NULL;
+    int rc = 0;
+    char side[4096];
+    const char *cols = o->columns;
+    if (!cols) {
+        size_t n = strlen(o->table);
+        if (n + 6 > sizeof side)
+            return cli_error(CMD, "%s: path too long", o->table);
+        if (ends_with(o->table, ".npy")) {
+            snprintf(side, sizeof side, "%.*s.json", (int)(n - 4), o->table);
+            if (!file_exists(side))
+                snprintf(side, sizeof side, "%s.json", o->table);
+        } else {
+            snprintf(side, sizeof side, "%s.json", o->table);
+        }
+        cols = side;
+    }
+    int st = sinew_npy_read_image(ctx, &tab, o->table);
+    if (st)
+        return cli_status(CMD, ctx, st);
+    if (tab.channels != 1) {
+        rc = cli_error(CMD, "%s: expected a 2-D N x C table", o->table);
+        goto done;
+    }
+    sinew_match_table t = {0};
+    t.rows = (size_t)tab.height;
+    t.cols = (size_t)tab.width;
+    if ((rc = read_columns(ctx, cols, t.cols, &t)))
+        goto done;
+    if ((rc = read_frame(ctx, &f0, o->frame)) || (rc = read_frame(ctx, &f1, o->frame1)))
+        goto done;
+    data = sinew_ctx_alloc(ctx, t.rows * t.cols * sizeof *data);
+    if (!data) {
+        rc = cli_status(CMD, ctx, SINEW_ENOMEM);
+        goto done;
+    }
+    for (size_t r = 0; r < t.rows; r++)
+        memcpy(data + r * t.cols, sinew_image_row_f32(&tab, (int)r), t.cols * sizeof *data);
+    t.data = data;
+    st = sinew_draw_matches(ctx, out, &f0, &f1, &t, (size_t)o->count, o->legend);
+    if (st)
+        rc = cli_status(CMD, ctx, st);
+done:
+    sinew_ctx_dealloc(ctx, data);
+    sinew_image_free(&tab);
+    sinew_image_free(&f0);
+    sinew_image_free(&f1);
+    return rc;
+}
+
+static int draw_kind(sinew_ctx *ctx, const char *k, const opts *o, sinew_image *out)
+{
+    sinew_image a = {0}, b = {0}, fr = {0};
+    int rc = 0, st = 0;
+    double max = (o->given & O_MAX) ? o->max : 0;
+    if (!strcmp(k, "wheel")) {
+        st = sinew_draw_wheel(ctx, out, (int)o->size);
+    } else if (!strcmp(k, "flow")) {
+        if (!(rc = read_flow(ctx, &a, o->flow)))
+            st = sinew_draw_flow(ctx, out, &a, max, o->legend);
+    } else if (!strcmp(k, "arrows")) {
+        if (!(rc = read_flow(ctx, &a, o->flow)) && o->frame &&
+            !(rc = read_frame(ctx, &fr, o->frame)))
+            rc = same_size(&a, o->flow, &fr, o->frame);
+        if (!rc)
+            st = sinew_draw_arrows(ctx, out, o->frame ? &fr : NULL, &a, (int)o->step, o->scale,
+                                   o->legend);
+    } else if (!strcmp(k, "fb-error") || !strcmp(k, "confidence")) {
+        int conf = !strcmp(k, "confidence");
+        if (!(rc = read_map(ctx, &a, o->map)))
+            st = sinew_draw_heatmap(ctx, out, &a, 0, conf ? 1 : max,
+                                    conf ? "CONFIDENCE" : "FORWARD-BACKWARD ERROR (PX)", o->legend);
+    } else if (!strcmp(k, "epe")) {
+        if (!(rc = read_flow(ctx, &a, o->flow)) && !(rc = read_flow(ctx, &b, o->truth)) &&
+            !(rc = same_size(&a, o->flow, &b, o->truth)))
+            st = sinew_draw_epe(ctx, out, &a, &b, max, o->legend);
+    } else if (!strcmp(k, "reasons")) {
+        if (!(rc = read_mask(ctx, &a, o->mask)) && o->frame &&
+            !(rc = read_frame(ctx, &fr, o->frame)))
+            rc = same_size(&a, o->mask, &fr, o->frame);
+        if (!rc)
+            st = sinew_draw_reasons(ctx, out, o->frame ? &fr : NULL, &a, o->legend);
+    } else {
+        rc = draw_matches(ctx, out, o);
+    }
+    if (!rc && st)
+        rc = cli_status(CMD, ctx, st);
+    sinew_image_free(&a);
+    sinew_image_free(&b);
+    sinew_image_free(&fr);
+    return rc;
+}
+
+int cmd_draw(int argc, char **argv)
+{
+    enum {
+        OPT_FLOW = 256,
+        OPT_TRUTH,
+        OPT_FRAME,
+        OPT_FRAME1,
+        OPT_MAP,
+        OPT_MASK,
+        OPT_TABLE,
+        OPT_COLUMNS,
+        OPT_MAX,
+        OPT_STEP,
+        OPT_SCALE,
+        OPT_COUNT,
+        OPT_SIZE,
+        OPT_NOLEGEND,
+        OPT_THREADS
+    };
+    static const struct option longopts[] = {
+        {"flow", required_argument, NULL, OPT_FLOW},
+        {"truth", required_argument, NULL, OPT_TRUTH},
+        {"frame", required_argument, NULL, OPT_FRAME},
+        {"frame1", required_argument, NULL, OPT_FRAME1},
+        {"map", required_argument, NULL, OPT_MAP},
+        {"mask", required_argument, NULL, OPT_MASK},
+        {"table", required_argument, NULL, OPT_TABLE},
+        {"columns", required_argument, NULL, OPT_COLUMNS},
+        {"max", required_argument, NULL, OPT_MAX},
+        {"step", required_argument, NULL, OPT_STEP},
+        {"scale", required_argument, NULL, OPT_SCALE},
+        {"count", required_argument, NULL, OPT_COUNT},
+        {"size", required_argument, NULL, OPT_SIZE},
+        {"no-legend", no_argument, NULL, OPT_NOLEGEND},
+        {"threads", required_argument, NULL, OPT_THREADS},
+        {"out", required_argument, NULL, 'o'},
+        {"help", no_argument, NULL, 'h'},
+        {NULL, 0, NULL, 0},
+    };
+    opts o = {0};
+    o.step = 16;
+    o.scale = 1.0;
+    o.count = 300;
+    o.size = 256;
+    o.legend = 1;
+    optind = 1;
+    opterr = 0;
+    int c;
+    while ((c = getopt_long(argc, argv, "o:h", longopts, NULL)) != -1) {
+        const char *arg = optarg;
+        switch (c) {
+        case 'h':
+            usage();
+            return CLI_OK;
+        case 'o':
+            o.out = arg;
+            break;
+        case OPT_FLOW:
+            o.flow = arg, o.given |= O_FLOW;
+            break;
+        case OPT_TRUTH:
+            o.truth = arg, o.given |= O_TRUTH;
+            break;
+        case OPT_FRAME:
+            o.frame = arg, o.given |= O_FRAME;
+            break;
+        case OPT_FRAME1:
+            o.frame1 = arg, o.given |= O_FRAME1;
+            break;
+        case OPT_MAP:
+            o.map = arg, o.given |= O_MAP;
+            break;
+        case OPT_MASK:
+            o.mask = arg, o.given |= O_MASK;
+            break;
+        case OPT_TABLE:
+            o.table = arg, o.given |= O_TABLE;
+            break;
+        case OPT_COLUMNS:
+            o.columns = arg, o.given |= O_COLUMNS;
+            break;
+        case OPT_MAX:
+            if (cli_parse_double(arg, &o.max) || o.max <= 0)
+                return cli_usage_error(CMD, "--max wants a positive number, got '%s'", arg);
+            o.given |= O_MAX;
+            break;
+        case OPT_STEP:
+            if (cli_parse_int(arg, 2, 4096, &o.step))
+                return cli_usage_error(CMD, "--step wants an integer 2..4096, got '%s'", arg);
+            o.given |= O_STEP;
+            break;
+        case OPT_SCALE:
+            if (cli_parse_double(arg, &o.scale) || o.scale <= 0)
+                return cli_usage_error(CMD, "--scale wants a positive number, got '%s'", arg);
+            o.given |= O_SCALE;
+            break;
+        case OPT_COUNT:
+            if (cli_parse_int(arg, 1, 1000000, &o.count))
+                return cli_usage_error(CMD, "--count wants an integer 1..1000000, got '%s'", arg);
+            o.given |= O_COUNT;
+            break;
+        case OPT_SIZE:
+            if (cli_parse_int(arg, 16, 4096, &o.size))
+                return cli_usage_error(CMD, "--size wants an integer 16..4096, got '%s'", arg);
+            o.given |= O_SIZE;
+            break;
+        case OPT_NOLEGEND:
+            o.legend = 0, o.given |= O_LEGEND;
+            break;
+        case OPT_THREADS:
+            if (cli_parse_int(arg, 0, 1024, &o.threads))
+                return cli_usage_error(CMD, "--threads wants an integer 0..1024, got '%s'", arg);
+            break;
+        default:
+            return cli_usage_error(CMD, "unknown or incomplete option '%s'", argv[optind - 1]);
+        }
+    }
+    if (optind >= argc)
+        return cli_usage_error(CMD, "missing KIND (flow, arrows, fb-error, confidence, epe, "
+                                    "reasons, matches, wheel)");
+    if (optind + 1 < argc)
+        return cli_usage_error(CMD, "unexpected argument '%s'", argv[optind + 1]);
+    const char *name = argv[optind];
+    const kind *k = NULL;
+    for (size_t i = 0; i < sizeof kinds / sizeof kinds[0]; i++)
+        if (!strcmp(name, kinds[i].name))
+            k = &kinds[i];
+    if (!k)
+        return cli_usage_error(CMD, "unknown kind '%s'", name);
+    for (int b = 0; b < 14; b++) {
+        if ((k->required >> b & 1) && !(o.given >> b & 1))
+            return cli_usage_error(CMD, "'%s' needs %s", name, opt_names[b]);
+        if ((o.given >> b & 1) && !(k->allowed >> b & 1))
+            return cli_usage_error(CMD, "%s does not apply to '%s'", opt_names[b], name);
+    }
+    if (!o.out)
+        return cli_usage_error(CMD, "missing --out PICTURE.png");
+    sinew_ctx *ctx = cli_ctx(CMD, (int)o.threads);
+    if (!ctx)
+        return CLI_FAIL;
+    sinew_image pic = {0};
+    int rc = draw_kind(ctx, name, &o, &pic);
+    if (!rc) {
+        int st = sinew_image_write_png(ctx, o.out, &pic);
+        if (st)
+            rc = cli_status(CMD, ctx, st);
+    }
+    sinew_image_free(&pic);
+    sinew_ctx_free(ctx);
+    return rc;
+}

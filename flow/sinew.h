@@ -11,5 +11,6 @@
 #include "flow/lift.h"
 #include "flow/match.h"
 #include "flow/metrics.h"
+#include "flow/report.h"
 #include "flow/run.h"
 #endif

@@ -47,13 +47,16 @@ int sinew_flow_format_from_path(sinew_ctx *ctx, const char *path, sinew_flow_for
 
 /* Read a flow field; fmt = SINEW_FLOW_AUTO picks by extension. PFM accepts "PF" (the
  * third channel is ignored) and both byte orders; .npy accepts float32/float16/float64
- * (little or big endian), shape H x W x 2, C order, header versions 1.0 and 2.0.
+ * (little or big endian), shape H x W x 2, C order, header versions 1.0, 2.0 and 3.0.
  * Non-finite values other than the format's unknown code are read as unknown (NaN). */
 int sinew_flow_read(sinew_ctx *ctx, sinew_image *flow, const char *path, sinew_flow_format fmt);
 
 /* Write a flow field (SINEW_F32, 2 channels) in the given format (AUTO: by extension).
- * KITTI PNG refuses finite vectors outside the representable range [-512, 512) with
- * SINEW_EVALUE naming the file. */
+ * NaN in either component is written as the format's unknown code. Refused with
+ * SINEW_EVALUE naming the file, before anything is written: infinite components; for
+ * KITTI PNG, components whose code round(64 c + 2^15) leaves 0..65535 (c outside about
+ * [-512, 512)); for .flo, finite components above 1e9 (they would read back as unknown);
+ * for SINEW_FLOW_NPY16, |c| >= 65520 (float16 would round it to infinity). */
 int sinew_flow_write(sinew_ctx *ctx, const char *path, const sinew_image *flow,
                      sinew_flow_format fmt);
 
@@ -63,7 +66,8 @@ int sinew_flow_write(sinew_ctx *ctx, const char *path, const sinew_image *flow,
  * Writers emit format version 1.0 with '<f4' (or '<f2' when half = 1). */
 int sinew_npy_read_image(sinew_ctx *ctx, sinew_image *out, const char *path);
 int sinew_npy_write_image(sinew_ctx *ctx, const char *path, const sinew_image *img, int half);
-/* Write a 2-D float32 table (rows x cols, row-major, `data` contiguous) as .npy. */
+/* Write a 2-D float32 table (rows x cols, row-major, `data` contiguous) as .npy.
+ * rows may be 0 (an empty table, shape (0, cols)); data may then be NULL. */
 int sinew_npy_write_table(sinew_ctx *ctx, const char *path, const float *data, size_t rows,
                           size_t cols);
 /* PFM scalar ("Pf") or 3-channel ("PF") maps, e.g. float depth in metres. */

@@ -155,3 +155,51 @@ void tu_fail_each_allocation(const char *what, tu_alloc_op op, void *ud)
     }
     fail_msg("%s: never succeeded", what);
 }
+
+static void damage_check(sinew_ctx *ctx, const char *scratch, int rc, const char *what, size_t at)
+{
+    if (rc == SINEW_OK)
+        return;
+    const char *m = sinew_ctx_message(ctx);
+    if (!strstr(m, scratch) || strchr(m, '\n'))
+        fail_msg("%s at %zu: status %d with message '%s'", what, at, rc, m);
+}
+
+void tu_damage_sweep(const char *valid, const char *scratch, tu_read_op read, int mutations)
+{
+    FILE *fp = fopen(valid, "rb");
+    assert_non_null(fp);
+    unsigned char *buf = malloc(1 << 20), *cp = malloc(1 << 20);
+    assert_non_null(buf);
+    assert_non_null(cp);
+    size_t len = fread(buf, 1, 1 << 20, fp);
+    fclose(fp);
+    assert_true(len > 0 && len < (1 << 20));
+    sinew_ctx *ctx = sinew_ctx_new();
+    for (size_t cut = 0; cut < len; cut++) {
+        remove(scratch); /* a fresh file: rewriting one in place can force a flush */
+        tu_write_bytes(scratch, buf, cut);
+        int rc = read(ctx, scratch);
+        if (rc == SINEW_OK)
+            fail_msg("%s: prefix of %zu of %zu bytes was accepted", valid, cut, len);
+        damage_check(ctx, scratch, rc, "prefix", cut);
+    }
+    uint32_t seed = 12345u;
+    for (int i = 0; i < mutations; i++) {
+        memcpy(cp, buf, len);
+        seed = seed * 1664525u + 1013904223u;
+        int nbytes = 1 + (int)(seed >> 30);
+        for (int k = 0; k < nbytes; k++) {
+            seed = seed * 1664525u + 1013904223u;
+            size_t at = (size_t)(seed >> 8) % len;
+            seed = seed * 1664525u + 1013904223u;
+            cp[at] = (unsigned char)(seed >> 24);
+        }
+        remove(scratch);
+        tu_write_bytes(scratch, cp, len);
+        damage_check(ctx, scratch, read(ctx, scratch), "mutation", (size_t)i);
+    }
+    sinew_ctx_free(ctx);
+    free(buf);
+    free(cp);
+}

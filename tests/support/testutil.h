@@ -62,4 +62,13 @@ const char *tu_fixture_path(tu_fixture *f, const char *name);
 typedef int (*tu_alloc_op)(sinew_ctx *ctx, void *ud);
 void tu_fail_each_allocation(const char *what, tu_alloc_op op, void *ud);
 
+/* Damage sweep for a reader: given a valid file, write every strict prefix of it to
+ * `scratch` and check the reader refuses each one (non-zero status, a one-line message
+ * naming `scratch`), then `mutations` copies with 1-4 bytes overwritten (fixed seed) and
+ * check the reader either succeeds or fails with such a message. Under the sanitizer
+ * build this catches out-of-bounds reads and leaks on malformed input. read must free
+ * what it produced. */
+typedef int (*tu_read_op)(sinew_ctx *ctx, const char *path);
+void tu_damage_sweep(const char *valid, const char *scratch, tu_read_op read, int mutations);
+
 #endif

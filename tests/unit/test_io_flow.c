@@ -545,6 +545,33 @@ static void test_io_flow_allocation_failures(void **state)
     sinew_image_free(&fl);
 }
 
+/* ---- damaged files ---- */
+
+static int read_flow_auto(sinew_ctx *ctx, const char *path)
+{
+    sinew_image b;
+    int rc = sinew_flow_read(ctx, &b, path, SINEW_FLOW_AUTO);
+    sinew_image_free(&b);
+    return rc;
+}
+
+static void test_io_flow_damaged_files(void **state)
+{
+    tu_fixture *f = *state;
+    const char *names[] = {"ok.flo", "ok.pfm", "ok.npy", "ok.png"};
+    const char *scratch[] = {"bad.flo", "bad.pfm", "bad.npy", "bad.png"};
+    sinew_image fl;
+    make_flow(f->ctx, &fl, 5, 3);
+    for (int i = 0; i < 4; i++) {
+        char ok[700], bad[700];
+        tu_path(ok, sizeof ok, f->dir, names[i]);
+        tu_path(bad, sizeof bad, f->dir, scratch[i]);
+        assert_int_equal(sinew_flow_write(f->ctx, ok, &fl, SINEW_FLOW_AUTO), SINEW_OK);
+        tu_damage_sweep(ok, bad, read_flow_auto, 400);
+    }
+    sinew_image_free(&fl);
+}
+
 /* ---- external: Middlebury ground truth ---- */
 
 static void test_io_flow_middlebury_ground_truth(void **state)
@@ -726,6 +753,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_io_flow_malformed_pfm, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_malformed_npy, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_allocation_failures, tu_fixture_setup, tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_damaged_files, tu_fixture_setup,
+                                        tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_middlebury_ground_truth, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_numpy_loads_ours, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_we_load_numpy, tu_fixture_setup, tu_fixture_teardown),

@@ -368,6 +368,48 @@ static void test_io_image_allocation_failures(void **state)
     tu_fail_each_allocation("PGM read", image_op, &r);
 }
 
+/* ---- damaged files ---- */
+
+static int read_image(sinew_ctx *ctx, const char *path)
+{
+    sinew_image b;
+    int rc = sinew_image_read(ctx, &b, path);
+    sinew_image_free(&b);
+    return rc;
+}
+
+static void test_io_image_damaged_files(void **state)
+{
+    tu_fixture *f = *state;
+    char ok[700], bad[700];
+    tu_path(bad, sizeof bad, f->dir, "bad.img");
+    for (int bits = 8; bits <= 16; bits += 8) {
+        sinew_image a;
+        assert_int_equal(sinew_image_alloc(f->ctx, &a, 6, 5, 3, bits == 16 ? SINEW_U16 : SINEW_U8),
+                         SINEW_OK);
+        for (int y = 0; y < 5; y++)
+            for (int x = 0; x < 18; x++)
+                if (bits == 16)
+                    sinew_image_row_u16(&a, y)[x] = (uint16_t)sample(x, y, 0, 16);
+                else
+                    sinew_image_row_u8(&a, y)[x] = (uint8_t)sample(x, y, 0, 8);
+        tu_path(ok, sizeof ok, f->dir, "ok.png");
+        assert_int_equal(sinew_image_write_png(f->ctx, ok, &a), SINEW_OK);
+        tu_damage_sweep(ok, bad, read_image, 400);
+        sinew_image_free(&a);
+    }
+    unsigned char rgb[16 * 8 * 3];
+    for (size_t i = 0; i < sizeof rgb; i++)
+        rgb[i] = (unsigned char)(i * 37);
+    tu_path(ok, sizeof ok, f->dir, "ok.jpg");
+    write_jpeg(ok, rgb, 16, 8, TJPF_RGB, TJSAMP_420);
+    tu_damage_sweep(ok, bad, read_image, 400);
+    tu_path(ok, sizeof ok, f->dir, "ok.ppm");
+    static const char ppm[] = "P6\n# c\n2 2\n65535\n0123456789abcdefghijklmn";
+    tu_write_bytes(ok, ppm, sizeof ppm - 1);
+    tu_damage_sweep(ok, bad, read_image, 400);
+}
+
 /* ---- external: published frames ---- */
 
 static void test_io_image_published_frames(void **state)
@@ -481,6 +523,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_io_image_jpeg, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_pnm, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_allocation_failures, tu_fixture_setup, tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_damaged_files, tu_fixture_setup,
+                                        tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_published_frames, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_depth_png_matches_reference_decoder, tu_fixture_setup,
                                         tu_fixture_teardown),

@@ -25,6 +25,8 @@ printf 'PIEH\100\015\003\000\100\015\003\000' >"$T/huge.flo" # 200000 x 200000
 printf 'PF\n1 1\nnan\n' >"$T/nan.pfm"
 printf '\223NUMPY\001\000\020\000{"descr": "<i4"' >"$T/bad.npy"
 printf 'hello' >"$T/x.txt"
+printf 'Pf\n1 1\n-1\n\000\000\000\000' >"$T/one.pfm"
+printf '\211PNG\r\n\032\n\000\000\000\015IHDR' >"$T/cut.png"
 o="$T/out.npy"
 expect_error "truncated .flo" "$o" 'trunc\.flo: truncated' "$SINEW_BIN" convert "$T/trunc.flo" "$o"
 expect_error "wrong magic .flo" "$o" 'magic\.flo: .*bad tag' "$SINEW_BIN" convert "$T/magic.flo" "$o"
@@ -34,6 +36,8 @@ expect_error "NaN PFM scale" "$o" 'nan\.pfm: ' "$SINEW_BIN" convert "$T/nan.pfm"
 expect_error "truncated .npy header" "$o" 'bad\.npy: truncated' "$SINEW_BIN" convert "$T/bad.npy" "$o"
 expect_error "unknown input extension" "$o" 'x\.txt: unknown flow file extension' \
     "$SINEW_BIN" convert "$T/x.txt" "$o"
+expect_error "1-channel PFM" "$o" 'one\.pfm: .*not a flow field' "$SINEW_BIN" convert "$T/one.pfm" "$o"
+expect_error "truncated PNG" "$o" 'cut\.png: truncated' "$SINEW_BIN" convert "$T/cut.png" "$o"
 expect_error "missing input" "$o" 'nope\.flo: cannot open' "$SINEW_BIN" convert "$T/nope.flo" "$o"
 expect_error "no arguments" - 'expected IN and OUT' "$SINEW_BIN" convert
 expect_error "unknown option" - "unknown option '--frobnicate'" "$SINEW_BIN" convert --frobnicate a.flo b.flo

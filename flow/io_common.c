@@ -58,6 +58,22 @@ int sinew__io_expect_end(sinew_ctx *ctx, const char *path, FILE *fp, const char 
     return SINEW_OK;
 }
 
+int sinew__io_check_remaining(sinew_ctx *ctx, const char *path, FILE *fp, size_t rows,
+                              size_t rowbytes, const char *what)
+{
+    struct stat st;
+    long pos = ftell(fp);
+    if (fstat(fileno(fp), &st) != 0 || !S_ISREG(st.st_mode) || pos < 0 || st.st_size < pos)
+        return SINEW_OK;
+    uint64_t left = (uint64_t)st.st_size - (uint64_t)pos;
+    uint64_t need;
+    if (__builtin_mul_overflow((uint64_t)rows, (uint64_t)rowbytes, &need) || left < need)
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: truncated %s (file ends early)", path, what);
+    if (left > need)
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: unexpected bytes after the %s", path, what);
+    return SINEW_OK;
+}
+
 int sinew__io_token(sinew_ctx *ctx, const char *path, FILE *fp, char *buf, size_t n,
                     int comments, const char *what)
 {

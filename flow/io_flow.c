@@ -78,6 +78,9 @@ static int flo_read(sinew_ctx *ctx, const char *path, sinew_image *out)
         rc = sinew__check_dims(ctx, path, (int32_t)sinew__ld32(hdr + 4, 0),
                                (int32_t)sinew__ld32(hdr + 8, 0));
     if (!rc)
+        rc = sinew__io_check_remaining(ctx, path, fp, sinew__ld32(hdr + 8, 0),
+                                       (size_t)sinew__ld32(hdr + 4, 0) * 8, ".flo data");
+    if (!rc)
         rc = sinew_image_alloc(ctx, out, (int)sinew__ld32(hdr + 4, 0),
                                (int)sinew__ld32(hdr + 8, 0), 2, SINEW_F32);
     size_t rowbytes = rc ? 0 : (size_t)out->width * 8;

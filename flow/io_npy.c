@@ -232,6 +232,8 @@ int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow
     if (!rc)
         rc = sinew__io_bytes(ctx, path, h.shape[1], 1, c, elem, &rowbytes);
     if (!rc)
+        rc = sinew__io_check_remaining(ctx, path, fp, (size_t)h.shape[0], rowbytes, "NPY data");
+    if (!rc)
         rc = sinew_image_alloc(ctx, out, (int)h.shape[1], (int)h.shape[0], (int)c, SINEW_F32);
     unsigned char *scratch = rc ? NULL : sinew__alloc(ctx, rowbytes);
     if (!rc && !scratch)

@@ -58,6 +58,8 @@ int sinew__pfm_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow
     if (!rc)
         rc = sinew__io_bytes(ctx, path, w, 1, fc, 4, &rowbytes);
     if (!rc)
+        rc = sinew__io_check_remaining(ctx, path, fp, (size_t)h, rowbytes, "PFM data");
+    if (!rc)
         rc = sinew_image_alloc(ctx, out, (int)w, (int)h, oc, SINEW_F32);
     unsigned char *raw = rc ? NULL : sinew__alloc(ctx, rowbytes);
     float *vals = rc || !raw ? NULL : sinew__alloc(ctx, rowbytes);

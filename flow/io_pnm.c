@@ -40,6 +40,10 @@ int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *
         return sinew__fail(ctx, SINEW_EFORMAT, "%s: PNM maxval %lld outside 1..65535", path,
                            (long long)v[2]);
     int wide = v[2] > 255;
+    size_t rowbytes = (size_t)v[0] * (size_t)channels * (wide ? 2u : 1u);
+    rc = sinew__io_check_remaining(ctx, path, fp, (size_t)v[1], rowbytes, "PNM raster");
+    if (rc)
+        return rc;
     rc = sinew_image_alloc(ctx, out, (int)v[0], (int)v[1], channels,
                            wide ? SINEW_U16 : SINEW_U8);
     if (rc)
@@ -47,7 +51,7 @@ int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *
     size_t n = (size_t)out->width * (size_t)channels;
     for (int y = 0; y < out->height && !rc; y++) {
         unsigned char *row = sinew_image_row(out, y);
-        rc = sinew__io_read(ctx, path, fp, row, n * (wide ? 2 : 1), "PNM raster");
+        rc = sinew__io_read(ctx, path, fp, row, rowbytes, "PNM raster");
         if (!rc && wide) {
             uint16_t *r16 = (uint16_t *)(void *)row;
             for (size_t i = 0; i < n; i++) {

@@ -24,6 +24,14 @@ int sinew__io_read(sinew_ctx *ctx, const char *path, FILE *fp, void *buf, size_t
  * the WHAT". */
 int sinew__io_expect_end(sinew_ctx *ctx, const char *path, FILE *fp, const char *what);
 
+/* Before allocating for a raw raster of `rows` x `rowbytes` bytes that should run from
+ * the current position to the end of a regular file: compare with the file size and
+ * fail early with the same messages as the streaming reads ("truncated WHAT", "unexpected
+ * bytes after the WHAT"), so a tiny file with a large (but permitted) header never
+ * causes a large allocation. Streams that are not regular files are not checked. */
+int sinew__io_check_remaining(sinew_ctx *ctx, const char *path, FILE *fp, size_t rows,
+                              size_t rowbytes, const char *what);
+
 /* Read one whitespace-delimited header token into buf (NUL-terminated, at most n-1
  * characters) and consume exactly one whitespace character after it, as the PNM and
  * PFM headers require. With comments != 0, '#' starts a comment up to the end of line

@@ -5,6 +5,7 @@
  * ground truth (facts recorded in ../shared/data/SOURCES.md), NumPy (Debian
  * python3-numpy reading and writing .npy, including float16 rounding) and the
  * published KITTI flow PNG formula. */
+#define _POSIX_C_SOURCE 200809L
 #include "tests/support/testutil.h"
 
 #include <math.h>
@@ -506,6 +507,50 @@ static void test_io_flow_malformed_npy(void **state)
     sinew_image_free(&b);
 }
 
+/* A tiny file whose header claims a large but permitted size is refused from the file
+ * size, before the pixel buffer is allocated. */
+static void *big_alloc(void *ud, size_t n)
+{
+    size_t *maxn = ud;
+    *maxn = n > *maxn ? n : *maxn;
+    void *p = NULL;
+    return posix_memalign(&p, 64, n ? n : 1) == 0 ? p : NULL;
+}
+
+static void big_free(void *ud, void *p)
+{
+    (void)ud;
+    free(p);
+}
+
+static void test_io_flow_short_file_refused_before_allocation(void **state)
+{
+    tu_fixture *f = *state;
+    size_t maxn = 0;
+    sinew_allocator al = {big_alloc, big_free, &maxn};
+    sinew_ctx *ctx = sinew_ctx_new_with(&al);
+    char buf[160];
+    const char *p = tu_fixture_path(f, "big.flo");
+    tu_write_bytes(p, "PIEH\x00\x3e\x00\x00\x00\x3e\x00\x00", 12); /* 15872 x 15872 */
+    sinew_image b;
+    assert_int_equal(sinew_flow_read(ctx, &b, p, SINEW_FLOW_AUTO), SINEW_EFORMAT);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "truncated"));
+    int n = snprintf(buf, sizeof buf, "PF\n15872 15872\n-1\n");
+    p = tu_fixture_path(f, "big.pfm");
+    tu_write_bytes(p, buf, (size_t)n);
+    assert_int_equal(sinew_flow_read(ctx, &b, p, SINEW_FLOW_AUTO), SINEW_EFORMAT);
+    p = tu_fixture_path(f, "big.npy");
+    write_npy_raw(p, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (15872, 15872, 2), }",
+                  NULL, 0);
+    assert_int_equal(sinew_flow_read(ctx, &b, p, SINEW_FLOW_AUTO), SINEW_EFORMAT);
+    n = snprintf(buf, sizeof buf, "P6\n15872 15872\n65535\n");
+    p = tu_fixture_path(f, "big.ppm");
+    tu_write_bytes(p, buf, (size_t)n);
+    assert_int_equal(sinew_image_read(ctx, &b, p), SINEW_EFORMAT);
+    assert_true(maxn < ((size_t)1 << 20)); /* nothing near the 1-4 GB the headers claim */
+    sinew_ctx_free(ctx);
+}
+
 /* ---- allocation failures ---- */
 
 typedef struct flow_job {
@@ -752,6 +797,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_io_flow_malformed_flo, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_malformed_pfm, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_malformed_npy, tu_fixture_setup, tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_short_file_refused_before_allocation,
+                                        tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_allocation_failures, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_damaged_files, tu_fixture_setup,
                                         tu_fixture_teardown),

@@ -74,8 +74,8 @@ int sinew__io_check_remaining(sinew_ctx *ctx, const char *path, FILE *fp, size_t
     return SINEW_OK;
 }
 
-int sinew__io_token(sinew_ctx *ctx, const char *path, FILE *fp, char *buf, size_t n,
-                    int comments, const char *what)
+int sinew__io_token(sinew_ctx *ctx, const char *path, FILE *fp, char *buf, size_t n, int comments,
+                    const char *what)
 {
     int c;
     for (;;) {
@@ -126,8 +126,8 @@ int sinew__io_parse_uint(const char *s, int64_t *out)
     return 0;
 }
 
-int sinew__io_bytes(sinew_ctx *ctx, const char *path, int64_t w, int64_t h, int64_t c,
-                    size_t elem, size_t *out)
+int sinew__io_bytes(sinew_ctx *ctx, const char *path, int64_t w, int64_t h, int64_t c, size_t elem,
+                    size_t *out)
 {
     size_t a, b;
     if (w < 0 || h < 0 || c < 0 || (uint64_t)w > SIZE_MAX || (uint64_t)h > SIZE_MAX ||
@@ -229,8 +229,7 @@ uint16_t sinew__float_to_half(float f)
     return (uint16_t)(sign | hb);
 }
 
-void sinew__io_decode_floats(float *dst, const unsigned char *src, size_t n, size_t elem,
-                             int big)
+void sinew__io_decode_floats(float *dst, const unsigned char *src, size_t n, size_t elem, int big)
 {
     if (elem == 4) {
         for (size_t i = 0; i < n; i++)
@@ -258,8 +257,7 @@ void sinew__io_decode_floats(float *dst, const unsigned char *src, size_t n, siz
     }
 }
 
-void sinew__io_encode_floats(unsigned char *dst, const float *src, size_t n, size_t elem,
-                             int big)
+void sinew__io_encode_floats(unsigned char *dst, const float *src, size_t n, size_t elem, int big)
 {
     if (elem == 4) {
         for (size_t i = 0; i < n; i++)

@@ -81,8 +81,8 @@ static int flo_read(sinew_ctx *ctx, const char *path, sinew_image *out)
         rc = sinew__io_check_remaining(ctx, path, fp, sinew__ld32(hdr + 8, 0),
                                        (size_t)sinew__ld32(hdr + 4, 0) * 8, ".flo data");
     if (!rc)
-        rc = sinew_image_alloc(ctx, out, (int)sinew__ld32(hdr + 4, 0),
-                               (int)sinew__ld32(hdr + 8, 0), 2, SINEW_F32);
+        rc = sinew_image_alloc(ctx, out, (int)sinew__ld32(hdr + 4, 0), (int)sinew__ld32(hdr + 8, 0),
+                               2, SINEW_F32);
     size_t rowbytes = rc ? 0 : (size_t)out->width * 8;
     unsigned char *raw = rc ? NULL : sinew__alloc(ctx, rowbytes);
     if (!rc && !raw)
@@ -90,8 +90,7 @@ static int flo_read(sinew_ctx *ctx, const char *path, sinew_image *out)
     for (int y = 0; !rc && y < out->height; y++) {
         rc = sinew__io_read(ctx, path, fp, raw, rowbytes, ".flo data");
         if (!rc)
-            sinew__io_decode_floats(sinew_image_row_f32(out, y), raw, (size_t)out->width * 2, 4,
-                                    0);
+            sinew__io_decode_floats(sinew_image_row_f32(out, y), raw, (size_t)out->width * 2, 4, 0);
     }
     if (!rc)
         rc = sinew__io_expect_end(ctx, path, fp, ".flo data");
@@ -130,8 +129,8 @@ static int flo_write(sinew_ctx *ctx, const char *path, const sinew_image *flow)
     sinew__stf32(hdr, FLO_TAG, 0);
     sinew__st32(hdr + 4, (uint32_t)flow->width, 0);
     sinew__st32(hdr + 8, (uint32_t)flow->height, 0);
-    return sinew__io_write_rows(ctx, path, hdr, 12, (size_t)flow->height,
-                                (size_t)flow->width * 8, flo_row, (void *)flow);
+    return sinew__io_write_rows(ctx, path, hdr, 12, (size_t)flow->height, (size_t)flow->width * 8,
+                                flo_row, (void *)flow);
 }
 
 /* ---- KITTI 16-bit PNG ---- */
@@ -213,12 +212,21 @@ int sinew_flow_read(sinew_ctx *ctx, sinew_image *flow, const char *path, sinew_f
     if (rc)
         return rc;
     switch (fmt) {
-    case SINEW_FLOW_FLO: rc = flo_read(ctx, path, flow); break;
-    case SINEW_FLOW_KITTI: rc = kitti_read(ctx, path, flow); break;
-    case SINEW_FLOW_PFM: rc = sinew__pfm_read(ctx, path, flow, 1); break;
+    case SINEW_FLOW_FLO:
+        rc = flo_read(ctx, path, flow);
+        break;
+    case SINEW_FLOW_KITTI:
+        rc = kitti_read(ctx, path, flow);
+        break;
+    case SINEW_FLOW_PFM:
+        rc = sinew__pfm_read(ctx, path, flow, 1);
+        break;
     case SINEW_FLOW_NPY:
-    case SINEW_FLOW_NPY16: rc = sinew__npy_read(ctx, path, flow, 1); break;
-    default: return sinew__fail(ctx, SINEW_EINVAL, "%s: unknown flow format %d", path, (int)fmt);
+    case SINEW_FLOW_NPY16:
+        rc = sinew__npy_read(ctx, path, flow, 1);
+        break;
+    default:
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: unknown flow format %d", path, (int)fmt);
     }
     if (rc) {
         sinew_image_free(flow);
@@ -248,17 +256,22 @@ int sinew_flow_write(sinew_ctx *ctx, const char *path, const sinew_image *flow,
         const float *r = sinew_image_row_f32(flow, y);
         for (int x = 0; x < 2 * flow->width; x++)
             if (isinf(r[x]) || fabsf(r[x]) >= lim)
-                return sinew__fail(ctx, SINEW_EVALUE,
-                                   "%s: flow value %g at (%d, %d) cannot be stored%s", path,
-                                   (double)r[x], x / 2, y,
-                                   fmt == SINEW_FLOW_NPY16 ? " as float16" : "");
+                return sinew__fail(
+                    ctx, SINEW_EVALUE, "%s: flow value %g at (%d, %d) cannot be stored%s", path,
+                    (double)r[x], x / 2, y, fmt == SINEW_FLOW_NPY16 ? " as float16" : "");
     }
     switch (fmt) {
-    case SINEW_FLOW_FLO: return flo_write(ctx, path, flow);
-    case SINEW_FLOW_KITTI: return kitti_write(ctx, path, flow);
-    case SINEW_FLOW_PFM: return sinew__pfm_write(ctx, path, flow, 1);
-    case SINEW_FLOW_NPY: return sinew_npy_write_image(ctx, path, flow, 0);
-    case SINEW_FLOW_NPY16: return sinew_npy_write_image(ctx, path, flow, 1);
-    default: return sinew__fail(ctx, SINEW_EINVAL, "%s: unknown flow format %d", path, (int)fmt);
+    case SINEW_FLOW_FLO:
+        return flo_write(ctx, path, flow);
+    case SINEW_FLOW_KITTI:
+        return kitti_write(ctx, path, flow);
+    case SINEW_FLOW_PFM:
+        return sinew__pfm_write(ctx, path, flow, 1);
+    case SINEW_FLOW_NPY:
+        return sinew_npy_write_image(ctx, path, flow, 0);
+    case SINEW_FLOW_NPY16:
+        return sinew_npy_write_image(ctx, path, flow, 1);
+    default:
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: unknown flow format %d", path, (int)fmt);
     }
 }

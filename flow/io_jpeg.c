@@ -25,13 +25,12 @@ static size_t max_jpeg_bytes(sinew_ctx *ctx)
     return (size_t)px * 16 + ((size_t)1 << 20);
 }
 
-static int decode(sinew_ctx *ctx, const char *path, tjhandle tj, unsigned char *buf,
-                  size_t len, sinew_image *out)
+static int decode(sinew_ctx *ctx, const char *path, tjhandle tj, unsigned char *buf, size_t len,
+                  sinew_image *out)
 {
     int w = 0, h = 0, subsamp = -1, cs = -1;
     if (tjDecompressHeader3(tj, buf, (unsigned long)len, &w, &h, &subsamp, &cs) != 0)
-        return sinew__fail(ctx, SINEW_EFORMAT, "%s: bad JPEG header: %s", path,
-                           tjGetErrorStr2(tj));
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: bad JPEG header: %s", path, tjGetErrorStr2(tj));
     if (w < 1 || h < 1 || cs < 0)
         return sinew__fail(ctx, SINEW_EFORMAT, "%s: truncated or bad JPEG header", path);
     int rc = sinew__check_dims(ctx, path, w, h);

@@ -36,8 +36,8 @@ typedef struct cursor {
 
 static void skip_ws(cursor *c)
 {
-    while (c->i < c->n && (c->s[c->i] == ' ' || c->s[c->i] == '\t' || c->s[c->i] == '\n' ||
-                           c->s[c->i] == '\r'))
+    while (c->i < c->n &&
+           (c->s[c->i] == ' ' || c->s[c->i] == '\t' || c->s[c->i] == '\n' || c->s[c->i] == '\r'))
         c->i++;
 }
 

@@ -111,8 +111,8 @@ int sinew__pfm_write(sinew_ctx *ctx, const char *path, const sinew_image *img, i
     char head[64];
     int n = snprintf(head, sizeof head, "%s\n%d %d\n-1\n", pr.fc == 3 ? "PF" : "Pf", img->width,
                      img->height);
-    return sinew__io_write_rows(ctx, path, head, (size_t)n, (size_t)img->height, rowbytes,
-                                pfm_row, &pr);
+    return sinew__io_write_rows(ctx, path, head, (size_t)n, (size_t)img->height, rowbytes, pfm_row,
+                                &pr);
 }
 
 int sinew_pfm_read_image(sinew_ctx *ctx, sinew_image *out, const char *path)

@@ -101,8 +101,8 @@ static int png_status(const png_io *io, int writing)
 
 static int read_impl(png_io *io, sinew_image *out)
 {
-    png_structp png = png_create_read_struct_2(PNG_LIBPNG_VER_STRING, io, on_error, on_warning,
-                                               io, on_alloc, on_free);
+    png_structp png = png_create_read_struct_2(PNG_LIBPNG_VER_STRING, io, on_error, on_warning, io,
+                                               on_alloc, on_free);
     if (!png)
         return sinew__fail(io->ctx, SINEW_ENOMEM, "%s: out of memory reading PNG", io->path);
     png_infop info = png_create_info_struct(png);
@@ -166,8 +166,8 @@ int sinew__png_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *
 
 static int write_impl(png_io *io, const sinew_image *img)
 {
-    png_structp png = png_create_write_struct_2(PNG_LIBPNG_VER_STRING, io, on_error, on_warning,
-                                                io, on_alloc, on_free);
+    png_structp png = png_create_write_struct_2(PNG_LIBPNG_VER_STRING, io, on_error, on_warning, io,
+                                                on_alloc, on_free);
     if (!png)
         return sinew__fail(io->ctx, SINEW_ENOMEM, "%s: out of memory writing PNG", io->path);
     png_infop info = png_create_info_struct(png);

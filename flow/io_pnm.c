@@ -22,8 +22,8 @@ int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *
         return rc;
     int channels = !strcmp(tok, "P5") ? 1 : !strcmp(tok, "P6") ? 3 : 0;
     if (!channels)
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: only binary PGM/PPM (P5/P6) are supported", path);
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: only binary PGM/PPM (P5/P6) are supported",
+                           path);
     int64_t v[3];
     for (int i = 0; i < 3; i++) {
         rc = sinew__io_token(ctx, path, fp, tok, sizeof tok, 1, "PNM header");
@@ -44,8 +44,7 @@ int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *
     rc = sinew__io_check_remaining(ctx, path, fp, (size_t)v[1], rowbytes, "PNM raster");
     if (rc)
         return rc;
-    rc = sinew_image_alloc(ctx, out, (int)v[0], (int)v[1], channels,
-                           wide ? SINEW_U16 : SINEW_U8);
+    rc = sinew_image_alloc(ctx, out, (int)v[0], (int)v[1], channels, wide ? SINEW_U16 : SINEW_U8);
     if (rc)
         return rc;
     size_t n = (size_t)out->width * (size_t)channels;
@@ -94,9 +93,9 @@ int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path)
     else if (got >= 2 && sig[0] == 'P' && sig[1] >= '1' && sig[1] <= '7')
         rc = sinew__pnm_read_fp(ctx, path, fp, out);
     else
-        rc = sinew__fail(ctx, SINEW_EFORMAT,
-                         "%s: not a PNG, JPEG or binary PGM/PPM image (unrecognised content)",
-                         path);
+        rc =
+            sinew__fail(ctx, SINEW_EFORMAT,
+                        "%s: not a PNG, JPEG or binary PGM/PPM image (unrecognised content)", path);
     fclose(fp);
     return rc;
 }

@@ -48,9 +48,14 @@ int cmd_convert(int argc, char **argv)
     optind = 1;
     while ((c = getopt_long(argc, argv, "+h", opts, NULL)) != -1) {
         switch (c) {
-        case 'H': half = 1; break;
-        case 'h': usage(stdout); return CLI_OK;
-        default: return cli_usage_error("convert", "unknown option '%s'", argv[optind - 1]);
+        case 'H':
+            half = 1;
+            break;
+        case 'h':
+            usage(stdout);
+            return CLI_OK;
+        default:
+            return cli_usage_error("convert", "unknown option '%s'", argv[optind - 1]);
         }
     }
     if (argc - optind != 2)

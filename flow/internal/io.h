@@ -36,15 +36,15 @@ int sinew__io_check_remaining(sinew_ctx *ctx, const char *path, FILE *fp, size_t
  * characters) and consume exactly one whitespace character after it, as the PNM and
  * PFM headers require. With comments != 0, '#' starts a comment up to the end of line
  * (allowed between tokens only). EFORMAT on end of file or an over-long token. */
-int sinew__io_token(sinew_ctx *ctx, const char *path, FILE *fp, char *buf, size_t n,
-                    int comments, const char *what);
+int sinew__io_token(sinew_ctx *ctx, const char *path, FILE *fp, char *buf, size_t n, int comments,
+                    const char *what);
 
 /* Parse a non-negative decimal integer of at most 18 digits (no sign, no spaces). */
 int sinew__io_parse_uint(const char *s, int64_t *out);
 
 /* Bytes of a w x h x c element image of `elem` bytes per element, overflow-checked. */
-int sinew__io_bytes(sinew_ctx *ctx, const char *path, int64_t w, int64_t h, int64_t c,
-                    size_t elem, size_t *out);
+int sinew__io_bytes(sinew_ctx *ctx, const char *path, int64_t w, int64_t h, int64_t c, size_t elem,
+                    size_t *out);
 
 /* Fill one output row (rowbytes bytes) for sinew__io_write_rows. */
 typedef void (*sinew__row_fn)(void *ud, size_t row, unsigned char *out);

@@ -13,7 +13,6 @@
 #include <stdlib.h>
 #include <string.h>
 
-
 /* A w x h flow with a deterministic pattern and unknown vectors at x == y. */
 static void make_flow(sinew_ctx *ctx, sinew_image *fl, int w, int h)
 {
@@ -122,7 +121,8 @@ static void test_io_flow_writers_refuse_bad_values(void **state)
     sinew_image_row_f32(&a, 1)[2] = 70000.0f; /* beyond float16 */
     assert_int_equal(sinew_flow_write(f->ctx, tu_fixture_path(f, "j.npy"), &a, SINEW_FLOW_NPY16),
                      SINEW_EVALUE);
-    assert_int_equal(sinew_flow_write(f->ctx, tu_fixture_path(f, "j.npy"), &a, SINEW_FLOW_NPY), SINEW_OK);
+    assert_int_equal(sinew_flow_write(f->ctx, tu_fixture_path(f, "j.npy"), &a, SINEW_FLOW_NPY),
+                     SINEW_OK);
     sinew_image bad;
     assert_int_equal(sinew_image_alloc(f->ctx, &bad, 2, 2, 3, SINEW_F32), SINEW_OK);
     assert_int_equal(sinew_flow_write(f->ctx, tu_fixture_path(f, "k.flo"), &bad, SINEW_FLOW_AUTO),
@@ -167,8 +167,7 @@ static void test_io_flow_kitti_formula(void **state)
     sinew_image a;
     assert_int_equal(sinew_image_alloc(f->ctx, &a, 4, 2, 2, SINEW_F32), SINEW_OK);
     float *r0 = sinew_image_row_f32(&a, 0), *r1 = sinew_image_row_f32(&a, 1);
-    const float vals[8] = {0.0f, -512.0f, 511.984375f, 1.0f / 128.0f,
-                           -3.3f, 7.77f, 0.01f, -0.01f};
+    const float vals[8] = {0.0f, -512.0f, 511.984375f, 1.0f / 128.0f, -3.3f, 7.77f, 0.01f, -0.01f};
     memcpy(r0, vals, sizeof vals);
     r1[0] = NAN; /* unknown */
     r1[1] = 5.0f;
@@ -201,9 +200,9 @@ static void test_io_flow_kitti_formula(void **state)
             }
         }
     }
-    assert_int_equal(sinew_image_row_u16(&png, 0)[0], 32768);    /* 0 px */
-    assert_int_equal(sinew_image_row_u16(&png, 0)[1], 0);        /* -512 px */
-    assert_int_equal(sinew_image_row_u16(&png, 0)[3], 65535);    /* 511.984375 px */
+    assert_int_equal(sinew_image_row_u16(&png, 0)[0], 32768); /* 0 px */
+    assert_int_equal(sinew_image_row_u16(&png, 0)[1], 0);     /* -512 px */
+    assert_int_equal(sinew_image_row_u16(&png, 0)[3], 65535); /* 511.984375 px */
     sinew_image b;
     assert_int_equal(sinew_flow_read(f->ctx, &b, p, SINEW_FLOW_AUTO), SINEW_OK);
     float *b1 = sinew_image_row_f32(&b, 1);
@@ -339,8 +338,9 @@ static void test_io_flow_npy_image_and_table(void **state)
     /* float16 image round trip of values exactly representable in half */
     assert_int_equal(sinew_image_alloc(f->ctx, &d, 4, 1, 4, SINEW_F32), SINEW_OK);
     float *r = sinew_image_row_f32(&d, 0);
-    const float hv[16] = {0.0f, -0.0f, 1.0f, -2.5f, 65504.0f, 0x1p-24f, 0x1p-14f, 768.5f,
-                          NAN, INFINITY, -INFINITY, 0.333251953125f, 3.0f, 4.0f, 5.0f, 6.0f};
+    const float hv[16] = {0.0f,     -0.0f,  1.0f, -2.5f,    65504.0f,  0x1p-24f,
+                          0x1p-14f, 768.5f, NAN,  INFINITY, -INFINITY, 0.333251953125f,
+                          3.0f,     4.0f,   5.0f, 6.0f};
     memcpy(r, hv, sizeof hv);
     assert_int_equal(sinew_npy_write_image(f->ctx, p, &d, 1), SINEW_OK);
     assert_int_equal(sinew_npy_read_image(f->ctx, &b, p), SINEW_OK);
@@ -390,8 +390,8 @@ static void test_io_flow_malformed_flo(void **state)
     expect_read_error(f, "dir.flo", NULL, 0, SINEW_EFORMAT, "empty");
     sinew_image b;
     assert_int_equal(sinew_flow_read(f->ctx, &b, f->dir, SINEW_FLOW_FLO), SINEW_EIO);
-    assert_int_equal(sinew_flow_read(f->ctx, &b, tu_fixture_path(f, "missing.flo"), SINEW_FLOW_AUTO),
-                     SINEW_EIO);
+    assert_int_equal(
+        sinew_flow_read(f->ctx, &b, tu_fixture_path(f, "missing.flo"), SINEW_FLOW_AUTO), SINEW_EIO);
     assert_non_null(strstr(sinew_ctx_message(f->ctx), "missing.flo"));
 }
 
@@ -478,11 +478,11 @@ static void test_io_flow_malformed_npy(void **state)
          SINEW_ELIMIT, "200000x200000"},
         {"{'descr': '<f4', 'fortran_order': False, 'shape': (-1, 1, 2), }", 8, SINEW_EFORMAT,
          "malformed"},
-        {"{'descr': '<f4', 'fortran_order': False, 'shape': (1, 1, 2), 'x': 1}", 8,
-         SINEW_EFORMAT, "malformed"},
+        {"{'descr': '<f4', 'fortran_order': False, 'shape': (1, 1, 2), 'x': 1}", 8, SINEW_EFORMAT,
+         "malformed"},
         {"{'descr': '<f4', 'shape': (1, 1, 2), }", 8, SINEW_EFORMAT, "malformed"},
-        {"{'descr': '<f4', 'fortran_order': False, 'shape': (1, 1, 2), } junk", 8,
-         SINEW_EFORMAT, "malformed"},
+        {"{'descr': '<f4', 'fortran_order': False, 'shape': (1, 1, 2), } junk", 8, SINEW_EFORMAT,
+         "malformed"},
         {"{'descr': '<f4', 'fortran_order': False, 'shape': (1, 1, 2)", 8, SINEW_EFORMAT,
          "malformed"},
         {"{'descr': '<f4', 'fortran_order': False, 'shape': (9999999999999999999, 1, 2), }", 8,
@@ -499,8 +499,8 @@ static void test_io_flow_malformed_npy(void **state)
     }
     /* version 2.0 header written by hand, big-endian float64 */
     const unsigned char be8[16] = {0x3f, 0xf0, 0, 0, 0, 0, 0, 0, 0xc0, 0x04, 0, 0, 0, 0, 0, 0};
-    write_npy_raw(p, 2, "{\"descr\": \">f8\", \"fortran_order\": False, \"shape\": (1, 1, 2)}",
-                  be8, 16);
+    write_npy_raw(p, 2, "{\"descr\": \">f8\", \"fortran_order\": False, \"shape\": (1, 1, 2)}", be8,
+                  16);
     sinew_image b;
     assert_int_equal(sinew_flow_read(f->ctx, &b, p, SINEW_FLOW_AUTO), SINEW_OK);
     assert_true(sinew_image_row_f32(&b, 0)[0] == 1.0f && sinew_image_row_f32(&b, 0)[1] == -2.5f);
@@ -632,10 +632,10 @@ static void test_io_flow_middlebury_ground_truth(void **state)
         long unknown;
         double maxmag;
     } gt[] = {
-        {"Dimetrodon", 584, 388, 10772, 4.7},  {"Grove2", 640, 480, 0, 5.0},
-        {"Grove3", 640, 480, 0, 18.6},         {"Hydrangea", 584, 388, 14880, 11.1},
-        {"RubberWhale", 584, 388, 3622, 4.6},  {"Urban2", 640, 480, 0, 22.2},
-        {"Urban3", 640, 480, 0, 17.6},         {"Venus", 420, 380, 0, 9.4},
+        {"Dimetrodon", 584, 388, 10772, 4.7}, {"Grove2", 640, 480, 0, 5.0},
+        {"Grove3", 640, 480, 0, 18.6},        {"Hydrangea", 584, 388, 14880, 11.1},
+        {"RubberWhale", 584, 388, 3622, 4.6}, {"Urban2", 640, 480, 0, 22.2},
+        {"Urban3", 640, 480, 0, 17.6},        {"Venus", 420, 380, 0, 9.4},
     };
     for (size_t i = 0; i < sizeof gt / sizeof gt[0]; i++) {
         char rel[128], p[700];
@@ -662,8 +662,8 @@ static void test_io_flow_middlebury_ground_truth(void **state)
             }
         }
         if (unknown != gt[i].unknown || fabs(maxmag - gt[i].maxmag) > 0.05)
-            fail_msg("%s: unknown %ld (want %ld), max |flow| %.3f (want %.1f)", gt[i].seq,
-                     unknown, gt[i].unknown, maxmag, gt[i].maxmag);
+            fail_msg("%s: unknown %ld (want %ld), max |flow| %.3f (want %.1f)", gt[i].seq, unknown,
+                     gt[i].unknown, maxmag, gt[i].maxmag);
         if (!strcmp(gt[i].seq, "Venus"))
             assert_true(maxv == 0.0); /* SOURCES.md: "Venus has v == 0" */
         sinew_image_free(&fl);
@@ -698,11 +698,13 @@ static void test_io_flow_numpy_loads_ours(void **state)
     make_flow(f->ctx, &a, 13, 7);
     /* Hard float16 cases in row 6: ties, subnormals and their rounding, overflow edge. */
     float *r = sinew_image_row_f32(&a, 6);
-    const float hard[26] = {1.00048828125f, 1.00146484375f, 2049.0f, 2051.0f, 65519.0f,
-                            -65519.99f, 0x1p-25f, 0x1.8p-25f, 0x1p-26f, 0x1.0p-24f * 1.5f,
-                            0x1.004p-15f, 3e-8f, -6.1e-5f, 6.097555e-5f, 0.1f, -0.0f,
-                            1e-10f, 65504.0f, 1.0009765625f, 0x1.ffcp-15f, 0.33333334f,
-                            -2.0009765625f, 8.0f, 12345.678f, 4096.5f, 0x1.002p0f};
+    const float hard[26] = {1.00048828125f, 1.00146484375f,    2049.0f,       2051.0f,
+                            65519.0f,       -65519.99f,        0x1p-25f,      0x1.8p-25f,
+                            0x1p-26f,       0x1.0p-24f * 1.5f, 0x1.004p-15f,  3e-8f,
+                            -6.1e-5f,       6.097555e-5f,      0.1f,          -0.0f,
+                            1e-10f,         65504.0f,          1.0009765625f, 0x1.ffcp-15f,
+                            0.33333334f,    -2.0009765625f,    8.0f,          12345.678f,
+                            4096.5f,        0x1.002p0f};
     memcpy(r, hard, sizeof hard);
     char p32[700], p16[700], script[700];
     tu_path(p32, sizeof p32, f->dir, "ours32.npy");
@@ -787,24 +789,38 @@ static void test_io_flow_we_load_numpy(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test_setup_teardown(test_io_flow_roundtrip_exact, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_flo_layout, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_writers_refuse_bad_values, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_extension_dispatch, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_kitti_formula, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_pfm_layout, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_npy_image_and_table, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_malformed_flo, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_malformed_pfm, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_malformed_npy, tu_fixture_setup, tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_roundtrip_exact, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_flo_layout, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_writers_refuse_bad_values, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_extension_dispatch, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_kitti_formula, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_pfm_layout, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_npy_image_and_table, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_malformed_flo, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_malformed_pfm, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_malformed_npy, tu_fixture_setup,
+                                        tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_short_file_refused_before_allocation,
                                         tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_allocation_failures, tu_fixture_setup, tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_allocation_failures, tu_fixture_setup,
+                                        tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_damaged_files, tu_fixture_setup,
                                         tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_middlebury_ground_truth, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_numpy_loads_ours, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_flow_we_load_numpy, tu_fixture_setup, tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_middlebury_ground_truth, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_numpy_loads_ours, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_we_load_numpy, tu_fixture_setup,
+                                        tu_fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -13,7 +13,6 @@
 #include <string.h>
 #include <turbojpeg.h>
 
-
 static unsigned sample(int x, int y, int c, int bits)
 {
     unsigned v = (unsigned)(x * 7919 + y * 104729 + c * 13 + 5);
@@ -51,7 +50,8 @@ static void test_io_image_png_roundtrip(void **state)
         }
     sinew_image bad;
     assert_int_equal(sinew_image_alloc(f->ctx, &bad, 2, 2, 2, SINEW_F32), SINEW_OK);
-    assert_int_equal(sinew_image_write_png(f->ctx, tu_fixture_path(f, "f.png"), &bad), SINEW_EINVAL);
+    assert_int_equal(sinew_image_write_png(f->ctx, tu_fixture_path(f, "f.png"), &bad),
+                     SINEW_EINVAL);
     assert_false(tu_file_exists(f->p));
     sinew_image_free(&bad);
 }
@@ -70,8 +70,8 @@ static void write_png_raw(const char *path, int w, int h, int bits, int ctype, i
         fail_msg("libpng could not write the fixture");
     png_init_io(png, fp);
     png_set_IHDR(png, info, (png_uint_32)w, (png_uint_32)h, bits, ctype,
-                 interlace ? PNG_INTERLACE_ADAM7 : PNG_INTERLACE_NONE,
-                 PNG_COMPRESSION_TYPE_DEFAULT, PNG_FILTER_TYPE_DEFAULT);
+                 interlace ? PNG_INTERLACE_ADAM7 : PNG_INTERLACE_NONE, PNG_COMPRESSION_TYPE_DEFAULT,
+                 PNG_FILTER_TYPE_DEFAULT);
     if (pal)
         png_set_PLTE(png, info, pal, npal);
     if (trans)
@@ -105,8 +105,8 @@ static void test_io_image_png_variants(void **state)
     write_png_raw(p, 3, 2, 8, PNG_COLOR_TYPE_PALETTE, 0, idx, 3, pal, 3, tr, 2);
     assert_int_equal(sinew_image_read(f->ctx, &b, p), SINEW_OK);
     assert_int_equal(b.channels, 4);
-    assert_memory_equal(sinew_image_row_u8(&b, 0), "\x0a\x14\x1e\x00\xc8\x64\x00\x80\x01\x02\x03\xff",
-                        12);
+    assert_memory_equal(sinew_image_row_u8(&b, 0),
+                        "\x0a\x14\x1e\x00\xc8\x64\x00\x80\x01\x02\x03\xff", 12);
     sinew_image_free(&b);
     /* 1-bit and 2-bit gray expand to 8 bits (scaled to 0..255 by the PNG rules) */
     const unsigned char g1[2] = {0xa5, 0x80}; /* 1010 0101 1 */
@@ -287,7 +287,8 @@ static void test_io_image_pnm(void **state)
     tu_fixture *f = *state;
     sinew_image b;
     const char *p = tu_fixture_path(f, "a.pgm");
-    static const char p5[] = "P5\n# made by hand\n3 2 # width height\n255\n\x01\x02\x03\x04\x05\xff";
+    static const char p5[] =
+        "P5\n# made by hand\n3 2 # width height\n255\n\x01\x02\x03\x04\x05\xff";
     tu_write_bytes(p, p5, sizeof p5 - 1);
     assert_int_equal(sinew_image_read(f->ctx, &b, p), SINEW_OK);
     assert_int_equal(b.channels, 1);
@@ -469,7 +470,8 @@ static void test_io_image_depth_png_matches_reference_decoder(void **state)
         "    if t == b'IHDR': w, h, bd, ct, _, _, il = struct.unpack('>IIBBBBB', c)\n"
         "    elif t == b'IDAT': idat += c\n"
         "assert bd == 16 and ct == 0 and il == 0\n"
-        "raw = np.frombuffer(zlib.decompress(idat), np.uint8).reshape(h, 1 + 2 * w).astype(np.int32)\n"
+        "raw = np.frombuffer(zlib.decompress(idat), np.uint8).reshape(h, 1 + 2 * "
+        "w).astype(np.int32)\n"
         "out = np.zeros((h, 2 * w), np.int32); prev = np.zeros(2 * w, np.int32); bpp = 2\n"
         "for y in range(h):\n"
         "    ft = raw[y, 0]; line = raw[y, 1:].copy()\n"
@@ -517,17 +519,22 @@ static void test_io_image_depth_png_matches_reference_decoder(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test_setup_teardown(test_io_image_png_roundtrip, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_image_png_variants, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_image_malformed_png, tu_fixture_setup, tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_png_roundtrip, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_png_variants, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_malformed_png, tu_fixture_setup,
+                                        tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_jpeg, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_pnm, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_image_allocation_failures, tu_fixture_setup, tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_allocation_failures, tu_fixture_setup,
+                                        tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_damaged_files, tu_fixture_setup,
                                         tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_image_published_frames, tu_fixture_setup, tu_fixture_teardown),
-        cmocka_unit_test_setup_teardown(test_io_image_depth_png_matches_reference_decoder, tu_fixture_setup,
+        cmocka_unit_test_setup_teardown(test_io_image_published_frames, tu_fixture_setup,
                                         tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_depth_png_matches_reference_decoder,
+                                        tu_fixture_setup, tu_fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

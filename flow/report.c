@@ -986,6 +986,23 @@ static int build(report *r, sbuf *page)
             pick[j] = n <= want ? j : (size_t)((double)j * (double)n / (double)want);
     }
     double fmax = r->o.flow_max;
+    if (!(fmax > 0)) { /* the run's maximum from the stats, if every pair reports one */
+        fmax = 0;
+        size_t with = 0;
+        for (size_t i = 0; i < n; i++) {
+            const pair_info *q = &r->pairs[i];
+            double m = cJSON_IsObject(q->stats) ? json_num(q->stats, "flow_max") : NAN;
+            if (isfinite(m) && m >= 0) {
+                with++;
+                fmax = m > fmax ? m : fmax;
+            } else if (q->status && !strcmp(q->status, "done")) {
+                with = 0; /* a done pair without it: fall back to reading the flows */
+                break;
+            }
+        }
+        if (!with)
+            fmax = 0;
+    }
     if (!(fmax > 0)) {
         fmax = 0;
         char path[4096];

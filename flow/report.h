@@ -21,7 +21,8 @@ typedef struct sinew_report_options {
     int max_thumb_pairs; /* pairs shown with pictures, evenly spaced over the run, 0..100000
                             (default 40); the others appear in the table and plots only */
     double flow_max;     /* wheel radius (px) for the flow thumbnails; <= 0: the largest
-                            known magnitude over the pictured pairs (default 0) */
+                            stats.flow_max of the run when every done pair has one, else
+                            the largest known magnitude over the pictured pairs (default 0) */
     const char *title;   /* page title; NULL: "sinew run report" */
 } sinew_report_options;
 

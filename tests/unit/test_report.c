@@ -175,6 +175,19 @@ static void test_report_small_run(void **state)
     assert_non_null(strstr(s, ">0.750<")); /* derived kept fraction */
     assert_non_null(strstr(s, ">0.500<")); /* mean confidence of x/15, x = 0..15 */
     assert_null(strstr(s, "src=\"http"));
+    /* Flow thumbnails share one wheel radius: the largest known magnitude of the pictured
+     * flow, here |(-8, -6)| / 4 = 2.5 px at pixel (0, 0). */
+    assert_non_null(strstr(s, "wheel radius 2.5 px"));
+    free(s);
+    /* With stats.flow_max on every done pair, that is the run's radius. */
+    char man[512];
+    tu_path(man, sizeof man, dir, "manifest.json");
+    const char *m2 = "{\"pairs\": [{\"pair\": \"000000-000001\", \"status\": \"done\", "
+                     "\"stats\": {\"flow_max\": 7.25}}]}";
+    tu_write_bytes(man, m2, strlen(m2));
+    assert_int_equal(sinew_report_write(ctx, dir, out, NULL), SINEW_OK);
+    s = read_text(out);
+    assert_non_null(strstr(s, "wheel radius 7.25 px"));
     free(s);
     sinew_ctx_free(ctx);
     tu_rmtree(dir);

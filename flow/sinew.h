@@ -13,4 +13,6 @@
 #include "flow/metrics.h"
 #include "flow/report.h"
 #include "flow/run.h"
+#include "flow/sequence.h"
+#include "flow/synth.h"
 #endif

@@ -1,0 +1,768 @@
+/* SPDX-License-Identifier: MIT */
+/* sequence.json reader and writer (schema in flow/sequence.h and docs/formats.md).
+ *
+ * The reader walks the cJSON tree with one small checker per value kind; each knows the
+ * dotted key path ("frames[3].depth") so every message names the offending key. Every
+ * object is checked for unknown and duplicate keys before its fields are read. The
+ * same validation runs before writing, so whatever the writer emits the reader takes.
+ * cJSON allocates with its own (malloc) hooks; we never change them because they are
+ * process-wide. Everything the sequence keeps is allocated through the context. */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <cjson/cJSON.h>
+
+#include "flow/internal/base.h"
+#include "flow/sequence.h"
+
+#define MAX_JSON_BYTES ((size_t)256 << 20)
+#define MAX_IMAGE_DIM (1 << 20)
+
+/* ---- memory ---- */
+
+static char *dup_str(sinew_ctx *ctx, const char *s)
+{
+    if (!s)
+        return NULL;
+    size_t n = strlen(s) + 1;
+    char *d = sinew__alloc(ctx, n);
+    if (d)
+        memcpy(d, s, n);
+    return d;
+}
+
+/* Copy an optional string into *dst (freeing the old one). */
+static int set_str(sinew_ctx *ctx, char **dst, const char *s)
+{
+    char *d = NULL;
+    if (s && !(d = dup_str(ctx, s)))
+        return SINEW_ENOMEM;
+    sinew__free(ctx, *dst);
+    *dst = d;
+    return SINEW_OK;
+}
+
+void sinew_seq_frame_init(sinew_seq_frame *f)
+{
+    if (!f)
+        return;
+    memset(f, 0, sizeof *f);
+    f->timestamp = NAN;
+}
+
+static void frame_release(sinew_ctx *ctx, sinew_seq_frame *f)
+{
+    sinew__free(ctx, f->color);
+    sinew__free(ctx, f->depth);
+    sinew__free(ctx, f->labels);
+}
+
+static void pair_release(sinew_ctx *ctx, sinew_seq_pair *p)
+{
+    sinew__free(ctx, p->flow_forward);
+    sinew__free(ctx, p->flow_backward);
+    sinew__free(ctx, p->occlusion_forward);
+    sinew__free(ctx, p->occlusion_backward);
+    sinew__free(ctx, p->scene_flow);
+}
+
+int sinew_sequence_new(sinew_ctx *ctx, sinew_sequence **out)
+{
+    if (!ctx || !out)
+        return SINEW_EINVAL;
+    *out = NULL;
+    sinew_sequence *seq = sinew__calloc(ctx, 1, sizeof *seq);
+    if (!seq)
+        return SINEW_ENOMEM;
+    seq->version = SINEW_SEQUENCE_VERSION;
+    seq->ctx_ = ctx;
+    *out = seq;
+    return SINEW_OK;
+}
+
+void sinew_sequence_free(sinew_sequence *seq)
+{
+    if (!seq)
+        return;
+    sinew_ctx *ctx = seq->ctx_;
+    for (size_t i = 0; i < seq->n_frames; i++)
+        frame_release(ctx, &seq->frames[i]);
+    for (size_t i = 0; i < seq->n_pairs; i++)
+        pair_release(ctx, &seq->pairs[i]);
+    for (size_t i = 0; i < seq->n_label_names; i++)
+        sinew__free(ctx, seq->label_names[i]);
+    sinew__free(ctx, seq->label_names);
+    sinew__free(ctx, seq->frames);
+    sinew__free(ctx, seq->pairs);
+    sinew__free(ctx, seq->name);
+    sinew__free(ctx, seq->dir_);
+    sinew__free(ctx, seq);
+}
+
+int sinew_sequence_set_name(sinew_sequence *seq, const char *name)
+{
+    if (!seq)
+        return SINEW_EINVAL;
+    return set_str(seq->ctx_, &seq->name, name);
+}
+
+int sinew_sequence_set_label_names(sinew_sequence *seq, const char *const *names, size_t n)
+{
+    if (!seq || (n && !names))
+        return SINEW_EINVAL;
+    sinew_ctx *ctx = seq->ctx_;
+    char **arr = NULL;
+    if (n) {
+        arr = sinew__calloc(ctx, n, sizeof *arr);
+        if (!arr)
+            return SINEW_ENOMEM;
+        for (size_t i = 0; i < n; i++) {
+            if (!names[i] || !(arr[i] = dup_str(ctx, names[i]))) {
+                for (size_t j = 0; j < i; j++)
+                    sinew__free(ctx, arr[j]);
+                sinew__free(ctx, arr);
+                return names[i] ? SINEW_ENOMEM
+                                : sinew__fail(ctx, SINEW_EINVAL, "label name %zu is NULL", i);
+            }
+        }
+    }
+    for (size_t i = 0; i < seq->n_label_names; i++)
+        sinew__free(ctx, seq->label_names[i]);
+    sinew__free(ctx, seq->label_names);
+    seq->label_names = arr;
+    seq->n_label_names = n;
+    return SINEW_OK;
+}
+
+/* Grow an array of `size`-byte elements to hold at least n + 1. */
+static int grow(sinew_ctx *ctx, void **arr, size_t *cap, size_t n, size_t size)
+{
+    if (n < *cap)
+        return SINEW_OK;
+    size_t nc = *cap ? *cap * 2 : 16, bytes;
+    if (sinew__mul_size(nc, size, &bytes))
+        return sinew__fail(ctx, SINEW_EOVERFLOW, "sequence too long");
+    void *p = sinew__alloc(ctx, bytes);
+    if (!p)
+        return SINEW_ENOMEM;
+    if (n)
+        memcpy(p, *arr, n * size);
+    sinew__free(ctx, *arr);
+    *arr = p;
+    *cap = nc;
+    return SINEW_OK;
+}
+
+int sinew_sequence_add_frame(sinew_sequence *seq, const sinew_seq_frame *frame)
+{
+    if (!seq || !frame)
+        return SINEW_EINVAL;
+    sinew_ctx *ctx = seq->ctx_;
+    int st = grow(ctx, (void **)&seq->frames, &seq->cap_frames_, seq->n_frames, sizeof *frame);
+    if (st)
+        return st;
+    sinew_seq_frame f = *frame;
+    f.color = f.depth = f.labels = NULL;
+    if (set_str(ctx, &f.color, frame->color) || set_str(ctx, &f.depth, frame->depth) ||
+        set_str(ctx, &f.labels, frame->labels)) {
+        frame_release(ctx, &f);
+        return SINEW_ENOMEM;
+    }
+    seq->frames[seq->n_frames++] = f;
+    return SINEW_OK;
+}
+
+int sinew_sequence_add_pair(sinew_sequence *seq, const sinew_seq_pair *pair)
+{
+    if (!seq || !pair)
+        return SINEW_EINVAL;
+    sinew_ctx *ctx = seq->ctx_;
+    int st = grow(ctx, (void **)&seq->pairs, &seq->cap_pairs_, seq->n_pairs, sizeof *pair);
+    if (st)
+        return st;
+    sinew_seq_pair p = {pair->from, pair->to, NULL, NULL, NULL, NULL, NULL};
+    if (set_str(ctx, &p.flow_forward, pair->flow_forward) ||
+        set_str(ctx, &p.flow_backward, pair->flow_backward) ||
+        set_str(ctx, &p.occlusion_forward, pair->occlusion_forward) ||
+        set_str(ctx, &p.occlusion_backward, pair->occlusion_backward) ||
+        set_str(ctx, &p.scene_flow, pair->scene_flow)) {
+        pair_release(ctx, &p);
+        return SINEW_ENOMEM;
+    }
+    seq->pairs[seq->n_pairs++] = p;
+    return SINEW_OK;
+}
+
+/* ---- validation (shared by reader and writer) ---- */
+
+static int bad_key(sinew_ctx *ctx, const char *where, const char *key, const char *problem)
+{
+    return sinew__fail(ctx, SINEW_ECONFIG, "%s: %s: %s", where, key, problem);
+}
+
+static int check_path(sinew_ctx *ctx, const char *where, const char *key, const char *s)
+{
+    if (s && !*s)
+        return bad_key(ctx, where, key, "empty path");
+    return SINEW_OK;
+}
+
+int sinew_sequence_validate(sinew_sequence *seq, const char *where)
+{
+    if (!seq)
+        return SINEW_EINVAL;
+    sinew_ctx *ctx = seq->ctx_;
+    char key[96];
+    if (!where)
+        where = "sequence";
+    if (seq->version < 1 || seq->version > SINEW_SEQUENCE_VERSION)
+        return bad_key(ctx, where, "version", "unsupported version");
+    if (seq->has_intrinsics) {
+        if (!(isfinite(seq->fx) && seq->fx > 0))
+            return bad_key(ctx, where, "intrinsics.fx", "must be a positive number");
+        if (!(isfinite(seq->fy) && seq->fy > 0))
+            return bad_key(ctx, where, "intrinsics.fy", "must be a positive number");
+        if (!isfinite(seq->cx))
+            return bad_key(ctx, where, "intrinsics.cx", "must be a finite number");
+        if (!isfinite(seq->cy))
+            return bad_key(ctx, where, "intrinsics.cy", "must be a finite number");
+        if (seq->width < 1 || seq->width > MAX_IMAGE_DIM)
+            return bad_key(ctx, where, "intrinsics.width", "must be 1..1048576");
+        if (seq->height < 1 || seq->height > MAX_IMAGE_DIM)
+            return bad_key(ctx, where, "intrinsics.height", "must be 1..1048576");
+    }
+    if (!(isfinite(seq->depth_scale) && seq->depth_scale >= 0))
+        return bad_key(ctx, where, "depth_scale", "must be a positive number");
+    for (size_t i = 0; i < seq->n_label_names; i++)
+        if (!seq->label_names[i]) {
+            snprintf(key, sizeof key, "label_names[%zu]", i);
+            return bad_key(ctx, where, key, "missing");
+        }
+    if (seq->n_frames < 1)
+        return bad_key(ctx, where, "frames", "must list at least one frame");
+    for (size_t i = 0; i < seq->n_frames; i++) {
+        const sinew_seq_frame *f = &seq->frames[i];
+        int st;
+        snprintf(key, sizeof key, "frames[%zu].color", i);
+        if (!f->color)
+            return bad_key(ctx, where, key, "missing");
+        if ((st = check_path(ctx, where, key, f->color)))
+            return st;
+        snprintf(key, sizeof key, "frames[%zu].depth", i);
+        if ((st = check_path(ctx, where, key, f->depth)))
+            return st;
+        if (f->depth && seq->depth_scale <= 0)
+            return bad_key(ctx, where, "depth_scale", "required (> 0) when frames have depth");
+        snprintf(key, sizeof key, "frames[%zu].labels", i);
+        if ((st = check_path(ctx, where, key, f->labels)))
+            return st;
+        if (!isnan(f->timestamp) && !isfinite(f->timestamp)) {
+            snprintf(key, sizeof key, "frames[%zu].timestamp", i);
+            return bad_key(ctx, where, key, "must be a finite number");
+        }
+        if (f->has_pose)
+            for (int k = 0; k < 12; k++)
+                if (!isfinite(f->pose[k])) {
+                    snprintf(key, sizeof key, "frames[%zu].pose", i);
+                    return bad_key(ctx, where, key, "must hold 12 finite numbers");
+                }
+    }
+    for (size_t i = 0; i < seq->n_pairs; i++) {
+        const sinew_seq_pair *p = &seq->pairs[i];
+        if (p->from < 0 || (size_t)p->from >= seq->n_frames) {
+            snprintf(key, sizeof key, "pairs[%zu].from", i);
+            return bad_key(ctx, where, key, "not a frame index");
+        }
+        if (p->to < 0 || (size_t)p->to >= seq->n_frames || p->to == p->from) {
+            snprintf(key, sizeof key, "pairs[%zu].to", i);
+            return bad_key(ctx, where, key, "not a frame index other than 'from'");
+        }
+        const char *names[5] = {"flow_forward", "flow_backward", "occlusion_forward",
+                                "occlusion_backward", "scene_flow"};
+        const char *vals[5] = {p->flow_forward, p->flow_backward, p->occlusion_forward,
+                               p->occlusion_backward, p->scene_flow};
+        for (int k = 0; k < 5; k++) {
+            snprintf(key, sizeof key, "pairs[%zu].%s", i, names[k]);
+            int st = check_path(ctx, where, key, vals[k]);
+            if (st)
+                return st;
+        }
+    }
+    return SINEW_OK;
+}
+
+/* ---- reading ---- */
+
+typedef struct reader {
+    sinew_ctx *ctx;
+    const char *where;
+} reader;
+
+/* Refuse keys not in `allowed` (NULL-terminated) and duplicate keys. */
+static int check_keys(reader *r, const cJSON *obj, const char *path, const char *const *allowed)
+{
+    char key[160];
+    for (const cJSON *c = obj->child; c; c = c->next) {
+        const char *name = c->string ? c->string : "";
+        int ok = 0;
+        for (const char *const *a = allowed; *a; a++)
+            if (!strcmp(*a, name))
+                ok = 1;
+        snprintf(key, sizeof key, "%s%s%s", path, *path ? "." : "", name);
+        if (!ok) {
+            snprintf(key, sizeof key, "%s", *path ? path : "(top level)");
+            char msg[160];
+            snprintf(msg, sizeof msg, "unknown key '%.100s'", name);
+            return bad_key(r->ctx, r->where, key, msg);
+        }
+        for (const cJSON *d = obj->child; d != c; d = d->next)
+            if (d->string && !strcmp(d->string, name))
+                return bad_key(r->ctx, r->where, key, "duplicate key");
+    }
+    return SINEW_OK;
+}
+
+static void join_key(char *buf, size_t n, const char *path, const char *name)
+{
+    snprintf(buf, n, "%s%s%s", path, *path ? "." : "", name);
+}
+
+/* Optional string member: *out stays NULL if absent. */
+static int get_string(reader *r, const cJSON *obj, const char *path, const char *name,
+                      int required, char **out)
+{
+    char key[160];
+    join_key(key, sizeof key, path, name);
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, name);
+    if (!v)
+        return required ? bad_key(r->ctx, r->where, key, "missing") : SINEW_OK;
+    if (!cJSON_IsString(v) || !v->valuestring)
+        return bad_key(r->ctx, r->where, key, "expected a string");
+    if (!*v->valuestring)
+        return bad_key(r->ctx, r->where, key, "empty string");
+    return set_str(r->ctx, out, v->valuestring);
+}
+
+/* Number member; returns 1 in *present if found. */
+static int get_number(reader *r, const cJSON *obj, const char *path, const char *name,
+                      int required, double *out, int *present)
+{
+    char key[160];
+    join_key(key, sizeof key, path, name);
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, name);
+    if (present)
+        *present = v != NULL;
+    if (!v)
+        return required ? bad_key(r->ctx, r->where, key, "missing") : SINEW_OK;
+    if (!cJSON_IsNumber(v))
+        return bad_key(r->ctx, r->where, key, "expected a number");
+    if (!isfinite(v->valuedouble))
+        return bad_key(r->ctx, r->where, key, "must be finite");
+    *out = v->valuedouble;
+    return SINEW_OK;
+}
+
+static int get_int(reader *r, const cJSON *obj, const char *path, const char *name, long lo,
+                   long hi, int *out)
+{
+    char key[160];
+    double d = 0;
+    int st = get_number(r, obj, path, name, 1, &d, NULL);
+    if (st)
+        return st;
+    join_key(key, sizeof key, path, name);
+    if (d != floor(d) || d < (double)lo || d > (double)hi) {
+        char msg[96];
+        snprintf(msg, sizeof msg, "expected an integer in %ld..%ld", lo, hi);
+        return bad_key(r->ctx, r->where, key, msg);
+    }
+    *out = (int)d;
+    return SINEW_OK;
+}
+
+static const cJSON *get_typed(reader *r, const cJSON *obj, const char *path, const char *name,
+                              int required, int want_array, int *st)
+{
+    char key[160];
+    join_key(key, sizeof key, path, name);
+    *st = SINEW_OK;
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, name);
+    if (!v) {
+        if (required)
+            *st = bad_key(r->ctx, r->where, key, "missing");
+        return NULL;
+    }
+    if (want_array ? !cJSON_IsArray(v) : !cJSON_IsObject(v)) {
+        *st = bad_key(r->ctx, r->where, key, want_array ? "expected an array" : "expected an object");
+        return NULL;
+    }
+    return v;
+}
+
+static int read_frame(reader *r, sinew_sequence *seq, const cJSON *o, size_t i)
+{
+    static const char *const keys[] = {"color", "depth", "labels", "timestamp", "pose", NULL};
+    char path[64];
+    snprintf(path, sizeof path, "frames[%zu]", i);
+    if (!cJSON_IsObject(o))
+        return bad_key(r->ctx, r->where, path, "expected an object");
+    int st = check_keys(r, o, path, keys);
+    if (st)
+        return st;
+    sinew_seq_frame f;
+    sinew_seq_frame_init(&f);
+    double ts = NAN;
+    int has_ts = 0;
+    if ((st = get_string(r, o, path, "color", 1, &f.color)) ||
+        (st = get_string(r, o, path, "depth", 0, &f.depth)) ||
+        (st = get_string(r, o, path, "labels", 0, &f.labels)) ||
+        (st = get_number(r, o, path, "timestamp", 0, &ts, &has_ts)))
+        goto done;
+    f.timestamp = has_ts ? ts : NAN;
+    const cJSON *pose = cJSON_GetObjectItemCaseSensitive(o, "pose");
+    if (pose) {
+        char key[96];
+        snprintf(key, sizeof key, "%s.pose", path);
+        if (!cJSON_IsArray(pose) || cJSON_GetArraySize(pose) != 12) {
+            st = bad_key(r->ctx, r->where, key, "expected an array of 12 numbers");
+            goto done;
+        }
+        int k = 0;
+        for (const cJSON *c = pose->child; c; c = c->next, k++) {
+            if (!cJSON_IsNumber(c) || !isfinite(c->valuedouble)) {
+                st = bad_key(r->ctx, r->where, key, "expected an array of 12 numbers");
+                goto done;
+            }
+            f.pose[k] = c->valuedouble;
+        }
+        f.has_pose = 1;
+    }
+    st = sinew_sequence_add_frame(seq, &f);
+done:
+    frame_release(r->ctx, &f);
+    return st;
+}
+
+static int read_pair(reader *r, sinew_sequence *seq, const cJSON *o, size_t i)
+{
+    static const char *const keys[] = {"from", "to", "flow_forward", "flow_backward",
+                                       "occlusion_forward", "occlusion_backward", "scene_flow",
+                                       NULL};
+    char path[64];
+    snprintf(path, sizeof path, "pairs[%zu]", i);
+    if (!cJSON_IsObject(o))
+        return bad_key(r->ctx, r->where, path, "expected an object");
+    int st = check_keys(r, o, path, keys);
+    if (st)
+        return st;
+    sinew_seq_pair p = {0, 0, NULL, NULL, NULL, NULL, NULL};
+    if ((st = get_int(r, o, path, "from", 0, 2147483647L, &p.from)) ||
+        (st = get_int(r, o, path, "to", 0, 2147483647L, &p.to)) ||
+        (st = get_string(r, o, path, "flow_forward", 0, &p.flow_forward)) ||
+        (st = get_string(r, o, path, "flow_backward", 0, &p.flow_backward)) ||
+        (st = get_string(r, o, path, "occlusion_forward", 0, &p.occlusion_forward)) ||
+        (st = get_string(r, o, path, "occlusion_backward", 0, &p.occlusion_backward)) ||
+        (st = get_string(r, o, path, "scene_flow", 0, &p.scene_flow)))
+        goto done;
+    st = sinew_sequence_add_pair(seq, &p);
+done:
+    pair_release(r->ctx, &p);
+    return st;
+}
+
+static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
+{
+    static const char *const keys[] = {"version",     "name",   "intrinsics", "depth_scale",
+                                       "label_names", "frames", "pairs",      NULL};
+    if (!cJSON_IsObject(root))
+        return sinew__fail(r->ctx, SINEW_ECONFIG, "%s: expected a JSON object at the top level",
+                           r->where);
+    int st = check_keys(r, root, "", keys);
+    if (st)
+        return st;
+    /* version first: a newer file gets a clear message rather than "unknown key" later */
+    double v = 0;
+    if ((st = get_number(r, root, "", "version", 1, &v, NULL)))
+        return st;
+    if (v != floor(v) || v < 1)
+        return bad_key(r->ctx, r->where, "version", "expected a positive integer");
+    if (v > SINEW_SEQUENCE_VERSION)
+        return sinew__fail(r->ctx, SINEW_EUNSUPPORTED,
+                           "%s: version: %.0f is newer than this build reads (%d)", r->where, v,
+                           SINEW_SEQUENCE_VERSION);
+    seq->version = (int)v;
+    if ((st = get_string(r, root, "", "name", 0, &seq->name)))
+        return st;
+    const cJSON *in = get_typed(r, root, "", "intrinsics", 0, 0, &st);
+    if (st)
+        return st;
+    if (in) {
+        static const char *const ik[] = {"fx", "fy", "cx", "cy", "width", "height", NULL};
+        if ((st = check_keys(r, in, "intrinsics", ik)) ||
+            (st = get_number(r, in, "intrinsics", "fx", 1, &seq->fx, NULL)) ||
+            (st = get_number(r, in, "intrinsics", "fy", 1, &seq->fy, NULL)) ||
+            (st = get_number(r, in, "intrinsics", "cx", 1, &seq->cx, NULL)) ||
+            (st = get_number(r, in, "intrinsics", "cy", 1, &seq->cy, NULL)) ||
+            (st = get_int(r, in, "intrinsics", "width", 1, MAX_IMAGE_DIM, &seq->width)) ||
+            (st = get_int(r, in, "intrinsics", "height", 1, MAX_IMAGE_DIM, &seq->height)))
+            return st;
+        seq->has_intrinsics = 1;
+    }
+    if ((st = get_number(r, root, "", "depth_scale", 0, &seq->depth_scale, NULL)))
+        return st;
+    if (cJSON_GetObjectItemCaseSensitive(root, "depth_scale") && !(seq->depth_scale > 0))
+        return bad_key(r->ctx, r->where, "depth_scale", "must be a positive number");
+    const cJSON *ln = get_typed(r, root, "", "label_names", 0, 1, &st);
+    if (st)
+        return st;
+    if (ln) {
+        size_t n = (size_t)cJSON_GetArraySize(ln), i = 0;
+        const char **names = n ? sinew__calloc(r->ctx, n, sizeof *names) : NULL;
+        if (n && !names)
+            return SINEW_ENOMEM;
+        for (const cJSON *c = ln->child; c; c = c->next, i++) {
+            if (!cJSON_IsString(c) || !c->valuestring) {
+                char key[64];
+                snprintf(key, sizeof key, "label_names[%zu]", i);
+                sinew__free(r->ctx, (void *)names);
+                return bad_key(r->ctx, r->where, key, "expected a string");
+            }
+            names[i] = c->valuestring;
+        }
+        st = sinew_sequence_set_label_names(seq, names, n);
+        sinew__free(r->ctx, (void *)names);
+        if (st)
+            return st;
+    }
+    const cJSON *frames = get_typed(r, root, "", "frames", 1, 1, &st);
+    if (st)
+        return st;
+    size_t i = 0;
+    for (const cJSON *c = frames->child; c; c = c->next, i++)
+        if ((st = read_frame(r, seq, c, i)))
+            return st;
+    const cJSON *pairs = get_typed(r, root, "", "pairs", 0, 1, &st);
+    if (st)
+        return st;
+    i = 0;
+    if (pairs)
+        for (const cJSON *c = pairs->child; c; c = c->next, i++)
+            if ((st = read_pair(r, seq, c, i)))
+                return st;
+    return sinew_sequence_validate(seq, r->where);
+}
+
+static int set_dir(sinew_sequence *seq, const char *where)
+{
+    const char *slash = where ? strrchr(where, '/') : NULL;
+    size_t n = slash ? (size_t)(slash - where) : 1;
+    if (slash && n == 0)
+        n = 1; /* "/file.json" -> "/" */
+    char *d = sinew__alloc(seq->ctx_, n + 1);
+    if (!d)
+        return SINEW_ENOMEM;
+    memcpy(d, slash ? where : ".", n);
+    d[n] = 0;
+    sinew__free(seq->ctx_, seq->dir_);
+    seq->dir_ = d;
+    return SINEW_OK;
+}
+
+int sinew_sequence_parse(sinew_ctx *ctx, sinew_sequence **out, const char *text, size_t len,
+                         const char *where)
+{
+    if (!ctx || !out || (!text && len))
+        return SINEW_EINVAL;
+    *out = NULL;
+    if (!where)
+        where = "sequence";
+    const char *end = NULL;
+    cJSON *root = cJSON_ParseWithLengthOpts(text ? text : "", len, &end, 0);
+    size_t off = end && end >= text ? (size_t)(end - text) : 0;
+    if (root) { /* only whitespace may follow the value */
+        while (off < len && strchr(" \t\r\n", text[off]) && text[off])
+            off++;
+    }
+    if (!root || off < len) {
+        size_t line = 1, col = 1;
+        for (size_t k = 0; k < off && k < len; k++) {
+            if (text[k] == '\n') {
+                line++;
+                col = 1;
+            } else {
+                col++;
+            }
+        }
+        cJSON_Delete(root);
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: %s at line %zu column %zu", where,
+                           root ? "unexpected content after the JSON value" : "invalid JSON",
+                           line, col);
+    }
+    sinew_sequence *seq;
+    int st = sinew_sequence_new(ctx, &seq);
+    if (st) {
+        cJSON_Delete(root);
+        return st;
+    }
+    reader r = {ctx, where};
+    st = read_root(&r, seq, root);
+    cJSON_Delete(root);
+    if (!st)
+        st = set_dir(seq, where);
+    if (st) {
+        sinew_sequence_free(seq);
+        return st;
+    }
+    *out = seq;
+    return SINEW_OK;
+}
+
+int sinew_sequence_read(sinew_ctx *ctx, sinew_sequence **out, const char *path)
+{
+    if (!ctx || !out || !path)
+        return SINEW_EINVAL;
+    *out = NULL;
+    unsigned char *buf = NULL;
+    size_t len = 0;
+    int st = sinew_read_file(ctx, path, MAX_JSON_BYTES, &buf, &len);
+    if (st)
+        return st;
+    st = sinew_sequence_parse(ctx, out, (const char *)buf, len, path);
+    sinew_ctx_dealloc(ctx, buf);
+    return st;
+}
+
+/* ---- writing ---- */
+
+/* Numbers are written with the fewest digits (15..17) that read back to the same double:
+ * cJSON's own printer compares with a tolerance and can lose the last bit. */
+static cJSON *make_num(double v)
+{
+    char buf[40];
+    for (int prec = 15; prec <= 17; prec++) {
+        snprintf(buf, sizeof buf, "%.*g", prec, v);
+        if (strtod(buf, NULL) == v)
+            break;
+    }
+    return cJSON_CreateRaw(buf);
+}
+
+static int add_num(cJSON *o, const char *name, double v)
+{
+    cJSON *n = make_num(v);
+    return n && cJSON_AddItemToObject(o, name, n) ? 1 : (cJSON_Delete(n), 0);
+}
+
+static int add_str(cJSON *o, const char *name, const char *s)
+{
+    return !s || cJSON_AddStringToObject(o, name, s) ? 0 : -1;
+}
+
+static cJSON *build(const sinew_sequence *seq)
+{
+    cJSON *root = cJSON_CreateObject();
+    if (!root)
+        return NULL;
+    int bad = !add_num(root, "version", seq->version);
+    bad |= add_str(root, "name", seq->name);
+    if (seq->has_intrinsics) {
+        cJSON *in = cJSON_AddObjectToObject(root, "intrinsics");
+        bad |= !in || !add_num(in, "fx", seq->fx) ||
+               !add_num(in, "fy", seq->fy) ||
+               !add_num(in, "cx", seq->cx) ||
+               !add_num(in, "cy", seq->cy) ||
+               !add_num(in, "width", seq->width) ||
+               !add_num(in, "height", seq->height);
+    }
+    if (seq->depth_scale > 0)
+        bad |= !add_num(root, "depth_scale", seq->depth_scale);
+    if (seq->n_label_names) {
+        cJSON *ln = cJSON_AddArrayToObject(root, "label_names");
+        bad |= !ln;
+        for (size_t i = 0; ln && i < seq->n_label_names; i++) {
+            cJSON *s = cJSON_CreateString(seq->label_names[i]);
+            bad |= !s || !cJSON_AddItemToArray(ln, s);
+        }
+    }
+    cJSON *frames = cJSON_AddArrayToObject(root, "frames");
+    bad |= !frames;
+    for (size_t i = 0; frames && !bad && i < seq->n_frames; i++) {
+        const sinew_seq_frame *f = &seq->frames[i];
+        cJSON *o = cJSON_CreateObject();
+        bad |= !o || !cJSON_AddItemToArray(frames, o);
+        if (bad)
+            break;
+        bad |= add_str(o, "color", f->color) | add_str(o, "depth", f->depth) |
+               add_str(o, "labels", f->labels);
+        if (!isnan(f->timestamp))
+            bad |= !add_num(o, "timestamp", f->timestamp);
+        if (f->has_pose) {
+            cJSON *p = cJSON_AddArrayToObject(o, "pose");
+            bad |= !p;
+            for (int k = 0; p && k < 12; k++) {
+                cJSON *n = make_num(f->pose[k]);
+                bad |= !n || !cJSON_AddItemToArray(p, n);
+            }
+        }
+    }
+    if (seq->n_pairs) {
+        cJSON *pairs = cJSON_AddArrayToObject(root, "pairs");
+        bad |= !pairs;
+        for (size_t i = 0; pairs && !bad && i < seq->n_pairs; i++) {
+            const sinew_seq_pair *p = &seq->pairs[i];
+            cJSON *o = cJSON_CreateObject();
+            bad |= !o || !cJSON_AddItemToArray(pairs, o);
+            if (bad)
+                break;
+            bad |= !add_num(o, "from", p->from) ||
+                   !add_num(o, "to", p->to);
+            bad |= add_str(o, "flow_forward", p->flow_forward) |
+                   add_str(o, "flow_backward", p->flow_backward) |
+                   add_str(o, "occlusion_forward", p->occlusion_forward) |
+                   add_str(o, "occlusion_backward", p->occlusion_backward) |
+                   add_str(o, "scene_flow", p->scene_flow);
+        }
+    }
+    if (bad) {
+        cJSON_Delete(root);
+        return NULL;
+    }
+    return root;
+}
+
+int sinew_sequence_write(sinew_sequence *seq, const char *path)
+{
+    if (!seq || !path)
+        return SINEW_EINVAL;
+    sinew_ctx *ctx = seq->ctx_;
+    int st = sinew_sequence_validate(seq, path);
+    if (st)
+        return st;
+    cJSON *root = build(seq);
+    char *text = root ? cJSON_Print(root) : NULL;
+    cJSON_Delete(root);
+    if (!text)
+        return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory building JSON", path);
+    size_t n = strlen(text);
+    text[n] = '\n'; /* overwrite the terminator: the file ends with a newline */
+    st = sinew_write_file(ctx, path, text, n + 1);
+    text[n] = 0;
+    cJSON_free(text);
+    return st;
+}
+
+int sinew_sequence_resolve(const sinew_sequence *seq, const char *rel, char *buf, size_t n)
+{
+    if (!seq || !rel || !buf || !n)
+        return SINEW_EINVAL;
+    int w;
+    if (rel[0] == '/' || !seq->dir_)
+        w = snprintf(buf, n, "%s", rel);
+    else
+        w = snprintf(buf, n, "%s/%s", seq->dir_, rel);
+    if (w < 0 || (size_t)w >= n)
+        return sinew__fail(seq->ctx_, SINEW_ELIMIT, "%s: path too long", rel);
+    return SINEW_OK;
+}

@@ -408,6 +408,124 @@ static void test_synth_depth_noise(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* Compare two files byte for byte. */
+static int same_file(sinew_ctx *ctx, const char *a, const char *b)
+{
+    unsigned char *x, *y;
+    size_t nx, ny;
+    assert_int_equal(sinew_read_file(ctx, a, 1 << 26, &x, &nx), SINEW_OK);
+    assert_int_equal(sinew_read_file(ctx, b, 1 << 26, &y, &ny), SINEW_OK);
+    int same = nx == ny && memcmp(x, y, nx) == 0;
+    sinew_ctx_dealloc(ctx, x);
+    sinew_ctx_dealloc(ctx, y);
+    return same;
+}
+
+/* The files on disk: byte-identical for 1 and 2 threads, described by sequence.json,
+ * and equal to what the library computes in memory. */
+static void test_synth_write_files(void **state)
+{
+    (void)state;
+    const int W = 48, H = 36, N = 3;
+    char *dir = tu_tmpdir();
+    char d1[600], d2[600], path[800], other[800];
+    tu_path(d1, sizeof d1, dir, "one");
+    tu_path(d2, sizeof d2, dir, "two");
+    for (int threads = 1; threads <= 2; threads++) {
+        sinew_ctx *ctx = sinew_ctx_new();
+        assert_int_equal(sinew_ctx_set_threads(ctx, threads), SINEW_OK);
+        sinew_synth *s = make(ctx, W, H, N, 9);
+        assert_int_equal(sinew_synth_write(s, threads == 1 ? d1 : d2), SINEW_OK);
+        sinew_synth_free(s);
+        sinew_ctx_free(ctx);
+    }
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_sequence *seq;
+    tu_path(path, sizeof path, d1, "sequence.json");
+    assert_int_equal(sinew_sequence_read(ctx, &seq, path), SINEW_OK);
+    assert_int_equal(seq->n_frames, N);
+    assert_int_equal(seq->n_pairs, N - 1);
+    assert_true(seq->has_intrinsics && seq->width == W && seq->height == H);
+    assert_true(seq->depth_scale == 1000.0);
+    assert_int_equal(seq->n_label_names, 5);
+    assert_string_equal(seq->label_names[4], "probe");
+    /* every listed file exists and is identical in both runs */
+    const char *rels[5 * 3 + 5 * 2];
+    size_t nrel = 0;
+    for (size_t i = 0; i < seq->n_frames; i++) {
+        rels[nrel++] = seq->frames[i].color;
+        rels[nrel++] = seq->frames[i].depth;
+        rels[nrel++] = seq->frames[i].labels;
+    }
+    for (size_t i = 0; i < seq->n_pairs; i++) {
+        rels[nrel++] = seq->pairs[i].flow_forward;
+        rels[nrel++] = seq->pairs[i].flow_backward;
+        rels[nrel++] = seq->pairs[i].occlusion_forward;
+        rels[nrel++] = seq->pairs[i].occlusion_backward;
+        rels[nrel++] = seq->pairs[i].scene_flow;
+    }
+    for (size_t i = 0; i < nrel; i++) {
+        assert_non_null(rels[i]);
+        assert_int_equal(sinew_sequence_resolve(seq, rels[i], path, sizeof path), SINEW_OK);
+        tu_path(other, sizeof other, d2, rels[i]);
+        if (!same_file(ctx, path, other))
+            fail_msg("%s differs between 1 and 2 threads", rels[i]);
+    }
+    assert_true(same_file(ctx, path, other));
+    /* files hold exactly the in-memory results */
+    sinew_synth *s = make(ctx, W, H, N, 9);
+    frame_set f;
+    alloc_set(ctx, &f, W, H);
+    sinew_image mm;
+    assert_int_equal(sinew_image_alloc(ctx, &mm, W, H, 1, SINEW_U16), SINEW_OK);
+    assert_int_equal(sinew_synth_render(s, 1, &f.color, &f.depth, &f.labels), SINEW_OK);
+    assert_int_equal(sinew_synth_depth_mm(s, 1, &f.depth, &mm), SINEW_OK);
+    assert_int_equal(sinew_synth_truth(s, 1, 2, &f.flow, &f.occ, &f.sf), SINEW_OK);
+    sinew_image rd;
+    assert_int_equal(sinew_sequence_resolve(seq, seq->frames[1].color, path, sizeof path), SINEW_OK);
+    assert_int_equal(sinew_image_read(ctx, &rd, path), SINEW_OK);
+    for (int y = 0; y < H; y++)
+        assert_memory_equal(sinew_image_row(&rd, y), sinew_image_row(&f.color, y), (size_t)W * 3);
+    sinew_image_free(&rd);
+    assert_int_equal(sinew_sequence_resolve(seq, seq->frames[1].depth, path, sizeof path), SINEW_OK);
+    assert_int_equal(sinew_image_read(ctx, &rd, path), SINEW_OK);
+    assert_int_equal(rd.type, SINEW_U16);
+    for (int y = 0; y < H; y++)
+        assert_memory_equal(sinew_image_row(&rd, y), sinew_image_row(&mm, y), (size_t)W * 2);
+    sinew_image_free(&rd);
+    assert_int_equal(sinew_sequence_resolve(seq, seq->pairs[1].flow_forward, path, sizeof path),
+                     SINEW_OK);
+    assert_int_equal(sinew_flow_read(ctx, &rd, path, SINEW_FLOW_AUTO), SINEW_OK);
+    for (int y = 0; y < H; y++)
+        assert_memory_equal(sinew_image_row(&rd, y), sinew_image_row(&f.flow, y), (size_t)W * 8);
+    sinew_image_free(&rd);
+    assert_int_equal(sinew_sequence_resolve(seq, seq->pairs[1].scene_flow, path, sizeof path),
+                     SINEW_OK);
+    assert_int_equal(sinew_npy_read_image(ctx, &rd, path), SINEW_OK);
+    assert_int_equal(rd.channels, 3);
+    for (int y = 0; y < H; y++)
+        assert_memory_equal(sinew_image_row(&rd, y), sinew_image_row(&f.sf, y), (size_t)W * 12);
+    sinew_image_free(&rd);
+    assert_int_equal(sinew_sequence_resolve(seq, seq->pairs[1].occlusion_forward, path, sizeof path),
+                     SINEW_OK);
+    assert_int_equal(sinew_image_read(ctx, &rd, path), SINEW_OK);
+    for (int y = 0; y < H; y++)
+        assert_memory_equal(sinew_image_row(&rd, y), sinew_image_row(&f.occ, y), (size_t)W);
+    sinew_image_free(&rd);
+    /* an output folder whose parent is missing: EIO naming it, nothing written */
+    char bad[800];
+    snprintf(bad, sizeof bad, "%s/missing/out", dir);
+    assert_int_equal(sinew_synth_write(s, bad), SINEW_EIO);
+    assert_non_null(strstr(sinew_ctx_message(ctx), bad));
+    sinew_image_free(&mm);
+    free_set(&f);
+    sinew_synth_free(s);
+    sinew_sequence_free(seq);
+    sinew_ctx_free(ctx);
+    tu_rmtree(dir);
+    free(dir);
+}
+
 static void test_synth_alloc_failure_is_clean(void **state)
 {
     (void)state;
@@ -437,6 +555,7 @@ int main(void)
         cmocka_unit_test(test_synth_labels_and_depth_plausible),
         cmocka_unit_test(test_synth_deterministic_any_threads),
         cmocka_unit_test(test_synth_depth_noise),
+        cmocka_unit_test(test_synth_write_files),
         cmocka_unit_test(test_synth_alloc_failure_is_clean),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -211,6 +211,7 @@ int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow
     if (rc)
         return rc;
     npy_header h;
+    memset(&h, 0, sizeof h); /* read_header may fail before filling it */
     rc = read_header(ctx, path, fp, &h);
     int big = 0;
     size_t elem = 0;

@@ -1,0 +1,146 @@
+#!/bin/sh
+# SPDX-License-Identifier: MIT
+# End-to-end tests of `sinew score`: every layout reader on miniature folders built here,
+# one pair with occlusion/validity/our mask/confidence, and the published Middlebury
+# ground truth with a perturbed estimate. Expected numbers come from an independent
+# numpy implementation of the published formulas (tests/cli/score_ref.py names the
+# sources); CSV and JSON must carry the same numbers; bad input gives one line and a
+# non-zero exit.
+. "$(dirname "$0")/lib.sh"
+REF="$(dirname "$0")/score_ref.py"
+
+expect_ok "score --help" "$SINEW_BIN" score --help
+if grep -q "not a medical device" "$T/out" && grep -q "averag" "$T/out"; then
+    pass "help states the averaging and ends with the notice"
+else
+    fail "help text" "notice or averaging missing"
+fi
+expect_error "no arguments is a usage error" - "usage|expected EST GT" "$SINEW_BIN" score
+"$SINEW_BIN" score >/dev/null 2>&1
+[ $? -eq 2 ] && pass "usage error exits 2" || fail "usage error exits 2" "exit $?"
+expect_error "unknown layout" - "unknown layout 'foo'" \
+    "$SINEW_BIN" score --layout foo --root "$T" --estimates "$T"
+expect_error "--mask needs --occ" - "--occ" "$SINEW_BIN" score a.flo b.flo --mask m.png
+
+if ! "$PYTHON" -c 'import numpy' 2>/dev/null; then
+    skip "numpy reference checks" "python3-numpy not available at $PYTHON"
+    exit 0
+fi
+
+# ---- miniature layouts -----------------------------------------------------------------
+M="$T/mini"
+mkdir -p "$M"
+"$PYTHON" "$REF" build "$M" || fail "build miniature folders" "python failed"
+for layout in middlebury sintel kitti chairs chairs2 list; do
+    case $layout in
+    middlebury) root="$M/middlebury"; lay=middlebury ;;
+    sintel) root="$M/sintel/training"; lay=sintel ;;
+    kitti) root="$M/kitti/training"; lay=kitti ;;
+    chairs | chairs2) root="$M/$layout"; lay=chairs ;;
+    list) root="$M/listdata/pairs.txt"; lay=list ;;
+    esac
+    if "$SINEW_BIN" score --layout "$lay" --root "$root" --estimates "$M/est/$layout" --json \
+        >"$T/$layout.json" 2>"$T/err"; then
+        "$PYTHON" "$REF" check "layout $layout matches numpy" "$M/expected.json" \
+            "$T/$layout.json" "$layout"
+    else
+        fail "layout $layout" "exit $? ($(head -c 300 "$T/err"))"
+    fi
+done
+
+# Text table and CSV of one layout: same numbers as JSON, averaging named everywhere.
+"$SINEW_BIN" score --layout sintel --root "$M/sintel/training" --estimates "$M/est/sintel" \
+    --csv "$T/sintel.csv" >"$T/sintel.txt" 2>"$T/err" || fail "sintel csv" "$(cat "$T/err")"
+"$PYTHON" "$REF" csv "CSV carries the JSON numbers" "$T/sintel.csv" "$T/sintel.json"
+if grep -q "^mean-of-pairs" "$T/sintel.txt" && grep -q "^pooled-pixels" "$T/sintel.txt" &&
+    grep -q "^\[occ\]" "$T/sintel.txt" && grep -q "unweighted mean" "$T/sintel.txt"; then
+    pass "text table has both summary rows, the occ block and the averaging"
+else
+    fail "text table" "$(head -c 400 "$T/sintel.txt")"
+fi
+if grep -q "mean-of-pairs" "$T/sintel.csv" && grep -q '"averaging"' "$T/sintel.json"; then
+    pass "CSV and JSON name the averaging"
+else
+    fail "averaging named" "missing in CSV or JSON"
+fi
+
+# ---- one pair --------------------------------------------------------------------------
+S="$T/single"
+mkdir -p "$S"
+"$PYTHON" "$REF" single "$S" || fail "build single pair" "python failed"
+if "$SINEW_BIN" score "$S/est.flo" "$S/gt.flo" --occ "$S/occ.png" --valid "$S/valid.png" \
+    --mask "$S/ours.png" --confidence "$S/conf.npy" --json >"$T/single.json" 2>"$T/err"; then
+    "$PYTHON" "$REF" check "one pair (noc/occ, mask P/R/F1, AUSE) matches numpy" \
+        "$S/expected_single.json" "$T/single.json"
+else
+    fail "one pair" "exit $? ($(head -c 300 "$T/err"))"
+fi
+expect_ok "one pair text output" "$SINEW_BIN" score "$S/est.flo" "$S/gt.flo" --occ "$S/occ.png" \
+    --mask "$S/ours.png" --confidence "$S/conf.npy"
+if grep -q "^noc " "$T/out" && grep -q "AUSE" "$T/out" && grep -q "precision" "$T/out"; then
+    pass "one pair text table"
+else
+    fail "one pair text table" "$(head -c 300 "$T/out")"
+fi
+
+# ---- bad input -------------------------------------------------------------------------
+head -c 40 "$S/est.flo" >"$T/trunc.flo"
+expect_error "truncated estimate: one line, names the file" "$T/bad.csv" "trunc\.flo" \
+    "$SINEW_BIN" score "$T/trunc.flo" "$S/gt.flo" --csv "$T/bad.csv"
+expect_error "size mismatch: one line, names both sizes" "$T/bad.csv" "10x12.*(4x5|5x4)" \
+    "$SINEW_BIN" score "$S/est.flo" "$M/chairs/00001_flow.flo" --csv "$T/bad.csv"
+expect_error "mismatched occlusion mask" - "occ.png" \
+    "$SINEW_BIN" score "$M/chairs/00001_flow.flo" "$M/chairs/00001_flow.flo" --occ "$S/occ.png"
+expect_error "missing estimate names the expected path" "$T/bad.csv" "no estimate for pair" \
+    "$SINEW_BIN" score --layout chairs --root "$M/chairs" --estimates "$T/nowhere" --csv "$T/bad.csv"
+expect_error "missing ground truth file" - "nothing\.flo" \
+    "$SINEW_BIN" score "$S/est.flo" "$T/nothing.flo"
+printf 'a.png b.png\n' >"$T/short.txt"
+expect_error "list line with 2 fields" - "short\.txt:1" \
+    "$SINEW_BIN" score --layout list --root "$T/short.txt" --estimates "$T"
+mkdir -p "$T/empty"
+expect_error "folder without the layout's files" - "empty" \
+    "$SINEW_BIN" score --layout kitti --root "$T/empty" --estimates "$T"
+expect_error "unwritable CSV" - "csv" \
+    "$SINEW_BIN" score "$S/est.flo" "$S/gt.flo" --csv "$T/no/such/dir/x.csv"
+
+# ---- published data: Middlebury ground truth with a perturbed estimate -----------------
+if have_data middlebury; then
+    E="$T/mb"
+    mkdir -p "$E"
+    "$PYTHON" "$REF" middlebury "$SINEW_DATA/middlebury" "$E" || fail "middlebury estimates" "python"
+    if "$SINEW_BIN" score --layout middlebury --root "$SINEW_DATA/middlebury" --estimates "$E" \
+        --json >"$T/mb.json" 2>"$T/err"; then
+        "$PYTHON" "$REF" check "Middlebury ground truth + noise matches numpy (8 sequences)" \
+            "$E/expected.json" "$T/mb.json"
+    else
+        fail "Middlebury layout" "exit $? ($(head -c 300 "$T/err"))"
+    fi
+    # Ground truth scored against itself: EPE 0, AAE 0, density 100 % (unknown pixels of
+    # Dimetrodon/Hydrangea/RubberWhale skipped: SOURCES.md counts 10772/14880/3622).
+    V="$SINEW_DATA/middlebury/Dimetrodon/flow10.flo"
+    if "$SINEW_BIN" score "$V" "$V" --json >"$T/self.json" 2>"$T/err" &&
+        "$PYTHON" -c 'import json,sys; d=json.load(open(sys.argv[1]));
+sys.exit(0 if d["epe"]==0 and d["aae_deg"]==0 and d["n_valid"]==584*388-10772 else 1)' "$T/self.json"; then
+        pass "Dimetrodon against itself: zero error, 10772 unknown pixels skipped"
+    else
+        fail "Dimetrodon self-score" "$(head -c 300 "$T/self.json" "$T/err")"
+    fi
+else
+    skip "Middlebury agreement with numpy" "no $SINEW_DATA/middlebury"
+fi
+if have_data flyingchairs/examples; then
+    C="$T/fc"
+    mkdir -p "$C"
+    cp "$SINEW_DATA/flyingchairs/examples/0000000-gt.flo" "$C/0000000.flo"
+    cp "$SINEW_DATA/flyingchairs/examples/0000001-gt.flo" "$C/0000001.flo"
+    expect_ok "FlyingChairs examples folder reads as chairs layout" "$SINEW_BIN" score \
+        --layout chairs --root "$SINEW_DATA/flyingchairs/examples" --estimates "$C" --json
+    if grep -q '"id":	"0000001"' "$T/out" && grep -q '"epe":	0,' "$T/out"; then
+        pass "FlyingChairs examples: two pairs, ground truth scores zero"
+    else
+        fail "FlyingChairs examples" "$(head -c 300 "$T/out")"
+    fi
+else
+    skip "FlyingChairs examples layout" "no $SINEW_DATA/flyingchairs/examples"
+fi

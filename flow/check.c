@@ -37,13 +37,14 @@ void sinew_check_params_default(sinew_check_params *p)
     p->saturation_level = 0.98;
     p->texture_radius = 2;
     p->ignore_polarity = SINEW_IGNORE_UNSET;
-    p->conf_fb_alpha = 0.01;
-    p->conf_fb_beta = 0.5;
-    p->conf_fb_weight = 0.7;
+    /* Confidence score: tuned for AUSE (docs/methods.md, "Tuning"). */
+    p->conf_fb_alpha = 0.0;
+    p->conf_fb_beta = 0.25;
     p->conf_photo_scale = 0.1;
-    p->conf_texture_scale = 1e-5;
-    p->conf_boundary_scale = 3.0;
-    p->conf_boundary_floor = 0.3;
+    p->conf_texture_scale = 4e-5;
+    p->conf_texture_weight = 1.0;
+    p->conf_boundary_scale = 6.0;
+    p->conf_boundary_weight = 1.0;
     p->conf_saturated = 0.5;
 }
 
@@ -82,11 +83,11 @@ static int validate_params(sinew_ctx *ctx, const sinew_check_params *p)
         {"saturation_level", p->saturation_level},
         {"conf_fb_alpha", p->conf_fb_alpha},
         {"conf_fb_beta", p->conf_fb_beta},
-        {"conf_fb_weight", p->conf_fb_weight},
         {"conf_photo_scale", p->conf_photo_scale},
         {"conf_texture_scale", p->conf_texture_scale},
+        {"conf_texture_weight", p->conf_texture_weight},
         {"conf_boundary_scale", p->conf_boundary_scale},
-        {"conf_boundary_floor", p->conf_boundary_floor},
+        {"conf_boundary_weight", p->conf_boundary_weight},
         {"conf_saturated", p->conf_saturated},
     };
     for (size_t i = 0; i < sizeof list / sizeof list[0]; i++) {
@@ -97,12 +98,12 @@ static int validate_params(sinew_ctx *ctx, const sinew_check_params *p)
     if (p->conf_fb_alpha == 0 && p->conf_fb_beta == 0)
         return sinew__fail(ctx, SINEW_EINVAL,
                            "check: conf_fb_alpha and conf_fb_beta cannot both be 0");
-    if (p->conf_photo_scale == 0 || p->conf_boundary_scale == 0)
+    if (p->conf_photo_scale == 0 || p->conf_boundary_scale == 0 || p->conf_texture_scale == 0)
         return sinew__fail(ctx, SINEW_EINVAL,
-                           "check: conf_photo_scale and conf_boundary_scale must be > 0");
-    if (p->conf_boundary_floor > 1 || p->conf_saturated > 1)
-        return sinew__fail(ctx, SINEW_EINVAL,
-                           "check: conf_boundary_floor and conf_saturated must be <= 1");
+                           "check: conf_photo_scale, conf_texture_scale and conf_boundary_scale "
+                           "must be > 0");
+    if (p->conf_saturated > 1)
+        return sinew__fail(ctx, SINEW_EINVAL, "check: conf_saturated must be <= 1");
     if (p->texture_radius < 0 || p->texture_radius > 64)
         return sinew__fail(ctx, SINEW_EINVAL, "check: texture_radius must be in 0..64");
     if (p->ignore_polarity != SINEW_IGNORE_UNSET && p->ignore_polarity != SINEW_IGNORE_NONZERO &&
@@ -669,20 +670,17 @@ static void pass_confidence(const sinew_check_params *p, scratch *s, sinew_image
                 out[x] = 0;
                 continue;
             }
-            double c = exp(-p->conf_fb_weight * s->fbratio[k]);
-            if (s->resid && isfinite(s->resid[k])) {
-                double q = s->resid[k] / p->conf_photo_scale;
-                c *= exp(-q * q);
-            }
-            if (s->lmin) {
-                double l = s->lmin[k];
-                c *= l + p->conf_texture_scale > 0 ? l / (l + p->conf_texture_scale) : 1;
-            }
+            /* additive unreliability score, each term >= 0 */
+            double sc = sqrt(s->fbratio[k]);
+            if (s->resid && isfinite(s->resid[k]))
+                sc += s->resid[k] / p->conf_photo_scale;
+            if (s->lmin)
+                sc += p->conf_texture_weight * p->conf_texture_scale /
+                      (s->lmin[k] + p->conf_texture_scale);
             double d2 = s->dist2[k];
-            if (d2 < s->big) {
-                double f = p->conf_boundary_floor;
-                c *= f + (1 - f) * (1 - exp(-sqrt(d2) / p->conf_boundary_scale));
-            }
+            if (d2 < s->big)
+                sc += p->conf_boundary_weight * exp(-sqrt(d2) / p->conf_boundary_scale);
+            double c = 1 / (1 + sc);
             if (m & SINEW_MASK_SATURATED)
                 c *= p->conf_saturated;
             out[x] = (float)(c < 0 ? 0 : c > 1 ? 1 : c);

@@ -56,20 +56,20 @@ typedef struct sinew_check_params {
     int texture_radius;
     /* Polarity of the ignore mask; must be set when an ignore mask is given. */
     sinew_ignore_polarity ignore_polarity;
-    /* Confidence c = c_fb * c_photo * c_texture * c_boundary * c_sat (0 for OUTSIDE,
-     * IGNORE and UNKNOWN pixels), each factor in [0, 1]:
-     *   c_fb       = exp(-conf_fb_weight * e² / (conf_fb_alpha (|w|² + |ŵ|²) + conf_fb_beta))
-     *   c_photo    = exp(-(r / conf_photo_scale)²)            (1 without frames)
-     *   c_texture  = λmin / (λmin + conf_texture_scale)      (1 without frames)
-     *   c_boundary = f + (1 - f) (1 - exp(-d / conf_boundary_scale)),
-     *                f = conf_boundary_floor, d = distance (px) to the nearest boundary
-     *                pixel (1 when there is none)
-     *   c_sat      = conf_saturated for SATURATED pixels, else 1.
-     * Defaults were tuned for ranking (AUSE); see docs/methods.md. */
-    double conf_fb_alpha, conf_fb_beta, conf_fb_weight;
+    /* Confidence c = c_sat / (1 + S) in [0, 1] (0 for OUTSIDE, IGNORE and UNKNOWN
+     * pixels), S a smooth unreliability score, the sum of
+     *   e / sqrt(conf_fb_alpha (|w|² + |ŵ|²) + conf_fb_beta)   FB error vs tolerance
+     *   r / conf_photo_scale                          photometric residual (frames)
+     *   conf_texture_weight * τ / (λmin + τ),  τ = conf_texture_scale   (frames)
+     *   conf_boundary_weight * exp(-d / conf_boundary_scale)
+     * with λmin the smallest structure-tensor eigenvalue of frame 0 ((intensity/px)²)
+     * and d the distance (px) to the nearest boundary pixel (term 0 without any);
+     * c_sat = conf_saturated for SATURATED pixels, else 1. Defaults were tuned for
+     * ranking (AUSE); see docs/methods.md. */
+    double conf_fb_alpha, conf_fb_beta;
     double conf_photo_scale;
-    double conf_texture_scale;
-    double conf_boundary_scale, conf_boundary_floor;
+    double conf_texture_scale, conf_texture_weight;
+    double conf_boundary_scale, conf_boundary_weight;
     double conf_saturated;
 } sinew_check_params;
 

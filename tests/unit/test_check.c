@@ -179,13 +179,17 @@ static void test_check_fb_hand_computed(void **state)
         assert_int_equal(mk(&r.mask, x, 1) & SINEW_MASK_FB, bad ? SINEW_MASK_FB : 0);
     }
     assert_int_equal(mk(&r.mask, 7, 1), SINEW_MASK_OUTSIDE);
-    /* Confidence by hand at x = 2 (no frames, no boundary): exp(-0.7 * e²/thr). */
-    double ratio = 0.5625 / (0.01 * (0.25 + 1.5625) + 0.5);
-    assert_float_equal(*fl(&r.conf, 2, 1), exp(-0.7 * ratio), 1e-6);
     assert_conf_range(&r.conf);
-    /* The constants are tunable: a looser beta makes x = 2 consistent. */
+    /* Confidence by hand at x = 2 (no frames, no boundary) with the FB tolerance of the
+     * score set to Sundaram's: 1 / (1 + e / sqrt(0.01 (|w|² + |ŵ|²) + 0.5)). */
     sinew_check_params p;
     sinew_check_params_default(&p);
+    p.conf_fb_alpha = 0.01;
+    p.conf_fb_beta = 0.5;
+    assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, &p), SINEW_OK);
+    double tol = sqrt(0.01 * (0.25 + 1.5625) + 0.5);
+    assert_float_equal(*fl(&r.conf, 2, 1), 1 / (1 + 0.75 / tol), 1e-6);
+    /* The constants are tunable: a looser beta makes x = 2 consistent. */
     p.fb_beta = 0.6;
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, &p), SINEW_OK);
     assert_int_equal(mk(&r.mask, 2, 1) & SINEW_MASK_FB, 0);
@@ -379,7 +383,7 @@ static void test_check_ignore_polarity(void **state)
 
 /* One bump u = 0.2 at (10, 10) of a zero field: the boundary pixels are its four
  * 4-neighbours (central difference 0.1, 0.01 > 0.002), not the bump itself. The
- * boundary factor of the confidence must use the exact Euclidean distance to them,
+ * boundary term of the confidence must use the exact Euclidean distance to them,
  * checked against brute force. */
 static void test_check_boundary_distance_exact(void **state)
 {
@@ -409,8 +413,7 @@ static void test_check_boundary_distance_exact(void **state)
                 if (dx * dx + dy * dy < d2)
                     d2 = dx * dx + dy * dy;
             }
-            double fl0 = p.conf_boundary_floor;
-            double want = fl0 + (1 - fl0) * (1 - exp(-sqrt(d2) / p.conf_boundary_scale));
+            double want = 1 / (1 + p.conf_boundary_weight * exp(-sqrt(d2) / p.conf_boundary_scale));
             assert_float_equal(*fl(&r.conf, x, y), want, 1e-6);
         }
     outs_free(&r);

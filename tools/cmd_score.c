@@ -288,9 +288,9 @@ static void fmt_val(char *buf, size_t n, double v, const char *fmt)
         snprintf(buf, n, "n/a");
 }
 
-static void text_header(FILE *f, int with_time)
+static void text_header(FILE *f, const char *first, int with_time)
 {
-    fprintf(f, "%-24s %10s %8s %8s %8s %7s %7s %7s %7s %7s%s\n", "pair", "n_valid", "dens%", "EPE",
+    fprintf(f, "%-24s %10s %8s %8s %8s %7s %7s %7s %7s %7s%s\n", first, "n_valid", "dens%", "EPE",
             "AAE", "R0.5%", "R1%", "R3%", "R5%", "Fl%", with_time ? "  time_s" : "");
 }
 
@@ -609,7 +609,7 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
     printf("averaging: %s (one pair: mean over its scored pixels)\n", avg);
     printf("dens%% = scored share of the known ground truth (unknown estimates are not "
            "scored)\n\n");
-    text_header(stdout, 0);
+    text_header(stdout, "region", 0);
     for (int k = 0; k < SINEW_REGION_COUNT; k++)
         if (k == SINEW_REGION_ALL || row.err.has_occ)
             text_row(stdout, region_key[k], &row.s[k], -1, 0);
@@ -755,7 +755,7 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
         if (k != SINEW_REGION_ALL && !sum.has_occ)
             continue;
         printf("\n[%s] %s\n", region_key[k], region_text[k]);
-        text_header(stdout, with_time);
+        text_header(stdout, "pair", with_time);
         for (size_t i = 0; i < n; i++)
             if (k == SINEW_REGION_ALL || rows[i].err.has_occ)
                 text_row(stdout, rows[i].id, &rows[i].s[k], rows[i].runtime_s, with_time);

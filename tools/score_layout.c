@@ -529,6 +529,27 @@ int score_layout_list(const char *cmd, const char *layout, const char *root, con
     return rc;
 }
 
+int score_make_parents(const char *path)
+{
+    char *p = strdup(path);
+    if (!p)
+        return -1;
+    for (char *s = p + 1; *s; s++) {
+        if (*s != '/')
+            continue;
+        *s = 0;
+        if (mkdir(p, 0777) != 0 && errno != EEXIST) {
+            int e = errno;
+            free(p);
+            errno = e;
+            return -1;
+        }
+        *s = '/';
+    }
+    free(p);
+    return 0;
+}
+
 char *score_find_estimate(const char *dir, const char *id, char **tried)
 {
     static const char *const exts[] = {"flo", "png", "pfm", "npy"};

@@ -38,6 +38,10 @@ void score_set_free(score_set *s);
  * NULL (then *tried receives the pattern tried, malloc'd). */
 char *score_find_estimate(const char *dir, const char *id, char **tried);
 
+/* Create the folders leading to `path` (not the last component), like mkdir -p of its
+ * parent. Returns 0 or -1 with errno set. */
+int score_make_parents(const char *path);
+
 /* malloc'd "a/b"; NULL on allocation failure. */
 char *score_join(const char *a, const char *b);
 /* malloc'd printf; NULL on allocation failure. */

@@ -34,7 +34,8 @@ static void usage(FILE *out)
             "                   [--confidence C.npy] [--mask M.png] [--mask-bits N]\n"
             "                   [--csv F] [--json]\n"
             "       sinew score --layout middlebury|sintel|kitti|chairs|list --root DIR\n"
-            "                   --estimates DIR [--pass clean|final] [--csv F] [--json]\n"
+            "                   --estimates DIR [--confidences DIR] [--pass clean|final]\n"
+            "                   [--csv F] [--json]\n"
             "\n"
             "Score optical flow against ground truth: endpoint error (EPE, px), angular\n"
             "error (AAE, degrees, the (u,v,1) angle), R0.5/R1/R3/R5 (%% of pixels with\n"
@@ -65,6 +66,9 @@ static void usage(FILE *out)
             "                     is the pair id shown in the table (Middlebury: Venus;\n"
             "                     Sintel: alley_1/frame_0001; KITTI: 000000_10; chairs:\n"
             "                     00001; list: the gt path without extension)\n"
+            "  --confidences DIR  per-pair confidence DIR/ID.npy (or .pfm): adds each pair's\n"
+            "                     AUSE and their mean (AUSE is averaged per pair, not\n"
+            "                     pooled)\n"
             "  --pass P           Sintel pass for the frames (default clean)\n"
             "outputs:\n"
             "  (default)          a text table on stdout\n"
@@ -93,7 +97,8 @@ typedef struct {
     char *id;
     sinew_flow_errors err;
     sinew_flow_summary s[SINEW_REGION_COUNT];
-    double runtime_s; /* < 0: not measured */
+    double time_s; /* estimator wall-clock seconds; NaN = not run */
+    double ause;   /* AUSE of the pair's confidence; NaN = none */
 } pair_row;
 
 static const char *const region_key[SINEW_REGION_COUNT] = {"all", "noc", "occ"};
@@ -288,16 +293,22 @@ static void fmt_val(char *buf, size_t n, double v, const char *fmt)
         snprintf(buf, n, "n/a");
 }
 
-static void text_header(FILE *f, const char *first, int with_time)
+/* Optional columns of the text table. */
+typedef struct {
+    int time, ause;
+} text_cols;
+
+static void text_header(FILE *f, const char *first, text_cols c)
 {
-    fprintf(f, "%-24s %10s %8s %8s %8s %7s %7s %7s %7s %7s%s\n", first, "n_valid", "dens%", "EPE",
-            "AAE", "R0.5%", "R1%", "R3%", "R5%", "Fl%", with_time ? "  time_s" : "");
+    fprintf(f, "%-24s %10s %8s %8s %8s %7s %7s %7s %7s %7s%s%s\n", first, "n_valid", "dens%", "EPE",
+            "AAE", "R0.5%", "R1%", "R3%", "R5%", "Fl%", c.time ? "  time_s" : "",
+            c.ause ? "     AUSE" : "");
 }
 
-static void text_row(FILE *f, const char *label, const sinew_flow_summary *s, double t,
-                     int with_time)
+static void text_row(FILE *f, const char *label, const sinew_flow_summary *s, double t, double ause,
+                     text_cols c)
 {
-    char v[9][32];
+    char v[10][32];
     fmt_val(v[0], sizeof v[0], s->density_pct, "%.2f");
     fmt_val(v[1], sizeof v[1], s->epe, "%.4f");
     fmt_val(v[2], sizeof v[2], s->aae_deg, "%.3f");
@@ -307,10 +318,13 @@ static void text_row(FILE *f, const char *label, const sinew_flow_summary *s, do
     fmt_val(v[6], sizeof v[6], s->r5_pct, "%.2f");
     fmt_val(v[7], sizeof v[7], s->fl_all_pct, "%.2f");
     fmt_val(v[8], sizeof v[8], t, "%.3f");
+    fmt_val(v[9], sizeof v[9], ause, "%.5f");
     fprintf(f, "%-24s %10lld %8s %8s %8s %7s %7s %7s %7s %7s", label, (long long)s->n_valid, v[0],
             v[1], v[2], v[3], v[4], v[5], v[6], v[7]);
-    if (with_time)
+    if (c.time)
         fprintf(f, " %7s", v[8]);
+    if (c.ause)
+        fprintf(f, " %8s", v[9]);
     fputc('\n', f);
 }
 
@@ -333,11 +347,12 @@ static void csv_header(FILE *f)
                 "%s%sfl_all_pct,%s%sn_valid,%s%sn_gt,%s%sdensity_pct",
                 p, sep, p, sep, p, sep, p, sep, p, sep, p, sep, p, sep, p, sep, p, sep, p, sep);
     }
-    fputs(",runtime_s\n", f);
+    fputs(",runtime_s,ause\n", f);
 }
 
 static void csv_row(FILE *f, const char *layout, const char *label, const char *averaging,
-                    const sinew_flow_summary s[SINEW_REGION_COUNT], int has_occ, double t)
+                    const sinew_flow_summary s[SINEW_REGION_COUNT], int has_occ, double t,
+                    double ause)
 {
     /* ids come from file names; quote them if they could break the CSV */
     if (strpbrk(label, ",\"\n")) {
@@ -364,7 +379,8 @@ static void csv_row(FILE *f, const char *layout, const char *label, const char *
         fprintf(f, ",%lld,%lld", (long long)r->n_valid, (long long)r->n_gt);
         csv_val(f, r->density_pct);
     }
-    csv_val(f, t >= 0 ? t : NAN); /* empty when not measured */
+    csv_val(f, t); /* empty when not measured */
+    csv_val(f, ause);
     fputc('\n', f);
 }
 
@@ -373,7 +389,8 @@ typedef struct {
     sinew_flow_summary mean[SINEW_REGION_COUNT];
     sinew_flow_summary pooled[SINEW_REGION_COUNT];
     int has_occ;
-    double mean_runtime_s;
+    double mean_time_s; /* mean over pairs with a time; NaN if none */
+    double mean_ause;   /* mean of per-pair AUSE (AUSE is not pooled); NaN if none */
 } summary_rows;
 
 static int summarize_all(const pair_row *rows, size_t n, summary_rows *out)
@@ -384,13 +401,17 @@ static int summarize_all(const pair_row *rows, size_t n, summary_rows *out)
     sinew_flow_summary *tmp = malloc((n ? n : 1) * sizeof *tmp);
     if (!tmp)
         return cli_error(CMD, "out of memory");
-    double tsum = 0;
-    size_t tn = 0;
+    double tsum = 0, asum = 0;
+    size_t tn = 0, an = 0;
     for (size_t i = 0; i < n; i++) {
         sinew_flow_errors_add(&pool, &rows[i].err);
-        if (rows[i].runtime_s >= 0) {
-            tsum += rows[i].runtime_s;
+        if (isfinite(rows[i].time_s)) {
+            tsum += rows[i].time_s;
             tn++;
+        }
+        if (isfinite(rows[i].ause)) {
+            asum += rows[i].ause;
+            an++;
         }
     }
     out->has_occ = pool.has_occ;
@@ -402,7 +423,8 @@ static int summarize_all(const pair_row *rows, size_t n, summary_rows *out)
         sinew_flow_summary_mean(&out->mean[k], tmp, m);
         sinew_flow_stats_summarize(&out->pooled[k], &pool.region[k]);
     }
-    out->mean_runtime_s = tn ? tsum / (double)tn : -1.0;
+    out->mean_time_s = tn ? tsum / (double)tn : NAN;
+    out->mean_ause = an ? asum / (double)an : NAN;
     free(tmp);
     return CLI_OK;
 }
@@ -418,12 +440,13 @@ static int write_csv(sinew_ctx *ctx, const char *path, const char *layout, const
     csv_header(f);
     const char *single = n == 1 && !sum ? sinew_averaging_name(SINEW_AVG_POOLED) : "per-pair";
     for (size_t i = 0; i < n; i++)
-        csv_row(f, layout, rows[i].id, single, rows[i].s, rows[i].err.has_occ, rows[i].runtime_s);
+        csv_row(f, layout, rows[i].id, single, rows[i].s, rows[i].err.has_occ, rows[i].time_s,
+                rows[i].ause);
     if (sum) {
         csv_row(f, layout, "summary", sinew_averaging_name(SINEW_AVG_PAIR_MEAN), sum->mean,
-                sum->has_occ, sum->mean_runtime_s);
+                sum->has_occ, sum->mean_time_s, sum->mean_ause);
         csv_row(f, layout, "summary", sinew_averaging_name(SINEW_AVG_POOLED), sum->pooled,
-                sum->has_occ, sum->mean_runtime_s);
+                sum->has_occ, sum->mean_time_s, NAN);
     }
     st = sinew_outfile_commit(ctx, of);
     return st ? cli_status(CMD, ctx, st) : CLI_OK;
@@ -516,7 +539,8 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
     pair_row row;
     memset(&row, 0, sizeof row);
     row.id = (char *)est_path;
-    row.runtime_s = -1;
+    row.time_s = NAN;
+    row.ause = NAN;
     sinew_mask_scores ms;
     int have_ms = 0;
     sparse_result sp = {0};
@@ -609,10 +633,11 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
     printf("averaging: %s (one pair: mean over its scored pixels)\n", avg);
     printf("dens%% = scored share of the known ground truth (unknown estimates are not "
            "scored)\n\n");
-    text_header(stdout, "region", 0);
+    text_cols none = {0, 0};
+    text_header(stdout, "region", none);
     for (int k = 0; k < SINEW_REGION_COUNT; k++)
         if (k == SINEW_REGION_ALL || row.err.has_occ)
-            text_row(stdout, region_key[k], &row.s[k], -1, 0);
+            text_row(stdout, region_key[k], &row.s[k], NAN, NAN, none);
     if (have_ms) {
         double p, r, f1;
         char a[3][32];
@@ -644,7 +669,7 @@ done:
 /* ---- dataset folders ---- */
 
 typedef struct {
-    const char *layout, *root, *estimates, *pass, *csv;
+    const char *layout, *root, *estimates, *confidences, *pass, *csv;
     int json;
 } layout_opts;
 
@@ -652,12 +677,13 @@ typedef struct {
 static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts *o, pair_row *row)
 {
     sinew_image est = {0}, gt = {0}, occ = {0}, eval = {0};
-    char *est_path = NULL, *tried = NULL;
+    char *est_path = NULL, *conf_path = NULL, *tried = NULL;
     int rc;
     memset(row, 0, sizeof *row);
     row->id = p->id;
-    row->runtime_s = -1;
-    est_path = score_find_estimate(o->estimates, p->id, &tried);
+    row->time_s = NAN;
+    row->ause = NAN;
+    est_path = score_find_file(o->estimates, p->id, "flo|png|pfm|npy", &tried);
     if (!est_path) {
         rc = tried ? cli_error(CMD, "%s: no estimate for pair %s", tried, p->id)
                    : cli_error(CMD, "out of memory");
@@ -682,7 +708,21 @@ static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts
         goto done;
     }
     summarize_row(row);
+    if (o->confidences) {
+        free(tried);
+        conf_path = score_find_file(o->confidences, p->id, "npy|pfm", &tried);
+        if (!conf_path) {
+            rc = tried ? cli_error(CMD, "%s: no confidence for pair %s", tried, p->id)
+                       : cli_error(CMD, "out of memory");
+            goto done;
+        }
+        sparse_result sp;
+        if ((rc = score_confidence(ctx, conf_path, &est, &gt, p->gt, &eval, &sp)))
+            goto done;
+        row->ause = sp.have ? sp.ause : NAN;
+    }
 done:
+    free(conf_path);
     free(est_path);
     free(tried);
     sinew_image_free(&est);
@@ -700,7 +740,7 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
         return rc;
     if (o->csv && (rc = write_csv(ctx, o->csv, o->layout, rows, n, &sum)))
         return rc;
-    int with_time = sum.mean_runtime_s >= 0;
+    text_cols cols = {isfinite(sum.mean_time_s) ? 1 : 0, o->confidences != NULL};
     if (o->json) {
         cJSON *root = cJSON_CreateObject(), *pairs = NULL, *s = NULL;
         if (root) {
@@ -721,8 +761,10 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
             if (!r)
                 continue;
             cJSON_AddStringToObject(r, "id", rows[i].id);
-            if (rows[i].runtime_s >= 0)
-                cJSON_AddNumberToObject(r, "runtime_s", rows[i].runtime_s);
+            if (cols.time)
+                json_num(r, "runtime_s", rows[i].time_s);
+            if (cols.ause)
+                json_num(r, "ause", rows[i].ause);
             cJSON_AddItemToArray(pairs, r);
         }
         cJSON *m = json_regions(sum.mean, sum.has_occ, sinew_averaging_name(SINEW_AVG_PAIR_MEAN));
@@ -737,8 +779,10 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
             cJSON_AddNumberToObject(p, "n_pairs", (double)sum.pooled[0].n_pairs);
             cJSON_AddItemToObject(s, sinew_averaging_name(SINEW_AVG_POOLED), p);
         }
-        if (with_time)
-            cJSON_AddNumberToObject(s, "mean_runtime_s", sum.mean_runtime_s);
+        if (cols.time)
+            json_num(s, "mean_runtime_s", sum.mean_time_s);
+        if (cols.ause && m)
+            json_num(m, "ause", sum.mean_ause);
         rc = print_json(root);
         cJSON_Delete(root);
         return rc;
@@ -755,14 +799,15 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
         if (k != SINEW_REGION_ALL && !sum.has_occ)
             continue;
         printf("\n[%s] %s\n", region_key[k], region_text[k]);
-        text_header(stdout, "pair", with_time);
+        text_header(stdout, "pair", cols);
         for (size_t i = 0; i < n; i++)
             if (k == SINEW_REGION_ALL || rows[i].err.has_occ)
-                text_row(stdout, rows[i].id, &rows[i].s[k], rows[i].runtime_s, with_time);
-        text_row(stdout, sinew_averaging_name(SINEW_AVG_PAIR_MEAN), &sum.mean[k],
-                 sum.mean_runtime_s, with_time);
-        text_row(stdout, sinew_averaging_name(SINEW_AVG_POOLED), &sum.pooled[k], sum.mean_runtime_s,
-                 with_time);
+                text_row(stdout, rows[i].id, &rows[i].s[k], rows[i].time_s,
+                         k == SINEW_REGION_ALL ? rows[i].ause : NAN, cols);
+        text_row(stdout, sinew_averaging_name(SINEW_AVG_PAIR_MEAN), &sum.mean[k], sum.mean_time_s,
+                 k == SINEW_REGION_ALL ? sum.mean_ause : NAN, cols);
+        text_row(stdout, sinew_averaging_name(SINEW_AVG_POOLED), &sum.pooled[k], sum.mean_time_s,
+                 NAN, cols);
     }
     return fflush(stdout) == 0 ? CLI_OK : cli_error(CMD, "stdout: write failed");
 }
@@ -803,6 +848,7 @@ int cmd_score(int argc, char **argv)
         O_LAYOUT,
         O_ROOT,
         O_EST,
+        O_CONFS,
         O_PASS,
         O_THREADS
     };
@@ -818,13 +864,14 @@ int cmd_score(int argc, char **argv)
         {"layout", required_argument, NULL, O_LAYOUT},
         {"root", required_argument, NULL, O_ROOT},
         {"estimates", required_argument, NULL, O_EST},
+        {"confidences", required_argument, NULL, O_CONFS},
         {"pass", required_argument, NULL, O_PASS},
         {"threads", required_argument, NULL, O_THREADS},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
     single_opts so = {NULL, NULL, NULL, NULL, NULL, NULL, DEFAULT_MASK_BITS, 0};
-    layout_opts lo = {NULL, NULL, NULL, "clean", NULL, 0};
+    layout_opts lo = {NULL, NULL, NULL, NULL, "clean", NULL, 0};
     long threads = 0, bits;
     optind = 1;
     opterr = 0;
@@ -869,6 +916,9 @@ int cmd_score(int argc, char **argv)
         case O_EST:
             lo.estimates = optarg;
             break;
+        case O_CONFS:
+            lo.confidences = optarg;
+            break;
         case O_PASS:
             if (strcmp(optarg, "clean") && strcmp(optarg, "final"))
                 return cli_usage_error(CMD, "--pass: expected clean or final, got '%s'", optarg);
@@ -883,7 +933,7 @@ int cmd_score(int argc, char **argv)
         }
     }
     int npos = argc - optind;
-    if (lo.layout || lo.root || lo.estimates) {
+    if (lo.layout || lo.root || lo.estimates || lo.confidences) {
         if (npos != 0)
             return cli_usage_error(CMD, "--layout takes no EST GT arguments");
         if (!lo.layout || !lo.root)

@@ -550,20 +550,32 @@ int score_make_parents(const char *path)
     return 0;
 }
 
-char *score_find_estimate(const char *dir, const char *id, char **tried)
+char *score_find_file(const char *dir, const char *id, const char *exts, char **tried)
 {
-    static const char *const exts[] = {"flo", "png", "pfm", "npy"};
     if (tried)
         *tried = NULL;
-    for (size_t i = 0; i < sizeof exts / sizeof exts[0]; i++) {
-        char *p = score_printf("%s/%s.%s", dir, id, exts[i]);
+    const char *e = exts;
+    while (*e) {
+        size_t len = strcspn(e, "|");
+        char *p = score_printf("%s/%s.%.*s", dir, id, (int)len, e);
         if (!p)
             return NULL;
         if (is_file(p))
             return p;
         free(p);
+        e += len;
+        if (*e == '|')
+            e++;
     }
-    if (tried)
-        *tried = score_printf("%s/%s.{flo,png,pfm,npy}", dir, id);
+    if (tried) {
+        char *list = strdup(exts);
+        if (list) {
+            for (char *c = list; *c; c++)
+                if (*c == '|')
+                    *c = ',';
+            *tried = score_printf("%s/%s.{%s}", dir, id, list);
+            free(list);
+        }
+    }
     return NULL;
 }

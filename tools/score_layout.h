@@ -34,9 +34,10 @@ int score_layout_list(const char *cmd, const char *layout, const char *root, con
                       score_set *out);
 void score_set_free(score_set *s);
 
-/* Find ESTDIR/ID.{flo,png,pfm,npy} (first that exists). Returns a malloc'd path or
- * NULL (then *tried receives the pattern tried, malloc'd). */
-char *score_find_estimate(const char *dir, const char *id, char **tried);
+/* Find DIR/ID.EXT for the "|"-separated extensions `exts` in order (e.g.
+ * "flo|png|pfm|npy"), first that exists. Returns a malloc'd path or NULL (then *tried, if
+ * not NULL, receives "DIR/ID.{flo,png,...}", malloc'd). */
+char *score_find_file(const char *dir, const char *id, const char *exts, char **tried);
 
 /* Create the folders leading to `path` (not the last component), like mkdir -p of its
  * parent. Returns 0 or -1 with errno set. */

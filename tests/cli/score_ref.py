@@ -259,6 +259,7 @@ def build(root):
 
     # MPI-Sintel training: flow/, clean/, occlusions/, invalid/
     pairs = []
+    auses = []
     for scene in ('bamboo_x', 'cave_y'):
         for num in (1, 2):
             h, w = 6, 8
@@ -275,10 +276,21 @@ def build(root):
             est = perturb(gt, rng)
             ep = '%s/sintel/%s/frame_%04d.flo' % (est_root, scene, num)
             write_flo(ep, est)
-            pairs.append(('%s/frame_%04d' % (scene, num),
-                          pair_expect(read_flo(ep), read_flo('%s/flow/%s/frame_%04d.flo'
-                                                             % (base, scene, num)), ~inv, occ)))
+            e, g = read_flo(ep), read_flo('%s/flow/%s/frame_%04d.flo' % (base, scene, num))
+            pairs.append(('%s/frame_%04d' % (scene, num), pair_expect(e, g, ~inv, occ)))
+            # confidence for --confidences: AUSE over scored pixels outside invalid/
+            conf = rng.random((h, w)).astype('<f4')
+            os.makedirs('%s/conf/sintel/%s' % (root, scene), exist_ok=True)
+            np.save('%s/conf/sintel/%s/frame_%04d.npy' % (root, scene, num), conf)
+            sc = ~inv & np.isfinite(e).all(axis=2) & np.isfinite(g).all(axis=2)
+            err = np.sqrt(((e - g) ** 2).sum(axis=2))[sc].astype('<f4')
+            auses.append(sparsification((np.float32(1) - conf)[sc], err))
     exp['sintel'] = expect_layout(pairs)
+    withconf = json.loads(json.dumps(exp['sintel']))
+    for row, a in zip(withconf['pairs'], auses):
+        row['ause'] = a
+    withconf['summary']['mean-of-pairs']['ause'] = float(np.mean(auses))
+    exp['sintel_conf'] = withconf
 
     # KITTI 2015 training: flow_occ/, flow_noc/, image_2/ (16-bit RGB flow PNGs)
     pairs = []

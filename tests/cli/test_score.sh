@@ -48,6 +48,18 @@ for layout in middlebury sintel kitti chairs chairs2 list; do
     fi
 done
 
+# Per-pair confidence: AUSE per pair and its mean (pinned sparsification, numpy reference).
+if "$SINEW_BIN" score --layout sintel --root "$M/sintel/training" --estimates "$M/est/sintel" \
+    --confidences "$M/conf/sintel" --json >"$T/sconf.json" 2>"$T/err"; then
+    "$PYTHON" "$REF" check "per-pair AUSE with --confidences matches numpy" "$M/expected.json" \
+        "$T/sconf.json" sintel_conf
+else
+    fail "layout sintel --confidences" "exit $? ($(head -c 300 "$T/err"))"
+fi
+expect_error "missing confidence names the expected path" - "no confidence for pair" \
+    "$SINEW_BIN" score --layout sintel --root "$M/sintel/training" --estimates "$M/est/sintel" \
+    --confidences "$T/nowhere"
+
 # Text table and CSV of one layout: same numbers as JSON, averaging named everywhere.
 "$SINEW_BIN" score --layout sintel --root "$M/sintel/training" --estimates "$M/est/sintel" \
     --csv "$T/sintel.csv" >"$T/sintel.txt" 2>"$T/err" || fail "sintel csv" "$(cat "$T/err")"

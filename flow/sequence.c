@@ -330,8 +330,8 @@ static void join_key(char *buf, size_t n, const char *path, const char *name)
 }
 
 /* Optional string member: *out stays NULL if absent. */
-static int get_string(reader *r, const cJSON *obj, const char *path, const char *name,
-                      int required, char **out)
+static int get_string(reader *r, const cJSON *obj, const char *path, const char *name, int required,
+                      char **out)
 {
     char key[160];
     join_key(key, sizeof key, path, name);
@@ -346,8 +346,8 @@ static int get_string(reader *r, const cJSON *obj, const char *path, const char 
 }
 
 /* Number member; returns 1 in *present if found. */
-static int get_number(reader *r, const cJSON *obj, const char *path, const char *name,
-                      int required, double *out, int *present)
+static int get_number(reader *r, const cJSON *obj, const char *path, const char *name, int required,
+                      double *out, int *present)
 {
     char key[160];
     join_key(key, sizeof key, path, name);
@@ -395,7 +395,8 @@ static const cJSON *get_typed(reader *r, const cJSON *obj, const char *path, con
         return NULL;
     }
     if (want_array ? !cJSON_IsArray(v) : !cJSON_IsObject(v)) {
-        *st = bad_key(r->ctx, r->where, key, want_array ? "expected an array" : "expected an object");
+        *st =
+            bad_key(r->ctx, r->where, key, want_array ? "expected an array" : "expected an object");
         return NULL;
     }
     return v;
@@ -447,8 +448,13 @@ done:
 
 static int read_pair(reader *r, sinew_sequence *seq, const cJSON *o, size_t i)
 {
-    static const char *const keys[] = {"from", "to", "flow_forward", "flow_backward",
-                                       "occlusion_forward", "occlusion_backward", "scene_flow",
+    static const char *const keys[] = {"from",
+                                       "to",
+                                       "flow_forward",
+                                       "flow_backward",
+                                       "occlusion_forward",
+                                       "occlusion_backward",
+                                       "scene_flow",
                                        NULL};
     char path[64];
     snprintf(path, sizeof path, "pairs[%zu]", i);
@@ -597,8 +603,8 @@ int sinew_sequence_parse(sinew_ctx *ctx, sinew_sequence **out, const char *text,
         }
         cJSON_Delete(root);
         return sinew__fail(ctx, SINEW_EFORMAT, "%s: %s at line %zu column %zu", where,
-                           root ? "unexpected content after the JSON value" : "invalid JSON",
-                           line, col);
+                           root ? "unexpected content after the JSON value" : "invalid JSON", line,
+                           col);
     }
     sinew_sequence *seq;
     int st = sinew_sequence_new(ctx, &seq);
@@ -669,12 +675,9 @@ static cJSON *build(const sinew_sequence *seq)
     bad |= add_str(root, "name", seq->name);
     if (seq->has_intrinsics) {
         cJSON *in = cJSON_AddObjectToObject(root, "intrinsics");
-        bad |= !in || !add_num(in, "fx", seq->fx) ||
-               !add_num(in, "fy", seq->fy) ||
-               !add_num(in, "cx", seq->cx) ||
-               !add_num(in, "cy", seq->cy) ||
-               !add_num(in, "width", seq->width) ||
-               !add_num(in, "height", seq->height);
+        bad |= !in || !add_num(in, "fx", seq->fx) || !add_num(in, "fy", seq->fy) ||
+               !add_num(in, "cx", seq->cx) || !add_num(in, "cy", seq->cy) ||
+               !add_num(in, "width", seq->width) || !add_num(in, "height", seq->height);
     }
     if (seq->depth_scale > 0)
         bad |= !add_num(root, "depth_scale", seq->depth_scale);
@@ -716,8 +719,7 @@ static cJSON *build(const sinew_sequence *seq)
             bad |= !o || !cJSON_AddItemToArray(pairs, o);
             if (bad)
                 break;
-            bad |= !add_num(o, "from", p->from) ||
-                   !add_num(o, "to", p->to);
+            bad |= !add_num(o, "from", p->from) || !add_num(o, "to", p->to);
             bad |= add_str(o, "flow_forward", p->flow_forward) |
                    add_str(o, "flow_backward", p->flow_backward) |
                    add_str(o, "occlusion_forward", p->occlusion_forward) |

@@ -44,13 +44,13 @@ typedef struct sinew_seq_pair {
 /* A sequence description. Fields are public for reading; build one with the functions
  * below (which copy strings) or by setting the scalar fields directly. */
 typedef struct sinew_sequence {
-    int version;            /* SINEW_SEQUENCE_VERSION */
-    char *name;             /* free text or NULL */
-    int has_intrinsics;     /* nonzero if the next six fields are set */
-    double fx, fy, cx, cy;  /* pinhole intrinsics in pixels, pixel centres at integers */
-    int width, height;      /* image size the intrinsics refer to */
-    double depth_scale;     /* depth codes per metre (1000 = millimetres); 0 if unset */
-    char **label_names;     /* label_names[v] names label value v; NULL if absent */
+    int version;           /* SINEW_SEQUENCE_VERSION */
+    char *name;            /* free text or NULL */
+    int has_intrinsics;    /* nonzero if the next six fields are set */
+    double fx, fy, cx, cy; /* pinhole intrinsics in pixels, pixel centres at integers */
+    int width, height;     /* image size the intrinsics refer to */
+    double depth_scale;    /* depth codes per metre (1000 = millimetres); 0 if unset */
+    char **label_names;    /* label_names[v] names label value v; NULL if absent */
     size_t n_label_names;
     sinew_seq_frame *frames;
     size_t n_frames;

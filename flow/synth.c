@@ -142,8 +142,8 @@ static int check_out(sinew_synth *s, const sinew_image *img, int channels, sinew
     if (!img->data || img->width != s->p.width || img->height != s->p.height ||
         img->channels != channels || img->type != type)
         return sinew__fail(s->ctx, SINEW_ESIZE,
-                           "synth: %s must be a %dx%d image with %d channel(s) of type %d",
-                           what, s->p.width, s->p.height, channels, (int)type);
+                           "synth: %s must be a %dx%d image with %d channel(s) of type %d", what,
+                           s->p.width, s->p.height, channels, (int)type);
     return SINEW_OK;
 }
 
@@ -193,7 +193,8 @@ int sinew_synth_render(sinew_synth *s, int frame, sinew_image *color, sinew_imag
     if (!s)
         return SINEW_EINVAL;
     int st;
-    if ((st = check_frame(s, frame, "render")) || (st = check_out(s, color, 3, SINEW_U8, "color")) ||
+    if ((st = check_frame(s, frame, "render")) ||
+        (st = check_out(s, color, 3, SINEW_U8, "color")) ||
         (st = check_out(s, depth, 1, SINEW_F32, "depth")) ||
         (st = check_out(s, labels, 1, SINEW_U8, "labels")))
         return st;
@@ -256,8 +257,8 @@ int sinew_synth_query(sinew_synth *s, int from, int to, double x, double y, sine
     return SINEW_OK;
 }
 
-int sinew_synth_truth(sinew_synth *s, int from, int to, sinew_image *flow,
-                      sinew_image *occlusion, sinew_image *scene_flow)
+int sinew_synth_truth(sinew_synth *s, int from, int to, sinew_image *flow, sinew_image *occlusion,
+                      sinew_image *scene_flow)
 {
     if (!s)
         return SINEW_EINVAL;
@@ -309,8 +310,7 @@ static double hashed_normal(uint64_t seed, uint64_t a, uint64_t b)
     return sqrt(-2.0 * log(u1)) * cos(2 * 3.14159265358979323846 * u2);
 }
 
-int sinew_synth_depth_mm(sinew_synth *s, int frame, const sinew_image *depth,
-                         sinew_image *depth_mm)
+int sinew_synth_depth_mm(sinew_synth *s, int frame, const sinew_image *depth, sinew_image *depth_mm)
 {
     if (!s || !depth || !depth_mm)
         return SINEW_EINVAL;

@@ -55,8 +55,7 @@ int sinew_synth_new(sinew_ctx *ctx, sinew_synth **out, const sinew_synth_params 
 void sinew_synth_free(sinew_synth *s);
 
 /* Pinhole intrinsics in pixels (pixel centres at integers). */
-void sinew_synth_intrinsics(const sinew_synth *s, double *fx, double *fy, double *cx,
-                            double *cy);
+void sinew_synth_intrinsics(const sinew_synth *s, double *fx, double *fy, double *cx, double *cy);
 
 /* Camera-to-world pose of a frame: 3x4 row-major [R | t], metres; world z is up and the
  * tray is the plane z = 0. EINVAL if frame is out of range. */
@@ -78,8 +77,8 @@ int sinew_synth_render(sinew_synth *s, int frame, sinew_image *color, sinew_imag
  *   scene_flow SINEW_F32 3 channels, metres (see the header comment), NaN where `from`
  *              sees nothing.
  * ESIZE for wrong shapes, EINVAL for bad frame indices. */
-int sinew_synth_truth(sinew_synth *s, int from, int to, sinew_image *flow,
-                      sinew_image *occlusion, sinew_image *scene_flow);
+int sinew_synth_truth(sinew_synth *s, int from, int to, sinew_image *flow, sinew_image *occlusion,
+                      sinew_image *scene_flow);
 
 /* Exact ground truth at one sub-pixel position (x, y) of frame `from` (the same
  * computation sinew_synth_truth does at pixel centres). */
@@ -90,8 +89,7 @@ typedef struct sinew_synth_point {
     int occluded;         /* 1 if hidden or outside the image in `to` (or nothing seen) */
     double scene_flow[3]; /* metres, as in sinew_synth_truth; NaN if nothing */
 } sinew_synth_point;
-int sinew_synth_query(sinew_synth *s, int from, int to, double x, double y,
-                      sinew_synth_point *out);
+int sinew_synth_query(sinew_synth *s, int from, int to, double x, double y, sinew_synth_point *out);
 
 /* Convert an exact depth map (SINEW_F32, metres, NaN = none) of frame `frame` to the
  * 16-bit millimetre codes that are written to disk (SINEW_U16 1 channel, 0 = invalid),

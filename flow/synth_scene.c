@@ -199,7 +199,8 @@ void sinew__synth_state_at(const sinew__synth_scene *sc, double frame, sinew__sy
     }
 
     /* probe: presses in over the first third, drags along a bent path */
-    st->dent_depth = sc->dent_depth0 + (sc->dent_depth1 - sc->dent_depth0) * smoothstep(0, 0.35, ph);
+    st->dent_depth =
+        sc->dent_depth0 + (sc->dent_depth1 - sc->dent_depth0) * smoothstep(0, 0.35, ph);
     double a = smoothstep(0.1, 1.0, ph);
     double dl = sqrt(sc->drag_end[0] * sc->drag_end[0] + sc->drag_end[1] * sc->drag_end[1]);
     double bend = sc->drag_bend * 4 * a * (1 - a) / (dl > 0 ? dl : 1);
@@ -230,12 +231,17 @@ void sinew__synth_to_camera(const sinew__synth_state *st, const double Xw[3], do
 int sinew__synth_label(int part)
 {
     switch (part) {
-    case SINEW__PART_TRAY: return 1;
+    case SINEW__PART_TRAY:
+        return 1;
     case SINEW__PART_PAD_TOP:
-    case SINEW__PART_PAD_SIDE: return 2;
-    case SINEW__PART_BLOCK: return 3;
-    case SINEW__PART_PROBE: return 4;
-    default: return 0;
+    case SINEW__PART_PAD_SIDE:
+        return 2;
+    case SINEW__PART_BLOCK:
+        return 3;
+    case SINEW__PART_PROBE:
+        return 4;
+    default:
+        return 0;
     }
 }
 
@@ -314,8 +320,8 @@ static void drag_inverse(const sinew__synth_scene *sc, const sinew__synth_state 
 
 /* Slab test against an axis-aligned box; returns the entry distance (or INFINITY) and
  * the entry axis (0, 1, 2) and sign of the outward normal. */
-static double ray_box(const double o[3], const double u[3], const double lo[3],
-                      const double hi[3], int *axis, int *sign)
+static double ray_box(const double o[3], const double u[3], const double lo[3], const double hi[3],
+                      int *axis, int *sign)
 {
     double tn = -INFINITY, tf = INFINITY;
     int ax = -1, sg = 0;
@@ -470,8 +476,7 @@ static void cast_pad(const sinew__synth_scene *sc, const sinew__synth_state *st,
 }
 
 static void cast_block(const sinew__synth_scene *sc, const sinew__synth_state *st,
-                       const double o[3], const double u[3], sinew__synth_hit *best,
-                       double *tbest)
+                       const double o[3], const double u[3], sinew__synth_hit *best, double *tbest)
 {
     double c = st->block_cos, s = st->block_sin;
     double dx = o[0] - st->block_c[0], dy = o[1] - st->block_c[1];
@@ -501,8 +506,7 @@ static void cast_block(const sinew__synth_scene *sc, const sinew__synth_state *s
 }
 
 static void cast_probe(const sinew__synth_scene *sc, const sinew__synth_state *st,
-                       const double o[3], const double u[3], sinew__synth_hit *best,
-                       double *tbest)
+                       const double o[3], const double u[3], sinew__synth_hit *best, double *tbest)
 {
     double pb[3];
     for (int i = 0; i < 3; i++)

@@ -137,7 +137,7 @@ static double lines(double x, double p, double hw, double w)
     w = hypot(w, 0.0009);
     double d = fabs(x / p - floor(x / p + 0.5)) * p; /* distance to nearest line centre */
     double cov = 0;
-    for (int k = 0; k < 2; k++) {                  /* nearest line and the next one */
+    for (int k = 0; k < 2; k++) { /* nearest line and the next one */
         double c = k == 0 ? d : p - d;
         double lo = fmax(c - w / 2, -hw), hi = fmin(c + w / 2, hw);
         if (hi > lo)
@@ -190,8 +190,8 @@ static void tray_albedo(const sinew__synth_scene *sc, const double m[3], footpri
     mix3(c, line, 0.55 * fmax(minor, major));
 }
 
-static void pad_albedo(const sinew__synth_scene *sc, const double m[3], int top,
-                       const double n[3], footprint fp, double c[3])
+static void pad_albedo(const sinew__synth_scene *sc, const double m[3], int top, const double n[3],
+                       footprint fp, double c[3])
 {
     for (int i = 0; i < 3; i++)
         c[i] = sc->tint[2][i];
@@ -337,11 +337,21 @@ void sinew__synth_shade(const sinew__synth_scene *sc, const sinew__synth_state *
                   sqrt(dy[0] * dy[0] + dy[1] * dy[1] + dy[2] * dy[2]));
     footprint fp = fp_make(wa, wb);
     switch (hit->part) {
-    case SINEW__PART_TRAY: tray_albedo(sc, hit->m, fp, rgb); break;
-    case SINEW__PART_PAD_TOP: pad_albedo(sc, hit->m, 1, hit->n, fp, rgb); break;
-    case SINEW__PART_PAD_SIDE: pad_albedo(sc, hit->m, 0, hit->n, fp, rgb); break;
-    case SINEW__PART_BLOCK: block_albedo(sc, hit->m, fp, rgb); break;
-    default: probe_albedo(sc, hit->m, fp, rgb); break;
+    case SINEW__PART_TRAY:
+        tray_albedo(sc, hit->m, fp, rgb);
+        break;
+    case SINEW__PART_PAD_TOP:
+        pad_albedo(sc, hit->m, 1, hit->n, fp, rgb);
+        break;
+    case SINEW__PART_PAD_SIDE:
+        pad_albedo(sc, hit->m, 0, hit->n, fp, rgb);
+        break;
+    case SINEW__PART_BLOCK:
+        block_albedo(sc, hit->m, fp, rgb);
+        break;
+    default:
+        probe_albedo(sc, hit->m, fp, rgb);
+        break;
     }
     double nl = hit->n[0] * sc->light[0] + hit->n[1] * sc->light[1] + hit->n[2] * sc->light[2];
     double shade = 0.32 + 0.68 * (nl > 0 ? nl : 0);

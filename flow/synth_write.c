@@ -34,7 +34,18 @@ static int join(sinew_ctx *ctx, char *buf, size_t n, const char *dir, const char
     return SINEW_OK;
 }
 
-enum { IMG_COLOR, IMG_DEPTH, IMG_MM, IMG_LABELS, IMG_FWD, IMG_BWD, IMG_OFWD, IMG_OBWD, IMG_SF, IMG_N };
+enum {
+    IMG_COLOR,
+    IMG_DEPTH,
+    IMG_MM,
+    IMG_LABELS,
+    IMG_FWD,
+    IMG_BWD,
+    IMG_OFWD,
+    IMG_OBWD,
+    IMG_SF,
+    IMG_N
+};
 
 static int write_frame(sinew_synth *s, const char *dir, int t, sinew_image *im)
 {
@@ -95,7 +106,8 @@ static int build_sequence(sinew_synth *s, sinew_sequence *seq)
     static const char *const labels[] = {"background", "tray", "pad", "block", "probe"};
     char c[64], d[64], l[64], a[80], b[80], e[80], f[80], g[80];
     int st;
-    if ((st = sinew_sequence_set_name(seq, "sinew demo scene (invented): probe on a silicone pad")) ||
+    if ((st = sinew_sequence_set_name(seq,
+                                      "sinew demo scene (invented): probe on a silicone pad")) ||
         (st = sinew_sequence_set_label_names(seq, labels, 5)))
         return st;
     seq->has_intrinsics = 1;
@@ -137,9 +149,15 @@ int sinew_synth_write(sinew_synth *s, const char *dir)
         return SINEW_EINVAL;
     sinew_ctx *ctx = sinew__synth_ctx(s);
     const sinew_synth_params *P = sinew__synth_params(s);
-    static const char *const sub[] = {"color", "depth", "labels", "truth", "truth/flow_forward",
-                                      "truth/flow_backward", "truth/occlusion_forward",
-                                      "truth/occlusion_backward", "truth/scene_flow"};
+    static const char *const sub[] = {"color",
+                                      "depth",
+                                      "labels",
+                                      "truth",
+                                      "truth/flow_forward",
+                                      "truth/flow_backward",
+                                      "truth/occlusion_forward",
+                                      "truth/occlusion_backward",
+                                      "truth/scene_flow"};
     char path[4200];
     int st = make_dir(ctx, dir);
     for (size_t i = 0; !st && i < sizeof sub / sizeof *sub; i++)
@@ -150,8 +168,8 @@ int sinew_synth_write(sinew_synth *s, const char *dir)
     static const struct {
         int ch;
         sinew_type type;
-    } shape[IMG_N] = {{3, SINEW_U8}, {1, SINEW_F32}, {1, SINEW_U16}, {1, SINEW_U8}, {2, SINEW_F32},
-                      {2, SINEW_F32}, {1, SINEW_U8}, {1, SINEW_U8}, {3, SINEW_F32}};
+    } shape[IMG_N] = {{3, SINEW_U8},  {1, SINEW_F32}, {1, SINEW_U16}, {1, SINEW_U8}, {2, SINEW_F32},
+                      {2, SINEW_F32}, {1, SINEW_U8},  {1, SINEW_U8},  {3, SINEW_F32}};
     sinew_image im[IMG_N];
     memset(im, 0, sizeof im);
     for (int i = 0; !st && i < IMG_N; i++)

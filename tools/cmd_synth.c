@@ -71,10 +71,13 @@ int cmd_synth(int argc, char **argv)
     optind = 1;
     while ((c = getopt_long(argc, argv, ":o:n:s:j:h", opts, NULL)) != -1) {
         switch (c) {
-        case 'o': dir = optarg; break;
+        case 'o':
+            dir = optarg;
+            break;
         case 'n':
             if (cli_parse_int(optarg, 2, 1000000, &v))
-                return cli_usage_error(CMD, "--frames: '%s' is not an integer in 2..1000000", optarg);
+                return cli_usage_error(CMD, "--frames: '%s' is not an integer in 2..1000000",
+                                       optarg);
             p.frames = (int)v;
             break;
         case 's':
@@ -83,16 +86,23 @@ int cmd_synth(int argc, char **argv)
             break;
         case 'S':
             if (parse_seed(optarg, &p.seed))
-                return cli_usage_error(CMD, "--seed: '%s' is not an unsigned 64-bit integer", optarg);
+                return cli_usage_error(CMD, "--seed: '%s' is not an unsigned 64-bit integer",
+                                       optarg);
             break;
-        case 'N': p.depth_noise = 1; break;
+        case 'N':
+            p.depth_noise = 1;
+            break;
         case 'j':
             if (cli_parse_int(optarg, 0, 4096, &threads))
                 return cli_usage_error(CMD, "--threads: '%s' is not an integer in 0..4096", optarg);
             break;
-        case 'h': usage(stdout); return CLI_OK;
-        case ':': return cli_usage_error(CMD, "option '%s' needs a value", argv[optind - 1]);
-        default: return cli_usage_error(CMD, "unknown option '%s'", argv[optind - 1]);
+        case 'h':
+            usage(stdout);
+            return CLI_OK;
+        case ':':
+            return cli_usage_error(CMD, "option '%s' needs a value", argv[optind - 1]);
+        default:
+            return cli_usage_error(CMD, "unknown option '%s'", argv[optind - 1]);
         }
     }
     if (optind < argc)

@@ -16,10 +16,10 @@
 enum {
     SINEW__PART_NONE = 0,
     SINEW__PART_TRAY = 1,
-    SINEW__PART_PAD_TOP = 2,  /* the deforming top of the pad */
+    SINEW__PART_PAD_TOP = 2, /* the deforming top of the pad */
     SINEW__PART_BLOCK = 3,
     SINEW__PART_PROBE = 4,
-    SINEW__PART_PAD_SIDE = 5  /* the four static side walls of the pad */
+    SINEW__PART_PAD_SIDE = 5 /* the four static side walls of the pad */
 };
 
 /* Everything fixed for a seed and an image size: intrinsics, motion constants,
@@ -55,18 +55,18 @@ typedef struct sinew__synth_state {
     double o[3];      /* camera centre in world coordinates (metres) */
     double dent_c[2]; /* dent centre = probe contact point (world xy) */
     double dent_depth;
-    double drag[2];   /* lateral displacement of the anchor material point */
-    double tip[3];    /* probe tip sphere centre */
+    double drag[2]; /* lateral displacement of the anchor material point */
+    double tip[3];  /* probe tip sphere centre */
     double block_c[3], block_cos, block_sin;
 } sinew__synth_state;
 
 /* One ray hit. */
 typedef struct sinew__synth_hit {
-    int part;         /* SINEW__PART_*, NONE if the ray hits nothing */
-    double depth;     /* camera z of the hit (metres) */
-    double X[3];      /* world position */
-    double m[3];      /* material coordinates (meaning depends on the part) */
-    double n[3];      /* unit world normal (for shading) */
+    int part;     /* SINEW__PART_*, NONE if the ray hits nothing */
+    double depth; /* camera z of the hit (metres) */
+    double X[3];  /* world position */
+    double m[3];  /* material coordinates (meaning depends on the part) */
+    double n[3];  /* unit world normal (for shading) */
 } sinew__synth_hit;
 
 void sinew__synth_scene_init(sinew__synth_scene *sc, uint64_t seed, int width, int height);

@@ -352,7 +352,8 @@ static void test_synth_deterministic_any_threads(void **state)
     assert_int_equal(sinew_synth_render(s, 7, &f.color, NULL, NULL), SINEW_OK);
     size_t diff = 0;
     for (int y = 0; y < H; y++)
-        diff += memcmp(sinew_image_row(&f.color, y), sinew_image_row(&ref.color, y), (size_t)W * 3) != 0;
+        diff += memcmp(sinew_image_row(&f.color, y), sinew_image_row(&ref.color, y),
+                       (size_t)W * 3) != 0;
     assert_true(diff > (size_t)H / 2);
     free_set(&f);
     free_set(&ref);
@@ -388,7 +389,7 @@ static void test_synth_depth_noise(void **state)
             double z = sinew_image_row_f32(&f.depth, y)[x];
             uint16_t exact = sinew_image_row_u16(&mm[0], y)[x];
             uint16_t noisy = sinew_image_row_u16(&mm[1], y)[x];
-            assert_int_equal(exact, (uint16_t)floor(z * 1000 + 0.5)); /* millimetres */
+            assert_int_equal(exact, (uint16_t)floor(z * 1000 + 0.5));   /* millimetres */
             assert_int_equal(noisy, sinew_image_row_u16(&mm[2], y)[x]); /* seeded */
             if (!noisy) {
                 holes++;
@@ -482,12 +483,14 @@ static void test_synth_write_files(void **state)
     assert_int_equal(sinew_synth_depth_mm(s, 1, &f.depth, &mm), SINEW_OK);
     assert_int_equal(sinew_synth_truth(s, 1, 2, &f.flow, &f.occ, &f.sf), SINEW_OK);
     sinew_image rd;
-    assert_int_equal(sinew_sequence_resolve(seq, seq->frames[1].color, path, sizeof path), SINEW_OK);
+    assert_int_equal(sinew_sequence_resolve(seq, seq->frames[1].color, path, sizeof path),
+                     SINEW_OK);
     assert_int_equal(sinew_image_read(ctx, &rd, path), SINEW_OK);
     for (int y = 0; y < H; y++)
         assert_memory_equal(sinew_image_row(&rd, y), sinew_image_row(&f.color, y), (size_t)W * 3);
     sinew_image_free(&rd);
-    assert_int_equal(sinew_sequence_resolve(seq, seq->frames[1].depth, path, sizeof path), SINEW_OK);
+    assert_int_equal(sinew_sequence_resolve(seq, seq->frames[1].depth, path, sizeof path),
+                     SINEW_OK);
     assert_int_equal(sinew_image_read(ctx, &rd, path), SINEW_OK);
     assert_int_equal(rd.type, SINEW_U16);
     for (int y = 0; y < H; y++)
@@ -506,8 +509,8 @@ static void test_synth_write_files(void **state)
     for (int y = 0; y < H; y++)
         assert_memory_equal(sinew_image_row(&rd, y), sinew_image_row(&f.sf, y), (size_t)W * 12);
     sinew_image_free(&rd);
-    assert_int_equal(sinew_sequence_resolve(seq, seq->pairs[1].occlusion_forward, path, sizeof path),
-                     SINEW_OK);
+    assert_int_equal(
+        sinew_sequence_resolve(seq, seq->pairs[1].occlusion_forward, path, sizeof path), SINEW_OK);
     assert_int_equal(sinew_image_read(ctx, &rd, path), SINEW_OK);
     for (int y = 0; y < H; y++)
         assert_memory_equal(sinew_image_row(&rd, y), sinew_image_row(&f.occ, y), (size_t)W);

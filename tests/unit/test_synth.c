@@ -277,6 +277,76 @@ static void test_synth_scene_flow_and_occlusion_agree_with_depth(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* Scene flow expressed in world coordinates with the camera poses: the tray does not
+ * move, the probe translates rigidly, the pad's rim stays put while the material near
+ * the probe moves (a non-rigid deformation), and the block moves. */
+static void test_synth_world_motion_by_part(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    const int W = 160, H = 120, a = 10, b = 11;
+    sinew_synth *s = make(ctx, W, H, 30, 2);
+    double fx, fy, cx, cy, Pa[12], Pb[12];
+    sinew_synth_intrinsics(s, &fx, &fy, &cx, &cy);
+    assert_int_equal(sinew_synth_pose(s, a, Pa), SINEW_OK);
+    assert_int_equal(sinew_synth_pose(s, b, Pb), SINEW_OK);
+    assert_int_equal(sinew_synth_pose(s, 30, Pb), SINEW_EINVAL);
+    assert_int_equal(sinew_synth_pose(s, b, Pb), SINEW_OK);
+    frame_set f;
+    alloc_set(ctx, &f, W, H);
+    assert_int_equal(sinew_synth_render(s, a, &f.color, &f.depth, &f.labels), SINEW_OK);
+    assert_int_equal(sinew_synth_truth(s, a, b, &f.flow, &f.occ, &f.sf), SINEW_OK);
+    double tray_max = 0, probe_ref[3] = {0, 0, 0}, probe_dev = 0, block_min = 1e9;
+    size_t pad_moving = 0, pad_still = 0, probe_n = 0;
+    for (int y = 0; y < H; y++)
+        for (int x = 0; x < W; x++) {
+            double z = sinew_image_row_f32(&f.depth, y)[x];
+            const float *sf = sinew_image_row_f32(&f.sf, y) + 3 * x;
+            double Xa[3] = {z * (x - cx) / fx, z * (y - cy) / fy, z};
+            double Xb[3] = {Xa[0] + sf[0], Xa[1] + sf[1], Xa[2] + sf[2]};
+            double m[3];
+            for (int i = 0; i < 3; i++) {
+                double wa = Pa[4 * i + 3], wb = Pb[4 * i + 3];
+                for (int j = 0; j < 3; j++) {
+                    wa += Pa[4 * i + j] * Xa[j];
+                    wb += Pb[4 * i + j] * Xb[j];
+                }
+                m[i] = wb - wa;
+            }
+            double len = sqrt(m[0] * m[0] + m[1] * m[1] + m[2] * m[2]);
+            switch (sinew_image_row_u8(&f.labels, y)[x]) {
+            case 1:
+                tray_max = fmax(tray_max, len);
+                break;
+            case 2:
+                if (len > 1e-4)
+                    pad_moving++;
+                else if (len < 1e-5)
+                    pad_still++;
+                break;
+            case 3:
+                block_min = fmin(block_min, len);
+                break;
+            case 4:
+                if (probe_n++ == 0)
+                    memcpy(probe_ref, m, sizeof m);
+                probe_dev = fmax(probe_dev, fabs(m[0] - probe_ref[0]) + fabs(m[1] - probe_ref[1]) +
+                                                fabs(m[2] - probe_ref[2]));
+                break;
+            }
+        }
+    print_message("tray max %.2e m, pad moving %zu still %zu, block min %.2e m, probe spread "
+                  "%.2e m over %zu px\n",
+                  tray_max, pad_moving, pad_still, block_min, probe_dev, probe_n);
+    assert_true(tray_max < 1e-5); /* float32 depth and scene flow: ~1e-7 relative */
+    assert_true(pad_moving > 50 && pad_still > 50);
+    assert_true(block_min > 1e-3);
+    assert_true(probe_n > 20 && probe_dev < 1e-5);
+    free_set(&f);
+    sinew_synth_free(s);
+    sinew_ctx_free(ctx);
+}
+
 static void test_synth_labels_and_depth_plausible(void **state)
 {
     (void)state;
@@ -555,6 +625,7 @@ int main(void)
         cmocka_unit_test(test_synth_warp_reproduces_frame),
         cmocka_unit_test(test_synth_forward_backward_inverse),
         cmocka_unit_test(test_synth_scene_flow_and_occlusion_agree_with_depth),
+        cmocka_unit_test(test_synth_world_motion_by_part),
         cmocka_unit_test(test_synth_labels_and_depth_plausible),
         cmocka_unit_test(test_synth_deterministic_any_threads),
         cmocka_unit_test(test_synth_depth_noise),

@@ -1,6 +1,6 @@
 # SPDX-License-Identifier: MIT
-# Helpers for demo/run (python3 + numpy only): read the demo scene's ground truth and
-# score estimated flow against it.
+# Helpers for demo/run and tests/cli/test_synth.sh (python3 + numpy only): read the
+# demo scene's files and score estimated flow against its ground truth.
 #   python3 demo/truth.py summary SCENE            how far things move, zero-flow EPE
 #   python3 demo/truth.py epe SCENE PAIR EST.flo   end-point error of an estimate for
 #                                                  pair number PAIR of sequence.json
@@ -24,31 +24,38 @@ def read_flo(path):
     return f
 
 
-def read_png_gray8(path):
-    # 8-bit gray, non-interlaced PNG (what sinew writes for masks and labels)
+def read_png(path):
+    """Decode a non-interlaced 8- or 16-bit gray or RGB PNG (what sinew writes) into an
+    H x W x C float64 array of raw sample values. Pure Python + zlib: fine for masks and
+    small images."""
     data = open(path, 'rb').read()
+    if data[:8] != b'\x89PNG\r\n\x1a\n':
+        raise ValueError(path + ': not a PNG file')
     pos, idat = 8, b''
     while pos < len(data):
         n, kind = struct.unpack('>I4s', data[pos:pos + 8])
         body = data[pos + 8:pos + 8 + n]
         if kind == b'IHDR':
             w, h, depth, ctype, _, _, interlace = struct.unpack('>IIBBBBB', body)
-            if depth != 8 or ctype != 0 or interlace:
-                raise ValueError(path + ': expected 8-bit gray')
+            if depth not in (8, 16) or ctype not in (0, 2) or interlace:
+                raise ValueError(path + ': unsupported PNG variant')
         elif kind == b'IDAT':
             idat += body
         pos += 12 + n
+    ch = 1 if ctype == 0 else 3
+    bpp = ch * depth // 8
+    stride = w * bpp
     raw = zlib.decompress(idat)
-    out = bytearray(w * h)
-    prev = bytearray(w)
+    out = bytearray(h * stride)
+    prev = bytearray(stride)
     for y in range(h):
-        f = raw[y * (w + 1)]
-        line = raw[y * (w + 1) + 1:(y + 1) * (w + 1)]
-        cur = bytearray(w)
-        for i in range(w):
-            a = cur[i - 1] if i else 0
+        f = raw[y * (stride + 1)]
+        line = raw[y * (stride + 1) + 1:(y + 1) * (stride + 1)]
+        cur = bytearray(stride)
+        for i in range(stride):
+            a = cur[i - bpp] if i >= bpp else 0
             b = prev[i]
-            c = prev[i - 1] if i else 0
+            c = prev[i - bpp] if i >= bpp else 0
             if f == 0:
                 p = 0
             elif f == 1:
@@ -61,9 +68,10 @@ def read_png_gray8(path):
                 pa, pb, pc = abs(b - c), abs(a - c), abs(a + b - 2 * c)
                 p = a if pa <= pb and pa <= pc else (b if pb <= pc else c)
             cur[i] = (line[i] + p) & 255
-        out[y * w:(y + 1) * w] = cur
+        out[y * stride:(y + 1) * stride] = cur
         prev = cur
-    return np.frombuffer(bytes(out), np.uint8).reshape(h, w)
+    dtype = np.uint8 if depth == 8 else np.dtype('>u2')
+    return np.frombuffer(bytes(out), dtype).reshape(h, w, ch).astype(np.float64)
 
 
 def main():
@@ -74,7 +82,7 @@ def main():
             f = read_flo(root + '/' + p['flow_forward'])
             m = np.hypot(f[..., 0], f[..., 1])
             m = m[np.isfinite(m)]
-            occ = read_png_gray8(root + '/' + p['occlusion_forward'])
+            occ = read_png(root + '/' + p['occlusion_forward'])[..., 0]
             sf = np.load(root + '/' + p['scene_flow'])
             s = np.linalg.norm(sf, axis=-1)
             s = s[np.isfinite(s)]
@@ -86,7 +94,7 @@ def main():
         p = seq['pairs'][int(sys.argv[3])]
         gt = read_flo(root + '/' + p['flow_forward'])
         est = read_flo(sys.argv[4])
-        occ = read_png_gray8(root + '/' + p['occlusion_forward']) > 0
+        occ = read_png(root + '/' + p['occlusion_forward'])[..., 0] > 0
         known = np.isfinite(gt).all(-1)
         e = np.hypot(est[..., 0] - gt[..., 0], est[..., 1] - gt[..., 1])
         e[~np.isfinite(e) & known] = np.inf  # an estimate with holes counts as wrong

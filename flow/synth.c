@@ -51,21 +51,24 @@ int sinew_synth_new(sinew_ctx *ctx, sinew_synth **out, const sinew_synth_params 
         return SINEW_EINVAL;
     *out = NULL;
     if (p->width < 8 || p->height < 8)
-        return sinew__fail(ctx, SINEW_EINVAL, "synth: size %dx%d is below the minimum 8x8",
-                           p->width, p->height);
+        return sinew__fail(ctx, SINEW_EINVAL, "image size %dx%d is below the minimum 8x8", p->width,
+                           p->height);
     if (p->frames < 2)
-        return sinew__fail(ctx, SINEW_EINVAL, "synth: frames must be at least 2 (got %d)",
-                           p->frames);
+        return sinew__fail(ctx, SINEW_EINVAL, "frames must be at least 2 (got %d)", p->frames);
     if (p->frames > 1000000)
-        return sinew__fail(ctx, SINEW_EINVAL, "synth: frames must be at most 1000000");
+        return sinew__fail(ctx, SINEW_EINVAL, "frames must be at most 1000000");
     if (p->depth_noise != 0 && p->depth_noise != 1)
-        return sinew__fail(ctx, SINEW_EINVAL, "synth: depth_noise must be 0 or 1");
-    int st = sinew__check_dims(ctx, "synth", p->width, p->height);
+        return sinew__fail(ctx, SINEW_EINVAL, "depth_noise must be 0 or 1");
+    int st = sinew__check_dims(ctx, "image size", p->width, p->height);
     if (st)
         return st;
+    if ((int64_t)p->width * p->height > SINEW_SYNTH_MAX_PIXELS)
+        return sinew__fail(ctx, SINEW_ELIMIT,
+                           "image size %dx%d exceeds the demo scene's limit of %lld pixels",
+                           p->width, p->height, (long long)SINEW_SYNTH_MAX_PIXELS);
     size_t n = (size_t)p->width * (size_t)p->height, b3;
     if (sinew__mul_size(n, 3 * sizeof(double), &b3))
-        return sinew__fail(ctx, SINEW_EOVERFLOW, "synth: image too large");
+        return sinew__fail(ctx, SINEW_EOVERFLOW, "image size too large");
     sinew_synth *s = sinew__calloc(ctx, 1, sizeof *s);
     if (!s)
         return SINEW_ENOMEM;
@@ -112,8 +115,8 @@ void sinew_synth_intrinsics(const sinew_synth *s, double *fx, double *fy, double
 static int check_frame(const sinew_synth *s, int frame, const char *what)
 {
     if (frame < 0 || frame >= s->p.frames)
-        return sinew__fail(s->ctx, SINEW_EINVAL, "synth: %s frame %d out of range 0..%d", what,
-                           frame, s->p.frames - 1);
+        return sinew__fail(s->ctx, SINEW_EINVAL, "%s frame %d out of range 0..%d", what, frame,
+                           s->p.frames - 1);
     return SINEW_OK;
 }
 
@@ -142,7 +145,7 @@ static int check_out(sinew_synth *s, const sinew_image *img, int channels, sinew
     if (!img->data || img->width != s->p.width || img->height != s->p.height ||
         img->channels != channels || img->type != type)
         return sinew__fail(s->ctx, SINEW_ESIZE,
-                           "synth: %s must be a %dx%d image with %d channel(s) of type %d", what,
+                           "%s must be a %dx%d image with %d channel(s) of type %d", what,
                            s->p.width, s->p.height, channels, (int)type);
     return SINEW_OK;
 }
@@ -269,7 +272,7 @@ int sinew_synth_truth(sinew_synth *s, int from, int to, sinew_image *flow, sinew
         (st = check_out(s, scene_flow, 3, SINEW_F32, "scene flow")))
         return st;
     if (from == to)
-        return sinew__fail(s->ctx, SINEW_EINVAL, "synth: truth needs two different frames");
+        return sinew__fail(s->ctx, SINEW_EINVAL, "truth needs two different frames");
     if (s->cached != from)
         cast_grid(s, from, NULL, NULL, NULL);
     const sinew__synth_scene *sc = &s->scene;

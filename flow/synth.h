@@ -31,6 +31,10 @@
 extern "C" {
 #endif
 
+/* Largest image the generator accepts (width * height): it keeps ~60 bytes of ray hits
+ * per pixel, so 2^24 pixels (e.g. 4096 x 4096) need about 1 GB. */
+#define SINEW_SYNTH_MAX_PIXELS ((int64_t)1 << 24)
+
 /* Generation settings (a plain value type). */
 typedef struct sinew_synth_params {
     int width;       /* pixels, >= 8 (default 640); the focal length scales with it */
@@ -49,7 +53,8 @@ void sinew_synth_params_default(sinew_synth_params *p);
  * frame cast. */
 typedef struct sinew_synth sinew_synth;
 
-/* Create a generator. EINVAL (message names the field) for bad parameters, ENOMEM.
+/* Create a generator. EINVAL (message names the field) for bad parameters, ELIMIT above
+ * SINEW_SYNTH_MAX_PIXELS or the context's pixel limit, ENOMEM.
  * The context must outlive the generator. Free with sinew_synth_free. */
 int sinew_synth_new(sinew_ctx *ctx, sinew_synth **out, const sinew_synth_params *p);
 void sinew_synth_free(sinew_synth *s);

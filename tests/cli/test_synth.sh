@@ -3,7 +3,7 @@
 # sequence.json; an independent numpy check (Debian python3-numpy, own PNG decoder on
 # Python's zlib) confirms that depth PNG + intrinsics + scene flow reproject onto
 # p + flow; output is byte-identical across thread counts; bad arguments give one
-# stderr line and no output.
+# stderr line and no output. Run from the repository root (tests/run does).
 . "$(dirname "$0")/lib.sh"
 
 if "$SINEW_BIN" synth --help >"$T/h" 2>&1 && grep -q 'sinew synth' "$T/h" &&
@@ -18,56 +18,10 @@ if [ "$n" -eq 20 ]; then pass "synth writes 20 files"; else fail "synth file cou
 if ls -R "$T/a" | grep -q '\.tmp-'; then fail "synth temporaries" "left behind"; else pass "synth leaves no temporaries"; fi
 
 cat >"$T/check.py" <<'EOF'
-import json, struct, sys, zlib
+import json, sys
 import numpy as np
-
-def read_png(path):
-    # minimal PNG decoder: 8/16-bit gray or RGB, no interlace (enough for sinew's writer)
-    data = open(path, 'rb').read()
-    assert data[:8] == b'\x89PNG\r\n\x1a\n'
-    pos, idat = 8, b''
-    while pos < len(data):
-        n, kind = struct.unpack('>I4s', data[pos:pos + 8])
-        body = data[pos + 8:pos + 8 + n]
-        if kind == b'IHDR':
-            w, h, depth, ctype, _, _, interlace = struct.unpack('>IIBBBBB', body)
-        elif kind == b'IDAT':
-            idat += body
-        pos += 12 + n
-    assert interlace == 0
-    ch = {0: 1, 2: 3}[ctype]
-    bpp = ch * depth // 8
-    raw = zlib.decompress(idat)
-    stride = w * bpp
-    out = np.zeros((h, stride), np.uint8)
-    prev = np.zeros(stride, np.int32)
-    for y in range(h):
-        f = raw[y * (stride + 1)]
-        line = np.frombuffer(raw[y * (stride + 1) + 1:(y + 1) * (stride + 1)], np.uint8).astype(np.int32)
-        cur = np.zeros(stride, np.int32)
-        for i in range(stride):
-            a = cur[i - bpp] if i >= bpp else 0
-            b = prev[i]
-            c = prev[i - bpp] if i >= bpp else 0
-            if f == 0: p = 0
-            elif f == 1: p = a
-            elif f == 2: p = b
-            elif f == 3: p = (a + b) // 2
-            else:
-                pa, pb, pc = abs(b - c), abs(a - c), abs(a + b - 2 * c)
-                p = a if pa <= pb and pa <= pc else (b if pb <= pc else c)
-            cur[i] = (line[i] + p) & 255
-        out[y] = cur
-        prev = cur
-    if depth == 16:
-        return out.view('>u2').reshape(h, w, ch).astype(np.float64)
-    return out.reshape(h, w, ch).astype(np.float64)
-
-def read_flo(path):
-    d = open(path, 'rb').read()
-    assert d[:4] == b'PIEH'
-    w, h = struct.unpack('<ii', d[4:12])
-    return np.frombuffer(d[12:], '<f4').reshape(h, w, 2).astype(np.float64)
+sys.path.insert(0, 'demo')
+from truth import read_png, read_flo  # the demo's numpy readers (own PNG decoder)
 
 root = sys.argv[1]
 seq = json.load(open(root + '/sequence.json'))
@@ -119,6 +73,8 @@ expect_error "synth --frames 1" - "--frames: '1'" "$SINEW_BIN" synth -o "$T/e" -
 expect_error "synth --size 4x4" - "--size: '4x4'" "$SINEW_BIN" synth -o "$T/e" --size 4x4
 expect_error "synth --size junk" - "--size: 'big'" "$SINEW_BIN" synth -o "$T/e" --size big
 expect_error "synth --seed -1" - "--seed: '-1'" "$SINEW_BIN" synth -o "$T/e" --seed -1
+expect_error "synth huge size" "$T/big" "image size: 100000x100000 exceeds" \
+    "$SINEW_BIN" synth -o "$T/big" --size 100000x100000
 expect_error "synth unknown option" - "unknown option '--colour'" "$SINEW_BIN" synth -o "$T/e" --colour
 expect_error "synth extra argument" - "unexpected argument 'x'" "$SINEW_BIN" synth -o "$T/e" x
 expect_error "synth missing parent" "$T/nope/out" "nope/out: cannot create folder" \

@@ -86,6 +86,10 @@ static void test_synth_params_rejected(void **state)
     p.width = 100000;
     p.height = 100000;
     assert_int_equal(sinew_synth_new(ctx, &s, &p), SINEW_ELIMIT);
+    p.width = 4097;
+    p.height = 4096;
+    assert_int_equal(sinew_synth_new(ctx, &s, &p), SINEW_ELIMIT);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "4097x4096 exceeds"));
     s = make(ctx, 32, 24, 3, 1);
     sinew_image wrong;
     assert_int_equal(sinew_image_alloc(ctx, &wrong, 31, 24, 3, SINEW_U8), SINEW_OK);

@@ -162,6 +162,21 @@ int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *p
  * round-trip float32). Atomic. */
 int sinew_matches_save_csv(sinew_ctx *ctx, const sinew_matches *m, const char *path);
 
+/* ---- readers for the match/lift inputs (need flow/io.h) ---- */
+
+/* Read a label image: one-channel 8- or 16-bit PNG (or PGM) of ids. Colour or float
+ * images are SINEW_EUNSUPPORTED naming the file. */
+int sinew_labels_read(sinew_ctx *ctx, sinew_image *labels, const char *path);
+
+/* Read the check stage's folder: DIR/mask.png (8-bit gray, 0 = kept) into *mask and
+ * DIR/confidence.npy (H x W float in [0, 1]) into *confidence. The two paths are
+ * written to mask_path / confidence_path (buffers of path_size bytes) for messages and
+ * provenance. Errors name the file: EIO (missing), EFORMAT, ESIZE (sizes differ),
+ * EVALUE (confidence NaN or outside [0, 1]). On failure both images are freed. */
+int sinew_match_read_check(sinew_ctx *ctx, const char *dir, sinew_image *mask,
+                           sinew_image *confidence, char *mask_path, char *confidence_path,
+                           size_t path_size);
+
 #ifdef __cplusplus
 }
 #endif

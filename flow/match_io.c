@@ -1,0 +1,432 @@
+/* SPDX-License-Identifier: MIT */
+/* Match files: the npy table with its JSON sidecar, PLY (points + segments) and CSV
+ * writers, and the readers the match/lift commands need (check folder, label images,
+ * depth maps). Formats: docs/formats.md "Matches". cJSON stays inside this file. */
+#define _POSIX_C_SOURCE 200809L
+#include <cJSON.h>
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "flow/check.h"
+#include "flow/depth.h"
+#include "flow/internal/base.h"
+#include "flow/io.h"
+#include "flow/match.h"
+
+/* ---- readers ---- */
+
+static int has_ext(const char *path, const char *ext)
+{
+    size_t n = strlen(path), e = strlen(ext);
+    if (n < e)
+        return 0;
+    for (size_t i = 0; i < e; i++) {
+        char c = path[n - e + i];
+        if (c >= 'A' && c <= 'Z')
+            c = (char)(c - 'A' + 'a');
+        if (c != ext[i])
+            return 0;
+    }
+    return 1;
+}
+
+int sinew_depth_read(sinew_ctx *ctx, sinew_image *raw, const char *path)
+{
+    if (!ctx || !raw || !path)
+        return SINEW_EINVAL;
+    memset(raw, 0, sizeof *raw);
+    int rc;
+    if (has_ext(path, ".npy"))
+        rc = sinew_npy_read_image(ctx, raw, path);
+    else if (has_ext(path, ".pfm"))
+        rc = sinew_pfm_read_image(ctx, raw, path);
+    else
+        rc = sinew_image_read(ctx, raw, path);
+    if (rc)
+        return rc;
+    if (raw->channels != 1) {
+        int ch = raw->channels;
+        sinew_image_free(raw);
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
+                           "%s: depth must have one channel (got %d; colour-coded depth is "
+                           "not depth)",
+                           path, ch);
+    }
+    if (raw->type == SINEW_U8) {
+        sinew_image_free(raw);
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
+                           "%s: 8-bit images cannot hold depth (expected 16-bit PNG codes or "
+                           "float metres in .npy/.pfm)",
+                           path);
+    }
+    return SINEW_OK;
+}
+
+int sinew_labels_read(sinew_ctx *ctx, sinew_image *labels, const char *path)
+{
+    if (!ctx || !labels || !path)
+        return SINEW_EINVAL;
+    int rc = sinew_image_read(ctx, labels, path);
+    if (rc)
+        return rc;
+    if (labels->channels != 1 || labels->type == SINEW_F32) {
+        int ch = labels->channels;
+        sinew_image_free(labels);
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
+                           "%s: labels must be a one-channel 8- or 16-bit image (got %d "
+                           "channels)",
+                           path, ch);
+    }
+    return SINEW_OK;
+}
+
+int sinew_match_read_check(sinew_ctx *ctx, const char *dir, sinew_image *mask,
+                           sinew_image *confidence, char *mask_path, char *confidence_path,
+                           size_t path_size)
+{
+    if (!ctx || !dir || !mask || !confidence || !mask_path || !confidence_path)
+        return SINEW_EINVAL;
+    memset(mask, 0, sizeof *mask);
+    memset(confidence, 0, sizeof *confidence);
+    int n1 = snprintf(mask_path, path_size, "%s/mask.png", dir);
+    int n2 = snprintf(confidence_path, path_size, "%s/confidence.npy", dir);
+    if (n1 < 0 || n2 < 0 || (size_t)n1 >= path_size || (size_t)n2 >= path_size)
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: path too long", dir);
+    int rc = sinew_image_read(ctx, mask, mask_path);
+    if (rc)
+        return rc;
+    if (mask->channels != 1 || mask->type != SINEW_U8) {
+        sinew_image_free(mask);
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: a check mask is an 8-bit gray PNG", mask_path);
+    }
+    rc = sinew_npy_read_image(ctx, confidence, confidence_path);
+    if (rc) {
+        sinew_image_free(mask);
+        return rc;
+    }
+    const char *bad = NULL;
+    if (confidence->channels != 1)
+        bad = "must be an H x W array";
+    else if (confidence->width != mask->width || confidence->height != mask->height)
+        bad = "size differs from mask.png";
+    for (int y = 0; !bad && y < confidence->height; y++) {
+        const float *r = sinew_image_row_f32(confidence, y);
+        for (int x = 0; x < confidence->width; x++)
+            if (!(r[x] >= 0 && r[x] <= 1)) {
+                bad = "values must lie in [0, 1] (NaN or out of range found)";
+                break;
+            }
+    }
+    if (bad) {
+        sinew_image_free(mask);
+        sinew_image_free(confidence);
+        return sinew__fail(ctx, bad[0] == 'v' ? SINEW_EVALUE : SINEW_ESIZE, "%s: %s",
+                           confidence_path, bad);
+    }
+    return SINEW_OK;
+}
+
+/* ---- sidecar ---- */
+
+int sinew_matches_sidecar_path(const char *npy_path, char *buf, size_t n)
+{
+    if (!npy_path || !buf)
+        return SINEW_EINVAL;
+    size_t len = strlen(npy_path);
+    size_t stem = has_ext(npy_path, ".npy") ? len - 4 : len;
+    if (stem + 6 > n)
+        return SINEW_EINVAL;
+    memcpy(buf, npy_path, stem);
+    memcpy(buf + stem, ".json", 6);
+    return SINEW_OK;
+}
+
+static void add_num(cJSON *o, const char *k, double v)
+{
+    if (isfinite(v))
+        cJSON_AddNumberToObject(o, k, v);
+    else
+        cJSON_AddNullToObject(o, k);
+}
+
+static void add_str(cJSON *o, const char *k, const char *v)
+{
+    if (v)
+        cJSON_AddStringToObject(o, k, v);
+    else
+        cJSON_AddNullToObject(o, k);
+}
+
+static cJSON *camera_json(const sinew_camera *c)
+{
+    cJSON *o = cJSON_CreateObject();
+    add_num(o, "fx", c->fx);
+    add_num(o, "fy", c->fy);
+    add_num(o, "cx", c->cx);
+    add_num(o, "cy", c->cy);
+    add_num(o, "width", c->width);
+    add_num(o, "height", c->height);
+    add_num(o, "k1", c->k1);
+    add_num(o, "k2", c->k2);
+    add_num(o, "p1", c->p1);
+    add_num(o, "p2", c->p2);
+    add_num(o, "k3", c->k3);
+    return o;
+}
+
+static const char *unit_of(const char *col)
+{
+    if (col[0] == 'u' || col[0] == 'v')
+        return "px";
+    if (col[0] == 'X' || col[0] == 'Y' || col[0] == 'Z')
+        return "m";
+    if (col[0] == 'n')
+        return "unit vector";
+    if (col[0] == 'l')
+        return "id";
+    return "1";
+}
+
+static char *sidecar_text(const sinew_matches *m, const sinew_match_params *p,
+                          const sinew_match_inputs *in, const sinew_match_sources *src)
+{
+    static const char *const sampling[] = {"all", "stride", "top_k"};
+    static const char *const kinds[] = {"z", "ray", "disparity"};
+    cJSON *root = cJSON_CreateObject();
+    cJSON_AddStringToObject(root, "format", "sinew-matches");
+    cJSON_AddNumberToObject(root, "format_version", 1);
+    cJSON_AddStringToObject(root, "sinew_version", SINEW_VERSION_STRING);
+    add_str(root, "command", src ? src->command : NULL);
+    cJSON_AddNumberToObject(root, "rows", (double)m->rows);
+    cJSON *cols = cJSON_AddArrayToObject(root, "columns");
+    cJSON *units = cJSON_AddObjectToObject(root, "units");
+    for (int i = 0; i < m->cols; i++) {
+        cJSON_AddItemToArray(cols, cJSON_CreateString(m->columns[i]));
+        cJSON_AddStringToObject(units, m->columns[i], unit_of(m->columns[i]));
+    }
+    cJSON_AddStringToObject(root, "dtype", "float32");
+    cJSON_AddStringToObject(
+        root, "conventions",
+        "(u0, v0) source pixel in frame 0, (u1, v1) = (u0, v0) + flow in frame 1; pixel "
+        "centres at integers, x right, y down; observed (distorted) pixel coordinates. "
+        "X0 in camera-0 coordinates, X1 in camera-1 coordinates (x right, y down, z forward, "
+        "metres). Rows in raster order of the source pixel.");
+    cJSON_AddNumberToObject(root, "width", m->width);
+    cJSON_AddNumberToObject(root, "height", m->height);
+    if (m->has_depth && src && src->camera) {
+        cJSON *k = camera_json(src->camera);
+        add_str(k, "source", src->intrinsics);
+        if (src->camera_file && src->camera_file->width > 0 &&
+            (src->camera_file->width != src->camera->width ||
+             src->camera_file->height != src->camera->height)) {
+            cJSON_AddItemToObject(k, "rescaled_from", camera_json(src->camera_file));
+        }
+        cJSON_AddItemToObject(root, "intrinsics", k);
+    }
+    if (m->has_depth && src && src->depth) {
+        const sinew_depth_params *d = src->depth;
+        cJSON *o = cJSON_AddObjectToObject(root, "depth");
+        cJSON_AddStringToObject(o, "kind", (unsigned)d->kind < 3 ? kinds[d->kind] : "?");
+        add_num(o, "scale", d->scale);
+        cJSON_AddStringToObject(o, "scale_meaning",
+                                d->kind == SINEW_DEPTH_DISPARITY
+                                    ? "16-bit codes per pixel of disparity"
+                                    : "16-bit codes per metre (float files are metres)");
+        add_num(o, "near_m", d->near);
+        add_num(o, "far_m", d->far);
+        if (d->kind == SINEW_DEPTH_DISPARITY)
+            add_num(o, "baseline_m", d->baseline);
+        cJSON_AddStringToObject(o, "invalid", "16-bit codes 0 and 65535; NaN, Inf, <= 0");
+        cJSON *med = cJSON_AddArrayToObject(o, "median_valid_m");
+        for (int i = 0; i < 2; i++)
+            cJSON_AddItemToArray(med,
+                                 isfinite(src->depth_median[i])
+                                     ? cJSON_CreateNumber(round(src->depth_median[i] * 1e6) / 1e6)
+                                     : cJSON_CreateNull());
+    }
+    cJSON *par = cJSON_AddObjectToObject(root, "params");
+    cJSON_AddStringToObject(par, "sampling",
+                            (unsigned)p->sampling < 3 ? sampling[p->sampling] : "?");
+    if (p->sampling == SINEW_SAMPLE_STRIDE)
+        cJSON_AddNumberToObject(par, "stride", p->stride);
+    if (p->sampling == SINEW_SAMPLE_TOP_K) {
+        cJSON_AddNumberToObject(par, "top_k", (double)p->top_k);
+        cJSON_AddNumberToObject(par, "cell", p->cell);
+        cJSON_AddNumberToObject(par, "per_cell", p->per_cell);
+    }
+    add_num(par, "min_weight", p->min_weight);
+    cJSON_AddBoolToObject(par, "drop_label_change", p->drop_label_change != 0);
+    if (m->has_depth) {
+        add_num(par, "edge_rel", p->edge_rel);
+        cJSON_AddNumberToObject(par, "edge_radius", p->edge_radius);
+        add_num(par, "max_displacement_m", p->max_displacement);
+        cJSON_AddBoolToObject(par, "normals", p->normals != 0);
+    }
+    cJSON *inp = cJSON_AddObjectToObject(root, "inputs");
+    add_str(inp, "flow", in ? in->flow_name : NULL);
+    add_str(inp, "check_dir", src ? src->check_dir : NULL);
+    add_str(inp, "mask", in ? in->mask_name : NULL);
+    add_str(inp, "confidence", in ? in->confidence_name : NULL);
+    add_str(inp, "labels0", in ? in->labels0_name : NULL);
+    add_str(inp, "labels1", in ? in->labels1_name : NULL);
+    if (m->has_depth) {
+        add_str(inp, "depth0", in ? in->depth0_name : NULL);
+        add_str(inp, "depth1", in ? in->depth1_name : NULL);
+        add_str(inp, "intrinsics", src ? src->intrinsics : NULL);
+    }
+    cJSON *cnt = cJSON_AddObjectToObject(root, "counts");
+    cJSON_AddNumberToObject(cnt, "pixels", (double)m->pixels);
+    cJSON_AddNumberToObject(cnt, "kept", (double)m->rows);
+    for (int r = 0; r < SINEW_REJECT_COUNT; r++) {
+        if (!m->has_depth && r >= SINEW_REJECT_DEPTH0_INVALID && r <= SINEW_REJECT_NORMAL)
+            continue;
+        cJSON_AddNumberToObject(cnt, sinew_reject_name(r), (double)m->rejected[r]);
+    }
+    if (m->has_mask) {
+        cJSON *mb = cJSON_AddObjectToObject(root, "mask_bits");
+        for (int b = 0; b < 8; b++) {
+            const char *name = sinew_check_bit_name(b);
+            char tmp[16];
+            if (!name) {
+                snprintf(tmp, sizeof tmp, "bit%d", b);
+                name = tmp;
+            }
+            cJSON_AddNumberToObject(mb, name, (double)m->mask_bits[b]);
+        }
+    }
+    if (m->has_labels) {
+        cJSON *lb = cJSON_AddObjectToObject(root, "labels");
+        cJSON_AddNumberToObject(lb, "changed", (double)m->label_changed);
+        cJSON *per = cJSON_AddObjectToObject(lb, "kept_per_label0");
+        for (size_t i = 0; i < m->label_count; i++) {
+            char key[16];
+            snprintf(key, sizeof key, "%u", (unsigned)m->label_ids[i]);
+            cJSON_AddNumberToObject(per, key, (double)m->label_kept[i]);
+        }
+    }
+    char *text = cJSON_Print(root);
+    cJSON_Delete(root);
+    return text;
+}
+
+int sinew_matches_save(sinew_ctx *ctx, const sinew_matches *m, const sinew_match_params *p,
+                       const sinew_match_inputs *in, const sinew_match_sources *src,
+                       const char *npy_path)
+{
+    if (!ctx || !m || !p || !npy_path || (m->rows && !m->data) || m->cols < 1)
+        return SINEW_EINVAL;
+    char json_path[4096];
+    if (sinew_matches_sidecar_path(npy_path, json_path, sizeof json_path))
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: path too long", npy_path);
+    char *text = sidecar_text(m, p, in, src);
+    if (!text)
+        return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory building the sidecar", json_path);
+    sinew_outfile *f;
+    int rc = sinew_outfile_open(ctx, &f, json_path);
+    if (rc) {
+        cJSON_free(text);
+        return rc;
+    }
+    FILE *fp = sinew_outfile_stream(f);
+    fputs(text, fp);
+    fputc('\n', fp);
+    cJSON_free(text);
+    rc = sinew_npy_write_table(ctx, npy_path, m->data, m->rows, (size_t)m->cols);
+    if (rc) {
+        sinew_outfile_abort(f);
+        return rc;
+    }
+    rc = sinew_outfile_commit(ctx, f);
+    if (rc)
+        remove(npy_path); /* never leave a table without its sidecar */
+    return rc;
+}
+
+/* ---- PLY and CSV ---- */
+
+static void put_f32le(FILE *fp, float v)
+{
+    uint32_t u;
+    memcpy(&u, &v, 4);
+    unsigned char b[4] = {(unsigned char)u, (unsigned char)(u >> 8), (unsigned char)(u >> 16),
+                          (unsigned char)(u >> 24)};
+    fwrite(b, 1, 4, fp);
+}
+
+static void put_i32le(FILE *fp, int32_t v)
+{
+    uint32_t u = (uint32_t)v;
+    unsigned char b[4] = {(unsigned char)u, (unsigned char)(u >> 8), (unsigned char)(u >> 16),
+                          (unsigned char)(u >> 24)};
+    fwrite(b, 1, 4, fp);
+}
+
+int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *path, int binary)
+{
+    if (!ctx || !m || !path)
+        return SINEW_EINVAL;
+    int cx = sinew_matches_column(m, "X0");
+    if (cx < 0)
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: PLY needs 3-D matches (give depth maps)", path);
+    if (m->rows > (size_t)INT32_MAX / 2)
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s: too many matches for PLY indices", path);
+    sinew_outfile *f;
+    int rc = sinew_outfile_open(ctx, &f, path);
+    if (rc)
+        return rc;
+    FILE *fp = sinew_outfile_stream(f);
+    fprintf(fp,
+            "ply\nformat %s 1.0\n"
+            "comment sinew %s matches: vertex 2i = X0 (camera-0 frame, orange), vertex 2i+1 = "
+            "X1 (camera-1 frame, blue), metres, x right y down z forward\n"
+            "element vertex %zu\nproperty float x\nproperty float y\nproperty float z\n"
+            "property uchar red\nproperty uchar green\nproperty uchar blue\n"
+            "element edge %zu\nproperty int vertex1\nproperty int vertex2\nend_header\n",
+            binary ? "binary_little_endian" : "ascii", SINEW_VERSION_STRING, 2 * m->rows, m->rows);
+    static const unsigned char col[2][3] = {{255, 140, 0}, {30, 120, 255}};
+    for (size_t i = 0; i < m->rows; i++) {
+        const float *r = m->data + i * (size_t)m->cols + cx;
+        for (int e = 0; e < 2; e++) {
+            const float *X = r + 3 * e;
+            if (binary) {
+                for (int k = 0; k < 3; k++)
+                    put_f32le(fp, X[k]);
+                fwrite(col[e], 1, 3, fp);
+            } else {
+                fprintf(fp, "%.9g %.9g %.9g %u %u %u\n", X[0], X[1], X[2], col[e][0], col[e][1],
+                        col[e][2]);
+            }
+        }
+    }
+    for (size_t i = 0; i < m->rows; i++) {
+        if (binary) {
+            put_i32le(fp, (int32_t)(2 * i));
+            put_i32le(fp, (int32_t)(2 * i + 1));
+        } else {
+            fprintf(fp, "%zu %zu\n", 2 * i, 2 * i + 1);
+        }
+    }
+    return sinew_outfile_commit(ctx, f);
+}
+
+int sinew_matches_save_csv(sinew_ctx *ctx, const sinew_matches *m, const char *path)
+{
+    if (!ctx || !m || !path)
+        return SINEW_EINVAL;
+    sinew_outfile *f;
+    int rc = sinew_outfile_open(ctx, &f, path);
+    if (rc)
+        return rc;
+    FILE *fp = sinew_outfile_stream(f);
+    for (int c = 0; c < m->cols; c++)
+        fprintf(fp, "%s%s", c ? "," : "", m->columns[c]);
+    fputc('\n', fp);
+    for (size_t i = 0; i < m->rows; i++) {
+        const float *r = m->data + i * (size_t)m->cols;
+        for (int c = 0; c < m->cols; c++)
+            fprintf(fp, c ? ",%.9g" : "%.9g", r[c]);
+        fputc('\n', fp);
+    }
+    return sinew_outfile_commit(ctx, f);
+}

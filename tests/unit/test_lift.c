@@ -897,6 +897,97 @@ static void test_lift_7scenes_pose_flow_agrees_with_ground_truth(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* ---- demo scene (invented, flow/synth.h): exact scene flow ----
+ * Lift frame 0 -> 1 with the exact optical flow, the depth as written to disk
+ * (millimetre codes, optionally with sensor-like noise), a perfect check mask (the
+ * exact occlusion) and the labels; compare X1 - X0 with the exact scene flow at the
+ * source pixel. */
+static void demo_errors(int noise, double *median, double *p90, size_t *rows)
+{
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_synth_params sp;
+    sinew_synth_params_default(&sp);
+    sp.width = 320;
+    sp.height = 240;
+    sp.frames = 2;
+    sp.depth_noise = noise;
+    sinew_synth *syn;
+    assert_int_equal(sinew_synth_new(ctx, &syn, &sp), SINEW_OK);
+    const int w = sp.width, h = sp.height;
+    sinew_image depth[2], mm[2], z[2], lab[2], flow, occ, sf, mask;
+    sinew_depth_params dp;
+    sinew_depth_params_default(&dp);
+    for (int k = 0; k < 2; k++) {
+        assert_int_equal(sinew_image_alloc(ctx, &depth[k], w, h, 1, SINEW_F32), SINEW_OK);
+        assert_int_equal(sinew_image_alloc(ctx, &mm[k], w, h, 1, SINEW_U16), SINEW_OK);
+        assert_int_equal(sinew_image_alloc(ctx, &lab[k], w, h, 1, SINEW_U8), SINEW_OK);
+        assert_int_equal(sinew_synth_render(syn, k, NULL, &depth[k], &lab[k]), SINEW_OK);
+        assert_int_equal(sinew_synth_depth_mm(syn, k, &depth[k], &mm[k]), SINEW_OK);
+        assert_int_equal(sinew_depth_convert(ctx, &dp, NULL, &mm[k], &z[k], "demo", NULL),
+                         SINEW_OK);
+    }
+    assert_int_equal(sinew_image_alloc(ctx, &flow, w, h, 2, SINEW_F32), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &occ, w, h, 1, SINEW_U8), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &sf, w, h, 3, SINEW_F32), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &mask, w, h, 1, SINEW_U8), SINEW_OK);
+    assert_int_equal(sinew_synth_truth(syn, 0, 1, &flow, &occ, &sf), SINEW_OK);
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w; x++)
+            sinew_image_row_u8(&mask, y)[x] = sinew_image_row_u8(&occ, y)[x] ? 1 : 0;
+    double fx, fy, cx, cy;
+    sinew_synth_intrinsics(syn, &fx, &fy, &cx, &cy);
+    sinew_camera cam;
+    sinew_camera_init(&cam, fx, fy, cx, cy, w, h);
+    sinew_match_inputs in;
+    memset(&in, 0, sizeof in);
+    in.flow = &flow;
+    in.mask = &mask;
+    in.depth0 = &z[0];
+    in.depth1 = &z[1];
+    in.labels0 = &lab[0];
+    in.labels1 = &lab[1];
+    in.camera = &cam;
+    sinew_match_params mp;
+    sinew_match_params_default(&mp);
+    sinew_matches m;
+    assert_int_equal(sinew_matches_build(ctx, &in, &mp, &m), SINEW_OK);
+    assert_true(m.rows > (size_t)(w * h / 2));
+    double *e = malloc(m.rows * sizeof *e);
+    for (size_t i = 0; i < m.rows; i++) {
+        const float *r = m.data + i * (size_t)m.cols;
+        const float *g = sinew_image_row_f32(&sf, (int)r[1]) + 3 * (int)r[0];
+        double d[3] = {r[8] - r[5] - g[0], r[9] - r[6] - g[1], r[10] - r[7] - g[2]};
+        e[i] = sqrt(d[0] * d[0] + d[1] * d[1] + d[2] * d[2]);
+    }
+    qsort(e, m.rows, sizeof *e, cmp_double);
+    *median = e[(m.rows - 1) / 2];
+    *p90 = e[(size_t)(0.9 * (double)(m.rows - 1))];
+    *rows = m.rows;
+    free(e);
+    sinew_matches_free(ctx, &m);
+    sinew_image *all[] = {&depth[0], &depth[1], &mm[0], &mm[1], &z[0], &z[1],
+                          &lab[0],   &lab[1],   &flow,  &occ,   &sf,   &mask};
+    for (size_t i = 0; i < sizeof all / sizeof all[0]; i++)
+        sinew_image_free(all[i]);
+    sinew_synth_free(syn);
+    sinew_ctx_free(ctx);
+}
+
+static void test_lift_demo_scene_flow_error(void **state)
+{
+    (void)state;
+    for (int noise = 0; noise < 2; noise++) {
+        double med, p90;
+        size_t rows;
+        demo_errors(noise, &med, &p90, &rows);
+        printf("# demo scene 0->1, exact flow, depth %s: %zu matches, 3-D error median %.3f mm, "
+               "90th percentile %.3f mm\n",
+               noise ? "with sensor noise" : "in whole mm", rows, med * 1e3, p90 * 1e3);
+        /* Bounds: a few times the measured values (see docs/methods.md). */
+        assert_true(med <= (noise ? 0.004 : 0.001));
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -915,6 +1006,7 @@ int main(void)
         cmocka_unit_test(test_lift_rigid_fit_recovers_motion),
         cmocka_unit_test(test_lift_pose_file),
         cmocka_unit_test(test_lift_7scenes_pose_flow_agrees_with_ground_truth),
+        cmocka_unit_test(test_lift_demo_scene_flow_error),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -14,6 +14,13 @@
 
 #define PI 3.14159265358979323846
 
+/* Per-pair EPE bounds for the "fast" preset: measured value + ~10% (see check_pair). */
+/* measured EPE (fast): Dimetrodon 0.3442, Grove2 0.3125, Grove3 1.3355, Hydrangea 0.4477, RubberWhale 0.3492, Urban2 0.8550, Urban3 1.3683, Venus 0.6305; chairs 8.9566, 2.6022 */
+#define MIDDLEBURY_BOUNDS \
+    {"Dimetrodon", 0.40}, {"Grove2", 0.36}, {"Grove3", 1.49}, {"Hydrangea", 0.51}, \
+        {"RubberWhale", 0.40}, {"Urban2", 0.96}, {"Urban3", 1.53}, {"Venus", 0.71}
+#define CHAIRS_BOUNDS 9.87, 2.88
+
 /* Smooth textured test pattern (invented for these tests), values in about [10, 245]. */
 static double pattern(double x, double y, int c)
 {
@@ -363,6 +370,82 @@ static void test_estimate_alloc_failure_is_clean(void **state)
     sinew_ctx_free(plain);
 }
 
+/* Mean EPE over pixels with known ground truth. */
+static double epe_gt(const sinew_image *f, const sinew_image *gt)
+{
+    double sum = 0;
+    long n = 0;
+    for (int y = 0; y < f->height; y++)
+        for (int x = 0; x < f->width; x++) {
+            const float *p = sinew_image_row_f32(f, y) + 2 * x;
+            const float *g = sinew_image_row_f32(gt, y) + 2 * x;
+            if (isnan(g[0]) || isnan(g[1]))
+                continue;
+            sum += hypot((double)p[0] - g[0], (double)p[1] - g[1]);
+            n++;
+        }
+    return sum / (double)n;
+}
+
+/* Per-pair EPE with the "fast" preset against published ground truth. Bounds are the
+ * values measured with this code plus a margin of about 10%. */
+static void check_pair(const char *f0, const char *f1, const char *gtp, double bound)
+{
+    char b0[1024], b1[1024], bg[1024];
+    if (!tu_data_file(b0, sizeof b0, f0) || !tu_data_file(b1, sizeof b1, f1) ||
+        !tu_data_file(bg, sizeof bg, gtp))
+        skip();
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_image a, b, gt, fl;
+    assert_int_equal(sinew_image_read(ctx, &a, b0), SINEW_OK);
+    assert_int_equal(sinew_image_read(ctx, &b, b1), SINEW_OK);
+    assert_int_equal(sinew_flow_read(ctx, &gt, bg, SINEW_FLOW_AUTO), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &fl, a.width, a.height, 2, SINEW_F32), SINEW_OK);
+    sinew_estimator *e = new_est(ctx, "fast");
+    assert_int_equal(sinew_estimator_run(e, &fl, NULL, &a, &b), SINEW_OK);
+    double epe = epe_gt(&fl, &gt);
+    printf("# %s: EPE %.4f (bound %.3f)\n", f0, epe, bound);
+    assert_true(epe < bound);
+    sinew_estimator_free(e);
+    sinew_image_free(&a);
+    sinew_image_free(&b);
+    sinew_image_free(&gt);
+    sinew_image_free(&fl);
+    sinew_ctx_free(ctx);
+}
+
+/* Middlebury "other" training pairs with ground truth: Baker, Scharstein, Lewis, Roth,
+ * Black, Szeliski, "A Database and Evaluation Methodology for Optical Flow", IJCV 2011. */
+static void test_estimate_middlebury_epe(void **state)
+{
+    (void)state;
+    static const struct { const char *seq; double bound; } pairs[] = {
+        MIDDLEBURY_BOUNDS
+    };
+    for (size_t i = 0; i < sizeof pairs / sizeof pairs[0]; i++) {
+        char a[256], b[256], g[256];
+        snprintf(a, sizeof a, "middlebury/%s/frame10.png", pairs[i].seq);
+        snprintf(b, sizeof b, "middlebury/%s/frame11.png", pairs[i].seq);
+        snprintf(g, sizeof g, "middlebury/%s/flow10.flo", pairs[i].seq);
+        check_pair(a, b, g, pairs[i].bound);
+    }
+}
+
+/* FlyingChairs example pairs: Dosovitskiy et al., "FlowNet: Learning Optical Flow with
+ * Convolutional Networks", ICCV 2015. */
+static void test_estimate_flyingchairs_epe(void **state)
+{
+    (void)state;
+    static const double bounds[] = {CHAIRS_BOUNDS};
+    for (int i = 0; i < 2; i++) {
+        char a[256], b[256], g[256];
+        snprintf(a, sizeof a, "flyingchairs/examples/%07d-img0.ppm", i);
+        snprintf(b, sizeof b, "flyingchairs/examples/%07d-img1.ppm", i);
+        snprintf(g, sizeof g, "flyingchairs/examples/%07d-gt.flo", i);
+        check_pair(a, b, g, bounds[i]);
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -375,6 +458,8 @@ int main(void)
         cmocka_unit_test(test_estimate_sequence_reuse),
         cmocka_unit_test(test_estimate_bad_arguments),
         cmocka_unit_test(test_estimate_alloc_failure_is_clean),
+        cmocka_unit_test(test_estimate_middlebury_epe),
+        cmocka_unit_test(test_estimate_flyingchairs_epe),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -143,6 +143,7 @@ static void search_patch(float *pu, float *pv, const sinew__level *l0, const sin
 void sinew__dis_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
                       const sinew__dis_params *p, float *pu, float *pv, float *accw, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     int w = l0->w, h = l0->h, ps = p->patch, st = p->stride, nx, ny;
     if (ps > MAXPS)
         ps = MAXPS;

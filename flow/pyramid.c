@@ -71,6 +71,7 @@ void sinew__pyramid_layout(sinew__pyramid *p, float *mem, int w, int h, int chan
 /* Convert the frame to planar [0, 1] floats: gray (1-2 channels) or RGB (3-4). */
 static void convert_frame(sinew__level *l, int channels, const sinew_image *f, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     int w = f->width, h = f->height, fc = f->channels;
     float scale = f->type == SINEW_U8 ? 1.0f / 255.0f : 1.0f / 65535.0f;
     SINEW_PARALLEL_FOR(nt)
@@ -119,6 +120,7 @@ void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tm
 
 void sinew__blur(float *dst, const float *src, float *tmp, int w, int h, float sigma, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     float k[16];
     int r = (int)ceilf(3.0f * sigma);
     if (r < 1) r = 1;
@@ -167,6 +169,7 @@ void sinew__blur(float *dst, const float *src, float *tmp, int w, int h, float s
 
 void sinew__gradient(float *gx, float *gy, const float *src, int w, int h, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     const float c1 = 8.0f / 12.0f, c2 = 1.0f / 12.0f;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
@@ -199,6 +202,7 @@ void sinew__gradient(float *gx, float *gy, const float *src, int w, int h, int n
 
 void sinew__halve(float *dst, const float *src, int sw, int sh, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     int dw = (sw + 1) / 2, dh = (sh + 1) / 2;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < dh; y++) {
@@ -215,6 +219,7 @@ void sinew__halve(float *dst, const float *src, int sw, int sh, int nt)
 void sinew__flow_resize(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
                         int sw, int sh, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     float fx = (float)sw / (float)dw, fy = (float)sh / (float)dh;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < dh; y++) {
@@ -231,6 +236,7 @@ void sinew__flow_resize(float *du, float *dv, int dw, int dh, const float *su, c
 void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
                     int sw, int sh, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     /* level l+1 pixel X covers level-l pixels 2X, 2X+1: centre 2X + 0.5 */
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < dh; y++) {
@@ -262,6 +268,7 @@ static inline int clampi(int v, int lo, int hi)
 void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
                  const float *v, int w, int h, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
         for (int x = 0; x < w; x++) {
@@ -343,6 +350,7 @@ static float select_kth(float *p, int n, int k)
 
 void sinew__median(float *dst, const float *src, int w, int h, int r, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
         float buf[49];

@@ -67,6 +67,7 @@ static void layout(planes *P, float *work, int channels, size_t n)
 static void average(float *restrict dst, const float *restrict a, const float *restrict b,
                     size_t n, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
         dst[i] = 0.5f * (a[i] + b[i]);
@@ -75,6 +76,7 @@ static void average(float *restrict dst, const float *restrict a, const float *r
 /* dst -= b; masked pixels of all listed planes are zeroed by the caller. */
 static void subtract(float *restrict dst, const float *restrict b, size_t n, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
         dst[i] -= b[i];
@@ -83,6 +85,7 @@ static void subtract(float *restrict dst, const float *restrict b, size_t n, int
 static void scale_masked(float *restrict p, const unsigned char *restrict mask, float s,
                          size_t n, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
         p[i] = mask[i] ? 0.f : p[i] * s;
@@ -130,6 +133,7 @@ static void derivatives(planes *P, const float *u, const float *v, const sinew__
 static void smooth_weights(planes *P, const float *u, const float *v, int w, int h,
                            float alpha, float eps, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     float e2 = eps * eps;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
@@ -158,6 +162,7 @@ static void smooth_weights(planes *P, const float *u, const float *v, int w, int
 static void assemble(planes *P, const float *u, const float *v, int w, int h, int channels,
                      const sinew__var_params *p, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     float e2 = p->eps * p->eps;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
@@ -219,6 +224,7 @@ static inline void sor_pixel(planes *P, size_t i, float wl, float wr, float wu, 
 /* One half-sweep over the pixels with (x + y) % 2 == colour. */
 static void sor_half(planes *P, int w, int h, int colour, float omega, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
         size_t o = (size_t)y * (size_t)w;

@@ -64,7 +64,7 @@ CFLAGS_ALL += -fsanitize=fuzzer-no-link,address,undefined -fno-omit-frame-pointe
 endif
 
 LIB_SRC  := $(sort $(wildcard flow/*.c))
-TOOL_SRC := $(sort $(wildcard tools/*.c))
+TOOL_SRC := $(filter-out tools/bench_%.c,$(sort $(wildcard tools/*.c)))
 TEST_SUPPORT_SRC := $(sort $(wildcard tests/support/*.c))
 TEST_UNIT_SRC := $(sort $(wildcard tests/unit/test_*.c))
 DEMO_SRC := $(sort $(wildcard demo/*.c))
@@ -147,8 +147,12 @@ demo: deps
 	@$(MAKE) --no-print-directory all
 	@SINEW_BUILD=$(BUILD) demo/run
 
+# Benchmark programs (tools/bench_*.c) are kept out of build/sinew.
+$(BUILD)/bench_%: $(BUILD)/obj/tools/bench_%.o $(LIB)
+	$(CC) $(LDFLAGS_ALL) -o $@ $< $(LIB) $(LIBS_ALL)
+
 bench: deps
-	@$(MAKE) --no-print-directory all
+	@$(MAKE) --no-print-directory all $(BUILD)/bench_flow
 	@SINEW_BUILD=$(BUILD) tools/bench
 
 install: $(BIN) $(LIB)

@@ -8,6 +8,7 @@
 #include "flow/check.h"
 #include "flow/depth.h"
 #include "flow/draw.h"
+#include "flow/estimate.h"
 #include "flow/lift.h"
 #include "flow/match.h"
 #include "flow/metrics.h"

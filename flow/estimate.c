@@ -1,0 +1,421 @@
+/* SPDX-License-Identifier: MIT */
+/* The flow estimator: presets, buffer management and the coarse-to-fine schedule.
+ *
+ * For each direction, starting from zero flow at the coarsest level, every level
+ *   1. takes the bilinearly upsampled (x2) flow of the level above,
+ *   2. runs dense inverse search (flow/dis.c) if the level is at or above dis_finest,
+ *   3. runs `warps` variational refinement steps (flow/variational.c), each followed by
+ *      a median filter of the flow when enabled,
+ * down to finest_level; a coarser final level is upsampled to full resolution.
+ * Both frames' pyramids live in the estimator; when a run's frame0 equals the previous
+ * run's frame1 (byte comparison) the old frame1 pyramid is reused. */
+#include <math.h>
+#include <string.h>
+
+#include "flow/estimate.h"
+#include "flow/internal/base.h"
+#include "flow/internal/flowimpl.h"
+#include "flow/internal/parallel.h"
+
+struct sinew_estimator {
+    sinew_ctx *ctx;
+    sinew_flow_params p;
+    /* shape the buffers were sized for */
+    int w, h, channels, levels;
+    float *pyr_mem[2];
+    sinew__pyramid pyr[2];
+    int cur0;                /* index of frame 0's pyramid in pyr[] */
+    unsigned char *last1;    /* copy of the previous frame 1 (for pyramid reuse) */
+    size_t last1_len, last1_cap;
+    int last1_valid;
+    sinew_type last1_type;
+    int last1_fc;
+    float *u, *v, *u2, *v2;  /* full-resolution flow planes */
+    float *work;             /* solver planes, also scratch for pyramid building */
+    unsigned char *mask;
+    float *pu, *pv;          /* patch flows */
+};
+
+int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
+{
+    if (!p || !name)
+        return SINEW_EINVAL;
+    sinew_flow_params d = {
+        .method = SINEW_FLOW_VARIATIONAL,
+        .levels = 0,
+        .finest_level = 0,
+        .dis_finest = 1,
+        .dis_patch = 8,
+        .dis_stride = 4,
+        .dis_iters = 12,
+        .warps = 1,
+        .outer = 5,
+        .inner = 10,
+        .alpha = 0.02f,
+        .gamma = 0.1f,
+        .delta = 1.0f,
+        .edge = 5.0f,
+        .eps = 0.001f,
+        .omega = 1.6f,
+        .median = 0,
+        .color = 1,
+        .hs_iters = 0,
+    };
+    if (!strcmp(name, "fast")) {
+        d.dis_finest = 2;
+        d.dis_stride = 6;
+        d.dis_iters = 10;
+        d.finest_level = 1;
+        d.outer = 3;
+        d.inner = 5;
+    } else if (!strcmp(name, "balanced")) {
+        d.dis_finest = 1;
+        d.dis_stride = 4;
+        d.outer = 5;
+        d.inner = 10;
+        d.median = 1;
+    } else if (!strcmp(name, "accurate")) {
+        d.dis_finest = 1;
+        d.dis_stride = 3;
+        d.dis_iters = 16;
+        d.warps = 3;
+        d.outer = 5;
+        d.inner = 15;
+        d.median = 2;
+    } else if (!strcmp(name, "baseline")) {
+        d.method = SINEW_FLOW_HORN_SCHUNCK;
+        d.dis_finest = -1;
+        d.warps = 2;
+        d.alpha = 0.02f;
+        d.hs_iters = 60;
+    } else {
+        return SINEW_EINVAL;
+    }
+    *p = d;
+    return SINEW_OK;
+}
+
+#define RANGE_I(f, lo, hi)                                                                   \
+    if (p->f < (lo) || p->f > (hi))                                                          \
+        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter " #f " = %d outside [%d, %d]",  \
+                           p->f, (int)(lo), (int)(hi));
+#define RANGE_F(f, lo, hi)                                                                   \
+    if (!(p->f >= (lo) && p->f <= (hi)))                                                     \
+        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter " #f " = %g outside [%g, %g]",  \
+                           (double)p->f, (double)(lo), (double)(hi));
+
+int sinew_flow_params_check(sinew_ctx *ctx, const sinew_flow_params *p)
+{
+    if (!p)
+        return sinew__fail(ctx, SINEW_EINVAL, "flow parameters: NULL");
+    if (p->method != SINEW_FLOW_VARIATIONAL && p->method != SINEW_FLOW_HORN_SCHUNCK)
+        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter method = %d unknown",
+                           (int)p->method);
+    RANGE_I(levels, 0, SINEW__MAX_LEVELS);
+    RANGE_I(finest_level, 0, SINEW__MAX_LEVELS - 1);
+    RANGE_I(dis_finest, -1, SINEW__MAX_LEVELS - 1);
+    RANGE_I(dis_patch, 4, 32);
+    RANGE_I(dis_stride, 1, p->dis_patch);
+    RANGE_I(dis_iters, 1, 100);
+    RANGE_I(warps, 0, 50);
+    RANGE_I(outer, 1, 50);
+    RANGE_I(inner, 1, 200);
+    RANGE_F(alpha, 1e-9, 1e6);
+    RANGE_F(gamma, 0, 1e6);
+    RANGE_F(delta, 0, 1e6);
+    RANGE_F(edge, 0, 1e4);
+    RANGE_F(eps, 1e-9, 1e3);
+    RANGE_F(omega, 0.01, 1.99);
+    RANGE_I(median, 0, 2);
+    RANGE_I(color, 0, 1);
+    RANGE_I(hs_iters, 0, 10000);
+    return SINEW_OK;
+}
+
+int sinew_estimator_new(sinew_ctx *ctx, sinew_estimator **out, const sinew_flow_params *p)
+{
+    if (!ctx || !out)
+        return SINEW_EINVAL;
+    *out = NULL;
+    int st = sinew_flow_params_check(ctx, p);
+    if (st)
+        return st;
+    sinew_estimator *e = sinew__calloc(ctx, 1, sizeof *e);
+    if (!e)
+        return SINEW_ENOMEM;
+    e->ctx = ctx;
+    e->p = *p;
+    *out = e;
+    return SINEW_OK;
+}
+
+static void release_buffers(sinew_estimator *e)
+{
+    sinew_ctx *ctx = e->ctx;
+    for (int i = 0; i < 2; i++) {
+        sinew__free(ctx, e->pyr_mem[i]);
+        e->pyr_mem[i] = NULL;
+    }
+    float **planes[] = {&e->u, &e->v, &e->u2, &e->v2, &e->work, &e->pu, &e->pv};
+    for (size_t i = 0; i < sizeof planes / sizeof planes[0]; i++) {
+        sinew__free(ctx, *planes[i]);
+        *planes[i] = NULL;
+    }
+    sinew__free(ctx, e->mask);
+    e->mask = NULL;
+    e->w = e->h = e->channels = e->levels = 0;
+    e->last1_valid = 0;
+}
+
+void sinew_estimator_free(sinew_estimator *est)
+{
+    if (!est)
+        return;
+    release_buffers(est);
+    sinew__free(est->ctx, est->last1);
+    sinew__free(est->ctx, est);
+}
+
+/* Number of pyramid levels for a frame size under the parameters. */
+static int pick_levels(const sinew_flow_params *p, int w, int h)
+{
+    int minside = 2 * p->dis_patch > 16 ? 2 * p->dis_patch : 16;
+    int levels = 1;
+    while (levels < SINEW__MAX_LEVELS) {
+        int lw, lh;
+        sinew__level_size(w, h, levels, &lw, &lh);
+        if (lw < minside || lh < minside)
+            break;
+        levels++;
+    }
+    if (p->levels > 0 && p->levels < levels)
+        levels = p->levels;
+    return levels;
+}
+
+static void *alloc_floats(sinew_ctx *ctx, size_t count, int *fail)
+{
+    size_t bytes;
+    if (*fail || sinew__mul_size(count, sizeof(float), &bytes)) {
+        *fail = 1;
+        return NULL;
+    }
+    void *q = sinew__alloc(ctx, bytes ? bytes : 64);
+    if (!q)
+        *fail = 1;
+    return q;
+}
+
+static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
+{
+    int levels = pick_levels(&e->p, w, h);
+    if (e->w == w && e->h == h && e->channels == channels && e->levels == levels)
+        return SINEW_OK;
+    release_buffers(e);
+    sinew_ctx *ctx = e->ctx;
+    size_t n = (size_t)w * (size_t)h;
+    int fail = 0;
+    size_t pf = sinew__pyramid_floats(w, h, channels, levels);
+    for (int i = 0; i < 2; i++)
+        e->pyr_mem[i] = alloc_floats(ctx, pf, &fail);
+    e->u = alloc_floats(ctx, n, &fail);
+    e->v = alloc_floats(ctx, n, &fail);
+    e->u2 = alloc_floats(ctx, n, &fail);
+    e->v2 = alloc_floats(ctx, n, &fail);
+    int planes = sinew__var_planes(channels);
+    if (planes < sinew__hs_planes())
+        planes = sinew__hs_planes();
+    if (planes < 3)
+        planes = 3;
+    size_t wf;
+    if (sinew__mul_size(n, (size_t)planes, &wf))
+        fail = 1;
+    e->work = alloc_floats(ctx, wf, &fail);
+    /* patch grid at the finest level that may run patch search (level 0 worst case) */
+    sinew__dis_params dp = {e->p.dis_patch, e->p.dis_stride, e->p.dis_iters};
+    int nx, ny;
+    sinew__dis_grid(w, h, &dp, &nx, &ny);
+    e->pu = alloc_floats(ctx, (size_t)nx * (size_t)ny, &fail);
+    e->pv = alloc_floats(ctx, (size_t)nx * (size_t)ny, &fail);
+    if (!fail) {
+        e->mask = sinew__alloc(ctx, n);
+        fail = !e->mask;
+    }
+    if (fail) {
+        release_buffers(e);
+        if (!*sinew_ctx_message(ctx))
+            sinew__fail(ctx, SINEW_ENOMEM, "flow estimator: out of memory for %dx%d", w, h);
+        return SINEW_ENOMEM;
+    }
+    for (int i = 0; i < 2; i++)
+        sinew__pyramid_layout(&e->pyr[i], e->pyr_mem[i], w, h, channels, levels);
+    e->w = w;
+    e->h = h;
+    e->channels = channels;
+    e->levels = levels;
+    e->cur0 = 0;
+    return SINEW_OK;
+}
+
+static int check_frame(sinew_ctx *ctx, const sinew_image *f, const char *what)
+{
+    if (!f || !f->data)
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: no image", what);
+    if ((f->type != SINEW_U8 && f->type != SINEW_U16) || f->channels < 1 || f->channels > 4)
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: frames must be 8/16-bit with 1..4 channels",
+                           what);
+    if (f->width < 1 || f->height < 1)
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: empty image", what);
+    return SINEW_OK;
+}
+
+static int check_flow(sinew_ctx *ctx, const sinew_image *f, const sinew_image *frame,
+                      const char *what)
+{
+    if (!f->data || f->type != SINEW_F32 || f->channels != 2)
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: flow must be a 2-channel float image", what);
+    if (f->width != frame->width || f->height != frame->height)
+        return sinew__fail(ctx, SINEW_ESIZE, "%s: flow is %dx%d, frames are %dx%d", what,
+                           f->width, f->height, frame->width, frame->height);
+    return SINEW_OK;
+}
+
+/* Byte-exact comparison of a frame with the stored copy of the previous frame 1. */
+static int same_as_last1(const sinew_estimator *e, const sinew_image *f)
+{
+    if (!e->last1_valid || f->type != e->last1_type || f->channels != e->last1_fc)
+        return 0;
+    size_t row = (size_t)f->width * (size_t)f->channels * sinew_type_size(f->type);
+    for (int y = 0; y < f->height; y++)
+        if (memcmp(sinew_image_row(f, y), e->last1 + (size_t)y * row, row))
+            return 0;
+    return 1;
+}
+
+static int remember_last1(sinew_estimator *e, const sinew_image *f)
+{
+    size_t row = (size_t)f->width * (size_t)f->channels * sinew_type_size(f->type);
+    size_t len = row * (size_t)f->height;
+    e->last1_valid = 0;
+    if (len > e->last1_cap) {
+        sinew__free(e->ctx, e->last1);
+        e->last1 = sinew__alloc(e->ctx, len);
+        e->last1_cap = e->last1 ? len : 0;
+        if (!e->last1)
+            return SINEW_ENOMEM;
+    }
+    for (int y = 0; y < f->height; y++)
+        memcpy(e->last1 + (size_t)y * row, sinew_image_row(f, y), row);
+    e->last1_len = len;
+    e->last1_type = f->type;
+    e->last1_fc = f->channels;
+    e->last1_valid = 1;
+    return SINEW_OK;
+}
+
+/* Coarse-to-fine estimation from pyramid a to pyramid b into the interleaved image out. */
+static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyramid *a,
+                         const sinew__pyramid *b)
+{
+    const sinew_flow_params *p = &e->p;
+    int nt = sinew_ctx_threads(e->ctx);
+    int top = e->levels - 1;
+    int finest = p->finest_level < top ? p->finest_level : top;
+    float *u = e->u, *v = e->v, *u2 = e->u2, *v2 = e->v2;
+    {
+        size_t n = (size_t)a->lv[top].w * (size_t)a->lv[top].h;
+        memset(u, 0, n * sizeof(float));
+        memset(v, 0, n * sizeof(float));
+    }
+    sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters};
+    sinew__var_params vp = {p->alpha, p->gamma, p->delta, p->edge, p->eps, p->omega,
+                            p->outer, p->inner};
+    for (int s = top; s >= finest; s--) {
+        const sinew__level *l0 = &a->lv[s], *l1 = &b->lv[s];
+        if (s < top) {
+            const sinew__level *up = &a->lv[s + 1];
+            sinew__flow_up(u2, v2, l0->w, l0->h, u, v, up->w, up->h, nt);
+            float *t = u; u = u2; u2 = t;
+            t = v; v = v2; v2 = t;
+        }
+        if (p->dis_finest >= 0 && s >= p->dis_finest && l0->w >= p->dis_patch &&
+            l0->h >= p->dis_patch)
+            sinew__dis_level(u, v, l0, l1, &dp, e->pu, e->pv, e->work, nt);
+        for (int k = 0; k < p->warps; k++) {
+            if (p->method == SINEW_FLOW_HORN_SCHUNCK)
+                sinew__hs_level(u, v, l0, l1, p->alpha, p->hs_iters, e->work, e->mask, nt);
+            else
+                sinew__var_level(u, v, l0, l1, e->channels, &vp, e->work, e->mask, nt);
+            if (p->median > 0) {
+                sinew__median(u2, u, l0->w, l0->h, p->median, nt);
+                sinew__median(v2, v, l0->w, l0->h, p->median, nt);
+                float *t = u; u = u2; u2 = t;
+                t = v; v = v2; v2 = t;
+            }
+        }
+    }
+    if (finest > 0) {
+        const sinew__level *f = &a->lv[finest];
+        sinew__flow_resize(u2, v2, e->w, e->h, u, v, f->w, f->h, nt);
+        float *t = u; u = u2; u2 = t;
+        t = v; v = v2; v2 = t;
+    }
+    int w = e->w;
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < e->h; y++) {
+        float *row = sinew_image_row_f32(out, y);
+        const float *ur = u + (size_t)y * (size_t)w, *vr = v + (size_t)y * (size_t)w;
+        for (int x = 0; x < w; x++) {
+            row[2 * x] = ur[x];
+            row[2 * x + 1] = vr[x];
+        }
+    }
+    /* keep the plane roles stable for the next call */
+    if (u != e->u) {
+        e->u2 = e->u;
+        e->v2 = e->v;
+        e->u = u;
+        e->v = v;
+    }
+}
+
+int sinew_estimator_run(sinew_estimator *est, sinew_image *fwd, sinew_image *bwd,
+                        const sinew_image *frame0, const sinew_image *frame1)
+{
+    if (!est)
+        return SINEW_EINVAL;
+    sinew_ctx *ctx = est->ctx;
+    int st;
+    if ((st = check_frame(ctx, frame0, "frame 0")) || (st = check_frame(ctx, frame1, "frame 1")))
+        return st;
+    if (frame0->width != frame1->width || frame0->height != frame1->height)
+        return sinew__fail(ctx, SINEW_ESIZE, "frames differ in size: %dx%d and %dx%d",
+                           frame0->width, frame0->height, frame1->width, frame1->height);
+    if (frame0->type != frame1->type || frame0->channels != frame1->channels)
+        return sinew__fail(ctx, SINEW_EINVAL, "frames differ in type or channel count");
+    if (!fwd)
+        return sinew__fail(ctx, SINEW_EINVAL, "forward flow: NULL");
+    if ((st = check_flow(ctx, fwd, frame0, "forward flow")))
+        return st;
+    if (bwd && (st = check_flow(ctx, bwd, frame0, "backward flow")))
+        return st;
+    int channels = est->p.color && frame0->channels >= 3 ? 3 : 1;
+    int reuse = est->w == frame0->width && est->h == frame0->height &&
+                est->channels == channels && same_as_last1(est, frame0);
+    if ((st = ensure_buffers(est, frame0->width, frame0->height, channels)))
+        return st;
+    int nt = sinew_ctx_threads(ctx);
+    if (reuse && est->last1_valid) {
+        est->cur0 = 1 - est->cur0;
+    } else {
+        sinew__pyramid_build(&est->pyr[est->cur0], frame0, est->work, nt);
+    }
+    sinew__pyramid_build(&est->pyr[1 - est->cur0], frame1, est->work, nt);
+    if ((st = remember_last1(est, frame1)))
+        return st;
+    const sinew__pyramid *p0 = &est->pyr[est->cur0], *p1 = &est->pyr[1 - est->cur0];
+    estimate_dir(est, fwd, p0, p1);
+    if (bwd)
+        estimate_dir(est, bwd, p1, p0);
+    return SINEW_OK;
+}

@@ -1,0 +1,110 @@
+/* SPDX-License-Identifier: MIT */
+/* Private building blocks of the flow estimator, shared by flow/pyramid.c, flow/dis.c,
+ * flow/variational.c, flow/hs.c and flow/estimate.c. All images here are planar float
+ * with stride == width (row-major, unit stride), intensities scaled to [0, 1].
+ * Every kernel takes `nt` (threads, 0 = default) and is bit-identical for any nt:
+ * work is split over rows, each output element is written by exactly one thread and
+ * computed in a fixed order. Kernels never allocate; callers pass scratch planes. */
+#ifndef SINEW_INTERNAL_FLOWIMPL_H
+#define SINEW_INTERNAL_FLOWIMPL_H
+
+#include <stddef.h>
+
+#include "flow/core.h"
+
+#define SINEW__MAX_LEVELS 12
+#define SINEW__MAX_CH 3
+
+/* One pyramid level of one frame. ch[c] are the data-term channels (1 gray or 3 RGB);
+ * lum is the luminance (aliases ch[0] for gray); gx, gy its 5-point derivatives. */
+typedef struct sinew__level {
+    int w, h;
+    float *ch[SINEW__MAX_CH];
+    float *lum, *gx, *gy;
+} sinew__level;
+
+typedef struct sinew__pyramid {
+    int levels;   /* valid levels: lv[0] full resolution .. lv[levels-1] coarsest */
+    int channels; /* data-term channels (1 or 3) */
+    sinew__level lv[SINEW__MAX_LEVELS];
+} sinew__pyramid;
+
+/* Floats needed by a pyramid of `levels` levels for a w x h frame with `channels`. */
+size_t sinew__pyramid_floats(int w, int h, int channels, int levels);
+/* Lay the pyramid out in `mem` (sinew__pyramid_floats floats). */
+void sinew__pyramid_layout(sinew__pyramid *p, float *mem, int w, int h, int channels, int levels);
+/* Fill the pyramid from a frame (U8/U16, 1..4 channels). tmp: >= 2*w*h floats. */
+void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp, int nt);
+/* Level size for a given full size: each level halves (rounding up). */
+void sinew__level_size(int w, int h, int level, int *lw, int *lh);
+
+/* Separable Gaussian blur, clamped borders. tmp: w*h floats. dst may equal src. */
+void sinew__blur(float *dst, const float *src, float *tmp, int w, int h, float sigma, int nt);
+/* 5-point derivatives (-1 8 0 -8 1)/12 with clamped borders; gx or gy may be NULL. */
+void sinew__gradient(float *gx, float *gy, const float *src, int w, int h, int nt);
+/* Halve: 2x2 box average (clamped) of src (sw x sh) into dst (ceil(sw/2) x ceil(sh/2)). */
+void sinew__halve(float *dst, const float *src, int sw, int sh, int nt);
+/* Upsample a flow field from (sw, sh) to (dw, dh) = level below: bilinear, values x2. */
+void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
+                    int sw, int sh, int nt);
+/* Upsample a flow field by any factor to (dw, dh) (bilinear, values scaled per axis). */
+void sinew__flow_resize(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
+                        int sw, int sh, int nt);
+/* Bilinear warp: dst(x,y) = src(x+u, y+v) with clamped coordinates. If `outside` is not
+ * NULL it receives 1 where the sample point lies outside the image, else 0. */
+void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
+                 const float *v, int w, int h, int nt);
+/* Bilinear sample with clamped coordinates. */
+static inline float sinew__sample(const float *img, int w, int h, float x, float y)
+{
+    if (x < 0.f) x = 0.f;
+    if (y < 0.f) y = 0.f;
+    if (x > (float)(w - 1)) x = (float)(w - 1);
+    if (y > (float)(h - 1)) y = (float)(h - 1);
+    int x0 = (int)x, y0 = (int)y;
+    if (x0 > w - 2) x0 = w > 1 ? w - 2 : 0;
+    if (y0 > h - 2) y0 = h > 1 ? h - 2 : 0;
+    float fx = x - (float)x0, fy = y - (float)y0;
+    int x1 = w > 1 ? x0 + 1 : x0;
+    size_t r0 = (size_t)y0 * (size_t)w, r1 = h > 1 ? r0 + (size_t)w : r0;
+    /* weights form (not a + f (b - a)) so integer positions reproduce pixels exactly */
+    float a = (1.f - fx) * img[r0 + (size_t)x0] + fx * img[r0 + (size_t)x1];
+    float b = (1.f - fx) * img[r1 + (size_t)x0] + fx * img[r1 + (size_t)x1];
+    return (1.f - fy) * a + fy * b;
+}
+/* Median filter of radius r (1: 3x3, 2: 5x5) of one plane into dst (dst != src). */
+void sinew__median(float *dst, const float *src, int w, int h, int r, int nt);
+
+/* ---- dense inverse search (Kroeger et al. 2016) at one level ---- */
+typedef struct sinew__dis_params {
+    int patch, stride, iters;
+} sinew__dis_params;
+/* Patch-grid size for a level. */
+void sinew__dis_grid(int w, int h, const sinew__dis_params *p, int *nx, int *ny);
+/* Refine (u, v) at one level: patch inverse-compositional search initialised from the
+ * current dense flow, then densification. pu, pv, perr: nx*ny floats each. accw: scratch
+ * of 3*w*h floats. u, v are overwritten with the densified flow. */
+void sinew__dis_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
+                      const sinew__dis_params *p, float *pu, float *pv, float *accw, int nt);
+
+/* ---- variational refinement at one level (Brox et al. 2004 energy) ---- */
+typedef struct sinew__var_params {
+    float alpha, gamma, delta, edge, eps, omega;
+    int outer, inner;
+} sinew__var_params;
+/* Work planes of w*h floats needed by sinew__var_level for `channels`. */
+int sinew__var_planes(int channels);
+/* One warping step: warp frame 1 by (u, v), solve for the increment with `outer`
+ * fixed-point iterations of `inner` red-black SOR sweeps, add it to (u, v).
+ * work: sinew__var_planes(channels) * w*h floats; mask: w*h bytes. */
+void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
+                      int channels, const sinew__var_params *p, float *work,
+                      unsigned char *mask, int nt);
+
+/* ---- coarse-to-fine Horn-Schunck baseline (Horn and Schunck 1981) ---- */
+int sinew__hs_planes(void);
+/* One warping step of quadratic Horn-Schunck with `iters` Jacobi iterations. */
+void sinew__hs_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
+                     float alpha, int iters, float *work, unsigned char *mask, int nt);
+
+#endif

@@ -1,0 +1,371 @@
+/* SPDX-License-Identifier: MIT */
+/* Image pyramids and the small planar-float kernels the estimator is built from:
+ * conversion of 8/16-bit frames to [0, 1] floats, Gaussian blur, 5-point derivatives,
+ * 2x2 halving, bilinear flow upsampling, bilinear warping and median filtering.
+ *
+ * Layout: every plane is row-major float with stride == width. Borders are clamped
+ * (replicate). Each kernel splits its work over rows with a static schedule and each
+ * output element is written by one thread in a fixed order, so the result does not
+ * depend on the thread count. */
+#include <math.h>
+#include <string.h>
+
+#include "flow/internal/flowimpl.h"
+#include "flow/internal/parallel.h"
+
+void sinew__level_size(int w, int h, int level, int *lw, int *lh)
+{
+    for (int i = 0; i < level; i++) {
+        w = (w + 1) / 2;
+        h = (h + 1) / 2;
+    }
+    *lw = w;
+    *lh = h;
+}
+
+/* Planes per level: channels (+1 luminance for colour) + gx + gy. */
+static int planes_per_level(int channels)
+{
+    return channels + (channels > 1 ? 1 : 0) + 2;
+}
+
+size_t sinew__pyramid_floats(int w, int h, int channels, int levels)
+{
+    size_t n = 0;
+    for (int l = 0; l < levels; l++) {
+        int lw, lh;
+        sinew__level_size(w, h, l, &lw, &lh);
+        /* round each plane up to 16 floats so planes stay 64-byte aligned */
+        size_t plane = ((size_t)lw * (size_t)lh + 15u) & ~(size_t)15u;
+        n += plane * (size_t)planes_per_level(channels);
+    }
+    return n;
+}
+
+void sinew__pyramid_layout(sinew__pyramid *p, float *mem, int w, int h, int channels, int levels)
+{
+    memset(p, 0, sizeof *p);
+    p->levels = levels;
+    p->channels = channels;
+    for (int l = 0; l < levels; l++) {
+        sinew__level *lv = &p->lv[l];
+        sinew__level_size(w, h, l, &lv->w, &lv->h);
+        size_t plane = ((size_t)lv->w * (size_t)lv->h + 15u) & ~(size_t)15u;
+        for (int c = 0; c < channels; c++) {
+            lv->ch[c] = mem;
+            mem += plane;
+        }
+        if (channels > 1) {
+            lv->lum = mem;
+            mem += plane;
+        } else {
+            lv->lum = lv->ch[0];
+        }
+        lv->gx = mem;
+        mem += plane;
+        lv->gy = mem;
+        mem += plane;
+    }
+}
+
+/* Convert the frame to planar [0, 1] floats: gray (1-2 channels) or RGB (3-4). */
+static void convert_frame(sinew__level *l, int channels, const sinew_image *f, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    int w = f->width, h = f->height, fc = f->channels;
+    float scale = f->type == SINEW_U8 ? 1.0f / 255.0f : 1.0f / 65535.0f;
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        size_t o = (size_t)y * (size_t)w;
+        float vals[4];
+        for (int x = 0; x < w; x++) {
+            for (int c = 0; c < fc; c++)
+                vals[c] = f->type == SINEW_U8 ? (float)sinew_image_row_u8(f, y)[x * fc + c]
+                                              : (float)sinew_image_row_u16(f, y)[x * fc + c];
+            if (fc >= 3) {
+                /* ITU-R BT.601 luma weights */
+                l->lum[o + x] = (0.299f * vals[0] + 0.587f * vals[1] + 0.114f * vals[2]) * scale;
+                if (channels > 1)
+                    for (int c = 0; c < 3; c++)
+                        l->ch[c][o + x] = vals[c] * scale;
+            } else {
+                l->lum[o + x] = vals[0] * scale;
+            }
+        }
+    }
+}
+
+void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp, int nt)
+{
+    sinew__level *l0 = &p->lv[0];
+    convert_frame(l0, p->channels, frame, nt);
+    int nplanes = p->channels > 1 ? p->channels + 1 : 1;
+    for (int l = 0; l < p->levels; l++) {
+        sinew__level *lv = &p->lv[l];
+        if (l > 0) {
+            sinew__level *up = &p->lv[l - 1];
+            size_t n = (size_t)up->w * (size_t)up->h;
+            for (int c = 0; c < nplanes; c++) {
+                int colour = c < p->channels && p->channels > 1;
+                const float *src = colour ? up->ch[c] : up->lum;
+                float *dst = colour ? lv->ch[c] : lv->lum;
+                /* anti-alias before the 2x2 box: sigma 0.6 (common practice) */
+                sinew__blur(tmp, src, tmp + n, up->w, up->h, 0.6f, nt);
+                sinew__halve(dst, tmp, up->w, up->h, nt);
+            }
+        }
+        sinew__gradient(lv->gx, lv->gy, lv->lum, lv->w, lv->h, nt);
+    }
+}
+
+void sinew__blur(float *dst, const float *src, float *tmp, int w, int h, float sigma, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    float k[16];
+    int r = (int)ceilf(3.0f * sigma);
+    if (r < 1) r = 1;
+    if (r > 7) r = 7;
+    float sum = 0.f;
+    for (int i = -r; i <= r; i++) {
+        k[i + r] = expf(-(float)(i * i) / (2.f * sigma * sigma));
+        sum += k[i + r];
+    }
+    for (int i = 0; i <= 2 * r; i++)
+        k[i] /= sum;
+    /* vertical pass into tmp: unit-stride inner loop over x */
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        float *restrict out = tmp + (size_t)y * (size_t)w;
+        for (int x = 0; x < w; x++)
+            out[x] = 0.f;
+        for (int i = -r; i <= r; i++) {
+            int yy = y + i < 0 ? 0 : (y + i >= h ? h - 1 : y + i);
+            const float *restrict in = src + (size_t)yy * (size_t)w;
+            float kk = k[i + r];
+            for (int x = 0; x < w; x++)
+                out[x] += kk * in[x];
+        }
+    }
+    /* horizontal pass into dst */
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        const float *restrict in = tmp + (size_t)y * (size_t)w;
+        float *restrict out = dst + (size_t)y * (size_t)w;
+        for (int x = 0; x < w; x++) {
+            float s = 0.f;
+            if (x >= r && x < w - r) {
+                for (int i = -r; i <= r; i++)
+                    s += k[i + r] * in[x + i];
+            } else {
+                for (int i = -r; i <= r; i++) {
+                    int xx = x + i < 0 ? 0 : (x + i >= w ? w - 1 : x + i);
+                    s += k[i + r] * in[xx];
+                }
+            }
+            out[x] = s;
+        }
+    }
+}
+
+void sinew__gradient(float *gx, float *gy, const float *src, int w, int h, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    const float c1 = 8.0f / 12.0f, c2 = 1.0f / 12.0f;
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        const float *restrict r = src + (size_t)y * (size_t)w;
+        if (gx) {
+            float *restrict o = gx + (size_t)y * (size_t)w;
+            for (int x = 0; x < w; x++) {
+                if (x >= 2 && x < w - 2) {
+                    o[x] = c1 * (r[x + 1] - r[x - 1]) - c2 * (r[x + 2] - r[x - 2]);
+                } else {
+                    int xm1 = x - 1 < 0 ? 0 : x - 1, xm2 = x - 2 < 0 ? 0 : x - 2;
+                    int xp1 = x + 1 >= w ? w - 1 : x + 1, xp2 = x + 2 >= w ? w - 1 : x + 2;
+                    o[x] = c1 * (r[xp1] - r[xm1]) - c2 * (r[xp2] - r[xm2]);
+                }
+            }
+        }
+        if (gy) {
+            int ym1 = y - 1 < 0 ? 0 : y - 1, ym2 = y - 2 < 0 ? 0 : y - 2;
+            int yp1 = y + 1 >= h ? h - 1 : y + 1, yp2 = y + 2 >= h ? h - 1 : y + 2;
+            const float *restrict a1 = src + (size_t)yp1 * (size_t)w;
+            const float *restrict b1 = src + (size_t)ym1 * (size_t)w;
+            const float *restrict a2 = src + (size_t)yp2 * (size_t)w;
+            const float *restrict b2 = src + (size_t)ym2 * (size_t)w;
+            float *restrict o = gy + (size_t)y * (size_t)w;
+            for (int x = 0; x < w; x++)
+                o[x] = c1 * (a1[x] - b1[x]) - c2 * (a2[x] - b2[x]);
+        }
+    }
+}
+
+void sinew__halve(float *dst, const float *src, int sw, int sh, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    int dw = (sw + 1) / 2, dh = (sh + 1) / 2;
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < dh; y++) {
+        int y0 = 2 * y, y1 = 2 * y + 1 < sh ? 2 * y + 1 : sh - 1;
+        const float *a = src + (size_t)y0 * (size_t)sw, *b = src + (size_t)y1 * (size_t)sw;
+        float *o = dst + (size_t)y * (size_t)dw;
+        for (int x = 0; x < dw; x++) {
+            int x0 = 2 * x, x1 = 2 * x + 1 < sw ? 2 * x + 1 : sw - 1;
+            o[x] = 0.25f * ((a[x0] + a[x1]) + (b[x0] + b[x1]));
+        }
+    }
+}
+
+void sinew__flow_resize(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
+                        int sw, int sh, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    float fx = (float)sw / (float)dw, fy = (float)sh / (float)dh;
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < dh; y++) {
+        float ys = ((float)y + 0.5f) * fy - 0.5f;
+        for (int x = 0; x < dw; x++) {
+            float xs = ((float)x + 0.5f) * fx - 0.5f;
+            size_t o = (size_t)y * (size_t)dw + (size_t)x;
+            du[o] = sinew__sample(su, sw, sh, xs, ys) / fx;
+            dv[o] = sinew__sample(sv, sw, sh, xs, ys) / fy;
+        }
+    }
+}
+
+void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
+                    int sw, int sh, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    /* level l+1 pixel X covers level-l pixels 2X, 2X+1: centre 2X + 0.5 */
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < dh; y++) {
+        float ys = ((float)y - 0.5f) * 0.5f;
+        for (int x = 0; x < dw; x++) {
+            float xs = ((float)x - 0.5f) * 0.5f;
+            size_t o = (size_t)y * (size_t)dw + (size_t)x;
+            du[o] = 2.0f * sinew__sample(su, sw, sh, xs, ys);
+            dv[o] = 2.0f * sinew__sample(sv, sw, sh, xs, ys);
+        }
+    }
+}
+
+/* Keys cubic convolution weights (a = -0.5) for fractional offset t in [0, 1). */
+static inline void cubic_weights(float t, float *k)
+{
+    float t2 = t * t, t3 = t2 * t;
+    k[0] = -0.5f * t3 + t2 - 0.5f * t;
+    k[1] = 1.5f * t3 - 2.5f * t2 + 1.0f;
+    k[2] = -1.5f * t3 + 2.0f * t2 + 0.5f * t;
+    k[3] = 0.5f * t3 - 0.5f * t2;
+}
+
+static inline int clampi(int v, int lo, int hi)
+{
+    return v < lo ? lo : (v > hi ? hi : v);
+}
+
+void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
+                 const float *v, int w, int h, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        for (int x = 0; x < w; x++) {
+            size_t o = (size_t)y * (size_t)w + (size_t)x;
+            float xs = (float)x + u[o], ys = (float)y + v[o];
+            int out = xs < 0.f || ys < 0.f || xs > (float)(w - 1) || ys > (float)(h - 1);
+            if (outside)
+                outside[o] = (unsigned char)out;
+            /* bicubic (Keys 1981) inside, as recommended for warping by Sun, Roth and
+             * Black 2010; clamped coordinates */
+            xs = xs < 0.f ? 0.f : (xs > (float)(w - 1) ? (float)(w - 1) : xs);
+            ys = ys < 0.f ? 0.f : (ys > (float)(h - 1) ? (float)(h - 1) : ys);
+            int ix = (int)xs, iy = (int)ys;
+            float kx[4], ky[4];
+            cubic_weights(xs - (float)ix, kx);
+            cubic_weights(ys - (float)iy, ky);
+            int xi[4];
+            for (int i = 0; i < 4; i++)
+                xi[i] = clampi(ix - 1 + i, 0, w - 1);
+            float acc = 0.f;
+            for (int j = 0; j < 4; j++) {
+                const float *row = src + (size_t)clampi(iy - 1 + j, 0, h - 1) * (size_t)w;
+                float r = kx[0] * row[xi[0]] + kx[1] * row[xi[1]] + kx[2] * row[xi[2]] +
+                          kx[3] * row[xi[3]];
+                acc += ky[j] * r;
+            }
+            dst[o] = acc;
+        }
+    }
+}
+
+#define CSWAP(a, b)                                                                          \
+    do {                                                                                     \
+        float lo_ = fminf(a, b), hi_ = fmaxf(a, b);                                          \
+        a = lo_;                                                                             \
+        b = hi_;                                                                             \
+    } while (0)
+
+/* Median of 9 by the classic exchange network (19 compare-swaps). */
+static float median9(float *p)
+{
+    CSWAP(p[1], p[2]); CSWAP(p[4], p[5]); CSWAP(p[7], p[8]);
+    CSWAP(p[0], p[1]); CSWAP(p[3], p[4]); CSWAP(p[6], p[7]);
+    CSWAP(p[1], p[2]); CSWAP(p[4], p[5]); CSWAP(p[7], p[8]);
+    CSWAP(p[0], p[3]); CSWAP(p[5], p[8]); CSWAP(p[4], p[7]);
+    CSWAP(p[3], p[6]); CSWAP(p[1], p[4]); CSWAP(p[2], p[5]);
+    CSWAP(p[4], p[7]); CSWAP(p[4], p[2]); CSWAP(p[6], p[4]);
+    CSWAP(p[4], p[2]);
+    return p[4];
+}
+
+/* k-th smallest of n values (quickselect, Hoare partition); order of p is destroyed. */
+static float select_kth(float *p, int n, int k)
+{
+    int lo = 0, hi = n - 1;
+    while (lo < hi) {
+        float pivot = p[(lo + hi) / 2];
+        int i = lo, j = hi;
+        while (i <= j) {
+            while (p[i] < pivot) i++;
+            while (p[j] > pivot) j--;
+            if (i <= j) {
+                float t = p[i];
+                p[i] = p[j];
+                p[j] = t;
+                i++;
+                j--;
+            }
+        }
+        if (k <= j)
+            hi = j;
+        else if (k >= i)
+            lo = i;
+        else
+            return p[k];
+    }
+    return p[k];
+}
+
+void sinew__median(float *dst, const float *src, int w, int h, int r, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        float buf[49];
+        for (int x = 0; x < w; x++) {
+            int n = 0;
+            for (int dy = -r; dy <= r; dy++) {
+                int yy = y + dy < 0 ? 0 : (y + dy >= h ? h - 1 : y + dy);
+                const float *row = src + (size_t)yy * (size_t)w;
+                for (int dx = -r; dx <= r; dx++) {
+                    int xx = x + dx < 0 ? 0 : (x + dx >= w ? w - 1 : x + dx);
+                    buf[n++] = row[xx];
+                }
+            }
+            dst[(size_t)y * (size_t)w + (size_t)x] =
+                r == 1 ? median9(buf) : select_kth(buf, n, n / 2);
+        }
+    }
+}

@@ -1,0 +1,88 @@
+# SPDX-License-Identifier: MIT
+# End-to-end tests of `sinew flow`: help, forward and backward fields on synthetic PGM
+# frames with a known shift and on the Middlebury RubberWhale pair (Baker et al., IJCV 2011;
+# ../shared/data, see SOURCES.md; endpoint error computed with numpy), and every bad-input
+# path: one stderr line naming the problem, non-zero exit, no output file.
+. "$(dirname "$0")/lib.sh"
+
+if "$SINEW_BIN" flow --help >"$T/h" 2>&1 && grep -q 'sinew flow FRAME1 FRAME2' "$T/h" &&
+    grep -q 'examples' "$T/h" && grep -q 'research tool' "$T/h" && grep -q -- '--backward' "$T/h"; then
+    pass "sinew flow --help has usage, examples and the notice"
+else fail "sinew flow --help" "$(head -c 300 "$T/h")"; fi
+
+# Synthetic frames (invented test pattern): frame b is frame a shifted by (+2, +1) px,
+# so the forward flow is (2, 1) and the backward flow (-2, -1) away from the borders.
+"$PYTHON" - "$T" <<'PY'
+import sys, numpy as np
+d = sys.argv[1]
+def pat(x, y):
+    return 128 + 50*np.sin(0.3*x + 0.2*y) + 40*np.cos(0.17*x - 0.31*y) + 20*np.sin(0.05*x*y/8)
+y, x = np.mgrid[0:60, 0:80].astype(float)
+def pgm(name, img):
+    with open(f"{d}/{name}", "wb") as f:
+        f.write(b"P5\n%d %d\n255\n" % (img.shape[1], img.shape[0]))
+        f.write(np.clip(np.rint(img), 0, 255).astype(np.uint8).tobytes())
+pgm("a.pgm", pat(x, y))
+pgm("b.pgm", pat(x - 2, y - 1))
+pgm("small.pgm", pat(x[:50, :70], y[:50, :70]))
+PY
+if "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$T/f.flo" --backward "$T/b.npy" --threads 2 \
+    >"$T/out" 2>"$T/err"; then
+    if "$PYTHON" - "$T" <<'PY'
+import sys, numpy as np
+d = sys.argv[1]
+raw = np.fromfile(f"{d}/f.flo", dtype="<f4")
+w, h = raw[1:3].view("<i4")
+f = raw[3:].reshape(h, w, 2)
+b = np.load(f"{d}/b.npy")
+ef = np.hypot(f[8:-8, 8:-8, 0] - 2, f[8:-8, 8:-8, 1] - 1).mean()
+eb = np.hypot(b[8:-8, 8:-8, 0] + 2, b[8:-8, 8:-8, 1] + 1).mean()
+print(ef, eb)
+sys.exit(0 if ef < 0.05 and eb < 0.05 else 1)
+PY
+    then pass "forward .flo and backward .npy match the known shift"
+    else fail "forward/backward shift" "EPE too large"; fi
+else fail "forward/backward shift" "exit $? ($(head -c 300 "$T/err"))"; fi
+
+# Same result for 1 and 2 threads, byte for byte.
+"$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$T/t1.flo" --threads 1 --preset accurate 2>/dev/null
+"$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$T/t2.flo" --threads 2 --preset accurate 2>/dev/null
+if [ -f "$T/t1.flo" ] && cmp -s "$T/t1.flo" "$T/t2.flo"; then pass "1 and 2 threads give identical files"
+else fail "thread determinism" "outputs differ"; fi
+
+# Middlebury RubberWhale (Baker et al. 2011), preset fast; bound = measured + margin.
+if have_data middlebury/RubberWhale; then
+    m="$SINEW_DATA/middlebury/RubberWhale"
+    if "$SINEW_BIN" flow "$m/frame10.png" "$m/frame11.png" -o "$T/rw.flo" --preset fast 2>"$T/err"; then
+        epe=$("$PYTHON" - "$T/rw.flo" "$m/flow10.flo" <<'PY'
+import sys, numpy as np
+def rd(p):
+    r = np.fromfile(p, dtype="<f4"); w, h = r[1:3].view("<i4"); return r[3:].reshape(h, w, 2)
+e, g = rd(sys.argv[1]), rd(sys.argv[2])
+ok = (np.abs(g) < 1e9).all(axis=2)
+print("%.4f" % np.hypot(*(e - g)[ok].T).mean())
+PY
+)
+        if "$PYTHON" -c "import sys; sys.exit(0 if float('$epe') < 0.40 else 1)"; then
+            pass "RubberWhale fast EPE $epe < 0.40 (measured 0.349)"
+        else fail "RubberWhale EPE" "$epe"; fi
+    else fail "RubberWhale" "$(head -c 300 "$T/err")"; fi
+else skip "RubberWhale" "no Middlebury data"; fi
+
+# ---- bad input ----
+o="$T/bad.flo"
+expect_error "frames of different sizes" "$o" 'small\.pgm: size 70x50 differs' \
+    "$SINEW_BIN" flow "$T/a.pgm" "$T/small.pgm" -o "$o"
+expect_error "unreadable frame" "$o" 'nope\.png' "$SINEW_BIN" flow "$T/a.pgm" "$T/nope.png" -o "$o"
+printf 'P5\n80 60\n255\n' >"$T/trunc.pgm"
+expect_error "truncated frame" "$o" 'trunc\.pgm' "$SINEW_BIN" flow "$T/trunc.pgm" "$T/a.pgm" -o "$o"
+expect_error "backward fails, forward removed" "$o" 'nodir/b\.flo' \
+    "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$o" --backward "$T/nodir/b.flo"
+expect_error "unknown output extension" "$T/x.txt" 'x\.txt' \
+    "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$T/x.txt"
+expect_error "missing -o" - 'missing -o' "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm"
+expect_error "unknown preset" "$o" "unknown preset 'turbo'" \
+    "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$o" --preset turbo
+expect_error "bad parameter" "$o" 'alpha' "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$o" --alpha -1
+expect_error "bad thread count" "$o" 'threads' "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$o" -t x
+expect_error "one frame only" "$o" 'expected FRAME1 and FRAME2' "$SINEW_BIN" flow "$T/a.pgm" -o "$o"

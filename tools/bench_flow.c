@@ -1,0 +1,304 @@
+/* SPDX-License-Identifier: MIT */
+/* Flow benchmark program behind `make bench` (not part of build/sinew): accuracy on the
+ * Middlebury training pairs (Baker et al., IJCV 2011) and the FlyingChairs examples
+ * (Dosovitskiy et al., ICCV 2015), median run times, ms per megapixel at four frame sizes,
+ * thread scaling and peak memory, for every preset and for the Horn-Schunck baseline run
+ * in the same process, so ratios compare across machines.
+ *
+ *   bench_flow DATA_DIR [--runs N] [--rss fast=B,balanced=B,...]   print the table
+ *   bench_flow --rss-probe PRESET DATA_DIR                           print bytes/pixel
+ */
+#define _POSIX_C_SOURCE 200809L
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/resource.h>
+#include <time.h>
+
+#include "flow/sinew.h"
+
+#define NPRESET 4
+static const char *presets[NPRESET] = {"fast", "balanced", "accurate", "baseline"};
+#define NPAIR 10
+static const char *pair_names[NPAIR] = {"Dimetrodon", "Grove2",      "Grove3", "Hydrangea",
+                                        "RubberWhale", "Urban2",     "Urban3", "Venus",
+                                        "chairs-0",   "chairs-1"};
+static const int sizes[4][2] = {{320, 240}, {640, 480}, {1280, 1024}, {1920, 1080}};
+
+static double now(void)
+{
+    struct timespec t;
+    clock_gettime(CLOCK_MONOTONIC, &t);
+    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+static void die(sinew_ctx *ctx, const char *what)
+{
+    fprintf(stderr, "bench_flow: %s: %s\n", what, ctx ? sinew_ctx_message(ctx) : "");
+    exit(1);
+}
+
+/* Bilinear resize of an 8/16-bit frame (for the size sweep). */
+static void resize(sinew_ctx *ctx, sinew_image *dst, const sinew_image *src, int w, int h)
+{
+    if (sinew_image_alloc(ctx, dst, w, h, src->channels, src->type))
+        die(ctx, "resize");
+    for (int y = 0; y < h; y++) {
+        double sy = ((double)y + 0.5) * src->height / h - 0.5;
+        sy = sy < 0 ? 0 : (sy > src->height - 1 ? src->height - 1 : sy);
+        int y0 = (int)sy, y1 = y0 + 1 < src->height ? y0 + 1 : y0;
+        double fy = sy - y0;
+        for (int x = 0; x < w; x++) {
+            double sx = ((double)x + 0.5) * src->width / w - 0.5;
+            sx = sx < 0 ? 0 : (sx > src->width - 1 ? src->width - 1 : sx);
+            int x0 = (int)sx, x1 = x0 + 1 < src->width ? x0 + 1 : x0;
+            double fx = sx - x0;
+            for (int c = 0; c < src->channels; c++) {
+                int C = src->channels;
+                double a, b, cc, d;
+                if (src->type == SINEW_U8) {
+                    a = sinew_image_row_u8(src, y0)[x0 * C + c];
+                    b = sinew_image_row_u8(src, y0)[x1 * C + c];
+                    cc = sinew_image_row_u8(src, y1)[x0 * C + c];
+                    d = sinew_image_row_u8(src, y1)[x1 * C + c];
+                } else {
+                    a = sinew_image_row_u16(src, y0)[x0 * C + c];
+                    b = sinew_image_row_u16(src, y0)[x1 * C + c];
+                    cc = sinew_image_row_u16(src, y1)[x0 * C + c];
+                    d = sinew_image_row_u16(src, y1)[x1 * C + c];
+                }
+                double v = (1 - fy) * ((1 - fx) * a + fx * b) + fy * ((1 - fx) * cc + fx * d);
+                if (src->type == SINEW_U8)
+                    sinew_image_row_u8(dst, y)[x * C + c] = (uint8_t)lround(v);
+                else
+                    sinew_image_row_u16(dst, y)[x * C + c] = (uint16_t)lround(v);
+            }
+        }
+    }
+}
+
+typedef struct pair {
+    sinew_image f0, f1, gt;
+} pair;
+
+static void load_pair(sinew_ctx *ctx, pair *p, const char *data, int i)
+{
+    char a[1024], b[1024], g[1024];
+    if (i < 8) {
+        snprintf(a, sizeof a, "%s/middlebury/%s/frame10.png", data, pair_names[i]);
+        snprintf(b, sizeof b, "%s/middlebury/%s/frame11.png", data, pair_names[i]);
+        snprintf(g, sizeof g, "%s/middlebury/%s/flow10.flo", data, pair_names[i]);
+    } else {
+        snprintf(a, sizeof a, "%s/flyingchairs/examples/%07d-img0.ppm", data, i - 8);
+        snprintf(b, sizeof b, "%s/flyingchairs/examples/%07d-img1.ppm", data, i - 8);
+        snprintf(g, sizeof g, "%s/flyingchairs/examples/%07d-gt.flo", data, i - 8);
+    }
+    if (sinew_image_read(ctx, &p->f0, a) || sinew_image_read(ctx, &p->f1, b) ||
+        sinew_flow_read(ctx, &p->gt, g, SINEW_FLOW_AUTO))
+        die(ctx, "load");
+}
+
+/* Median wall time of `runs` estimates; the flow of the last run stays in fl. */
+static double time_runs(sinew_estimator *e, sinew_image *fl, const sinew_image *a,
+                        const sinew_image *b, int runs, sinew_ctx *ctx)
+{
+    double t[64];
+    if (runs > 64)
+        runs = 64;
+    for (int r = 0; r < runs; r++) {
+        double t0 = now();
+        if (sinew_estimator_run(e, fl, NULL, a, b))
+            die(ctx, "run");
+        t[r] = now() - t0;
+    }
+    qsort(t, (size_t)runs, sizeof t[0], cmp_double);
+    return runs % 2 ? t[runs / 2] : 0.5 * (t[runs / 2 - 1] + t[runs / 2]);
+}
+
+static sinew_estimator *make_est(sinew_ctx *ctx, const char *preset)
+{
+    sinew_flow_params p;
+    sinew_estimator *e;
+    if (sinew_flow_params_preset(&p, preset) || sinew_estimator_new(ctx, &e, &p))
+        die(ctx, preset);
+    return e;
+}
+
+static long max_rss_kb(void)
+{
+    struct rusage ru;
+    getrusage(RUSAGE_SELF, &ru);
+    return ru.ru_maxrss;
+}
+
+/* Peak-RSS growth of one 1920x1080 forward estimate, in bytes per pixel. */
+static int rss_probe(const char *preset, const char *data)
+{
+    sinew_ctx *ctx = sinew_ctx_new();
+    pair p;
+    load_pair(ctx, &p, data, 5);
+    sinew_image a, b, fl;
+    resize(ctx, &a, &p.f0, 1920, 1080);
+    resize(ctx, &b, &p.f1, 1920, 1080);
+    if (sinew_image_alloc(ctx, &fl, 1920, 1080, 2, SINEW_F32))
+        die(ctx, "alloc");
+    memset(fl.data, 0, fl.stride * 1080); /* touch the output so it is counted before */
+    sinew_estimator *e = make_est(ctx, preset);
+    long before = max_rss_kb();
+    if (sinew_estimator_run(e, &fl, NULL, &a, &b))
+        die(ctx, "run");
+    long after = max_rss_kb();
+    printf("%.1f\n", (double)(after - before) * 1024.0 / (1920.0 * 1080.0));
+    return 0;
+}
+
+int main(int argc, char **argv)
+{
+    if (argc == 4 && !strcmp(argv[1], "--rss-probe"))
+        return rss_probe(argv[2], argv[3]);
+    if (argc < 2) {
+        fprintf(stderr, "usage: bench_flow DATA_DIR [--runs N] [--rss LIST]\n");
+        return 2;
+    }
+    const char *data = argv[1], *rss = "";
+    int runs = 5;
+    for (int i = 2; i + 1 < argc; i += 2) {
+        if (!strcmp(argv[i], "--runs"))
+            runs = atoi(argv[i + 1]) > 0 ? atoi(argv[i + 1]) : 5;
+        else if (!strcmp(argv[i], "--rss"))
+            rss = argv[i + 1];
+    }
+    sinew_ctx *ctx = sinew_ctx_new();
+    if (!ctx)
+        return 1;
+    pair pairs[NPAIR];
+    for (int i = 0; i < NPAIR; i++)
+        load_pair(ctx, &pairs[i], data, i);
+
+    double epe[NPRESET][NPAIR], fl[NPRESET][NPAIR], ms[NPRESET][NPAIR];
+    double mspx[NPRESET][4], scale[NPRESET];
+    for (int k = 0; k < NPRESET; k++) {
+        sinew_estimator *e = make_est(ctx, presets[k]);
+        for (int i = 0; i < NPAIR; i++) {
+            pair *p = &pairs[i];
+            sinew_image f;
+            if (sinew_image_alloc(ctx, &f, p->f0.width, p->f0.height, 2, SINEW_F32))
+                die(ctx, "alloc");
+            double t = time_runs(e, &f, &p->f0, &p->f1, runs, ctx);
+            sinew_flow_errors er;
+            if (sinew_flow_errors_compute(ctx, &er, &f, &p->gt, NULL, NULL))
+                die(ctx, "metrics");
+            const sinew_flow_stats *s = &er.region[SINEW_REGION_ALL];
+            epe[k][i] = s->sum_epe / (double)s->n_valid;
+            fl[k][i] = 100.0 * (double)s->n_fl / (double)s->n_valid;
+            ms[k][i] = 1e3 * t;
+            sinew_image_free(&f);
+        }
+        /* size sweep on the Urban2 pair, resized */
+        for (int z = 0; z < 4; z++) {
+            int w = sizes[z][0], h = sizes[z][1];
+            sinew_image a, b, f;
+            resize(ctx, &a, &pairs[5].f0, w, h);
+            resize(ctx, &b, &pairs[5].f1, w, h);
+            if (sinew_image_alloc(ctx, &f, w, h, 2, SINEW_F32))
+                die(ctx, "alloc");
+            int zr = z >= 2 && k >= 2 ? (runs < 3 ? runs : 3) : runs;
+            double t = time_runs(e, &f, &a, &b, zr, ctx);
+            mspx[k][z] = 1e3 * t / ((double)w * h / 1e6);
+            if (z == 1) {
+                /* thread scaling at 640x480: 1 thread vs 2 threads */
+                int old = sinew_ctx_threads(ctx);
+                sinew_ctx_set_threads(ctx, 1);
+                double t1 = time_runs(e, &f, &a, &b, runs, ctx);
+                sinew_ctx_set_threads(ctx, 2);
+                double t2 = time_runs(e, &f, &a, &b, runs, ctx);
+                sinew_ctx_set_threads(ctx, old);
+                scale[k] = t1 / t2;
+            }
+            sinew_image_free(&a);
+            sinew_image_free(&b);
+            sinew_image_free(&f);
+        }
+        sinew_estimator_free(e);
+    }
+
+    /* one table: rows = pairs and summary lines, column groups = presets */
+    printf("| %-22s |", "pair / measure");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27s |", presets[k]);
+    printf("\n|%s|", "------------------------");
+    for (int k = 0; k < NPRESET; k++)
+        printf("%s|", "-----------------------------");
+    printf("\n");
+    for (int i = 0; i < NPAIR; i++) {
+        printf("| %-22s |", pair_names[i]);
+        for (int k = 0; k < NPRESET; k++)
+            printf(" EPE %6.3f Fl %5.2f%% %6.1fms |", epe[k][i], fl[k][i], ms[k][i]);
+        printf("\n");
+    }
+    double mb[NPRESET], ch[NPRESET], mbt[NPRESET];
+    for (int k = 0; k < NPRESET; k++) {
+        mb[k] = ch[k] = mbt[k] = 0;
+        for (int i = 0; i < 8; i++) {
+            mb[k] += epe[k][i] / 8;
+            mbt[k] += ms[k][i] / 8;
+        }
+        ch[k] = 0.5 * (epe[k][8] + epe[k][9]);
+    }
+    printf("| %-22s |", "Middlebury mean EPE");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27.3f |", mb[k]);
+    printf("\n| %-22s |", "Middlebury mean Fl-all");
+    for (int k = 0; k < NPRESET; k++) {
+        double s = 0;
+        for (int i = 0; i < 8; i++)
+            s += fl[k][i] / 8;
+        printf(" %-26.2f%% |", s);
+    }
+    printf("\n| %-22s |", "Chairs mean EPE");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27.3f |", ch[k]);
+    printf("\n| %-22s |", "Chairs mean Fl-all");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-26.2f%% |", 0.5 * (fl[k][8] + fl[k][9]));
+    for (int z = 0; z < 4; z++) {
+        char lab[64];
+        snprintf(lab, sizeof lab, "ms/Mpx %dx%d", sizes[z][0], sizes[z][1]);
+        printf("\n| %-22s |", lab);
+        for (int k = 0; k < NPRESET; k++)
+            printf(" %-27.1f |", mspx[k][z]);
+    }
+    printf("\n| %-22s |", "ms at 640x480");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27.1f |", mspx[k][1] * 0.3072);
+    printf("\n| %-22s |", "speed-up 1 -> 2 threads");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27.2f |", scale[k]);
+    printf("\n| %-22s |", "peak RSS growth B/px");
+    for (int k = 0; k < NPRESET; k++) {
+        const char *q = strstr(rss, presets[k]);
+        double v = q ? atof(q + strlen(presets[k]) + 1) : NAN;
+        printf(" %-27.1f |", v);
+    }
+    printf("\n| %-22s |", "time / baseline (MB)");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27.3f |", mbt[k] / mbt[NPRESET - 1]);
+    printf("\n| %-22s |", "EPE / baseline (MB)");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27.3f |", mb[k] / mb[NPRESET - 1]);
+    printf("\n");
+    for (int i = 0; i < NPAIR; i++) {
+        sinew_image_free(&pairs[i].f0);
+        sinew_image_free(&pairs[i].f1);
+        sinew_image_free(&pairs[i].gt);
+    }
+    sinew_ctx_free(ctx);
+    return 0;
+}

@@ -1,0 +1,228 @@
+/* SPDX-License-Identifier: MIT */
+/* sinew flow FRAME1 FRAME2 -o FWD: dense optical flow from FRAME1 to FRAME2 (and back with
+ * --backward), written in any flow format io knows, chosen by extension. Presets and the
+ * advanced parameters map one to one onto sinew_flow_params (flow/estimate.h). */
+#define _POSIX_C_SOURCE 200809L
+#include <getopt.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "tools/cli.h"
+
+static void usage(FILE *out)
+{
+    fprintf(out,
+            "usage: sinew flow FRAME1 FRAME2 -o FWD [--backward BWD] [--preset NAME]\n"
+            "                  [--threads N] [advanced options]\n"
+            "\n"
+            "Estimate dense optical flow from FRAME1 to FRAME2 (PNG, JPEG, PGM/PPM; 8/16-bit,\n"
+            "gray or colour; both frames the same size): FRAME1(x) matches FRAME2(x + flow).\n"
+            "The output format follows the extension: .flo, .png (KITTI), .pfm, .npy.\n"
+            "\n"
+            "options:\n"
+            "  -o, --output FILE     forward flow FRAME1 -> FRAME2 (required)\n"
+            "  -b, --backward FILE   also write the backward flow FRAME2 -> FRAME1\n"
+            "  -p, --preset NAME     fast | balanced (default) | accurate | baseline\n"
+            "                        (baseline = plain coarse-to-fine Horn-Schunck)\n"
+            "  -t, --threads N       worker threads (0 = all cores; output is identical\n"
+            "                        for every N)\n"
+            "  -h, --help            show this help\n"
+            "\n"
+            "advanced options (override the preset; see docs/methods.md):\n"
+            "  --levels N            pyramid levels to use (0 = automatic)\n"
+            "  --finest-level N      finest level computed (0 = full resolution)\n"
+            "  --patch-finest N      finest level of dense inverse search (-1 = off)\n"
+            "  --patch-size N        patch side in pixels (4..32)\n"
+            "  --patch-stride N      distance between patches in pixels\n"
+            "  --patch-iters N       Gauss-Newton iterations per patch\n"
+            "  --warps N             variational warping steps per level (0 = none)\n"
+            "  --outer N             fixed-point iterations per warp\n"
+            "  --inner N             red-black SOR sweeps per fixed-point iteration\n"
+            "  --alpha X             smoothness weight\n"
+            "  --gamma X             gradient-constancy weight (illumination robustness)\n"
+            "  --delta X             brightness/colour-constancy weight\n"
+            "  --edge X              edge-aware smoothness strength (0 = off)\n"
+            "  --median N            median filter radius after each warp (0, 1, 2)\n"
+            "  --gray                use luminance only, even for colour frames\n"
+            "\n"
+            "examples:\n"
+            "  sinew flow frame10.png frame11.png -o fwd.flo\n"
+            "  sinew flow a.png b.png -o fwd.npy --backward bwd.npy --preset accurate\n"
+            "  sinew flow a.jpg b.jpg -o fwd.flo --preset fast --threads 2\n"
+            "\n"
+            "Outputs are written to temporary files and renamed when complete; on any\n"
+            "error no output file is left behind.\n"
+            "\n%s",
+            cli_notice);
+}
+
+enum {
+    O_LEVELS = 256, O_FINEST, O_PFINEST, O_PSIZE, O_PSTRIDE, O_PITERS, O_WARPS, O_OUTER,
+    O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_GRAY
+};
+
+/* Apply one advanced option to p; returns 0 or -1 if the value does not parse. */
+static int set_param(sinew_flow_params *p, int opt, const char *arg)
+{
+    long iv = 0;
+    double dv = 0;
+    int isint = opt != O_ALPHA && opt != O_GAMMA && opt != O_DELTA && opt != O_EDGE;
+    if (isint ? cli_parse_int(arg, -1, 100000, &iv) : cli_parse_double(arg, &dv))
+        return -1;
+    switch (opt) {
+    case O_LEVELS: p->levels = (int)iv; break;
+    case O_FINEST: p->finest_level = (int)iv; break;
+    case O_PFINEST: p->dis_finest = (int)iv; break;
+    case O_PSIZE: p->dis_patch = (int)iv; break;
+    case O_PSTRIDE: p->dis_stride = (int)iv; break;
+    case O_PITERS: p->dis_iters = (int)iv; break;
+    case O_WARPS: p->warps = (int)iv; break;
+    case O_OUTER: p->outer = (int)iv; break;
+    case O_INNER: p->inner = (int)iv; break;
+    case O_ALPHA: p->alpha = (float)dv; break;
+    case O_GAMMA: p->gamma = (float)dv; break;
+    case O_DELTA: p->delta = (float)dv; break;
+    case O_EDGE: p->edge = (float)dv; break;
+    case O_MEDIAN: p->median = (int)iv; break;
+    default: return -1;
+    }
+    return 0;
+}
+
+/* Read a frame; the context message names the file on failure. */
+static int read_frame(sinew_ctx *ctx, sinew_image *img, const char *path)
+{
+    return sinew_image_read(ctx, img, path);
+}
+
+int cmd_flow(int argc, char **argv)
+{
+    static const struct option opts[] = {
+        {"output", required_argument, NULL, 'o'},
+        {"backward", required_argument, NULL, 'b'},
+        {"preset", required_argument, NULL, 'p'},
+        {"threads", required_argument, NULL, 't'},
+        {"help", no_argument, NULL, 'h'},
+        {"levels", required_argument, NULL, O_LEVELS},
+        {"finest-level", required_argument, NULL, O_FINEST},
+        {"patch-finest", required_argument, NULL, O_PFINEST},
+        {"patch-size", required_argument, NULL, O_PSIZE},
+        {"patch-stride", required_argument, NULL, O_PSTRIDE},
+        {"patch-iters", required_argument, NULL, O_PITERS},
+        {"warps", required_argument, NULL, O_WARPS},
+        {"outer", required_argument, NULL, O_OUTER},
+        {"inner", required_argument, NULL, O_INNER},
+        {"alpha", required_argument, NULL, O_ALPHA},
+        {"gamma", required_argument, NULL, O_GAMMA},
+        {"delta", required_argument, NULL, O_DELTA},
+        {"edge", required_argument, NULL, O_EDGE},
+        {"median", required_argument, NULL, O_MEDIAN},
+        {"gray", no_argument, NULL, O_GRAY},
+        {NULL, 0, NULL, 0},
+    };
+    const char *out = NULL, *bout = NULL, *preset = "balanced";
+    long threads = 0;
+    /* advanced options are applied after the preset, in order */
+    struct { int opt; const char *arg; } adv[64];
+    int nadv = 0, gray = 0, c;
+    opterr = 0;
+    optind = 1;
+    while ((c = getopt_long(argc, argv, "o:b:p:t:h", opts, NULL)) != -1) {
+        switch (c) {
+        case 'o': out = optarg; break;
+        case 'b': bout = optarg; break;
+        case 'p': preset = optarg; break;
+        case 't':
+            if (cli_parse_int(optarg, 0, 1024, &threads))
+                return cli_usage_error("flow", "--threads: '%s' is not a count in 0..1024", optarg);
+            break;
+        case 'h': usage(stdout); return CLI_OK;
+        case O_GRAY: gray = 1; break;
+        case '?':
+        case ':':
+            return cli_usage_error("flow", "unknown option or missing value '%s'",
+                                   argv[optind - 1]);
+        default:
+            if (nadv == (int)(sizeof adv / sizeof adv[0]))
+                return cli_usage_error("flow", "too many options");
+            adv[nadv].opt = c;
+            adv[nadv].arg = optarg;
+            nadv++;
+            break;
+        }
+    }
+    if (argc - optind != 2)
+        return cli_usage_error("flow", "expected FRAME1 and FRAME2");
+    if (!out)
+        return cli_usage_error("flow", "missing -o FWD");
+    sinew_flow_params p;
+    if (sinew_flow_params_preset(&p, preset))
+        return cli_usage_error("flow", "unknown preset '%s' (fast, balanced, accurate, baseline)",
+                               preset);
+    for (int i = 0; i < nadv; i++)
+        if (set_param(&p, adv[i].opt, adv[i].arg))
+            return cli_usage_error("flow", "bad value '%s'", adv[i].arg);
+    if (gray)
+        p.color = 0;
+    const char *f0 = argv[optind], *f1 = argv[optind + 1];
+    sinew_ctx *ctx = cli_ctx("flow", (int)threads);
+    if (!ctx)
+        return CLI_FAIL;
+    int rc = sinew_flow_params_check(ctx, &p);
+    if (rc) {
+        int r = cli_usage_error("flow", "%s", sinew_ctx_message(ctx));
+        sinew_ctx_free(ctx);
+        return r;
+    }
+    sinew_flow_format ffmt, bfmt;
+    sinew_image a = {0}, b = {0}, fwd = {0}, bwd = {0};
+    sinew_estimator *est = NULL;
+    rc = sinew_flow_format_from_path(ctx, out, &ffmt);
+    if (!rc && bout)
+        rc = sinew_flow_format_from_path(ctx, bout, &bfmt);
+    if (!rc)
+        rc = read_frame(ctx, &a, f0);
+    if (!rc)
+        rc = read_frame(ctx, &b, f1);
+    if (!rc && (a.width != b.width || a.height != b.height)) {
+        int r = cli_error("flow", "%s: size %dx%d differs from %s (%dx%d)", f1, b.width,
+                          b.height, f0, a.width, a.height);
+        sinew_image_free(&a);
+        sinew_image_free(&b);
+        sinew_ctx_free(ctx);
+        return r;
+    }
+    if (!rc && (a.type != b.type || a.channels != b.channels)) {
+        int r = cli_error("flow", "%s: %d-channel %d-bit frame, but %s is %d-channel %d-bit", f1,
+                          b.channels, (int)sinew_type_size(b.type) * 8, f0, a.channels,
+                          (int)sinew_type_size(a.type) * 8);
+        sinew_image_free(&a);
+        sinew_image_free(&b);
+        sinew_ctx_free(ctx);
+        return r;
+    }
+    if (!rc)
+        rc = sinew_image_alloc(ctx, &fwd, a.width, a.height, 2, SINEW_F32);
+    if (!rc && bout)
+        rc = sinew_image_alloc(ctx, &bwd, a.width, a.height, 2, SINEW_F32);
+    if (!rc)
+        rc = sinew_estimator_new(ctx, &est, &p);
+    if (!rc)
+        rc = sinew_estimator_run(est, &fwd, bout ? &bwd : NULL, &a, &b);
+    if (!rc)
+        rc = sinew_flow_write(ctx, out, &fwd, ffmt);
+    if (!rc && bout) {
+        rc = sinew_flow_write(ctx, bout, &bwd, bfmt);
+        if (rc)
+            remove(out); /* no partial result: both files or none */
+    }
+    int ret = rc ? cli_status("flow", ctx, rc) : CLI_OK;
+    sinew_estimator_free(est);
+    sinew_image_free(&a);
+    sinew_image_free(&b);
+    sinew_image_free(&fwd);
+    sinew_image_free(&bwd);
+    sinew_ctx_free(ctx);
+    return ret;
+}

@@ -187,3 +187,30 @@ else
     skip "identical outputs for 1, 2, 4 threads" "no Middlebury data in $SINEW_DATA"
     skip "fb_error matches an independent numpy computation" "no Middlebury data in $SINEW_DATA"
 fi
+
+# 6. sinew flow --check: both directions and the check in one run, same outputs as
+# running sinew check on the written flows.
+if "$SINEW_BIN" flow --help >/dev/null 2>&1; then
+    py "$T" <<'EOF2'
+import sys, numpy as np
+d = sys.argv[1]; rng = np.random.RandomState(3); h, w = 40, 48
+a = rng.randint(0, 256, size=(h, w)).astype(np.float64)
+for _ in range(2): a = (a + np.roll(a, 1, 0) + np.roll(a, 1, 1) + np.roll(a, -1, 0)) / 4
+a = (a - a.min()) / (a.max() - a.min()) * 200 + 20
+b = np.roll(a, 1, 1)
+for name, img in (('a', a), ('b', b)):
+    with open(f'{d}/{name}.pgm', 'wb') as o:
+        o.write(b'P5\n%d %d\n255\n' % (w, h)); o.write(np.round(img).astype(np.uint8).tobytes())
+EOF2
+    expect_ok "flow --check" "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$T/ff.flo" --backward "$T/fb.flo" --check "$T/fc" --preset fast
+    expect_ok "check on the same flows" "$SINEW_BIN" check --forward "$T/ff.flo" --backward "$T/fb.flo" --frames "$T/a.pgm" "$T/b.pgm" -o "$T/fc2"
+    same=1
+    for f in fb_error.npy mask.png confidence.npy confidence.png; do cmp -s "$T/fc/$f" "$T/fc2/$f" || same=0; done
+    if [ $same = 1 ]; then pass "flow --check equals check on the written flows"
+    else fail "flow --check equals check on the written flows" "outputs differ"; fi
+    : >"$T/notdir"
+    expect_error "flow --check into a file leaves no flow" "$T/ff2.flo" "notdir: exists and is not a folder" \
+        "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$T/ff2.flo" --check "$T/notdir" --preset fast
+else
+    skip "flow --check" "this build has no 'sinew flow'"
+fi

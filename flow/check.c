@@ -39,10 +39,10 @@ void sinew_check_params_default(sinew_check_params *p)
     p->ignore_polarity = SINEW_IGNORE_UNSET;
     /* Confidence score: tuned for AUSE (docs/methods.md, "Tuning"). */
     p->conf_fb_alpha = 0.0;
-    p->conf_fb_beta = 0.25;
+    p->conf_fb_beta = 0.03;
     p->conf_photo_scale = 0.1;
     p->conf_texture_scale = 4e-5;
-    p->conf_texture_weight = 1.0;
+    p->conf_texture_weight = 0.3;
     p->conf_boundary_scale = 6.0;
     p->conf_boundary_weight = 1.0;
     p->conf_saturated = 0.5;
@@ -69,18 +69,16 @@ static int check_param(sinew_ctx *ctx, const char *name, double v)
     return SINEW_OK;
 }
 
-static int validate_params(sinew_ctx *ctx, const sinew_check_params *p)
+size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *out, size_t max)
 {
-    const struct {
-        const char *n;
-        double v;
-    } list[] = {
+    const sinew_check_param list[SINEW_CHECK_NPARAMS] = {
         {"fb_alpha", p->fb_alpha},
         {"fb_beta", p->fb_beta},
         {"boundary_alpha", p->boundary_alpha},
         {"boundary_beta", p->boundary_beta},
         {"photo_threshold", p->photo_threshold},
         {"saturation_level", p->saturation_level},
+        {"texture_radius", p->texture_radius},
         {"conf_fb_alpha", p->conf_fb_alpha},
         {"conf_fb_beta", p->conf_fb_beta},
         {"conf_photo_scale", p->conf_photo_scale},
@@ -90,8 +88,18 @@ static int validate_params(sinew_ctx *ctx, const sinew_check_params *p)
         {"conf_boundary_weight", p->conf_boundary_weight},
         {"conf_saturated", p->conf_saturated},
     };
-    for (size_t i = 0; i < sizeof list / sizeof list[0]; i++) {
-        int st = check_param(ctx, list[i].n, list[i].v);
+    size_t n = max < SINEW_CHECK_NPARAMS ? max : SINEW_CHECK_NPARAMS;
+    for (size_t i = 0; out && i < n; i++)
+        out[i] = list[i];
+    return SINEW_CHECK_NPARAMS;
+}
+
+static int validate_params(sinew_ctx *ctx, const sinew_check_params *p)
+{
+    sinew_check_param list[SINEW_CHECK_NPARAMS];
+    sinew_check_params_list(p, list, SINEW_CHECK_NPARAMS);
+    for (size_t i = 0; i < SINEW_CHECK_NPARAMS; i++) {
+        int st = check_param(ctx, list[i].name, list[i].value);
         if (st)
             return st;
     }
@@ -372,9 +380,13 @@ static void pass_geometry(const sinew_check_input *in, const sinew_check_params 
                 if (flow_grad2(F, x, y) > p->boundary_alpha * w2 + p->boundary_beta)
                     m |= SINEW_MASK_BOUNDARY;
                 double px = x + u, py = y + v;
-                if (!(px >= 0 && px <= w - 1 && py >= 0 && py <= h - 1)) {
+                /* Inside the image area [-0.5, W - 0.5) x [-0.5, H - 0.5); samples are
+                 * taken at the target clamped to the pixel-centre hull. */
+                if (!(px >= -0.5 && px < w - 0.5 && py >= -0.5 && py < h - 0.5)) {
                     m |= SINEW_MASK_OUTSIDE;
                 } else {
+                    px = px < 0 ? 0 : px > w - 1 ? w - 1 : px;
+                    py = py < 0 ? 0 : py > h - 1 ? h - 1 : py;
                     double bu, bv;
                     if (!sample_flow(B, px, py, &bu, &bv)) {
                         m |= SINEW_MASK_UNKNOWN;

@@ -13,16 +13,21 @@ extern "C" {
 #endif
 
 /* Mask bits: a pixel is kept iff its mask value is 0; otherwise each set bit is one
- * reason to reject it (several may be set). */
-#define SINEW_MASK_FB (1u << 0)        /* forward-backward inconsistent */
-#define SINEW_MASK_OUTSIDE (1u << 1)   /* target x + w(x) is outside frame 1 */
-#define SINEW_MASK_BOUNDARY (1u << 2)  /* motion boundary (flow gradient too large) */
-#define SINEW_MASK_PHOTO (1u << 3)     /* photometric residual too large */
-#define SINEW_MASK_IGNORE (1u << 4)    /* inside the user's ignore mask */
-#define SINEW_MASK_SATURATED (1u << 5) /* clipped near-white source or target pixel */
-#define SINEW_MASK_UNKNOWN                                                                         \
-    (1u << 6) /* forward flow at x, or backward flow at the                                        \
-                 target, is unknown (NaN/Inf) */
+ * reason to reject it (several may be set).
+ *   FB         forward-backward inconsistent
+ *   OUTSIDE    target x + w(x) outside frame 1's area [-0.5, W-0.5) x [-0.5, H-0.5)
+ *   BOUNDARY   motion boundary (flow gradient too large)
+ *   PHOTO      photometric residual too large
+ *   IGNORE     inside the user's ignore mask
+ *   SATURATED  clipped near-white source or target pixel
+ *   UNKNOWN    forward flow at x, or backward flow at the target, unknown (NaN/Inf) */
+#define SINEW_MASK_FB (1u << 0)
+#define SINEW_MASK_OUTSIDE (1u << 1)
+#define SINEW_MASK_BOUNDARY (1u << 2)
+#define SINEW_MASK_PHOTO (1u << 3)
+#define SINEW_MASK_IGNORE (1u << 4)
+#define SINEW_MASK_SATURATED (1u << 5)
+#define SINEW_MASK_UNKNOWN (1u << 6)
 #define SINEW_MASK_NBITS 7
 /* Bits that mean "occluded or leaves the view": the occlusion estimate. */
 #define SINEW_MASK_OCCLUSION (SINEW_MASK_FB | SINEW_MASK_OUTSIDE)
@@ -75,6 +80,17 @@ typedef struct sinew_check_params {
 
 /* Fill *p with the defaults listed above. */
 void sinew_check_params_default(sinew_check_params *p);
+
+/* Every numeric parameter as a (name, value) pair, e.g. for logs and JSON: the field
+ * names above, texture_radius as a double, ignore_polarity left out. */
+typedef struct sinew_check_param {
+    const char *name; /* static storage */
+    double value;
+} sinew_check_param;
+#define SINEW_CHECK_NPARAMS 15
+/* Copy min(max, SINEW_CHECK_NPARAMS) pairs into out (may be NULL when max is 0); returns
+ * SINEW_CHECK_NPARAMS. */
+size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *out, size_t max);
 
 /* Inputs. forward and backward: SINEW_F32 2-channel flow fields of equal size, NaN =
  * unknown. frame0/frame1: optional (both or neither), SINEW_U8 or SINEW_U16 with 1..4

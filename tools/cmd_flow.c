@@ -9,6 +9,7 @@
 #include <string.h>
 
 #include "tools/cli.h"
+#include "tools/cli_check.h"
 
 static void usage(FILE *out)
 {
@@ -23,6 +24,9 @@ static void usage(FILE *out)
             "options:\n"
             "  -o, --output FILE     forward flow FRAME1 -> FRAME2 (required)\n"
             "  -b, --backward FILE   also write the backward flow FRAME2 -> FRAME1\n"
+            "  -c, --check DIR       also compute the backward flow (same run) and write the\n"
+            "                        forward-backward check of the pair to DIR, as\n"
+            "                        'sinew check' with default parameters does\n"
             "  -p, --preset NAME     fast | balanced (default) | accurate | baseline\n"
             "                        (baseline = plain coarse-to-fine Horn-Schunck)\n"
             "  -t, --threads N       worker threads (0 = all cores; output is identical\n"
@@ -50,6 +54,7 @@ static void usage(FILE *out)
             "  sinew flow frame10.png frame11.png -o fwd.flo\n"
             "  sinew flow a.png b.png -o fwd.npy --backward bwd.npy --preset accurate\n"
             "  sinew flow a.jpg b.jpg -o fwd.flo --preset fast --threads 2\n"
+            "  sinew flow a.png b.png -o fwd.flo --check out/check\n"
             "\n"
             "Outputs are written to temporary files and renamed when complete; on any\n"
             "error no output file is left behind.\n"
@@ -59,7 +64,7 @@ static void usage(FILE *out)
 
 enum {
     O_LEVELS = 256, O_FINEST, O_PFINEST, O_PSIZE, O_PSTRIDE, O_PITERS, O_WARPS, O_OUTER,
-    O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_GRAY
+    O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_GRAY, O_CHECK
 };
 
 /* Apply one advanced option to p; returns 0 or -1 if the value does not parse. */
@@ -101,6 +106,7 @@ int cmd_flow(int argc, char **argv)
     static const struct option opts[] = {
         {"output", required_argument, NULL, 'o'},
         {"backward", required_argument, NULL, 'b'},
+        {"check", required_argument, NULL, O_CHECK},
         {"preset", required_argument, NULL, 'p'},
         {"threads", required_argument, NULL, 't'},
         {"help", no_argument, NULL, 'h'},
@@ -121,7 +127,7 @@ int cmd_flow(int argc, char **argv)
         {"gray", no_argument, NULL, O_GRAY},
         {NULL, 0, NULL, 0},
     };
-    const char *out = NULL, *bout = NULL, *preset = "balanced";
+    const char *out = NULL, *bout = NULL, *preset = "balanced", *check_dir = NULL;
     long threads = 0;
     /* advanced options are applied after the preset, in order */
     struct { int opt; const char *arg; } adv[64];
@@ -139,6 +145,7 @@ int cmd_flow(int argc, char **argv)
             break;
         case 'h': usage(stdout); return CLI_OK;
         case O_GRAY: gray = 1; break;
+        case O_CHECK: check_dir = optarg; break;
         case '?':
         case ':':
             return cli_usage_error("flow", "unknown option or missing value '%s'",
@@ -204,12 +211,36 @@ int cmd_flow(int argc, char **argv)
     }
     if (!rc)
         rc = sinew_image_alloc(ctx, &fwd, a.width, a.height, 2, SINEW_F32);
-    if (!rc && bout)
+    if (!rc && (bout || check_dir))
         rc = sinew_image_alloc(ctx, &bwd, a.width, a.height, 2, SINEW_F32);
     if (!rc)
         rc = sinew_estimator_new(ctx, &est, &p);
     if (!rc)
-        rc = sinew_estimator_run(est, &fwd, bout ? &bwd : NULL, &a, &b);
+        rc = sinew_estimator_run(est, &fwd, bout || check_dir ? &bwd : NULL, &a, &b);
+    /* --check: computed before any file is written, so a failure leaves nothing */
+    cli_check_result chk;
+    memset(&chk, 0, sizeof chk);
+    cJSON *chk_json = NULL;
+    cli_check_paths chk_paths = {out, bout, f0, f1, NULL, check_dir};
+    if (!rc && check_dir) {
+        sinew_check_params cp;
+        sinew_check_params_default(&cp);
+        sinew_check_input in = {&fwd, &bwd, &a, &b, NULL};
+        int bad = cli_check_compute("flow", ctx, &chk, &in, &cp, &chk_paths);
+        if (!bad && !(chk_json = cli_check_json(&chk, &cp, &chk_paths)))
+            bad = cli_error("flow", "out of memory");
+        if (bad) {
+            cli_check_result_free(&chk);
+            cJSON_Delete(chk_json);
+            sinew_estimator_free(est);
+            sinew_image_free(&a);
+            sinew_image_free(&b);
+            sinew_image_free(&fwd);
+            sinew_image_free(&bwd);
+            sinew_ctx_free(ctx);
+            return CLI_FAIL;
+        }
+    }
     if (!rc)
         rc = sinew_flow_write(ctx, out, &fwd, ffmt);
     if (!rc && bout) {
@@ -218,6 +249,14 @@ int cmd_flow(int argc, char **argv)
             remove(out); /* no partial result: both files or none */
     }
     int ret = rc ? cli_status("flow", ctx, rc) : CLI_OK;
+    if (!rc && check_dir && cli_check_write("flow", ctx, &chk, chk_json, check_dir)) {
+        remove(out); /* no partial result: flows and check, or nothing new */
+        if (bout)
+            remove(bout);
+        ret = CLI_FAIL;
+    }
+    cli_check_result_free(&chk);
+    cJSON_Delete(chk_json);
     sinew_estimator_free(est);
     sinew_image_free(&a);
     sinew_image_free(&b);

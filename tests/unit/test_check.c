@@ -113,6 +113,11 @@ static void test_check_defaults_are_published_constants(void **state)
     /* Sundaram, Brox, Keutzer ECCV 2010; constants [V2] in published-numbers.md §4.1. */
     assert_true(p.fb_alpha == 0.01 && p.fb_beta == 0.5);
     assert_true(p.boundary_alpha == 0.01 && p.boundary_beta == 0.002);
+    sinew_check_param list[SINEW_CHECK_NPARAMS];
+    assert_int_equal(sinew_check_params_list(&p, list, SINEW_CHECK_NPARAMS), SINEW_CHECK_NPARAMS);
+    assert_string_equal(list[1].name, "fb_beta");
+    assert_true(list[1].value == 0.5);
+    assert_int_equal(sinew_check_params_list(&p, NULL, 0), SINEW_CHECK_NPARAMS);
     assert_string_equal(sinew_check_bit_name(0), "fb_inconsistent");
     assert_null(sinew_check_bit_name(SINEW_MASK_NBITS));
     assert_int_equal(SINEW_MASK_FB, 1);
@@ -233,7 +238,9 @@ static void test_check_motion_boundary_step(void **state)
     sinew_ctx_free(ctx);
 }
 
-/* Out-of-frame rule: the target must lie in [0, W-1] x [0, H-1] (pixel centres). */
+/* Out-of-frame rule: the target must lie in the image area [-0.5, W - 0.5) x
+ * [-0.5, H - 0.5) (pixel squares, half-open); in the half-pixel margin the backward
+ * flow is sampled at the nearest pixel-centre position (border value). */
 static void test_check_outside_rule(void **state)
 {
     (void)state;
@@ -241,17 +248,26 @@ static void test_check_outside_rule(void **state)
     sinew_image f, b;
     flow_fill(ctx, &f, 5, 2, -0.5f, 0.0f);
     flow_fill(ctx, &b, 5, 2, 0.5f, 0.0f);
+    fl(&f, 1, 0)[0] = -1.6f; /* target -0.6: outside */
+    fl(&b, 4, 1)[0] = 0.25f; /* border value used at x = 4 */
+    fl(&f, 4, 1)[0] = 0.4f;  /* target 4.4: inside, samples x = 4 */
+    fl(&f, 3, 1)[0] = 1.5f;  /* target 4.5: outside (half-open) */
     outs r;
     outs_alloc(ctx, &r, 5, 2);
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, NULL), SINEW_OK);
-    assert_int_equal(mk(&r.mask, 0, 0), SINEW_MASK_OUTSIDE); /* target -0.5 */
-    assert_int_equal(mk(&r.mask, 1, 0), 0);                  /* target 0.5 */
-    assert_int_equal(mk(&r.mask, 4, 1), 0);                  /* target 3.5 */
+    /* (the edited vectors also make motion boundaries; only bits 0 and 1 matter here) */
+    const unsigned ob = SINEW_MASK_OCCLUSION;
+    assert_int_equal(mk(&r.mask, 0, 0) & ob, 0);                  /* target -0.5: inside */
+    assert_float_equal(*fl(&r.fb, 0, 0), 0.0, 1e-6);              /* -0.5 + b(0) = 0 */
+    assert_int_equal(mk(&r.mask, 1, 0) & ob, SINEW_MASK_OUTSIDE); /* target -0.6 */
+    assert_int_equal(mk(&r.mask, 4, 1) & ob, 0);
+    assert_float_equal(*fl(&r.fb, 4, 1), 0.65, 1e-6); /* 0.4 + 0.25 */
+    assert_int_equal(mk(&r.mask, 3, 1) & ob, SINEW_MASK_OUTSIDE);
     free_imgs(&f, &b, NULL, NULL);
     flow_fill(ctx, &f, 5, 2, 1.0f, 1.0f);
     flow_fill(ctx, &b, 5, 2, -1.0f, -1.0f);
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, NULL), SINEW_OK);
-    assert_int_equal(mk(&r.mask, 3, 0), 0); /* target (4, 1): exactly the last centre */
+    assert_int_equal(mk(&r.mask, 3, 0), 0); /* target (4, 1): the last centre */
     assert_int_equal(mk(&r.mask, 4, 0), SINEW_MASK_OUTSIDE);
     assert_int_equal(mk(&r.mask, 0, 1), SINEW_MASK_OUTSIDE);
     outs_free(&r);

@@ -1,0 +1,188 @@
+/* SPDX-License-Identifier: MIT */
+/* CLI helpers shared by `sinew check` and `sinew flow --check` (see cli_check.h). */
+#define _POSIX_C_SOURCE 200809L
+#include "tools/cli_check.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "tools/cli.h"
+
+int cli_check_compute(const char *cmd, sinew_ctx *ctx, cli_check_result *r,
+                      const sinew_check_input *in, const sinew_check_params *p,
+                      const cli_check_paths *paths)
+{
+    memset(r, 0, sizeof *r);
+    int w = in->forward->width, h = in->forward->height;
+    /* Size mismatches are reported with the file that disagrees. */
+    const struct {
+        const sinew_image *img;
+        const char *path;
+    } chk[4] = {{in->backward, paths->backward},
+                {in->frame0, paths->frame0},
+                {in->frame1, paths->frame1},
+                {in->ignore, paths->ignore}};
+    for (int i = 0; i < 4; i++)
+        if (chk[i].img && (chk[i].img->width != w || chk[i].img->height != h))
+            return cli_error(cmd, "%s: size %dx%d differs from the forward flow %s (%dx%d)",
+                             chk[i].path ? chk[i].path : "input", chk[i].img->width,
+                             chk[i].img->height, paths->forward ? paths->forward : "", w, h);
+    int st;
+    if ((st = sinew_image_alloc(ctx, &r->fb_error, w, h, 1, SINEW_F32)) ||
+        (st = sinew_image_alloc(ctx, &r->mask, w, h, 1, SINEW_U8)) ||
+        (st = sinew_image_alloc(ctx, &r->confidence, w, h, 1, SINEW_F32)))
+        return cli_status(cmd, ctx, st);
+    sinew_check_output out = {&r->fb_error, &r->mask, &r->confidence, {0}};
+    if ((st = sinew_check_run(ctx, &out, in, p)))
+        return cli_status(cmd, ctx, st);
+    r->stats = out.stats;
+    return 0;
+}
+
+void cli_check_result_free(cli_check_result *r)
+{
+    sinew_image_free(&r->fb_error);
+    sinew_image_free(&r->mask);
+    sinew_image_free(&r->confidence);
+}
+
+static void add_path(cJSON *obj, const char *name, const char *path)
+{
+    if (path)
+        cJSON_AddStringToObject(obj, name, path);
+    else
+        cJSON_AddNullToObject(obj, name);
+}
+
+cJSON *cli_check_json(const cli_check_result *r, const sinew_check_params *p,
+                      const cli_check_paths *paths)
+{
+    cJSON *root = cJSON_CreateObject();
+    if (!root)
+        return NULL;
+    cJSON_AddStringToObject(root, "format", "sinew-check");
+    cJSON_AddNumberToObject(root, "version", 1);
+    cJSON_AddNumberToObject(root, "width", r->mask.width);
+    cJSON_AddNumberToObject(root, "height", r->mask.height);
+    cJSON *in = cJSON_AddObjectToObject(root, "inputs");
+    add_path(in, "forward", paths->forward);
+    add_path(in, "backward", paths->backward);
+    add_path(in, "frame0", paths->frame0);
+    add_path(in, "frame1", paths->frame1);
+    add_path(in, "ignore", paths->ignore);
+    add_path(in, "ignore_polarity",
+             !paths->ignore                            ? NULL
+             : p->ignore_polarity == SINEW_IGNORE_ZERO ? "zero"
+                                                       : "nonzero");
+    cJSON *pj = cJSON_AddObjectToObject(root, "params");
+    sinew_check_param list[SINEW_CHECK_NPARAMS];
+    sinew_check_params_list(p, list, SINEW_CHECK_NPARAMS);
+    for (size_t i = 0; i < SINEW_CHECK_NPARAMS; i++)
+        cJSON_AddNumberToObject(pj, list[i].name, list[i].value);
+    if (paths->frame0) {
+        cJSON *fit = cJSON_AddObjectToObject(root, "photometric_fit");
+        cJSON_AddNumberToObject(fit, "gain", r->stats.gain);
+        cJSON_AddNumberToObject(fit, "offset", r->stats.offset);
+        cJSON_AddNumberToObject(fit, "pixels", (double)r->stats.fit_pixels);
+    }
+    cJSON *cnt = cJSON_AddObjectToObject(root, "counts");
+    cJSON_AddNumberToObject(cnt, "pixels", (double)r->stats.pixels);
+    cJSON_AddNumberToObject(cnt, "kept", (double)r->stats.kept);
+    for (int b = 0; b < SINEW_MASK_NBITS; b++)
+        cJSON_AddNumberToObject(cnt, sinew_check_bit_name(b), (double)r->stats.reason[b]);
+    double sum = 0;
+    for (int y = 0; y < r->confidence.height; y++) {
+        double row = 0;
+        for (int x = 0; x < r->confidence.width; x++)
+            row += sinew_image_row_f32(&r->confidence, y)[x];
+        sum += row;
+    }
+    cJSON_AddNumberToObject(root, "mean_confidence", sum / (double)r->stats.pixels);
+    if (!cJSON_GetObjectItem(root, "mean_confidence")) {
+        cJSON_Delete(root);
+        return NULL;
+    }
+    return root;
+}
+
+/* Create dir (one level) unless it exists as a folder. */
+static int make_dir(const char *cmd, const char *dir)
+{
+    struct stat st;
+    if (stat(dir, &st) == 0) {
+        if (S_ISDIR(st.st_mode))
+            return 0;
+        return cli_error(cmd, "%s: exists and is not a folder", dir);
+    }
+    if (mkdir(dir, 0777) != 0 && errno != EEXIST)
+        return cli_error(cmd, "%s: cannot create folder: %s", dir, strerror(errno));
+    return 0;
+}
+
+int cli_check_write(const char *cmd, sinew_ctx *ctx, const cli_check_result *r, cJSON *root,
+                    const char *dir)
+{
+    if (make_dir(cmd, dir))
+        return 1;
+    size_t n = strlen(dir) + 32;
+    char *path = malloc(n);
+    sinew_image c16 = {0};
+    char *text = NULL;
+    int st = SINEW_ENOMEM;
+    if (!path)
+        goto fail;
+    if ((st =
+             sinew_image_alloc(ctx, &c16, r->confidence.width, r->confidence.height, 1, SINEW_U16)))
+        goto fail;
+    for (int y = 0; y < c16.height; y++)
+        for (int x = 0; x < c16.width; x++) {
+            double c = sinew_image_row_f32(&r->confidence, y)[x];
+            sinew_image_row_u16(&c16, y)[x] = (uint16_t)lround(65535.0 * c);
+        }
+    snprintf(path, n, "%s/fb_error.npy", dir);
+    if ((st = sinew_npy_write_image(ctx, path, &r->fb_error, 0)))
+        goto fail;
+    snprintf(path, n, "%s/mask.png", dir);
+    if ((st = sinew_image_write_png(ctx, path, &r->mask)))
+        goto fail;
+    snprintf(path, n, "%s/confidence.npy", dir);
+    if ((st = sinew_npy_write_image(ctx, path, &r->confidence, 0)))
+        goto fail;
+    snprintf(path, n, "%s/confidence.png", dir);
+    if ((st = sinew_image_write_png(ctx, path, &c16)))
+        goto fail;
+    st = SINEW_ENOMEM;
+    if (!(text = cJSON_Print(root)))
+        goto fail;
+    size_t len = strlen(text);
+    text[len] = '\n'; /* cJSON_Print's NUL becomes the final newline */
+    snprintf(path, n, "%s/check.json", dir);
+    st = sinew_write_file(ctx, path, text, len + 1);
+    text[len] = '\0';
+    if (st)
+        goto fail;
+    free(text);
+    free(path);
+    sinew_image_free(&c16);
+    return 0;
+fail:
+    cli_status(cmd, ctx, st);
+    free(text);
+    free(path);
+    sinew_image_free(&c16);
+    return 1;
+}
+
+void cli_check_print_summary(FILE *out, const cli_check_result *r)
+{
+    const sinew_check_stats *s = &r->stats;
+    double np = s->pixels > 0 ? (double)s->pixels : 1;
+    fprintf(out, "kept %.1f%% of %lld px", 100.0 * (double)s->kept / np, (long long)s->pixels);
+    for (int b = 0; b < SINEW_MASK_NBITS; b++)
+        if (s->reason[b])
+            fprintf(out, ", %s %.1f%%", sinew_check_bit_name(b), 100.0 * (double)s->reason[b] / np);
+    fputc('\n', out);
+}

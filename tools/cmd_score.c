@@ -30,9 +30,9 @@
 static void usage(FILE *out)
 {
     fprintf(out,
-            "usage: sinew score EST GT [--occ OCC.png] [--valid VALID.png] [--invalid INV.png]\n"
-            "                   [--confidence C.npy] [--mask M.png] [--mask-bits N]\n"
-            "                   [--csv F] [--json]\n"
+            "usage: sinew score EST GT [--occ OCC.png | --noc NOC.png] [--valid VALID.png]\n"
+            "                   [--invalid INV.png] [--confidence C.npy] [--mask M.png]\n"
+            "                   [--mask-bits N] [--csv F] [--json]\n"
             "       sinew score --layout middlebury|sintel|kitti|chairs|list --root DIR\n"
             "                   --estimates DIR [--confidences DIR] [--pass clean|final]\n"
             "                   [--csv F] [--json]\n"
@@ -50,6 +50,8 @@ static void usage(FILE *out)
             "one pair:\n"
             "  EST, GT            flow files (.flo, KITTI .png, .pfm, .npy)\n"
             "  --occ OCC.png      true occlusion (nonzero = occluded): adds noc/occ rows\n"
+            "  --noc NOC.png      KITTI: the flow_noc file of GT (GT being flow_occ);\n"
+            "                     occluded = known in GT but not in NOC\n"
             "  --valid VALID.png  score only where nonzero\n"
             "  --invalid INV.png  skip where nonzero (e.g. Sintel invalid/)\n"
             "  --confidence C     per-pixel confidence (.npy or .pfm, higher = more sure):\n"
@@ -455,7 +457,7 @@ static int write_csv(sinew_ctx *ctx, const char *path, const char *layout, const
 /* ---- one pair ---- */
 
 typedef struct {
-    const char *occ, *valid, *invalid, *confidence, *mask, *csv;
+    const char *occ, *noc, *valid, *invalid, *confidence, *mask, *csv;
     unsigned mask_bits;
     int json;
 } single_opts;
@@ -552,12 +554,14 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
         if ((rc = read_mask(ctx, o->occ, 0, 0, &occ)) ||
             (rc = same_size(&occ, o->occ, &gt, gt_path)))
             goto done;
+    } else if (o->noc && (rc = kitti_occ_from_noc(ctx, o->noc, &gt, gt_path, &occ))) {
+        goto done;
     }
     if (o->valid && (rc = add_eval_mask(ctx, o->valid, 0, &gt, gt_path, &eval)))
         goto done;
     if (o->invalid && (rc = add_eval_mask(ctx, o->invalid, 1, &gt, gt_path, &eval)))
         goto done;
-    int st = sinew_flow_errors_compute(ctx, &row.err, &est, &gt, o->occ ? &occ : NULL,
+    int st = sinew_flow_errors_compute(ctx, &row.err, &est, &gt, occ.data ? &occ : NULL,
                                        eval.data ? &eval : NULL);
     if (st) {
         rc = cli_status(CMD, ctx, st);
@@ -838,6 +842,7 @@ int cmd_score(int argc, char **argv)
 {
     enum {
         O_OCC = 256,
+        O_NOC,
         O_VALID,
         O_INVALID,
         O_CONF,
@@ -854,6 +859,7 @@ int cmd_score(int argc, char **argv)
     };
     static const struct option opts[] = {
         {"occ", required_argument, NULL, O_OCC},
+        {"noc", required_argument, NULL, O_NOC},
         {"valid", required_argument, NULL, O_VALID},
         {"invalid", required_argument, NULL, O_INVALID},
         {"confidence", required_argument, NULL, O_CONF},
@@ -870,7 +876,7 @@ int cmd_score(int argc, char **argv)
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
-    single_opts so = {NULL, NULL, NULL, NULL, NULL, NULL, DEFAULT_MASK_BITS, 0};
+    single_opts so = {NULL, NULL, NULL, NULL, NULL, NULL, NULL, DEFAULT_MASK_BITS, 0};
     layout_opts lo = {NULL, NULL, NULL, NULL, "clean", NULL, 0};
     long threads = 0, bits;
     optind = 1;
@@ -883,6 +889,9 @@ int cmd_score(int argc, char **argv)
             return CLI_OK;
         case O_OCC:
             so.occ = optarg;
+            break;
+        case O_NOC:
+            so.noc = optarg;
             break;
         case O_VALID:
             so.valid = optarg;
@@ -940,9 +949,9 @@ int cmd_score(int argc, char **argv)
             return cli_usage_error(CMD, "--layout and --root go together");
         if (!lo.estimates)
             return cli_usage_error(CMD, "--layout needs --estimates DIR");
-        if (so.occ || so.valid || so.invalid || so.confidence || so.mask)
-            return cli_usage_error(CMD, "--occ/--valid/--invalid/--confidence/--mask are for "
-                                        "one pair; a layout brings its own masks");
+        if (so.occ || so.noc || so.valid || so.invalid || so.confidence || so.mask)
+            return cli_usage_error(CMD, "--occ/--noc/--valid/--invalid/--confidence/--mask are "
+                                        "for one pair; a layout brings its own masks");
         sinew_ctx *ctx = cli_ctx(CMD, (int)threads);
         if (!ctx)
             return CLI_FAIL;
@@ -952,8 +961,11 @@ int cmd_score(int argc, char **argv)
     }
     if (npos != 2)
         return cli_usage_error(CMD, "expected EST GT (or --layout ... --root ...)");
-    if (so.mask && !so.occ)
-        return cli_usage_error(CMD, "--mask is scored against --occ; give both");
+    if (so.occ && so.noc)
+        return cli_usage_error(CMD, "give --occ or --noc, not both");
+    if (so.mask && !so.occ && !so.noc)
+        return cli_usage_error(CMD, "--mask is scored against the true occlusion: give --occ "
+                                    "or --noc too");
     sinew_ctx *ctx = cli_ctx(CMD, (int)threads);
     if (!ctx)
         return CLI_FAIL;

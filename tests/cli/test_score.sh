@@ -95,6 +95,18 @@ else
     fail "one pair text table" "$(head -c 300 "$T/out")"
 fi
 
+# KITTI single pair with --noc: the same numbers as the kitti layout's first pair.
+K="$M/kitti/training"
+if "$SINEW_BIN" score "$M/est/kitti/000000_10.png" "$K/flow_occ/000000_10.png" \
+    --noc "$K/flow_noc/000000_10.png" --json >"$T/k1.json" 2>"$T/err" &&
+    "$PYTHON" -c 'import json,sys; a=json.load(open(sys.argv[1])); b=json.load(open(sys.argv[2]))["pairs"][0]
+sys.exit(0 if all(a[r][k]==b[r][k] for r in ("noc","occ") for k in ("epe","n_valid")) and a["epe"]==b["epe"] else 1)' \
+        "$T/k1.json" "$T/kitti.json"; then
+    pass "one KITTI pair with --noc equals the layout's noc/occ split"
+else
+    fail "KITTI --noc" "$(head -c 300 "$T/err")"
+fi
+
 # ---- bad input -------------------------------------------------------------------------
 head -c 40 "$S/est.flo" >"$T/trunc.flo"
 expect_error "truncated estimate: one line, names the file" "$T/bad.csv" "trunc\.flo" \

@@ -7,6 +7,7 @@
  * always naming the averaging (pooled over pixels, or mean of per-pair values) and the
  * density of the estimate (pixels with an unknown estimate are not scored). */
 #define _POSIX_C_SOURCE 200809L
+#include <errno.h>
 #include <getopt.h>
 #include <math.h>
 #include <stdio.h>
@@ -16,6 +17,7 @@
 
 #include <cJSON.h>
 
+#include "flow/estimate.h"
 #include "flow/io.h"
 #include "flow/sinew.h"
 #include "tools/cli.h"
@@ -30,12 +32,12 @@
 static void usage(FILE *out)
 {
     fprintf(out,
-            "usage: sinew score EST GT [--occ OCC.png] [--valid VALID.png] [--invalid INV.png]\n"
-            "                   [--confidence C.npy] [--mask M.png] [--mask-bits N]\n"
-            "                   [--csv F] [--json]\n"
+            "usage: sinew score EST GT [--occ OCC.png | --noc NOC.png] [--valid VALID.png]\n"
+            "                   [--invalid INV.png] [--confidence C.npy] [--mask M.png]\n"
+            "                   [--mask-bits N] [--csv F] [--json]\n"
             "       sinew score --layout middlebury|sintel|kitti|chairs|list --root DIR\n"
-            "                   --estimates DIR [--confidences DIR] [--pass clean|final]\n"
-            "                   [--csv F] [--json]\n"
+            "                   (--estimates DIR [--confidences DIR] | --preset P [--save DIR])\n"
+            "                   [--pass clean|final] [--csv F] [--json]\n"
             "\n"
             "Score optical flow against ground truth: endpoint error (EPE, px), angular\n"
             "error (AAE, degrees, the (u,v,1) angle), R0.5/R1/R3/R5 (%% of pixels with\n"
@@ -50,6 +52,8 @@ static void usage(FILE *out)
             "one pair:\n"
             "  EST, GT            flow files (.flo, KITTI .png, .pfm, .npy)\n"
             "  --occ OCC.png      true occlusion (nonzero = occluded): adds noc/occ rows\n"
+            "  --noc NOC.png      KITTI: the flow_noc file of GT (GT being flow_occ);\n"
+            "                     occluded = known in GT but not in NOC\n"
             "  --valid VALID.png  score only where nonzero\n"
             "  --invalid INV.png  skip where nonzero (e.g. Sintel invalid/)\n"
             "  --confidence C     per-pixel confidence (.npy or .pfm, higher = more sure):\n"
@@ -69,6 +73,11 @@ static void usage(FILE *out)
             "  --confidences DIR  per-pair confidence DIR/ID.npy (or .pfm): adds each pair's\n"
             "                     AUSE and their mean (AUSE is averaged per pair, not\n"
             "                     pooled)\n"
+            "  --preset P         run sinew's own estimator instead (fast, balanced,\n"
+            "                     accurate, baseline) on each pair's frames, forward flow\n"
+            "                     only; adds time_s = wall-clock seconds of the estimator\n"
+            "                     run (no file I/O)\n"
+            "  --save DIR         with --preset: also write the estimates as DIR/ID.flo\n"
             "  --pass P           Sintel pass for the frames (default clean)\n"
             "outputs:\n"
             "  (default)          a text table on stdout\n"
@@ -87,6 +96,7 @@ static void usage(FILE *out)
             "  sinew score est.flo gt.flo --occ occ.png --confidence conf.npy --json\n"
             "  sinew score --layout middlebury --root data/middlebury --estimates out/ \\\n"
             "      --csv scores.csv\n"
+            "  sinew score --layout kitti --root kitti/training --preset balanced --threads 2\n"
             "\n%s",
             cli_notice);
 }
@@ -455,7 +465,7 @@ static int write_csv(sinew_ctx *ctx, const char *path, const char *layout, const
 /* ---- one pair ---- */
 
 typedef struct {
-    const char *occ, *valid, *invalid, *confidence, *mask, *csv;
+    const char *occ, *noc, *valid, *invalid, *confidence, *mask, *csv;
     unsigned mask_bits;
     int json;
 } single_opts;
@@ -552,12 +562,14 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
         if ((rc = read_mask(ctx, o->occ, 0, 0, &occ)) ||
             (rc = same_size(&occ, o->occ, &gt, gt_path)))
             goto done;
+    } else if (o->noc && (rc = kitti_occ_from_noc(ctx, o->noc, &gt, gt_path, &occ))) {
+        goto done;
     }
     if (o->valid && (rc = add_eval_mask(ctx, o->valid, 0, &gt, gt_path, &eval)))
         goto done;
     if (o->invalid && (rc = add_eval_mask(ctx, o->invalid, 1, &gt, gt_path, &eval)))
         goto done;
-    int st = sinew_flow_errors_compute(ctx, &row.err, &est, &gt, o->occ ? &occ : NULL,
+    int st = sinew_flow_errors_compute(ctx, &row.err, &est, &gt, occ.data ? &occ : NULL,
                                        eval.data ? &eval : NULL);
     if (st) {
         rc = cli_status(CMD, ctx, st);
@@ -669,9 +681,69 @@ done:
 /* ---- dataset folders ---- */
 
 typedef struct {
-    const char *layout, *root, *estimates, *confidences, *pass, *csv;
-    int json;
+    const char *layout, *root, *estimates, *preset, *save, *confidences, *pass, *csv;
+    int json, threads;
+    sinew_estimator *est; /* --preset: one estimator reused for every pair */
 } layout_opts;
+
+static double now_s(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+/* --preset: read the pair's frames and run sinew's estimator (forward only) into *flow;
+ * *seconds = wall-clock time of the estimator run alone (no file I/O). */
+static int estimate_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts *o,
+                         const sinew_image *gt, sinew_image *flow, double *seconds)
+{
+    sinew_image f0 = {0}, f1 = {0};
+    int rc = CLI_OK, st;
+    if ((st = sinew_image_read(ctx, &f0, p->frame0)) ||
+        (st = sinew_image_read(ctx, &f1, p->frame1))) {
+        rc = cli_status(CMD, ctx, st);
+        goto done;
+    }
+    if ((rc = same_size(&f0, p->frame0, gt, p->gt)) || (rc = same_size(&f1, p->frame1, gt, p->gt)))
+        goto done;
+    if (f0.type != f1.type || f0.channels != f1.channels) {
+        rc = cli_error(CMD, "%s: pixel format differs from %s", p->frame1, p->frame0);
+        goto done;
+    }
+    if ((st = sinew_image_alloc(ctx, flow, gt->width, gt->height, 2, SINEW_F32))) {
+        rc = cli_status(CMD, ctx, st);
+        goto done;
+    }
+    double t0 = now_s();
+    st = sinew_estimator_run(o->est, flow, NULL, &f0, &f1);
+    *seconds = now_s() - t0;
+    if (st) {
+        rc = cli_error(CMD, "%s: estimator failed: %s", p->frame0,
+                       *sinew_ctx_message(ctx) ? sinew_ctx_message(ctx) : sinew_strerror(st));
+        goto done;
+    }
+    if (o->save) {
+        char *out = score_printf("%s/%s.flo", o->save, p->id);
+        if (!out) {
+            rc = cli_error(CMD, "out of memory");
+            goto done;
+        }
+        if (score_make_parents(out) != 0) {
+            rc = cli_error(CMD, "%s: cannot create its folder: %s", out, strerror(errno));
+            free(out);
+            goto done;
+        }
+        st = sinew_flow_write(ctx, out, flow, SINEW_FLOW_FLO);
+        free(out);
+        if (st)
+            rc = cli_status(CMD, ctx, st);
+    }
+done:
+    sinew_image_free(&f0);
+    sinew_image_free(&f1);
+    return rc;
+}
 
 /* Score one dataset pair into *row (row->id borrowed from the pair). */
 static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts *o, pair_row *row)
@@ -683,15 +755,21 @@ static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts
     row->id = p->id;
     row->time_s = NAN;
     row->ause = NAN;
-    est_path = score_find_file(o->estimates, p->id, "flo|png|pfm|npy", &tried);
-    if (!est_path) {
-        rc = tried ? cli_error(CMD, "%s: no estimate for pair %s", tried, p->id)
-                   : cli_error(CMD, "out of memory");
-        goto done;
+    if (o->preset) {
+        if ((rc = read_flow(ctx, p->gt, &gt)) ||
+            (rc = estimate_pair(ctx, p, o, &gt, &est, &row->time_s)))
+            goto done;
+    } else {
+        est_path = score_find_file(o->estimates, p->id, "flo|png|pfm|npy", &tried);
+        if (!est_path) {
+            rc = tried ? cli_error(CMD, "%s: no estimate for pair %s", tried, p->id)
+                       : cli_error(CMD, "out of memory");
+            goto done;
+        }
+        if ((rc = read_flow(ctx, p->gt, &gt)) || (rc = read_flow(ctx, est_path, &est)) ||
+            (rc = same_size(&est, est_path, &gt, p->gt)))
+            goto done;
     }
-    if ((rc = read_flow(ctx, p->gt, &gt)) || (rc = read_flow(ctx, est_path, &est)) ||
-        (rc = same_size(&est, est_path, &gt, p->gt)))
-        goto done;
     if (p->occ) {
         if ((rc = read_mask(ctx, p->occ, 0, 0, &occ)) || (rc = same_size(&occ, p->occ, &gt, p->gt)))
             goto done;
@@ -746,7 +824,15 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
         if (root) {
             cJSON_AddStringToObject(root, "layout", o->layout);
             cJSON_AddStringToObject(root, "root", o->root);
-            cJSON_AddStringToObject(root, "estimates", o->estimates);
+            if (o->preset) {
+                cJSON_AddStringToObject(root, "preset", o->preset);
+                cJSON_AddStringToObject(root, "runtime",
+                                        "runtime_s: wall-clock seconds of the estimator run "
+                                        "(forward flow only, no file I/O)");
+                cJSON_AddNumberToObject(root, "threads", o->threads);
+            } else {
+                cJSON_AddStringToObject(root, "estimates", o->estimates);
+            }
             cJSON_AddStringToObject(root, "missing_estimate", density_note);
             pairs = cJSON_AddArrayToObject(root, "pairs");
             s = cJSON_AddObjectToObject(root, "summary");
@@ -787,8 +873,14 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
         cJSON_Delete(root);
         return rc;
     }
-    printf("sinew score: layout %s, root %s, estimates %s, %zu pairs\n", o->layout, o->root,
-           o->estimates, n);
+    if (o->preset)
+        printf("sinew score: layout %s, root %s, sinew estimator preset %s, %zu pairs\n"
+               "time_s = wall-clock seconds of the estimator run (forward flow, no file I/O), "
+               "threads %d%s\n",
+               o->layout, o->root, o->preset, n, o->threads, o->threads ? "" : " (= all cores)");
+    else
+        printf("sinew score: layout %s, root %s, estimates %s, %zu pairs\n", o->layout, o->root,
+               o->estimates, n);
     printf("averaging: each pair row = mean over that pair's scored pixels; summary rows:\n"
            "  %-14s %s\n  %-14s %s\n",
            sinew_averaging_name(SINEW_AVG_PAIR_MEAN), sinew_averaging_text(SINEW_AVG_PAIR_MEAN),
@@ -823,10 +915,27 @@ static int run_layout(sinew_ctx *ctx, const layout_opts *o)
         score_set_free(&set);
         return cli_error(CMD, "out of memory");
     }
+    layout_opts run = *o;
+    if (o->preset) {
+        sinew_flow_params fp;
+        if (sinew_flow_params_preset(&fp, o->preset) != SINEW_OK) {
+            free(rows);
+            score_set_free(&set);
+            return cli_usage_error(CMD, "--preset: unknown preset '%s'", o->preset);
+        }
+        int st = sinew_estimator_new(ctx, &run.est, &fp);
+        if (st) {
+            free(rows);
+            score_set_free(&set);
+            return cli_status(CMD, ctx, st);
+        }
+    }
+    o = &run;
     for (size_t i = 0; i < set.n && rc == CLI_OK; i++)
         rc = score_one_pair(ctx, &set.pairs[i], o, &rows[i]);
     if (rc == CLI_OK)
         rc = output_layout(ctx, o, rows, set.n);
+    sinew_estimator_free(run.est);
     free(rows);
     score_set_free(&set);
     return rc;
@@ -838,6 +947,7 @@ int cmd_score(int argc, char **argv)
 {
     enum {
         O_OCC = 256,
+        O_NOC,
         O_VALID,
         O_INVALID,
         O_CONF,
@@ -849,11 +959,14 @@ int cmd_score(int argc, char **argv)
         O_ROOT,
         O_EST,
         O_CONFS,
+        O_PRESET,
+        O_SAVE,
         O_PASS,
         O_THREADS
     };
     static const struct option opts[] = {
         {"occ", required_argument, NULL, O_OCC},
+        {"noc", required_argument, NULL, O_NOC},
         {"valid", required_argument, NULL, O_VALID},
         {"invalid", required_argument, NULL, O_INVALID},
         {"confidence", required_argument, NULL, O_CONF},
@@ -865,13 +978,15 @@ int cmd_score(int argc, char **argv)
         {"root", required_argument, NULL, O_ROOT},
         {"estimates", required_argument, NULL, O_EST},
         {"confidences", required_argument, NULL, O_CONFS},
+        {"preset", required_argument, NULL, O_PRESET},
+        {"save", required_argument, NULL, O_SAVE},
         {"pass", required_argument, NULL, O_PASS},
         {"threads", required_argument, NULL, O_THREADS},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
-    single_opts so = {NULL, NULL, NULL, NULL, NULL, NULL, DEFAULT_MASK_BITS, 0};
-    layout_opts lo = {NULL, NULL, NULL, NULL, "clean", NULL, 0};
+    single_opts so = {NULL, NULL, NULL, NULL, NULL, NULL, NULL, DEFAULT_MASK_BITS, 0};
+    layout_opts lo = {NULL, NULL, NULL, NULL, NULL, NULL, "clean", NULL, 0, 0, NULL};
     long threads = 0, bits;
     optind = 1;
     opterr = 0;
@@ -883,6 +998,9 @@ int cmd_score(int argc, char **argv)
             return CLI_OK;
         case O_OCC:
             so.occ = optarg;
+            break;
+        case O_NOC:
+            so.noc = optarg;
             break;
         case O_VALID:
             so.valid = optarg;
@@ -919,6 +1037,12 @@ int cmd_score(int argc, char **argv)
         case O_CONFS:
             lo.confidences = optarg;
             break;
+        case O_PRESET:
+            lo.preset = optarg;
+            break;
+        case O_SAVE:
+            lo.save = optarg;
+            break;
         case O_PASS:
             if (strcmp(optarg, "clean") && strcmp(optarg, "final"))
                 return cli_usage_error(CMD, "--pass: expected clean or final, got '%s'", optarg);
@@ -933,16 +1057,20 @@ int cmd_score(int argc, char **argv)
         }
     }
     int npos = argc - optind;
-    if (lo.layout || lo.root || lo.estimates || lo.confidences) {
+    lo.threads = (int)threads;
+    if (lo.layout || lo.root || lo.estimates || lo.confidences || lo.preset || lo.save) {
         if (npos != 0)
             return cli_usage_error(CMD, "--layout takes no EST GT arguments");
         if (!lo.layout || !lo.root)
             return cli_usage_error(CMD, "--layout and --root go together");
-        if (!lo.estimates)
-            return cli_usage_error(CMD, "--layout needs --estimates DIR");
-        if (so.occ || so.valid || so.invalid || so.confidence || so.mask)
-            return cli_usage_error(CMD, "--occ/--valid/--invalid/--confidence/--mask are for "
-                                        "one pair; a layout brings its own masks");
+        if (!lo.estimates == !lo.preset)
+            return cli_usage_error(CMD, "--layout needs exactly one of --estimates DIR and "
+                                        "--preset P");
+        if (lo.save && !lo.preset)
+            return cli_usage_error(CMD, "--save writes the estimates of --preset");
+        if (so.occ || so.noc || so.valid || so.invalid || so.confidence || so.mask)
+            return cli_usage_error(CMD, "--occ/--noc/--valid/--invalid/--confidence/--mask are "
+                                        "for one pair; a layout brings its own masks");
         sinew_ctx *ctx = cli_ctx(CMD, (int)threads);
         if (!ctx)
             return CLI_FAIL;
@@ -952,8 +1080,11 @@ int cmd_score(int argc, char **argv)
     }
     if (npos != 2)
         return cli_usage_error(CMD, "expected EST GT (or --layout ... --root ...)");
-    if (so.mask && !so.occ)
-        return cli_usage_error(CMD, "--mask is scored against --occ; give both");
+    if (so.occ && so.noc)
+        return cli_usage_error(CMD, "give --occ or --noc, not both");
+    if (so.mask && !so.occ && !so.noc)
+        return cli_usage_error(CMD, "--mask is scored against the true occlusion: give --occ "
+                                    "or --noc too");
     sinew_ctx *ctx = cli_ctx(CMD, (int)threads);
     if (!ctx)
         return CLI_FAIL;

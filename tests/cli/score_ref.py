@@ -383,6 +383,50 @@ def single(root):
         json.dump(exp, fh)
 
 
+def preset_data(root):
+    """Two 64x48 pairs for --preset: a smooth random texture shifted by whole pixels, so
+    the ground truth is a constant flow (frame0(x) = frame1(x + flow)). Listed in
+    ROOT/pairs.txt (list layout)."""
+    rng = np.random.default_rng(5)
+    lines = []
+    for k, (du, dv) in enumerate(((2, 1), (-1, 3))):
+        h, w, pad = 48, 64, 8
+        big = rng.random((h + 2 * pad, w + 2 * pad))
+        for _ in range(3):  # box blur: smooth texture the estimator can track
+            big = (big + np.roll(big, 1, 0) + np.roll(big, -1, 0) + np.roll(big, 1, 1) +
+                   np.roll(big, -1, 1)) / 5.0
+        big = (big - big.min()) / (big.max() - big.min()) * 255.0
+        f0 = big[pad:pad + h, pad:pad + w]
+        f1 = big[pad - dv:pad - dv + h, pad - du:pad - du + w]  # f1(x + d) = f0(x)
+        write_png('%s/p%d/a.png' % (root, k), np.round(f0))
+        write_png('%s/p%d/b.png' % (root, k), np.round(f1))
+        gt = np.zeros((h, w, 2))
+        gt[..., 0], gt[..., 1] = du, dv
+        write_flo('%s/p%d/gt.flo' % (root, k), gt)
+        lines.append('p%d/a.png p%d/b.png p%d/gt.flo' % (k, k, k))
+    with open(root + '/pairs.txt', 'w') as fh:
+        fh.write('\n'.join(lines) + '\n')
+
+
+def same_scores(name, a_path, b_path):
+    """Two sinew JSON outputs carry identical per-pair numbers."""
+    with open(a_path) as fh:
+        a = json.load(fh)
+    with open(b_path) as fh:
+        b = json.load(fh)
+    errors = []
+    for pa, pb in zip(a['pairs'], b['pairs']):
+        for k in ('epe', 'aae_deg', 'r1_pct', 'n_valid'):
+            if pa[k] != pb[k]:
+                errors.append('%s %s: %r vs %r' % (pa['id'], k, pa[k], pb[k]))
+        if not (isinstance(pa.get('runtime_s'), float) or pa.get('runtime_s') == 0) \
+                or pa['runtime_s'] < 0:
+            errors.append('%s: runtime_s missing' % pa['id'])
+    if len(a['pairs']) != 2 or len(b['pairs']) != 2:
+        errors.append('expected 2 pairs')
+    report(name, errors)
+
+
 def middlebury_real(data, out):
     """Perturb the published Middlebury ground truth, write estimates, expected scores."""
     rng = np.random.default_rng(11)
@@ -457,6 +501,10 @@ if __name__ == '__main__':
         build(sys.argv[2])
     elif cmd == 'single':
         single(sys.argv[2])
+    elif cmd == 'preset':
+        preset_data(sys.argv[2])
+    elif cmd == 'same':
+        same_scores(sys.argv[2], sys.argv[3], sys.argv[4])
     elif cmd == 'middlebury':
         middlebury_real(sys.argv[2], sys.argv[3])
     elif cmd == 'check':

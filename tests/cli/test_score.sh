@@ -95,6 +95,18 @@ else
     fail "one pair text table" "$(head -c 300 "$T/out")"
 fi
 
+# KITTI single pair with --noc: the same numbers as the kitti layout's first pair.
+K="$M/kitti/training"
+if "$SINEW_BIN" score "$M/est/kitti/000000_10.png" "$K/flow_occ/000000_10.png" \
+    --noc "$K/flow_noc/000000_10.png" --json >"$T/k1.json" 2>"$T/err" &&
+    "$PYTHON" -c 'import json,sys; a=json.load(open(sys.argv[1])); b=json.load(open(sys.argv[2]))["pairs"][0]
+sys.exit(0 if all(a[r][k]==b[r][k] for r in ("noc","occ") for k in ("epe","n_valid")) and a["epe"]==b["epe"] else 1)' \
+        "$T/k1.json" "$T/kitti.json"; then
+    pass "one KITTI pair with --noc equals the layout's noc/occ split"
+else
+    fail "KITTI --noc" "$(head -c 300 "$T/err")"
+fi
+
 # ---- bad input -------------------------------------------------------------------------
 head -c 40 "$S/est.flo" >"$T/trunc.flo"
 expect_error "truncated estimate: one line, names the file" "$T/bad.csv" "trunc\.flo" \
@@ -156,3 +168,36 @@ if have_data flyingchairs/examples; then
 else
     skip "FlyingChairs examples layout" "no $SINEW_DATA/flyingchairs/examples"
 fi
+
+# ---- --preset: sinew's own estimator, runtime per pair, --save round trip --------------
+P="$T/preset"
+mkdir -p "$P"
+"$PYTHON" "$REF" preset "$P" || fail "build preset pairs" "python failed"
+if "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --preset balanced --save "$P/saved" \
+    --threads 2 --json >"$T/p1.json" 2>"$T/err"; then
+    if "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --estimates "$P/saved" --json \
+        >"$T/p2.json" 2>"$T/err"; then
+        "$PYTHON" "$REF" same "--preset reports runtime; --save estimates rescore identically" \
+            "$T/p1.json" "$T/p2.json"
+    else
+        fail "rescore saved estimates" "exit $? ($(head -c 300 "$T/err"))"
+    fi
+    # Plumbing check (frame order and flow sign): a whole-pixel shift of a smooth texture
+    # must come out far below the 2-4 px shift itself; 0.5 px is our bound, not a benchmark.
+    if "$PYTHON" -c 'import json,sys; d=json.load(open(sys.argv[1]));
+sys.exit(0 if all(p["epe"] < 0.5 for p in d["pairs"]) else 1)' "$T/p1.json"; then
+        pass "--preset balanced recovers the known shifts (EPE < 0.5 px)"
+    else
+        fail "--preset accuracy on shifted texture" "$(grep '"epe"' "$T/p1.json" | head -3)"
+    fi
+else
+    fail "--preset balanced" "exit $? ($(head -c 300 "$T/err"))"
+fi
+expect_error "unknown preset is a usage error" - "unknown preset 'nope'" \
+    "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --preset nope
+expect_error "--save needs --preset" - "--save" \
+    "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --estimates "$P" --save "$P/x"
+expect_error "--estimates and --preset together" - "exactly one" \
+    "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --estimates "$P" --preset fast
+expect_error "--preset with a missing frame names it" - "b\.png" \
+    sh -c "rm -f '$P/p1/b.png' && '$SINEW_BIN' score --layout list --root '$P/pairs.txt' --preset fast"

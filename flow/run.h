@@ -115,6 +115,32 @@ typedef struct sinew_stamp_list {
 int sinew_stamp_list_read(sinew_ctx *ctx, const char *path, sinew_stamp_list *out);
 void sinew_stamp_list_free(sinew_ctx *ctx, sinew_stamp_list *l);
 
+/* ---- sequences from a plain folder ----------------------------------------------
+ * Default layout of a folder given instead of a sequence.json (docs/formats.md):
+ *   rgb.txt + depth.txt  "timestamp filename" lists (paths relative to the folder):
+ *                        colour and depth associated with sinew_associate (max_dt,
+ *                        offset 0); frames are the associated colour images in time
+ *                        order; colour stamps without a depth partner are dropped
+ *                        (counted in `dropped`);
+ *   otherwise color/     images (.png .jpg .jpeg .ppm .pgm), sorted by file name
+ *                        (byte order); optional depth/ and labels/ with the same
+ *                        count, matched by sorted position;
+ *   intrinsics.json      optional, used when present.
+ * Frame counts are checked against SINEW_RUN_MAX_FRAMES before allocation. */
+typedef struct sinew_run_source {
+    size_t nframes;
+    struct sinew_run_frame *frames; /* owned, strings too */
+    char *intrinsics;               /* owned path or NULL */
+    size_t dropped;                 /* colour stamps without a depth partner */
+} sinew_run_source;
+
+/* Scan a folder (layout above). max_dt: association tolerance in seconds (the
+ * published TUM default is 0.02). ECONFIG naming the folder when neither layout is
+ * present or counts differ. Free with sinew_run_source_free. */
+int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
+                                 sinew_run_source *out);
+void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
+
 /* ---- the run engine ------------------------------------------------------------ */
 typedef struct sinew_run_frame {
     const char *color;  /* image path, required */

@@ -255,6 +255,61 @@ static void test_run_stamp_list_read(void **state)
     sinew_ctx_free(ctx);
 }
 
+static void test_run_source_folder_layouts(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    char p[700];
+    sinew_run_source src;
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_ECONFIG);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "color/"));
+    /* plain layout: color/ sorted by name, depth/ matched by position */
+    snprintf(p, sizeof p, "%s/color", dir);
+    mkdir(p, 0777);
+    snprintf(p, sizeof p, "%s/depth", dir);
+    mkdir(p, 0777);
+    const char *names[] = {"b.png", "a.png", "c.PNG"};
+    for (int k = 0; k < 3; k++) {
+        snprintf(p, sizeof p, "%s/color/%s", dir, names[k]);
+        tu_write_bytes(p, "x", 1);
+        snprintf(p, sizeof p, "%s/depth/%s", dir, names[k]);
+        tu_write_bytes(p, "x", 1);
+    }
+    snprintf(p, sizeof p, "%s/color/notes.txt", dir);
+    tu_write_bytes(p, "x", 1);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_OK);
+    assert_int_equal(src.nframes, 3);
+    assert_non_null(strstr(src.frames[0].color, "color/a.png"));
+    assert_non_null(strstr(src.frames[2].depth, "depth/c.PNG"));
+    assert_null(src.frames[0].labels);
+    assert_null(src.intrinsics);
+    sinew_run_source_free(ctx, &src);
+    snprintf(p, sizeof p, "%s/depth/d.png", dir);
+    tu_write_bytes(p, "x", 1);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_ECONFIG);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "4 images but color/ has 3"));
+    /* timestamped lists take precedence; frames are the associated colour stamps */
+    snprintf(p, sizeof p, "%s/rgb.txt", dir);
+    const char *rgb = "# rgb\n2.033 rgb/2.png\n1.000 rgb/1.png\n3.000 rgb/3.png\n";
+    tu_write_bytes(p, rgb, strlen(rgb));
+    snprintf(p, sizeof p, "%s/depth.txt", dir);
+    const char *dep = "1.010 depth/1.png\n2.040 depth/2.png\n2.900 depth/3.png\n";
+    tu_write_bytes(p, dep, strlen(dep));
+    snprintf(p, sizeof p, "%s/intrinsics.json", dir);
+    tu_write_bytes(p, "{}", 2);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_OK);
+    assert_int_equal(src.nframes, 2);
+    assert_int_equal(src.dropped, 1); /* 3.000 vs 2.900: 100 ms */
+    assert_non_null(strstr(src.frames[0].color, "rgb/1.png"));
+    assert_non_null(strstr(src.frames[1].depth, "depth/2.png"));
+    assert_non_null(src.intrinsics);
+    sinew_run_source_free(ctx, &src);
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
 /* ---- engine with a stand-in pair function ---- */
 
 typedef struct {
@@ -555,6 +610,7 @@ int main(void)
         cmocka_unit_test(test_run_associate_greedy_within_tolerance),
         cmocka_unit_test(test_run_associate_offset_and_errors),
         cmocka_unit_test(test_run_stamp_list_read),
+        cmocka_unit_test(test_run_source_folder_layouts),
         cmocka_unit_test(test_run_engine_resume_skips_only_up_to_date),
         cmocka_unit_test(test_run_engine_shards_match_whole_run),
         cmocka_unit_test(test_run_engine_error_policies),

@@ -9,9 +9,11 @@
  * a kill, or a later merge can only ever leave a whole manifest. It contains no
  * times, so it is byte-identical for a whole, sharded or resumed run. */
 #define _POSIX_C_SOURCE 200809L
+#include <dirent.h>
 #include <stdio.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <unistd.h>
 
 #include "flow/internal/base.h"
 #include "flow/internal/run.h"
@@ -132,6 +134,25 @@ static int build_pairs(sinew_run *run, cJSON *pairs, cJSON *inputs, size_t cnt[3
     return SINEW_OK;
 }
 
+/* A process killed while writing the manifest leaves its temporary file behind; the
+ * next manifest writer removes such leftovers (only one unsharded run or merge step
+ * works on an output folder at a time). */
+static void remove_stale_temporaries(sinew_ctx *ctx, const char *outdir)
+{
+    static const char prefix[] = "." SINEW__MANIFEST_FILE ".tmp-";
+    DIR *d = opendir(outdir);
+    if (!d)
+        return;
+    struct dirent *e;
+    char p[SINEW__PATH_MAX];
+    while ((e = readdir(d)) != NULL)
+        if (!strncmp(e->d_name, prefix, sizeof prefix - 1) &&
+            !sinew__path_join(ctx, p, sizeof p, outdir, e->d_name))
+            (void)unlink(p);
+    closedir(d);
+    sinew_ctx_clear(ctx);
+}
+
 int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, size_t *npending)
 {
     if (!run)
@@ -180,6 +201,7 @@ int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, siz
     cJSON_AddItemToObject(root, "pairs", pairs);
     pairs = NULL;
     char p[SINEW__PATH_MAX];
+    remove_stale_temporaries(ctx, s->outdir);
     rc = sinew__path_join(ctx, p, sizeof p, s->outdir, SINEW__MANIFEST_FILE);
     if (!rc)
         rc = sinew__json_write(ctx, p, root);

@@ -54,7 +54,7 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src)
 
 static int image_ext(const char *name)
 {
-    static const char *const ext[] = {".png", ".jpg", ".jpeg", ".ppm", ".pgm"};
+    static const char *const ext[] = {".png", ".jpg", ".jpeg", ".ppm", ".pgm", ".npy", ".pfm"};
     size_t n = strlen(name);
     if (name[0] == '.')
         return 0;

@@ -71,7 +71,7 @@ static cJSON *read_error(sinew_ctx *ctx, const char *dir)
     return j;
 }
 
-static int build_pairs(sinew_run *run, cJSON *pairs, cJSON *inputs, size_t cnt[3])
+static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, size_t cnt[3])
 {
     sinew_ctx *ctx = sinew__run_ctx(run);
     const sinew_run_spec *s = sinew__run_spec(run);
@@ -112,7 +112,7 @@ static int build_pairs(sinew_run *run, cJSON *pairs, cJSON *inputs, size_t cnt[3
                     add_entry(ctx, inputs, "flow_backward", bwd))
                     return SINEW_ENOMEM;
             }
-            if (sinew__run_record_status(run, dir, key, 0, NULL) == SINEW_PAIR_SKIPPED) {
+            if (sinew__run_record_status(run, dir, key, verify, NULL) == SINEW_PAIR_SKIPPED) {
                 status = "done";
                 stats = read_stats(ctx, dir);
             } else if ((err = read_error(ctx, dir)) != NULL) {
@@ -153,7 +153,8 @@ static void remove_stale_temporaries(sinew_ctx *ctx, const char *outdir)
     sinew_ctx_clear(ctx);
 }
 
-int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, size_t *npending)
+int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *nfailed,
+                             size_t *npending)
 {
     if (!run)
         return SINEW_EINVAL;
@@ -186,7 +187,7 @@ int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, siz
             (fr->labels && add_entry(ctx, inputs, "labels", fr->labels)))
             goto done;
     }
-    rc = build_pairs(run, pairs, inputs, cnt);
+    rc = build_pairs(run, verify, pairs, inputs, cnt);
     sum = cJSON_CreateObject();
     if (rc || !sum) {
         rc = rc ? rc : SINEW_ENOMEM;

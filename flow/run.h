@@ -236,8 +236,11 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
  * pair its status ("done" when the done record matches the current key, "failed"
  * with the message, otherwise "pending") and stats. Written atomically (temporary
  * name, fsync, rename), so shards or a merge step never leave a torn manifest.
- * Counts are returned through the optional pointers. */
-int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, size_t *npending);
+ * verify = 1 also checks the size and SHA-256 of every output listed in each done
+ * record (as --resume does; a merge step should), 0 trusts the records (right after
+ * this process wrote them). Counts are returned through the optional pointers. */
+int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *nfailed,
+                             size_t *npending);
 
 /* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
  * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).

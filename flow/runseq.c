@@ -138,8 +138,8 @@ static int from_lists(sinew_ctx *ctx, const char *dir, double max_dt, sinew_run_
     if ((rc = sinew_associate(ctx, a.t, a.n, b.t, b.n, max_dt, 0.0, m, &nm)))
         goto done;
     if (nm == 0) {
-        rc = sinew__fail(ctx, SINEW_ECONFIG,
-                         "%s: no colour stamp has a depth stamp within %g s", pa, max_dt);
+        rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no colour stamp has a depth stamp within %g s",
+                         pa, max_dt);
         goto done;
     }
     out->frames = sinew__calloc(ctx, nm, sizeof *out->frames);
@@ -205,8 +205,8 @@ static int from_layout(sinew_ctx *ctx, const char *dir, sinew_run_source *out)
         if (k == 0 && n[0] == 0)
             rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no images", p);
         else if (k > 0 && n[k] != n[0])
-            rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: %zu images but color/ has %zu", p, n[k],
-                             n[0]);
+            rc =
+                sinew__fail(ctx, SINEW_ECONFIG, "%s: %zu images but color/ has %zu", p, n[k], n[0]);
     }
     if (!rc) {
         out->frames = sinew__calloc(ctx, n[0], sizeof *out->frames);

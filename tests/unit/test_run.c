@@ -310,6 +310,89 @@ static void test_run_source_folder_layouts(void **state)
     sinew_ctx_free(ctx);
 }
 
+static void test_run_sequence_run_settings_and_patterns(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    const char *txt = "{\"version\": 1, \"depth_scale\": 5000, \"depth_kind\": \"ray\","
+                      " \"frames\": {\"color\": \"rgb/img_%04d.png\", \"depth\": \"d/%d.png\","
+                      " \"first\": 8, \"count\": 3, \"step\": 2},"
+                      " \"run\": {\"schedule\": {\"kind\": \"list\", \"pairs\": [[0, 2], [2, 1]]},"
+                      " \"preset\": \"fast\", \"flow_format\": \"npy16\", \"match_stride\": 0}}";
+    sinew_sequence *seq = NULL;
+    assert_int_equal(sinew_sequence_parse(ctx, &seq, txt, strlen(txt), "dir/seq.json"), SINEW_OK);
+    assert_int_equal(seq->n_frames, 3);
+    assert_string_equal(seq->frames[0].color, "rgb/img_0008.png");
+    assert_string_equal(seq->frames[2].color, "rgb/img_0012.png");
+    assert_string_equal(seq->frames[1].depth, "d/10.png");
+    assert_null(seq->frames[1].labels);
+    assert_int_equal(seq->depth_ray, 1);
+    assert_true(seq->run.has_schedule);
+    assert_int_equal(seq->run.schedule_kind, SINEW_SCHEDULE_LIST);
+    assert_int_equal(seq->run.n_pairs, 2);
+    assert_int_equal(seq->run.pairs[3], 1);
+    assert_string_equal(seq->run.flow_format, "npy16");
+    assert_true(seq->run.has_match_stride);
+    assert_int_equal(seq->run.match_stride, 0);
+    /* write and read back: same settings (frames come back as a list) */
+    char *dir = tu_tmpdir();
+    char p[600];
+    tu_path(p, sizeof p, dir, "again.json");
+    assert_int_equal(sinew_sequence_write(seq, p), SINEW_OK);
+    sinew_sequence *back = NULL;
+    assert_int_equal(sinew_sequence_read(ctx, &back, p), SINEW_OK);
+    assert_int_equal(back->n_frames, 3);
+    assert_string_equal(back->frames[2].color, "rgb/img_0012.png");
+    assert_int_equal(back->run.schedule_kind, SINEW_SCHEDULE_LIST);
+    assert_int_equal(back->run.pairs[2], 2);
+    assert_string_equal(back->run.preset, "fast");
+    assert_int_equal(back->depth_ray, 1);
+    sinew_sequence_free(back);
+    sinew_sequence_free(seq);
+    tu_rmtree(dir);
+    free(dir);
+
+    /* errors name the key; limits come before allocation */
+    static const struct {
+        const char *json, *want;
+    } bad[] = {
+        {"{\"version\":1,\"frames\":{\"color\":\"%d%d.png\",\"count\":2}}", "frames.color"},
+        {"{\"version\":1,\"frames\":{\"color\":\"a.png\",\"count\":2}}", "frames.color"},
+        {"{\"version\":1,\"frames\":{\"color\":\"%5d.png\",\"count\":2}}", "frames.color"},
+        {"{\"version\":1,\"frames\":{\"color\":\"%d.png\",\"count\":1000001}}", "frames.count"},
+        {"{\"version\":1,\"frames\":{\"color\":\"%d.png\"}}", "frames.count: missing"},
+        {"{\"version\":1,\"frames\":{\"color\":\"%d.png\",\"count\":2,\"skip\":1}}",
+         "unknown key 'skip'"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"depth_kind\":\"disparity\"}",
+         "depth_kind"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+         "\"gap\"}}}",
+         "run.schedule.gap: missing"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+         "\"keyframe\",\"every\":2,\"window\":1,\"gap\":3}}}",
+         "unknown key 'gap'"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+         "\"spiral\"}}}",
+         "run.schedule.kind"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"},{\"color\":\"b\"}],\"run\":{"
+         "\"schedule\":{\"kind\":\"list\",\"pairs\":[[0,1],[1,1]]}}}",
+         "run.schedule.pairs[1]"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"match_stride\":-1}}",
+         "run.match_stride"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"preset\":7}}",
+         "run.preset: expected a string"},
+    };
+    for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++) {
+        seq = NULL;
+        int rc = sinew_sequence_parse(ctx, &seq, bad[k].json, strlen(bad[k].json), "s.json");
+        if (rc == SINEW_OK || !strstr(sinew_ctx_message(ctx), bad[k].want))
+            fail_msg("case %zu: status %d message '%s', want '%s'", k, rc, sinew_ctx_message(ctx),
+                     bad[k].want);
+        assert_null(seq);
+    }
+    sinew_ctx_free(ctx);
+}
+
 /* ---- engine with a stand-in pair function ---- */
 
 typedef struct {
@@ -398,7 +481,7 @@ static int run_once(sinew_ctx *ctx, const sinew_run_spec *s, fake *f, sinew_run_
     assert_int_equal(sinew_run_new(ctx, &run, s), SINEW_OK);
     int rc = sinew_run_execute(run, fake_pair, f, NULL, NULL, res);
     if (manifest)
-        assert_int_equal(sinew_run_write_manifest(run, NULL, NULL, NULL), SINEW_OK);
+        assert_int_equal(sinew_run_write_manifest(run, 1, NULL, NULL, NULL), SINEW_OK);
     sinew_run_free(run);
     return rc;
 }
@@ -501,7 +584,7 @@ static void test_run_engine_error_policies(void **state)
     assert_int_equal(r.computed, 3);
     assert_int_equal(r.failed, 2);
     size_t nd, nf, np;
-    assert_int_equal(sinew_run_write_manifest(run, &nd, &nf, &np), SINEW_OK);
+    assert_int_equal(sinew_run_write_manifest(run, 0, &nd, &nf, &np), SINEW_OK);
     assert_int_equal(nd, 3);
     assert_int_equal(nf, 2);
     assert_int_equal(np, 0);
@@ -524,7 +607,7 @@ static void test_run_engine_error_policies(void **state)
     assert_int_equal(sinew_run_execute(run, fake_pair, &f, NULL, NULL, &r), SINEW_EIO);
     assert_int_equal(r.computed, 3);
     assert_int_equal(r.failed, 1);
-    assert_int_equal(sinew_run_write_manifest(run, &nd, &nf, &np), SINEW_OK);
+    assert_int_equal(sinew_run_write_manifest(run, 0, &nd, &nf, &np), SINEW_OK);
     assert_int_equal(nd, 3);
     assert_int_equal(nf, 2); /* pair 4-5 was never tried but its input is missing too */
     sinew_run_free(run);
@@ -611,6 +694,7 @@ int main(void)
         cmocka_unit_test(test_run_associate_offset_and_errors),
         cmocka_unit_test(test_run_stamp_list_read),
         cmocka_unit_test(test_run_source_folder_layouts),
+        cmocka_unit_test(test_run_sequence_run_settings_and_patterns),
         cmocka_unit_test(test_run_engine_resume_skips_only_up_to_date),
         cmocka_unit_test(test_run_engine_shards_match_whole_run),
         cmocka_unit_test(test_run_engine_error_policies),

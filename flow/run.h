@@ -242,6 +242,49 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
 int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *nfailed,
                              size_t *npending);
 
+/* ---- the standard pair pipeline ------------------------------------------------
+ * What `sinew run` does for each pair (files per pair, docs/formats.md):
+ *   forward.EXT, backward.EXT  flow i->j and j->i (estimated, or imported with
+ *                              flow_from and rewritten in the chosen format)
+ *   mask.png                   8-bit reason bits of the forward check (flow/check.h)
+ *   confidence.npy             float32 H x W forward confidence in [0, 1]
+ *   matches.npy, matches.json  weighted matches (flow/match.h); with depth maps and
+ *                              intrinsics the rows carry the lifted 3-D points
+ *   stats.json                 counts and flow statistics (written by the engine)
+ * Frames are read as they are needed; the decoded frames (colour, depth in metres,
+ * labels) of the previous pair are kept, so consecutive schedules decode each frame
+ * once and memory stays at a few frames whatever the sequence length. */
+typedef struct sinew_run_pipeline_params {
+    const char *preset; /* flow preset (flow/estimate.h), e.g. "balanced" */
+    int flow_format;    /* sinew_flow_format of the flow outputs (io.h) */
+    double depth_scale; /* 16-bit depth codes per metre (1000 = millimetres) */
+    int match_stride;   /* matches on a grid of this step in pixels; 0 = every kept pixel */
+    int matches;        /* 1: write matches.npy/json (default), 0: flows and check only */
+    /* Intrinsics given as values (e.g. from a sequence.json) instead of the spec's
+     * intrinsics file; borrowed; NULL = use the file if any. The values are part of the
+     * options text, so changing them invalidates done pairs. */
+    const struct sinew_camera *camera;
+    int depth_ray; /* 1: depth maps store the distance from the camera centre, not z */
+} sinew_run_pipeline_params;
+
+typedef struct sinew_run_pipeline sinew_run_pipeline;
+
+/* Defaults: preset "balanced", .flo flows, depth scale 1000, match stride 4, matches on. */
+void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p);
+/* The canonical options text of these parameters (compact JSON, fixed key order), to
+ * be used as sinew_run_spec.options. ELIMIT if buf (size n) is too small. */
+int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *p, char *buf,
+                               size_t n);
+/* Create the pipeline for a spec (borrowed for the pipeline's life). ECONFIG for an
+ * unknown preset or format. */
+int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew_run_spec *spec,
+                           const sinew_run_pipeline_params *p);
+void sinew_run_pipeline_free(sinew_run_pipeline *pl);
+/* A sinew_run_pair_fn: pass the pipeline as ud. */
+int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job *job, char **stats);
+/* File extension (without dot) of a flow format, e.g. "flo"; NULL if unknown. */
+const char *sinew_run_flow_ext(int flow_format);
+
 /* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
  * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).
  * Paths are written into fwd/bwd (size n); EIO naming the missing file. */

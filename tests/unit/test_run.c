@@ -14,6 +14,8 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "flow/camera.h"
+
 static void hex_of(const void *msg, size_t n, char hex[65])
 {
     sinew_sha256 s;
@@ -393,6 +395,33 @@ static void test_run_sequence_run_settings_and_patterns(void **state)
     sinew_ctx_free(ctx);
 }
 
+static void test_run_pipeline_options_text(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_run_pipeline_params p;
+    sinew_run_pipeline_params_default(&p);
+    char buf[512];
+    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_OK);
+    assert_string_equal(buf, "{\"flow_preset\":\"balanced\",\"flow_format\":\"flo\","
+                             "\"check\":\"default\",\"matches\":true,\"match_stride\":4,"
+                             "\"depth_scale\":1000,\"depth_kind\":\"z\"}");
+    sinew_camera cam;
+    sinew_camera_init(&cam, 525, 525, 319.5, 239.5, 640, 480);
+    p.camera = &cam;
+    p.flow_format = SINEW_FLOW_NPY16;
+    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_OK);
+    assert_non_null(strstr(buf, "\"flow_format\":\"npy16\""));
+    assert_non_null(strstr(buf, "\"camera\":[525,525,319.5,239.5,640,480,0,0,0,0,0]}"));
+    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, 40), SINEW_ELIMIT);
+    p.preset = "fast\",\"x";
+    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_ECONFIG);
+    assert_string_equal(sinew_run_flow_ext(SINEW_FLOW_NPY16), "npy");
+    assert_string_equal(sinew_run_flow_ext(SINEW_FLOW_KITTI), "png");
+    assert_null(sinew_run_flow_ext(99));
+    sinew_ctx_free(ctx);
+}
+
 /* ---- engine with a stand-in pair function ---- */
 
 typedef struct {
@@ -694,6 +723,7 @@ int main(void)
         cmocka_unit_test(test_run_associate_offset_and_errors),
         cmocka_unit_test(test_run_stamp_list_read),
         cmocka_unit_test(test_run_source_folder_layouts),
+        cmocka_unit_test(test_run_pipeline_options_text),
         cmocka_unit_test(test_run_sequence_run_settings_and_patterns),
         cmocka_unit_test(test_run_engine_resume_skips_only_up_to_date),
         cmocka_unit_test(test_run_engine_shards_match_whole_run),

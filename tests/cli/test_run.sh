@@ -62,12 +62,14 @@ same_products() {
     return 0
 }
 
-# ---- whole run
+# ---- whole run (its duration sets the range of the random kill times below)
+t0=$(date +%s%N)
 if "$B" run "$T/seq" -o "$T/whole" $OPT >"$T/whole.out" 2>"$T/whole.err"; then
     pass "whole run exits 0"
 else
     fail "whole run exits 0" "$(cat "$T/whole.err")"
 fi
+ms=$(( ($(date +%s%N) - t0) / 1000000 ))
 ok=1
 for p in 000000-000001 000004-000005; do
     for f in forward.flo backward.flo mask.png confidence.npy matches.npy matches.json stats.json done.json; do
@@ -110,13 +112,12 @@ else
     fail "resume of a complete run skips every pair" "$(tail -2 "$T/out")"
 fi
 
-# ---- thread counts give identical bytes
+# ---- thread counts give identical bytes (the whole run used the default count)
 "$B" run "$T/seq" -o "$T/t1" $OPT --threads 1 >/dev/null 2>&1
-"$B" run "$T/seq" -o "$T/t3" $OPT --threads 3 >/dev/null 2>&1
-if diff -r "$T/whole" "$T/t1" >/dev/null && diff -r "$T/whole" "$T/t3" >/dev/null; then
-    pass "1 and 3 threads give identical bytes"
+if diff -r "$T/whole" "$T/t1" >/dev/null; then
+    pass "1 thread and the default give identical bytes"
 else
-    fail "1 and 3 threads give identical bytes" "$(diff -rq "$T/whole" "$T/t1" | head -3)"
+    fail "1 thread and the default give identical bytes" "$(diff -rq "$T/whole" "$T/t1" | head -3)"
 fi
 
 # ---- three concurrent shards into one folder, then merge
@@ -141,15 +142,12 @@ fi
 
 # ---- SIGKILL at random moments, then resume: identical bytes
 rnd() { od -An -N2 -tu2 /dev/urandom | tr -d ' '; }
-t0=$(date +%s%N)
-"$B" run "$T/seq" -o "$T/timing" $OPT >/dev/null 2>&1
-ms=$(( ($(date +%s%N) - t0) / 1000000 ))
 [ "$ms" -lt 50 ] && ms=50
 i=0
 while [ $i -lt "$KILLS" ]; do
     "$B" run "$T/seq" -o "$T/killed" $OPT --resume >/dev/null 2>&1 &
     pid=$!
-    d=$(( $(rnd) % ms ))
+    d=$(( $(rnd) % (ms / 2 + 1) ))  # kills land in the first half: most of them mid-run
     sleep "$(printf '%d.%03d' $((d / 1000)) $((d % 1000)))"
     kill -KILL $pid 2>/dev/null
     wait $pid 2>/dev/null

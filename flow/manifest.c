@@ -9,9 +9,11 @@
  * a kill, or a later merge can only ever leave a whole manifest. It contains no
  * times, so it is byte-identical for a whole, sharded or resumed run. */
 #define _POSIX_C_SOURCE 200809L
+#include <dirent.h>
 #include <stdio.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <unistd.h>
 
 #include "flow/internal/base.h"
 #include "flow/internal/run.h"
@@ -69,7 +71,7 @@ static cJSON *read_error(sinew_ctx *ctx, const char *dir)
     return j;
 }
 
-static int build_pairs(sinew_run *run, cJSON *pairs, cJSON *inputs, size_t cnt[3])
+static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, size_t cnt[3])
 {
     sinew_ctx *ctx = sinew__run_ctx(run);
     const sinew_run_spec *s = sinew__run_spec(run);
@@ -110,7 +112,7 @@ static int build_pairs(sinew_run *run, cJSON *pairs, cJSON *inputs, size_t cnt[3
                     add_entry(ctx, inputs, "flow_backward", bwd))
                     return SINEW_ENOMEM;
             }
-            if (sinew__run_record_status(run, dir, key, 0, NULL) == SINEW_PAIR_SKIPPED) {
+            if (sinew__run_record_status(run, dir, key, verify, NULL) == SINEW_PAIR_SKIPPED) {
                 status = "done";
                 stats = read_stats(ctx, dir);
             } else if ((err = read_error(ctx, dir)) != NULL) {
@@ -132,7 +134,27 @@ static int build_pairs(sinew_run *run, cJSON *pairs, cJSON *inputs, size_t cnt[3
     return SINEW_OK;
 }
 
-int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, size_t *npending)
+/* A process killed while writing the manifest leaves its temporary file behind; the
+ * next manifest writer removes such leftovers (only one unsharded run or merge step
+ * works on an output folder at a time). */
+static void remove_stale_temporaries(sinew_ctx *ctx, const char *outdir)
+{
+    static const char prefix[] = "." SINEW__MANIFEST_FILE ".tmp-";
+    DIR *d = opendir(outdir);
+    if (!d)
+        return;
+    struct dirent *e;
+    char p[SINEW__PATH_MAX];
+    while ((e = readdir(d)) != NULL)
+        if (!strncmp(e->d_name, prefix, sizeof prefix - 1) &&
+            !sinew__path_join(ctx, p, sizeof p, outdir, e->d_name))
+            (void)unlink(p);
+    closedir(d);
+    sinew_ctx_clear(ctx);
+}
+
+int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *nfailed,
+                             size_t *npending)
 {
     if (!run)
         return SINEW_EINVAL;
@@ -165,7 +187,7 @@ int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, siz
             (fr->labels && add_entry(ctx, inputs, "labels", fr->labels)))
             goto done;
     }
-    rc = build_pairs(run, pairs, inputs, cnt);
+    rc = build_pairs(run, verify, pairs, inputs, cnt);
     sum = cJSON_CreateObject();
     if (rc || !sum) {
         rc = rc ? rc : SINEW_ENOMEM;
@@ -180,6 +202,7 @@ int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, siz
     cJSON_AddItemToObject(root, "pairs", pairs);
     pairs = NULL;
     char p[SINEW__PATH_MAX];
+    remove_stale_temporaries(ctx, s->outdir);
     rc = sinew__path_join(ctx, p, sizeof p, s->outdir, SINEW__MANIFEST_FILE);
     if (!rc)
         rc = sinew__json_write(ctx, p, root);

@@ -115,6 +115,32 @@ typedef struct sinew_stamp_list {
 int sinew_stamp_list_read(sinew_ctx *ctx, const char *path, sinew_stamp_list *out);
 void sinew_stamp_list_free(sinew_ctx *ctx, sinew_stamp_list *l);
 
+/* ---- sequences from a plain folder ----------------------------------------------
+ * Default layout of a folder given instead of a sequence.json (docs/formats.md):
+ *   rgb.txt + depth.txt  "timestamp filename" lists (paths relative to the folder):
+ *                        colour and depth associated with sinew_associate (max_dt,
+ *                        offset 0); frames are the associated colour images in time
+ *                        order; colour stamps without a depth partner are dropped
+ *                        (counted in `dropped`);
+ *   otherwise color/     images (.png .jpg .jpeg .ppm .pgm), sorted by file name
+ *                        (byte order); optional depth/ and labels/ with the same
+ *                        count, matched by sorted position;
+ *   intrinsics.json      optional, used when present.
+ * Frame counts are checked against SINEW_RUN_MAX_FRAMES before allocation. */
+typedef struct sinew_run_source {
+    size_t nframes;
+    struct sinew_run_frame *frames; /* owned, strings too */
+    char *intrinsics;               /* owned path or NULL */
+    size_t dropped;                 /* colour stamps without a depth partner */
+} sinew_run_source;
+
+/* Scan a folder (layout above). max_dt: association tolerance in seconds (the
+ * published TUM default is 0.02). ECONFIG naming the folder when neither layout is
+ * present or counts differ. Free with sinew_run_source_free. */
+int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
+                                 sinew_run_source *out);
+void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
+
 /* ---- the run engine ------------------------------------------------------------ */
 typedef struct sinew_run_frame {
     const char *color;  /* image path, required */
@@ -210,8 +236,54 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
  * pair its status ("done" when the done record matches the current key, "failed"
  * with the message, otherwise "pending") and stats. Written atomically (temporary
  * name, fsync, rename), so shards or a merge step never leave a torn manifest.
- * Counts are returned through the optional pointers. */
-int sinew_run_write_manifest(sinew_run *run, size_t *ndone, size_t *nfailed, size_t *npending);
+ * verify = 1 also checks the size and SHA-256 of every output listed in each done
+ * record (as --resume does; a merge step should), 0 trusts the records (right after
+ * this process wrote them). Counts are returned through the optional pointers. */
+int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *nfailed,
+                             size_t *npending);
+
+/* ---- the standard pair pipeline ------------------------------------------------
+ * What `sinew run` does for each pair (files per pair, docs/formats.md):
+ *   forward.EXT, backward.EXT  flow i->j and j->i (estimated, or imported with
+ *                              flow_from and rewritten in the chosen format)
+ *   mask.png                   8-bit reason bits of the forward check (flow/check.h)
+ *   confidence.npy             float32 H x W forward confidence in [0, 1]
+ *   matches.npy, matches.json  weighted matches (flow/match.h); with depth maps and
+ *                              intrinsics the rows carry the lifted 3-D points
+ *   stats.json                 counts and flow statistics (written by the engine)
+ * Frames are read as they are needed; the decoded frames (colour, depth in metres,
+ * labels) of the previous pair are kept, so consecutive schedules decode each frame
+ * once and memory stays at a few frames whatever the sequence length. */
+typedef struct sinew_run_pipeline_params {
+    const char *preset; /* flow preset (flow/estimate.h), e.g. "balanced" */
+    int flow_format;    /* sinew_flow_format of the flow outputs (io.h) */
+    double depth_scale; /* 16-bit depth codes per metre (1000 = millimetres) */
+    int match_stride;   /* matches on a grid of this step in pixels; 0 = every kept pixel */
+    int matches;        /* 1: write matches.npy/json (default), 0: flows and check only */
+    /* Intrinsics given as values (e.g. from a sequence.json) instead of the spec's
+     * intrinsics file; borrowed; NULL = use the file if any. The values are part of the
+     * options text, so changing them invalidates done pairs. */
+    const struct sinew_camera *camera;
+    int depth_ray; /* 1: depth maps store the distance from the camera centre, not z */
+} sinew_run_pipeline_params;
+
+typedef struct sinew_run_pipeline sinew_run_pipeline;
+
+/* Defaults: preset "balanced", .flo flows, depth scale 1000, match stride 4, matches on. */
+void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p);
+/* The canonical options text of these parameters (compact JSON, fixed key order), to
+ * be used as sinew_run_spec.options. ELIMIT if buf (size n) is too small. */
+int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *p, char *buf,
+                               size_t n);
+/* Create the pipeline for a spec (borrowed for the pipeline's life). ECONFIG for an
+ * unknown preset or format. */
+int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew_run_spec *spec,
+                           const sinew_run_pipeline_params *p);
+void sinew_run_pipeline_free(sinew_run_pipeline *pl);
+/* A sinew_run_pair_fn: pass the pipeline as ud. */
+int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job *job, char **stats);
+/* File extension (without dot) of a flow format, e.g. "flo"; NULL if unknown. */
+const char *sinew_run_flow_ext(int flow_format);
 
 /* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
  * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).

@@ -94,6 +94,9 @@ void sinew_sequence_free(sinew_sequence *seq)
     for (size_t i = 0; i < seq->n_label_names; i++)
         sinew__free(ctx, seq->label_names[i]);
     sinew__free(ctx, seq->label_names);
+    sinew__free(ctx, seq->run.pairs);
+    sinew__free(ctx, seq->run.preset);
+    sinew__free(ctx, seq->run.flow_format);
     sinew__free(ctx, seq->frames);
     sinew__free(ctx, seq->pairs);
     sinew__free(ctx, seq->name);
@@ -209,6 +212,48 @@ static int check_path(sinew_ctx *ctx, const char *where, const char *key, const 
     return SINEW_OK;
 }
 
+static const char *const schedule_kinds[] = {"consecutive", "gap", "keyframe", "list", NULL};
+static const char *const flow_formats[] = {"flo", "npy", "npy16", "pfm", "png", NULL};
+
+static int in_list(const char *s, const char *const *list)
+{
+    for (int k = 0; list[k]; k++)
+        if (!strcmp(s, list[k]))
+            return k;
+    return -1;
+}
+
+/* The "run" settings: schedule parameters in range, list pairs inside the sequence. */
+static int validate_run(sinew_ctx *ctx, const sinew_sequence *seq, const char *where)
+{
+    const sinew_seq_run *r = &seq->run;
+    char key[96];
+    if (r->has_schedule) {
+        if (r->schedule_kind < 0 || r->schedule_kind > 3)
+            return bad_key(ctx, where, "run.schedule.kind", "unknown schedule");
+        if (r->schedule_kind == 1 && r->gap < 1)
+            return bad_key(ctx, where, "run.schedule.gap", "must be at least 1");
+        if (r->schedule_kind == 2 && r->every < 1)
+            return bad_key(ctx, where, "run.schedule.every", "must be at least 1");
+        if (r->schedule_kind == 2 && r->window < 1)
+            return bad_key(ctx, where, "run.schedule.window", "must be at least 1");
+        for (size_t i = 0; r->schedule_kind == 3 && i < r->n_pairs; i++) {
+            int a = r->pairs[2 * i], b = r->pairs[2 * i + 1];
+            snprintf(key, sizeof key, "run.schedule.pairs[%zu]", i);
+            if (a < 0 || b < 0 || (size_t)a >= seq->n_frames || (size_t)b >= seq->n_frames ||
+                a == b)
+                return bad_key(ctx, where, key, "expected two different frame numbers");
+        }
+    }
+    if (r->preset && !*r->preset)
+        return bad_key(ctx, where, "run.preset", "empty string");
+    if (r->flow_format && in_list(r->flow_format, flow_formats) < 0)
+        return bad_key(ctx, where, "run.flow_format", "expected flo, npy, npy16, pfm or png");
+    if (r->has_match_stride && (r->match_stride < 0 || r->match_stride > MAX_IMAGE_DIM))
+        return bad_key(ctx, where, "run.match_stride", "must be 0..1048576");
+    return SINEW_OK;
+}
+
 int sinew_sequence_validate(sinew_sequence *seq, const char *where)
 {
     if (!seq)
@@ -242,6 +287,11 @@ int sinew_sequence_validate(sinew_sequence *seq, const char *where)
         }
     if (seq->n_frames < 1)
         return bad_key(ctx, where, "frames", "must list at least one frame");
+    if (seq->n_frames > SINEW_SEQUENCE_MAX_FRAMES)
+        return bad_key(ctx, where, "frames", "more than 1000000 frames");
+    int rst = validate_run(ctx, seq, where);
+    if (rst)
+        return rst;
     for (size_t i = 0; i < seq->n_frames; i++) {
         const sinew_seq_frame *f = &seq->frames[i];
         int st;
@@ -478,10 +528,178 @@ done:
     return st;
 }
 
+/* A numbered file pattern: exactly one %d or %0Nd (N = 1..9); "%%" is a literal '%'.
+ * Writes the file name of `number` into buf; returns 0, or -1 if the pattern is bad or
+ * the name does not fit. */
+static int pattern_name(const char *pat, long number, char *buf, size_t n)
+{
+    size_t o = 0;
+    int conv = 0;
+    for (const char *p = pat; *p; p++) {
+        if (*p != '%') {
+            if (o + 1 >= n)
+                return -1;
+            buf[o++] = *p;
+            continue;
+        }
+        p++;
+        if (*p == '%') {
+            if (o + 1 >= n)
+                return -1;
+            buf[o++] = '%';
+            continue;
+        }
+        int width = 0;
+        if (*p == '0' && p[1] >= '1' && p[1] <= '9' && p[2] == 'd') {
+            width = p[1] - '0';
+            p += 2;
+        } else if (*p != 'd') {
+            return -1;
+        }
+        if (conv++)
+            return -1;
+        int w = snprintf(buf + o, n - o, "%0*ld", width, number);
+        if (w < 0 || (size_t)w >= n - o)
+            return -1;
+        o += (size_t)w;
+    }
+    if (!conv || o >= n)
+        return -1;
+    buf[o] = '\0';
+    return 0;
+}
+
+/* "frames": {"color": PATTERN, "depth": PATTERN, "labels": PATTERN, "first": N,
+ * "count": N, "step": N}: frames first, first + step, ... (count of them). */
+static int read_frame_pattern(reader *r, sinew_sequence *seq, const cJSON *o)
+{
+    static const char *const keys[] = {"color", "depth", "labels", "first", "count", "step", NULL};
+    int st = check_keys(r, o, "frames", keys);
+    if (st)
+        return st;
+    const char *pat[3] = {NULL, NULL, NULL};
+    static const char *const names[3] = {"color", "depth", "labels"};
+    char key[64], probe[4096];
+    for (int k = 0; k < 3; k++) {
+        const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, names[k]);
+        snprintf(key, sizeof key, "frames.%s", names[k]);
+        if (!v) {
+            if (k == 0)
+                return bad_key(r->ctx, r->where, key, "missing");
+            continue;
+        }
+        if (!cJSON_IsString(v) || !v->valuestring)
+            return bad_key(r->ctx, r->where, key, "expected a string");
+        if (pattern_name(v->valuestring, 0, probe, sizeof probe) != 0)
+            return bad_key(r->ctx, r->where, key,
+                           "expected a file pattern with one %d or %0Nd (N = 1..9)");
+        pat[k] = v->valuestring;
+    }
+    int first = 0, count = 0, step = 1;
+    if (cJSON_GetObjectItemCaseSensitive(o, "first") &&
+        (st = get_int(r, o, "frames", "first", 0, 999999999L, &first)))
+        return st;
+    if ((st = get_int(r, o, "frames", "count", 1, SINEW_SEQUENCE_MAX_FRAMES, &count)))
+        return st;
+    if (cJSON_GetObjectItemCaseSensitive(o, "step") &&
+        (st = get_int(r, o, "frames", "step", 1, 1000000L, &step)))
+        return st;
+    if ((double)first + (double)step * (count - 1) > 999999999.0)
+        return bad_key(r->ctx, r->where, "frames.count", "frame numbers beyond 999999999");
+    char buf[3][4096];
+    for (long i = 0; i < count; i++) {
+        long num = first + (long)step * i;
+        sinew_seq_frame f;
+        sinew_seq_frame_init(&f);
+        for (int k = 0; k < 3; k++) {
+            if (!pat[k])
+                continue;
+            if (pattern_name(pat[k], num, buf[k], sizeof buf[k]) != 0) {
+                snprintf(key, sizeof key, "frames.%s", names[k]);
+                return bad_key(r->ctx, r->where, key, "file name too long");
+            }
+        }
+        f.color = buf[0];
+        f.depth = pat[1] ? buf[1] : NULL;
+        f.labels = pat[2] ? buf[2] : NULL;
+        if ((st = sinew_sequence_add_frame(seq, &f))) /* copies the strings */
+            return st;
+    }
+    return SINEW_OK;
+}
+
+/* "run": {"schedule": {...}, "preset": S, "flow_format": S, "match_stride": N} */
+static int read_run(reader *r, sinew_sequence *seq, const cJSON *o)
+{
+    static const char *const keys[] = {"schedule", "preset", "flow_format", "match_stride", NULL};
+    sinew_seq_run *run = &seq->run;
+    int st = check_keys(r, o, "run", keys);
+    if (st || (st = get_string(r, o, "run", "preset", 0, &run->preset)) ||
+        (st = get_string(r, o, "run", "flow_format", 0, &run->flow_format)))
+        return st;
+    if (cJSON_GetObjectItemCaseSensitive(o, "match_stride")) {
+        if ((st = get_int(r, o, "run", "match_stride", 0, MAX_IMAGE_DIM, &run->match_stride)))
+            return st;
+        run->has_match_stride = 1;
+    }
+    const cJSON *s = get_typed(r, o, "run", "schedule", 0, 0, &st);
+    if (st || !s)
+        return st;
+    const cJSON *kind = cJSON_GetObjectItemCaseSensitive(s, "kind");
+    if (!kind)
+        return bad_key(r->ctx, r->where, "run.schedule.kind", "missing");
+    if (!cJSON_IsString(kind) || in_list(kind->valuestring, schedule_kinds) < 0)
+        return bad_key(r->ctx, r->where, "run.schedule.kind",
+                       "expected \"consecutive\", \"gap\", \"keyframe\" or \"list\"");
+    run->schedule_kind = in_list(kind->valuestring, schedule_kinds);
+    run->has_schedule = 1;
+    static const char *const k0[] = {"kind", NULL};
+    static const char *const k1[] = {"kind", "gap", NULL};
+    static const char *const k2[] = {"kind", "every", "window", NULL};
+    static const char *const k3[] = {"kind", "pairs", NULL};
+    static const char *const *const allowed[4] = {k0, k1, k2, k3};
+    if ((st = check_keys(r, s, "run.schedule", allowed[run->schedule_kind])))
+        return st;
+    if (run->schedule_kind == 1)
+        return get_int(r, s, "run.schedule", "gap", 1, SINEW_SEQUENCE_MAX_FRAMES, &run->gap);
+    if (run->schedule_kind == 2) {
+        if ((st =
+                 get_int(r, s, "run.schedule", "every", 1, SINEW_SEQUENCE_MAX_FRAMES, &run->every)))
+            return st;
+        return get_int(r, s, "run.schedule", "window", 1, SINEW_SEQUENCE_MAX_FRAMES, &run->window);
+    }
+    if (run->schedule_kind != 3)
+        return SINEW_OK;
+    const cJSON *pairs = get_typed(r, s, "run.schedule", "pairs", 1, 1, &st);
+    if (st)
+        return st;
+    size_t n = (size_t)cJSON_GetArraySize(pairs), i = 0;
+    if (n > 10000000)
+        return bad_key(r->ctx, r->where, "run.schedule.pairs", "more than 10000000 pairs");
+    if (n && !(run->pairs = sinew__calloc(r->ctx, n, 2 * sizeof *run->pairs)))
+        return SINEW_ENOMEM;
+    for (const cJSON *c = pairs->child; c; c = c->next, i++) {
+        char key[64];
+        snprintf(key, sizeof key, "run.schedule.pairs[%zu]", i);
+        if (!cJSON_IsArray(c) || cJSON_GetArraySize(c) != 2 || !cJSON_IsNumber(c->child) ||
+            !cJSON_IsNumber(c->child->next))
+            return bad_key(r->ctx, r->where, key, "expected [from, to]");
+        double a = c->child->valuedouble, b = c->child->next->valuedouble;
+        if (a != floor(a) || b != floor(b) || a < 0 || b < 0 || a > 2147483647.0 ||
+            b > 2147483647.0)
+            return bad_key(r->ctx, r->where, key, "expected two frame numbers");
+        run->pairs[2 * i] = (int)a;
+        run->pairs[2 * i + 1] = (int)b;
+        run->n_pairs = i + 1;
+    }
+    return SINEW_OK;
+}
+
 static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
 {
     static const char *const keys[] = {"version",     "name",   "intrinsics", "depth_scale",
-                                       "label_names", "frames", "pairs",      NULL};
+                                       "label_names", "frames", "pairs",      "depth_kind",
+                                       "run",         NULL};
     if (!cJSON_IsObject(root))
         return sinew__fail(r->ctx, SINEW_ECONFIG, "%s: expected a JSON object at the top level",
                            r->where);
@@ -542,13 +760,31 @@ static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
         if (st)
             return st;
     }
-    const cJSON *frames = get_typed(r, root, "", "frames", 1, 1, &st);
-    if (st)
+    const cJSON *dk = cJSON_GetObjectItemCaseSensitive(root, "depth_kind");
+    if (dk) {
+        if (!cJSON_IsString(dk) || (strcmp(dk->valuestring, "z") && strcmp(dk->valuestring, "ray")))
+            return bad_key(r->ctx, r->where, "depth_kind", "expected \"z\" or \"ray\"");
+        seq->depth_ray = !strcmp(dk->valuestring, "ray");
+    }
+    const cJSON *run = get_typed(r, root, "", "run", 0, 0, &st);
+    if (st || (run && (st = read_run(r, seq, run))))
         return st;
+    const cJSON *frames = cJSON_GetObjectItemCaseSensitive(root, "frames");
     size_t i = 0;
-    for (const cJSON *c = frames->child; c; c = c->next, i++)
-        if ((st = read_frame(r, seq, c, i)))
+    if (cJSON_IsObject(frames)) {
+        if ((st = read_frame_pattern(r, seq, frames)))
             return st;
+    } else {
+        frames = get_typed(r, root, "", "frames", 1, 1, &st);
+        if (st)
+            return st;
+        if ((size_t)cJSON_GetArraySize(frames) > SINEW_SEQUENCE_MAX_FRAMES)
+            return sinew__fail(r->ctx, SINEW_ELIMIT, "%s: frames: more than %d frames", r->where,
+                               SINEW_SEQUENCE_MAX_FRAMES);
+        for (const cJSON *c = frames->child; c; c = c->next, i++)
+            if ((st = read_frame(r, seq, c, i)))
+                return st;
+    }
     const cJSON *pairs = get_typed(r, root, "", "pairs", 0, 1, &st);
     if (st)
         return st;
@@ -687,6 +923,37 @@ static cJSON *build(const sinew_sequence *seq)
         for (size_t i = 0; ln && i < seq->n_label_names; i++) {
             cJSON *s = cJSON_CreateString(seq->label_names[i]);
             bad |= !s || !cJSON_AddItemToArray(ln, s);
+        }
+    }
+    if (seq->depth_ray)
+        bad |= add_str(root, "depth_kind", "ray");
+    const sinew_seq_run *rs = &seq->run;
+    if (rs->has_schedule || rs->preset || rs->flow_format || rs->has_match_stride) {
+        cJSON *ro = cJSON_AddObjectToObject(root, "run");
+        bad |= !ro;
+        if (ro && rs->has_schedule) {
+            cJSON *so = cJSON_AddObjectToObject(ro, "schedule");
+            bad |= !so || add_str(so, "kind", schedule_kinds[rs->schedule_kind]);
+            if (so && rs->schedule_kind == 1)
+                bad |= !add_num(so, "gap", rs->gap);
+            if (so && rs->schedule_kind == 2)
+                bad |= !add_num(so, "every", rs->every) || !add_num(so, "window", rs->window);
+            if (so && rs->schedule_kind == 3) {
+                cJSON *pa = cJSON_AddArrayToObject(so, "pairs");
+                bad |= !pa;
+                for (size_t i = 0; pa && i < rs->n_pairs; i++) {
+                    cJSON *e = cJSON_CreateArray();
+                    bad |= !e || !cJSON_AddItemToArray(pa, e);
+                    if (e)
+                        bad |= !cJSON_AddItemToArray(e, make_num(rs->pairs[2 * i])) ||
+                               !cJSON_AddItemToArray(e, make_num(rs->pairs[2 * i + 1]));
+                }
+            }
+        }
+        if (ro) {
+            bad |= add_str(ro, "preset", rs->preset) | add_str(ro, "flow_format", rs->flow_format);
+            if (rs->has_match_stride)
+                bad |= !add_num(ro, "match_stride", rs->match_stride);
         }
     }
     cJSON *frames = cJSON_AddArrayToObject(root, "frames");

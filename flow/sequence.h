@@ -21,6 +21,24 @@ extern "C" {
 /* Highest schema version this build reads and the version it writes. */
 #define SINEW_SEQUENCE_VERSION 1
 
+/* Most frames a sequence may have; checked before the frames are allocated. */
+#define SINEW_SEQUENCE_MAX_FRAMES 1000000
+
+/* Settings for `sinew run` (key "run", all optional; docs/formats.md). The command line
+ * overrides them. Strings are owned by the sequence; NULL means unset. */
+typedef struct sinew_seq_run {
+    int has_schedule;  /* "run.schedule" given */
+    int schedule_kind; /* 0 consecutive, 1 gap, 2 keyframe, 3 list (sinew_schedule_kind) */
+    int gap;           /* gap: the k of (i, i+k), >= 1 */
+    int every, window; /* keyframe: every `every`-th frame to the next `window` frames */
+    int *pairs;        /* list: n_pairs (from, to) frame numbers, 2 * n_pairs ints */
+    size_t n_pairs;
+    char *preset;      /* flow preset name */
+    char *flow_format; /* "flo", "npy", "npy16", "pfm" or "png" */
+    int has_match_stride;
+    int match_stride; /* matches on a grid of this step; 0 = every kept pixel */
+} sinew_seq_run;
+
 /* One frame. Strings are owned by the sequence; NULL means absent. */
 typedef struct sinew_seq_frame {
     char *color;      /* colour image (required) */
@@ -50,6 +68,9 @@ typedef struct sinew_sequence {
     double fx, fy, cx, cy; /* pinhole intrinsics in pixels, pixel centres at integers */
     int width, height;     /* image size the intrinsics refer to */
     double depth_scale;    /* depth codes per metre (1000 = millimetres); 0 if unset */
+    int depth_ray;         /* "depth_kind": 0 "z" (along the optical axis, default),
+                              1 "ray" (distance from the camera centre) */
+    sinew_seq_run run;     /* "run" settings */
     char **label_names;    /* label_names[v] names label value v; NULL if absent */
     size_t n_label_names;
     sinew_seq_frame *frames;

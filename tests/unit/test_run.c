@@ -14,6 +14,8 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "flow/camera.h"
+
 static void hex_of(const void *msg, size_t n, char hex[65])
 {
     sinew_sha256 s;
@@ -255,6 +257,171 @@ static void test_run_stamp_list_read(void **state)
     sinew_ctx_free(ctx);
 }
 
+static void test_run_source_folder_layouts(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    char p[700];
+    sinew_run_source src;
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_ECONFIG);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "color/"));
+    /* plain layout: color/ sorted by name, depth/ matched by position */
+    snprintf(p, sizeof p, "%s/color", dir);
+    mkdir(p, 0777);
+    snprintf(p, sizeof p, "%s/depth", dir);
+    mkdir(p, 0777);
+    const char *names[] = {"b.png", "a.png", "c.PNG"};
+    for (int k = 0; k < 3; k++) {
+        snprintf(p, sizeof p, "%s/color/%s", dir, names[k]);
+        tu_write_bytes(p, "x", 1);
+        snprintf(p, sizeof p, "%s/depth/%s", dir, names[k]);
+        tu_write_bytes(p, "x", 1);
+    }
+    snprintf(p, sizeof p, "%s/color/notes.txt", dir);
+    tu_write_bytes(p, "x", 1);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_OK);
+    assert_int_equal(src.nframes, 3);
+    assert_non_null(strstr(src.frames[0].color, "color/a.png"));
+    assert_non_null(strstr(src.frames[2].depth, "depth/c.PNG"));
+    assert_null(src.frames[0].labels);
+    assert_null(src.intrinsics);
+    sinew_run_source_free(ctx, &src);
+    snprintf(p, sizeof p, "%s/depth/d.png", dir);
+    tu_write_bytes(p, "x", 1);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_ECONFIG);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "4 images but color/ has 3"));
+    /* timestamped lists take precedence; frames are the associated colour stamps */
+    snprintf(p, sizeof p, "%s/rgb.txt", dir);
+    const char *rgb = "# rgb\n2.033 rgb/2.png\n1.000 rgb/1.png\n3.000 rgb/3.png\n";
+    tu_write_bytes(p, rgb, strlen(rgb));
+    snprintf(p, sizeof p, "%s/depth.txt", dir);
+    const char *dep = "1.010 depth/1.png\n2.040 depth/2.png\n2.900 depth/3.png\n";
+    tu_write_bytes(p, dep, strlen(dep));
+    snprintf(p, sizeof p, "%s/intrinsics.json", dir);
+    tu_write_bytes(p, "{}", 2);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_OK);
+    assert_int_equal(src.nframes, 2);
+    assert_int_equal(src.dropped, 1); /* 3.000 vs 2.900: 100 ms */
+    assert_non_null(strstr(src.frames[0].color, "rgb/1.png"));
+    assert_non_null(strstr(src.frames[1].depth, "depth/2.png"));
+    assert_non_null(src.intrinsics);
+    sinew_run_source_free(ctx, &src);
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
+static void test_run_sequence_run_settings_and_patterns(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    const char *txt = "{\"version\": 1, \"depth_scale\": 5000, \"depth_kind\": \"ray\","
+                      " \"frames\": {\"color\": \"rgb/img_%04d.png\", \"depth\": \"d/%d.png\","
+                      " \"first\": 8, \"count\": 3, \"step\": 2},"
+                      " \"run\": {\"schedule\": {\"kind\": \"list\", \"pairs\": [[0, 2], [2, 1]]},"
+                      " \"preset\": \"fast\", \"flow_format\": \"npy16\", \"match_stride\": 0}}";
+    sinew_sequence *seq = NULL;
+    assert_int_equal(sinew_sequence_parse(ctx, &seq, txt, strlen(txt), "dir/seq.json"), SINEW_OK);
+    assert_int_equal(seq->n_frames, 3);
+    assert_string_equal(seq->frames[0].color, "rgb/img_0008.png");
+    assert_string_equal(seq->frames[2].color, "rgb/img_0012.png");
+    assert_string_equal(seq->frames[1].depth, "d/10.png");
+    assert_null(seq->frames[1].labels);
+    assert_int_equal(seq->depth_ray, 1);
+    assert_true(seq->run.has_schedule);
+    assert_int_equal(seq->run.schedule_kind, SINEW_SCHEDULE_LIST);
+    assert_int_equal(seq->run.n_pairs, 2);
+    assert_int_equal(seq->run.pairs[3], 1);
+    assert_string_equal(seq->run.flow_format, "npy16");
+    assert_true(seq->run.has_match_stride);
+    assert_int_equal(seq->run.match_stride, 0);
+    /* write and read back: same settings (frames come back as a list) */
+    char *dir = tu_tmpdir();
+    char p[600];
+    tu_path(p, sizeof p, dir, "again.json");
+    assert_int_equal(sinew_sequence_write(seq, p), SINEW_OK);
+    sinew_sequence *back = NULL;
+    assert_int_equal(sinew_sequence_read(ctx, &back, p), SINEW_OK);
+    assert_int_equal(back->n_frames, 3);
+    assert_string_equal(back->frames[2].color, "rgb/img_0012.png");
+    assert_int_equal(back->run.schedule_kind, SINEW_SCHEDULE_LIST);
+    assert_int_equal(back->run.pairs[2], 2);
+    assert_string_equal(back->run.preset, "fast");
+    assert_int_equal(back->depth_ray, 1);
+    sinew_sequence_free(back);
+    sinew_sequence_free(seq);
+    tu_rmtree(dir);
+    free(dir);
+
+    /* errors name the key; limits come before allocation */
+    static const struct {
+        const char *json, *want;
+    } bad[] = {
+        {"{\"version\":1,\"frames\":{\"color\":\"%d%d.png\",\"count\":2}}", "frames.color"},
+        {"{\"version\":1,\"frames\":{\"color\":\"a.png\",\"count\":2}}", "frames.color"},
+        {"{\"version\":1,\"frames\":{\"color\":\"%5d.png\",\"count\":2}}", "frames.color"},
+        {"{\"version\":1,\"frames\":{\"color\":\"%d.png\",\"count\":1000001}}", "frames.count"},
+        {"{\"version\":1,\"frames\":{\"color\":\"%d.png\"}}", "frames.count: missing"},
+        {"{\"version\":1,\"frames\":{\"color\":\"%d.png\",\"count\":2,\"skip\":1}}",
+         "unknown key 'skip'"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"depth_kind\":\"disparity\"}",
+         "depth_kind"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+         "\"gap\"}}}",
+         "run.schedule.gap: missing"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+         "\"keyframe\",\"every\":2,\"window\":1,\"gap\":3}}}",
+         "unknown key 'gap'"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+         "\"spiral\"}}}",
+         "run.schedule.kind"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"},{\"color\":\"b\"}],\"run\":{"
+         "\"schedule\":{\"kind\":\"list\",\"pairs\":[[0,1],[1,1]]}}}",
+         "run.schedule.pairs[1]"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"match_stride\":-1}}",
+         "run.match_stride"},
+        {"{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"preset\":7}}",
+         "run.preset: expected a string"},
+    };
+    for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++) {
+        seq = NULL;
+        int rc = sinew_sequence_parse(ctx, &seq, bad[k].json, strlen(bad[k].json), "s.json");
+        if (rc == SINEW_OK || !strstr(sinew_ctx_message(ctx), bad[k].want))
+            fail_msg("case %zu: status %d message '%s', want '%s'", k, rc, sinew_ctx_message(ctx),
+                     bad[k].want);
+        assert_null(seq);
+    }
+    sinew_ctx_free(ctx);
+}
+
+static void test_run_pipeline_options_text(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_run_pipeline_params p;
+    sinew_run_pipeline_params_default(&p);
+    char buf[512];
+    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_OK);
+    assert_string_equal(buf, "{\"flow_preset\":\"balanced\",\"flow_format\":\"flo\","
+                             "\"check\":\"default\",\"matches\":true,\"match_stride\":4,"
+                             "\"depth_scale\":1000,\"depth_kind\":\"z\"}");
+    sinew_camera cam;
+    sinew_camera_init(&cam, 525, 525, 319.5, 239.5, 640, 480);
+    p.camera = &cam;
+    p.flow_format = SINEW_FLOW_NPY16;
+    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_OK);
+    assert_non_null(strstr(buf, "\"flow_format\":\"npy16\""));
+    assert_non_null(strstr(buf, "\"camera\":[525,525,319.5,239.5,640,480,0,0,0,0,0]}"));
+    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, 40), SINEW_ELIMIT);
+    p.preset = "fast\",\"x";
+    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_ECONFIG);
+    assert_string_equal(sinew_run_flow_ext(SINEW_FLOW_NPY16), "npy");
+    assert_string_equal(sinew_run_flow_ext(SINEW_FLOW_KITTI), "png");
+    assert_null(sinew_run_flow_ext(99));
+    sinew_ctx_free(ctx);
+}
+
 /* ---- engine with a stand-in pair function ---- */
 
 typedef struct {
@@ -343,7 +510,7 @@ static int run_once(sinew_ctx *ctx, const sinew_run_spec *s, fake *f, sinew_run_
     assert_int_equal(sinew_run_new(ctx, &run, s), SINEW_OK);
     int rc = sinew_run_execute(run, fake_pair, f, NULL, NULL, res);
     if (manifest)
-        assert_int_equal(sinew_run_write_manifest(run, NULL, NULL, NULL), SINEW_OK);
+        assert_int_equal(sinew_run_write_manifest(run, 1, NULL, NULL, NULL), SINEW_OK);
     sinew_run_free(run);
     return rc;
 }
@@ -446,7 +613,7 @@ static void test_run_engine_error_policies(void **state)
     assert_int_equal(r.computed, 3);
     assert_int_equal(r.failed, 2);
     size_t nd, nf, np;
-    assert_int_equal(sinew_run_write_manifest(run, &nd, &nf, &np), SINEW_OK);
+    assert_int_equal(sinew_run_write_manifest(run, 0, &nd, &nf, &np), SINEW_OK);
     assert_int_equal(nd, 3);
     assert_int_equal(nf, 2);
     assert_int_equal(np, 0);
@@ -469,7 +636,7 @@ static void test_run_engine_error_policies(void **state)
     assert_int_equal(sinew_run_execute(run, fake_pair, &f, NULL, NULL, &r), SINEW_EIO);
     assert_int_equal(r.computed, 3);
     assert_int_equal(r.failed, 1);
-    assert_int_equal(sinew_run_write_manifest(run, &nd, &nf, &np), SINEW_OK);
+    assert_int_equal(sinew_run_write_manifest(run, 0, &nd, &nf, &np), SINEW_OK);
     assert_int_equal(nd, 3);
     assert_int_equal(nf, 2); /* pair 4-5 was never tried but its input is missing too */
     sinew_run_free(run);
@@ -555,6 +722,9 @@ int main(void)
         cmocka_unit_test(test_run_associate_greedy_within_tolerance),
         cmocka_unit_test(test_run_associate_offset_and_errors),
         cmocka_unit_test(test_run_stamp_list_read),
+        cmocka_unit_test(test_run_source_folder_layouts),
+        cmocka_unit_test(test_run_pipeline_options_text),
+        cmocka_unit_test(test_run_sequence_run_settings_and_patterns),
         cmocka_unit_test(test_run_engine_resume_skips_only_up_to_date),
         cmocka_unit_test(test_run_engine_shards_match_whole_run),
         cmocka_unit_test(test_run_engine_error_policies),

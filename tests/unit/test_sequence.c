@@ -142,7 +142,9 @@ static void test_sequence_schema_errors_name_the_key(void **state)
     expect_error(ctx, "{\"version\":2,\"frames\":[{\"color\":\"a.png\"}]}", SINEW_EUNSUPPORTED,
                  "version: 2 is newer");
     expect_error(ctx, "{\"version\":1,\"frames\":[]}", C, "frames: must list at least one");
-    expect_error(ctx, "{\"version\":1,\"frames\":{}}", C, "frames: expected an array");
+    /* an object is a numbered frame pattern (sinew run): its keys are checked */
+    expect_error(ctx, "{\"version\":1,\"frames\":{}}", C, "frames.color: missing");
+    expect_error(ctx, "{\"version\":1,\"frames\":3}", C, "frames: expected an array");
     expect_error(ctx, "{\"version\":1,\"frames\":[3]}", C, "frames[0]: expected an object");
     expect_error(ctx,
                  "{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"intrinsics\":{\"fx\":1,\"fy\":1,"

@@ -1,0 +1,531 @@
+/* SPDX-License-Identifier: MIT */
+/* The standard per-pair pipeline of `sinew run`: read (or reuse) the two frames,
+ * estimate forward and backward flow (or import them), run the forward-backward
+ * check, write flows, mask and confidence into the pair folder and report stats.
+ *
+ * Memory: two decoded frames (the previous pair's are kept so a consecutive schedule
+ * decodes each frame once), two flow fields and the check outputs, reused from pair to
+ * pair while the size stays the same. Nothing here depends on the thread count except
+ * speed: every stage is bit-identical for any count, so outputs are too. */
+#define _POSIX_C_SOURCE 200809L
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include <cJSON.h>
+
+#include "flow/camera.h"
+#include "flow/check.h"
+#include "flow/depth.h"
+#include "flow/estimate.h"
+#include "flow/internal/base.h"
+#include "flow/internal/run.h"
+#include "flow/io.h"
+#include "flow/match.h"
+#include "flow/run.h"
+
+typedef struct {
+    int32_t index;      /* frame number, -1 = empty */
+    sinew_image img;    /* colour/gray as stored */
+    sinew_image z;      /* depth in metres (NaN invalid), when the frame has depth */
+    sinew_image labels; /* label ids, when the frame has labels */
+    double z_median;
+} frame_slot;
+
+struct sinew_run_pipeline {
+    sinew_ctx *ctx;
+    const sinew_run_spec *spec;
+    sinew_run_pipeline_params params;
+    sinew_estimator *est; /* NULL when flows are imported */
+    frame_slot slot[2];
+    int width, height; /* size of the first frame read; 0 before */
+    int have_camera;
+    sinew_camera cam_file, cam; /* as loaded; fitted to the frame size */
+    sinew_depth_params depth;
+    sinew_image fwd, bwd, mask, conf, fberr;
+};
+
+static const struct {
+    int fmt;
+    const char *ext;
+    const char *name;
+} formats[] = {
+    {SINEW_FLOW_FLO, "flo", "flo"},     {SINEW_FLOW_NPY, "npy", "npy"},
+    {SINEW_FLOW_NPY16, "npy", "npy16"}, {SINEW_FLOW_PFM, "pfm", "pfm"},
+    {SINEW_FLOW_KITTI, "png", "png"},
+};
+
+const char *sinew_run_flow_ext(int flow_format)
+{
+    for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)
+        if (formats[k].fmt == flow_format)
+            return formats[k].ext;
+    return NULL;
+}
+
+static const char *format_name(int flow_format)
+{
+    for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)
+        if (formats[k].fmt == flow_format)
+            return formats[k].name;
+    return NULL;
+}
+
+void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p)
+{
+    if (!p)
+        return;
+    memset(p, 0, sizeof *p);
+    p->preset = "balanced";
+    p->flow_format = SINEW_FLOW_FLO;
+    p->depth_scale = 1000;
+    p->match_stride = 4;
+    p->matches = 1;
+}
+
+int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *p, char *buf,
+                               size_t n)
+{
+    if (!ctx || !p || !buf || !p->preset)
+        return SINEW_EINVAL;
+    const char *fmt = format_name(p->flow_format);
+    if (!fmt)
+        return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow format %d", p->flow_format);
+    /* preset names are plain words (checked by sinew_flow_params_preset) */
+    if (strspn(p->preset, "abcdefghijklmnopqrstuvwxyz0123456789_-") != strlen(p->preset))
+        return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow preset '%s'", p->preset);
+    /* %.17g round-trips a double, so equal text means equal options */
+    int w = snprintf(buf, n,
+                     "{\"flow_preset\":\"%s\",\"flow_format\":\"%s\",\"check\":\"default\","
+                     "\"matches\":%s,\"match_stride\":%d,\"depth_scale\":%.17g,"
+                     "\"depth_kind\":\"%s\"}",
+                     p->preset, fmt, p->matches ? "true" : "false", p->match_stride, p->depth_scale,
+                     p->depth_ray ? "ray" : "z");
+    if (w > 0 && (size_t)w < n && p->camera) {
+        const sinew_camera *c = p->camera;
+        /* replace the closing brace with the camera values */
+        int w2 = snprintf(buf + w - 1, n - (size_t)(w - 1),
+                          ",\"camera\":[%.17g,%.17g,%.17g,%.17g,%d,%d,%.17g,%.17g,%.17g,%.17g,"
+                          "%.17g]}",
+                          c->fx, c->fy, c->cx, c->cy, c->width, c->height, c->k1, c->k2, c->p1,
+                          c->p2, c->k3);
+        w = w2 < 0 ? w2 : w - 1 + w2;
+    }
+    if (w < 0 || (size_t)w >= n)
+        return sinew__fail(ctx, SINEW_ELIMIT, "options text too long");
+    return SINEW_OK;
+}
+
+int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew_run_spec *spec,
+                           const sinew_run_pipeline_params *p)
+{
+    if (!ctx || !out || !spec || !p || !p->preset)
+        return SINEW_EINVAL;
+    *out = NULL;
+    if (!sinew_run_flow_ext(p->flow_format))
+        return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow format %d", p->flow_format);
+    if (!(p->depth_scale > 0) || !isfinite(p->depth_scale) || p->match_stride < 0)
+        return sinew__fail(ctx, SINEW_ECONFIG, "depth scale must be > 0 and match stride >= 0");
+    sinew_flow_params fp;
+    int rc = sinew_flow_params_preset(&fp, p->preset);
+    if (rc)
+        return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow preset '%s'", p->preset);
+    sinew_run_pipeline *pl = sinew__calloc(ctx, 1, sizeof *pl);
+    if (!pl)
+        return SINEW_ENOMEM;
+    pl->ctx = ctx;
+    pl->spec = spec;
+    pl->params = *p;
+    pl->slot[0].index = pl->slot[1].index = -1;
+    sinew_depth_params_default(&pl->depth);
+    pl->depth.scale = p->depth_scale;
+    if (p->depth_ray)
+        pl->depth.kind = SINEW_DEPTH_RAY;
+    if (p->camera) {
+        if ((rc = sinew_camera_check(ctx, p->camera, "intrinsics"))) {
+            sinew__free(ctx, pl);
+            return rc;
+        }
+        pl->cam_file = *p->camera;
+        pl->have_camera = 1;
+    } else if (spec->intrinsics) {
+        if ((rc = sinew_camera_load(ctx, &pl->cam_file, spec->intrinsics))) {
+            sinew__free(ctx, pl);
+            return rc;
+        }
+        pl->have_camera = 1;
+    }
+    if (!spec->flow_from && (rc = sinew_estimator_new(ctx, &pl->est, &fp))) {
+        sinew__free(ctx, pl);
+        return rc;
+    }
+    *out = pl;
+    return SINEW_OK;
+}
+
+void sinew_run_pipeline_free(sinew_run_pipeline *pl)
+{
+    if (!pl)
+        return;
+    sinew_estimator_free(pl->est);
+    for (int k = 0; k < 2; k++) {
+        sinew_image_free(&pl->slot[k].img);
+        sinew_image_free(&pl->slot[k].z);
+        sinew_image_free(&pl->slot[k].labels);
+    }
+    sinew_image_free(&pl->fwd);
+    sinew_image_free(&pl->bwd);
+    sinew_image_free(&pl->mask);
+    sinew_image_free(&pl->conf);
+    sinew_image_free(&pl->fberr);
+    sinew__free(pl->ctx, pl);
+}
+
+static void slot_clear(frame_slot *s)
+{
+    sinew_image_free(&s->img);
+    sinew_image_free(&s->z);
+    sinew_image_free(&s->labels);
+    s->index = -1;
+    s->z_median = NAN;
+}
+
+/* Depth (metres) and labels of frame f into slot s; sizes must match the frames. */
+static int load_extras(sinew_run_pipeline *pl, frame_slot *s, int32_t f)
+{
+    const sinew_run_frame *fr = &pl->spec->frames[f];
+    int rc;
+    if (fr->depth) {
+        sinew_image raw;
+        if ((rc = sinew_depth_read(pl->ctx, &raw, fr->depth)))
+            return rc;
+        if (raw.width != pl->width || raw.height != pl->height) {
+            int w = raw.width, h = raw.height;
+            sinew_image_free(&raw);
+            return sinew__fail(pl->ctx, SINEW_ESIZE, "%s: depth is %dx%d but the frames are %dx%d",
+                               fr->depth, w, h, pl->width, pl->height);
+        }
+        rc = sinew_depth_convert(pl->ctx, &pl->depth, pl->have_camera ? &pl->cam : NULL, &raw,
+                                 &s->z, fr->depth, NULL);
+        sinew_image_free(&raw);
+        if (rc || (rc = sinew_depth_median(pl->ctx, &s->z, &s->z_median, NULL)))
+            return rc;
+    }
+    if (fr->labels) {
+        if ((rc = sinew_image_read(pl->ctx, &s->labels, fr->labels)))
+            return rc;
+        if (s->labels.width != pl->width || s->labels.height != pl->height ||
+            s->labels.channels != 1)
+            return sinew__fail(pl->ctx, SINEW_ESIZE,
+                               "%s: labels must be one channel of %dx%d (got %dx%d, %d channels)",
+                               fr->labels, pl->width, pl->height, s->labels.width, s->labels.height,
+                               s->labels.channels);
+    }
+    return SINEW_OK;
+}
+
+/* Frame f decoded, reusing a slot; `keep` is a frame that must not be evicted. */
+static int get_frame(sinew_run_pipeline *pl, int32_t f, int32_t keep, const frame_slot **out)
+{
+    for (int k = 0; k < 2; k++)
+        if (pl->slot[k].index == f) {
+            *out = &pl->slot[k];
+            return SINEW_OK;
+        }
+    int k = pl->slot[0].index == keep ? 1 : 0;
+    frame_slot *s = &pl->slot[k];
+    slot_clear(s);
+    const char *path = pl->spec->frames[f].color;
+    int rc = sinew_image_read(pl->ctx, &s->img, path);
+    if (rc)
+        return rc;
+    if (pl->width == 0) {
+        if (pl->have_camera &&
+            (rc = sinew_camera_fit(pl->ctx, &pl->cam_file, s->img.width, s->img.height, &pl->cam,
+                                   pl->spec->intrinsics ? pl->spec->intrinsics : "intrinsics"))) {
+            slot_clear(s);
+            return rc;
+        }
+        pl->width = s->img.width;
+        pl->height = s->img.height;
+    } else if (s->img.width != pl->width || s->img.height != pl->height) {
+        int w = s->img.width, h = s->img.height;
+        slot_clear(s);
+        return sinew__fail(pl->ctx, SINEW_ESIZE, "%s: %dx%d differs from the sequence's %dx%d",
+                           path, w, h, pl->width, pl->height);
+    }
+    if ((rc = load_extras(pl, s, f))) {
+        slot_clear(s);
+        return rc;
+    }
+    s->index = f;
+    *out = s;
+    return SINEW_OK;
+}
+
+/* (Re)allocate a work image when the size changed. */
+static int ensure(sinew_ctx *ctx, sinew_image *img, int w, int h, int c, sinew_type t)
+{
+    if (img->data && img->width == w && img->height == h && img->channels == c && img->type == t)
+        return SINEW_OK;
+    sinew_image_free(img);
+    return sinew_image_alloc(ctx, img, w, h, c, t);
+}
+
+static int import_flow(sinew_run_pipeline *pl, sinew_image *dst, const char *path)
+{
+    sinew_image tmp;
+    int rc = sinew_flow_read(pl->ctx, &tmp, path, SINEW_FLOW_AUTO);
+    if (rc)
+        return rc;
+    if (tmp.width != pl->width || tmp.height != pl->height) {
+        int w = tmp.width, h = tmp.height;
+        sinew_image_free(&tmp);
+        return sinew__fail(pl->ctx, SINEW_ESIZE, "%s: flow is %dx%d but the frames are %dx%d", path,
+                           w, h, pl->width, pl->height);
+    }
+    sinew_image_free(dst);
+    *dst = tmp;
+    return SINEW_OK;
+}
+
+/* Unknown count, mean and largest length of the known vectors (serial double sum). */
+static void flow_stats(const sinew_image *f, int64_t *unknown, double *mean, double *max)
+{
+    double sum = 0, mx = 0;
+    int64_t known = 0, unk = 0;
+    for (int y = 0; y < f->height; y++) {
+        const float *r = sinew_image_row_f32(f, y);
+        for (int x = 0; x < f->width; x++) {
+            float u = r[2 * x], v = r[2 * x + 1];
+            if (isfinite(u) && isfinite(v)) {
+                double len = sqrt((double)u * u + (double)v * v);
+                sum += len;
+                mx = len > mx ? len : mx;
+                known++;
+            } else {
+                unk++;
+            }
+        }
+    }
+    *unknown = unk;
+    *mean = known ? sum / (double)known : 0.0;
+    *max = mx;
+}
+
+/* Mean of the finite values of a 1-channel float map (serial double sum). */
+static double finite_mean(const sinew_image *img)
+{
+    double sum = 0;
+    int64_t n = 0;
+    for (int y = 0; y < img->height; y++) {
+        const float *r = sinew_image_row_f32(img, y);
+        for (int x = 0; x < img->width; x++)
+            if (isfinite(r[x])) {
+                sum += r[x];
+                n++;
+            }
+    }
+    return n ? sum / (double)n : NAN;
+}
+
+static void add_num_or_null(cJSON *o, const char *key, double v)
+{
+    if (isfinite(v))
+        cJSON_AddNumberToObject(o, key, v);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
+                        const sinew_check_stats *cs, const sinew_matches *m, const frame_slot *s0,
+                        const frame_slot *s1)
+{
+    cJSON *o = cJSON_CreateObject();
+    if (!o)
+        return NULL;
+    /* summary numbers at the top level (read by the run report, docs/formats.md) */
+    cJSON_AddNumberToObject(o, "kept_fraction",
+                            cs->pixels ? (double)cs->kept / (double)cs->pixels : 0.0);
+    add_num_or_null(o, "mean_confidence", finite_mean(&pl->conf));
+    add_num_or_null(o, "fb_error_mean", finite_mean(&pl->fberr));
+    cJSON *warn = cJSON_AddArrayToObject(o, "warnings");
+    const frame_slot *sl[2] = {s0, s1};
+    const int32_t fi[2] = {job->pair.i, job->pair.j};
+    for (int k = 0; warn && k < 2; k++) {
+        double med = sl[k]->z_median;
+        if (sl[k]->z.data && isfinite(med) &&
+            (med < SINEW_DEPTH_PLAUSIBLE_MIN || med > SINEW_DEPTH_PLAUSIBLE_MAX)) {
+            char msg[600];
+            snprintf(msg, sizeof msg,
+                     "%s: median depth %.3g m is outside %.2g-%.0f m; is the depth scale (%g "
+                     "codes per metre) right?",
+                     pl->spec->frames[fi[k]].depth, med, SINEW_DEPTH_PLAUSIBLE_MIN,
+                     SINEW_DEPTH_PLAUSIBLE_MAX, pl->depth.scale);
+            cJSON_AddItemToArray(warn, cJSON_CreateString(msg));
+        }
+    }
+    cJSON_AddStringToObject(o, "pair", job->name);
+    cJSON *fr = cJSON_AddArrayToObject(o, "frames");
+    if (fr) {
+        cJSON_AddItemToArray(fr, cJSON_CreateNumber(job->pair.i));
+        cJSON_AddItemToArray(fr, cJSON_CreateNumber(job->pair.j));
+    }
+    cJSON_AddNumberToObject(o, "width", pl->width);
+    cJSON_AddNumberToObject(o, "height", pl->height);
+    cJSON_AddStringToObject(o, "flow_source", pl->est ? "estimated" : "imported");
+    const sinew_image *fl[2] = {&pl->fwd, &pl->bwd};
+    const char *nm[2] = {"forward", "backward"};
+    for (int k = 0; k < 2; k++) {
+        int64_t unk;
+        double mean, mx;
+        flow_stats(fl[k], &unk, &mean, &mx);
+        if (k == 0)
+            cJSON_AddNumberToObject(o, "flow_max", mx); /* read by the run report */
+        cJSON *d = cJSON_AddObjectToObject(o, nm[k]);
+        if (d) {
+            cJSON_AddNumberToObject(d, "unknown", (double)unk);
+            cJSON_AddNumberToObject(d, "mean_length_px", mean);
+        }
+    }
+    cJSON *c = cJSON_AddObjectToObject(o, "check");
+    if (c) {
+        cJSON_AddNumberToObject(c, "pixels", (double)cs->pixels);
+        cJSON_AddNumberToObject(c, "kept", (double)cs->kept);
+        cJSON_AddNumberToObject(c, "kept_fraction",
+                                cs->pixels ? (double)cs->kept / (double)cs->pixels : 0.0);
+        cJSON *r = cJSON_AddObjectToObject(c, "reasons");
+        for (int b = 0; r && b < SINEW_MASK_NBITS; b++)
+            cJSON_AddNumberToObject(r, sinew_check_bit_name(b), (double)cs->reason[b]);
+        cJSON_AddNumberToObject(c, "gain", cs->gain);
+        cJSON_AddNumberToObject(c, "offset", cs->offset);
+    }
+    if (m) {
+        cJSON *mo = cJSON_AddObjectToObject(o, "matches");
+        if (mo) {
+            cJSON_AddNumberToObject(mo, "rows", (double)m->rows);
+            cJSON_AddNumberToObject(mo, "columns", m->cols);
+            cJSON_AddBoolToObject(mo, "lifted", m->has_depth);
+            cJSON *r = cJSON_AddObjectToObject(mo, "rejected");
+            for (int k = 0; r && k < SINEW_REJECT_COUNT; k++)
+                cJSON_AddNumberToObject(r, sinew_reject_name(k), (double)m->rejected[k]);
+        }
+    }
+    char *t = cJSON_PrintUnformatted(o);
+    cJSON_Delete(o);
+    if (!t)
+        return NULL;
+    size_t n = strlen(t);
+    char *out = sinew_ctx_alloc(pl->ctx, n + 1);
+    if (out)
+        memcpy(out, t, n + 1);
+    cJSON_free(t);
+    return out;
+}
+
+/* matches.npy + matches.json: 2-D rows, lifted when both frames have depth and
+ * intrinsics are known, labels when both frames have them. */
+static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const frame_slot *s0,
+                         const frame_slot *s1, sinew_matches *m)
+{
+    sinew_ctx *ctx = pl->ctx;
+    sinew_match_params mp;
+    sinew_match_params_default(&mp);
+    if (pl->params.match_stride > 0) {
+        mp.sampling = SINEW_SAMPLE_STRIDE;
+        mp.stride = pl->params.match_stride;
+    }
+    const sinew_run_frame *fr0 = &pl->spec->frames[job->pair.i];
+    const sinew_run_frame *fr1 = &pl->spec->frames[job->pair.j];
+    int lift = pl->have_camera && s0->z.data && s1->z.data;
+    int labels = s0->labels.data && s1->labels.data;
+    char fwd_name[32];
+    snprintf(fwd_name, sizeof fwd_name, "forward.%s", sinew_run_flow_ext(pl->params.flow_format));
+    sinew_match_inputs in = {&pl->fwd,
+                             &pl->mask,
+                             &pl->conf,
+                             labels ? &s0->labels : NULL,
+                             labels ? &s1->labels : NULL,
+                             lift ? &s0->z : NULL,
+                             lift ? &s1->z : NULL,
+                             lift ? &pl->cam : NULL,
+                             fwd_name,
+                             "mask.png",
+                             "confidence.npy",
+                             labels ? fr0->labels : NULL,
+                             labels ? fr1->labels : NULL,
+                             lift ? fr0->depth : NULL,
+                             lift ? fr1->depth : NULL};
+    int rc = sinew_matches_build(ctx, &in, &mp, m);
+    if (rc)
+        return rc;
+    sinew_match_sources src = {"sinew run",
+                               ".",
+                               pl->have_camera ? pl->spec->intrinsics : NULL,
+                               pl->have_camera ? &pl->cam : NULL,
+                               pl->have_camera ? &pl->cam_file : NULL,
+                               lift ? &pl->depth : NULL,
+                               {lift ? s0->z_median : NAN, lift ? s1->z_median : NAN}};
+    char p[SINEW__PATH_MAX];
+    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, "matches.npy")) ||
+        (rc = sinew_matches_save(ctx, m, &mp, &in, &src, p)))
+        return rc;
+    return SINEW_OK;
+}
+
+int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job *job, char **stats)
+{
+    sinew_run_pipeline *pl = pipeline;
+    if (!pl || !job || !stats || ctx != pl->ctx)
+        return SINEW_EINVAL;
+    *stats = NULL;
+    const frame_slot *s0, *s1;
+    int rc;
+    if ((rc = get_frame(pl, job->pair.i, job->pair.j, &s0)) ||
+        (rc = get_frame(pl, job->pair.j, job->pair.i, &s1)))
+        return rc;
+    const sinew_image *f0 = &s0->img, *f1 = &s1->img;
+    int w = pl->width, h = pl->height;
+    if (pl->est) {
+        if ((rc = ensure(ctx, &pl->fwd, w, h, 2, SINEW_F32)) ||
+            (rc = ensure(ctx, &pl->bwd, w, h, 2, SINEW_F32)) ||
+            (rc = sinew_estimator_run(pl->est, &pl->fwd, &pl->bwd, f0, f1)))
+            return rc;
+    } else if ((rc = import_flow(pl, &pl->fwd, job->flow_fwd)) ||
+               (rc = import_flow(pl, &pl->bwd, job->flow_bwd))) {
+        return rc;
+    }
+    if ((rc = ensure(ctx, &pl->mask, w, h, 1, SINEW_U8)) ||
+        (rc = ensure(ctx, &pl->conf, w, h, 1, SINEW_F32)) ||
+        (rc = ensure(ctx, &pl->fberr, w, h, 1, SINEW_F32)))
+        return rc;
+    sinew_check_input in = {&pl->fwd, &pl->bwd, f0, f1, NULL};
+    sinew_check_output out = {&pl->fberr, &pl->mask, &pl->conf, {0}};
+    if ((rc = sinew_check_run(ctx, &out, &in, NULL)))
+        return rc;
+    const char *ext = sinew_run_flow_ext(pl->params.flow_format);
+    char p[SINEW__PATH_MAX], name[32];
+    snprintf(name, sizeof name, "forward.%s", ext);
+    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, name)) ||
+        (rc = sinew_flow_write(ctx, p, &pl->fwd, (sinew_flow_format)pl->params.flow_format)))
+        return rc;
+    snprintf(name, sizeof name, "backward.%s", ext);
+    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, name)) ||
+        (rc = sinew_flow_write(ctx, p, &pl->bwd, (sinew_flow_format)pl->params.flow_format)))
+        return rc;
+    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, "mask.png")) ||
+        (rc = sinew_image_write_png(ctx, p, &pl->mask)))
+        return rc;
+    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, "confidence.npy")) ||
+        (rc = sinew_npy_write_image(ctx, p, &pl->conf, 0)))
+        return rc;
+    sinew_matches m;
+    memset(&m, 0, sizeof m);
+    if (pl->params.matches && (rc = write_matches(pl, job, s0, s1, &m)))
+        return rc;
+    *stats = stats_text(pl, job, &out.stats, pl->params.matches ? &m : NULL, s0, s1);
+    sinew_matches_free(ctx, &m);
+    if (!*stats)
+        return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory writing stats", job->name);
+    return SINEW_OK;
+}

@@ -1,0 +1,258 @@
+/* SPDX-License-Identifier: MIT */
+/* Sequences from a plain folder: the default layout (color/, depth/, labels/,
+ * intrinsics.json) or timestamped lists (rgb.txt, depth.txt) associated by nearest
+ * time within a tolerance. Produces the frame list the run engine takes. */
+#define _POSIX_C_SOURCE 200809L
+#include <dirent.h>
+#include <errno.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <sys/stat.h>
+
+#include "flow/internal/base.h"
+#include "flow/internal/run.h"
+#include "flow/run.h"
+
+static char *dup_join(sinew_ctx *ctx, const char *a, const char *b)
+{
+    size_t na = strlen(a), nb = strlen(b);
+    char *s = sinew__alloc(ctx, na + nb + 2);
+    if (!s)
+        return NULL;
+    memcpy(s, a, na);
+    s[na] = '/';
+    memcpy(s + na + 1, b, nb + 1);
+    return s;
+}
+
+static int is_file(const char *p)
+{
+    struct stat st;
+    return stat(p, &st) == 0 && S_ISREG(st.st_mode);
+}
+
+static int is_dir(const char *p)
+{
+    struct stat st;
+    return stat(p, &st) == 0 && S_ISDIR(st.st_mode);
+}
+
+void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src)
+{
+    if (!ctx || !src)
+        return;
+    for (size_t f = 0; src->frames && f < src->nframes; f++) {
+        sinew__free(ctx, (void *)src->frames[f].color);
+        sinew__free(ctx, (void *)src->frames[f].depth);
+        sinew__free(ctx, (void *)src->frames[f].labels);
+    }
+    sinew__free(ctx, src->frames);
+    sinew__free(ctx, src->intrinsics);
+    memset(src, 0, sizeof *src);
+}
+
+static int image_ext(const char *name)
+{
+    static const char *const ext[] = {".png", ".jpg", ".jpeg", ".ppm", ".pgm", ".npy", ".pfm"};
+    size_t n = strlen(name);
+    if (name[0] == '.')
+        return 0;
+    for (size_t k = 0; k < sizeof ext / sizeof ext[0]; k++) {
+        size_t e = strlen(ext[k]);
+        if (n > e && !strcasecmp(name + n - e, ext[k]))
+            return 1;
+    }
+    return 0;
+}
+
+static int cmp_str(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
+
+static void free_list(sinew_ctx *ctx, char **l, size_t n)
+{
+    for (size_t i = 0; l && i < n; i++)
+        sinew__free(ctx, l[i]);
+    sinew__free(ctx, l);
+}
+
+/* Sorted image file paths of a folder; the count is limited before the list grows. */
+static int list_images(sinew_ctx *ctx, const char *dir, char ***out, size_t *n)
+{
+    *out = NULL;
+    *n = 0;
+    DIR *d = opendir(dir);
+    if (!d)
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open folder: %s", dir, strerror(errno));
+    size_t count = 0;
+    struct dirent *e;
+    while ((e = readdir(d)) != NULL)
+        count += image_ext(e->d_name);
+    if (count > SINEW_RUN_MAX_FRAMES) {
+        closedir(d);
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s: %zu images, limit %d", dir, count,
+                           SINEW_RUN_MAX_FRAMES);
+    }
+    char **l = count ? sinew__calloc(ctx, count, sizeof *l) : NULL;
+    if (count && !l) {
+        closedir(d);
+        return SINEW_ENOMEM;
+    }
+    rewinddir(d);
+    size_t k = 0;
+    while ((e = readdir(d)) != NULL && k < count) {
+        if (!image_ext(e->d_name))
+            continue;
+        if (!(l[k] = dup_join(ctx, dir, e->d_name))) {
+            closedir(d);
+            free_list(ctx, l, k);
+            return SINEW_ENOMEM;
+        }
+        k++;
+    }
+    closedir(d);
+    qsort(l, k, sizeof *l, cmp_str);
+    *out = l;
+    *n = k;
+    return SINEW_OK;
+}
+
+static int from_lists(sinew_ctx *ctx, const char *dir, double max_dt, sinew_run_source *out)
+{
+    char pa[SINEW__PATH_MAX], pb[SINEW__PATH_MAX];
+    sinew_stamp_list a = {0, NULL, NULL}, b = {0, NULL, NULL};
+    int32_t *m = NULL;
+    int rc;
+    if ((rc = sinew__path_join(ctx, pa, sizeof pa, dir, "rgb.txt")) ||
+        (rc = sinew__path_join(ctx, pb, sizeof pb, dir, "depth.txt")) ||
+        (rc = sinew_stamp_list_read(ctx, pa, &a)) || (rc = sinew_stamp_list_read(ctx, pb, &b)))
+        goto done;
+    m = a.n ? sinew__calloc(ctx, a.n, sizeof *m) : NULL;
+    if (a.n && !m) {
+        rc = SINEW_ENOMEM;
+        goto done;
+    }
+    size_t nm = 0;
+    if ((rc = sinew_associate(ctx, a.t, a.n, b.t, b.n, max_dt, 0.0, m, &nm)))
+        goto done;
+    if (nm == 0) {
+        rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no colour stamp has a depth stamp within %g s",
+                         pa, max_dt);
+        goto done;
+    }
+    out->frames = sinew__calloc(ctx, nm, sizeof *out->frames);
+    if (!out->frames) {
+        rc = SINEW_ENOMEM;
+        goto done;
+    }
+    /* frames in colour time order (ties by list order) */
+    size_t *ord = sinew__calloc(ctx, a.n, sizeof *ord);
+    if (!ord) {
+        rc = SINEW_ENOMEM;
+        goto done;
+    }
+    for (size_t i = 0; i < a.n; i++)
+        ord[i] = i;
+    for (size_t i = 1; i < a.n; i++) { /* insertion sort: lists are nearly sorted */
+        size_t v = ord[i], j = i;
+        while (j > 0 && a.t[ord[j - 1]] > a.t[v]) {
+            ord[j] = ord[j - 1];
+            j--;
+        }
+        ord[j] = v;
+    }
+    for (size_t q = 0; q < a.n; q++) {
+        size_t i = ord[q];
+        if (m[i] < 0)
+            continue;
+        sinew_run_frame *fr = &out->frames[out->nframes++];
+        fr->color = dup_join(ctx, dir, a.name[i]);
+        fr->depth = dup_join(ctx, dir, b.name[m[i]]);
+        if (!fr->color || !fr->depth) {
+            rc = SINEW_ENOMEM;
+            break;
+        }
+    }
+    sinew__free(ctx, ord);
+    out->dropped = a.n - nm;
+done:
+    sinew__free(ctx, m);
+    sinew_stamp_list_free(ctx, &a);
+    sinew_stamp_list_free(ctx, &b);
+    return rc;
+}
+
+static int from_layout(sinew_ctx *ctx, const char *dir, sinew_run_source *out)
+{
+    static const char *const sub[3] = {"color", "depth", "labels"};
+    char **l[3] = {NULL, NULL, NULL};
+    size_t n[3] = {0, 0, 0};
+    char p[SINEW__PATH_MAX];
+    int rc = SINEW_OK;
+    for (int k = 0; k < 3 && !rc; k++) {
+        if ((rc = sinew__path_join(ctx, p, sizeof p, dir, sub[k])))
+            break;
+        if (!is_dir(p)) {
+            if (k == 0)
+                rc = sinew__fail(ctx, SINEW_ECONFIG,
+                                 "%s: no sequence.json, rgb.txt+depth.txt or color/ folder", dir);
+            continue;
+        }
+        if ((rc = list_images(ctx, p, &l[k], &n[k])))
+            break;
+        if (k == 0 && n[0] == 0)
+            rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no images", p);
+        else if (k > 0 && n[k] != n[0])
+            rc =
+                sinew__fail(ctx, SINEW_ECONFIG, "%s: %zu images but color/ has %zu", p, n[k], n[0]);
+    }
+    if (!rc) {
+        out->frames = sinew__calloc(ctx, n[0], sizeof *out->frames);
+        if (!out->frames)
+            rc = SINEW_ENOMEM;
+    }
+    if (!rc) {
+        /* hand the strings over to the frames */
+        for (size_t f = 0; f < n[0]; f++) {
+            out->frames[f].color = l[0][f];
+            out->frames[f].depth = l[1] ? l[1][f] : NULL;
+            out->frames[f].labels = l[2] ? l[2][f] : NULL;
+        }
+        out->nframes = n[0];
+        for (int k = 0; k < 3; k++) {
+            sinew__free(ctx, l[k]);
+            l[k] = NULL;
+            n[k] = 0;
+        }
+    }
+    for (int k = 0; k < 3; k++)
+        free_list(ctx, l[k], n[k]);
+    return rc;
+}
+
+int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
+                                 sinew_run_source *out)
+{
+    if (!ctx || !dir || !out)
+        return SINEW_EINVAL;
+    memset(out, 0, sizeof *out);
+    if (!is_dir(dir))
+        return sinew__fail(ctx, SINEW_EIO, "%s: not a folder", dir);
+    char pa[SINEW__PATH_MAX], pb[SINEW__PATH_MAX];
+    int rc;
+    if ((rc = sinew__path_join(ctx, pa, sizeof pa, dir, "rgb.txt")) ||
+        (rc = sinew__path_join(ctx, pb, sizeof pb, dir, "depth.txt")))
+        return rc;
+    if (is_file(pa) && is_file(pb))
+        rc = from_lists(ctx, dir, max_dt, out);
+    else
+        rc = from_layout(ctx, dir, out);
+    if (!rc && (rc = sinew__path_join(ctx, pa, sizeof pa, dir, "intrinsics.json")) == 0 &&
+        is_file(pa) && !(out->intrinsics = dup_join(ctx, dir, "intrinsics.json")))
+        rc = SINEW_ENOMEM;
+    if (rc)
+        sinew_run_source_free(ctx, out);
+    return rc;
+}

@@ -1,0 +1,993 @@
+/* SPDX-License-Identifier: MIT */
+/* Hostile values and shapes through every library stage, called directly: NaN, Inf,
+ * huge and denormal numbers in flow, confidence, depth and parameters; 16-bit depth
+ * codes 0 and 65535; zero, negative and non-finite intrinsics and depth scales; images
+ * of 1x1, 1xN and Nx1 pixels; inputs of different sizes. Each case must end in a clear
+ * status (with a message) or the documented behaviour; the sanitizer build (make test
+ * SANITIZE=1) turns any undefined behaviour on these paths into a failure.
+ * docs/robustness.md lists what each stage does with such input. */
+#include "tests/support/testutil.h"
+
+#include <float.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+/* Values a flow, confidence or depth map may hold after a bad upstream step. */
+static const float nasty[] = {
+    NAN, INFINITY, -INFINITY, FLT_MAX, -FLT_MAX, 1e30f, -1e30f, 3e9f, -3e9f, 1e-40f, -0.0f, 0.5f,
+};
+#define NNASTY ((int)(sizeof nasty / sizeof nasty[0]))
+
+/* Shapes: 1x1, one row, one column, 2x2 and a small ordinary one. */
+static const int shapes[][2] = {{1, 1}, {9, 1}, {1, 9}, {2, 2}, {13, 6}};
+#define NSHAPES ((int)(sizeof shapes / sizeof shapes[0]))
+
+static void must_fail(sinew_ctx *ctx, int rc, const char *what)
+{
+    if (rc == SINEW_OK)
+        fail_msg("%s: accepted", what);
+    if (sinew_ctx_message(ctx)[0] == '\0')
+        fail_msg("%s: status %d without a message", what, rc);
+    if (strchr(sinew_ctx_message(ctx), '\n'))
+        fail_msg("%s: message is not one line: %s", what, sinew_ctx_message(ctx));
+    sinew_ctx_clear(ctx);
+}
+
+/* Same, and the message must name `name` (the file or source). */
+static void must_fail_naming(sinew_ctx *ctx, int rc, const char *what, const char *name)
+{
+    if (rc != SINEW_OK && !strstr(sinew_ctx_message(ctx), name))
+        fail_msg("%s: message does not name %s: %s", what, name, sinew_ctx_message(ctx));
+    must_fail(ctx, rc, what);
+}
+
+static void must_ok(sinew_ctx *ctx, int rc, const char *what)
+{
+    if (rc != SINEW_OK)
+        fail_msg("%s: status %d: %s", what, rc, sinew_ctx_message(ctx));
+}
+
+/* Flow of w x h with a smooth motion, then every nasty value sprinkled over it (pixel
+ * i % (w*h) gets value i as u or v); with_nasty = 0 keeps it finite. */
+static void make_flow(sinew_ctx *ctx, sinew_image *f, int w, int h, int with_nasty, int seed)
+{
+    assert_int_equal(sinew_image_alloc(ctx, f, w, h, 2, SINEW_F32), SINEW_OK);
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w; x++) {
+            float *p = sinew_image_row_f32(f, y) + 2 * x;
+            p[0] = 0.3f * (float)((x + seed) % 3) - 0.25f;
+            p[1] = -0.2f * (float)((y + seed) % 2) + 0.1f;
+        }
+    if (!with_nasty)
+        return;
+    for (int i = 0; i < NNASTY; i++) {
+        int k = (i * 7 + seed) % (w * h);
+        float *p = sinew_image_row_f32(f, k / w) + 2 * (k % w);
+        p[(i + seed) & 1] = nasty[i];
+    }
+}
+
+static void make_frame(sinew_ctx *ctx, sinew_image *img, int w, int h, int ch, sinew_type t)
+{
+    assert_int_equal(sinew_image_alloc(ctx, img, w, h, ch, t), SINEW_OK);
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w * ch; x++) {
+            unsigned v = (unsigned)(x * 37 + y * 91) % 256;
+            if (t == SINEW_U8)
+                sinew_image_row_u8(img, y)[x] = (uint8_t)v;
+            else
+                sinew_image_row_u16(img, y)[x] = (uint16_t)(v * 257);
+        }
+}
+
+static void fill_f32(sinew_image *img, float v)
+{
+    for (int y = 0; y < img->height; y++)
+        for (int x = 0; x < img->width * img->channels; x++)
+            sinew_image_row_f32(img, y)[x] = v;
+}
+
+/* ---- every stage on tiny shapes, with and without nasty values ---- */
+
+typedef struct stage_set {
+    sinew_image fwd, bwd, f0, f1, ign, fb, mask, conf, d0, d1, l0, l1;
+} stage_set;
+
+static void stage_set_free(stage_set *s)
+{
+    sinew_image *all[] = {&s->fwd,  &s->fb,   &s->bwd, &s->f0, &s->f1, &s->ign,
+                          &s->mask, &s->conf, &s->d0,  &s->d1, &s->l0, &s->l1};
+    for (size_t i = 0; i < sizeof all / sizeof all[0]; i++)
+        sinew_image_free(all[i]);
+}
+
+static void draw_everything(sinew_ctx *ctx, stage_set *s, const sinew_matches *m, const char *tag)
+{
+    char what[160];
+    sinew_image pic;
+    for (int legend = 0; legend < 2; legend++) {
+        snprintf(what, sizeof what, "%s draw flow legend %d", tag, legend);
+        must_ok(ctx, sinew_draw_flow(ctx, &pic, &s->fwd, 0, legend), what);
+        assert_true(pic.width >= s->fwd.width && pic.height >= s->fwd.height);
+        sinew_image_free(&pic);
+        must_ok(ctx, sinew_draw_flow(ctx, &pic, &s->fwd, 1e-30, legend), what);
+        sinew_image_free(&pic);
+        snprintf(what, sizeof what, "%s draw arrows legend %d", tag, legend);
+        must_ok(ctx, sinew_draw_arrows(ctx, &pic, &s->f0, &s->fwd, 2, 1e20, legend), what);
+        sinew_image_free(&pic);
+        must_ok(ctx, sinew_draw_arrows(ctx, &pic, NULL, &s->fwd, 1000000, 1.0, legend), what);
+        sinew_image_free(&pic);
+        snprintf(what, sizeof what, "%s draw heatmaps legend %d", tag, legend);
+        must_ok(ctx, sinew_draw_heatmap(ctx, &pic, &s->fb, 0, 0, "FB", legend), what);
+        sinew_image_free(&pic);
+        must_ok(ctx, sinew_draw_heatmap(ctx, &pic, &s->conf, -1e300, 1e300, NULL, legend), what);
+        sinew_image_free(&pic);
+        must_ok(ctx, sinew_draw_epe(ctx, &pic, &s->fwd, &s->bwd, 0, legend), what);
+        sinew_image_free(&pic);
+        snprintf(what, sizeof what, "%s draw reasons legend %d", tag, legend);
+        must_ok(ctx, sinew_draw_reasons(ctx, &pic, &s->f1, &s->mask, legend), what);
+        sinew_image_free(&pic);
+        if (m->rows) {
+            sinew_match_table t = {m->data, m->rows, (size_t)m->cols, 0, 1, 2, 3, 4};
+            snprintf(what, sizeof what, "%s draw matches legend %d", tag, legend);
+            must_ok(ctx, sinew_draw_matches(ctx, &pic, &s->f0, &s->f1, &t, 1000, legend), what);
+            sinew_image_free(&pic);
+        }
+    }
+}
+
+static void run_stages(sinew_ctx *ctx, const char *dir, int w, int h, int with_nasty, int seed)
+{
+    char tag[64], what[200], p[700];
+    snprintf(tag, sizeof tag, "%dx%d nasty=%d seed=%d", w, h, with_nasty, seed);
+    stage_set s;
+    memset(&s, 0, sizeof s);
+    make_flow(ctx, &s.fwd, w, h, with_nasty, seed);
+    make_flow(ctx, &s.bwd, w, h, with_nasty, seed + 5);
+    make_frame(ctx, &s.f0, w, h, 3, SINEW_U8);
+    make_frame(ctx, &s.f1, w, h, 3, SINEW_U8);
+    make_frame(ctx, &s.ign, w, h, 1, SINEW_U8);
+    assert_int_equal(sinew_image_alloc(ctx, &s.fb, w, h, 1, SINEW_F32), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &s.mask, w, h, 1, SINEW_U8), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &s.conf, w, h, 1, SINEW_F32), SINEW_OK);
+
+    /* check: confidence in [0, 1] and never NaN, mask uses only the defined bits */
+    sinew_check_params cp;
+    sinew_check_params_default(&cp);
+    cp.ignore_polarity = SINEW_IGNORE_ZERO;
+    sinew_check_input in = {&s.fwd, &s.bwd, &s.f0, &s.f1, &s.ign};
+    sinew_check_output out = {&s.fb, &s.mask, &s.conf, {0}};
+    snprintf(what, sizeof what, "%s check", tag);
+    must_ok(ctx, sinew_check_run(ctx, &out, &in, &cp), what);
+    int64_t kept = 0;
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w; x++) {
+            float c = sinew_image_row_f32(&s.conf, y)[x];
+            uint8_t b = sinew_image_row_u8(&s.mask, y)[x];
+            if (!(c >= 0 && c <= 1))
+                fail_msg("%s: confidence %g at (%d, %d)", what, c, x, y);
+            assert_true(b < (1u << SINEW_MASK_NBITS));
+            kept += b == 0;
+            float fb = sinew_image_row_f32(&s.fb, y)[x];
+            assert_true(isnan(fb) || fb >= 0);
+        }
+    assert_int_equal(kept, out.stats.kept);
+    assert_int_equal(out.stats.pixels, (int64_t)w * h);
+
+    /* confidence with nasty values itself (a caller's own map) */
+    if (with_nasty)
+        for (int i = 0; i < NNASTY && i < w * h; i++)
+            sinew_image_row_f32(&s.conf, i / w)[i % w] = nasty[(i + seed) % NNASTY];
+
+    /* depth: 16-bit codes including 0 and 65535, converted to metres */
+    sinew_image raw;
+    assert_int_equal(sinew_image_alloc(ctx, &raw, w, h, 1, SINEW_U16), SINEW_OK);
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w; x++)
+            sinew_image_row_u16(&raw, y)[x] = (uint16_t)((x + y + seed) % 5 == 0   ? 0
+                                                         : (x + y + seed) % 5 == 1 ? 65535
+                                                                                   : 1000 + x);
+    sinew_camera cam;
+    sinew_camera_init(&cam, 5, 5, (w - 1) / 2.0, (h - 1) / 2.0, w, h);
+    sinew_depth_params dp;
+    sinew_depth_params_default(&dp);
+    sinew_depth_stats ds;
+    snprintf(what, sizeof what, "%s depth", tag);
+    must_ok(ctx, sinew_depth_convert(ctx, &dp, &cam, &raw, &s.d0, "d0", &ds), what);
+    assert_int_equal(ds.total, (size_t)w * h);
+    assert_int_equal(ds.valid + ds.invalid_code + ds.out_of_range, ds.total);
+    dp.kind = SINEW_DEPTH_RAY;
+    must_ok(ctx, sinew_depth_convert(ctx, &dp, &cam, &raw, &s.d1, "d1", &ds), what);
+    sinew_image_free(&raw);
+    if (with_nasty) /* float depth with every nasty value */
+        for (int i = 0; i < NNASTY && i < w * h; i++)
+            sinew_image_row_f32(&s.d1, i / w)[i % w] = nasty[(i + seed + 3) % NNASTY];
+    double med;
+    must_ok(ctx, sinew_depth_median(ctx, &s.d1, &med, NULL), what);
+    assert_true(isnan(med) || isfinite(med));
+    make_frame(ctx, &s.l0, w, h, 1, SINEW_U16);
+    make_frame(ctx, &s.l1, w, h, 1, SINEW_U16);
+
+    /* matches with every optional input, in every sampling mode, then saved */
+    sinew_match_inputs mi = {&s.fwd, &s.mask, &s.conf, &s.l0, &s.l1, &s.d0, &s.d1, &cam,
+                             "fwd",  "mask",  "conf",  "l0",  "l1",  "d0",  "d1"};
+    sinew_matches keep;
+    memset(&keep, 0, sizeof keep);
+    for (int mode = 0; mode < 3; mode++)
+        for (int normals = 0; normals < 2; normals++) {
+            sinew_match_params mp;
+            sinew_match_params_default(&mp);
+            mp.sampling = (sinew_sampling)mode;
+            mp.normals = normals;
+            mp.edge_radius = 3;
+            mp.top_k = 3;
+            mp.cell = 1;
+            mp.stride = 1 + seed % 3;
+            mp.max_displacement = 1e-300;
+            sinew_matches m;
+            snprintf(what, sizeof what, "%s matches mode %d normals %d", tag, mode, normals);
+            mi.mask = mode == 0 ? NULL : &s.mask; /* also unmasked, so nasty flow gets in */
+            must_ok(ctx, sinew_matches_build(ctx, &mi, &mp, &m), what);
+            size_t sum = m.rows;
+            for (int r = 0; r < SINEW_REJECT_COUNT; r++)
+                sum += m.rejected[r];
+            assert_int_equal(sum, m.pixels);
+            for (size_t r = 0; r < m.rows * (size_t)m.cols; r++)
+                if (!isfinite(m.data[r]))
+                    fail_msg("%s: non-finite value %g in row %zu", what, m.data[r],
+                             r / (size_t)m.cols);
+            if (mode == 0 && normals == 1) {
+                keep = m;
+                continue;
+            }
+            sinew_matches_free(ctx, &m);
+        }
+    mi.mask = &s.mask;
+    /* and without depth, so the flow's own values are the table's */
+    mi.depth0 = mi.depth1 = NULL;
+    mi.camera = NULL;
+    sinew_matches m2;
+    sinew_match_params mp2;
+    sinew_match_params_default(&mp2);
+    mi.mask = NULL;
+    snprintf(what, sizeof what, "%s matches 2-D", tag);
+    must_ok(ctx, sinew_matches_build(ctx, &mi, &mp2, &m2), what);
+    for (size_t r = 0; r < m2.rows * (size_t)m2.cols; r++)
+        assert_true(isfinite(m2.data[r]));
+    sinew_matches_free(ctx, &m2);
+
+    draw_everything(ctx, &s, &keep, tag);
+    sinew_matches_free(ctx, &keep);
+
+    /* metrics with nasty values on either side */
+    sinew_flow_errors fe;
+    snprintf(what, sizeof what, "%s metrics", tag);
+    must_ok(ctx, sinew_flow_errors_compute(ctx, &fe, &s.fwd, &s.bwd, &s.mask, &s.ign), what);
+    for (int r = 0; r < SINEW_REGION_COUNT; r++) {
+        sinew_flow_summary sm;
+        sinew_flow_stats_summarize(&sm, &fe.region[r]);
+        assert_true(fe.region[r].n_valid <= fe.region[r].n_gt);
+        if (fe.region[r].n_valid > 0 && !(sm.epe >= 0))
+            fail_msg("%s: region %d EPE %g", what, r, sm.epe);
+    }
+    must_ok(ctx, sinew_flow_epe_map(ctx, &s.fb, &s.fwd, &s.bwd), what);
+    sinew_mask_scores ms;
+    must_ok(ctx, sinew_mask_scores_compute(ctx, &ms, &s.mask, &s.ign, NULL, 0), what);
+    assert_int_equal(ms.tp + ms.fp + ms.fn + ms.tn, (int64_t)w * h);
+
+    /* every writer round-trips the tiny shape */
+    snprintf(what, sizeof what, "%s io", tag);
+    const char *flows[] = {"f.flo", "f.pfm", "f.npy"};
+    int has_inf = 0, has_huge = 0; /* .flo refuses finite components above 1e9 */
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < 2 * w; x++) {
+            float c = sinew_image_row_f32(&s.fwd, y)[x];
+            has_inf |= isinf(c);
+            has_huge |= isfinite(c) && fabsf(c) > 1e9f;
+        }
+    for (int i = 0; i < 3; i++) {
+        sinew_image back;
+        tu_path(p, sizeof p, dir, flows[i]);
+        int rc = sinew_flow_write(ctx, p, &s.fwd, SINEW_FLOW_AUTO);
+        if (has_inf || (i == 0 && has_huge)) { /* documented refusals, before writing */
+            must_fail_naming(ctx, rc, what, p);
+            assert_false(tu_file_exists(p));
+            continue;
+        }
+        must_ok(ctx, rc, what);
+        must_ok(ctx, sinew_flow_read(ctx, &back, p, SINEW_FLOW_AUTO), what);
+        assert_true(sinew_image_same_shape(&back, &s.fwd));
+        sinew_image_free(&back);
+        remove(p);
+    }
+    sinew_image back;
+    must_ok(ctx, sinew_image_write_png(ctx, tu_path(p, sizeof p, dir, "f0.png"), &s.f0), what);
+    must_ok(ctx, sinew_image_read(ctx, &back, p), what);
+    assert_true(sinew_image_same_shape(&back, &s.f0));
+    sinew_image_free(&back);
+    must_ok(ctx, sinew_pfm_write_image(ctx, tu_path(p, sizeof p, dir, "d.pfm"), &s.d1), what);
+    must_ok(ctx, sinew_pfm_read_image(ctx, &back, p), what);
+    sinew_image_free(&back);
+    must_ok(ctx, sinew_npy_write_image(ctx, tu_path(p, sizeof p, dir, "d.npy"), &s.d1, 0), what);
+    must_ok(ctx, sinew_npy_read_image(ctx, &back, p), what);
+    assert_int_equal(back.width, w);
+    assert_int_equal(back.height, h);
+    sinew_image_free(&back);
+    stage_set_free(&s);
+}
+
+static void test_hostile_tiny_shapes_every_stage(void **state)
+{
+    tu_fixture *f = *state;
+    for (int i = 0; i < NSHAPES; i++)
+        for (int nasty_on = 0; nasty_on < 2; nasty_on++) {
+            /* serial and parallel both (tiny images: spare a loaded machine the
+             * thread start-ups on most runs) */
+            sinew_ctx_set_threads(f->ctx, nasty_on ? 1 : 2);
+            for (int seed = 0; seed < (nasty_on ? 4 : 1); seed++)
+                run_stages(f->ctx, f->dir, shapes[i][0], shapes[i][1], nasty_on, seed);
+        }
+}
+
+/* Every nasty value as a uniform flow: no crash, documented results. */
+static void test_hostile_uniform_nasty_flow(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    for (int i = 0; i < NNASTY; i++) {
+        char what[80];
+        snprintf(what, sizeof what, "uniform flow %g", (double)nasty[i]);
+        sinew_image fw, bw, fb, mask, conf, pic;
+        assert_int_equal(sinew_image_alloc(ctx, &fw, 5, 4, 2, SINEW_F32), SINEW_OK);
+        assert_int_equal(sinew_image_alloc(ctx, &bw, 5, 4, 2, SINEW_F32), SINEW_OK);
+        assert_int_equal(sinew_image_alloc(ctx, &fb, 5, 4, 1, SINEW_F32), SINEW_OK);
+        assert_int_equal(sinew_image_alloc(ctx, &mask, 5, 4, 1, SINEW_U8), SINEW_OK);
+        assert_int_equal(sinew_image_alloc(ctx, &conf, 5, 4, 1, SINEW_F32), SINEW_OK);
+        fill_f32(&fw, nasty[i]);
+        fill_f32(&bw, -nasty[i]);
+        sinew_check_input in = {&fw, &bw, NULL, NULL, NULL};
+        sinew_check_output out = {&fb, &mask, &conf, {0}};
+        must_ok(ctx, sinew_check_run(ctx, &out, &in, NULL), what);
+        for (int y = 0; y < 4; y++)
+            for (int x = 0; x < 5; x++) {
+                float c = sinew_image_row_f32(&conf, y)[x];
+                assert_true(c >= 0 && c <= 1);
+                if (!isfinite(nasty[i])) /* documented: unknown flow -> UNKNOWN bit */
+                    assert_true(sinew_image_row_u8(&mask, y)[x] & SINEW_MASK_UNKNOWN);
+            }
+        double mx;
+        must_ok(ctx, sinew_flow_max_magnitude(ctx, &fw, &mx), what);
+        assert_true(isfinite(mx) || isinf(mx));
+        must_ok(ctx, sinew_draw_flow(ctx, &pic, &fw, 0, 1), what);
+        sinew_image_free(&pic);
+        must_ok(ctx, sinew_draw_arrows(ctx, &pic, NULL, &fw, 2, 1, 1), what);
+        sinew_image_free(&pic);
+        sinew_flow_errors fe;
+        must_ok(ctx, sinew_flow_errors_compute(ctx, &fe, &fw, &bw, NULL, NULL), what);
+        if (!isfinite(nasty[i])) /* documented: non-finite = unknown, not scored */
+            assert_int_equal(fe.region[0].n_gt, 0);
+        sinew_match_inputs mi = {.flow = &fw, .confidence = &conf};
+        sinew_matches m;
+        must_ok(ctx, sinew_matches_build(ctx, &mi, NULL, &m), what);
+        for (size_t r = 0; r < m.rows * (size_t)m.cols; r++)
+            assert_true(isfinite(m.data[r]));
+        sinew_matches_free(ctx, &m);
+        sinew_image *all[] = {&fw, &bw, &fb, &mask, &conf};
+        for (int k = 0; k < 5; k++)
+            sinew_image_free(all[k]);
+    }
+}
+
+/* Colour and line primitives with non-finite and huge coordinates. */
+static void test_hostile_draw_primitives(void **state)
+{
+    tu_fixture *f = *state;
+    uint8_t rgb[3];
+    for (int i = 0; i < NNASTY; i++)
+        for (int j = 0; j < NNASTY; j++) {
+            sinew_wheel_colour(nasty[i], nasty[j], rgb);
+            sinew_colourmap(nasty[i], rgb);
+        }
+    sinew_image img;
+    assert_int_equal(sinew_image_alloc(f->ctx, &img, 1, 1, 3, SINEW_U8), SINEW_OK);
+    const uint8_t c[3] = {255, 0, 0};
+    for (int i = 0; i < NNASTY; i++)
+        for (int j = 0; j < NNASTY; j++) {
+            sinew_image_draw_line(&img, nasty[i], 0, nasty[j], 0.2, c);
+            sinew_image_draw_arrow(&img, 0, nasty[i], 0.3, nasty[j], c);
+            sinew_image_draw_line(&img, -1e300, -1e300, 1e300, 1e300, c);
+            sinew_image_draw_line(&img, -DBL_MAX, 0.5, DBL_MAX, 0.5, c);
+            sinew_image_draw_arrow(&img, DBL_MAX, -DBL_MAX, -DBL_MAX, DBL_MAX, c);
+        }
+    sinew_image_draw_text(&img, -5, -5, 1, "A-Z", c);
+    sinew_image_draw_text(&img, 2147483000, 2147483000, 3, "AB", c);
+    sinew_image_draw_text(&img, -2147483000, 0, 1, "AB", c);
+    sinew_image_free(&img);
+    sinew_image pic;
+    must_fail(f->ctx, sinew_draw_wheel(f->ctx, &pic, 0), "wheel size 0");
+    must_fail(f->ctx, sinew_draw_wheel(f->ctx, &pic, -5), "wheel size -5");
+    must_fail(f->ctx, sinew_draw_wheel(f->ctx, &pic, 1 << 30), "wheel size 2^30");
+    must_ok(f->ctx, sinew_draw_wheel(f->ctx, &pic, 16), "wheel size 16");
+    sinew_image_free(&pic);
+}
+
+/* ---- hostile parameters ---- */
+
+static void test_hostile_check_parameters(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_image fw, bw, f0small;
+    make_flow(ctx, &fw, 4, 3, 0, 0);
+    make_flow(ctx, &bw, 4, 3, 0, 1);
+    sinew_check_output out = {NULL, NULL, NULL, {0}};
+    sinew_check_input in = {&fw, &bw, NULL, NULL, NULL};
+    const double bad[] = {NAN, INFINITY, -INFINITY, -1, -1e-300};
+    for (int b = 0; b < 5; b++)
+        for (int field = 0; field < 13; field++) {
+            sinew_check_params p;
+            sinew_check_params_default(&p);
+            double *fields[] = {&p.fb_alpha,           &p.fb_beta,
+                                &p.boundary_alpha,     &p.boundary_beta,
+                                &p.photo_threshold,    &p.saturation_level,
+                                &p.conf_fb_alpha,      &p.conf_fb_beta,
+                                &p.conf_fb_weight,     &p.conf_photo_scale,
+                                &p.conf_texture_scale, &p.conf_boundary_scale,
+                                &p.conf_saturated};
+            *fields[field] = bad[b];
+            must_fail(ctx, sinew_check_run(ctx, &out, &in, &p), "hostile check parameter");
+        }
+    sinew_check_params p;
+    sinew_check_params_default(&p);
+    p.texture_radius = -1;
+    must_fail(ctx, sinew_check_run(ctx, &out, &in, &p), "texture radius -1");
+    p.texture_radius = 65; /* documented limit 0..64 */
+    must_fail(ctx, sinew_check_run(ctx, &out, &in, &p), "texture radius 65");
+    /* the largest radius on a 4x3 image is fine (the window is clipped) */
+    p.texture_radius = 64;
+    make_frame(ctx, &f0small, 4, 3, 1, SINEW_U8);
+    in.frame0 = in.frame1 = &f0small;
+    must_ok(ctx, sinew_check_run(ctx, &out, &in, &p), "texture radius 64");
+    sinew_image_free(&f0small);
+    sinew_image_free(&fw);
+    sinew_image_free(&bw);
+}
+
+static void test_hostile_match_parameters(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_image fw;
+    make_flow(ctx, &fw, 4, 3, 0, 0);
+    sinew_match_inputs mi = {.flow = &fw};
+    sinew_matches m;
+    for (int k = 0; k < 10; k++) {
+        sinew_match_params p;
+        sinew_match_params_default(&p);
+        switch (k) {
+        case 0:
+            p.sampling = SINEW_SAMPLE_STRIDE, p.stride = 0;
+            break;
+        case 1:
+            p.sampling = SINEW_SAMPLE_STRIDE, p.stride = -3;
+            break;
+        case 2:
+            p.sampling = SINEW_SAMPLE_TOP_K, p.top_k = 0;
+            break;
+        case 3:
+            p.sampling = SINEW_SAMPLE_TOP_K, p.cell = 0;
+            break;
+        case 4:
+            p.min_weight = NAN;
+            break;
+        case 5:
+            p.edge_rel = -1;
+            break;
+        case 6:
+            p.edge_radius = -1;
+            break;
+        case 9:
+            p.edge_radius = 17;
+            break;
+        case 7:
+            p.max_displacement = NAN;
+            break;
+        case 8:
+            p.sampling = (sinew_sampling)77;
+            break;
+        }
+        char what[40];
+        snprintf(what, sizeof what, "match parameter case %d", k);
+        must_fail(ctx, sinew_matches_build(ctx, &mi, &p, &m), what);
+    }
+    /* huge but valid ones are fine */
+    sinew_match_params p;
+    sinew_match_params_default(&p);
+    p.sampling = SINEW_SAMPLE_TOP_K;
+    p.top_k = SIZE_MAX;
+    p.cell = 1 << 30;
+    p.edge_radius = 16; /* documented limit 0..16 */
+    sinew_matches all;
+    must_ok(ctx, sinew_matches_build(ctx, &mi, NULL, &all), "defaults");
+    must_ok(ctx, sinew_matches_build(ctx, &mi, &p, &m), "top_k SIZE_MAX");
+    assert_int_equal(m.rows, all.rows);
+    sinew_matches_free(ctx, &m);
+    sinew_matches_free(ctx, &all);
+    p.sampling = SINEW_SAMPLE_STRIDE;
+    p.stride = 1 << 30;
+    must_ok(ctx, sinew_matches_build(ctx, &mi, &p, &m), "stride 2^30");
+    assert_true(m.rows <= 1); /* only pixel (0, 0) is on the grid */
+    sinew_matches_free(ctx, &m);
+    sinew_image_free(&fw);
+}
+
+static void test_hostile_draw_parameters(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_image fw, map, pic;
+    make_flow(ctx, &fw, 4, 3, 1, 2);
+    assert_int_equal(sinew_image_alloc(ctx, &map, 4, 3, 1, SINEW_F32), SINEW_OK);
+    const double vals[] = {NAN, INFINITY, -INFINITY, 0, -1, 1e-320, 1e300};
+    for (int i = 0; i < 7; i++) {
+        /* max_mag and heatmap ranges: either refused or drawn, never UB */
+        int rc = sinew_draw_flow(ctx, &pic, &fw, vals[i], 1);
+        if (rc)
+            must_fail(ctx, rc, "draw flow max_mag");
+        sinew_image_free(&pic);
+        for (int j = 0; j < 7; j++) {
+            rc = sinew_draw_heatmap(ctx, &pic, &map, vals[i], vals[j], "X", 1);
+            if (rc)
+                must_fail(ctx, rc, "heatmap range");
+            sinew_image_free(&pic);
+        }
+        rc = sinew_draw_arrows(ctx, &pic, NULL, &fw, 4, vals[i], 1);
+        if (rc)
+            must_fail(ctx, rc, "arrow scale");
+        else
+            assert_true(vals[i] > 0 && isfinite(vals[i]));
+        sinew_image_free(&pic);
+        rc = sinew_draw_epe(ctx, &pic, &fw, &fw, vals[i], 0);
+        if (rc)
+            must_fail(ctx, rc, "epe max");
+        sinew_image_free(&pic);
+    }
+    must_fail(ctx, sinew_draw_arrows(ctx, &pic, NULL, &fw, 1, 1, 0), "arrow step 1");
+    must_fail(ctx, sinew_draw_arrows(ctx, &pic, NULL, &fw, -2, 1, 0), "arrow step -2");
+    /* a match table with nasty coordinates and weights, and out-of-range columns */
+    float rows[NNASTY][5];
+    for (int i = 0; i < NNASTY; i++)
+        for (int k = 0; k < 5; k++)
+            rows[i][k] = nasty[(i + k) % NNASTY];
+    sinew_image f0, f1;
+    make_frame(ctx, &f0, 1, 1, 1, SINEW_U8);
+    make_frame(ctx, &f1, 7, 2, 3, SINEW_U16);
+    sinew_match_table t = {&rows[0][0], NNASTY, 5, 0, 1, 2, 3, 4};
+    must_ok(ctx, sinew_draw_matches(ctx, &pic, &f0, &f1, &t, 1000, 1), "nasty match table");
+    sinew_image_free(&pic);
+    t.weight = -1;
+    must_ok(ctx, sinew_draw_matches(ctx, &pic, &f1, &f0, &t, 1, 1), "no weight column");
+    sinew_image_free(&pic);
+    t.u1 = 5;
+    must_fail(ctx, sinew_draw_matches(ctx, &pic, &f0, &f1, &t, 3, 0), "column beyond cols");
+    t.u1 = -2;
+    must_fail(ctx, sinew_draw_matches(ctx, &pic, &f0, &f1, &t, 3, 0), "negative column");
+    t.u1 = 2;
+    must_fail(ctx, sinew_draw_matches(ctx, &pic, &f0, &f1, &t, 0, 0), "count 0");
+    sinew_image_free(&f0);
+    sinew_image_free(&f1);
+    sinew_image_free(&fw);
+    sinew_image_free(&map);
+}
+
+static void test_hostile_sparsification(void **state)
+{
+    tu_fixture *f = *state;
+    float u[3] = {0.1f, 0.2f, 0.3f}, e[3] = {1, 2, 3};
+    double curve[4], oracle[4], ause;
+    for (int i = 0; i < NNASTY; i++) {
+        u[1] = nasty[i];
+        int rc = sinew_sparsification(f->ctx, u, e, 3, 4, curve, oracle, &ause);
+        if (isfinite(nasty[i])) {
+            must_ok(f->ctx, rc, "finite uncertainty");
+            assert_true(isfinite(ause));
+        } else {
+            assert_int_equal(rc, SINEW_EVALUE);
+            must_fail(f->ctx, rc, "non-finite uncertainty");
+        }
+        u[1] = 0.2f;
+        e[2] = nasty[i];
+        rc = sinew_sparsification(f->ctx, u, e, 3, 4, curve, oracle, &ause);
+        if (!isfinite(nasty[i]))
+            must_fail(f->ctx, rc, "non-finite error");
+        else if (rc)
+            must_fail(f->ctx, rc, "finite error");
+        e[2] = 3;
+    }
+    must_ok(f->ctx, sinew_sparsification(f->ctx, u, e, 1, 1, curve, oracle, &ause), "n = 1");
+    must_fail(f->ctx, sinew_sparsification(f->ctx, u, e, 0, 4, curve, oracle, &ause), "n = 0");
+    must_fail(f->ctx, sinew_sparsification(f->ctx, u, e, 3, 0, curve, oracle, &ause), "steps 0");
+    must_fail(f->ctx, sinew_sparsification(f->ctx, u, e, 3, -1, curve, oracle, &ause), "steps -1");
+    must_ok(f->ctx, sinew_sparsification(f->ctx, u, e, 3, 1000, NULL, NULL, &ause), "steps > n");
+}
+
+/* ---- depth and intrinsics ---- */
+
+static void test_hostile_depth_scale_and_range(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_image raw, z;
+    assert_int_equal(sinew_image_alloc(ctx, &raw, 3, 2, 1, SINEW_U16), SINEW_OK);
+    uint16_t codes[6] = {0, 65535, 1, 1000, 65534, 5000};
+    for (int i = 0; i < 6; i++)
+        sinew_image_row_u16(&raw, i / 3)[i % 3] = codes[i];
+    sinew_camera cam;
+    sinew_camera_init(&cam, 500, 500, 1, 0.5, 3, 2);
+    const double bad[] = {0, -1, NAN, INFINITY, -INFINITY, -0.0};
+    for (int i = 0; i < 6; i++) {
+        sinew_depth_params p;
+        sinew_depth_params_default(&p);
+        p.scale = bad[i];
+        char what[60];
+        snprintf(what, sizeof what, "depth scale %g", bad[i]);
+        int rc = sinew_depth_convert(ctx, &p, &cam, &raw, &z, "d.png", NULL);
+        must_fail_naming(ctx, rc, what, "d.png");
+        assert_null(z.data);
+    }
+    for (int k = 0; k < 5; k++) {
+        sinew_depth_params p;
+        sinew_depth_params_default(&p);
+        switch (k) {
+        case 0:
+            p.near = NAN;
+            break;
+        case 1:
+            p.far = NAN;
+            break;
+        case 2:
+            p.near = 2, p.far = 1;
+            break;
+        case 3:
+            p.near = -INFINITY;
+            break;
+        case 4:
+            p.kind = SINEW_DEPTH_DISPARITY, p.baseline = 0;
+            break;
+        }
+        char what[60];
+        snprintf(what, sizeof what, "depth params case %d", k);
+        must_fail(ctx, sinew_depth_convert(ctx, &p, &cam, &raw, &z, "d.png", NULL), what);
+    }
+    /* documented: codes 0 and 65535 are invalid (NaN), the rest scale by 1/1000 */
+    sinew_depth_params p;
+    sinew_depth_params_default(&p);
+    sinew_depth_stats st;
+    must_ok(ctx, sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", &st), "depth codes");
+    assert_true(isnan(sinew_image_row_f32(&z, 0)[0]));
+    assert_true(isnan(sinew_image_row_f32(&z, 0)[1]));
+    assert_near(sinew_image_row_f32(&z, 1)[1], 65.534, 1e-5);
+    assert_int_equal(st.invalid_code, 2);
+    sinew_image_free(&z);
+    /* the ray and disparity kinds need a camera; a hostile camera is refused */
+    sinew_camera badcam = cam;
+    badcam.fx = 0;
+    p.kind = SINEW_DEPTH_RAY;
+    must_fail(ctx, sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), "ray, no camera");
+    must_fail(ctx, sinew_depth_convert(ctx, &p, &badcam, &raw, &z, "d.png", NULL), "ray, fx 0");
+    badcam.fx = NAN;
+    must_fail(ctx, sinew_depth_convert(ctx, &p, &badcam, &raw, &z, "d.png", NULL), "ray, fx NaN");
+    sinew_image_free(&raw);
+    /* float depth: NaN, Inf, negative, zero, denormal -> invalid or documented */
+    sinew_image fz;
+    assert_int_equal(sinew_image_alloc(ctx, &fz, NNASTY, 1, 1, SINEW_F32), SINEW_OK);
+    for (int i = 0; i < NNASTY; i++)
+        sinew_image_row_f32(&fz, 0)[i] = nasty[i];
+    p.kind = SINEW_DEPTH_Z;
+    must_ok(ctx, sinew_depth_convert(ctx, &p, NULL, &fz, &z, "d.pfm", &st), "float depth");
+    for (int i = 0; i < NNASTY; i++) {
+        float v = sinew_image_row_f32(&z, 0)[i];
+        if (!(nasty[i] > 0) || !isfinite(nasty[i]))
+            assert_true(isnan(v));
+        else
+            assert_true(v == nasty[i]);
+    }
+    sinew_image_free(&z);
+    p.kind = SINEW_DEPTH_DISPARITY;
+    p.baseline = 0.1;
+    sinew_camera_init(&cam, 500, 500, 6, 0, NNASTY, 1);
+    must_ok(ctx, sinew_depth_convert(ctx, &p, &cam, &fz, &z, "d.pfm", &st), "float disparity");
+    for (int i = 0; i < NNASTY; i++) {
+        float v = sinew_image_row_f32(&z, 0)[i];
+        assert_true(isnan(v) || (v > 0 && isfinite(v)));
+    }
+    sinew_image_free(&z);
+    sinew_image_free(&fz);
+    /* 8-bit depth is refused */
+    sinew_image u8;
+    make_frame(ctx, &u8, 2, 2, 1, SINEW_U8);
+    sinew_depth_params_default(&p);
+    must_fail(ctx, sinew_depth_convert(ctx, &p, NULL, &u8, &z, "d8.png", NULL), "8-bit depth");
+    sinew_image_free(&u8);
+}
+
+static void test_hostile_intrinsics(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    const double bad[] = {0, -1, NAN, INFINITY, -INFINITY, -0.0};
+    for (int i = 0; i < 6; i++)
+        for (int field = 0; field < 4; field++) {
+            sinew_camera cam;
+            sinew_camera_init(&cam, 500, 500, 320, 240, 640, 480);
+            double *fields[] = {&cam.fx, &cam.fy, &cam.cx, &cam.cy};
+            *fields[field] = bad[i];
+            int rc = sinew_camera_check(ctx, &cam, "K.json");
+            if (field >= 2 && isfinite(bad[i])) { /* a principal point at 0 or -1 is legal */
+                must_ok(ctx, rc, "principal point");
+                continue;
+            }
+            must_fail_naming(ctx, rc, "hostile intrinsics", "K.json");
+        }
+    sinew_camera cam;
+    sinew_camera_init(&cam, 500, 500, 320, 240, -640, 480);
+    must_fail(ctx, sinew_camera_check(ctx, &cam, "K"), "negative width");
+    sinew_camera_init(&cam, 500, 500, 320, 240, 640, 0);
+    must_fail(ctx, sinew_camera_check(ctx, &cam, "K"), "width without height");
+    sinew_camera_init(&cam, 500, 500, 320, 240, 640, 480);
+    cam.k1 = NAN;
+    must_fail(ctx, sinew_camera_check(ctx, &cam, "K"), "NaN distortion");
+    cam.k1 = 1e9;
+    must_fail(ctx, sinew_camera_check(ctx, &cam, "K"), "huge distortion");
+
+    /* text forms */
+    const char *texts[] = {"0,0,0,0",
+                           "-500,500,320,240",
+                           "nan,500,320,240",
+                           "inf,500,1,1",
+                           "1e400,500,1,1",
+                           "500,500,320,240,-640,480",
+                           "500,500,320",
+                           "500,500,320,240,1",
+                           "500 500 320 240 640 480 1",
+                           ""};
+    for (size_t i = 0; i < sizeof texts / sizeof texts[0]; i++) {
+        char what[80];
+        snprintf(what, sizeof what, "intrinsics text '%s'", texts[i]);
+        must_fail(ctx, sinew_camera_parse(ctx, &cam, texts[i], "--intrinsics"), what);
+    }
+    /* files */
+    const char *files[] = {
+        "{\"fx\": 0, \"fy\": 500, \"cx\": 1, \"cy\": 1}",
+        "{\"fx\": -5, \"fy\": 500, \"cx\": 1, \"cy\": 1}",
+        "{\"fx\": 1e400, \"fy\": 500, \"cx\": 1, \"cy\": 1}",
+        "{\"fx\": \"NaN\", \"fy\": 500, \"cx\": 1, \"cy\": 1}",
+        "{\"fx\": 500, \"fy\": 500, \"cx\": 1, \"cy\": 1, \"width\": 1e12, \"height\": 5}",
+        "{\"fx\": 500, \"fy\": 500, \"cx\": 1, \"cy\": 1, \"width\": 2.5, \"height\": 5}",
+        "{\"fx\": 500, \"fy\": 500, \"cx\": 1, \"cy\": 1, \"width\": -640, \"height\": -480}",
+        "{\"fx\": 500, \"fy\": 500, \"cx\": 1}",
+        "{\"fx\": 500, \"fx\": 500, \"fy\": 500, \"cx\": 1, \"cy\": 1, \"cy\": 2}",
+        "0 0 0\n0 0 0\n0 0 1\n",
+        "nan 0 1\n0 1 1\n0 0 1\n",
+        "500 0 1\n0 -500 1\n0 0 1\n",
+        "500 0 1\n0 500 1\n0 0 0\n",
+        "500 0 1\n0 500 1\n0 0\n",
+        "[",
+        "{}",
+        "",
+    };
+    for (size_t i = 0; i < sizeof files / sizeof files[0]; i++) {
+        const char *p = tu_fixture_path(f, "K.txt");
+        tu_write_bytes(p, files[i], strlen(files[i]));
+        char what[120];
+        snprintf(what, sizeof what, "intrinsics file '%s'", files[i]);
+        must_fail_naming(ctx, sinew_camera_load(ctx, &cam, p), what, "K.txt");
+    }
+    /* rescaling: a zero or negative target size, and an unknown calibration size */
+    sinew_camera out;
+    sinew_camera_init(&cam, 500, 500, 320, 240, 640, 480);
+    must_fail(ctx, sinew_camera_fit(ctx, &cam, 0, 0, &out, "K"), "fit to 0x0");
+    must_fail(ctx, sinew_camera_fit(ctx, &cam, -640, -480, &out, "K"), "fit to negative");
+    must_fail(ctx, sinew_camera_fit(ctx, &cam, 1, 1, &out, "K"), "fit 4:3 to 1:1");
+    must_ok(ctx, sinew_camera_fit(ctx, &cam, 4, 3, &out, "K"), "fit to 4x3");
+    sinew_camera_init(&cam, 500, 500, 320, 240, 0, 0);
+    must_ok(ctx, sinew_camera_fit(ctx, &cam, 1, 1, &out, "K"), "unknown size fits anything");
+    double px;
+    long fails;
+    must_ok(ctx, sinew_camera_roundtrip_error(ctx, &out, 1, 1, 1, &px, &fails), "roundtrip 1x1");
+    must_fail(ctx, sinew_camera_roundtrip_error(ctx, &out, 1, 1, 0, &px, &fails), "step 0");
+    /* projection and unprojection of hostile points */
+    double X[3], u = 7, v = 7;
+    for (int i = 0; i < NNASTY; i++) {
+        X[0] = nasty[i];
+        X[1] = 1;
+        X[2] = nasty[(i + 3) % NNASTY];
+        int ok = sinew_camera_project(&out, X, &u, &v);
+        if (ok)
+            assert_true(isfinite(u) && isfinite(v));
+        sinew_camera_unproject(&out, nasty[i], 0, 1, X);
+    }
+    /* matches with a hostile camera are refused, not computed */
+    sinew_image fw, d;
+    make_flow(ctx, &fw, 3, 3, 0, 0);
+    assert_int_equal(sinew_image_alloc(ctx, &d, 3, 3, 1, SINEW_F32), SINEW_OK);
+    fill_f32(&d, 1);
+    sinew_camera_init(&cam, 0, 500, 1, 1, 3, 3);
+    sinew_match_inputs mi = {.flow = &fw, .depth0 = &d, .depth1 = &d, .camera = &cam};
+    sinew_matches m;
+    must_fail(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "matches with fx 0");
+    cam.fx = NAN;
+    must_fail(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "matches with fx NaN");
+    mi.camera = NULL;
+    must_fail(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "depth without camera");
+    sinew_image_free(&fw);
+    sinew_image_free(&d);
+}
+
+/* ---- sizes that disagree ---- */
+
+static void test_hostile_mismatched_sizes(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_image a, b, t, fr, fr2, m1, pic;
+    make_flow(ctx, &a, 5, 4, 0, 0);
+    make_flow(ctx, &b, 4, 5, 0, 0);
+    make_flow(ctx, &t, 5, 4, 0, 1);
+    make_frame(ctx, &fr, 5, 4, 3, SINEW_U8);
+    make_frame(ctx, &fr2, 5, 3, 3, SINEW_U8);
+    assert_int_equal(sinew_image_alloc(ctx, &m1, 4, 5, 1, SINEW_U8), SINEW_OK);
+    /* check: forward/backward sizes, frames of different sizes, frame vs flow */
+    sinew_check_output out = {NULL, NULL, NULL, {0}};
+    sinew_check_input in = {&a, &b, NULL, NULL, NULL};
+    must_fail(ctx, sinew_check_run(ctx, &out, &in, NULL), "fwd 5x4 bwd 4x5");
+    in = (sinew_check_input){&a, &t, &fr, &fr2, NULL};
+    int rc = sinew_check_run(ctx, &out, &in, NULL);
+    assert_int_equal(rc, SINEW_ESIZE);
+    must_fail(ctx, rc, "frames 5x4 and 5x3");
+    in = (sinew_check_input){&a, &t, &fr, NULL, NULL};
+    must_fail(ctx, sinew_check_run(ctx, &out, &in, NULL), "one frame only");
+    sinew_image wrong_out;
+    assert_int_equal(sinew_image_alloc(ctx, &wrong_out, 4, 5, 1, SINEW_F32), SINEW_OK);
+    out.confidence = &wrong_out;
+    in = (sinew_check_input){&a, &t, NULL, NULL, NULL};
+    must_fail(ctx, sinew_check_run(ctx, &out, &in, NULL), "output of the wrong size");
+    out.confidence = NULL;
+    /* a 2-channel image where a frame belongs, a flow that is not F32 */
+    in = (sinew_check_input){&a, &t, &a, &t, NULL};
+    must_fail(ctx, sinew_check_run(ctx, &out, &in, NULL), "flow as frame");
+    in = (sinew_check_input){&fr, &fr, NULL, NULL, NULL};
+    must_fail(ctx, sinew_check_run(ctx, &out, &in, NULL), "frame as flow");
+    /* matches */
+    sinew_match_inputs mi = {.flow = &a, .mask = &m1};
+    sinew_matches m;
+    must_fail(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "mask of another size");
+    /* metrics */
+    sinew_flow_errors fe;
+    must_fail(ctx, sinew_flow_errors_compute(ctx, &fe, &a, &b, NULL, NULL), "est 5x4 gt 4x5");
+    must_fail(ctx, sinew_flow_errors_compute(ctx, &fe, &a, &t, &m1, NULL), "occ of another size");
+    must_fail(ctx, sinew_flow_epe_map(ctx, &wrong_out, &a, &t), "epe map of another size");
+    /* draw */
+    must_fail(ctx, sinew_draw_arrows(ctx, &pic, &fr2, &a, 2, 1, 0), "arrows frame size");
+    must_fail(ctx, sinew_draw_epe(ctx, &pic, &a, &b, 0, 0), "epe sizes");
+    must_fail(ctx, sinew_draw_reasons(ctx, &pic, &fr, &m1, 0), "reasons frame size");
+    must_fail(ctx, sinew_draw_flow(ctx, &pic, &fr, 0, 0), "frame as flow (draw)");
+    /* documented: frames of different sizes side by side are fine for matches */
+    float row[5] = {0, 0, 4, 2, 1};
+    sinew_match_table tab = {row, 1, 5, 0, 1, 2, 3, 4};
+    must_ok(ctx, sinew_draw_matches(ctx, &pic, &fr, &fr2, &tab, 1, 1), "matches, frames differ");
+    assert_int_equal(pic.height >= 4, 1);
+    sinew_image_free(&pic);
+    sinew_image *all[] = {&a, &b, &t, &fr, &fr2, &m1, &wrong_out};
+    for (int i = 0; i < 7; i++)
+        sinew_image_free(all[i]);
+}
+
+/* ---- image shapes refused before allocation ---- */
+
+static void test_hostile_image_dimensions(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_image img;
+    const int dims[][2] = {{0, 1},
+                           {1, 0},
+                           {-1, 5},
+                           {5, -1},
+                           {INT32_MIN, 1},
+                           {65536, 65536},
+                           {INT32_MAX, INT32_MAX},
+                           {INT32_MAX, 1}};
+    for (size_t i = 0; i < sizeof dims / sizeof dims[0]; i++) {
+        char what[60];
+        snprintf(what, sizeof what, "image %d x %d", dims[i][0], dims[i][1]);
+        must_fail(ctx, sinew_image_alloc(ctx, &img, dims[i][0], dims[i][1], 4, SINEW_F32), what);
+        assert_null(img.data);
+    }
+    must_fail(ctx, sinew_image_alloc(ctx, &img, 2, 2, 0, SINEW_U8), "0 channels");
+    must_fail(ctx, sinew_image_alloc(ctx, &img, 2, 2, 5, SINEW_U8), "5 channels");
+    must_fail(ctx, sinew_image_alloc(ctx, &img, 2, 2, 1, (sinew_type)3), "type 3");
+    /* the pixel limit is configurable and applies to every allocation */
+    assert_int_equal(sinew_ctx_set_max_pixels(ctx, 100), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &img, 10, 10, 1, SINEW_U8), SINEW_OK);
+    sinew_image_free(&img);
+    assert_int_equal(sinew_image_alloc(ctx, &img, 101, 1, 1, SINEW_U8), SINEW_ELIMIT);
+    must_fail(ctx, SINEW_ELIMIT, "pixel limit");
+    assert_int_equal(sinew_image_alloc(ctx, &img, 1, 101, 1, SINEW_U8), SINEW_ELIMIT);
+    assert_int_equal(sinew_ctx_set_max_pixels(ctx, 0), SINEW_EINVAL);
+    assert_int_equal(sinew_ctx_set_max_pixels(ctx, -5), SINEW_EINVAL);
+}
+
+/* A missing required pointer is a programming error: EINVAL (a message is optional
+ * here, the command line never passes NULL), never a crash. */
+static void null_fails(sinew_ctx *ctx, int rc, const char *what)
+{
+    if (rc != SINEW_EINVAL)
+        fail_msg("%s: status %d, expected EINVAL", what, rc);
+    sinew_ctx_clear(ctx);
+}
+
+/* NULL everywhere a pointer is required: EINVAL, no crash. */
+static void test_hostile_null_arguments(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_image img, pic;
+    make_flow(ctx, &img, 2, 2, 0, 0);
+    sinew_check_output out = {NULL, NULL, NULL, {0}};
+    sinew_check_input in = {&img, NULL, NULL, NULL, NULL};
+    null_fails(ctx, sinew_check_run(ctx, &out, &in, NULL), "check without backward");
+    null_fails(ctx, sinew_check_run(ctx, &out, NULL, NULL), "check NULL input");
+    null_fails(ctx, sinew_check_run(ctx, NULL, &in, NULL), "check NULL output");
+    sinew_matches m;
+    sinew_match_inputs mi = {0};
+    null_fails(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "matches without flow");
+    null_fails(ctx, sinew_matches_build(ctx, NULL, NULL, &m), "matches NULL inputs");
+    null_fails(ctx, sinew_draw_flow(ctx, &pic, NULL, 0, 0), "draw NULL flow");
+    null_fails(ctx, sinew_draw_heatmap(ctx, &pic, NULL, 0, 0, NULL, 0), "heatmap NULL");
+    sinew_flow_errors fe;
+    null_fails(ctx, sinew_flow_errors_compute(ctx, &fe, &img, NULL, NULL, NULL), "metrics NULL gt");
+    null_fails(ctx, sinew_sparsification(ctx, NULL, NULL, 3, 2, NULL, NULL, NULL), "spars NULL");
+    sinew_camera cam;
+    null_fails(ctx, sinew_camera_parse(ctx, &cam, NULL, "K"), "camera parse NULL");
+    null_fails(ctx, sinew_camera_load(ctx, &cam, NULL), "camera load NULL");
+    null_fails(ctx, sinew_image_read(ctx, &pic, NULL), "image read NULL");
+    null_fails(ctx, sinew_flow_read(ctx, &pic, NULL, SINEW_FLOW_AUTO), "flow read NULL");
+    null_fails(ctx, sinew_flow_write(ctx, NULL, &img, SINEW_FLOW_AUTO), "flow write NULL");
+    null_fails(ctx, sinew_flow_write(ctx, tu_fixture_path(f, "x.flo"), NULL, SINEW_FLOW_AUTO),
+               "flow write NULL image");
+    sinew_image_free(&img);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test_setup_teardown(test_hostile_tiny_shapes_every_stage, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_uniform_nasty_flow, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_draw_primitives, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_check_parameters, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_match_parameters, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_draw_parameters, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_sparsification, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_depth_scale_and_range, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_intrinsics, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_mismatched_sizes, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_image_dimensions, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_null_arguments, tu_fixture_setup,
+                                        tu_fixture_teardown),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}

@@ -160,6 +160,9 @@ int sinew_sequence_add_frame(sinew_sequence *seq, const sinew_seq_frame *frame)
     if (!seq || !frame)
         return SINEW_EINVAL;
     sinew_ctx *ctx = seq->ctx_;
+    if (seq->n_frames >= SINEW_SEQUENCE_MAX_FRAMES)
+        return sinew__fail(ctx, SINEW_ELIMIT, "sequence: more than %d frames",
+                           SINEW_SEQUENCE_MAX_FRAMES);
     int st = grow(ctx, (void **)&seq->frames, &seq->cap_frames_, seq->n_frames, sizeof *frame);
     if (st)
         return st;
@@ -179,6 +182,9 @@ int sinew_sequence_add_pair(sinew_sequence *seq, const sinew_seq_pair *pair)
     if (!seq || !pair)
         return SINEW_EINVAL;
     sinew_ctx *ctx = seq->ctx_;
+    if (seq->n_pairs >= SINEW_SEQUENCE_MAX_PAIRS)
+        return sinew__fail(ctx, SINEW_ELIMIT, "sequence: more than %d pairs",
+                           SINEW_SEQUENCE_MAX_PAIRS);
     int st = grow(ctx, (void **)&seq->pairs, &seq->cap_pairs_, seq->n_pairs, sizeof *pair);
     if (st)
         return st;
@@ -382,6 +388,17 @@ static int get_int(reader *r, const cJSON *obj, const char *path, const char *na
     return SINEW_OK;
 }
 
+/* Refuse arrays longer than `max` before building anything from them. */
+static int check_count(reader *r, const cJSON *arr, const char *name, size_t max)
+{
+    size_t n = 0;
+    for (const cJSON *c = arr->child; c; c = c->next)
+        if (++n > max)
+            return sinew__fail(r->ctx, SINEW_ELIMIT, "%s: %s: more than %zu entries", r->where,
+                               name, max);
+    return SINEW_OK;
+}
+
 static const cJSON *get_typed(reader *r, const cJSON *obj, const char *path, const char *name,
                               int required, int want_array, int *st)
 {
@@ -545,12 +562,16 @@ static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
     const cJSON *frames = get_typed(r, root, "", "frames", 1, 1, &st);
     if (st)
         return st;
+    if ((st = check_count(r, frames, "frames", SINEW_SEQUENCE_MAX_FRAMES)))
+        return st;
     size_t i = 0;
     for (const cJSON *c = frames->child; c; c = c->next, i++)
         if ((st = read_frame(r, seq, c, i)))
             return st;
     const cJSON *pairs = get_typed(r, root, "", "pairs", 0, 1, &st);
     if (st)
+        return st;
+    if (pairs && (st = check_count(r, pairs, "pairs", SINEW_SEQUENCE_MAX_PAIRS)))
         return st;
     i = 0;
     if (pairs)

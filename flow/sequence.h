@@ -21,6 +21,11 @@ extern "C" {
 /* Highest schema version this build reads and the version it writes. */
 #define SINEW_SEQUENCE_VERSION 1
 
+/* Limits, checked before the entries are built (ELIMIT): frames and ground-truth pairs
+ * in one sequence (the same frame limit as runs, SINEW_RUN_MAX_FRAMES). */
+#define SINEW_SEQUENCE_MAX_FRAMES 1000000
+#define SINEW_SEQUENCE_MAX_PAIRS 10000000
+
 /* One frame. Strings are owned by the sequence; NULL means absent. */
 typedef struct sinew_seq_frame {
     char *color;      /* colour image (required) */

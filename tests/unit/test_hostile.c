@@ -6,6 +6,7 @@
  * status (with a message) or the documented behaviour; the sanitizer build (make test
  * SANITIZE=1) turns any undefined behaviour on these paths into a failure.
  * docs/robustness.md lists what each stage does with such input. */
+#define _POSIX_C_SOURCE 200809L
 #include "tests/support/testutil.h"
 
 #include <float.h>
@@ -961,6 +962,297 @@ static void test_hostile_null_arguments(void **state)
     sinew_image_free(&img);
 }
 
+/* ---- limits checked before allocation ---- */
+
+/* An allocator that records the largest single request, so a test can prove a reader
+ * refused a hostile header without first allocating what it claims. */
+typedef struct peak_alloc {
+    size_t peak;
+} peak_alloc;
+
+static void *peak_alloc_fn(void *ud, size_t n)
+{
+    peak_alloc *pa = ud;
+    if (n > pa->peak)
+        pa->peak = n;
+    void *p = NULL;
+    return posix_memalign(&p, 64, n ? n : 1) ? NULL : p;
+}
+
+static void peak_free_fn(void *ud, void *p)
+{
+    (void)ud;
+    free(p);
+}
+
+static uint32_t crc32_of(const unsigned char *b, size_t n) /* PNG chunk CRC (ISO 3309) */
+{
+    uint32_t c = 0xFFFFFFFFu;
+    for (size_t i = 0; i < n; i++) {
+        c ^= b[i];
+        for (int k = 0; k < 8; k++)
+            c = (c >> 1) ^ (0xEDB88320u & (0u - (c & 1u)));
+    }
+    return c ^ 0xFFFFFFFFu;
+}
+
+static void put_be32(unsigned char *p, uint32_t v)
+{
+    p[0] = (unsigned char)(v >> 24), p[1] = (unsigned char)(v >> 16);
+    p[2] = (unsigned char)(v >> 8), p[3] = (unsigned char)v;
+}
+
+/* A PNG whose IHDR claims w x h (colour type ct, bit depth bd) followed by a few bytes
+ * of IDAT and IEND: the reader must refuse it from the header. */
+static void write_png_header(const char *path, uint32_t w, uint32_t h, int bd, int ct)
+{
+    unsigned char b[8 + 25 + 12 + 12 + 4] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1A, '\n'};
+    unsigned char *c = b + 8;
+    put_be32(c, 13);
+    memcpy(c + 4, "IHDR", 4);
+    put_be32(c + 8, w);
+    put_be32(c + 12, h);
+    c[16] = (unsigned char)bd, c[17] = (unsigned char)ct, c[18] = c[19] = c[20] = 0;
+    put_be32(c + 21, crc32_of(c + 4, 17));
+    c += 25;
+    put_be32(c, 4);
+    memcpy(c + 4, "IDAT\x78\x9c\x03\x00", 8);
+    put_be32(c + 12, crc32_of(c + 4, 8));
+    c += 16;
+    put_be32(c, 0);
+    memcpy(c + 4, "IEND", 4);
+    put_be32(c + 8, crc32_of(c + 4, 4));
+    tu_write_bytes(path, b, (size_t)(c + 12 - b));
+}
+
+typedef struct limit_case {
+    const char *name; /* file name (the extension picks the flow format) */
+    int reader;       /* 0 image, 1 flow (auto), 2 npy image, 3 pfm image, 4 camera */
+} limit_case;
+
+static int read_any(sinew_ctx *ctx, const char *path, int reader)
+{
+    sinew_image img;
+    sinew_camera cam;
+    int rc;
+    switch (reader) {
+    case 0:
+        rc = sinew_image_read(ctx, &img, path);
+        break;
+    case 1:
+        rc = sinew_flow_read(ctx, &img, path, SINEW_FLOW_AUTO);
+        break;
+    case 2:
+        rc = sinew_npy_read_image(ctx, &img, path);
+        break;
+    case 3:
+        rc = sinew_pfm_read_image(ctx, &img, path);
+        break;
+    default:
+        return sinew_camera_load(ctx, &cam, path);
+    }
+    if (rc == SINEW_OK)
+        sinew_image_free(&img);
+    return rc;
+}
+
+static void npy_with_shape(const char *path, const char *shape)
+{
+    char h[256];
+    int n = snprintf(h, sizeof h, "{'descr': '<f4', 'fortran_order': False, 'shape': %s, }", shape);
+    while ((10 + n + 1) % 64)
+        h[n++] = ' ';
+    h[n++] = '\n';
+    unsigned char b[400] = {0x93, 'N', 'U', 'M', 'P', 'Y', 1, 0};
+    b[8] = (unsigned char)(n & 255), b[9] = (unsigned char)(n >> 8);
+    memcpy(b + 10, h, (size_t)n);
+    tu_write_bytes(path, b, 10 + (size_t)n + 64); /* 64 zero bytes of "data" */
+}
+
+static void test_hostile_limits_before_allocation(void **state)
+{
+    tu_fixture *f = *state;
+    char p[700];
+    /* headers claiming 100000 x 100000 (10^10 pixels) or more */
+    write_png_header(tu_path(p, sizeof p, f->dir, "huge.png"), 100000, 100000, 8, 2);
+    write_png_header(tu_path(p, sizeof p, f->dir, "huge_kitti.png"), 100000, 100000, 16, 2);
+    write_png_header(tu_path(p, sizeof p, f->dir, "wide.png"), 0x7FFFFFFF, 1, 8, 0);
+    tu_write_bytes(tu_path(p, sizeof p, f->dir, "huge.pgm"), "P5\n100000 100000\n255\n", 21);
+    tu_write_bytes(tu_path(p, sizeof p, f->dir, "huge.ppm"), "P6 4294967297 3 65535\n", 22);
+    tu_write_bytes(tu_path(p, sizeof p, f->dir, "huge.pfm"), "PF\n100000 100000\n-1.0\n", 22);
+    tu_write_bytes(tu_path(p, sizeof p, f->dir, "hugep.pfm"), "Pf\n99999999999999999999 1\n-1\n",
+                   29);
+    unsigned char flo[12 + 64] = {'P', 'I', 'E', 'H', 0xA0, 0x86, 0x01, 0, 0xA0, 0x86, 0x01, 0};
+    tu_write_bytes(tu_path(p, sizeof p, f->dir, "huge.flo"), flo, sizeof flo);
+    npy_with_shape(tu_path(p, sizeof p, f->dir, "huge.npy"), "(100000, 100000, 2)");
+    npy_with_shape(tu_path(p, sizeof p, f->dir, "wrap.npy"), "(4294967296, 4294967296, 2)");
+    npy_with_shape(tu_path(p, sizeof p, f->dir, "wrap64.npy"), "(18446744073709551615, 2)");
+    npy_with_shape(tu_path(p, sizeof p, f->dir, "dims.npy"), "(1, 1, 1, 1, 1, 1, 1, 1, 1, 1)");
+    npy_with_shape(tu_path(p, sizeof p, f->dir, "digits.npy"),
+                   "(1000000000000000000000000000000000000000, 2)");
+    /* an .npy header length field of 65535 (the format's maximum), all spaces */
+    {
+        size_t n = 10 + 65535;
+        unsigned char *b = malloc(n);
+        assert_non_null(b);
+        memcpy(b, "\x93NUMPY\x01\x00\xff\xff", 10);
+        memset(b + 10, ' ', 65535);
+        tu_write_bytes(tu_path(p, sizeof p, f->dir, "longhdr.npy"), b, n);
+        free(b);
+    }
+    /* a JPEG whose frame header claims 65535 x 65535 */
+    if (tu_file_exists("tests/fuzz/corpus/jpeg/rgb.jpg")) {
+        FILE *fp = fopen("tests/fuzz/corpus/jpeg/rgb.jpg", "rb");
+        unsigned char b[65536];
+        size_t n = fread(b, 1, sizeof b, fp);
+        fclose(fp);
+        for (size_t i = 0; i + 9 < n; i++)
+            if (b[i] == 0xFF && b[i + 1] >= 0xC0 && b[i + 1] <= 0xC2) {
+                b[i + 5] = b[i + 6] = b[i + 7] = b[i + 8] = 0xFF;
+                break;
+            }
+        tu_write_bytes(tu_path(p, sizeof p, f->dir, "huge.jpg"), b, n);
+    }
+    const limit_case cases[] = {
+        {"huge.png", 0},    {"huge_kitti.png", 1}, {"wide.png", 0}, {"huge.pgm", 0},
+        {"huge.ppm", 0},    {"huge.pfm", 1},       {"huge.pfm", 3}, {"hugep.pfm", 3},
+        {"huge.flo", 1},    {"huge.npy", 1},       {"huge.npy", 2}, {"wrap.npy", 1},
+        {"wrap.npy", 2},    {"wrap64.npy", 2},     {"dims.npy", 2}, {"digits.npy", 2},
+        {"longhdr.npy", 2}, {"huge.jpg", 0},
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        tu_path(p, sizeof p, f->dir, cases[i].name);
+        if (!tu_file_exists(p))
+            continue;
+        peak_alloc pa = {0};
+        sinew_allocator a = {peak_alloc_fn, peak_free_fn, &pa};
+        sinew_ctx *ctx = sinew_ctx_new_with(&a);
+        assert_non_null(ctx);
+        pa.peak = 0;
+        int rc = read_any(ctx, p, cases[i].reader);
+        char what[160];
+        snprintf(what, sizeof what, "%s (reader %d)", cases[i].name, cases[i].reader);
+        must_fail_naming(ctx, rc, what, cases[i].name);
+        if (pa.peak > ((size_t)1 << 20))
+            fail_msg("%s: allocated %zu bytes before refusing", what, pa.peak);
+        sinew_ctx_free(ctx);
+    }
+
+    /* the pixel limit of the context applies to every reader */
+    sinew_ctx *ctx = f->ctx;
+    assert_int_equal(sinew_ctx_set_max_pixels(ctx, 8), SINEW_OK);
+    const char *seeds[][2] = {
+        {"tests/fuzz/corpus/png/rgb8.png", "0"},   {"tests/fuzz/corpus/jpeg/rgb.jpg", "0"},
+        {"tests/fuzz/corpus/pnm/rgb8.ppm", "0"},   {"tests/fuzz/corpus/flo/flow.flo", "1"},
+        {"tests/fuzz/corpus/kitti/flow.png", "1"}, {"tests/fuzz/corpus/pfm/flow_le.pfm", "1"},
+        {"tests/fuzz/corpus/npy/f4.npy", "1"}};
+    for (size_t i = 0; i < sizeof seeds / sizeof seeds[0]; i++) {
+        if (!tu_file_exists(seeds[i][0]))
+            continue;
+        int rc = read_any(ctx, seeds[i][0], seeds[i][1][0] - '0');
+        if (rc != SINEW_ELIMIT)
+            fail_msg("%s: pixel limit 8 gave status %d: %s", seeds[i][0], rc,
+                     sinew_ctx_message(ctx));
+        must_fail_naming(ctx, rc, seeds[i][0], seeds[i][0]);
+    }
+    assert_int_equal(sinew_ctx_set_max_pixels(ctx, SINEW_DEFAULT_MAX_PIXELS), SINEW_OK);
+}
+
+/* Text and JSON readers: file-size caps (checked from the file's size, before reading)
+ * and JSON nesting (cJSON refuses more than CJSON_NESTING_LIMIT = 1000 levels). */
+static void test_hostile_text_and_json_limits(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    char p[700];
+    /* sparse files just above each cap */
+    const struct {
+        const char *name;
+        long long size;
+        int which; /* 0 camera, 1 pose, 2 sequence */
+    } caps[] = {
+        {"big_K.json", (1LL << 20) + 1, 0},
+        {"big_pose.txt", (1LL << 16) + 1, 1},
+        {"big_seq.json", (256LL << 20) + 1, 2},
+    };
+    for (size_t i = 0; i < sizeof caps / sizeof caps[0]; i++) {
+        tu_path(p, sizeof p, f->dir, caps[i].name);
+        FILE *fp = fopen(p, "wb");
+        assert_non_null(fp);
+        fputc('{', fp);
+        assert_int_equal(fseek(fp, (long)caps[i].size - 1, SEEK_SET), 0);
+        fputc('}', fp);
+        fclose(fp);
+        peak_alloc pa = {0};
+        sinew_allocator a = {peak_alloc_fn, peak_free_fn, &pa};
+        sinew_ctx *pc = sinew_ctx_new_with(&a);
+        pa.peak = 0;
+        int rc;
+        sinew_camera cam;
+        sinew_rigid T;
+        sinew_sequence *seq = NULL;
+        switch (caps[i].which) {
+        case 0:
+            rc = sinew_camera_load(pc, &cam, p);
+            break;
+        case 1:
+            rc = sinew_rigid_load(pc, &T, p);
+            break;
+        default:
+            rc = sinew_sequence_read(pc, &seq, p);
+            break;
+        }
+        assert_int_equal(rc, SINEW_ELIMIT);
+        must_fail_naming(pc, rc, caps[i].name, caps[i].name);
+        assert_true(pa.peak < 4096);
+        sinew_ctx_free(pc);
+        remove(p);
+    }
+    /* nesting far beyond cJSON's limit: refused, no stack exhaustion */
+    size_t depth = 200000;
+    char *deep = malloc(2 * depth + 64);
+    assert_non_null(deep);
+    for (int form = 0; form < 2; form++) {
+        size_t n = 0;
+        n += (size_t)sprintf(deep, form ? "{\"frames\": " : "{\"fx\": ");
+        for (size_t i = 0; i < depth; i++)
+            deep[n++] = '[';
+        for (size_t i = 0; i < depth; i++)
+            deep[n++] = ']';
+        deep[n++] = '}';
+        tu_write_bytes(tu_path(p, sizeof p, f->dir, "deep.json"), deep, n);
+        if (form == 0) {
+            sinew_camera cam;
+            must_fail_naming(ctx, sinew_camera_load(ctx, &cam, p), "deep intrinsics", "deep.json");
+        } else {
+            sinew_sequence *seq = NULL;
+            must_fail_naming(ctx, sinew_sequence_read(ctx, &seq, p), "deep sequence", "deep.json");
+            assert_null(seq);
+        }
+    }
+    free(deep);
+    /* a frame count above the limit is refused before the frames are built */
+    {
+        size_t nf = (size_t)SINEW_SEQUENCE_MAX_FRAMES + 1;
+        const char *head = "{\"version\": 1, \"frames\": [";
+        char *txt = malloc(strlen(head) + 3 * nf + 8);
+        assert_non_null(txt);
+        size_t n = (size_t)sprintf(txt, "%s", head);
+        for (size_t i = 0; i < nf; i++) {
+            memcpy(txt + n, i ? ",{}" : "{}", i ? 3 : 2);
+            n += i ? 3 : 2;
+        }
+        memcpy(txt + n, "]}", 3);
+        n += 2;
+        sinew_sequence *seq = NULL;
+        int rc = sinew_sequence_parse(ctx, &seq, txt, n, "many.json");
+        free(txt);
+        assert_int_equal(rc, SINEW_ELIMIT);
+        must_fail_naming(ctx, rc, "1000001 frames", "many.json");
+        assert_null(seq);
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -987,6 +1279,10 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_hostile_image_dimensions, tu_fixture_setup,
                                         tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_hostile_null_arguments, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_limits_before_allocation, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_text_and_json_limits, tu_fixture_setup,
                                         tu_fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

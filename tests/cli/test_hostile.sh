@@ -148,7 +148,7 @@ expect_error "reasons: frame of another size" "$T/e.png" "frame_1x9\.ppm|1x9|2x2
 for opt in "--max nan" "--max inf" "--max -1" "--max 1e999" "--step 0" "--step -4" \
     "--step 99999999999" "--scale nan" "--scale -inf" "--threads -1" "--threads nan"; do
     # shellcheck disable=SC2086
-    expect_error "draw arrows $opt" "$T/o.png" "--${opt%% *}|${opt#* }" \
+    expect_error "draw arrows $opt" "$T/o.png" "${opt%% *}|${opt#* }" \
         "$SINEW_BIN" draw arrows --flow "$T/flow_2x2.npy" $opt -o "$T/o.png"
 done
 for opt in "--size 0" "--size -5" "--size 1000000000" "--size nan"; do
@@ -160,6 +160,30 @@ for opt in "--count 0" "--count -1" "--count nan"; do
     expect_error "draw matches $opt" "$T/o.png" "count|${opt#* }" "$SINEW_BIN" draw matches \
         --table "$T/table.npy" --frame "$T/frame_2x2.ppm" --frame1 "$T/frame_2x2.ppm" $opt -o "$T/o.png"
 done
+
+# --- synth: documented minimum 8x8 and 2..1000000 frames; the pixel limit before work ---
+if "$SINEW_BIN" synth --help >/dev/null 2>&1; then
+    for a in "--size 1x1" "--size 9x1" "--size 1x9" "--size 0x0" "--size -8x8" "--frames 1" \
+        "--frames 0" "--frames nan" "--frames 1000001"; do
+        # shellcheck disable=SC2086
+        expect_error "synth $a" "$T/syn" "${a%% *}|${a#* }" "$SINEW_BIN" synth -o "$T/syn" $a
+    done
+    expect_error "synth beyond the pixel limit" "$T/syn" "limit" \
+        "$SINEW_BIN" synth -o "$T/syn" --size 100000x100000 --frames 2
+    expect_ok "synth at the smallest size" "$SINEW_BIN" synth -o "$T/syn8" --size 8x8 --frames 2
+else
+    skip "synth hostile sizes" "no synth command in this build"
+fi
+
+# --- report: missing, unreadable and absurdly nested manifests ---------------------------
+mkdir -p "$T/rep_empty" "$T/rep_dir/manifest.json" "$T/rep_deep"
+"$PYTHON" -c "print('[' * 100000 + ']' * 100000)" >"$T/rep_deep/manifest.json"
+expect_error "report: no manifest" "$T/rep_empty/report.html" "rep_empty/manifest\.json" \
+    "$SINEW_BIN" report "$T/rep_empty"
+expect_error "report: manifest is a directory" "$T/rep_dir/report.html" "rep_dir/manifest\.json" \
+    "$SINEW_BIN" report "$T/rep_dir"
+expect_error "report: manifest nested 100000 deep" "$T/rep_deep/report.html" \
+    "rep_deep/manifest\.json" "$SINEW_BIN" report "$T/rep_deep"
 
 # --- disk full via a file-size limit (no root needed; SIGXFSZ must not kill sinew) ------
 limited() { # BLOCKS OUT CMD...: run CMD under `ulimit -f BLOCKS` (512-byte blocks)

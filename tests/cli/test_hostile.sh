@@ -175,6 +175,16 @@ else
     skip "synth hostile sizes" "no synth command in this build"
 fi
 
+# --- an output path that is a FIFO is refused, not replaced ------------------------------
+if mkfifo "$T/pipe.flo" 2>/dev/null; then
+    expect_error "output is a FIFO" - "pipe\.flo.*regular" \
+        "$SINEW_BIN" convert "$T/flow_2x2.npy" "$T/pipe.flo"
+    if [ -p "$T/pipe.flo" ]; then pass "FIFO left in place"; else fail "FIFO left in place" "replaced"; fi
+    rm -f "$T/pipe.flo"
+else
+    skip "output is a FIFO" "mkfifo failed"
+fi
+
 # --- report: missing, unreadable and absurdly nested manifests ---------------------------
 mkdir -p "$T/rep_empty" "$T/rep_dir/manifest.json" "$T/rep_deep"
 "$PYTHON" -c "print('[' * 100000 + ']' * 100000)" >"$T/rep_deep/manifest.json"

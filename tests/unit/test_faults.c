@@ -546,6 +546,30 @@ static void test_faults_disk_full_every_writer(void **state)
     inputs_free(&big);
 }
 
+/* Output paths that are not regular files: a FIFO (or a device, e.g. /dev/stdout as root)
+ * must be refused, not replaced by the rename; new outputs get 0666 minus the umask. */
+static void test_faults_output_not_a_regular_file(void **state)
+{
+    tu_fixture *f = *state;
+    char fifo[700];
+    tu_path(fifo, sizeof fifo, f->dir, "pipe.flo");
+    assert_int_equal(mkfifo(fifo, 0600), 0);
+    int rc = sinew_write_file(f->ctx, fifo, "x", 1);
+    assert_int_equal(rc, SINEW_EIO);
+    assert_non_null(strstr(sinew_ctx_message(f->ctx), "pipe.flo"));
+    struct stat st;
+    assert_int_equal(stat(fifo, &st), 0);
+    assert_true(S_ISFIFO(st.st_mode));
+    assert_no_temporaries(fifo);
+    mode_t old = umask(027);
+    const char *p = tu_fixture_path(f, "mode.bin");
+    rc = sinew_write_file(f->ctx, p, "x", 1);
+    umask(old);
+    assert_int_equal(rc, SINEW_OK);
+    assert_int_equal(stat(p, &st), 0);
+    assert_int_equal(st.st_mode & 0777, 0640);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -555,6 +579,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_faults_every_stage, tu_fixture_setup,
                                         tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_faults_disk_full_every_writer, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_faults_output_not_a_regular_file, tu_fixture_setup,
                                         tu_fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -175,6 +175,35 @@ else
     skip "synth hostile sizes" "no synth command in this build"
 fi
 
+# --- score: tiny shapes, hostile values, sizes that disagree -------------------------------
+if "$SINEW_BIN" score --help >/dev/null 2>&1; then
+    for s in 1x1 9x1 1x9; do
+        expect_ok "score $s with confidence" "$SINEW_BIN" score "$T/flow_$s.npy" "$T/back_$s.npy" \
+            --confidence "$T/map_$s.npy" --mask "$T/mask_$s.pgm" --occ "$T/mask_$s.pgm"
+    done
+    "$PYTHON" -c "import numpy as np; np.save('$T/zero52.npy', np.zeros((2, 5, 2), '<f4'))"
+    # documented (flow/metrics.h): non-finite estimates or truth are unknown, not scored
+    expect_ok "score NaN/Inf/huge estimate" "$SINEW_BIN" score "$T/nasty.npy" "$T/zero52.npy" \
+        --confidence "$T/nasty_map.npy" --json
+    expect_ok "score NaN/Inf/huge truth" "$SINEW_BIN" score "$T/zero52.npy" "$T/nasty.npy"
+    expect_error "score: truth of another size" - "flow_2x2\.npy.*flow_4x3\.npy|flow_4x3" \
+        "$SINEW_BIN" score "$T/flow_2x2.npy" "$T/flow_4x3.npy"
+    expect_error "score: confidence of another size" - "map_1x9\.npy" \
+        "$SINEW_BIN" score "$T/flow_2x2.npy" "$T/back_2x2.npy" --confidence "$T/map_1x9.npy"
+    mkdir -p "$T/csvdir"
+    expect_error "score: CSV output is a directory" - "csvdir.*directory" \
+        "$SINEW_BIN" score "$T/flow_2x2.npy" "$T/back_2x2.npy" --csv "$T/csvdir"
+    for opt in "--mask-bits -1" "--mask-bits 256" "--threads nan" "--threads -1"; do
+        # shellcheck disable=SC2086
+        expect_error "score $opt" - "${opt%% *}" \
+            "$SINEW_BIN" score "$T/flow_2x2.npy" "$T/back_2x2.npy" $opt
+    done
+    expect_error "score: giant .npy header" - "giant\.npy" \
+        "$SINEW_BIN" score "$T/giant.npy" "$T/flow_2x2.npy"
+else
+    skip "score hostile inputs" "no score command in this build"
+fi
+
 # --- an output path that is a FIFO is refused, not replaced ------------------------------
 if mkfifo "$T/pipe.flo" 2>/dev/null; then
     expect_error "output is a FIFO" - "pipe\.flo.*regular" \

@@ -427,16 +427,25 @@ static void test_hostile_check_parameters(void **state)
     sinew_check_input in = {&fw, &bw, NULL, NULL, NULL};
     const double bad[] = {NAN, INFINITY, -INFINITY, -1, -1e-300};
     for (int b = 0; b < 5; b++)
-        for (int field = 0; field < 13; field++) {
+        for (int field = 0; field < 14; field++) {
             sinew_check_params p;
             sinew_check_params_default(&p);
-            double *fields[] = {&p.fb_alpha,           &p.fb_beta,
-                                &p.boundary_alpha,     &p.boundary_beta,
-                                &p.photo_threshold,    &p.saturation_level,
-                                &p.conf_fb_alpha,      &p.conf_fb_beta,
-                                &p.conf_fb_weight,     &p.conf_photo_scale,
-                                &p.conf_texture_scale, &p.conf_boundary_scale,
+            /* every floating-point parameter of flow/check.h */
+            double *fields[] = {&p.fb_alpha,
+                                &p.fb_beta,
+                                &p.boundary_alpha,
+                                &p.boundary_beta,
+                                &p.photo_threshold,
+                                &p.saturation_level,
+                                &p.conf_fb_alpha,
+                                &p.conf_fb_beta,
+                                &p.conf_photo_scale,
+                                &p.conf_texture_scale,
+                                &p.conf_texture_weight,
+                                &p.conf_boundary_scale,
+                                &p.conf_boundary_weight,
                                 &p.conf_saturated};
+            assert_int_equal(sizeof fields / sizeof fields[0], 14);
             *fields[field] = bad[b];
             must_fail(ctx, sinew_check_run(ctx, &out, &in, &p), "hostile check parameter");
         }

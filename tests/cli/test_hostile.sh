@@ -175,6 +175,35 @@ else
     skip "synth hostile sizes" "no synth command in this build"
 fi
 
+mkdir -p "$T/csvdir" "$T/dir.flo"
+
+# --- flow estimator: tiny shapes, frames that disagree, hostile options ---------------------
+if "$SINEW_BIN" flow --help >/dev/null 2>&1; then
+    for s in 1x1 9x1 1x9 2x2; do
+        expect_ok "flow $s" "$SINEW_BIN" flow "$T/frame_$s.ppm" "$T/frame_$s.ppm" -o "$T/fl_$s.npy" \
+            --backward "$T/flb_$s.flo" --preset fast --threads 1
+        "$PYTHON" -c "
+import sys, numpy as np
+f = np.load('$T/fl_$s.npy')
+sys.exit(0 if f.shape[:2] == np.load('$T/flow_$s.npy').shape[:2] and np.isfinite(f).all() else 1)" &&
+            pass "flow $s: right shape, finite" || fail "flow $s: right shape, finite" "bad output"
+    done
+    expect_error "flow: frames of different sizes" "$T/fd.flo" "frame_9x1\.ppm|frame_1x9\.ppm|9x1|1x9" \
+        "$SINEW_BIN" flow "$T/frame_9x1.ppm" "$T/frame_1x9.ppm" -o "$T/fd.flo"
+    expect_error "flow: giant frame header" "$T/fg.flo" "giant\.pgm" \
+        "$SINEW_BIN" flow "$T/giant.pgm" "$T/giant.pgm" -o "$T/fg.flo"
+    expect_error "flow: backward output is a directory" "$T/fo.flo" "dir\.flo.*directory" \
+        "$SINEW_BIN" flow "$T/frame_2x2.ppm" "$T/frame_2x2.ppm" -o "$T/fo.flo" --backward "$T/dir.flo"
+    for opt in "--alpha nan" "--alpha -1" "--alpha inf" "--levels 99" "--levels -2" "--warps 1000" \
+        "--patch-size 2" "--median 9" "--threads -1" "--preset nope" "--inner 0"; do
+        # shellcheck disable=SC2086
+        expect_error "flow $opt" "$T/fp.flo" "${opt%% *}|${opt#* }" \
+            "$SINEW_BIN" flow "$T/frame_2x2.ppm" "$T/frame_2x2.ppm" -o "$T/fp.flo" $opt
+    done
+else
+    skip "flow hostile inputs" "no flow command in this build"
+fi
+
 # --- score: tiny shapes, hostile values, sizes that disagree -------------------------------
 if "$SINEW_BIN" score --help >/dev/null 2>&1; then
     for s in 1x1 9x1 1x9; do

@@ -443,6 +443,54 @@ static void test_faults_every_stage(void **state)
     inputs_free(&s.in);
 }
 
+/* ---- estimator ---- */
+
+typedef struct est_job {
+    const sinew_image *f0, *f1;
+    int with_bwd;
+} est_job;
+
+static int est_op(sinew_ctx *ctx, void *ud)
+{
+    const est_job *j = ud;
+    sinew_flow_params p;
+    int rc = sinew_flow_params_preset(&p, "fast");
+    if (rc)
+        return rc;
+    sinew_estimator *est = NULL;
+    sinew_image fwd, bwd;
+    memset(&fwd, 0, sizeof fwd);
+    memset(&bwd, 0, sizeof bwd);
+    if ((rc = sinew_estimator_new(ctx, &est, &p)) ||
+        (rc = sinew_image_alloc(ctx, &fwd, j->f0->width, j->f0->height, 2, SINEW_F32)) ||
+        (j->with_bwd &&
+         (rc = sinew_image_alloc(ctx, &bwd, j->f0->width, j->f0->height, 2, SINEW_F32)))) {
+    } else {
+        rc = sinew_estimator_run(est, &fwd, j->with_bwd ? &bwd : NULL, j->f0, j->f1);
+    }
+    sinew_image_free(&fwd);
+    sinew_image_free(&bwd);
+    sinew_estimator_free(est);
+    return rc;
+}
+
+static void test_faults_estimator(void **state)
+{
+    tu_fixture *f = *state;
+    inputs in;
+    inputs_make(f->ctx, &in, 24, 18);
+    sinew_image gray;
+    assert_int_equal(sinew_image_alloc(f->ctx, &gray, 1, 1, 1, SINEW_U16), SINEW_OK);
+    est_job jobs[] = {{&in.frame, &in.frame, 1}, {&in.frame, &in.frame, 0}, {&gray, &gray, 1}};
+    for (size_t i = 0; i < sizeof jobs / sizeof jobs[0]; i++) {
+        char what[40];
+        snprintf(what, sizeof what, "estimator case %zu", i);
+        tu_fail_each_allocation(what, est_op, &jobs[i]);
+    }
+    sinew_image_free(&gray);
+    inputs_free(&in);
+}
+
 /* ---- disk full: a file-size limit ---- */
 
 /* Run the write in a child whose file-size limit is `limit` bytes (SIGXFSZ ignored, so
@@ -581,6 +629,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_faults_disk_full_every_writer, tu_fixture_setup,
                                         tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_faults_output_not_a_regular_file, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_faults_estimator, tu_fixture_setup,
                                         tu_fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -1262,6 +1262,152 @@ static void test_hostile_text_and_json_limits(void **state)
     }
 }
 
+/* ---- the flow estimator ---- */
+
+static int estimate(sinew_ctx *ctx, const char *preset, const sinew_image *f0,
+                    const sinew_image *f1, sinew_image *fwd, sinew_image *bwd)
+{
+    sinew_flow_params p;
+    int rc = sinew_flow_params_preset(&p, preset);
+    sinew_estimator *est = NULL;
+    if (!rc)
+        rc = sinew_estimator_new(ctx, &est, &p);
+    if (!rc)
+        rc = sinew_estimator_run(est, fwd, bwd, f0, f1);
+    sinew_estimator_free(est);
+    return rc;
+}
+
+static void assert_flow_finite(const sinew_image *f, const char *what)
+{
+    for (int y = 0; y < f->height; y++)
+        for (int x = 0; x < 2 * f->width; x++)
+            if (!isfinite(sinew_image_row_f32(f, y)[x]))
+                fail_msg("%s: non-finite flow at (%d, %d)", what, x / 2, y);
+}
+
+/* Every preset on every tiny shape, gray/RGB/RGBA, 8 and 16 bits, textured, flat and
+ * saturated frames: documented result is a finite vector everywhere. */
+static void test_hostile_estimator_tiny_and_flat(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_ctx_set_threads(ctx, 1);
+    const char *presets[] = {"fast", "balanced", "accurate", "baseline"};
+    const int kinds[][2] = {{1, SINEW_U8}, {3, SINEW_U16}, {4, SINEW_U8}, {2, SINEW_U16}};
+    for (int i = 0; i < NSHAPES; i++)
+        for (int k = 0; k < 4; k++)
+            for (int content = 0; content < 3; content++) {
+                int w = shapes[i][0], h = shapes[i][1];
+                sinew_image f0, f1, fwd, bwd;
+                make_frame(ctx, &f0, w, h, kinds[k][0], (sinew_type)kinds[k][1]);
+                make_frame(ctx, &f1, w, h, kinds[k][0], (sinew_type)kinds[k][1]);
+                if (content > 0) { /* flat black, or flat full scale */
+                    for (int y = 0; y < h; y++) {
+                        memset(sinew_image_row(&f0, y), content == 1 ? 0 : 0xFF,
+                               (size_t)w * (size_t)kinds[k][0] * sinew_type_size(f0.type));
+                        memset(sinew_image_row(&f1, y), content == 1 ? 0 : 0xFF,
+                               (size_t)w * (size_t)kinds[k][0] * sinew_type_size(f1.type));
+                    }
+                }
+                assert_int_equal(sinew_image_alloc(ctx, &fwd, w, h, 2, SINEW_F32), SINEW_OK);
+                assert_int_equal(sinew_image_alloc(ctx, &bwd, w, h, 2, SINEW_F32), SINEW_OK);
+                char what[96];
+                snprintf(what, sizeof what, "estimator %s %dx%d kind %d content %d",
+                         presets[(i + k + content) % 4], w, h, k, content);
+                must_ok(ctx, estimate(ctx, presets[(i + k + content) % 4], &f0, &f1, &fwd, &bwd),
+                        what);
+                assert_flow_finite(&fwd, what);
+                assert_flow_finite(&bwd, what);
+                sinew_image *all[] = {&f0, &f1, &fwd, &bwd};
+                for (int a = 0; a < 4; a++)
+                    sinew_image_free(all[a]);
+            }
+}
+
+static void test_hostile_estimator_mismatch_and_params(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    sinew_image a, b, c16, fl, fwd, small;
+    make_frame(ctx, &a, 6, 5, 3, SINEW_U8);
+    make_frame(ctx, &b, 5, 6, 3, SINEW_U8);
+    make_frame(ctx, &c16, 6, 5, 3, SINEW_U16);
+    make_flow(ctx, &fl, 6, 5, 0, 0);
+    assert_int_equal(sinew_image_alloc(ctx, &fwd, 6, 5, 2, SINEW_F32), SINEW_OK);
+    assert_int_equal(sinew_image_alloc(ctx, &small, 5, 5, 2, SINEW_F32), SINEW_OK);
+    must_fail(ctx, estimate(ctx, "fast", &a, &b, &fwd, NULL), "frames 6x5 and 5x6");
+    must_fail(ctx, estimate(ctx, "fast", &a, &c16, &fwd, NULL), "8-bit and 16-bit frames");
+    must_fail(ctx, estimate(ctx, "fast", &fl, &fl, &fwd, NULL), "flow as frames");
+    must_fail(ctx, estimate(ctx, "fast", &a, &a, &small, NULL), "output of the wrong size");
+    must_fail(ctx, estimate(ctx, "fast", &a, &a, &fwd, &small), "backward of the wrong size");
+    sinew_flow_params p;
+    assert_int_equal(sinew_flow_params_preset(&p, "nope"), SINEW_EINVAL);
+    assert_int_equal(sinew_flow_params_preset(&p, NULL), SINEW_EINVAL);
+    /* every field out of its documented range */
+    for (int k = 0; k < 16; k++) {
+        assert_int_equal(sinew_flow_params_preset(&p, "balanced"), SINEW_OK);
+        switch (k) {
+        case 0:
+            p.levels = -1;
+            break;
+        case 1:
+            p.levels = 13;
+            break;
+        case 2:
+            p.dis_patch = 3;
+            break;
+        case 3:
+            p.dis_patch = 33;
+            break;
+        case 4:
+            p.dis_stride = 0;
+            break;
+        case 5:
+            p.dis_iters = 0;
+            break;
+        case 6:
+            p.warps = 51;
+            break;
+        case 7:
+            p.outer = 0;
+            break;
+        case 8:
+            p.inner = 201;
+            break;
+        case 9:
+            p.alpha = NAN;
+            break;
+        case 10:
+            p.alpha = 0;
+            break;
+        case 11:
+            p.gamma = -INFINITY;
+            break;
+        case 12:
+            p.eps = 0;
+            break;
+        case 13:
+            p.omega = 2;
+            break;
+        case 14:
+            p.median = 3;
+            break;
+        case 15:
+            p.method = (sinew_flow_method)7;
+            break;
+        }
+        char what[40];
+        snprintf(what, sizeof what, "flow parameter case %d", k);
+        sinew_estimator *est = NULL;
+        must_fail(ctx, sinew_estimator_new(ctx, &est, &p), what);
+        assert_null(est);
+    }
+    sinew_image *all[] = {&a, &b, &c16, &fl, &fwd, &small};
+    for (int i = 0; i < 6; i++)
+        sinew_image_free(all[i]);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -1293,6 +1439,10 @@ int main(void)
                                         tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_hostile_text_and_json_limits, tu_fixture_setup,
                                         tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_estimator_tiny_and_flat, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_hostile_estimator_mismatch_and_params,
+                                        tu_fixture_setup, tu_fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

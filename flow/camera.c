@@ -150,8 +150,10 @@ int sinew_camera_project(const sinew_camera *cam, const double X[3], double *u, 
 int sinew_camera_roundtrip_error(sinew_ctx *ctx, const sinew_camera *cam, int width, int height,
                                  int step, double *max_px, long *failures)
 {
-    if (!ctx || !cam || !max_px || step < 1)
+    if (!ctx || !cam || !max_px)
         return SINEW_EINVAL;
+    if (step < 1)
+        return sinew__fail(ctx, SINEW_EINVAL, "intrinsics: round-trip step must be >= 1");
     if (width <= 0 || height <= 0) {
         width = cam->width;
         height = cam->height;
@@ -191,10 +193,13 @@ int sinew_camera_roundtrip_error(sinew_ctx *ctx, const sinew_camera *cam, int wi
 int sinew_camera_fit(sinew_ctx *ctx, const sinew_camera *in, int width, int height,
                      sinew_camera *out, const char *what)
 {
-    if (!ctx || !in || !out || width < 1 || height < 1)
+    if (!ctx || !in || !out)
         return SINEW_EINVAL;
     if (!what)
         what = "intrinsics";
+    if (width < 1 || height < 1)
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: cannot fit to an image of %dx%d pixels", what,
+                           width, height);
     sinew_camera c = *in;
     if (in->width > 0 && in->height > 0 && (in->width != width || in->height != height)) {
         double sx = (double)width / in->width, sy = (double)height / in->height;
@@ -240,6 +245,7 @@ static int load_json(sinew_ctx *ctx, sinew_camera *cam, const char *text, const 
     sinew_camera c;
     memset(&c, 0, sizeof c);
     int have = 0; /* bits: fx fy cx cy width height */
+    int seen = 0; /* bits: every key in `keys` */
     for (cJSON *it = root->child; it; it = it->next) {
         const char *k = it->string ? it->string : "";
         if (!strcmp(k, "comment"))
@@ -257,6 +263,11 @@ static int load_json(sinew_ctx *ctx, sinew_camera *cam, const char *text, const 
                              path, k);
             goto done;
         }
+        if (seen & (1 << idx)) { /* cJSON keeps both; which one wins would be a guess */
+            rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: key \"%s\" appears twice", path, k);
+            goto done;
+        }
+        seen |= 1 << idx;
         if (!cJSON_IsNumber(it)) {
             rc = sinew__fail(ctx, SINEW_EVALUE, "%s: \"%s\" must be a number", path, k);
             goto done;

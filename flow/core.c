@@ -14,6 +14,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "flow/core.h"
@@ -284,8 +285,16 @@ int sinew_outfile_open(sinew_ctx *ctx, sinew_outfile **out, const char *path)
         return SINEW_EINVAL;
     *out = NULL;
     struct stat st;
-    if (stat(path, &st) == 0 && S_ISDIR(st.st_mode))
+    int exists = stat(path, &st) == 0;
+    if (exists && S_ISDIR(st.st_mode))
         return sinew__fail(ctx, SINEW_EIO, "%s: is a directory", path);
+    /* The rename would replace a device, FIFO or socket node (e.g. /dev/stdout as root)
+     * with a regular file: refuse instead. */
+    if (exists && !S_ISREG(st.st_mode))
+        return sinew__fail(ctx, SINEW_EIO,
+                           "%s: not a regular file (outputs are replaced atomically; write to "
+                           "a file)",
+                           path);
     size_t n = strlen(path);
     sinew_outfile *f = sinew__calloc(ctx, 1, sizeof *f);
     if (!f)
@@ -300,25 +309,34 @@ int sinew_outfile_open(sinew_ctx *ctx, sinew_outfile **out, const char *path)
         return SINEW_ENOMEM;
     }
     memcpy(f->path, path, n + 1);
-    /* Temporary name in the same folder: dir/.name.tmp-XXXXXX */
+    /* Temporary name in the same folder: dir/.name.tmp-HHHHHH (6 hex digits) */
     const char *slash = strrchr(path, '/');
     size_t dirlen = slash ? (size_t)(slash - path + 1) : 0;
-    snprintf(f->tmp, n + 32, "%.*s.%s.tmp-XXXXXX", (int)dirlen, path, path + dirlen);
-    int fd = mkstemp(f->tmp);
+    /* Created with O_EXCL and mode 0666, so the process umask applies as for any new file
+     * (mkstemp would force 0600, and changing the umask to undo that is not thread-safe).
+     * The suffix mixes the time, the process id and this handle's address; a clash just
+     * tries the next one. */
+    int fd = -1, e = EEXIST;
+    struct timespec ts;
+    clock_gettime(CLOCK_REALTIME, &ts);
+    uint64_t seed = (uint64_t)ts.tv_nsec * 0x9E3779B97F4A7C15u ^ (uint64_t)ts.tv_sec ^
+                    ((uint64_t)getpid() << 32) ^ (uint64_t)(uintptr_t)f;
+    for (int attempt = 0; attempt < 100 && fd < 0 && e == EEXIST; attempt++) {
+        seed = seed * 6364136223846793005u + 1442695040888963407u;
+        snprintf(f->tmp, n + 32, "%.*s.%s.tmp-%06llx", (int)dirlen, path, path + dirlen,
+                 (unsigned long long)(seed >> 40));
+        fd = open(f->tmp, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
+        e = fd < 0 ? errno : 0;
+    }
     if (fd < 0) {
-        int e = errno;
         sinew__free(ctx, f->path);
         sinew__free(ctx, f->tmp);
         sinew__free(ctx, f);
         return sinew__fail(ctx, SINEW_EIO, "%s: cannot create: %s", path, strerror(e));
     }
-    /* mkstemp makes 0600; give outputs the usual permissions (honouring umask). */
-    mode_t um = umask(0);
-    umask(um);
-    (void)fchmod(fd, 0666 & ~um);
     f->fp = fdopen(fd, "wb");
     if (!f->fp) {
-        int e = errno;
+        e = errno;
         close(fd);
         unlink(f->tmp);
         sinew__free(ctx, f->path);

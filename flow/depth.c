@@ -4,6 +4,7 @@
  * likely wrong scale. */
 #include "flow/depth.h"
 
+#include <float.h>
 #include <math.h>
 #include <stddef.h>
 #include <string.h>
@@ -26,7 +27,7 @@ void sinew_depth_params_default(sinew_depth_params *p)
 /* Classification of one pixel: 0 valid, 1 invalid code, 2 out of range. */
 static int classify(const sinew_depth_params *p, double z)
 {
-    if (!isfinite(z) || !(z > 0))
+    if (!isfinite(z) || !(z > 0) || z > FLT_MAX) /* not representable as float metres */
         return 1;
     if (z < p->near || z > p->far)
         return 2;
@@ -37,11 +38,17 @@ int sinew_depth_convert(sinew_ctx *ctx, const sinew_depth_params *p, const sinew
                         const sinew_image *raw, sinew_image *z, const char *what,
                         sinew_depth_stats *stats)
 {
-    if (!ctx || !p || !raw || !raw->data || !z)
+    if (!ctx)
         return SINEW_EINVAL;
-    memset(z, 0, sizeof *z);
     if (!what)
         what = "depth";
+    if (!p || !raw || !raw->data || !z) {
+        if (z)
+            memset(z, 0, sizeof *z);
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: depth map, parameters and output are required",
+                           what);
+    }
+    memset(z, 0, sizeof *z);
     if (raw->channels != 1)
         return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: depth must have 1 channel (got %d)", what,
                            raw->channels);

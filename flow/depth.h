@@ -45,8 +45,9 @@ typedef struct sinew_depth_stats {
 
 /* Convert a raw depth map to z in metres. raw: SINEW_U16 (codes; 0 and 65535 are
  * invalid) or SINEW_F32 (metres or disparity pixels; NaN, Inf and values <= 0 are
- * invalid), 1 channel; SINEW_U8 is refused (SINEW_EUNSUPPORTED: 8 bits cannot hold
- * depth). `cam` (already fitted to the map's size) is needed for SINEW_DEPTH_RAY and
+ * invalid; so is a z beyond the float range, e.g. from a denormal disparity), 1
+ * channel; SINEW_U8 is refused (SINEW_EUNSUPPORTED: 8 bits cannot hold depth). `cam`
+ * (already fitted to the map's size) is needed for SINEW_DEPTH_RAY and
  * SINEW_DEPTH_DISPARITY, may be NULL for SINEW_DEPTH_Z. *z receives a freshly
  * allocated SINEW_F32 map of the same size with NaN where invalid or out of range.
  * `what` names the file for messages; stats may be NULL. Threads: rows in parallel,

@@ -292,7 +292,9 @@ void sinew_image_draw_line(sinew_image *img, double x0, double y0, double x1, do
 {
     if (!is_canvas(img) || !rgb || !isfinite(x0) || !isfinite(y0) || !isfinite(x1) || !isfinite(y1))
         return;
-    if (!clip_segment(&x0, &y0, &x1, &y1, img->width, img->height))
+    /* (a span beyond the double range makes the clipped ends NaN: nothing to draw) */
+    if (!clip_segment(&x0, &y0, &x1, &y1, img->width, img->height) || !isfinite(x0) ||
+        !isfinite(y0) || !isfinite(x1) || !isfinite(y1))
         return;
     long ax = lround(x0), ay = lround(y0), bx = lround(x1), by = lround(y1);
     long dx = labs(bx - ax), dy = -labs(by - ay);
@@ -696,6 +698,9 @@ int sinew_draw_reasons(sinew_ctx *ctx, sinew_image *out, const sinew_image *fram
 
 static void dot(sinew_image *img, double x, double y, const uint8_t rgb[3])
 {
+    /* far outside (or not finite): nothing shows, and lround would be out of range */
+    if (!(x > -2 && y > -2 && x < img->width + 2.0 && y < img->height + 2.0))
+        return;
     long cx = lround(x), cy = lround(y);
     fill_rect(img, cx - 1, cy - 1, 3, 3, rgb);
 }

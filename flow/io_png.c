@@ -11,6 +11,7 @@
  * (read_impl, write_impl) whose error branch only touches locals that are not modified
  * after setjmp. libpng's own allocations go through the context allocator, so failure
  * injection covers them too. */
+#include <errno.h>
 #include <png.h>
 #include <setjmp.h>
 #include <stdio.h>
@@ -26,6 +27,7 @@ typedef struct png_io {
     int oom;       /* an allocation failed */
     int truncated; /* the file ended early */
     int ioerr;     /* the operating system refused a read or write */
+    int err;       /* its errno (0 if unknown) */
     char msg[160]; /* libpng's error text */
 } png_io;
 
@@ -62,7 +64,7 @@ static void on_read(png_structp png, png_bytep data, size_t n)
     png_io *io = png_get_io_ptr(png);
     if (fread(data, 1, n, io->fp) != n) {
         if (ferror(io->fp))
-            io->ioerr = 1;
+            io->ioerr = 1, io->err = errno;
         else
             io->truncated = 1;
         png_error(png, "read failed");
@@ -73,7 +75,7 @@ static void on_write(png_structp png, png_bytep data, size_t n)
 {
     png_io *io = png_get_io_ptr(png);
     if (fwrite(data, 1, n, io->fp) != n) {
-        io->ioerr = 1;
+        io->ioerr = 1, io->err = errno;
         png_error(png, "write failed");
     }
 }
@@ -90,8 +92,8 @@ static int png_status(const png_io *io, int writing)
         return sinew__fail(io->ctx, SINEW_ENOMEM, "%s: out of memory %s PNG", io->path,
                            writing ? "writing" : "reading");
     if (io->ioerr)
-        return sinew__fail(io->ctx, SINEW_EIO, "%s: cannot %s", io->path,
-                           writing ? "write" : "read");
+        return sinew__fail(io->ctx, SINEW_EIO, "%s: cannot %s: %s", io->path,
+                           writing ? "write" : "read", strerror(io->err ? io->err : EIO));
     if (io->truncated)
         return sinew__fail(io->ctx, SINEW_EFORMAT, "%s: truncated PNG data (file ends early)",
                            io->path);

@@ -311,8 +311,15 @@ static int label_stats(sinew_ctx *ctx, sinew_matches *m)
 int sinew_matches_build(sinew_ctx *ctx, const sinew_match_inputs *in, const sinew_match_params *p,
                         sinew_matches *out)
 {
-    if (!ctx || !in || !p || !out)
+    if (!ctx)
         return SINEW_EINVAL;
+    if (!in || !out)
+        return sinew__fail(ctx, SINEW_EINVAL, "matches: inputs and output are required");
+    sinew_match_params defaults;
+    if (!p) {
+        sinew_match_params_default(&defaults);
+        p = &defaults;
+    }
     memset(out, 0, sizeof *out);
     int rc = check_inputs(ctx, in, p);
     if (rc)

@@ -117,10 +117,10 @@ typedef struct sinew_matches {
     size_t label_changed; /* kept matches with label0 != label1 */
 } sinew_matches;
 
-/* Build the match table. Returns SINEW_EINVAL (bad arguments or parameters), SINEW_ESIZE
- * (an input's size differs from the flow's; the message names it), SINEW_EUNSUPPORTED
- * (wrong image type/channels), SINEW_ENOMEM. Threads: rows in parallel; the result is
- * bit-identical for any thread count. */
+/* Build the match table. p = NULL uses the defaults. Returns SINEW_EINVAL (bad
+ * arguments or parameters), SINEW_ESIZE (an input's size differs from the flow's; the
+ * message names it), SINEW_EUNSUPPORTED (wrong image type/channels), SINEW_ENOMEM.
+ * Threads: rows in parallel; the result is bit-identical for any thread count. */
 int sinew_matches_build(sinew_ctx *ctx, const sinew_match_inputs *in, const sinew_match_params *p,
                         sinew_matches *out);
 

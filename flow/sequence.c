@@ -163,6 +163,9 @@ int sinew_sequence_add_frame(sinew_sequence *seq, const sinew_seq_frame *frame)
     if (!seq || !frame)
         return SINEW_EINVAL;
     sinew_ctx *ctx = seq->ctx_;
+    if (seq->n_frames >= SINEW_SEQUENCE_MAX_FRAMES)
+        return sinew__fail(ctx, SINEW_ELIMIT, "sequence: more than %d frames",
+                           SINEW_SEQUENCE_MAX_FRAMES);
     int st = grow(ctx, (void **)&seq->frames, &seq->cap_frames_, seq->n_frames, sizeof *frame);
     if (st)
         return st;
@@ -182,6 +185,9 @@ int sinew_sequence_add_pair(sinew_sequence *seq, const sinew_seq_pair *pair)
     if (!seq || !pair)
         return SINEW_EINVAL;
     sinew_ctx *ctx = seq->ctx_;
+    if (seq->n_pairs >= SINEW_SEQUENCE_MAX_PAIRS)
+        return sinew__fail(ctx, SINEW_ELIMIT, "sequence: more than %d pairs",
+                           SINEW_SEQUENCE_MAX_PAIRS);
     int st = grow(ctx, (void **)&seq->pairs, &seq->cap_pairs_, seq->n_pairs, sizeof *pair);
     if (st)
         return st;
@@ -429,6 +435,17 @@ static int get_int(reader *r, const cJSON *obj, const char *path, const char *na
         return bad_key(r->ctx, r->where, key, msg);
     }
     *out = (int)d;
+    return SINEW_OK;
+}
+
+/* Refuse arrays longer than `max` before building anything from them. */
+static int check_count(reader *r, const cJSON *arr, const char *name, size_t max)
+{
+    size_t n = 0;
+    for (const cJSON *c = arr->child; c; c = c->next)
+        if (++n > max)
+            return sinew__fail(r->ctx, SINEW_ELIMIT, "%s: %s: more than %zu entries", r->where,
+                               name, max);
     return SINEW_OK;
 }
 
@@ -787,6 +804,8 @@ static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
     }
     const cJSON *pairs = get_typed(r, root, "", "pairs", 0, 1, &st);
     if (st)
+        return st;
+    if (pairs && (st = check_count(r, pairs, "pairs", SINEW_SEQUENCE_MAX_PAIRS)))
         return st;
     i = 0;
     if (pairs)

@@ -21,8 +21,10 @@ extern "C" {
 /* Highest schema version this build reads and the version it writes. */
 #define SINEW_SEQUENCE_VERSION 1
 
-/* Most frames a sequence may have; checked before the frames are allocated. */
+/* Limits, checked before the entries are built (ELIMIT): frames and ground-truth pairs
+ * in one sequence (the same frame limit as runs, SINEW_RUN_MAX_FRAMES). */
 #define SINEW_SEQUENCE_MAX_FRAMES 1000000
+#define SINEW_SEQUENCE_MAX_PAIRS 10000000
 
 /* Settings for `sinew run` (key "run", all optional; docs/formats.md). The command line
  * overrides them. Strings are owned by the sequence; NULL means unset. */

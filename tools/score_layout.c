@@ -163,6 +163,10 @@ static int set_push(const char *cmd, score_set *s, score_pair *p)
         pair_free(p);
         return cli_error(cmd, "out of memory");
     }
+    if (s->n >= (size_t)SINEW_RUN_MAX_PAIRS) { /* the same limit as a run's pairs */
+        pair_free(p);
+        return cli_error(cmd, "more than %d pairs to score", SINEW_RUN_MAX_PAIRS);
+    }
     if (s->n == s->cap) {
         size_t cap = s->cap ? 2 * s->cap : 32;
         score_pair *np = realloc(s->pairs, cap * sizeof *np);

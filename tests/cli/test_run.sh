@@ -164,7 +164,11 @@ fi
 # ---- SIGINT: stops after the current pair, writes the manifest, exits 1 with a message
 "$B" run "$T/seq" -o "$T/int" $OPT >"$T/int.out" 2>"$T/int.err" &
 pid=$!
-sleep 0.3
+# Signal as soon as the first pair is complete, so the run is still going on fast machines.
+n=0
+while [ $n -lt 1000 ] && ! ls "$T"/int/pairs/*/done.json >/dev/null 2>&1 && kill -0 $pid 2>/dev/null; do
+    sleep 0.005; n=$((n + 1))
+done
 kill -INT $pid
 wait $pid
 rc=$?

@@ -222,34 +222,24 @@ int cmd_flow(int argc, char **argv)
     memset(&chk, 0, sizeof chk);
     cJSON *chk_json = NULL;
     cli_check_paths chk_paths = {out, bout, f0, f1, NULL, check_dir};
+    int check_failed = 0; /* already reported on stderr */
     if (!rc && check_dir) {
         sinew_check_params cp;
         sinew_check_params_default(&cp);
         sinew_check_input in = {&fwd, &bwd, &a, &b, NULL};
-        int bad = cli_check_compute("flow", ctx, &chk, &in, &cp, &chk_paths);
-        if (!bad && !(chk_json = cli_check_json(&chk, &cp, &chk_paths)))
-            bad = cli_error("flow", "out of memory");
-        if (bad) {
-            cli_check_result_free(&chk);
-            cJSON_Delete(chk_json);
-            sinew_estimator_free(est);
-            sinew_image_free(&a);
-            sinew_image_free(&b);
-            sinew_image_free(&fwd);
-            sinew_image_free(&bwd);
-            sinew_ctx_free(ctx);
-            return CLI_FAIL;
-        }
+        check_failed = cli_check_compute("flow", ctx, &chk, &in, &cp, &chk_paths);
+        if (!check_failed && !(chk_json = cli_check_json(&chk, &cp, &chk_paths)))
+            check_failed = cli_error("flow", "out of memory");
     }
-    if (!rc)
+    if (!rc && !check_failed)
         rc = sinew_flow_write(ctx, out, &fwd, ffmt);
-    if (!rc && bout) {
+    if (!rc && !check_failed && bout) {
         rc = sinew_flow_write(ctx, bout, &bwd, bfmt);
         if (rc)
             remove(out); /* no partial result: both files or none */
     }
-    int ret = rc ? cli_status("flow", ctx, rc) : CLI_OK;
-    if (!rc && check_dir && cli_check_write("flow", ctx, &chk, chk_json, check_dir)) {
+    int ret = check_failed ? CLI_FAIL : rc ? cli_status("flow", ctx, rc) : CLI_OK;
+    if (ret == CLI_OK && check_dir && cli_check_write("flow", ctx, &chk, chk_json, check_dir)) {
         remove(out); /* no partial result: flows and check, or nothing new */
         if (bout)
             remove(bout);

@@ -18,28 +18,53 @@
  * Solver: lagged nonlinearity. Each of `outer` fixed-point iterations freezes the
  * penalty derivatives and runs `inner` red-black SOR sweeps on the resulting 2x2-per-pixel
  * linear system. Red-black ordering makes each half-sweep embarrassingly parallel and the
- * result independent of the thread count. */
+ * result independent of the thread count.
+ *
+ * Layout: the planes the sweeps touch (du, dv, the system a12, b1, b2, inv1, inv2, the link
+ * weights wx, wy and the edge weight) are stored split by colour c = (x + y) & 1: all red
+ * pixels row by row, then all black ones (rb_row). A half-sweep then reads and writes
+ * unit-stride rows: the four neighbours of pixel k of a red row are black pixels k - 1, k
+ * or k, k + 1 of the same row (depending on the row's parity) and k of the rows above and
+ * below, and a left / up link weight is the neighbour's wx / wy, at the same place in the
+ * black planes. Border pixels (first / last column, first / last row) take the scalar
+ * path with the same arithmetic; the interior loops vectorise. The split planes are
+ * packed (w*h floats each); derivative planes stay row-major, and du, dv go back to the
+ * row-major u, v once per warp. Results are bit-identical to a row-major sweep. */
 #include <math.h>
 #include <string.h>
 
 #include "flow/internal/flowimpl.h"
 #include "flow/internal/parallel.h"
 
+/* The row kernels below are instantiated with constant flags (and channel counts) for the
+ * interior of the image; forcing them inline lets the constants remove the border
+ * branches so the interior loops vectorise. */
+#define RB_INLINE static inline __attribute__((always_inline))
+
 int sinew__var_planes(int channels)
 {
     /* 3 per channel + 5 gradient-constancy + du, dv + a12, b1, b2, inv1, inv2 + wx, wy +
-     * edge weight + one zero row (counted as a plane for simplicity) */
-    return 3 * channels + 5 + 2 + 5 + 2 + 1 + 1;
+     * edge weight */
+    return 3 * channels + 5 + 2 + 5 + 2 + 1;
 }
 
+/* Derivative planes are row-major (stride w). The solver planes du .. edge are in the
+ * red/black split layout (see the top of the file and rb_row). */
 typedef struct planes {
+    int w, h;
+    size_t n;
     float *ix[SINEW__MAX_CH], *iy[SINEW__MAX_CH], *it[SINEW__MAX_CH];
     float *lxt, *lyt, *lxx, *lxy, *lyy;
-    float *du, *dv, *a12, *b1, *b2, *inv1, *inv2, *wx, *wy, *edge, *zero;
+    float *du, *dv, *a12, *b1, *b2, *inv1, *inv2, *wx, *wy, *edge;
 } planes;
 
-static void layout(planes *P, float *work, int channels, size_t n)
+static void layout(planes *P, float *work, int channels, int w, int h)
 {
+    size_t n = (size_t)w * (size_t)h;
+    P->w = w;
+    P->h = h;
+    P->n = n;
+    /* assemble_run relies on this order */
     for (int c = 0; c < channels; c++) {
         P->ix[c] = work; work += n;
         P->iy[c] = work; work += n;
@@ -59,8 +84,37 @@ static void layout(planes *P, float *work, int channels, size_t n)
     P->inv2 = work; work += n;
     P->wx = work; work += n;
     P->wy = work; work += n;
-    P->edge = work; work += n;
-    P->zero = work;
+    P->edge = work;
+}
+
+/* ---- red/black split layout ----
+ * Pixel (x, y) has colour c = (x + y) & 1. A split plane holds the ceil(n/2) colour-0
+ * values, then the floor(n/2) colour-1 values, each colour row by row: row y of colour c
+ * holds the pixels x = 2k + rb_par(c, y), k = 0 .. rb_len - 1, so pixel (x, y) sits at
+ * rb_row(c, y) + (x >> 1). The neighbours of a pixel all have the other colour: left and
+ * right at columns k - 1, k (rb_par 0) or k, k + 1 (rb_par 1) of the same row, up and down
+ * at column k of rows y - 1 and y + 1, so every half-sweep reads and writes unit-stride
+ * rows. The planes are packed (no padding): a split plane has exactly w*h floats. */
+
+/* x & 1 of the pixels of colour c in row y */
+static inline int rb_par(int c, int y)
+{
+    return (c ^ y) & 1;
+}
+
+/* number of pixels of colour c in row y */
+static inline int rb_len(int w, int c, int y)
+{
+    return (w + 1 - rb_par(c, y)) / 2;
+}
+
+/* offset of row y of colour c in a split plane */
+static inline size_t rb_row(const planes *P, int c, int y)
+{
+    size_t r = (size_t)(y >> 1) * (size_t)P->w;
+    if (y & 1)
+        r += (size_t)rb_len(P->w, c, y - 1);
+    return c ? (P->n + 1) / 2 + r : r;
 }
 
 /* dst = 0.5 * (a + b) */
@@ -128,115 +182,346 @@ static void derivatives(planes *P, const float *u, const float *v, const sinew__
     scale_masked(P->lyy, mask, 1.f, n, nt);
 }
 
+/* Interior / border split of one colour row: pixel k = 0 has no left neighbour when
+ * `first`; the row's last pixel lies in the last column (no right neighbour) when `ends`;
+ * `last` when that pixel is not also pixel 0 of a `first` row; pixels k0 .. k1 - 1 have
+ * both neighbours. */
+typedef struct rbseg {
+    int par, len, first, ends, last, k0, k1;
+} rbseg;
+
+static inline rbseg rb_seg(int w, int c, int y)
+{
+    rbseg s;
+    s.par = rb_par(c, y);
+    s.len = rb_len(w, c, y);
+    s.first = s.len > 0 && s.par == 0;
+    s.ends = s.len > 0 && 2 * (s.len - 1) + s.par == w - 1;
+    s.k0 = s.first;
+    s.last = s.ends && s.len - 1 >= s.k0;
+    s.k1 = s.len - s.ends;
+    if (s.k1 < s.k0)
+        s.k1 = s.k0;
+    return s;
+}
+
+/* One pixel's smoothness weight from its (u + du, v + dv) value c*, the value at its right
+ * neighbour r* and the value below d* (equal to c* past the last column / row). */
+static inline float smooth_px(float uc, float vc, float ur, float vr, float ud, float vd,
+                              float eg, float alpha, float e2)
+{
+    float ux = ur - uc, vx = vr - vc, uy = ud - uc, vy = vd - vc;
+    return alpha * eg / sqrtf(ux * ux + uy * uy + vx * vx + vy * vy + e2);
+}
+
+/* Weights of pixels 0 .. k1 - 1 of a colour row, none in the last column. u, v: image row
+ * from the row's first pixel (pixel k at [2k], its right neighbour at [2k + 1]); ud, vd:
+ * the same for the row below; du, dv, eg: this colour's row; hdu, hdv: the other colour's
+ * row (right neighbour of k at [k]); ddu, ddv: the other colour's row below (pixel below
+ * k at [k]). On the last row the "below" arguments repeat the row itself. */
+static void smooth_run(float *restrict wx, float *restrict wy, const float *restrict u,
+                       const float *restrict v, const float *restrict ud,
+                       const float *restrict vd, const float *restrict du,
+                       const float *restrict dv, const float *restrict hdu,
+                       const float *restrict hdv, const float *restrict ddu,
+                       const float *restrict ddv, const float *restrict eg, int k1,
+                       float alpha, float e2)
+{
+    for (int k = 0; k < k1; k++) {
+        float uc = u[2 * k] + du[k], vc = v[2 * k] + dv[k];
+        float s = smooth_px(uc, vc, u[2 * k + 1] + hdu[k], v[2 * k + 1] + hdv[k],
+                            ud[2 * k] + ddu[k], vd[2 * k] + ddv[k], eg[k], alpha, e2);
+        wx[k] = s;
+        wy[k] = s;
+    }
+}
+
 /* Smoothness weights from forward differences of (u + du, v + dv): the weight of the link
  * x -> x+1 is wx(x), of y -> y+1 is wy(x); zero past the last column / row. */
-static void smooth_weights(planes *P, const float *u, const float *v, int w, int h,
-                           float alpha, float eps, int nt)
+static void smooth_weights(planes *P, const float *u, const float *v, float alpha, float eps,
+                           int nt)
 {
     (void)nt; /* unused without OpenMP */
+    int w = P->w, h = P->h;
     float e2 = eps * eps;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
-        size_t o = (size_t)y * (size_t)w;
-        size_t od = y + 1 < h ? o + (size_t)w : o;
-        const float *restrict ur = u + o, *restrict vr = v + o;
-        const float *restrict dur = P->du + o, *restrict dvr = P->dv + o;
-        const float *restrict ud = u + od, *restrict vd = v + od;
-        const float *restrict dud = P->du + od, *restrict dvd = P->dv + od;
-        const float *restrict eg = P->edge + o;
-        float *restrict wx = P->wx + o, *restrict wy = P->wy + o;
-        for (int x = 0; x < w; x++) {
-            int xr = x + 1 < w ? x + 1 : x;
-            float ux = (ur[xr] + dur[xr]) - (ur[x] + dur[x]);
-            float vx = (vr[xr] + dvr[xr]) - (vr[x] + dvr[x]);
-            float uy = (ud[x] + dud[x]) - (ur[x] + dur[x]);
-            float vy = (vd[x] + dvd[x]) - (vr[x] + dvr[x]);
-            float s = alpha * eg[x] / sqrtf(ux * ux + uy * uy + vx * vx + vy * vy + e2);
-            wx[x] = x + 1 < w ? s : 0.f;
-            wy[x] = y + 1 < h ? s : 0.f;
+        int yd = y + 1 < h ? y + 1 : y;
+        for (int c = 0; c < 2; c++) {
+            rbseg s = rb_seg(w, c, y);
+            size_t o = rb_row(P, c, y), oh = rb_row(P, !c, y);
+            /* the pixel below has the other colour; on the last row it is the pixel itself */
+            size_t od = yd != y ? rb_row(P, !c, yd) : o;
+            size_t xo = (size_t)y * (size_t)w + (size_t)s.par;
+            size_t xd = (size_t)yd * (size_t)w + (size_t)s.par;
+            float *wx = P->wx + o, *wy = P->wy + o;
+            const float *du = P->du + o, *dv = P->dv + o, *eg = P->edge + o;
+            int kr = s.len - s.ends; /* pixels with a right neighbour */
+            smooth_run(wx, wy, u + xo, v + xo, u + xd, v + xd, du, dv, P->du + oh + s.par,
+                       P->dv + oh + s.par, P->du + od, P->dv + od, eg, kr, alpha, e2);
+            if (s.ends) {
+                int k = s.len - 1;
+                float uc = u[xo + 2 * (size_t)k] + du[k], vc = v[xo + 2 * (size_t)k] + dv[k];
+                wx[k] = 0.f;
+                wy[k] = smooth_px(uc, vc, uc, vc, u[xd + 2 * (size_t)k] + P->du[od + (size_t)k],
+                                  v[xd + 2 * (size_t)k] + P->dv[od + (size_t)k], eg[k], alpha,
+                                  e2);
+            }
+            if (yd == y)
+                for (int k = 0; k < s.len; k++)
+                    wy[k] = 0.f;
         }
     }
 }
 
-/* Freeze the data-term penalty derivatives and assemble the per-pixel system. */
-static void assemble(planes *P, const float *u, const float *v, int w, int h, int channels,
+/* Assemble pixels k0 .. k1 - 1 of a colour row. Outputs and du, dv, wx, wy: this colour's
+ * row; hwx: the other colour's row (left neighbour of k at [k + lo]); uwy: the other
+ * colour's row above; u, v: image row from the row's first pixel (pixel k at [2k]); dp:
+ * the same pixel in the first derivative plane, the others follow at multiples of n in
+ * the order of layout() (ix, iy, it per channel, then lxt, lyt, lxx, lxy, lyy). The has_*
+ * flags say which neighbours exist (constant 1 in the interior). */
+RB_INLINE void assemble_run(float *restrict a12o, float *restrict b1o, float *restrict b2o,
+                                float *restrict inv1o, float *restrict inv2o,
+                                const float *restrict dup, const float *restrict dvp,
+                                const float *restrict wx, const float *restrict wy,
+                                const float *restrict hwx, int lo, const float *restrict uwy,
+                                const float *restrict dp, size_t n, const float *restrict u,
+                                const float *restrict v, size_t w, int k0, int k1,
+                                int channels, const sinew__var_params *p, int has_l,
+                                int has_r, int has_u, int has_d)
+{
+    float e2 = p->eps * p->eps;
+    for (int k = k0; k < k1; k++) {
+        size_t i = 2 * (size_t)k;
+        float du = dup[k], dv = dvp[k];
+        float j11 = 0.f, j12 = 0.f, j22 = 0.f, j13 = 0.f, j23 = 0.f, r2 = 0.f;
+#pragma GCC unroll 3
+        for (int c = 0; c < channels; c++) {
+            const float *dc = dp + 3 * (size_t)c * n;
+            float ix = dc[i], iy = dc[n + i], it = dc[2 * n + i];
+            float r = it + ix * du + iy * dv;
+            r2 += r * r;
+            j11 += ix * ix;
+            j12 += ix * iy;
+            j22 += iy * iy;
+            j13 += ix * it;
+            j23 += iy * it;
+        }
+        float pd = p->delta / sqrtf(r2 + e2);
+        const float *dl = dp + 3 * (size_t)channels * n;
+        float lxt = dl[i], lyt = dl[n + i];
+        float lxx = dl[2 * n + i], lxy = dl[3 * n + i], lyy = dl[4 * n + i];
+        float gx = lxt + lxx * du + lxy * dv, gy = lyt + lxy * du + lyy * dv;
+        float pg = p->gamma / sqrtf(gx * gx + gy * gy + e2);
+        float a11 = pd * j11 + pg * (lxx * lxx + lxy * lxy);
+        float a12 = pd * j12 + pg * (lxx * lxy + lxy * lyy);
+        float a22 = pd * j22 + pg * (lxy * lxy + lyy * lyy);
+        float b1 = -(pd * j13 + pg * (lxx * lxt + lxy * lyt));
+        float b2 = -(pd * j23 + pg * (lxy * lxt + lyy * lyt));
+        /* smoothness: sum_n w_n (u_n - u) moves to the right-hand side */
+        float wl = has_l ? hwx[k + lo] : 0.f, wr = wx[k];
+        float wu = has_u ? uwy[k] : 0.f, wd = wy[k];
+        float sw = wl + wr + wu + wd;
+        float su = 0.f, sv = 0.f;
+        if (has_l) su += wl * (u[i - 1] - u[i]), sv += wl * (v[i - 1] - v[i]);
+        if (has_r) su += wr * (u[i + 1] - u[i]), sv += wr * (v[i + 1] - v[i]);
+        if (has_u) su += wu * (u[i - w] - u[i]), sv += wu * (v[i - w] - v[i]);
+        if (has_d) su += wd * (u[i + w] - u[i]), sv += wd * (v[i + w] - v[i]);
+        a12o[k] = a12;
+        b1o[k] = b1 + su;
+        b2o[k] = b2 + sv;
+        inv1o[k] = 1.0f / (a11 + sw + 1e-9f);
+        inv2o[k] = 1.0f / (a22 + sw + 1e-9f);
+    }
+}
+
+/* assemble_run for any channel count and flags: the border pixels (scalar). */
+static void assemble_border(float *a12, float *b1, float *b2, float *inv1, float *inv2,
+                            const float *du, const float *dv, const float *wx,
+                            const float *wy, const float *hwx, int lo, const float *uwy,
+                            const float *dp, size_t n, const float *u, const float *v, size_t w, int k0,
+                            int k1, int channels, const sinew__var_params *p, int has_l,
+                            int has_r, int has_u, int has_d)
+{
+    assemble_run(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, u, v, w, k0, k1,
+                 channels, p, has_l, has_r, has_u, has_d);
+}
+
+/* Freeze the data-term penalty derivatives and assemble the per-pixel system of row y of
+ * colour c. */
+static void assemble_row(planes *P, const float *u, const float *v, int c, int y,
+                         int channels, const sinew__var_params *p)
+{
+    int w = P->w, h = P->h;
+    rbseg s = rb_seg(w, c, y);
+    if (!s.len)
+        return;
+    size_t o = rb_row(P, c, y), oh = rb_row(P, !c, y);
+    size_t ou = y > 0 ? rb_row(P, !c, y - 1) : oh;
+    size_t xo = (size_t)y * (size_t)w + (size_t)s.par;
+    const float *dp = P->ix[0] + xo;
+    size_t n = P->n;
+    float *a12 = P->a12 + o, *b1 = P->b1 + o, *b2 = P->b2 + o;
+    float *inv1 = P->inv1 + o, *inv2 = P->inv2 + o;
+    const float *du = P->du + o, *dv = P->dv + o, *wx = P->wx + o, *wy = P->wy + o;
+    const float *hwx = P->wx + oh, *uwy = P->wy + ou;
+    const float *ur = u + xo, *vr = v + xo;
+    size_t ws = (size_t)w;
+    int lo = s.par ? 0 : -1, hu = y > 0, hd = y + 1 < h;
+    if (s.first)
+        assemble_border(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
+                        0, 1, channels, p, 0, w > 1, hu, hd);
+    if (hu && hd && channels == 1)
+        assemble_run(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
+                     s.k0, s.k1, 1, p, 1, 1, 1, 1);
+    else if (hu && hd && channels == 3)
+        assemble_run(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
+                     s.k0, s.k1, 3, p, 1, 1, 1, 1);
+    else
+        assemble_border(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
+                        s.k0, s.k1, channels, p, 1, 1, hu, hd);
+    if (s.last)
+        assemble_border(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
+                        s.len - 1, s.len, channels, p, 1, 0, hu, hd);
+}
+
+static void assemble(planes *P, const float *u, const float *v, int channels,
                      const sinew__var_params *p, int nt)
 {
     (void)nt; /* unused without OpenMP */
-    float e2 = p->eps * p->eps;
+    int h = P->h;
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++)
+        for (int c = 0; c < 2; c++)
+            assemble_row(P, u, v, c, y, channels, p);
+}
+
+/* SOR update of pixels k0 .. k1 - 1 of a colour row. du .. wy: this colour's row; h*: the
+ * other colour's row (left neighbour of k at [k + lo], right at [k + lo + 1]); u*, d*: the
+ * other colour's rows above and below (pixel k's neighbours at [k]). A missing neighbour
+ * (has_* = 0) contributes weight * the pixel's own value, as the link weights are zero
+ * there (wx, wy are 0 past the last column / row; left and up weights are taken as 0). */
+RB_INLINE void sor_run(float *restrict du, float *restrict dv, const float *restrict b1,
+                           const float *restrict b2, const float *restrict a12,
+                           const float *restrict inv1, const float *restrict inv2,
+                           const float *restrict wx, const float *restrict wy,
+                           const float *restrict hdu, const float *restrict hdv,
+                           const float *restrict hwx, int lo, const float *restrict udu,
+                           const float *restrict udv, const float *restrict uwy,
+                           const float *restrict ddu, const float *restrict ddv, int k0,
+                           int k1, float omega, int has_l, int has_r, int has_u, int has_d)
+{
+    for (int k = k0; k < k1; k++) {
+        float wl = has_l ? hwx[k + lo] : 0.f, wr = wx[k];
+        float wu = has_u ? uwy[k] : 0.f, wd = wy[k];
+        float ul = has_l ? hdu[k + lo] : du[k], ur = has_r ? hdu[k + lo + 1] : du[k];
+        float uu = has_u ? udu[k] : du[k], ud = has_d ? ddu[k] : du[k];
+        float nu = wl * ul + wr * ur + wu * uu + wd * ud;
+        float un = (b1[k] + nu - a12[k] * dv[k]) * inv1[k];
+        du[k] += omega * (un - du[k]);
+        float vl = has_l ? hdv[k + lo] : dv[k], vr = has_r ? hdv[k + lo + 1] : dv[k];
+        float vu = has_u ? udv[k] : dv[k], vd = has_d ? ddv[k] : dv[k];
+        float nv = wl * vl + wr * vr + wu * vu + wd * vd;
+        float vn = (b2[k] + nv - a12[k] * du[k]) * inv2[k];
+        dv[k] += omega * (vn - dv[k]);
+    }
+}
+
+/* sor_run for any flags: the border pixels (scalar). */
+static void sor_border(float *du, float *dv, const float *b1, const float *b2,
+                       const float *a12, const float *inv1, const float *inv2,
+                       const float *wx, const float *wy, const float *hdu, const float *hdv,
+                       const float *hwx, int lo, const float *udu, const float *udv,
+                       const float *uwy, const float *ddu, const float *ddv, int k0, int k1,
+                       float omega, int has_l, int has_r, int has_u, int has_d)
+{
+    sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu, ddv,
+            k0, k1, omega, has_l, has_r, has_u, has_d);
+}
+
+/* Half-sweep update of row y of colour c (the other colour is read only). */
+static void sor_row(planes *P, int c, int y, float omega)
+{
+    int w = P->w, h = P->h;
+    rbseg s = rb_seg(w, c, y);
+    if (!s.len)
+        return;
+    size_t o = rb_row(P, c, y), oh = rb_row(P, !c, y);
+    size_t ou = y > 0 ? rb_row(P, !c, y - 1) : oh, od = y + 1 < h ? rb_row(P, !c, y + 1) : oh;
+    float *du = P->du + o, *dv = P->dv + o;
+    const float *b1 = P->b1 + o, *b2 = P->b2 + o, *a12 = P->a12 + o;
+    const float *inv1 = P->inv1 + o, *inv2 = P->inv2 + o, *wx = P->wx + o, *wy = P->wy + o;
+    const float *hdu = P->du + oh, *hdv = P->dv + oh, *hwx = P->wx + oh;
+    const float *udu = P->du + ou, *udv = P->dv + ou, *uwy = P->wy + ou;
+    const float *ddu = P->du + od, *ddv = P->dv + od;
+    int lo = s.par ? 0 : -1, hu = y > 0, hd = y + 1 < h;
+    if (s.first)
+        sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy,
+                   ddu, ddv, 0, 1, omega, 0, w > 1, hu, hd);
+    if (hu && hd)
+        sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu,
+                ddv, s.k0, s.k1, omega, 1, 1, 1, 1);
+    else
+        sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy,
+                   ddu, ddv, s.k0, s.k1, omega, 1, 1, hu, hd);
+    if (s.last)
+        sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy,
+                   ddu, ddv, s.len - 1, s.len, omega, 1, 0, hu, hd);
+}
+
+/* One half-sweep over the pixels of colour c = (x + y) % 2. */
+static void sor_half(planes *P, int colour, float omega, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    int h = P->h;
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++)
+        sor_row(P, colour, y, omega);
+}
+
+/* Edge-aware smoothness weight from the frame-0 luminance gradient, in the split layout. */
+static void edge_weights(planes *P, const sinew__level *l0, float edge, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    int w = P->w, h = P->h;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
-        size_t o = (size_t)y * (size_t)w;
-        for (int x = 0; x < w; x++) {
-            size_t i = o + (size_t)x;
-            float du = P->du[i], dv = P->dv[i];
-            float j11 = 0.f, j12 = 0.f, j22 = 0.f, j13 = 0.f, j23 = 0.f, r2 = 0.f;
-            for (int c = 0; c < channels; c++) {
-                float ix = P->ix[c][i], iy = P->iy[c][i], it = P->it[c][i];
-                float r = it + ix * du + iy * dv;
-                r2 += r * r;
-                j11 += ix * ix;
-                j12 += ix * iy;
-                j22 += iy * iy;
-                j13 += ix * it;
-                j23 += iy * it;
+        for (int c = 0; c < 2; c++) {
+            int par = rb_par(c, y), len = rb_len(w, c, y);
+            float *eg = P->edge + rb_row(P, c, y);
+            const float *gx = l0->gx + (size_t)y * (size_t)w + par;
+            const float *gy = l0->gy + (size_t)y * (size_t)w + par;
+            for (int k = 0; k < len; k++) {
+                size_t i = 2 * (size_t)k;
+                eg[k] = expf(-edge * sqrtf(gx[i] * gx[i] + gy[i] * gy[i]));
             }
-            float pd = p->delta / sqrtf(r2 + e2);
-            float lxx = P->lxx[i], lxy = P->lxy[i], lyy = P->lyy[i];
-            float lxt = P->lxt[i], lyt = P->lyt[i];
-            float gx = lxt + lxx * du + lxy * dv, gy = lyt + lxy * du + lyy * dv;
-            float pg = p->gamma / sqrtf(gx * gx + gy * gy + e2);
-            float a11 = pd * j11 + pg * (lxx * lxx + lxy * lxy);
-            float a12 = pd * j12 + pg * (lxx * lxy + lxy * lyy);
-            float a22 = pd * j22 + pg * (lxy * lxy + lyy * lyy);
-            float b1 = -(pd * j13 + pg * (lxx * lxt + lxy * lyt));
-            float b2 = -(pd * j23 + pg * (lxy * lxt + lyy * lyt));
-            /* smoothness: sum_n w_n (u_n - u) moves to the right-hand side */
-            float wl = x > 0 ? P->wx[i - 1] : 0.f, wr = P->wx[i];
-            float wu = y > 0 ? P->wy[i - (size_t)w] : 0.f, wd = P->wy[i];
-            float sw = wl + wr + wu + wd;
-            float su = 0.f, sv = 0.f;
-            if (x > 0) su += wl * (u[i - 1] - u[i]), sv += wl * (v[i - 1] - v[i]);
-            if (x + 1 < w) su += wr * (u[i + 1] - u[i]), sv += wr * (v[i + 1] - v[i]);
-            if (y > 0) su += wu * (u[i - (size_t)w] - u[i]), sv += wu * (v[i - (size_t)w] - v[i]);
-            if (y + 1 < h) su += wd * (u[i + (size_t)w] - u[i]), sv += wd * (v[i + (size_t)w] - v[i]);
-            P->a12[i] = a12;
-            P->b1[i] = b1 + su;
-            P->b2[i] = b2 + sv;
-            P->inv1[i] = 1.0f / (a11 + sw + 1e-9f);
-            P->inv2[i] = 1.0f / (a22 + sw + 1e-9f);
         }
     }
 }
 
-static inline void sor_pixel(planes *P, size_t i, float wl, float wr, float wu, float wd,
-                             size_t il, size_t ir, size_t iu, size_t id, float omega)
-{
-    float *du = P->du, *dv = P->dv;
-    float nu = wl * du[il] + wr * du[ir] + wu * du[iu] + wd * du[id];
-    float un = (P->b1[i] + nu - P->a12[i] * dv[i]) * P->inv1[i];
-    du[i] += omega * (un - du[i]);
-    float nv = wl * dv[il] + wr * dv[ir] + wu * dv[iu] + wd * dv[id];
-    float vn = (P->b2[i] + nv - P->a12[i] * du[i]) * P->inv2[i];
-    dv[i] += omega * (vn - dv[i]);
-}
-
-/* One half-sweep over the pixels with (x + y) % 2 == colour. */
-static void sor_half(planes *P, int w, int h, int colour, float omega, int nt)
+/* u += du, v += dv, with du, dv in the split layout. */
+static void add_increment(float *u, float *v, const planes *P, int nt)
 {
     (void)nt; /* unused without OpenMP */
+    int w = P->w, h = P->h;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
+        /* even x have colour y & 1, odd x the other one */
         size_t o = (size_t)y * (size_t)w;
-        size_t ou = y > 0 ? o - (size_t)w : o, od = y + 1 < h ? o + (size_t)w : o;
-        const float *wyu = y > 0 ? P->wy + ou : P->zero;
-        const float *wx = P->wx + o, *wy = P->wy + o;
-        for (int x = (y + colour) & 1; x < w; x += 2) {
-            size_t i = o + (size_t)x;
-            size_t il = x > 0 ? i - 1 : i, ir = x + 1 < w ? i + 1 : i;
-            float wl = x > 0 ? wx[x - 1] : 0.f;
-            sor_pixel(P, i, wl, wx[x], wyu[x], wy[x], il, ir, ou + (size_t)x, od + (size_t)x,
-                      omega);
+        size_t oe = rb_row(P, y & 1, y), oo = rb_row(P, !(y & 1), y);
+        float *restrict ur = u + o, *restrict vr = v + o;
+        const float *restrict due = P->du + oe, *restrict dve = P->dv + oe;
+        const float *restrict duo = P->du + oo, *restrict dvo = P->dv + oo;
+        int pairs = w / 2;
+        for (int k = 0; k < pairs; k++) {
+            ur[2 * k] += due[k];
+            ur[2 * k + 1] += duo[k];
+            vr[2 * k] += dve[k];
+            vr[2 * k + 1] += dvo[k];
+        }
+        if (w & 1) {
+            ur[w - 1] += due[pairs];
+            vr[w - 1] += dve[pairs];
         }
     }
 }
@@ -248,26 +533,18 @@ void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__l
     int w = l0->w, h = l0->h;
     size_t n = (size_t)w * (size_t)h;
     planes P;
-    layout(&P, work, channels, n);
-    memset(P.zero, 0, (size_t)w * sizeof(float));
+    layout(&P, work, channels, w, h);
     derivatives(&P, u, v, l0, l1, channels, mask, nt);
-    /* edge-aware weight from the frame-0 luminance gradient */
-    SINEW_PARALLEL_FOR(nt)
-    for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
-        P.edge[i] = expf(-p->edge * sqrtf(l0->gx[i] * l0->gx[i] + l0->gy[i] * l0->gy[i]));
+    edge_weights(&P, l0, p->edge, nt);
     memset(P.du, 0, n * sizeof(float));
     memset(P.dv, 0, n * sizeof(float));
     for (int k = 0; k < p->outer; k++) {
-        smooth_weights(&P, u, v, w, h, p->alpha, p->eps, nt);
-        assemble(&P, u, v, w, h, channels, p, nt);
+        smooth_weights(&P, u, v, p->alpha, p->eps, nt);
+        assemble(&P, u, v, channels, p, nt);
         for (int s = 0; s < p->inner; s++) {
-            sor_half(&P, w, h, 0, p->omega, nt);
-            sor_half(&P, w, h, 1, p->omega, nt);
+            sor_half(&P, 0, p->omega, nt);
+            sor_half(&P, 1, p->omega, nt);
         }
     }
-    SINEW_PARALLEL_FOR(nt)
-    for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++) {
-        u[i] += P.du[i];
-        v[i] += P.dv[i];
-    }
+    add_increment(u, v, &P, nt);
 }

@@ -29,7 +29,9 @@
  * black planes. Border pixels (first / last column, first / last row) take the scalar
  * path with the same arithmetic; the interior loops vectorise. The split planes are
  * packed (w*h floats each); derivative planes stay row-major, and du, dv go back to the
- * row-major u, v once per warp. Results are bit-identical to a row-major sweep. */
+ * row-major u, v once per warp. Sweeps run several at a time as a wavefront over rows
+ * (sor_sweeps) so the rows in flight stay in cache. Results are bit-identical to plain
+ * row-major half-sweeps, for any thread count. */
 #include <math.h>
 #include <string.h>
 
@@ -469,14 +471,70 @@ static void sor_row(planes *P, int c, int y, float omega)
                    ddu, ddv, s.len - 1, s.len, omega, 1, 0, hu, hd);
 }
 
-/* One half-sweep over the pixels of colour c = (x + y) % 2. */
-static void sor_half(planes *P, int colour, float omega, int nt)
+/* ---- sweep schedule ----
+ * Stage j of a pass updates colour j & 1 (red, black, red, ...); the stage-j update of row
+ * y reads the other colour in rows y - 1 .. y + 1 as left by stage j - 1 and overwrites the
+ * values its own colour had after stage j - 2. Any order that respects this gives the
+ * same bits as whole half-sweeps one after the other. A pass runs `stages` stages as a
+ * wavefront over rows (step t: stage j on row t - j, j ascending), so the few rows in
+ * flight stay in cache instead of every half-sweep streaming all planes from memory.
+ * With T threads the rows are cut into T chunks: each chunk first runs the trapezoid
+ * that needs nothing from its neighbours (stage j on rows [a + j, b - j), the image
+ * borders are not cut), then each inner chunk boundary a fills its triangle (stage j on
+ * rows [a - j, a + j)). Chunks are at least 2 * stages rows tall so the triangles of
+ * different boundaries never touch. */
+
+/* Stages per pass (4 sweeps). A pass keeps about stages + 2 rows of the nine split planes
+ * in flight (~0.2 MB at 640 pixels wide). Measured on a 640x480 pair, single thread: 2
+ * stages (red and black fused) already take 20% off the SOR time, 8 take 28%, 20 or 30
+ * no more than 8. */
+#define SOR_STAGES 8
+
+/* Stage j of the pass on row y of a chunk [a, b) or boundary region, if in range. */
+static void sor_trapezoid(planes *P, int a, int b, int stages, float omega)
 {
-    (void)nt; /* unused without OpenMP */
+    int h = P->h, cut_a = a > 0, cut_b = b < h;
+    for (int t = a; t < b + stages - 1; t++)
+        for (int j = 0; j < stages; j++) {
+            int y = t - j;
+            if (y >= a + j * cut_a && y < b - j * cut_b)
+                sor_row(P, j & 1, y, omega);
+        }
+}
+
+/* Triangle of chunk boundary a: stage j on rows [a - j, a + j). */
+static void sor_triangle(planes *P, int a, int stages, float omega)
+{
+    for (int t = a - stages; t < a + 2 * stages; t++)
+        for (int j = 1; j < stages; j++) {
+            int y = t - j;
+            if (y >= a - j && y < a + j)
+                sor_row(P, j & 1, y, omega);
+        }
+}
+
+/* `sweeps` red-black sweeps (a sweep: all red pixels, then all black ones). */
+static void sor_sweeps(planes *P, int sweeps, float omega, int nt)
+{
     int h = P->h;
-    SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < h; y++)
-        sor_row(P, colour, y, omega);
+    for (int done = 0; done < 2 * sweeps; done += SOR_STAGES) {
+        int stages = 2 * sweeps - done < SOR_STAGES ? 2 * sweeps - done : SOR_STAGES;
+        int chunks = sinew__nthreads(nt);
+        if (chunks > h / (2 * stages))
+            chunks = h / (2 * stages);
+        if (chunks < 1)
+            chunks = 1;
+        SINEW_PARALLEL_FOR(nt)
+        for (int c = 0; c < chunks; c++) {
+            int a = (int)((long long)c * h / chunks), b = (int)((long long)(c + 1) * h / chunks);
+            sor_trapezoid(P, a, b, stages, omega);
+        }
+        if (chunks > 1) {
+            SINEW_PARALLEL_FOR(nt)
+            for (int c = 1; c < chunks; c++)
+                sor_triangle(P, (int)((long long)c * h / chunks), stages, omega);
+        }
+    }
 }
 
 /* Edge-aware smoothness weight from the frame-0 luminance gradient, in the split layout. */
@@ -541,10 +599,7 @@ void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__l
     for (int k = 0; k < p->outer; k++) {
         smooth_weights(&P, u, v, p->alpha, p->eps, nt);
         assemble(&P, u, v, channels, p, nt);
-        for (int s = 0; s < p->inner; s++) {
-            sor_half(&P, 0, p->omega, nt);
-            sor_half(&P, 1, p->omega, nt);
-        }
+        sor_sweeps(&P, p->inner, p->omega, nt);
     }
     add_increment(u, v, &P, nt);
 }

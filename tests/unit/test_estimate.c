@@ -201,20 +201,27 @@ static void test_estimate_rotation(void **state)
     sinew_ctx_free(ctx);
 }
 
-static void run_threads(const char *preset, int threads, int ch, sinew_image *out, sinew_image *bwd)
+/* Flow of a w x h pair rotated by 4 degrees about (0.38 w, 0.4 h). bwd may be NULL. */
+static void run_sized(const char *preset, int threads, int w, int h, int ch, sinew_image *out,
+                      sinew_image *bwd)
 {
     sinew_ctx *ctx = sinew_ctx_new();
     assert_int_equal(sinew_ctx_set_threads(ctx, threads), SINEW_OK);
-    double a[3] = {4.0 * PI / 180.0, 50.0, 40.0};
+    double a[3] = {4.0 * PI / 180.0, 0.38 * w, 0.4 * h};
     sinew_image f0, f1;
-    make_frame(ctx, &f0, 133, 101, ch, NULL, NULL);
-    make_frame(ctx, &f1, 133, 101, ch, map_rot, a);
+    make_frame(ctx, &f0, w, h, ch, NULL, NULL);
+    make_frame(ctx, &f1, w, h, ch, map_rot, a);
     sinew_estimator *e = new_est(ctx, preset);
     assert_int_equal(sinew_estimator_run(e, out, bwd, &f0, &f1), SINEW_OK);
     sinew_estimator_free(e);
     sinew_image_free(&f0);
     sinew_image_free(&f1);
     sinew_ctx_free(ctx);
+}
+
+static void run_threads(const char *preset, int threads, int ch, sinew_image *out, sinew_image *bwd)
+{
+    run_sized(preset, threads, 133, 101, ch, out, bwd);
 }
 
 static void test_estimate_threads_bit_identical(void **state)
@@ -253,6 +260,33 @@ static int flows_equal(const sinew_image *a, const sinew_image *b)
         if (memcmp(sinew_image_row(a, y), sinew_image_row(b, y), (size_t)a->width * 8))
             return 0;
     return 1;
+}
+
+/* Frames down to one pixel wide or tall reach every border case of the red/black solver
+ * (first and last row, first and last column, rows with no pixel of one colour, thread
+ * blocks of odd width): the flow is finite and the same for 1 and 2 threads. */
+static void test_estimate_thin_frames_thread_identical(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    const int sizes[][2] = {{1, 9}, {9, 1}, {2, 3}, {3, 2}, {7, 40}, {41, 50}};
+    const char *presets[] = {"fast", "balanced", "accurate"};
+    for (size_t i = 0; i < sizeof sizes / sizeof sizes[0]; i++)
+        for (int k = 0; k < 3; k++) {
+            int w = sizes[i][0], h = sizes[i][1];
+            sinew_image ref, o;
+            assert_int_equal(sinew_image_alloc(ctx, &ref, w, h, 2, SINEW_F32), SINEW_OK);
+            assert_int_equal(sinew_image_alloc(ctx, &o, w, h, 2, SINEW_F32), SINEW_OK);
+            run_sized(presets[k], 1, w, h, k == 1 ? 3 : 1, &ref, NULL);
+            run_sized(presets[k], 2, w, h, k == 1 ? 3 : 1, &o, NULL);
+            assert_true(flows_equal(&ref, &o));
+            for (int y = 0; y < h; y++)
+                for (int x = 0; x < 2 * w; x++)
+                    assert_true(isfinite(sinew_image_row_f32(&ref, y)[x]));
+            sinew_image_free(&ref);
+            sinew_image_free(&o);
+        }
+    sinew_ctx_free(ctx);
 }
 
 /* A sequence run (pyramid of frame 1 reused as frame 0) gives the same bits as a fresh
@@ -455,6 +489,7 @@ int main(void)
         cmocka_unit_test(test_estimate_colour_translation),
         cmocka_unit_test(test_estimate_rotation),
         cmocka_unit_test(test_estimate_threads_bit_identical),
+        cmocka_unit_test(test_estimate_thin_frames_thread_identical),
         cmocka_unit_test(test_estimate_sequence_reuse),
         cmocka_unit_test(test_estimate_bad_arguments),
         cmocka_unit_test(test_estimate_alloc_failure_is_clean),

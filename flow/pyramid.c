@@ -300,72 +300,89 @@ void sinew__warp(float *dst, unsigned char *outside, const float *src, const flo
     }
 }
 
-#define CSWAP(a, b)                                                                          \
-    do {                                                                                     \
-        float lo_ = fminf(a, b), hi_ = fmaxf(a, b);                                          \
-        a = lo_;                                                                             \
-        b = hi_;                                                                             \
-    } while (0)
+/* Median filtering with comparator networks. The networks below are Batcher's odd-even
+ * merge sort (Batcher 1968) on 16 / 32 wires, restricted to the 9 / 25 real inputs and
+ * pruned to the comparators that the middle output depends on (generated offline; the
+ * unit test compares the result with a sort). Each entry {i, j, k}: k = 0 exchange
+ * (min to i, max to j), 1 only the minimum to i is needed, 2 only the maximum to j.
+ * A block of MED_LANES neighbouring pixels runs through the network together, one array
+ * per input wire, so each comparator is a short vectorisable loop. */
+static const unsigned char med9_net[][3] = {
+    {0, 1, 0}, {2, 3, 0}, {0, 2, 0}, {1, 3, 0}, {1, 2, 0}, {4, 5, 0}, {6, 7, 0}, {4, 6, 0},
+    {5, 7, 0}, {5, 6, 0}, {0, 4, 0}, {2, 6, 0}, {2, 4, 0}, {1, 5, 0}, {3, 7, 1}, {3, 5, 0},
+    {1, 2, 2}, {3, 4, 0}, {5, 6, 1}, {0, 8, 2}, {4, 8, 1}, {2, 4, 2}, {3, 5, 1}, {3, 4, 2}
+};
+static const unsigned char med25_net[][3] = {
+    {0, 1, 0}, {2, 3, 0}, {0, 2, 0}, {1, 3, 0}, {1, 2, 0}, {4, 5, 0}, {6, 7, 0}, {4, 6, 0},
+    {5, 7, 0}, {5, 6, 0}, {0, 4, 0}, {2, 6, 0}, {2, 4, 0}, {1, 5, 0}, {3, 7, 0}, {3, 5, 0},
+    {1, 2, 0}, {3, 4, 0}, {5, 6, 0}, {8, 9, 0}, {10, 11, 0}, {8, 10, 0}, {9, 11, 0}, {9, 10,
+    0}, {12, 13, 0}, {14, 15, 0}, {12, 14, 0}, {13, 15, 0}, {13, 14, 0}, {8, 12, 0}, {10,
+    14, 0}, {10, 12, 0}, {9, 13, 0}, {11, 15, 0}, {11, 13, 0}, {9, 10, 0}, {11, 12, 0}, {13,
+    14, 0}, {0, 8, 0}, {4, 12, 0}, {4, 8, 0}, {2, 10, 0}, {6, 14, 0}, {6, 10, 0}, {2, 4, 0},
+    {6, 8, 0}, {10, 12, 0}, {1, 9, 0}, {5, 13, 0}, {5, 9, 0}, {3, 11, 0}, {7, 15, 1}, {7,
+    11, 0}, {3, 5, 0}, {7, 9, 0}, {11, 13, 0}, {1, 2, 0}, {3, 4, 0}, {5, 6, 0}, {7, 8, 0},
+    {9, 10, 0}, {11, 12, 0}, {13, 14, 1}, {16, 17, 0}, {18, 19, 0}, {16, 18, 0}, {17, 19,
+    0}, {17, 18, 0}, {20, 21, 0}, {22, 23, 0}, {20, 22, 0}, {21, 23, 0}, {21, 22, 0}, {16,
+    20, 0}, {18, 22, 0}, {18, 20, 0}, {17, 21, 0}, {19, 23, 0}, {19, 21, 0}, {17, 18, 0},
+    {19, 20, 0}, {21, 22, 0}, {16, 24, 0}, {20, 24, 0}, {18, 20, 0}, {22, 24, 0}, {19, 21,
+    0}, {17, 18, 0}, {19, 20, 0}, {21, 22, 0}, {23, 24, 0}, {0, 16, 2}, {8, 24, 1}, {8, 16,
+    2}, {4, 20, 2}, {12, 20, 1}, {12, 16, 1}, {2, 18, 2}, {10, 18, 1}, {6, 22, 1}, {6, 10,
+    2}, {10, 12, 2}, {1, 17, 2}, {9, 17, 2}, {5, 21, 2}, {13, 21, 1}, {13, 17, 1}, {3, 19,
+    2}, {11, 19, 1}, {7, 23, 1}, {7, 11, 2}, {11, 13, 1}, {11, 12, 2}
+};
 
-/* Median of 9 by the classic exchange network (19 compare-swaps). */
-static float median9(float *p)
-{
-    CSWAP(p[1], p[2]); CSWAP(p[4], p[5]); CSWAP(p[7], p[8]);
-    CSWAP(p[0], p[1]); CSWAP(p[3], p[4]); CSWAP(p[6], p[7]);
-    CSWAP(p[1], p[2]); CSWAP(p[4], p[5]); CSWAP(p[7], p[8]);
-    CSWAP(p[0], p[3]); CSWAP(p[5], p[8]); CSWAP(p[4], p[7]);
-    CSWAP(p[3], p[6]); CSWAP(p[1], p[4]); CSWAP(p[2], p[5]);
-    CSWAP(p[4], p[7]); CSWAP(p[4], p[2]); CSWAP(p[6], p[4]);
-    CSWAP(p[4], p[2]);
-    return p[4];
-}
+#define MED_LANES 64
 
-/* k-th smallest of n values (quickselect, Hoare partition); order of p is destroyed. */
-static float select_kth(float *p, int n, int k)
+static inline void med_compare(float *restrict a, float *restrict b, int kind)
 {
-    int lo = 0, hi = n - 1;
-    while (lo < hi) {
-        float pivot = p[(lo + hi) / 2];
-        int i = lo, j = hi;
-        while (i <= j) {
-            while (p[i] < pivot) i++;
-            while (p[j] > pivot) j--;
-            if (i <= j) {
-                float t = p[i];
-                p[i] = p[j];
-                p[j] = t;
-                i++;
-                j--;
-            }
-        }
-        if (k <= j)
-            hi = j;
-        else if (k >= i)
-            lo = i;
-        else
-            return p[k];
+    if (kind == 0) {
+        float hi[MED_LANES];
+        for (int i = 0; i < MED_LANES; i++)
+            hi[i] = a[i] < b[i] ? b[i] : a[i];
+        for (int i = 0; i < MED_LANES; i++)
+            a[i] = a[i] < b[i] ? a[i] : b[i];
+        memcpy(b, hi, sizeof hi);
+    } else if (kind == 1) {
+        for (int i = 0; i < MED_LANES; i++)
+            a[i] = a[i] < b[i] ? a[i] : b[i];
+    } else {
+        for (int i = 0; i < MED_LANES; i++)
+            b[i] = a[i] < b[i] ? b[i] : a[i];
     }
-    return p[k];
 }
 
 void sinew__median(float *dst, const float *src, int w, int h, int r, int nt)
 {
     (void)nt; /* unused without OpenMP */
+    const unsigned char(*net)[3] = r == 1 ? med9_net : med25_net;
+    int ncmp = r == 1 ? (int)(sizeof med9_net / sizeof med9_net[0])
+                      : (int)(sizeof med25_net / sizeof med25_net[0]);
+    int side = 2 * r + 1, mid = side * side / 2;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
-        float buf[49];
-        for (int x = 0; x < w; x++) {
-            int n = 0;
+        float buf[25][MED_LANES];
+        for (int x0 = 0; x0 < w; x0 += MED_LANES) {
+            int q = 0;
             for (int dy = -r; dy <= r; dy++) {
                 int yy = y + dy < 0 ? 0 : (y + dy >= h ? h - 1 : y + dy);
                 const float *row = src + (size_t)yy * (size_t)w;
-                for (int dx = -r; dx <= r; dx++) {
-                    int xx = x + dx < 0 ? 0 : (x + dx >= w ? w - 1 : x + dx);
-                    buf[n++] = row[xx];
+                for (int dx = -r; dx <= r; dx++, q++) {
+                    int first = x0 + dx, last = x0 + MED_LANES - 1 + dx;
+                    if (first >= 0 && last < w) {
+                        memcpy(buf[q], row + first, sizeof buf[q]);
+                    } else {
+                        /* clamped borders; lanes past the row end repeat the last pixel */
+                        for (int i = 0; i < MED_LANES; i++) {
+                            int xx = first + i < 0 ? 0 : (first + i >= w ? w - 1 : first + i);
+                            buf[q][i] = row[xx];
+                        }
+                    }
                 }
             }
-            dst[(size_t)y * (size_t)w + (size_t)x] =
-                r == 1 ? median9(buf) : select_kth(buf, n, n / 2);
+            for (int c = 0; c < ncmp; c++)
+                med_compare(buf[net[c][0]], buf[net[c][1]], net[c][2]);
+            int nb = w - x0 < MED_LANES ? w - x0 : MED_LANES;
+            memcpy(dst + (size_t)y * (size_t)w + (size_t)x0, buf[mid], (size_t)nb * sizeof(float));
         }
     }
 }

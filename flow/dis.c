@@ -84,7 +84,8 @@ static float patch_error(float *restrict e, const float *restrict s, const float
 }
 
 static void search_patch(float *pu, float *pv, const sinew__level *l0, const sinew__level *l1,
-                         int x0, int y0, int ps, int iters, float u0, float v0)
+                         int x0, int y0, int ps, int iters, float max_move, float u0,
+                         float v0)
 {
     float t[MAXPS * MAXPS], gx[MAXPS * MAXPS], gy[MAXPS * MAXPS];
     float s[MAXPS * MAXPS], e[MAXPS * MAXPS];
@@ -134,7 +135,7 @@ static void search_patch(float *pu, float *pv, const sinew__level *l0, const sin
     sample_patch(s, l1->lum, l1->w, l1->h, x0, y0, u, v, ps);
     float last = patch_error(e, s, t, mt, n);
     float ddu = u - u0, ddv = v - v0;
-    if (!(last <= first) || ddu * ddu + ddv * ddv > (float)(ps * ps))
+    if (!(last <= first) || ddu * ddu + ddv * ddv > max_move * max_move)
         return;
     *pu = u;
     *pv = v;
@@ -155,7 +156,7 @@ void sinew__dis_level(float *u, float *v, const sinew__level *l0, const sinew__l
             int x0 = patch_origin(i, st, w, ps);
             size_t c = (size_t)(y0 + ps / 2) * (size_t)w + (size_t)(x0 + ps / 2);
             search_patch(&pu[(size_t)j * nx + i], &pv[(size_t)j * nx + i], l0, l1, x0, y0, ps,
-                         p->iters, u[c], v[c]);
+                         p->iters, p->max_move, u[c], v[c]);
         }
     }
     /* densification: gather per pixel row */

@@ -58,6 +58,9 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         .eps = 0.001f,
         .omega = 1.6f,
         .median = 0,
+        .wmedian = 7,
+        .wmedian_levels = SINEW__MAX_LEVELS,
+        .wmedian_band = 0.5f,
         .color = 1,
         .hs_iters = 0,
     };
@@ -68,6 +71,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.finest_level = 1;
         d.outer = 3;
         d.inner = 5;
+        d.wmedian = 5;
     } else if (!strcmp(name, "balanced")) {
         d.dis_finest = 1;
         d.dis_stride = 4;
@@ -88,6 +92,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.warps = 2;
         d.alpha = 0.02f;
         d.hs_iters = 60;
+        d.wmedian = 0;
     } else {
         return SINEW_EINVAL;
     }
@@ -127,6 +132,9 @@ int sinew_flow_params_check(sinew_ctx *ctx, const sinew_flow_params *p)
     RANGE_F(eps, 1e-9, 1e3);
     RANGE_F(omega, 0.01, 1.99);
     RANGE_I(median, 0, 2);
+    RANGE_I(wmedian, 0, 10);
+    RANGE_I(wmedian_levels, 1, SINEW__MAX_LEVELS);
+    RANGE_F(wmedian_band, 1e-6, 1e6);
     RANGE_I(color, 0, 1);
     RANGE_I(hs_iters, 0, 10000);
     return SINEW_OK;
@@ -232,7 +240,7 @@ static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
         fail = 1;
     e->work = alloc_floats(ctx, wf, &fail);
     /* patch grid at the finest level that may run patch search (level 0 worst case) */
-    sinew__dis_params dp = {e->p.dis_patch, e->p.dis_stride, e->p.dis_iters};
+    sinew__dis_params dp = {e->p.dis_patch, e->p.dis_stride, e->p.dis_iters, 0.f};
     int nx, ny;
     sinew__dis_grid(w, h, &dp, &nx, &ny);
     e->pu = alloc_floats(ctx, (size_t)nx * (size_t)ny, &fail);
@@ -327,9 +335,10 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
         memset(u, 0, n * sizeof(float));
         memset(v, 0, n * sizeof(float));
     }
-    sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters};
+    sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters, (float)p->dis_patch};
     sinew__var_params vp = {p->alpha, p->gamma, p->delta, p->edge, p->eps, p->omega,
                             p->outer, p->inner};
+    sinew__wmed_params wp = {p->wmedian, 7.f, 7.f, 0.3f, 20.f, p->wmedian_band};
     for (int s = top; s >= finest; s--) {
         const sinew__level *l0 = &a->lv[s], *l1 = &b->lv[s];
         if (s < top) {
@@ -340,18 +349,34 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
         }
         if (p->dis_finest >= 0 && s >= p->dis_finest && l0->w >= p->dis_patch &&
             l0->h >= p->dis_patch)
+        {
+            /* a patch may move up to one patch size from its start, half of that at the
+             * finest patch level, where the coarse flow is already close and repeated
+             * texture (facades, stripes) offers wrong minima one period away */
+            dp.max_move = (float)p->dis_patch * (s == p->dis_finest ? 0.5f : 1.0f);
             sinew__dis_level(u, v, l0, l1, &dp, e->pu, e->pv, e->work, nt);
+        }
         for (int k = 0; k < p->warps; k++) {
             if (p->method == SINEW_FLOW_HORN_SCHUNCK)
                 sinew__hs_level(u, v, l0, l1, p->alpha, p->hs_iters, e->work, e->mask, nt);
             else
                 sinew__var_level(u, v, l0, l1, e->channels, &vp, e->work, e->mask, nt);
+            int wm = p->wmedian > 0 && s < finest + p->wmedian_levels;
+            size_t n = (size_t)l0->w * (size_t)l0->h;
             if (p->median > 0) {
                 sinew__median(u2, u, l0->w, l0->h, p->median, nt);
                 sinew__median(v2, v, l0->w, l0->h, p->median, nt);
+            } else if (wm) {
+                memcpy(u2, u, n * sizeof(float));
+                memcpy(v2, v, n * sizeof(float));
+            }
+            if (p->median > 0 || wm) {
                 float *t = u; u = u2; u2 = t;
                 t = v; v = v2; v2 = t;
             }
+            /* boundary pixels: weighted median of the flow before the plain median */
+            if (wm)
+                sinew__wmedian(u, v, u2, v2, l0, l1, e->channels, &wp, e->work, nt);
         }
     }
     if (finest > 0) {

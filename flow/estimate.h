@@ -45,6 +45,11 @@ typedef struct sinew_flow_params {
     float omega;      /* SOR relaxation, in (0, 2) */
     int median;       /* median filter radius after each warp: 0 off, 1 = 3x3, 2 = 5x5
                          (Sun, Roth, Black 2010) */
+    int wmedian;      /* occlusion-aware weighted median (Sun, Roth, Black 2010) near motion
+                         boundaries after each warp: window radius 1..10, 0 = off */
+    int wmedian_levels; /* ... at the finest this many computed levels, 1..12 */
+    float wmedian_band; /* boundary test: flow differs by more than this (L1, px) within
+                           a 5x5 neighbourhood, > 0 */
     int color;        /* 1: RGB frames use a 3-channel data term; 0: luminance only */
     int hs_iters;     /* Jacobi iterations per warp for SINEW_FLOW_HORN_SCHUNCK */
 } sinew_flow_params;

@@ -48,6 +48,11 @@ static void usage(FILE *out)
             "  --delta X             brightness/colour-constancy weight\n"
             "  --edge X              edge-aware smoothness strength (0 = off)\n"
             "  --median N            median filter radius after each warp (0, 1, 2)\n"
+            "  --wmedian N           occlusion-aware weighted median near motion boundaries\n"
+            "                        after each warp: window radius 1..10 (0 = off)\n"
+            "  --wmedian-levels N    ... at the finest N computed levels\n"
+            "  --wmedian-band X      boundary test: flow differs by more than X px (L1)\n"
+            "                        within 5x5 pixels\n"
             "  --gray                use luminance only, even for colour frames\n"
             "\n"
             "examples:\n"
@@ -64,7 +69,8 @@ static void usage(FILE *out)
 
 enum {
     O_LEVELS = 256, O_FINEST, O_PFINEST, O_PSIZE, O_PSTRIDE, O_PITERS, O_WARPS, O_OUTER,
-    O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_GRAY, O_CHECK
+    O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_WMEDIAN, O_WMEDIAN_LEVELS,
+    O_WMEDIAN_BAND, O_GRAY, O_CHECK
 };
 
 /* Apply one advanced option to p; returns 0 or -1 if the value does not parse. */
@@ -72,7 +78,8 @@ static int set_param(sinew_flow_params *p, int opt, const char *arg)
 {
     long iv = 0;
     double dv = 0;
-    int isint = opt != O_ALPHA && opt != O_GAMMA && opt != O_DELTA && opt != O_EDGE;
+    int isint = opt != O_ALPHA && opt != O_GAMMA && opt != O_DELTA && opt != O_EDGE &&
+                opt != O_WMEDIAN_BAND;
     if (isint ? cli_parse_int(arg, -1, 100000, &iv) : cli_parse_double(arg, &dv))
         return -1;
     switch (opt) {
@@ -90,6 +97,9 @@ static int set_param(sinew_flow_params *p, int opt, const char *arg)
     case O_DELTA: p->delta = (float)dv; break;
     case O_EDGE: p->edge = (float)dv; break;
     case O_MEDIAN: p->median = (int)iv; break;
+    case O_WMEDIAN: p->wmedian = (int)iv; break;
+    case O_WMEDIAN_LEVELS: p->wmedian_levels = (int)iv; break;
+    case O_WMEDIAN_BAND: p->wmedian_band = (float)dv; break;
     default: return -1;
     }
     return 0;
@@ -124,6 +134,9 @@ int cmd_flow(int argc, char **argv)
         {"delta", required_argument, NULL, O_DELTA},
         {"edge", required_argument, NULL, O_EDGE},
         {"median", required_argument, NULL, O_MEDIAN},
+        {"wmedian", required_argument, NULL, O_WMEDIAN},
+        {"wmedian-levels", required_argument, NULL, O_WMEDIAN_LEVELS},
+        {"wmedian-band", required_argument, NULL, O_WMEDIAN_BAND},
         {"gray", no_argument, NULL, O_GRAY},
         {NULL, 0, NULL, 0},
     };

@@ -78,6 +78,7 @@ void sinew__median(float *dst, const float *src, int w, int h, int r, int nt);
 /* ---- dense inverse search (Kroeger et al. 2016) at one level ---- */
 typedef struct sinew__dis_params {
     int patch, stride, iters;
+    float max_move; /* a patch whose search moves further than this (px) keeps its start */
 } sinew__dis_params;
 /* Patch-grid size for a level. */
 void sinew__dis_grid(int w, int h, const sinew__dis_params *p, int *nx, int *ny);
@@ -100,6 +101,20 @@ int sinew__var_planes(int channels);
 void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
                       int channels, const sinew__var_params *p, float *work,
                       unsigned char *mask, int nt);
+
+/* ---- occlusion-aware weighted median near motion boundaries (flow/wmedian.c) ---- */
+typedef struct sinew__wmed_params {
+    int radius;                        /* window radius, 1..10 */
+    float sigma_space, sigma_color;    /* pixels; intensity in 0..255 units */
+    float sigma_div, sigma_err;        /* divergence (px/px); intensity 0..255 units */
+    float band;                        /* boundary test: L1 flow difference in a 5x5, px */
+} sinew__wmed_params;
+/* Replace (uo, vo) at boundary pixels of the flow (u, v) by its weighted median; other
+ * pixels of (uo, vo) are left untouched. (uo, vo) must not alias (u, v). occ: w*h
+ * floats of scratch. */
+void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
+                    const sinew__level *l0, const sinew__level *l1, int channels,
+                    const sinew__wmed_params *p, float *occ, int nt);
 
 /* ---- coarse-to-fine Horn-Schunck baseline (Horn and Schunck 1981) ---- */
 int sinew__hs_planes(void);

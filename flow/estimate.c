@@ -338,7 +338,8 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
     sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters, (float)p->dis_patch};
     sinew__var_params vp = {p->alpha, p->gamma, p->delta, p->edge, p->eps, p->omega,
                             p->outer, p->inner};
-    sinew__wmed_params wp = {p->wmedian, 7.f, 7.f, 0.3f, 20.f, p->wmedian_band};
+    /* weighted-median constants: flow/wmedian.c */
+    sinew__wmed_params wp = {p->wmedian, 7.f, 10.f, 0.3f, 10.f, p->wmedian_band};
     for (int s = top; s >= finest; s--) {
         const sinew__level *l0 = &a->lv[s], *l1 = &b->lv[s];
         if (s < top) {

@@ -49,6 +49,8 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         .dis_stride = 4,
         .dis_iters = 12,
         .warps = 1,
+        .warps_fine = 0,
+        .fine_levels = 2,
         .outer = 5,
         .inner = 10,
         .alpha = 0.02f,
@@ -82,7 +84,8 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.dis_finest = 1;
         d.dis_stride = 3;
         d.dis_iters = 16;
-        d.warps = 3;
+        d.warps = 2;
+        d.warps_fine = 4;
         d.outer = 5;
         d.inner = 15;
         d.median = 2;
@@ -123,6 +126,8 @@ int sinew_flow_params_check(sinew_ctx *ctx, const sinew_flow_params *p)
     RANGE_I(dis_stride, 1, p->dis_patch);
     RANGE_I(dis_iters, 1, 100);
     RANGE_I(warps, 0, 50);
+    RANGE_I(warps_fine, 0, 50);
+    RANGE_I(fine_levels, 1, SINEW__MAX_LEVELS);
     RANGE_I(outer, 1, 50);
     RANGE_I(inner, 1, 200);
     RANGE_F(alpha, 1e-9, 1e6);
@@ -357,7 +362,8 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
             dp.max_move = (float)p->dis_patch * (s == p->dis_finest ? 0.5f : 1.0f);
             sinew__dis_level(u, v, l0, l1, &dp, e->pu, e->pv, e->work, nt);
         }
-        for (int k = 0; k < p->warps; k++) {
+        int nw = p->warps_fine > 0 && s < finest + p->fine_levels ? p->warps_fine : p->warps;
+        for (int k = 0; k < nw; k++) {
             if (p->method == SINEW_FLOW_HORN_SCHUNCK)
                 sinew__hs_level(u, v, l0, l1, p->alpha, p->hs_iters, e->work, e->mask, nt);
             else

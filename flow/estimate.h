@@ -35,6 +35,9 @@ typedef struct sinew_flow_params {
     /* variational refinement (Brox et al. 2004), at every level from the coarsest used
        down to finest_level */
     int warps;        /* warping steps per level, 0..50 (0 = no refinement) */
+    int warps_fine;   /* warping steps at the finest fine_levels computed levels instead
+                         of `warps`, 0..50; 0 = `warps` everywhere */
+    int fine_levels;  /* how many of the finest computed levels use warps_fine, 1..12 */
     int outer;        /* fixed-point (lagged-nonlinearity) iterations per warp, 1..50 */
     int inner;        /* red-black SOR sweeps per fixed-point iteration, 1..200 */
     float alpha;      /* smoothness weight (> 0) */

@@ -265,8 +265,8 @@ static inline int clampi(int v, int lo, int hi)
     return v < lo ? lo : (v > hi ? hi : v);
 }
 
-void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
-                 const float *v, int w, int h, int nt)
+void sinew__warp_n(float *const *dst, const float *const *src, int count,
+                   unsigned char *outside, const float *u, const float *v, int w, int h, int nt)
 {
     (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
@@ -278,26 +278,45 @@ void sinew__warp(float *dst, unsigned char *outside, const float *src, const flo
             if (outside)
                 outside[o] = (unsigned char)out;
             /* bicubic (Keys 1981) inside, as recommended for warping by Sun, Roth and
-             * Black 2010; clamped coordinates */
+             * Black 2010; clamped coordinates. Weights and taps are shared by the
+             * `count` planes. */
             xs = xs < 0.f ? 0.f : (xs > (float)(w - 1) ? (float)(w - 1) : xs);
             ys = ys < 0.f ? 0.f : (ys > (float)(h - 1) ? (float)(h - 1) : ys);
             int ix = (int)xs, iy = (int)ys;
             float kx[4], ky[4];
             cubic_weights(xs - (float)ix, kx);
             cubic_weights(ys - (float)iy, ky);
-            int xi[4];
-            for (int i = 0; i < 4; i++)
-                xi[i] = clampi(ix - 1 + i, 0, w - 1);
-            float acc = 0.f;
-            for (int j = 0; j < 4; j++) {
-                const float *row = src + (size_t)clampi(iy - 1 + j, 0, h - 1) * (size_t)w;
-                float r = kx[0] * row[xi[0]] + kx[1] * row[xi[1]] + kx[2] * row[xi[2]] +
-                          kx[3] * row[xi[3]];
-                acc += ky[j] * r;
+            size_t xi[4], yo[4];
+            if (ix >= 1 && ix + 2 < w && iy >= 1 && iy + 2 < h) {
+                for (int i = 0; i < 4; i++) {
+                    xi[i] = (size_t)(ix - 1 + i);
+                    yo[i] = (size_t)(iy - 1 + i) * (size_t)w;
+                }
+            } else {
+                for (int i = 0; i < 4; i++) {
+                    xi[i] = (size_t)clampi(ix - 1 + i, 0, w - 1);
+                    yo[i] = (size_t)clampi(iy - 1 + i, 0, h - 1) * (size_t)w;
+                }
             }
-            dst[o] = acc;
+            for (int c = 0; c < count; c++) {
+                const float *sp = src[c];
+                float acc = 0.f;
+                for (int j = 0; j < 4; j++) {
+                    const float *row = sp + yo[j];
+                    float r = kx[0] * row[xi[0]] + kx[1] * row[xi[1]] + kx[2] * row[xi[2]] +
+                              kx[3] * row[xi[3]];
+                    acc += ky[j] * r;
+                }
+                dst[c][o] = acc;
+            }
         }
     }
+}
+
+void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
+                 const float *v, int w, int h, int nt)
+{
+    sinew__warp_n(&dst, &src, 1, outside, u, v, w, h, nt);
 }
 
 /* Median filtering with comparator networks. The networks below are Batcher's odd-even

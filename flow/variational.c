@@ -167,10 +167,20 @@ static void derivatives(planes *P, const float *u, const float *v, const sinew__
     /* brightness constancy per channel, scaled by 1/sqrt(C) so the data weight does not
      * depend on the channel count */
     float cs = 1.0f / sqrtf((float)channels);
+    /* one warp of frame 1's data channels and luminance gradients, shared weights */
+    float *wdst[SINEW__MAX_CH + 2];
+    const float *wsrc[SINEW__MAX_CH + 2];
+    for (int c = 0; c < channels; c++) {
+        wdst[c] = P->it[c];
+        wsrc[c] = channels > 1 ? l1->ch[c] : l1->lum;
+    }
+    wdst[channels] = P->lxt;
+    wsrc[channels] = l1->gx;
+    wdst[channels + 1] = P->lyt;
+    wsrc[channels + 1] = l1->gy;
+    sinew__warp_n(wdst, wsrc, channels + 2, mask, u, v, w, h, nt);
     for (int c = 0; c < channels; c++) {
         const float *i0 = channels > 1 ? l0->ch[c] : l0->lum;
-        const float *i1 = channels > 1 ? l1->ch[c] : l1->lum;
-        sinew__warp(P->it[c], mask, i1, u, v, w, h, nt);
         average(tmp, i0, P->it[c], n, nt);
         sinew__gradient(P->ix[c], P->iy[c], tmp, w, h, nt);
         subtract(P->it[c], i0, n, nt);
@@ -178,9 +188,7 @@ static void derivatives(planes *P, const float *u, const float *v, const sinew__
         scale_masked(P->iy[c], mask, cs, n, nt);
         scale_masked(P->it[c], mask, cs, n, nt);
     }
-    /* gradient constancy on the luminance: warp the gradient images of frame 1 */
-    sinew__warp(P->lxt, NULL, l1->gx, u, v, w, h, nt);
-    sinew__warp(P->lyt, NULL, l1->gy, u, v, w, h, nt);
+    /* gradient constancy on the luminance (gradients of frame 1 warped above) */
     average(tmp, l0->gx, P->lxt, n, nt);
     sinew__gradient(P->lxx, P->lxy, tmp, w, h, nt);
     average(tmp, l0->gy, P->lyt, n, nt);

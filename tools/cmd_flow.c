@@ -41,6 +41,8 @@ static void usage(FILE *out)
             "  --patch-stride N      distance between patches in pixels\n"
             "  --patch-iters N       Gauss-Newton iterations per patch\n"
             "  --warps N             variational warping steps per level (0 = none)\n"
+            "  --warps-fine N        warping steps at the finest levels instead (0 = --warps)\n"
+            "  --fine-levels N       how many finest levels use --warps-fine\n"
             "  --outer N             fixed-point iterations per warp\n"
             "  --inner N             red-black SOR sweeps per fixed-point iteration\n"
             "  --alpha X             smoothness weight\n"
@@ -70,6 +72,7 @@ static void usage(FILE *out)
 enum {
     O_LEVELS = 256, O_FINEST, O_PFINEST, O_PSIZE, O_PSTRIDE, O_PITERS, O_WARPS, O_OUTER,
     O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_WMEDIAN, O_WMEDIAN_LEVELS,
+    O_WARPS_FINE, O_FINE_LEVELS,
     O_WMEDIAN_BAND, O_GRAY, O_CHECK
 };
 
@@ -90,6 +93,8 @@ static int set_param(sinew_flow_params *p, int opt, const char *arg)
     case O_PSTRIDE: p->dis_stride = (int)iv; break;
     case O_PITERS: p->dis_iters = (int)iv; break;
     case O_WARPS: p->warps = (int)iv; break;
+    case O_WARPS_FINE: p->warps_fine = (int)iv; break;
+    case O_FINE_LEVELS: p->fine_levels = (int)iv; break;
     case O_OUTER: p->outer = (int)iv; break;
     case O_INNER: p->inner = (int)iv; break;
     case O_ALPHA: p->alpha = (float)dv; break;
@@ -127,6 +132,8 @@ int cmd_flow(int argc, char **argv)
         {"patch-stride", required_argument, NULL, O_PSTRIDE},
         {"patch-iters", required_argument, NULL, O_PITERS},
         {"warps", required_argument, NULL, O_WARPS},
+        {"warps-fine", required_argument, NULL, O_WARPS_FINE},
+        {"fine-levels", required_argument, NULL, O_FINE_LEVELS},
         {"outer", required_argument, NULL, O_OUTER},
         {"inner", required_argument, NULL, O_INNER},
         {"alpha", required_argument, NULL, O_ALPHA},

@@ -54,6 +54,9 @@ void sinew__flow_resize(float *du, float *dv, int dw, int dh, const float *su, c
  * NULL it receives 1 where the sample point lies outside the image, else 0. */
 void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
                  const float *v, int w, int h, int nt);
+/* The same warp applied to `count` planes at once (shared weights): dst[c] from src[c]. */
+void sinew__warp_n(float *const *dst, const float *const *src, int count,
+                   unsigned char *outside, const float *u, const float *v, int w, int h, int nt);
 /* Bilinear sample with clamped coordinates. */
 static inline float sinew__sample(const float *img, int w, int h, float x, float y)
 {

@@ -42,9 +42,9 @@ void sinew_check_params_default(sinew_check_params *p)
     p->conf_fb_beta = 0.03;
     p->conf_photo_scale = 0.1;
     p->conf_texture_scale = 4e-5;
-    p->conf_texture_weight = 0.3;
+    p->conf_texture_weight = 0.1;
     p->conf_boundary_scale = 6.0;
-    p->conf_boundary_weight = 1.0;
+    p->conf_boundary_weight = 0.1;
     p->conf_saturated = 0.5;
 }
 

@@ -2,7 +2,11 @@
 /* Unit tests for the estimator's private planar kernels (flow/internal/flowimpl.h):
  * the comparator-network median filters against a plain sort of each window, on
  * random planes of awkward sizes (narrower than one lane block, one column, one row,
- * widths just past a block), with ties, and for several thread counts. */
+ * widths just past a block), with ties, and for several thread counts; the weighted
+ * median (Sun, Roth, Black 2010) on hand-built cases whose answer follows from its
+ * definition: an isolated spike is removed, a flow boundary misplaced by one pixel
+ * next to an image edge moves back to the edge (where a plain median keeps it), pixels
+ * away from motion boundaries are left alone, and the result is thread-independent. */
 #include "tests/support/testutil.h"
 
 #include <stdlib.h>
@@ -88,11 +92,134 @@ static void test_kernels_median_threads_identical(void **state)
     free(b);
 }
 
+/* A gray frame pair and flow for the weighted-median tests; frame 1 = frame 0. */
+typedef struct wm_case {
+    int w, h;
+    float *img, *u, *v, *uo, *vo, *occ;
+    sinew__level l;
+} wm_case;
+
+static void wm_setup(wm_case *c, int w, int h)
+{
+    size_t n = (size_t)w * (size_t)h;
+    c->w = w;
+    c->h = h;
+    c->img = calloc(n, sizeof(float));
+    c->u = calloc(n, sizeof(float));
+    c->v = calloc(n, sizeof(float));
+    c->uo = calloc(n, sizeof(float));
+    c->vo = calloc(n, sizeof(float));
+    c->occ = calloc(n, sizeof(float));
+    assert_true(c->img && c->u && c->v && c->uo && c->vo && c->occ);
+    memset(&c->l, 0, sizeof c->l);
+    c->l.w = w;
+    c->l.h = h;
+    c->l.lum = c->l.ch[0] = c->img;
+}
+
+static void wm_free(wm_case *c)
+{
+    free(c->img);
+    free(c->u);
+    free(c->v);
+    free(c->uo);
+    free(c->vo);
+    free(c->occ);
+}
+
+/* Run the filter with the estimator's constants; untouched outputs stay at `mark`. */
+static void wm_run(wm_case *c, float mark, int nt)
+{
+    size_t n = (size_t)c->w * (size_t)c->h;
+    for (size_t i = 0; i < n; i++)
+        c->uo[i] = c->vo[i] = mark;
+    sinew__wmed_params p = {4, 7.f, 10.f, 0.3f, 10.f, 0.5f};
+    sinew__wmedian(c->uo, c->vo, c->u, c->v, &c->l, &c->l, 1, &p, c->occ, nt);
+}
+
+static void test_kernels_wmedian_removes_spike(void **state)
+{
+    (void)state;
+    wm_case c;
+    wm_setup(&c, 24, 20);
+    for (int i = 0; i < 24 * 20; i++)
+        c.img[i] = 0.5f;
+    c.u[10 * 24 + 12] = 3.f; /* one wrong vector in a zero field */
+    wm_run(&c, -99.f, 1);
+    for (int y = 0; y < 20; y++)
+        for (int x = 0; x < 24; x++) {
+            float got = c.uo[y * 24 + x];
+            int near = abs(x - 12) <= 2 && abs(y - 10) <= 2; /* the 5x5 boundary test */
+            if (near ? got != 0.f : got != -99.f)
+                fail_msg("spike case at (%d,%d): %g", x, y, (double)got);
+        }
+    wm_free(&c);
+}
+
+static void test_kernels_wmedian_snaps_boundary_to_edge(void **state)
+{
+    (void)state;
+    /* image edge between x = 15 and 16; true flow u = 1 left, 5 right; the estimate's
+     * boundary sits one pixel too far left (x = 15 has u = 5) */
+    int w = 32, h = 16;
+    wm_case c;
+    wm_setup(&c, w, h);
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w; x++) {
+            c.img[y * w + x] = x < 16 ? 0.2f : 0.8f;
+            c.u[y * w + x] = x < 15 ? 1.f : 5.f;
+        }
+    wm_run(&c, -99.f, 2);
+    for (int y = 0; y < h; y++) {
+        /* radius 4 sampled every 2nd pixel: x = 15 sees u = 1, 1, 5 on its own side of
+         * the edge and 5, 5 across it; a plain median would keep 5 */
+        assert_true(c.uo[y * w + 15] == 1.f);
+        assert_true(c.uo[y * w + 14] == 1.f);
+        assert_true(c.uo[y * w + 16] == 5.f);
+        /* the 5x5 boundary test flags x = 13..16 only; others are untouched */
+        assert_true(c.uo[y * w + 12] == -99.f);
+        assert_true(c.uo[y * w + 17] == -99.f);
+        assert_true(c.uo[y * w + 5] == -99.f);
+        assert_true(c.uo[y * w + 26] == -99.f);
+    }
+    wm_free(&c);
+}
+
+static void test_kernels_wmedian_threads_identical(void **state)
+{
+    (void)state;
+    int w = 83, h = 57;
+    size_t n = (size_t)w * (size_t)h;
+    wm_case a;
+    wm_setup(&a, w, h);
+    srand(11);
+    for (size_t i = 0; i < n; i++) {
+        a.img[i] = (float)rand() / (float)RAND_MAX;
+        a.u[i] = (float)(rand() % 7) - 3.f + (float)rand() / (float)RAND_MAX;
+        a.v[i] = (float)(rand() % 5) - 2.f;
+    }
+    wm_run(&a, 0.f, 1);
+    float *u1 = malloc(n * sizeof *u1), *v1 = malloc(n * sizeof *v1);
+    assert_non_null(u1);
+    assert_non_null(v1);
+    memcpy(u1, a.uo, n * sizeof *u1);
+    memcpy(v1, a.vo, n * sizeof *v1);
+    wm_run(&a, 0.f, 3);
+    assert_memory_equal(u1, a.uo, n * sizeof *u1);
+    assert_memory_equal(v1, a.vo, n * sizeof *v1);
+    free(u1);
+    free(v1);
+    wm_free(&a);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_kernels_median_matches_sort),
         cmocka_unit_test(test_kernels_median_threads_identical),
+        cmocka_unit_test(test_kernels_wmedian_removes_spike),
+        cmocka_unit_test(test_kernels_wmedian_snaps_boundary_to_edge),
+        cmocka_unit_test(test_kernels_wmedian_threads_identical),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -76,7 +76,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.wmedian = 5;
     } else if (!strcmp(name, "balanced")) {
         d.dis_finest = 1;
-        d.dis_stride = 4;
+        d.dis_stride = 3;
         d.outer = 5;
         d.inner = 10;
         d.median = 1;

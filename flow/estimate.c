@@ -437,12 +437,14 @@ int sinew_estimator_run(sinew_estimator *est, sinew_image *fwd, sinew_image *bwd
     if ((st = ensure_buffers(est, frame0->width, frame0->height, channels)))
         return st;
     int nt = sinew_ctx_threads(ctx);
+    /* levels finer than the finest computed one need no derivatives */
+    int gfrom = est->p.finest_level < est->levels - 1 ? est->p.finest_level : est->levels - 1;
     if (reuse && est->last1_valid) {
         est->cur0 = 1 - est->cur0;
     } else {
-        sinew__pyramid_build(&est->pyr[est->cur0], frame0, est->work, nt);
+        sinew__pyramid_build(&est->pyr[est->cur0], frame0, est->work, gfrom, nt);
     }
-    sinew__pyramid_build(&est->pyr[1 - est->cur0], frame1, est->work, nt);
+    sinew__pyramid_build(&est->pyr[1 - est->cur0], frame1, est->work, gfrom, nt);
     if ((st = remember_last1(est, frame1)))
         return st;
     const sinew__pyramid *p0 = &est->pyr[est->cur0], *p1 = &est->pyr[1 - est->cur0];

@@ -95,7 +95,8 @@ static void convert_frame(sinew__level *l, int channels, const sinew_image *f, i
     }
 }
 
-void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp, int nt)
+void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp,
+                          int grad_from, int nt)
 {
     sinew__level *l0 = &p->lv[0];
     convert_frame(l0, p->channels, frame, nt);
@@ -114,7 +115,8 @@ void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tm
                 sinew__halve(dst, tmp, up->w, up->h, nt);
             }
         }
-        sinew__gradient(lv->gx, lv->gy, lv->lum, lv->w, lv->h, nt);
+        if (l >= grad_from)
+            sinew__gradient(lv->gx, lv->gy, lv->lum, lv->w, lv->h, nt);
     }
 }
 

@@ -33,8 +33,11 @@ typedef struct sinew__pyramid {
 size_t sinew__pyramid_floats(int w, int h, int channels, int levels);
 /* Lay the pyramid out in `mem` (sinew__pyramid_floats floats). */
 void sinew__pyramid_layout(sinew__pyramid *p, float *mem, int w, int h, int channels, int levels);
-/* Fill the pyramid from a frame (U8/U16, 1..4 channels). tmp: >= 2*w*h floats. */
-void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp, int nt);
+/* Fill the pyramid from a frame (U8/U16, 1..4 channels). tmp: >= 2*w*h floats. The
+ * derivative planes are computed for levels >= grad_from only (finer levels that the
+ * estimator never reads are left unset). */
+void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp,
+                          int grad_from, int nt);
 /* Level size for a given full size: each level halves (rounding up). */
 void sinew__level_size(int w, int h, int level, int *lw, int *lh);
 

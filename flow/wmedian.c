@@ -117,7 +117,8 @@ void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
             sx[(dy + r) * (2 * r + 1) + dx + r] = (float)(dx * dx + dy * dy) * ks;
     float kc = 255.f * 255.f / (2.f * p->sigma_color * p->sigma_color);
     float band = p->band;
-    SINEW_PARALLEL_FOR(nt)
+    /* boundary pixels cluster in some rows: dynamic schedule (rows are independent) */
+    SINEW_PARALLEL_FOR_DYNAMIC(nt)
     for (int y = 0; y < h; y++) {
         float val[WM_MAXN], wt[WM_MAXN], vv[WM_MAXN], wt2[WM_MAXN], sv[WM_MAXN],
             sw[WM_MAXN];

@@ -11,6 +11,11 @@
 #define SINEW__PRAGMA(x) _Pragma(#x)
 /* Static schedule over the following for loop; n = 0 means OpenMP default. */
 #define SINEW_PARALLEL_FOR(n) SINEW__PRAGMA(omp parallel for schedule(static) num_threads(sinew__nthreads(n)))
+/* Dynamic schedule in chunks of 4 iterations, for loops whose iterations cost very
+ * different amounts (e.g. work only near motion boundaries). Only for loops whose
+ * iterations are independent and write disjoint outputs, so results do not depend on
+ * which thread ran which iteration. */
+#define SINEW_PARALLEL_FOR_DYNAMIC(n) SINEW__PRAGMA(omp parallel for schedule(dynamic, 4) num_threads(sinew__nthreads(n)))
 static inline int sinew__nthreads(int n)
 {
     return n > 0 ? n : omp_get_max_threads();
@@ -21,6 +26,7 @@ static inline int sinew__thread_id(void)
 }
 #else
 #define SINEW_PARALLEL_FOR(n)
+#define SINEW_PARALLEL_FOR_DYNAMIC(n)
 static inline int sinew__nthreads(int n)
 {
     (void)n;

@@ -69,7 +69,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
     if (!strcmp(name, "fast")) {
         d.dis_finest = 2;
         d.dis_stride = 6;
-        d.dis_iters = 10;
+        d.dis_iters = 8;
         d.finest_level = 1;
         d.outer = 3;
         d.inner = 5;

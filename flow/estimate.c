@@ -74,6 +74,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.outer = 3;
         d.inner = 5;
         d.wmedian = 5;
+        d.wmedian_band = 0.6f;
     } else if (!strcmp(name, "balanced")) {
         d.dis_finest = 1;
         d.dis_stride = 3;

@@ -82,7 +82,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.inner = 10;
         d.median = 1;
     } else if (!strcmp(name, "accurate")) {
-        d.dis_finest = 1;
+        d.dis_finest = 0;
         d.dis_stride = 3;
         d.dis_iters = 16;
         d.warps = 2;
@@ -358,9 +358,9 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
             l0->h >= p->dis_patch)
         {
             /* a patch may move up to one patch size from its start, half of that at the
-             * finest patch level, where the coarse flow is already close and repeated
-             * texture (facades, stripes) offers wrong minima one period away */
-            dp.max_move = (float)p->dis_patch * (s == p->dis_finest ? 0.5f : 1.0f);
+             * two finest patch levels, where the coarse flow is already close and
+             * repeated texture (facades, stripes) offers wrong minima one period away */
+            dp.max_move = (float)p->dis_patch * (s <= p->dis_finest + 1 ? 0.5f : 1.0f);
             sinew__dis_level(u, v, l0, l1, &dp, e->pu, e->pv, e->work, nt);
         }
         int nw = p->warps_fine > 0 && s < finest + p->fine_levels ? p->warps_fine : p->warps;

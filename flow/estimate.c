@@ -388,19 +388,20 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
         }
     }
     if (finest > 0) {
+        /* upsample straight into the output: the full-size planes stay untouched (and
+         * out of resident memory) when no level-0 flow is computed */
         const sinew__level *f = &a->lv[finest];
-        sinew__flow_resize(u2, v2, e->w, e->h, u, v, f->w, f->h, nt);
-        float *t = u; u = u2; u2 = t;
-        t = v; v = v2; v2 = t;
-    }
-    int w = e->w;
-    SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < e->h; y++) {
-        float *row = sinew_image_row_f32(out, y);
-        const float *ur = u + (size_t)y * (size_t)w, *vr = v + (size_t)y * (size_t)w;
-        for (int x = 0; x < w; x++) {
-            row[2 * x] = ur[x];
-            row[2 * x + 1] = vr[x];
+        sinew__flow_resize(out, u, v, f->w, f->h, nt);
+    } else {
+        int w = e->w;
+        SINEW_PARALLEL_FOR(nt)
+        for (int y = 0; y < e->h; y++) {
+            float *row = sinew_image_row_f32(out, y);
+            const float *ur = u + (size_t)y * (size_t)w, *vr = v + (size_t)y * (size_t)w;
+            for (int x = 0; x < w; x++) {
+                row[2 * x] = ur[x];
+                row[2 * x + 1] = vr[x];
+            }
         }
     }
     /* keep the plane roles stable for the next call */

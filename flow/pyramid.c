@@ -218,19 +218,20 @@ void sinew__halve(float *dst, const float *src, int sw, int sh, int nt)
     }
 }
 
-void sinew__flow_resize(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
-                        int sw, int sh, int nt)
+void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int sw, int sh,
+                        int nt)
 {
     (void)nt; /* unused without OpenMP */
+    int dw = out->width, dh = out->height;
     float fx = (float)sw / (float)dw, fy = (float)sh / (float)dh;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < dh; y++) {
         float ys = ((float)y + 0.5f) * fy - 0.5f;
+        float *row = sinew_image_row_f32(out, y);
         for (int x = 0; x < dw; x++) {
             float xs = ((float)x + 0.5f) * fx - 0.5f;
-            size_t o = (size_t)y * (size_t)dw + (size_t)x;
-            du[o] = sinew__sample(su, sw, sh, xs, ys) / fx;
-            dv[o] = sinew__sample(sv, sw, sh, xs, ys) / fy;
+            row[2 * x] = sinew__sample(su, sw, sh, xs, ys) / fx;
+            row[2 * x + 1] = sinew__sample(sv, sw, sh, xs, ys) / fy;
         }
     }
 }

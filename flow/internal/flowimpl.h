@@ -50,9 +50,11 @@ void sinew__halve(float *dst, const float *src, int sw, int sh, int nt);
 /* Upsample a flow field from (sw, sh) to (dw, dh) = level below: bilinear, values x2. */
 void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
                     int sw, int sh, int nt);
-/* Upsample a flow field by any factor to (dw, dh) (bilinear, values scaled per axis). */
-void sinew__flow_resize(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
-                        int sw, int sh, int nt);
+/* Upsample a flow field (su, sv) of sw x sh by any factor straight into the interleaved
+ * 2-channel float image `out` (its size is the target; bilinear, values scaled per
+ * axis), so no full-size planar copy is needed. */
+void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int sw, int sh,
+                        int nt);
 /* Bilinear warp: dst(x,y) = src(x+u, y+v) with clamped coordinates. If `outside` is not
  * NULL it receives 1 where the sample point lies outside the image, else 0. */
 void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,

@@ -695,7 +695,7 @@ static void pass_confidence(const sinew_check_params *p, scratch *s, sinew_image
             double c = 1 / (1 + sc);
             if (m & SINEW_MASK_SATURATED)
                 c *= p->conf_saturated;
-            out[x] = (float)(c < 0 ? 0 : c > 1 ? 1 : c);
+            out[x] = (float)c; /* in (0, 1]: every term >= 0, conf_saturated <= 1 */
         }
     }
 }

@@ -40,13 +40,14 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
 {
     if (!p || !name)
         return SINEW_EINVAL;
+    /* the balanced preset; the others change what differs */
     sinew_flow_params d = {
         .method = SINEW_FLOW_VARIATIONAL,
         .levels = 0,
         .finest_level = 0,
         .dis_finest = 1,
         .dis_patch = 8,
-        .dis_stride = 4,
+        .dis_stride = 3,
         .dis_iters = 12,
         .warps = 1,
         .warps_fine = 0,
@@ -59,7 +60,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         .edge = 5.0f,
         .eps = 0.001f,
         .omega = 1.6f,
-        .median = 0,
+        .median = 1,
         .wmedian = 7,
         .wmedian_levels = SINEW__MAX_LEVELS,
         .wmedian_band = 0.5f,
@@ -73,31 +74,24 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.finest_level = 1;
         d.outer = 3;
         d.inner = 5;
+        d.median = 0;
         d.wmedian = 5;
         d.wmedian_band = 0.6f;
-    } else if (!strcmp(name, "balanced")) {
-        d.dis_finest = 1;
-        d.dis_stride = 3;
-        d.outer = 5;
-        d.inner = 10;
-        d.median = 1;
     } else if (!strcmp(name, "accurate")) {
         d.dis_finest = 0;
-        d.dis_stride = 3;
         d.dis_iters = 16;
         d.warps = 2;
         d.warps_fine = 4;
-        d.outer = 5;
         d.inner = 15;
         d.median = 2;
     } else if (!strcmp(name, "baseline")) {
         d.method = SINEW_FLOW_HORN_SCHUNCK;
         d.dis_finest = -1;
         d.warps = 2;
-        d.alpha = 0.02f;
         d.hs_iters = 60;
+        d.median = 0;
         d.wmedian = 0;
-    } else {
+    } else if (strcmp(name, "balanced")) {
         return SINEW_EINVAL;
     }
     *p = d;
@@ -327,6 +321,23 @@ static int remember_last1(sinew_estimator *e, const sinew_image *f)
     return SINEW_OK;
 }
 
+/* Finest pyramid level the estimator computes (coarser results are upsampled). */
+static int computed_finest(const sinew_estimator *e)
+{
+    return e->p.finest_level < e->levels - 1 ? e->p.finest_level : e->levels - 1;
+}
+
+/* Exchange the roles of the flow planes (u, v) and their scratch partners (u2, v2). */
+static void swap_flow(float **u, float **v, float **u2, float **v2)
+{
+    float *t = *u;
+    *u = *u2;
+    *u2 = t;
+    t = *v;
+    *v = *v2;
+    *v2 = t;
+}
+
 /* Coarse-to-fine estimation from pyramid a to pyramid b into the interleaved image out. */
 static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyramid *a,
                          const sinew__pyramid *b)
@@ -334,14 +345,14 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
     const sinew_flow_params *p = &e->p;
     int nt = sinew_ctx_threads(e->ctx);
     int top = e->levels - 1;
-    int finest = p->finest_level < top ? p->finest_level : top;
+    int finest = computed_finest(e);
     float *u = e->u, *v = e->v, *u2 = e->u2, *v2 = e->v2;
     {
         size_t n = (size_t)a->lv[top].w * (size_t)a->lv[top].h;
         memset(u, 0, n * sizeof(float));
         memset(v, 0, n * sizeof(float));
     }
-    sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters, (float)p->dis_patch};
+    sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters, 0.f}; /* move: per level */
     sinew__var_params vp = {p->alpha, p->gamma, p->delta, p->edge, p->eps, p->omega,
                             p->outer, p->inner};
     /* weighted-median constants: flow/wmedian.c */
@@ -351,8 +362,7 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
         if (s < top) {
             const sinew__level *up = &a->lv[s + 1];
             sinew__flow_up(u2, v2, l0->w, l0->h, u, v, up->w, up->h, nt);
-            float *t = u; u = u2; u2 = t;
-            t = v; v = v2; v2 = t;
+            swap_flow(&u, &v, &u2, &v2);
         }
         if (p->dis_finest >= 0 && s >= p->dis_finest && l0->w >= p->dis_patch &&
             l0->h >= p->dis_patch)
@@ -378,10 +388,8 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
                 memcpy(u2, u, n * sizeof(float));
                 memcpy(v2, v, n * sizeof(float));
             }
-            if (p->median > 0 || wm) {
-                float *t = u; u = u2; u2 = t;
-                t = v; v = v2; v2 = t;
-            }
+            if (p->median > 0 || wm)
+                swap_flow(&u, &v, &u2, &v2);
             /* boundary pixels: weighted median of the flow before the plain median */
             if (wm)
                 sinew__wmedian(u, v, u2, v2, l0, l1, e->channels, &wp, e->work, nt);
@@ -440,7 +448,7 @@ int sinew_estimator_run(sinew_estimator *est, sinew_image *fwd, sinew_image *bwd
         return st;
     int nt = sinew_ctx_threads(ctx);
     /* levels finer than the finest computed one need no derivatives */
-    int gfrom = est->p.finest_level < est->levels - 1 ? est->p.finest_level : est->levels - 1;
+    int gfrom = computed_finest(est);
     if (reuse && est->last1_valid) {
         est->cur0 = 1 - est->cur0;
     } else {

@@ -106,6 +106,7 @@ int sinew_match_read_check(sinew_ctx *ctx, const char *dir, sinew_image *mask,
         return rc;
     }
     const char *bad = NULL;
+    int code = SINEW_ESIZE; /* for the shape problems; values: SINEW_EVALUE */
     if (confidence->channels != 1)
         bad = "must be an H x W array";
     else if (confidence->width != mask->width || confidence->height != mask->height)
@@ -115,14 +116,14 @@ int sinew_match_read_check(sinew_ctx *ctx, const char *dir, sinew_image *mask,
         for (int x = 0; x < confidence->width; x++)
             if (!(r[x] >= 0 && r[x] <= 1)) {
                 bad = "values must lie in [0, 1] (NaN or out of range found)";
+                code = SINEW_EVALUE;
                 break;
             }
     }
     if (bad) {
         sinew_image_free(mask);
         sinew_image_free(confidence);
-        return sinew__fail(ctx, bad[0] == 'v' ? SINEW_EVALUE : SINEW_ESIZE, "%s: %s",
-                           confidence_path, bad);
+        return sinew__fail(ctx, code, "%s: %s", confidence_path, bad);
     }
     return SINEW_OK;
 }

@@ -91,8 +91,8 @@ int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *
     const char *fmt = format_name(p->flow_format);
     if (!fmt)
         return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow format %d", p->flow_format);
-    /* preset names are plain words (checked by sinew_flow_params_preset) */
-    if (strspn(p->preset, "abcdefghijklmnopqrstuvwxyz0123456789_-") != strlen(p->preset))
+    sinew_flow_params fp;
+    if (sinew_flow_params_preset(&fp, p->preset))
         return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow preset '%s'", p->preset);
     /* %.17g round-trips a double, so equal text means equal options */
     int w = snprintf(buf, n,
@@ -212,14 +212,12 @@ static int load_extras(sinew_run_pipeline *pl, frame_slot *s, int32_t f)
             return rc;
     }
     if (fr->labels) {
-        if ((rc = sinew_image_read(pl->ctx, &s->labels, fr->labels)))
+        if ((rc = sinew_labels_read(pl->ctx, &s->labels, fr->labels)))
             return rc;
-        if (s->labels.width != pl->width || s->labels.height != pl->height ||
-            s->labels.channels != 1)
-            return sinew__fail(pl->ctx, SINEW_ESIZE,
-                               "%s: labels must be one channel of %dx%d (got %dx%d, %d channels)",
-                               fr->labels, pl->width, pl->height, s->labels.width, s->labels.height,
-                               s->labels.channels);
+        if (s->labels.width != pl->width || s->labels.height != pl->height)
+            return sinew__fail(pl->ctx, SINEW_ESIZE, "%s: labels are %dx%d, frames %dx%d",
+                               fr->labels, s->labels.width, s->labels.height, pl->width,
+                               pl->height);
     }
     return SINEW_OK;
 }

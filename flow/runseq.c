@@ -147,24 +147,18 @@ static int from_lists(sinew_ctx *ctx, const char *dir, double max_dt, sinew_run_
         rc = SINEW_ENOMEM;
         goto done;
     }
-    /* frames in colour time order (ties by list order) */
-    size_t *ord = sinew__calloc(ctx, a.n, sizeof *ord);
+    /* frames in colour time order (ties by list order); qsort, as a list may be long and
+     * in any order */
+    sinew__stamp *ord = sinew__calloc(ctx, a.n, sizeof *ord);
     if (!ord) {
         rc = SINEW_ENOMEM;
         goto done;
     }
     for (size_t i = 0; i < a.n; i++)
-        ord[i] = i;
-    for (size_t i = 1; i < a.n; i++) { /* insertion sort: lists are nearly sorted */
-        size_t v = ord[i], j = i;
-        while (j > 0 && a.t[ord[j - 1]] > a.t[v]) {
-            ord[j] = ord[j - 1];
-            j--;
-        }
-        ord[j] = v;
-    }
+        ord[i] = (sinew__stamp){a.t[i], i};
+    qsort(ord, a.n, sizeof *ord, sinew__stamp_cmp);
     for (size_t q = 0; q < a.n; q++) {
-        size_t i = ord[q];
+        size_t i = ord[q].idx;
         if (m[i] < 0)
             continue;
         sinew_run_frame *fr = &out->frames[out->nframes++];

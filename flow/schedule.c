@@ -15,6 +15,7 @@
 #include <string.h>
 
 #include "flow/internal/base.h"
+#include "flow/internal/run.h"
 #include "flow/run.h"
 
 char *sinew_pair_name(char *buf, sinew_pair p)
@@ -138,19 +139,15 @@ int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes
 
 /* ---- association ---- */
 
-typedef struct {
-    double t;
-    size_t idx;
-} stamp;
 
 typedef struct {
     double d;
     size_t a, b;
 } cand;
 
-static int cmp_stamp(const void *x, const void *y)
+int sinew__stamp_cmp(const void *x, const void *y)
 {
-    const stamp *a = x, *b = y;
+    const sinew__stamp *a = x, *b = y;
     if (a->t != b->t)
         return a->t < b->t ? -1 : 1;
     return a->idx < b->idx ? -1 : a->idx > b->idx;
@@ -168,7 +165,7 @@ static int cmp_cand(const void *x, const void *y)
 
 /* Walk the window of b stamps within max_diff of each a stamp; store candidates when
  * out is non-NULL, otherwise only count them. */
-static size_t scan_candidates(const stamp *sa, size_t na, const stamp *sb, size_t nb,
+static size_t scan_candidates(const sinew__stamp *sa, size_t na, const sinew__stamp *sb, size_t nb,
                               double max_diff, double offset, cand *out)
 {
     size_t count = 0, lo = 0;
@@ -209,8 +206,8 @@ int sinew_associate(sinew_ctx *ctx, const double *ta, size_t na, const double *t
             return sinew__fail(ctx, SINEW_ECONFIG, "association: stamp %zu is not finite", b);
     if (!na || !nb)
         return SINEW_OK;
-    stamp *sa = sinew__calloc(ctx, na, sizeof *sa);
-    stamp *sb = sinew__calloc(ctx, nb, sizeof *sb);
+    sinew__stamp *sa = sinew__calloc(ctx, na, sizeof *sa);
+    sinew__stamp *sb = sinew__calloc(ctx, nb, sizeof *sb);
     unsigned char *used = sinew__calloc(ctx, nb, 1);
     cand *c = NULL;
     int rc = SINEW_OK;
@@ -219,11 +216,11 @@ int sinew_associate(sinew_ctx *ctx, const double *ta, size_t na, const double *t
         goto done;
     }
     for (size_t a = 0; a < na; a++)
-        sa[a] = (stamp){ta[a], a};
+        sa[a] = (sinew__stamp){ta[a], a};
     for (size_t b = 0; b < nb; b++)
-        sb[b] = (stamp){tb[b], b};
-    qsort(sa, na, sizeof *sa, cmp_stamp);
-    qsort(sb, nb, sizeof *sb, cmp_stamp);
+        sb[b] = (sinew__stamp){tb[b], b};
+    qsort(sa, na, sizeof *sa, sinew__stamp_cmp);
+    qsort(sb, nb, sizeof *sb, sinew__stamp_cmp);
     size_t nc = scan_candidates(sa, na, sb, nb, max_diff, offset, NULL);
     if (nc > (size_t)SINEW_RUN_MAX_PAIRS) {
         rc = sinew__fail(ctx, SINEW_ELIMIT,

@@ -71,11 +71,8 @@ double sinew__synth_unit(uint64_t seed, uint64_t a, uint64_t b, uint64_t c)
 /* splitmix64 stream for the scene's seeded constants */
 static double draw(uint64_t *state, double lo, double hi)
 {
+    uint64_t z = sinew__synth_mix(*state); /* mix adds the increment first */
     *state += 0x9E3779B97F4A7C15ull;
-    uint64_t z = *state;
-    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ull;
-    z = (z ^ (z >> 27)) * 0x94D049BB133111EBull;
-    z ^= z >> 31;
     return lo + (hi - lo) * ((double)(z >> 11) * (1.0 / 9007199254740992.0));
 }
 

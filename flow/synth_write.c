@@ -26,14 +26,6 @@ static int make_dir(sinew_ctx *ctx, const char *path)
     return sinew__fail(ctx, SINEW_EIO, "%s: cannot create folder: %s", path, strerror(e));
 }
 
-static int join(sinew_ctx *ctx, char *buf, size_t n, const char *dir, const char *rel)
-{
-    int w = snprintf(buf, n, "%s/%s", dir, rel);
-    if (w < 0 || (size_t)w >= n)
-        return sinew__fail(ctx, SINEW_ELIMIT, "%s: path too long", dir);
-    return SINEW_OK;
-}
-
 enum {
     IMG_COLOR,
     IMG_DEPTH,
@@ -57,15 +49,15 @@ static int write_frame(sinew_synth *s, const char *dir, int t, sinew_image *im)
         (st = sinew_synth_depth_mm(s, t, &im[IMG_DEPTH], &im[IMG_MM])))
         return st;
     snprintf(rel, sizeof rel, "color/%06d.png", t);
-    if ((st = join(ctx, path, sizeof path, dir, rel)) ||
+    if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
         (st = sinew_image_write_png(ctx, path, &im[IMG_COLOR])))
         return st;
     snprintf(rel, sizeof rel, "depth/%06d.png", t);
-    if ((st = join(ctx, path, sizeof path, dir, rel)) ||
+    if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
         (st = sinew_image_write_png(ctx, path, &im[IMG_MM])))
         return st;
     snprintf(rel, sizeof rel, "labels/%06d.png", t);
-    if ((st = join(ctx, path, sizeof path, dir, rel)) ||
+    if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
         (st = sinew_image_write_png(ctx, path, &im[IMG_LABELS])))
         return st;
     /* backward truth of pair (t-1, t) uses the hits of frame t cached by the render */
@@ -73,11 +65,11 @@ static int write_frame(sinew_synth *s, const char *dir, int t, sinew_image *im)
         if ((st = sinew_synth_truth(s, t, t - 1, &im[IMG_BWD], &im[IMG_OBWD], NULL)))
             return st;
         snprintf(rel, sizeof rel, "truth/flow_backward/%06d.flo", t - 1);
-        if ((st = join(ctx, path, sizeof path, dir, rel)) ||
+        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
             (st = sinew_flow_write(ctx, path, &im[IMG_BWD], SINEW_FLOW_FLO)))
             return st;
         snprintf(rel, sizeof rel, "truth/occlusion_backward/%06d.png", t - 1);
-        if ((st = join(ctx, path, sizeof path, dir, rel)) ||
+        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
             (st = sinew_image_write_png(ctx, path, &im[IMG_OBWD])))
             return st;
     }
@@ -85,15 +77,15 @@ static int write_frame(sinew_synth *s, const char *dir, int t, sinew_image *im)
         if ((st = sinew_synth_truth(s, t, t + 1, &im[IMG_FWD], &im[IMG_OFWD], &im[IMG_SF])))
             return st;
         snprintf(rel, sizeof rel, "truth/flow_forward/%06d.flo", t);
-        if ((st = join(ctx, path, sizeof path, dir, rel)) ||
+        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
             (st = sinew_flow_write(ctx, path, &im[IMG_FWD], SINEW_FLOW_FLO)))
             return st;
         snprintf(rel, sizeof rel, "truth/occlusion_forward/%06d.png", t);
-        if ((st = join(ctx, path, sizeof path, dir, rel)) ||
+        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
             (st = sinew_image_write_png(ctx, path, &im[IMG_OFWD])))
             return st;
         snprintf(rel, sizeof rel, "truth/scene_flow/%06d.npy", t);
-        if ((st = join(ctx, path, sizeof path, dir, rel)) ||
+        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
             (st = sinew_npy_write_image(ctx, path, &im[IMG_SF], 0)))
             return st;
     }
@@ -161,7 +153,7 @@ int sinew_synth_write(sinew_synth *s, const char *dir)
     char path[4200];
     int st = make_dir(ctx, dir);
     for (size_t i = 0; !st && i < sizeof sub / sizeof *sub; i++)
-        if (!(st = join(ctx, path, sizeof path, dir, sub[i])))
+        if (!(st = sinew__path_join(ctx, path, sizeof path, dir, sub[i])))
             st = make_dir(ctx, path);
     if (st)
         return st;
@@ -182,7 +174,7 @@ int sinew_synth_write(sinew_synth *s, const char *dir)
         return st;
     sinew_sequence *seq = NULL;
     if (!(st = sinew_sequence_new(ctx, &seq)) && !(st = build_sequence(s, seq)) &&
-        !(st = join(ctx, path, sizeof path, dir, "sequence.json")))
+        !(st = sinew__path_join(ctx, path, sizeof path, dir, "sequence.json")))
         st = sinew_sequence_write(seq, path);
     sinew_sequence_free(seq);
     return st;

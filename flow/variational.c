@@ -172,7 +172,7 @@ static void derivatives(planes *P, const float *u, const float *v, const sinew__
     const float *wsrc[SINEW__MAX_CH + 2];
     for (int c = 0; c < channels; c++) {
         wdst[c] = P->it[c];
-        wsrc[c] = channels > 1 ? l1->ch[c] : l1->lum;
+        wsrc[c] = l1->ch[c]; /* ch[0] is the luminance for gray */
     }
     wdst[channels] = P->lxt;
     wsrc[channels] = l1->gx;
@@ -180,7 +180,7 @@ static void derivatives(planes *P, const float *u, const float *v, const sinew__
     wsrc[channels + 1] = l1->gy;
     sinew__warp_n(wdst, wsrc, channels + 2, mask, u, v, w, h, nt);
     for (int c = 0; c < channels; c++) {
-        const float *i0 = channels > 1 ? l0->ch[c] : l0->lum;
+        const float *i0 = l0->ch[c];
         average(tmp, i0, P->it[c], n, nt);
         sinew__gradient(P->ix[c], P->iy[c], tmp, w, h, nt);
         subtract(P->it[c], i0, n, nt);

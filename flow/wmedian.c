@@ -157,8 +157,7 @@ void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
                     size_t j = ro + (size_t)xx;
                     float dc = 0.f;
                     for (int c = 0; c < channels; c++) {
-                        const float *ch = channels > 1 ? l0->ch[c] : l0->lum;
-                        float d = ch[j] - ch[i];
+                        float d = l0->ch[c][j] - l0->ch[c][i]; /* ch[0] is lum for gray */
                         dc += d * d;
                     }
                     float ex = srow[xx] + dc * kc;

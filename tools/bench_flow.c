@@ -195,9 +195,10 @@ int main(int argc, char **argv)
             sinew_flow_errors er;
             if (sinew_flow_errors_compute(ctx, &er, &f, &p->gt, NULL, NULL))
                 die(ctx, "metrics");
-            const sinew_flow_stats *s = &er.region[SINEW_REGION_ALL];
-            epe[k][i] = s->sum_epe / (double)s->n_valid;
-            fl[k][i] = 100.0 * (double)s->n_fl / (double)s->n_valid;
+            sinew_flow_summary sm;
+            sinew_flow_stats_summarize(&sm, &er.region[SINEW_REGION_ALL]);
+            epe[k][i] = sm.epe;
+            fl[k][i] = sm.fl_all_pct;
             ms[k][i] = 1e3 * t;
             sinew_image_free(&f);
         }

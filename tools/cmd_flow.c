@@ -73,7 +73,7 @@ enum {
     O_LEVELS = 256, O_FINEST, O_PFINEST, O_PSIZE, O_PSTRIDE, O_PITERS, O_WARPS, O_OUTER,
     O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_WMEDIAN, O_WMEDIAN_LEVELS,
     O_WARPS_FINE, O_FINE_LEVELS,
-    O_WMEDIAN_BAND, O_GRAY, O_CHECK
+    O_WMEDIAN_BAND, O_GRAY
 };
 
 /* Apply one advanced option to p; returns 0 or -1 if the value does not parse. */
@@ -121,7 +121,7 @@ int cmd_flow(int argc, char **argv)
     static const struct option opts[] = {
         {"output", required_argument, NULL, 'o'},
         {"backward", required_argument, NULL, 'b'},
-        {"check", required_argument, NULL, O_CHECK},
+        {"check", required_argument, NULL, 'c'},
         {"preset", required_argument, NULL, 'p'},
         {"threads", required_argument, NULL, 't'},
         {"help", no_argument, NULL, 'h'},
@@ -150,11 +150,11 @@ int cmd_flow(int argc, char **argv)
     const char *out = NULL, *bout = NULL, *preset = "balanced", *check_dir = NULL;
     long threads = 0;
     /* advanced options are applied after the preset, in order */
-    struct { int opt; const char *arg; } adv[64];
-    int nadv = 0, gray = 0, c;
+    struct { int opt; const char *name, *arg; } adv[64];
+    int nadv = 0, gray = 0, c, li = -1;
     opterr = 0;
     optind = 1;
-    while ((c = getopt_long(argc, argv, "o:b:p:t:h", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, "o:b:c:p:t:h", opts, &li)) != -1) {
         switch (c) {
         case 'o': out = optarg; break;
         case 'b': bout = optarg; break;
@@ -165,7 +165,7 @@ int cmd_flow(int argc, char **argv)
             break;
         case 'h': usage(stdout); return CLI_OK;
         case O_GRAY: gray = 1; break;
-        case O_CHECK: check_dir = optarg; break;
+        case 'c': check_dir = optarg; break;
         case '?':
         case ':':
             return cli_usage_error("flow", "unknown option or missing value '%s'",
@@ -174,6 +174,7 @@ int cmd_flow(int argc, char **argv)
             if (nadv == (int)(sizeof adv / sizeof adv[0]))
                 return cli_usage_error("flow", "too many options");
             adv[nadv].opt = c;
+            adv[nadv].name = li >= 0 ? opts[li].name : "?"; /* advanced options are long only */
             adv[nadv].arg = optarg;
             nadv++;
             break;
@@ -189,7 +190,7 @@ int cmd_flow(int argc, char **argv)
                                preset);
     for (int i = 0; i < nadv; i++)
         if (set_param(&p, adv[i].opt, adv[i].arg))
-            return cli_usage_error("flow", "bad value '%s'", adv[i].arg);
+            return cli_usage_error("flow", "--%s: bad value '%s'", adv[i].name, adv[i].arg);
     if (gray)
         p.color = 0;
     const char *f0 = argv[optind], *f1 = argv[optind + 1];

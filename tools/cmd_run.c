@@ -130,9 +130,7 @@ static int load_sequence_file(sinew_ctx *ctx, const char *path, seq_input *si)
     int rc = sinew_sequence_read(ctx, &si->seq, path);
     if (rc)
         return cli_status(CMD, ctx, rc);
-    size_t n = si->seq->n_frames;
-    if (n == 0)
-        return cli_error(CMD, "%s: frames: the sequence has no frames", path);
+    size_t n = si->seq->n_frames; /* >= 1: sinew_sequence_read validates */
     si->frames = calloc(n, sizeof *si->frames);
     si->paths = calloc(3 * n, sizeof *si->paths);
     if (!si->frames || !si->paths)
@@ -214,12 +212,9 @@ static void on_progress(void *ud, const sinew_run_progress *p)
 {
     progress_state *ps = ud;
     double el = now_s() - ps->t0;
-    size_t computed = p->computed ? p->computed : 0;
     /* rate and ETA from computed pairs only: skipped pairs cost almost nothing */
-    double rate = el > 0 ? (double)computed / el : 0;
+    double rate = el > 0 ? (double)p->computed / el : 0;
     double eta = rate > 0 ? (double)(p->total - p->finished) / rate : NAN;
-    if (p->computed == 0 && p->finished < p->total)
-        eta = NAN;
     char etab[32];
     fmt_eta(etab, sizeof etab, p->finished == p->total ? 0 : eta);
     if (ps->mode == PROG_JSON) {

@@ -26,8 +26,14 @@ typedef struct sinew__input {
     uint64_t bytes;
 } sinew__input;
 
-/* "a/b" into buf; ELIMIT if it does not fit. */
-int sinew__path_join(sinew_ctx *ctx, char *buf, size_t n, const char *a, const char *b);
+/* A time stamp and its position in its list; sinew__stamp_cmp orders by time, then
+ * position (qsort comparator; flow/schedule.c). */
+typedef struct sinew__stamp {
+    double t;
+    size_t idx;
+} sinew__stamp;
+int sinew__stamp_cmp(const void *x, const void *y);
+
 /* mkdir -p; EIO naming the folder. */
 int sinew__mkdirs(sinew_ctx *ctx, const char *path);
 /* Write a cJSON value as formatted text plus a newline, atomically. */

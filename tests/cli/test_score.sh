@@ -17,7 +17,8 @@ else
 fi
 expect_error "no arguments is a usage error" - "usage|expected EST GT" "$SINEW_BIN" score
 "$SINEW_BIN" score >/dev/null 2>&1
-[ $? -eq 2 ] && pass "usage error exits 2" || fail "usage error exits 2" "exit $?"
+rc=$?
+[ $rc -eq 2 ] && pass "usage error exits 2" || fail "usage error exits 2" "exit $rc"
 expect_error "unknown layout" - "unknown layout 'foo'" \
     "$SINEW_BIN" score --layout foo --root "$T" --estimates "$T"
 expect_error "--mask needs --occ" - "--occ" "$SINEW_BIN" score a.flo b.flo --mask m.png

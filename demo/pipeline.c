@@ -47,8 +47,10 @@ int main(void)
         (rc = sinew_image_alloc(ctx, &z0, W, H, 1, SINEW_F32)) ||
         (rc = sinew_image_alloc(ctx, &z1, W, H, 1, SINEW_F32)) ||
         (rc = sinew_image_alloc(ctx, &scene, W, H, 3, SINEW_F32)) ||
-        (rc = sinew_synth_render(syn, 0, &c0, &z0, NULL)) ||
+        /* frame 1 first: the generator caches the last frame cast, which the truth of
+         * 0 -> 1 reuses */
         (rc = sinew_synth_render(syn, 1, &c1, &z1, NULL)) ||
+        (rc = sinew_synth_render(syn, 0, &c0, &z0, NULL)) ||
         (rc = sinew_synth_truth(syn, 0, 1, NULL, NULL, &scene)))
         return fail(ctx, rc);
 
@@ -99,7 +101,9 @@ int main(void)
         qsort(err, n, sizeof *err, cmp_float);
     printf("kept %zu of %zu pixels; median 3-D error %.2f mm\n", m.rows, m.pixels,
            n ? 1000.0 * err[n / 2] : NAN);
-    int ok = err && n > m.pixels / 4;
+    /* bound: median 0.39 mm measured at 160x120 with the balanced preset (2026-12-02);
+     * a lift wrong in units, sign or pose is off by centimetres */
+    int ok = err && n > m.pixels / 4 && err[n / 2] < 1e-3f;
     free(err);
 
     sinew_matches_free(ctx, &m);

@@ -7,10 +7,12 @@
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
+#include <strings.h>
 
 #include "flow/check.h"
 #include "flow/depth.h"
 #include "flow/internal/base.h"
+#include "flow/internal/io.h"
 #include "flow/io.h"
 #include "flow/match.h"
 
@@ -19,16 +21,7 @@
 static int has_ext(const char *path, const char *ext)
 {
     size_t n = strlen(path), e = strlen(ext);
-    if (n < e)
-        return 0;
-    for (size_t i = 0; i < e; i++) {
-        char c = path[n - e + i];
-        if (c >= 'A' && c <= 'Z')
-            c = (char)(c - 'A' + 'a');
-        if (c != ext[i])
-            return 0;
-    }
-    return 1;
+    return n >= e && !strcasecmp(path + n - e, ext);
 }
 
 int sinew_depth_read(sinew_ctx *ctx, sinew_image *raw, const char *path)
@@ -346,23 +339,6 @@ int sinew_matches_save(sinew_ctx *ctx, const sinew_matches *m, const sinew_match
 
 /* ---- PLY and CSV ---- */
 
-static void put_f32le(FILE *fp, float v)
-{
-    uint32_t u;
-    memcpy(&u, &v, 4);
-    unsigned char b[4] = {(unsigned char)u, (unsigned char)(u >> 8), (unsigned char)(u >> 16),
-                          (unsigned char)(u >> 24)};
-    fwrite(b, 1, 4, fp);
-}
-
-static void put_i32le(FILE *fp, int32_t v)
-{
-    uint32_t u = (uint32_t)v;
-    unsigned char b[4] = {(unsigned char)u, (unsigned char)(u >> 8), (unsigned char)(u >> 16),
-                          (unsigned char)(u >> 24)};
-    fwrite(b, 1, 4, fp);
-}
-
 int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *path, int binary)
 {
     if (!ctx || !m || !path)
@@ -390,10 +366,12 @@ int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *p
         const float *r = m->data + i * (size_t)m->cols + cx;
         for (int e = 0; e < 2; e++) {
             const float *X = r + 3 * e;
-            if (binary) {
+            if (binary) { /* one 15-byte vertex record: x, y, z float LE, r, g, b */
+                unsigned char rec[15];
                 for (int k = 0; k < 3; k++)
-                    put_f32le(fp, X[k]);
-                fwrite(col[e], 1, 3, fp);
+                    sinew__stf32(rec + 4 * k, X[k], 0);
+                memcpy(rec + 12, col[e], 3);
+                fwrite(rec, 1, sizeof rec, fp);
             } else {
                 fprintf(fp, "%.9g %.9g %.9g %u %u %u\n", X[0], X[1], X[2], col[e][0], col[e][1],
                         col[e][2]);
@@ -401,9 +379,11 @@ int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *p
         }
     }
     for (size_t i = 0; i < m->rows; i++) {
-        if (binary) {
-            put_i32le(fp, (int32_t)(2 * i));
-            put_i32le(fp, (int32_t)(2 * i + 1));
+        if (binary) { /* one edge record: two int32 LE vertex indices */
+            unsigned char rec[8];
+            sinew__st32(rec, (uint32_t)(2 * i), 0);
+            sinew__st32(rec + 4, (uint32_t)(2 * i + 1), 0);
+            fwrite(rec, 1, sizeof rec, fp);
         } else {
             fprintf(fp, "%zu %zu\n", 2 * i, 2 * i + 1);
         }

@@ -284,6 +284,9 @@ void sinew_run_pipeline_free(sinew_run_pipeline *pl);
 int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job *job, char **stats);
 /* File extension (without dot) of a flow format, e.g. "flo"; NULL if unknown. */
 const char *sinew_run_flow_ext(int flow_format);
+/* Flow format for a --flow-format / sequence.json name ("flo", "npy", "npy16", "pfm",
+ * "png"): SINEW_OK and *flow_format set, or SINEW_EINVAL for an unknown name. */
+int sinew_run_flow_format_parse(const char *name, int *flow_format);
 
 /* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
  * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).

@@ -63,6 +63,18 @@ const char *sinew_run_flow_ext(int flow_format)
     return NULL;
 }
 
+int sinew_run_flow_format_parse(const char *name, int *flow_format)
+{
+    if (!name || !flow_format)
+        return SINEW_EINVAL;
+    for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)
+        if (!strcmp(name, formats[k].name)) {
+            *flow_format = formats[k].fmt;
+            return SINEW_OK;
+        }
+    return SINEW_EINVAL;
+}
+
 static const char *format_name(int flow_format)
 {
     for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)

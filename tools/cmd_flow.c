@@ -110,12 +110,6 @@ static int set_param(sinew_flow_params *p, int opt, const char *arg)
     return 0;
 }
 
-/* Read a frame; the context message names the file on failure. */
-static int read_frame(sinew_ctx *ctx, sinew_image *img, const char *path)
-{
-    return sinew_image_read(ctx, img, path);
-}
-
 int cmd_flow(int argc, char **argv)
 {
     static const struct option opts[] = {
@@ -210,56 +204,46 @@ int cmd_flow(int argc, char **argv)
     if (!rc && bout)
         rc = sinew_flow_format_from_path(ctx, bout, &bfmt);
     if (!rc)
-        rc = read_frame(ctx, &a, f0);
+        rc = sinew_image_read(ctx, &a, f0); /* messages name the file */
     if (!rc)
-        rc = read_frame(ctx, &b, f1);
-    if (!rc && (a.width != b.width || a.height != b.height)) {
-        int r = cli_error("flow", "%s: size %dx%d differs from %s (%dx%d)", f1, b.width,
-                          b.height, f0, a.width, a.height);
-        sinew_image_free(&a);
-        sinew_image_free(&b);
-        sinew_ctx_free(ctx);
-        return r;
-    }
-    if (!rc && (a.type != b.type || a.channels != b.channels)) {
-        int r = cli_error("flow", "%s: %d-channel %d-bit frame, but %s is %d-channel %d-bit", f1,
-                          b.channels, (int)sinew_type_size(b.type) * 8, f0, a.channels,
-                          (int)sinew_type_size(a.type) * 8);
-        sinew_image_free(&a);
-        sinew_image_free(&b);
-        sinew_ctx_free(ctx);
-        return r;
-    }
-    if (!rc)
+        rc = sinew_image_read(ctx, &b, f1);
+    int reported = 0; /* an error already printed on stderr */
+    if (!rc && (a.width != b.width || a.height != b.height))
+        reported = cli_error("flow", "%s: size %dx%d differs from %s (%dx%d)", f1, b.width,
+                             b.height, f0, a.width, a.height);
+    else if (!rc && (a.type != b.type || a.channels != b.channels))
+        reported = cli_error("flow", "%s: %d-channel %d-bit frame, but %s is %d-channel %d-bit",
+                             f1, b.channels, (int)sinew_type_size(b.type) * 8, f0, a.channels,
+                             (int)sinew_type_size(a.type) * 8);
+    if (!rc && !reported)
         rc = sinew_image_alloc(ctx, &fwd, a.width, a.height, 2, SINEW_F32);
-    if (!rc && (bout || check_dir))
+    if (!rc && !reported && (bout || check_dir))
         rc = sinew_image_alloc(ctx, &bwd, a.width, a.height, 2, SINEW_F32);
-    if (!rc)
+    if (!rc && !reported)
         rc = sinew_estimator_new(ctx, &est, &p);
-    if (!rc)
+    if (!rc && !reported)
         rc = sinew_estimator_run(est, &fwd, bout || check_dir ? &bwd : NULL, &a, &b);
     /* --check: computed before any file is written, so a failure leaves nothing */
     cli_check_result chk;
     memset(&chk, 0, sizeof chk);
     cJSON *chk_json = NULL;
     cli_check_paths chk_paths = {out, bout, f0, f1, NULL, check_dir};
-    int check_failed = 0; /* already reported on stderr */
-    if (!rc && check_dir) {
+    if (!rc && !reported && check_dir) {
         sinew_check_params cp;
         sinew_check_params_default(&cp);
         sinew_check_input in = {&fwd, &bwd, &a, &b, NULL};
-        check_failed = cli_check_compute("flow", ctx, &chk, &in, &cp, &chk_paths);
-        if (!check_failed && !(chk_json = cli_check_json(&chk, &cp, &chk_paths)))
-            check_failed = cli_error("flow", "out of memory");
+        reported = cli_check_compute("flow", ctx, &chk, &in, &cp, &chk_paths);
+        if (!reported && !(chk_json = cli_check_json(&chk, &cp, &chk_paths)))
+            reported = cli_error("flow", "out of memory");
     }
-    if (!rc && !check_failed)
+    if (!rc && !reported)
         rc = sinew_flow_write(ctx, out, &fwd, ffmt);
-    if (!rc && !check_failed && bout) {
+    if (!rc && !reported && bout) {
         rc = sinew_flow_write(ctx, bout, &bwd, bfmt);
         if (rc)
             remove(out); /* no partial result: both files or none */
     }
-    int ret = check_failed ? CLI_FAIL : rc ? cli_status("flow", ctx, rc) : CLI_OK;
+    int ret = reported ? CLI_FAIL : rc ? cli_status("flow", ctx, rc) : CLI_OK;
     if (ret == CLI_OK && check_dir && cli_check_write("flow", ctx, &chk, chk_json, check_dir)) {
         remove(out); /* no partial result: flows and check, or nothing new */
         if (bout)

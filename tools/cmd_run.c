@@ -336,24 +336,6 @@ static int parse_schedule(sinew_ctx *ctx, const char *s, sinew_schedule *out, si
     return -1;
 }
 
-static int parse_format(const char *s, int *fmt)
-{
-    static const struct {
-        const char *name;
-        int fmt;
-    } f[] = {{"flo", SINEW_FLOW_FLO},
-             {"npy", SINEW_FLOW_NPY},
-             {"npy16", SINEW_FLOW_NPY16},
-             {"pfm", SINEW_FLOW_PFM},
-             {"png", SINEW_FLOW_KITTI}};
-    for (size_t k = 0; k < sizeof f / sizeof f[0]; k++)
-        if (!strcmp(s, f[k].name)) {
-            *fmt = f[k].fmt;
-            return 0;
-        }
-    return -1;
-}
-
 static double num_at(const cJSON *o, const char *a, const char *b)
 {
     const cJSON *x = cJSON_GetObjectItemCaseSensitive(o, a);
@@ -569,7 +551,7 @@ int cmd_run(int argc, char **argv)
             break;
         case O_FMT:
             format_set = 1;
-            if (parse_format(optarg, &pp.flow_format))
+            if (sinew_run_flow_format_parse(optarg, &pp.flow_format))
                 return cli_usage_error(CMD,
                                        "--flow-format: expected flo, npy, npy16, pfm or png, "
                                        "got '%s'",
@@ -659,7 +641,7 @@ int cmd_run(int argc, char **argv)
         const sinew_seq_run *sr = &si.seq->run;
         if (!preset_set && sr->preset)
             pp.preset = sr->preset;
-        if (!format_set && sr->flow_format && parse_format(sr->flow_format, &pp.flow_format)) {
+        if (!format_set && sr->flow_format && sinew_run_flow_format_parse(sr->flow_format, &pp.flow_format)) {
             cli_error(CMD, "%s: run.flow_format: unknown format", input);
             goto done;
         }

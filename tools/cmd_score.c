@@ -35,7 +35,7 @@ static void usage(FILE *out)
             "usage: sinew score EST GT [--occ OCC.png | --noc NOC.png] [--valid VALID.png]\n"
             "                   [--invalid INV.png] [--confidence C.npy] [--mask M.png]\n"
             "                   [--mask-bits N] [--csv F] [--json]\n"
-            "       sinew score --layout middlebury|sintel|kitti|chairs|list --root DIR\n"
+            "       sinew score --layout %s --root DIR\n"
             "                   (--estimates DIR [--confidences DIR] | --preset P [--save DIR])\n"
             "                   [--pass clean|final] [--csv F] [--json]\n"
             "\n"
@@ -98,7 +98,7 @@ static void usage(FILE *out)
             "      --csv scores.csv\n"
             "  sinew score --layout kitti --root kitti/training --preset balanced --threads 2\n"
             "\n%s",
-            cli_notice);
+            score_layout_names, cli_notice);
 }
 
 /* ---- results ---- */

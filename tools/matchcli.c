@@ -15,7 +15,7 @@
 #include "flow/io.h"
 #include "tools/cli.h"
 
-static void usage(const char *cmd, int lift)
+static void usage(int lift)
 {
     if (lift)
         printf("usage: sinew lift --flow FWD [--check DIR] --depth0 D0 --depth1 D1 --intrinsics K\n"
@@ -97,7 +97,6 @@ static void usage(const char *cmd, int lift)
            "In Python: M = numpy.load('m.npy'); cols = json.load(open('m.json'))['columns']\n"
            "\n%s",
            cli_notice);
-    (void)cmd;
 }
 
 enum {
@@ -195,7 +194,7 @@ static int parse_args(const char *cmd, int lift, int argc, char **argv, opts *o)
             return cli_usage_error(cmd, "--ply needs 3-D matches (use 'sinew lift')");
         switch (c) {
         case 'h':
-            usage(cmd, lift);
+            usage(lift);
             return -1;
         case 'o':
             o->out = optarg;

@@ -46,7 +46,8 @@ char *score_printf(const char *fmt, ...)
     return s;
 }
 
-char *score_join(const char *a, const char *b)
+/* malloc'd "a/b"; NULL on allocation failure. */
+static char *score_join(const char *a, const char *b)
 {
     return score_printf("%s/%s", a, b);
 }
@@ -492,13 +493,16 @@ static int list_file(const char *cmd, const char *path, score_set *out)
     if (rc == CLI_OK && out->n == 0)
         rc = cli_error(cmd, "%s: no 'frame1 frame2 gt' lines", path);
     if (rc == CLI_OK) { /* ids must be unique: estimates are looked up by id */
-        for (size_t i = 0; rc == CLI_OK && i < out->n; i++)
-            for (size_t j = i + 1; j < out->n; j++)
-                if (!strcmp(out->pairs[i].id, out->pairs[j].id)) {
-                    rc = cli_error(cmd, "%s: ground truth '%s' is listed twice", path,
-                                   out->pairs[i].id);
-                    break;
-                }
+        const char **ids = malloc(out->n * sizeof *ids); /* sorted copy: n log n */
+        if (!ids)
+            return cli_error(cmd, "%s: out of memory", path);
+        for (size_t i = 0; i < out->n; i++)
+            ids[i] = out->pairs[i].id;
+        qsort(ids, out->n, sizeof *ids, cmp_str);
+        for (size_t i = 1; rc == CLI_OK && i < out->n; i++)
+            if (!strcmp(ids[i - 1], ids[i]))
+                rc = cli_error(cmd, "%s: ground truth '%s' is listed twice", path, ids[i]);
+        free(ids);
     }
     return rc;
 }

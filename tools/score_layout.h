@@ -27,7 +27,7 @@ typedef struct score_set {
 extern const char score_layout_names[];
 
 /* Fill *out with the pairs of `root` in layout `layout` ("middlebury", "sintel",
- * "kitti", "chairs", "list"), sorted by id. `pass` is the Sintel pass ("clean" or
+ * "kitti", "chairs", "list"), sorted by id (list: in file order). `pass` is the Sintel pass ("clean" or
  * "final"). On failure prints one line (naming the folder or file) and returns
  * CLI_FAIL, or CLI_USAGE for an unknown layout; *out is then empty. */
 int score_layout_list(const char *cmd, const char *layout, const char *root, const char *pass,
@@ -43,8 +43,6 @@ char *score_find_file(const char *dir, const char *id, const char *exts, char **
  * parent. Returns 0 or -1 with errno set. */
 int score_make_parents(const char *path);
 
-/* malloc'd "a/b"; NULL on allocation failure. */
-char *score_join(const char *a, const char *b);
 /* malloc'd printf; NULL on allocation failure. */
 char *score_printf(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
 

@@ -383,12 +383,7 @@ static int stage_op(sinew_ctx *ctx, void *ud)
         rc = sinew_depth_median(ctx, &s->in.depth, &med, NULL);
         break;
     }
-    case 16: {
-        double px;
-        rc = sinew_camera_roundtrip_error(ctx, &s->cam, 0, 0, 2, &px, NULL);
-        break;
-    }
-    case 17:
+    case 16:
         rc = sinew_image_copy(ctx, &tmp, &s->in.frame);
         break;
     default:
@@ -401,7 +396,7 @@ static int stage_op(sinew_ctx *ctx, void *ud)
     return rc;
 }
 
-#define NSTAGES 18
+#define NSTAGES 17
 
 static void test_faults_every_stage(void **state)
 {

@@ -878,9 +878,17 @@ static void seven_pair_ex(sinew_ctx *ctx, int i, const sinew_image *flow_in,
     }
 }
 
-static void seven_pair(sinew_ctx *ctx, int i, const sinew_image *flow_in, pair_result *res)
+/* Print one 7-Scenes pair's result and assert the targets of the issue: median
+ * residual <= 1 cm; rigid fit within 1 cm and 0.3 deg. */
+static void seven_check(const char *how, int i, const pair_result *res)
 {
-    seven_pair_ex(ctx, i, flow_in, NULL, NULL, res);
+    printf("# 7-Scenes %d->%d (%s): %zu matches, median |T X0 - X1| = %.2f mm, "
+           "rigid fit %.2f mm / %.3f deg\n",
+           150 + i, 151 + i, how, res->rows, res->median_residual * 1e3, res->fit_dt * 1e3,
+           res->fit_deg);
+    assert_true(res->median_residual <= 0.01);
+    assert_true(res->fit_dt <= 0.01);
+    assert_true(res->fit_deg <= 0.3);
 }
 
 /* The whole pipeline on 7-Scenes: flow both ways from the colour frames ("balanced"
@@ -916,14 +924,7 @@ static void test_lift_7scenes_estimated_flow_agrees_with_ground_truth(void **sta
         assert_int_equal(sinew_check_run(ctx, &co, &ci, NULL), SINEW_OK);
         pair_result res;
         seven_pair_ex(ctx, i, &fwd, &mask, &conf, &res);
-        printf("# 7-Scenes %d->%d (estimated flow + check): %zu matches, median |T X0 - X1| = "
-               "%.2f mm, rigid fit %.2f mm / %.3f deg\n",
-               150 + i, 151 + i, res.rows, res.median_residual * 1e3, res.fit_dt * 1e3,
-               res.fit_deg);
-        /* Targets from the issue: median residual <= 1 cm; fit within 1 cm and 0.3 deg. */
-        assert_true(res.median_residual <= 0.01);
-        assert_true(res.fit_dt <= 0.01);
-        assert_true(res.fit_deg <= 0.3);
+        seven_check("estimated flow + check", i, &res);
         sinew_image *all[] = {&f[0], &f[1], &fwd, &bwd, &mask, &conf};
         for (int k = 0; k < 6; k++)
             sinew_image_free(all[k]);
@@ -941,15 +942,8 @@ static void test_lift_7scenes_pose_flow_agrees_with_ground_truth(void **state)
     sinew_ctx *ctx = sinew_ctx_new();
     for (int i = 0; i < 4; i++) {
         pair_result res;
-        seven_pair(ctx, i, NULL, &res);
-        printf("# 7-Scenes %d->%d (pose flow): %zu matches, median |T X0 - X1| = %.2f mm, "
-               "rigid fit %.2f mm / %.3f deg\n",
-               150 + i, 151 + i, res.rows, res.median_residual * 1e3, res.fit_dt * 1e3,
-               res.fit_deg);
-        /* Targets from the issue: median residual <= 1 cm; fit within 1 cm and 0.3 deg. */
-        assert_true(res.median_residual <= 0.01);
-        assert_true(res.fit_dt <= 0.01);
-        assert_true(res.fit_deg <= 0.3);
+        seven_pair_ex(ctx, i, NULL, NULL, NULL, &res);
+        seven_check("pose flow", i, &res);
     }
     sinew_ctx_free(ctx);
 }

@@ -346,17 +346,19 @@ static void csv_val(FILE *f, double v)
         fputc(',', f);
 }
 
+/* The per-region CSV columns, in the order csv_row writes them. */
+static const char *const csv_fields[] = {"epe",    "aae_deg",    "r05_pct", "r1_pct",
+                                         "r3_pct", "r5_pct",     "fl_all_pct", "n_valid",
+                                         "n_gt",   "density_pct"};
+#define CSV_NFIELDS (sizeof csv_fields / sizeof csv_fields[0])
+
 static void csv_header(FILE *f)
 {
     fputs("layout,pair,averaging", f);
-    for (int k = 0; k < SINEW_REGION_COUNT; k++) {
-        const char *p = k == 0 ? "" : region_key[k];
-        const char *sep = k == 0 ? "" : "_";
-        fprintf(f,
-                ",%s%sepe,%s%saae_deg,%s%sr05_pct,%s%sr1_pct,%s%sr3_pct,%s%sr5_pct,"
-                "%s%sfl_all_pct,%s%sn_valid,%s%sn_gt,%s%sdensity_pct",
-                p, sep, p, sep, p, sep, p, sep, p, sep, p, sep, p, sep, p, sep, p, sep, p, sep);
-    }
+    for (int k = 0; k < SINEW_REGION_COUNT; k++)
+        for (size_t j = 0; j < CSV_NFIELDS; j++)
+            fprintf(f, ",%s%s%s", k == 0 ? "" : region_key[k], k == 0 ? "" : "_",
+                    csv_fields[j]);
     fputs(",runtime_s,ause\n", f);
 }
 
@@ -374,8 +376,9 @@ static void csv_row(FILE *f, const char *layout, const char *label, const char *
         fprintf(f, "%s,%s,%s", layout, label, averaging);
     }
     for (int k = 0; k < SINEW_REGION_COUNT; k++) {
-        if (k > 0 && !has_occ) {
-            fputs(",,,,,,,,,,", f);
+        if (k > 0 && !has_occ) { /* no occlusion split: empty fields */
+            for (size_t j = 0; j < CSV_NFIELDS; j++)
+                fputc(',', f);
             continue;
         }
         const sinew_flow_summary *r = &s[k];
@@ -542,15 +545,49 @@ done:
     return rc;
 }
 
+/* A fresh row for pair `id` (no time, no AUSE yet). */
+static void row_init(pair_row *row, const char *id)
+{
+    memset(row, 0, sizeof *row);
+    row->id = (char *)id;
+    row->time_s = NAN;
+    row->ause = NAN;
+}
+
+/* Score est against gt into row: the occlusion split from occ_path (nonzero = occluded)
+ * or from a KITTI noc file, the evaluation mask from valid/invalid masks (any may be
+ * NULL). occ and eval receive the masks used (for the caller's later steps). */
+static int score_vs_truth(sinew_ctx *ctx, const sinew_image *est, const sinew_image *gt,
+                          const char *gt_path, const char *occ_path, const char *noc_path,
+                          const char *valid_path, const char *invalid_path, sinew_image *occ,
+                          sinew_image *eval, pair_row *row)
+{
+    int rc;
+    if (occ_path) {
+        if ((rc = read_mask(ctx, occ_path, 0, 0, occ)) ||
+            (rc = same_size(occ, occ_path, gt, gt_path)))
+            return rc;
+    } else if (noc_path && (rc = kitti_occ_from_noc(ctx, noc_path, gt, gt_path, occ))) {
+        return rc;
+    }
+    if (valid_path && (rc = add_eval_mask(ctx, valid_path, 0, gt, gt_path, eval)))
+        return rc;
+    if (invalid_path && (rc = add_eval_mask(ctx, invalid_path, 1, gt, gt_path, eval)))
+        return rc;
+    int st = sinew_flow_errors_compute(ctx, &row->err, est, gt, occ->data ? occ : NULL,
+                                       eval->data ? eval : NULL);
+    if (st)
+        return cli_status(CMD, ctx, st);
+    summarize_row(row);
+    return CLI_OK;
+}
+
 static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
                       const single_opts *o)
 {
     sinew_image est = {0}, gt = {0}, occ = {0}, eval = {0}, pred = {0};
     pair_row row;
-    memset(&row, 0, sizeof row);
-    row.id = (char *)est_path;
-    row.time_s = NAN;
-    row.ause = NAN;
+    row_init(&row, est_path);
     sinew_mask_scores ms;
     int have_ms = 0;
     sparse_result sp = {0};
@@ -558,31 +595,16 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
     if ((rc = read_flow(ctx, est_path, &est)) || (rc = read_flow(ctx, gt_path, &gt)) ||
         (rc = same_size(&est, est_path, &gt, gt_path)))
         goto done;
-    if (o->occ) {
-        if ((rc = read_mask(ctx, o->occ, 0, 0, &occ)) ||
-            (rc = same_size(&occ, o->occ, &gt, gt_path)))
-            goto done;
-    } else if (o->noc && (rc = kitti_occ_from_noc(ctx, o->noc, &gt, gt_path, &occ))) {
+    if ((rc = score_vs_truth(ctx, &est, &gt, gt_path, o->occ, o->noc, o->valid, o->invalid,
+                             &occ, &eval, &row)))
         goto done;
-    }
-    if (o->valid && (rc = add_eval_mask(ctx, o->valid, 0, &gt, gt_path, &eval)))
-        goto done;
-    if (o->invalid && (rc = add_eval_mask(ctx, o->invalid, 1, &gt, gt_path, &eval)))
-        goto done;
-    int st = sinew_flow_errors_compute(ctx, &row.err, &est, &gt, occ.data ? &occ : NULL,
-                                       eval.data ? &eval : NULL);
-    if (st) {
-        rc = cli_status(CMD, ctx, st);
-        goto done;
-    }
-    summarize_row(&row);
     if (o->mask) {
         if ((rc = read_mask(ctx, o->mask, 1, 0, &pred)) ||
             (rc = same_size(&pred, o->mask, &gt, gt_path)))
             goto done;
         /* Score the mask where the truth is defined: inside the evaluation mask. */
-        st = sinew_mask_scores_compute(ctx, &ms, &pred, &occ, eval.data ? &eval : NULL,
-                                       o->mask_bits);
+        int st = sinew_mask_scores_compute(ctx, &ms, &pred, &occ, eval.data ? &eval : NULL,
+                                           o->mask_bits);
         if (st) {
             rc = cli_status(CMD, ctx, st);
             goto done;
@@ -751,10 +773,7 @@ static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts
     sinew_image est = {0}, gt = {0}, occ = {0}, eval = {0};
     char *est_path = NULL, *conf_path = NULL, *tried = NULL;
     int rc;
-    memset(row, 0, sizeof *row);
-    row->id = p->id;
-    row->time_s = NAN;
-    row->ause = NAN;
+    row_init(row, p->id);
     if (o->preset) {
         if ((rc = read_flow(ctx, p->gt, &gt)) ||
             (rc = estimate_pair(ctx, p, o, &gt, &est, &row->time_s)))
@@ -770,22 +789,9 @@ static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts
             (rc = same_size(&est, est_path, &gt, p->gt)))
             goto done;
     }
-    if (p->occ) {
-        if ((rc = read_mask(ctx, p->occ, 0, 0, &occ)) || (rc = same_size(&occ, p->occ, &gt, p->gt)))
-            goto done;
-    } else if (p->gt_noc) {
-        if ((rc = kitti_occ_from_noc(ctx, p->gt_noc, &gt, p->gt, &occ)))
-            goto done;
-    }
-    if (p->invalid && (rc = add_eval_mask(ctx, p->invalid, 1, &gt, p->gt, &eval)))
+    if ((rc = score_vs_truth(ctx, &est, &gt, p->gt, p->occ, p->gt_noc, NULL, p->invalid, &occ,
+                             &eval, row)))
         goto done;
-    int st = sinew_flow_errors_compute(ctx, &row->err, &est, &gt, occ.data ? &occ : NULL,
-                                       eval.data ? &eval : NULL);
-    if (st) {
-        rc = cli_status(CMD, ctx, st);
-        goto done;
-    }
-    summarize_row(row);
     if (o->confidences) {
         free(tried);
         conf_path = score_find_file(o->confidences, p->id, "npy|pfm", &tried);

@@ -8,7 +8,14 @@
  *      a median filter of the flow when enabled,
  * down to finest_level; a coarser final level is upsampled to full resolution.
  * Both frames' pyramids live in the estimator; when a run's frame0 equals the previous
- * run's frame1 (byte comparison) the old frame1 pyramid is reused. */
+ * run's frame1 (byte comparison) the old frame1 pyramid is reused.
+ *
+ * Memory (gray frames, n pixels): the pyramids hold images only (2 x 4/3 n floats); the
+ * flow (2n) and one scratch block of 4n floats (`g`: both frames' gradients of the level
+ * in use, the filtered flow after a warp, the coarse flow while upsampling, and the
+ * pyramid builder's temporaries) are full size; the solver's work block is capped at
+ * work_mib (the variational solver then runs in bands, flow/variational.c). Gradients
+ * are recomputed when a filter has reused their planes. */
 #include <math.h>
 #include <string.h>
 
@@ -30,8 +37,11 @@ struct sinew_estimator {
     int last1_valid;
     sinew_type last1_type;
     int last1_fc;
-    float *u, *v, *u2, *v2;  /* full-resolution flow planes */
-    float *work;             /* solver planes, also scratch for pyramid building */
+    float *u, *v;            /* full-resolution flow planes */
+    float *g;                /* 4 planes of gp floats: gradients, flow and pyramid scratch */
+    size_t gp;               /* floats per plane of g (n rounded up to 16) */
+    float *work;             /* solver work: var bands, patch densification, median weights */
+    size_t work_floats;
     unsigned char *mask;
     float *pu, *pv;          /* patch flows */
 };
@@ -66,6 +76,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         .wmedian_band = 0.5f,
         .color = 1,
         .hs_iters = 0,
+        .work_mib = 32,
     };
     if (!strcmp(name, "fast")) {
         d.dis_finest = 2;
@@ -137,6 +148,7 @@ int sinew_flow_params_check(sinew_ctx *ctx, const sinew_flow_params *p)
     RANGE_F(wmedian_band, 1e-6, 1e6);
     RANGE_I(color, 0, 1);
     RANGE_I(hs_iters, 0, 10000);
+    RANGE_I(work_mib, 1, 65536);
     return SINEW_OK;
 }
 
@@ -164,7 +176,7 @@ static void release_buffers(sinew_estimator *e)
         sinew__free(ctx, e->pyr_mem[i]);
         e->pyr_mem[i] = NULL;
     }
-    float **planes[] = {&e->u, &e->v, &e->u2, &e->v2, &e->work, &e->pu, &e->pv};
+    float **planes[] = {&e->u, &e->v, &e->g, &e->work, &e->pu, &e->pv};
     for (size_t i = 0; i < sizeof planes / sizeof planes[0]; i++) {
         sinew__free(ctx, *planes[i]);
         *planes[i] = NULL;
@@ -214,6 +226,12 @@ static void *alloc_floats(sinew_ctx *ctx, size_t count, int *fail)
     return q;
 }
 
+/* Finest pyramid level the estimator computes (coarser results are upsampled). */
+static int computed_finest(const sinew_flow_params *p, int levels)
+{
+    return p->finest_level < levels - 1 ? p->finest_level : levels - 1;
+}
+
 static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
 {
     int levels = pick_levels(&e->p, w, h);
@@ -228,16 +246,17 @@ static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
         e->pyr_mem[i] = alloc_floats(ctx, pf, &fail);
     e->u = alloc_floats(ctx, n, &fail);
     e->v = alloc_floats(ctx, n, &fail);
-    e->u2 = alloc_floats(ctx, n, &fail);
-    e->v2 = alloc_floats(ctx, n, &fail);
-    int planes = sinew__var_planes(channels);
-    if (planes < sinew__hs_planes())
-        planes = sinew__hs_planes();
-    if (planes < 3)
-        planes = 3;
-    size_t wf;
-    if (sinew__mul_size(n, (size_t)planes, &wf))
-        fail = 1;
+    e->gp = (n + 15u) & ~(size_t)15u;
+    e->g = alloc_floats(ctx, 4 * e->gp, &fail);
+    /* solver work for the finest computed level (coarser levels need less) */
+    int fw, fh;
+    sinew__level_size(w, h, computed_finest(&e->p, levels), &fw, &fh);
+    size_t fn = (size_t)fw * (size_t)fh;
+    size_t budget = (size_t)e->p.work_mib << 18; /* floats */
+    size_t wf = sinew__var_work(channels, fw, fh, budget);
+    if (e->p.method == SINEW_FLOW_HORN_SCHUNCK)
+        wf = (size_t)sinew__hs_planes() * fn;
+    e->work_floats = wf;
     e->work = alloc_floats(ctx, wf, &fail);
     /* patch grid at the finest level that may run patch search (level 0 worst case) */
     sinew__dis_params dp = {e->p.dis_patch, e->p.dis_stride, e->p.dis_iters, 0.f};
@@ -321,21 +340,18 @@ static int remember_last1(sinew_estimator *e, const sinew_image *f)
     return SINEW_OK;
 }
 
-/* Finest pyramid level the estimator computes (coarser results are upsampled). */
-static int computed_finest(const sinew_estimator *e)
+/* Gradient planes of both frames' level-s luminance into g (planes 0, 1: frame a; 2, 3:
+ * frame b) and the level views that carry them. */
+static void level_gradients(const sinew_estimator *e, sinew__level *l0, sinew__level *l1, int nt)
 {
-    return e->p.finest_level < e->levels - 1 ? e->p.finest_level : e->levels - 1;
-}
-
-/* Exchange the roles of the flow planes (u, v) and their scratch partners (u2, v2). */
-static void swap_flow(float **u, float **v, float **u2, float **v2)
-{
-    float *t = *u;
-    *u = *u2;
-    *u2 = t;
-    t = *v;
-    *v = *v2;
-    *v2 = t;
+    float *g = e->g;
+    size_t gp = e->gp;
+    l0->gx = g;
+    l0->gy = g + gp;
+    l1->gx = g + 2 * gp;
+    l1->gy = g + 3 * gp;
+    sinew__gradient(l0->gx, l0->gy, l0->lum, l0->w, l0->h, nt);
+    sinew__gradient(l1->gx, l1->gy, l1->lum, l1->w, l1->h, nt);
 }
 
 /* Coarse-to-fine estimation from pyramid a to pyramid b into the interleaved image out. */
@@ -345,8 +361,8 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
     const sinew_flow_params *p = &e->p;
     int nt = sinew_ctx_threads(e->ctx);
     int top = e->levels - 1;
-    int finest = computed_finest(e);
-    float *u = e->u, *v = e->v, *u2 = e->u2, *v2 = e->v2;
+    int finest = computed_finest(p, e->levels);
+    float *u = e->u, *v = e->v, *gu = e->g, *gv = e->g + e->gp;
     {
         size_t n = (size_t)a->lv[top].w * (size_t)a->lv[top].h;
         memset(u, 0, n * sizeof(float));
@@ -357,42 +373,60 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
                             p->outer, p->inner};
     /* weighted-median constants: flow/wmedian.c */
     sinew__wmed_params wp = {p->wmedian, 7.f, 10.f, 0.3f, 10.f, p->wmedian_band};
+    int var = p->method == SINEW_FLOW_VARIATIONAL;
     for (int s = top; s >= finest; s--) {
-        const sinew__level *l0 = &a->lv[s], *l1 = &b->lv[s];
+        sinew__level l0 = a->lv[s], l1 = b->lv[s];
+        size_t n = (size_t)l0.w * (size_t)l0.h;
         if (s < top) {
+            /* the coarse flow moves to g, the upsampled one fills (u, v) */
             const sinew__level *up = &a->lv[s + 1];
-            sinew__flow_up(u2, v2, l0->w, l0->h, u, v, up->w, up->h, nt);
-            swap_flow(&u, &v, &u2, &v2);
+            size_t un = (size_t)up->w * (size_t)up->h;
+            memcpy(gu, u, un * sizeof(float));
+            memcpy(gv, v, un * sizeof(float));
+            sinew__flow_up(u, v, l0.w, l0.h, gu, gv, up->w, up->h, nt);
         }
-        if (p->dis_finest >= 0 && s >= p->dis_finest && l0->w >= p->dis_patch &&
-            l0->h >= p->dis_patch)
+        int grads = 0; /* g holds this level's gradients */
+        if (p->dis_finest >= 0 && s >= p->dis_finest && l0.w >= p->dis_patch &&
+            l0.h >= p->dis_patch)
         {
+            level_gradients(e, &l0, &l1, nt);
+            grads = 1;
             /* a patch may move up to one patch size from its start, half of that at the
              * two finest patch levels, where the coarse flow is already close and
              * repeated texture (facades, stripes) offers wrong minima one period away */
             dp.max_move = (float)p->dis_patch * (s <= p->dis_finest + 1 ? 0.5f : 1.0f);
-            sinew__dis_level(u, v, l0, l1, &dp, e->pu, e->pv, e->work, nt);
+            sinew__dis_level(u, v, &l0, &l1, &dp, e->pu, e->pv, e->work, e->work_floats, nt);
         }
         int nw = p->warps_fine > 0 && s < finest + p->fine_levels ? p->warps_fine : p->warps;
         for (int k = 0; k < nw; k++) {
-            if (p->method == SINEW_FLOW_HORN_SCHUNCK)
-                sinew__hs_level(u, v, l0, l1, p->alpha, p->hs_iters, e->work, e->mask, nt);
-            else
-                sinew__var_level(u, v, l0, l1, e->channels, &vp, e->work, e->mask, nt);
-            int wm = p->wmedian > 0 && s < finest + p->wmedian_levels;
-            size_t n = (size_t)l0->w * (size_t)l0->h;
-            if (p->median > 0) {
-                sinew__median(u2, u, l0->w, l0->h, p->median, nt);
-                sinew__median(v2, v, l0->w, l0->h, p->median, nt);
-            } else if (wm) {
-                memcpy(u2, u, n * sizeof(float));
-                memcpy(v2, v, n * sizeof(float));
+            if (!var) {
+                sinew__hs_level(u, v, &l0, &l1, p->alpha, p->hs_iters, e->work, e->mask, nt);
+            } else {
+                if (!grads)
+                    level_gradients(e, &l0, &l1, nt);
+                grads = 1;
+                sinew__var_level(u, v, &l0, &l1, e->channels, &vp, e->work, e->work_floats,
+                                 e->mask, nt);
             }
-            if (p->median > 0 || wm)
-                swap_flow(&u, &v, &u2, &v2);
+            /* filters write the new flow to g (the gradients there are recomputed when
+             * needed again), then it is copied back */
+            int wm = p->wmedian > 0 && s < finest + p->wmedian_levels;
+            if (p->median > 0) {
+                sinew__median(gu, u, l0.w, l0.h, p->median, nt);
+                sinew__median(gv, v, l0.w, l0.h, p->median, nt);
+            } else if (wm) {
+                memcpy(gu, u, n * sizeof(float));
+                memcpy(gv, v, n * sizeof(float));
+            }
             /* boundary pixels: weighted median of the flow before the plain median */
             if (wm)
-                sinew__wmedian(u, v, u2, v2, l0, l1, e->channels, &wp, e->work, nt);
+                sinew__wmedian(gu, gv, u, v, &l0, &l1, e->channels, &wp, e->work,
+                               e->work_floats, nt);
+            if (p->median > 0 || wm) {
+                memcpy(u, gu, n * sizeof(float));
+                memcpy(v, gv, n * sizeof(float));
+                grads = 0;
+            }
         }
     }
     if (finest > 0) {
@@ -411,13 +445,6 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
                 row[2 * x + 1] = vr[x];
             }
         }
-    }
-    /* keep the plane roles stable for the next call */
-    if (u != e->u) {
-        e->u2 = e->u;
-        e->v2 = e->v;
-        e->u = u;
-        e->v = v;
     }
 }
 
@@ -447,14 +474,12 @@ int sinew_estimator_run(sinew_estimator *est, sinew_image *fwd, sinew_image *bwd
     if ((st = ensure_buffers(est, frame0->width, frame0->height, channels)))
         return st;
     int nt = sinew_ctx_threads(ctx);
-    /* levels finer than the finest computed one need no derivatives */
-    int gfrom = computed_finest(est);
     if (reuse && est->last1_valid) {
         est->cur0 = 1 - est->cur0;
     } else {
-        sinew__pyramid_build(&est->pyr[est->cur0], frame0, est->work, gfrom, nt);
+        sinew__pyramid_build(&est->pyr[est->cur0], frame0, est->g, nt);
     }
-    sinew__pyramid_build(&est->pyr[1 - est->cur0], frame1, est->work, gfrom, nt);
+    sinew__pyramid_build(&est->pyr[1 - est->cur0], frame1, est->g, nt);
     if ((st = remember_last1(est, frame1)))
         return st;
     const sinew__pyramid *p0 = &est->pyr[est->cur0], *p1 = &est->pyr[1 - est->cur0];

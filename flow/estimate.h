@@ -55,6 +55,11 @@ typedef struct sinew_flow_params {
                            a 5x5 neighbourhood, > 0 */
     int color;        /* 1: RGB frames use a 3-channel data term; 0: luminance only */
     int hs_iters;     /* Jacobi iterations per warp for SINEW_FLOW_HORN_SCHUNCK */
+    int work_mib;     /* solver scratch budget in MiB, 1..65536 (presets: 32). A level whose
+                         variational planes exceed it is solved in bands of rows with 32
+                         rows of overlapping context, so memory stays ~ 30 bytes per pixel
+                         plus this budget. Results depend on it (for images that large),
+                         never on the thread count. */
 } sinew_flow_params;
 
 /* Fill *p with a named preset: "fast", "balanced", "accurate", or "baseline" (coarse-to-

@@ -23,10 +23,11 @@ void sinew__level_size(int w, int h, int level, int *lw, int *lh)
     *lh = h;
 }
 
-/* Planes per level: channels (+1 luminance for colour) + gx + gy. */
+/* Planes per level: channels (+1 luminance for colour). Gradients are not stored: the
+ * estimator computes them for the level it works on (flow/estimate.c). */
 static int planes_per_level(int channels)
 {
-    return channels + (channels > 1 ? 1 : 0) + 2;
+    return channels + (channels > 1 ? 1 : 0);
 }
 
 size_t sinew__pyramid_floats(int w, int h, int channels, int levels)
@@ -61,10 +62,6 @@ void sinew__pyramid_layout(sinew__pyramid *p, float *mem, int w, int h, int chan
         } else {
             lv->lum = lv->ch[0];
         }
-        lv->gx = mem;
-        mem += plane;
-        lv->gy = mem;
-        mem += plane;
     }
 }
 
@@ -95,8 +92,7 @@ static void convert_frame(sinew__level *l, int channels, const sinew_image *f, i
     }
 }
 
-void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp,
-                          int grad_from, int nt)
+void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp, int nt)
 {
     sinew__level *l0 = &p->lv[0];
     convert_frame(l0, p->channels, frame, nt);
@@ -115,8 +111,6 @@ void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tm
                 sinew__halve(dst, tmp, up->w, up->h, nt);
             }
         }
-        if (l >= grad_from)
-            sinew__gradient(lv->gx, lv->gy, lv->lum, lv->w, lv->h, nt);
     }
 }
 
@@ -269,28 +263,29 @@ static inline int clampi(int v, int lo, int hi)
 }
 
 void sinew__warp_n(float *const *dst, const float *const *src, int count,
-                   unsigned char *outside, const float *u, const float *v, int w, int h, int nt)
+                   unsigned char *outside, const float *u, const float *v, int w, int h,
+                   int y0, int sh, int nt)
 {
     (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
         for (int x = 0; x < w; x++) {
             size_t o = (size_t)y * (size_t)w + (size_t)x;
-            float xs = (float)x + u[o], ys = (float)y + v[o];
-            int out = xs < 0.f || ys < 0.f || xs > (float)(w - 1) || ys > (float)(h - 1);
+            float xs = (float)x + u[o], ys = (float)(y0 + y) + v[o];
+            int out = xs < 0.f || ys < 0.f || xs > (float)(w - 1) || ys > (float)(sh - 1);
             if (outside)
                 outside[o] = (unsigned char)out;
             /* bicubic (Keys 1981) inside, as recommended for warping by Sun, Roth and
              * Black 2010; clamped coordinates. Weights and taps are shared by the
              * `count` planes. */
             xs = xs < 0.f ? 0.f : (xs > (float)(w - 1) ? (float)(w - 1) : xs);
-            ys = ys < 0.f ? 0.f : (ys > (float)(h - 1) ? (float)(h - 1) : ys);
+            ys = ys < 0.f ? 0.f : (ys > (float)(sh - 1) ? (float)(sh - 1) : ys);
             int ix = (int)xs, iy = (int)ys;
             float kx[4], ky[4];
             cubic_weights(xs - (float)ix, kx);
             cubic_weights(ys - (float)iy, ky);
             size_t xi[4], yo[4];
-            if (ix >= 1 && ix + 2 < w && iy >= 1 && iy + 2 < h) {
+            if (ix >= 1 && ix + 2 < w && iy >= 1 && iy + 2 < sh) {
                 for (int i = 0; i < 4; i++) {
                     xi[i] = (size_t)(ix - 1 + i);
                     yo[i] = (size_t)(iy - 1 + i) * (size_t)w;
@@ -298,7 +293,7 @@ void sinew__warp_n(float *const *dst, const float *const *src, int count,
             } else {
                 for (int i = 0; i < 4; i++) {
                     xi[i] = (size_t)clampi(ix - 1 + i, 0, w - 1);
-                    yo[i] = (size_t)clampi(iy - 1 + i, 0, h - 1) * (size_t)w;
+                    yo[i] = (size_t)clampi(iy - 1 + i, 0, sh - 1) * (size_t)w;
                 }
             }
             for (int c = 0; c < count; c++) {
@@ -319,7 +314,7 @@ void sinew__warp_n(float *const *dst, const float *const *src, int count,
 void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
                  const float *v, int w, int h, int nt)
 {
-    sinew__warp_n(&dst, &src, 1, outside, u, v, w, h, nt);
+    sinew__warp_n(&dst, &src, 1, outside, u, v, w, h, 0, h, nt);
 }
 
 /* Median filtering with comparator networks. The networks below are Batcher's odd-even

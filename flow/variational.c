@@ -157,9 +157,11 @@ static void scale_masked(float *restrict p, const unsigned char *restrict mask, 
         p[i] = mask[i] ? 0.f : p[i] * s;
 }
 
-/* Warp frame 1 and compute all derivative planes. */
+/* Warp frame 1 and compute all derivative planes. l0, u, v, mask: the band's rows, which
+ * start at row y0 of the level; l1: the whole level of frame 1. */
 static void derivatives(planes *P, const float *u, const float *v, const sinew__level *l0,
-                        const sinew__level *l1, int channels, unsigned char *mask, int nt)
+                        const sinew__level *l1, int y0, int channels, unsigned char *mask,
+                        int nt)
 {
     int w = l0->w, h = l0->h;
     size_t n = (size_t)w * (size_t)h;
@@ -178,7 +180,7 @@ static void derivatives(planes *P, const float *u, const float *v, const sinew__
     wsrc[channels] = l1->gx;
     wdst[channels + 1] = P->lyt;
     wsrc[channels + 1] = l1->gy;
-    sinew__warp_n(wdst, wsrc, channels + 2, mask, u, v, w, h, nt);
+    sinew__warp_n(wdst, wsrc, channels + 2, mask, u, v, w, h, y0, l1->h, nt);
     for (int c = 0; c < channels; c++) {
         const float *i0 = l0->ch[c];
         average(tmp, i0, P->it[c], n, nt);
@@ -585,49 +587,144 @@ static void edge_weights(planes *P, const sinew__level *l0, float edge, int nt)
     }
 }
 
-/* u += du, v += dv, with du, dv in the split layout. */
-static void add_increment(float *u, float *v, const planes *P, int nt)
+/* Rows ya .. yb - 1 of the increment (du, dv, split layout) into row-major planes whose
+ * first row is row ya: added to them (add) or stored. */
+static void put_increment(float *u, float *v, int add, const planes *P, int ya, int yb, int nt)
 {
     (void)nt; /* unused without OpenMP */
-    int w = P->w, h = P->h;
+    int w = P->w;
     SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < h; y++) {
+    for (int y = ya; y < yb; y++) {
         /* even x have colour y & 1, odd x the other one */
-        size_t o = (size_t)y * (size_t)w;
+        size_t o = (size_t)(y - ya) * (size_t)w;
         size_t oe = rb_row(P, y & 1, y), oo = rb_row(P, !(y & 1), y);
         float *restrict ur = u + o, *restrict vr = v + o;
         const float *restrict due = P->du + oe, *restrict dve = P->dv + oe;
         const float *restrict duo = P->du + oo, *restrict dvo = P->dv + oo;
         int pairs = w / 2;
-        for (int k = 0; k < pairs; k++) {
-            ur[2 * k] += due[k];
-            ur[2 * k + 1] += duo[k];
-            vr[2 * k] += dve[k];
-            vr[2 * k + 1] += dvo[k];
-        }
-        if (w & 1) {
-            ur[w - 1] += due[pairs];
-            vr[w - 1] += dve[pairs];
+        if (add) {
+            for (int k = 0; k < pairs; k++) {
+                ur[2 * k] += due[k];
+                ur[2 * k + 1] += duo[k];
+                vr[2 * k] += dve[k];
+                vr[2 * k + 1] += dvo[k];
+            }
+            if (w & 1) {
+                ur[w - 1] += due[pairs];
+                vr[w - 1] += dve[pairs];
+            }
+        } else {
+            for (int k = 0; k < pairs; k++) {
+                ur[2 * k] = due[k];
+                ur[2 * k + 1] = duo[k];
+                vr[2 * k] = dve[k];
+                vr[2 * k + 1] = dvo[k];
+            }
+            if (w & 1) {
+                ur[w - 1] = due[pairs];
+                vr[w - 1] = dve[pairs];
+            }
         }
     }
 }
 
+/* dst += src over n floats */
+static void add_planes(float *restrict dst, const float *restrict src, size_t n, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    SINEW_PARALLEL_FOR(nt)
+    for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
+        dst[i] += src[i];
+}
+
+/* Solve for the increment on rows r0 .. r1 - 1 of the level, treating them as a whole
+ * image (their first and last rows get the image-border treatment). The increment is
+ * left in P->du, P->dv (split layout). */
+static void solve_band(planes *P, const float *u, const float *v, const sinew__level *l0,
+                       const sinew__level *l1, int r0, int r1, int channels,
+                       const sinew__var_params *p, float *work, unsigned char *mask, int nt)
+{
+    int w = l0->w;
+    size_t off = (size_t)r0 * (size_t)w;
+    sinew__level b = *l0;
+    b.h = r1 - r0;
+    for (int c = 0; c < channels; c++)
+        b.ch[c] = l0->ch[c] + off;
+    b.lum = l0->lum + off;
+    b.gx = l0->gx + off;
+    b.gy = l0->gy + off;
+    u += off;
+    v += off;
+    layout(P, work, channels, w, b.h);
+    derivatives(P, u, v, &b, l1, r0, channels, mask, nt);
+    edge_weights(P, &b, p->edge, nt);
+    memset(P->du, 0, P->n * sizeof(float));
+    memset(P->dv, 0, P->n * sizeof(float));
+    for (int k = 0; k < p->outer; k++) {
+        smooth_weights(P, u, v, p->alpha, p->eps, nt);
+        assemble(P, u, v, channels, p, nt);
+        sor_sweeps(P, p->inner, p->omega, nt);
+    }
+}
+
+/* Rows of context above and below a band: the band's increment is kept only on its core
+ * rows, where the artificial border at the band's edge has faded. */
+#define BAND_HALO 32
+
+/* Core rows of a band that fits `work` floats (band planes for core + 2 * BAND_HALO rows
+ * and the pending increment for core rows). */
+static size_t band_core(int channels, int w, size_t work)
+{
+    size_t np = (size_t)sinew__var_planes(channels), rows = work / (size_t)w;
+    if (rows < np * 2 * BAND_HALO)
+        return 0;
+    return (rows - np * 2 * BAND_HALO) / (np + 2);
+}
+
+size_t sinew__var_work(int channels, int w, int h, size_t budget)
+{
+    size_t n = (size_t)w * (size_t)h, np = (size_t)sinew__var_planes(channels);
+    size_t whole = np * n;
+    if (whole <= budget)
+        return whole;
+    /* bands of at least BAND_HALO core rows */
+    size_t least = (np * 3 + 2) * BAND_HALO * (size_t)w;
+    size_t need = budget > least ? budget : least;
+    return need < whole ? need : whole;
+}
+
 void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
-                      int channels, const sinew__var_params *p, float *work,
+                      int channels, const sinew__var_params *p, float *work, size_t work_floats,
                       unsigned char *mask, int nt)
 {
     int w = l0->w, h = l0->h;
     size_t n = (size_t)w * (size_t)h;
     planes P;
-    layout(&P, work, channels, w, h);
-    derivatives(&P, u, v, l0, l1, channels, mask, nt);
-    edge_weights(&P, l0, p->edge, nt);
-    memset(P.du, 0, n * sizeof(float));
-    memset(P.dv, 0, n * sizeof(float));
-    for (int k = 0; k < p->outer; k++) {
-        smooth_weights(&P, u, v, p->alpha, p->eps, nt);
-        assemble(&P, u, v, channels, p, nt);
-        sor_sweeps(&P, p->inner, p->omega, nt);
+    if ((size_t)sinew__var_planes(channels) * n <= work_floats) {
+        solve_band(&P, u, v, l0, l1, 0, h, channels, p, work, mask, nt);
+        put_increment(u, v, 1, &P, 0, h, nt);
+        return;
     }
-    add_increment(u, v, &P, nt);
+    /* Bands of `core` rows, each solved with BAND_HALO rows of context on both sides. A
+     * band's increment waits in `pend` until the next band (whose context reaches into
+     * it) is solved; bands are at least BAND_HALO rows, so no later band reads it. */
+    int core = (int)band_core(channels, w, work_floats);
+    size_t band_floats = (size_t)sinew__var_planes(channels) * (size_t)w *
+                         (size_t)(core + 2 * BAND_HALO);
+    float *pu = work + band_floats, *pv = pu + (size_t)core * (size_t)w;
+    int pa = 0, pb = 0;
+    for (int a = 0; a < h; a += core) {
+        int b = a + core < h ? a + core : h;
+        int r0 = a > BAND_HALO ? a - BAND_HALO : 0, r1 = b + BAND_HALO < h ? b + BAND_HALO : h;
+        solve_band(&P, u, v, l0, l1, r0, r1, channels, p, work, mask, nt);
+        size_t pn = (size_t)(pb - pa) * (size_t)w, po = (size_t)pa * (size_t)w;
+        add_planes(u + po, pu, pn, nt);
+        add_planes(v + po, pv, pn, nt);
+        put_increment(pu, pv, 0, &P, a - r0, b - r0, nt);
+        pa = a;
+        pb = b;
+    }
+    size_t pn = (size_t)(pb - pa) * (size_t)w, po = (size_t)pa * (size_t)w;
+    add_planes(u + po, pu, pn, nt);
+    add_planes(v + po, pv, pn, nt);
 }

@@ -5,8 +5,12 @@
  * thread scaling and peak memory, for every preset and for the Horn-Schunck baseline run
  * in the same process, so ratios compare across machines.
  *
- *   bench_flow DATA_DIR [--runs N] [--rss fast=B,balanced=B,...]   print the table
- *   bench_flow --rss-probe PRESET DATA_DIR                           print bytes/pixel
+ *   bench_flow DATA_DIR [--runs N] [--rss fast=B1/B2,balanced=B1/B2,...]   print the table
+ *   bench_flow --rss-probe PRESET DATA_DIR W H      print the peak-RSS growth in bytes
+ *
+ * Memory is reported as bytes per pixel plus a fixed overhead: the line through the
+ * growth of one forward estimate at RSS_SIZES (B1, B2; one process each, as ru_maxrss
+ * only rises).
  */
 #define _POSIX_C_SOURCE 200809L
 #include <math.h>
@@ -25,6 +29,7 @@ static const char *pair_names[NPAIR] = {"Dimetrodon", "Grove2",      "Grove3", "
                                         "RubberWhale", "Urban2",     "Urban3", "Venus",
                                         "chairs-0",   "chairs-1"};
 static const int sizes[4][2] = {{320, 240}, {640, 480}, {1280, 1024}, {1920, 1080}};
+static const double rss_px[2] = {1920.0 * 1080.0, 3840.0 * 2160.0}; /* tools/bench */
 
 static double now(void)
 {
@@ -138,31 +143,31 @@ static long max_rss_kb(void)
     return ru.ru_maxrss;
 }
 
-/* Peak-RSS growth of one 1920x1080 forward estimate, in bytes per pixel. */
-static int rss_probe(const char *preset, const char *data)
+/* Peak-RSS growth of one w x h forward estimate (Urban2 resized), in bytes. */
+static int rss_probe(const char *preset, const char *data, int w, int h)
 {
     sinew_ctx *ctx = sinew_ctx_new();
     pair p;
     load_pair(ctx, &p, data, 5);
     sinew_image a, b, fl;
-    resize(ctx, &a, &p.f0, 1920, 1080);
-    resize(ctx, &b, &p.f1, 1920, 1080);
-    if (sinew_image_alloc(ctx, &fl, 1920, 1080, 2, SINEW_F32))
+    resize(ctx, &a, &p.f0, w, h);
+    resize(ctx, &b, &p.f1, w, h);
+    if (sinew_image_alloc(ctx, &fl, w, h, 2, SINEW_F32))
         die(ctx, "alloc");
-    memset(fl.data, 0, fl.stride * 1080); /* touch the output so it is counted before */
+    memset(fl.data, 0, fl.stride * (size_t)h); /* touch the output so it is counted before */
     sinew_estimator *e = make_est(ctx, preset);
     long before = max_rss_kb();
     if (sinew_estimator_run(e, &fl, NULL, &a, &b))
         die(ctx, "run");
     long after = max_rss_kb();
-    printf("%.1f\n", (double)(after - before) * 1024.0 / (1920.0 * 1080.0));
+    printf("%.0f\n", (double)(after - before) * 1024.0);
     return 0;
 }
 
 int main(int argc, char **argv)
 {
-    if (argc == 4 && !strcmp(argv[1], "--rss-probe"))
-        return rss_probe(argv[2], argv[3]);
+    if (argc == 6 && !strcmp(argv[1], "--rss-probe"))
+        return rss_probe(argv[2], argv[3], atoi(argv[4]), atoi(argv[5]));
     if (argc < 2) {
         fprintf(stderr, "usage: bench_flow DATA_DIR [--runs N] [--rss LIST]\n");
         return 2;
@@ -282,12 +287,21 @@ int main(int argc, char **argv)
     printf("\n| %-22s |", "speed-up 1 -> 2 threads");
     for (int k = 0; k < NPRESET; k++)
         printf(" %-27.2f |", scale[k]);
-    printf("\n| %-22s |", "peak RSS growth B/px");
+    double slope[NPRESET], fixed[NPRESET];
     for (int k = 0; k < NPRESET; k++) {
         const char *q = strstr(rss, presets[k]);
-        double v = q ? atof(q + strlen(presets[k]) + 1) : NAN;
-        printf(" %-27.1f |", v);
+        double b1 = NAN, b2 = NAN;
+        if (q && sscanf(q + strlen(presets[k]), "=%lf/%lf", &b1, &b2) != 2)
+            b1 = b2 = NAN;
+        slope[k] = (b2 - b1) / (rss_px[1] - rss_px[0]);
+        fixed[k] = b1 - slope[k] * rss_px[0];
     }
+    printf("\n| %-22s |", "peak RSS B/px");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27.1f |", slope[k]);
+    printf("\n| %-22s |", "... + fixed MiB");
+    for (int k = 0; k < NPRESET; k++)
+        printf(" %-27.1f |", fixed[k] / 1048576.0);
     printf("\n| %-22s |", "time / baseline (MB)");
     for (int k = 0; k < NPRESET; k++)
         printf(" %-27.3f |", mbt[k] / mbt[NPRESET - 1]);

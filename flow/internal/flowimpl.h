@@ -16,7 +16,9 @@
 #define SINEW__MAX_CH 3
 
 /* One pyramid level of one frame. ch[c] are the data-term channels (1 gray or 3 RGB);
- * lum is the luminance (aliases ch[0] for gray); gx, gy its 5-point derivatives. */
+ * lum is the luminance (aliases ch[0] for gray); gx, gy its 5-point derivatives, which
+ * the pyramid does not store: the estimator points them at scratch planes computed for
+ * the level in use (NULL in a stored pyramid). */
 typedef struct sinew__level {
     int w, h;
     float *ch[SINEW__MAX_CH];
@@ -33,11 +35,8 @@ typedef struct sinew__pyramid {
 size_t sinew__pyramid_floats(int w, int h, int channels, int levels);
 /* Lay the pyramid out in `mem` (sinew__pyramid_floats floats). */
 void sinew__pyramid_layout(sinew__pyramid *p, float *mem, int w, int h, int channels, int levels);
-/* Fill the pyramid from a frame (U8/U16, 1..4 channels). tmp: >= 2*w*h floats. The
- * derivative planes are computed for levels >= grad_from only (finer levels that the
- * estimator never reads are left unset). */
-void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp,
-                          int grad_from, int nt);
+/* Fill the pyramid from a frame (U8/U16, 1..4 channels). tmp: >= 2*w*h floats. */
+void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp, int nt);
 /* Level size for a given full size: each level halves (rounding up). */
 void sinew__level_size(int w, int h, int level, int *lw, int *lh);
 
@@ -55,13 +54,16 @@ void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const
  * axis), so no full-size planar copy is needed. */
 void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int sw, int sh,
                         int nt);
-/* Bilinear warp: dst(x,y) = src(x+u, y+v) with clamped coordinates. If `outside` is not
+/* Bicubic warp: dst(x,y) = src(x+u, y+v) with clamped coordinates. If `outside` is not
  * NULL it receives 1 where the sample point lies outside the image, else 0. */
 void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
                  const float *v, int w, int h, int nt);
-/* The same warp applied to `count` planes at once (shared weights): dst[c] from src[c]. */
+/* The same warp applied to `count` planes at once (shared weights): dst[c] from src[c].
+ * dst, u, v, outside are h rows of a band starting at row y0 of the w x sh source:
+ * dst(x, y) = src(x + u, y0 + y + v). */
 void sinew__warp_n(float *const *dst, const float *const *src, int count,
-                   unsigned char *outside, const float *u, const float *v, int w, int h, int nt);
+                   unsigned char *outside, const float *u, const float *v, int w, int h,
+                   int y0, int sh, int nt);
 /* Bilinear sample with clamped coordinates. */
 static inline float sinew__sample(const float *img, int w, int h, float x, float y)
 {
@@ -91,10 +93,13 @@ typedef struct sinew__dis_params {
 /* Patch-grid size for a level. */
 void sinew__dis_grid(int w, int h, const sinew__dis_params *p, int *nx, int *ny);
 /* Refine (u, v) at one level: patch inverse-compositional search initialised from the
- * current dense flow, then densification. pu, pv, perr: nx*ny floats each. accw: scratch
- * of 3*w*h floats. u, v are overwritten with the densified flow. */
+ * current dense flow, then densification. l0 carries its gradient planes. pu, pv: nx*ny
+ * floats each. accw: acc_floats >= 3*w floats of scratch (densification runs in chunks of
+ * rows that fit; the result does not depend on the chunking). u, v are overwritten with
+ * the densified flow. */
 void sinew__dis_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
-                      const sinew__dis_params *p, float *pu, float *pv, float *accw, int nt);
+                      const sinew__dis_params *p, float *pu, float *pv, float *accw,
+                      size_t acc_floats, int nt);
 
 /* ---- variational refinement at one level (Brox et al. 2004 energy) ---- */
 typedef struct sinew__var_params {
@@ -103,11 +108,16 @@ typedef struct sinew__var_params {
 } sinew__var_params;
 /* Work planes of w*h floats needed by sinew__var_level for `channels`. */
 int sinew__var_planes(int channels);
+/* Work floats for sinew__var_level on a w x h level: the whole level's planes when they
+ * fit `budget` floats, else at least `budget` (or the least that bands need). */
+size_t sinew__var_work(int channels, int w, int h, size_t budget);
 /* One warping step: warp frame 1 by (u, v), solve for the increment with `outer`
- * fixed-point iterations of `inner` red-black SOR sweeps, add it to (u, v).
- * work: sinew__var_planes(channels) * w*h floats; mask: w*h bytes. */
+ * fixed-point iterations of `inner` red-black SOR sweeps, add it to (u, v). l0 and l1
+ * carry their gradient planes. work: work_floats floats (sinew__var_work); when the whole
+ * level does not fit, it is solved in bands of rows with overlapping context, so the
+ * result depends on work_floats but never on the thread count. mask: w*h bytes. */
 void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
-                      int channels, const sinew__var_params *p, float *work,
+                      int channels, const sinew__var_params *p, float *work, size_t work_floats,
                       unsigned char *mask, int nt);
 
 /* ---- occlusion-aware weighted median near motion boundaries (flow/wmedian.c) ---- */
@@ -118,11 +128,12 @@ typedef struct sinew__wmed_params {
     float band;                        /* boundary test: L1 flow difference in a 5x5, px */
 } sinew__wmed_params;
 /* Replace (uo, vo) at boundary pixels of the flow (u, v) by its weighted median; other
- * pixels of (uo, vo) are left untouched. (uo, vo) must not alias (u, v). occ: w*h
- * floats of scratch. */
+ * pixels of (uo, vo) are left untouched. (uo, vo) must not alias (u, v). occ: occ_floats
+ * >= (2 * radius + 1) * w floats of scratch (the rows run in chunks that fit; the result
+ * does not depend on the chunking). */
 void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
                     const sinew__level *l0, const sinew__level *l1, int channels,
-                    const sinew__wmed_params *p, float *occ, int nt);
+                    const sinew__wmed_params *p, float *occ, size_t occ_floats, int nt);
 
 /* ---- coarse-to-fine Horn-Schunck baseline (Horn and Schunck 1981) ---- */
 int sinew__hs_planes(void);

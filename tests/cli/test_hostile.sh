@@ -201,10 +201,12 @@ sys.exit(0 if f.shape[:2] == np.load('$T/flow_$s.npy').shape[:2] and np.isfinite
     expect_error "flow: backward output is a directory" "$T/fo.flo" "dir\.flo.*directory" \
         "$SINEW_BIN" flow "$T/frame_2x2.ppm" "$T/frame_2x2.ppm" -o "$T/fo.flo" --backward "$T/dir.flo"
     for opt in "--alpha nan" "--alpha -1" "--alpha inf" "--levels 99" "--levels -2" "--warps 1000" \
-        "--patch-size 2" "--median 9" "--threads -1" "--preset nope" "--inner 0"; do
-        # range errors come from the library, which names the parameter field (dis_patch)
+        "--patch-size 2" "--median 9" "--threads -1" "--preset nope" "--inner 0" \
+        "--work-mib 0" "--work-mib 70000"; do
+        # range errors come from the library, which names the parameter field (dis_patch,
+        # work_mib)
         # shellcheck disable=SC2086
-        expect_error "flow $opt" "$T/fp.flo" "$(optname "$opt")|dis_patch = 2" \
+        expect_error "flow $opt" "$T/fp.flo" "$(optname "$opt")|$(optname "$opt" | tr - _) =|dis_patch = 2" \
             "$SINEW_BIN" flow "$T/frame_2x2.ppm" "$T/frame_2x2.ppm" -o "$T/fp.flo" $opt
     done
 else

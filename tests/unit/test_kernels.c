@@ -6,9 +6,12 @@
  * median (Sun, Roth, Black 2010) on hand-built cases whose answer follows from its
  * definition: an isolated spike is removed, a flow boundary misplaced by one pixel
  * next to an image edge moves back to the edge (where a plain median keeps it), pixels
- * away from motion boundaries are left alone, and the result is thread-independent. */
+ * away from motion boundaries are left alone, and the result is thread-independent and
+ * does not depend on how many rows its scratch holds; patch-search densification likewise
+ * gives the same bits in chunks of rows. */
 #include "tests/support/testutil.h"
 
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -127,14 +130,21 @@ static void wm_free(wm_case *c)
     free(c->occ);
 }
 
-/* Run the filter with the estimator's constants; untouched outputs stay at `mark`. */
-static void wm_run(wm_case *c, float mark, int nt)
+/* Run the filter with the estimator's constants and occ_floats of scratch (0: the whole
+ * plane); untouched outputs stay at `mark`. */
+static void wm_run_occ(wm_case *c, float mark, int nt, size_t occ_floats)
 {
     size_t n = (size_t)c->w * (size_t)c->h;
     for (size_t i = 0; i < n; i++)
         c->uo[i] = c->vo[i] = mark;
     sinew__wmed_params p = {4, 7.f, 10.f, 0.3f, 10.f, 0.5f};
-    sinew__wmedian(c->uo, c->vo, c->u, c->v, &c->l, &c->l, 1, &p, c->occ, nt);
+    sinew__wmedian(c->uo, c->vo, c->u, c->v, &c->l, &c->l, 1, &p, c->occ,
+                   occ_floats ? occ_floats : n, nt);
+}
+
+static void wm_run(wm_case *c, float mark, int nt)
+{
+    wm_run_occ(c, mark, nt, 0);
 }
 
 static void test_kernels_wmedian_removes_spike(void **state)
@@ -185,7 +195,9 @@ static void test_kernels_wmedian_snaps_boundary_to_edge(void **state)
     wm_free(&c);
 }
 
-static void test_kernels_wmedian_threads_identical(void **state)
+/* Random flow on random texture: the same output for 3 threads and for scratch that
+ * holds only a few rows at a time (rows in chunks) as for 1 thread and a whole plane. */
+static void test_kernels_wmedian_threads_and_chunks_identical(void **state)
 {
     (void)state;
     int w = 83, h = 57;
@@ -207,9 +219,73 @@ static void test_kernels_wmedian_threads_identical(void **state)
     wm_run(&a, 0.f, 3);
     assert_memory_equal(u1, a.uo, n * sizeof *u1);
     assert_memory_equal(v1, a.vo, n * sizeof *v1);
+    /* radius 4: 9 rows of scratch is the least (chunks of 1 row), 20 gives chunks of 12 */
+    for (size_t rows = 9; rows <= 20; rows += 11) {
+        wm_run_occ(&a, 0.f, 2, rows * (size_t)w);
+        assert_memory_equal(u1, a.uo, n * sizeof *u1);
+        assert_memory_equal(v1, a.vo, n * sizeof *v1);
+    }
     free(u1);
     free(v1);
     wm_free(&a);
+}
+
+/* Patch search and densification (Kroeger et al. 2016) on a smooth random texture and a
+ * shifted copy: densification in chunks of rows (scratch for 1 or 7 rows) gives the same
+ * bits as with scratch for the whole plane. */
+static void test_kernels_dis_chunks_identical(void **state)
+{
+    (void)state;
+    int w = 61, h = 47;
+    size_t n = (size_t)w * (size_t)h;
+    float *img0 = malloc(6 * n * sizeof(float)), *u = malloc(4 * n * sizeof(float));
+    float *acc = malloc(3 * n * sizeof(float));
+    assert_non_null(img0);
+    assert_non_null(u);
+    assert_non_null(acc);
+    float *img1 = img0 + n, *v = u + n, *u0 = u + 2 * n, *v0 = u + 3 * n;
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w; x++) {
+            img0[y * w + x] = 0.5f + 0.2f * sinf(0.4f * (float)x + 0.3f * (float)y) +
+                              0.1f * cosf(0.23f * (float)x * (float)y / 9.f);
+            float xs = (float)x + 1.3f, ys = (float)y - 0.6f;
+            img1[y * w + x] = 0.5f + 0.2f * sinf(0.4f * xs + 0.3f * ys) +
+                              0.1f * cosf(0.23f * xs * ys / 9.f);
+        }
+    sinew__level l0 = {.w = w, .h = h, .lum = img0, .gx = img0 + 2 * n, .gy = img0 + 3 * n};
+    sinew__level l1 = {.w = w, .h = h, .lum = img1, .gx = img0 + 4 * n, .gy = img0 + 5 * n};
+    l0.ch[0] = img0;
+    l1.ch[0] = img1;
+    sinew__gradient(l0.gx, l0.gy, img0, w, h, 1);
+    sinew__gradient(l1.gx, l1.gy, img1, w, h, 1);
+    sinew__dis_params dp = {8, 3, 12, 4.f};
+    int nx, ny;
+    sinew__dis_grid(w, h, &dp, &nx, &ny);
+    float *pu = malloc(2 * (size_t)nx * (size_t)ny * sizeof(float));
+    assert_non_null(pu);
+    float *pv = pu + (size_t)nx * (size_t)ny;
+    size_t chunk_rows[] = {(size_t)h, 1, 7};
+    for (int k = 0; k < 3; k++) {
+        for (size_t i = 0; i < n; i++)
+            u[i] = v[i] = 0.f;
+        sinew__dis_level(u, v, &l0, &l1, &dp, pu, pv, acc, 3 * (size_t)w * chunk_rows[k], 2);
+        if (k == 0) {
+            /* the search found the shift: frame 0 at x is frame 1 at x + (-1.3, 0.6) */
+            double su = 0, sv = 0;
+            for (size_t i = 0; i < n; i++)
+                su += u[i], sv += v[i];
+            assert_true(fabs(su / (double)n + 1.3) < 0.2 && fabs(sv / (double)n - 0.6) < 0.2);
+            memcpy(u0, u, n * sizeof(float));
+            memcpy(v0, v, n * sizeof(float));
+        } else {
+            assert_memory_equal(u0, u, n * sizeof(float));
+            assert_memory_equal(v0, v, n * sizeof(float));
+        }
+    }
+    free(img0);
+    free(u);
+    free(acc);
+    free(pu);
 }
 
 int main(void)
@@ -219,7 +295,8 @@ int main(void)
         cmocka_unit_test(test_kernels_median_threads_identical),
         cmocka_unit_test(test_kernels_wmedian_removes_spike),
         cmocka_unit_test(test_kernels_wmedian_snaps_boundary_to_edge),
-        cmocka_unit_test(test_kernels_wmedian_threads_identical),
+        cmocka_unit_test(test_kernels_wmedian_threads_and_chunks_identical),
+        cmocka_unit_test(test_kernels_dis_chunks_identical),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

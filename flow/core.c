@@ -323,8 +323,8 @@ int sinew_outfile_open(sinew_ctx *ctx, sinew_outfile **out, const char *path)
                     ((uint64_t)getpid() << 32) ^ (uint64_t)(uintptr_t)f;
     for (int attempt = 0; attempt < 100 && fd < 0 && e == EEXIST; attempt++) {
         seed = seed * 6364136223846793005u + 1442695040888963407u;
-        snprintf(f->tmp, n + 32, "%.*s.%s.tmp-%06llx", (int)dirlen, path, path + dirlen,
-                 (unsigned long long)(seed >> 40));
+        snprintf(f->tmp, n + 32, "%.*s.%s" SINEW__TMP_TAG "%06llx", (int)dirlen, path,
+                 path + dirlen, (unsigned long long)(seed >> 40));
         fd = open(f->tmp, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
         e = fd < 0 ? errno : 0;
     }

@@ -139,7 +139,7 @@ static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, 
  * works on an output folder at a time). */
 static void remove_stale_temporaries(sinew_ctx *ctx, const char *outdir)
 {
-    static const char prefix[] = "." SINEW__MANIFEST_FILE ".tmp-";
+    static const char prefix[] = "." SINEW__MANIFEST_FILE SINEW__TMP_TAG;
     DIR *d = opendir(outdir);
     if (!d)
         return;

@@ -324,55 +324,88 @@ static int cmp_str(const void *a, const void *b)
     return strcmp(*(char *const *)a, *(char *const *)b);
 }
 
-/* The pair's outputs: regular files other than the records and temporaries, sorted
- * by name (byte order) so the done record is deterministic. */
-static int list_outputs(sinew_ctx *ctx, const char *dir, char ***names, size_t *n)
+char *sinew__dup_join(sinew_ctx *ctx, const char *a, const char *b)
 {
-    *names = NULL;
+    size_t na = strlen(a), nb = strlen(b);
+    char *s = sinew__alloc(ctx, na + nb + 2);
+    if (!s)
+        return NULL;
+    memcpy(s, a, na);
+    s[na] = '/';
+    memcpy(s + na + 1, b, nb + 1);
+    return s;
+}
+
+static char *dup_str(sinew_ctx *ctx, const char *s)
+{
+    size_t l = strlen(s);
+    char *c = sinew__alloc(ctx, l + 1);
+    if (c)
+        memcpy(c, s, l + 1);
+    return c;
+}
+
+void sinew__free_names(sinew_ctx *ctx, char **names, size_t n)
+{
+    for (size_t i = 0; names && i < n; i++)
+        sinew__free(ctx, names[i]);
+    sinew__free(ctx, names);
+}
+
+int sinew__list_dir(sinew_ctx *ctx, const char *dir, int (*keep)(const char *name), int join,
+                    size_t max, char ***out, size_t *n)
+{
+    *out = NULL;
     *n = 0;
     DIR *d = opendir(dir);
     if (!d)
         return sinew__fail(ctx, SINEW_EIO, "%s: cannot open folder: %s", dir, strerror(errno));
-    size_t cap = 0;
+    char **names = NULL;
+    size_t cap = 0, k = 0;
     struct dirent *e;
     int rc = SINEW_OK;
-    while ((e = readdir(d)) != NULL) {
-        const char *nm = e->d_name;
-        if (nm[0] == '.' || !strcmp(nm, SINEW__DONE_FILE) || !strcmp(nm, SINEW__ERROR_FILE))
+    while (!rc && (e = readdir(d)) != NULL) {
+        if (!keep(e->d_name))
             continue;
-        if (*n == cap) {
+        if (k == max) {
+            rc = sinew__fail(ctx, SINEW_ELIMIT, "%s: more than %zu files", dir, max);
+            break;
+        }
+        if (k == cap) {
             size_t nc = cap ? cap * 2 : 16;
             char **g = sinew__calloc(ctx, nc, sizeof *g);
             if (!g) {
                 rc = SINEW_ENOMEM;
                 break;
             }
-            if (*names)
-                memcpy(g, *names, *n * sizeof *g);
-            sinew__free(ctx, *names);
-            *names = g;
+            if (names)
+                memcpy(g, names, k * sizeof *g);
+            sinew__free(ctx, names);
+            names = g;
             cap = nc;
         }
-        size_t l = strlen(nm);
-        char *c = sinew__alloc(ctx, l + 1);
-        if (!c) {
+        names[k] = join ? sinew__dup_join(ctx, dir, e->d_name) : dup_str(ctx, e->d_name);
+        if (!names[k])
             rc = SINEW_ENOMEM;
-            break;
-        }
-        memcpy(c, nm, l + 1);
-        (*names)[(*n)++] = c;
+        else
+            k++;
     }
     closedir(d);
-    if (!rc && *n > 1)
-        qsort(*names, *n, sizeof **names, cmp_str);
-    return rc;
+    if (rc) {
+        sinew__free_names(ctx, names, k);
+        return rc;
+    }
+    if (k > 1)
+        qsort(names, k, sizeof *names, cmp_str);
+    *out = names;
+    *n = k;
+    return SINEW_OK;
 }
 
-static void free_names(sinew_ctx *ctx, char **names, size_t n)
+/* The pair's outputs: regular files other than the records and temporaries. */
+static int is_output(const char *nm)
 {
-    for (size_t i = 0; i < n; i++)
-        sinew__free(ctx, names[i]);
-    sinew__free(ctx, names);
+    return nm[0] != '.' && strcmp(nm, SINEW__DONE_FILE) && strcmp(nm, SINEW__ERROR_FILE);
 }
 
 static cJSON *record_head(const sinew_run *run, size_t index, const char *name)
@@ -414,7 +447,8 @@ static int write_done_record(sinew_run *run, size_t index, const char *name, con
     sinew_ctx *ctx = run->ctx;
     char **names = NULL;
     size_t nn = 0;
-    int rc = list_outputs(ctx, dir, &names, &nn);
+    /* sorted by name (byte order) so the done record is deterministic */
+    int rc = sinew__list_dir(ctx, dir, is_output, 0, SIZE_MAX, &names, &nn);
     cJSON *o = NULL;
     if (rc)
         goto done;
@@ -458,7 +492,7 @@ static int write_done_record(sinew_run *run, size_t index, const char *name, con
         rc = sinew__json_write(ctx, p, o);
 done:
     cJSON_Delete(o);
-    free_names(ctx, names, nn);
+    sinew__free_names(ctx, names, nn);
     return rc;
 }
 

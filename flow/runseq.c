@@ -3,8 +3,6 @@
  * intrinsics.json) or timestamped lists (rgb.txt, depth.txt) associated by nearest
  * time within a tolerance. Produces the frame list the run engine takes. */
 #define _POSIX_C_SOURCE 200809L
-#include <dirent.h>
-#include <errno.h>
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
@@ -13,18 +11,6 @@
 #include "flow/internal/base.h"
 #include "flow/internal/run.h"
 #include "flow/run.h"
-
-static char *dup_join(sinew_ctx *ctx, const char *a, const char *b)
-{
-    size_t na = strlen(a), nb = strlen(b);
-    char *s = sinew__alloc(ctx, na + nb + 2);
-    if (!s)
-        return NULL;
-    memcpy(s, a, na);
-    s[na] = '/';
-    memcpy(s + na + 1, b, nb + 1);
-    return s;
-}
 
 static int is_file(const char *p)
 {
@@ -52,6 +38,7 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src)
     memset(src, 0, sizeof *src);
 }
 
+/* Image files (by extension, not hidden): the frames of a default-layout folder. */
 static int image_ext(const char *name)
 {
     static const char *const ext[] = {".png", ".jpg", ".jpeg", ".ppm", ".pgm", ".npy", ".pfm"};
@@ -64,59 +51,6 @@ static int image_ext(const char *name)
             return 1;
     }
     return 0;
-}
-
-static int cmp_str(const void *a, const void *b)
-{
-    return strcmp(*(char *const *)a, *(char *const *)b);
-}
-
-static void free_list(sinew_ctx *ctx, char **l, size_t n)
-{
-    for (size_t i = 0; l && i < n; i++)
-        sinew__free(ctx, l[i]);
-    sinew__free(ctx, l);
-}
-
-/* Sorted image file paths of a folder; the count is limited before the list grows. */
-static int list_images(sinew_ctx *ctx, const char *dir, char ***out, size_t *n)
-{
-    *out = NULL;
-    *n = 0;
-    DIR *d = opendir(dir);
-    if (!d)
-        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open folder: %s", dir, strerror(errno));
-    size_t count = 0;
-    struct dirent *e;
-    while ((e = readdir(d)) != NULL)
-        count += image_ext(e->d_name);
-    if (count > SINEW_RUN_MAX_FRAMES) {
-        closedir(d);
-        return sinew__fail(ctx, SINEW_ELIMIT, "%s: %zu images, limit %d", dir, count,
-                           SINEW_RUN_MAX_FRAMES);
-    }
-    char **l = count ? sinew__calloc(ctx, count, sizeof *l) : NULL;
-    if (count && !l) {
-        closedir(d);
-        return SINEW_ENOMEM;
-    }
-    rewinddir(d);
-    size_t k = 0;
-    while ((e = readdir(d)) != NULL && k < count) {
-        if (!image_ext(e->d_name))
-            continue;
-        if (!(l[k] = dup_join(ctx, dir, e->d_name))) {
-            closedir(d);
-            free_list(ctx, l, k);
-            return SINEW_ENOMEM;
-        }
-        k++;
-    }
-    closedir(d);
-    qsort(l, k, sizeof *l, cmp_str);
-    *out = l;
-    *n = k;
-    return SINEW_OK;
 }
 
 static int from_lists(sinew_ctx *ctx, const char *dir, double max_dt, sinew_run_source *out)
@@ -162,8 +96,8 @@ static int from_lists(sinew_ctx *ctx, const char *dir, double max_dt, sinew_run_
         if (m[i] < 0)
             continue;
         sinew_run_frame *fr = &out->frames[out->nframes++];
-        fr->color = dup_join(ctx, dir, a.name[i]);
-        fr->depth = dup_join(ctx, dir, b.name[m[i]]);
+        fr->color = sinew__dup_join(ctx, dir, a.name[i]);
+        fr->depth = sinew__dup_join(ctx, dir, b.name[m[i]]);
         if (!fr->color || !fr->depth) {
             rc = SINEW_ENOMEM;
             break;
@@ -194,7 +128,7 @@ static int from_layout(sinew_ctx *ctx, const char *dir, sinew_run_source *out)
                                  "%s: no sequence.json, rgb.txt+depth.txt or color/ folder", dir);
             continue;
         }
-        if ((rc = list_images(ctx, p, &l[k], &n[k])))
+        if ((rc = sinew__list_dir(ctx, p, image_ext, 1, SINEW_RUN_MAX_FRAMES, &l[k], &n[k])))
             break;
         if (k == 0 && n[0] == 0)
             rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no images", p);
@@ -222,7 +156,7 @@ static int from_layout(sinew_ctx *ctx, const char *dir, sinew_run_source *out)
         }
     }
     for (int k = 0; k < 3; k++)
-        free_list(ctx, l[k], n[k]);
+        sinew__free_names(ctx, l[k], n[k]);
     return rc;
 }
 
@@ -244,7 +178,7 @@ int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
     else
         rc = from_layout(ctx, dir, out);
     if (!rc && (rc = sinew__path_join(ctx, pa, sizeof pa, dir, "intrinsics.json")) == 0 &&
-        is_file(pa) && !(out->intrinsics = dup_join(ctx, dir, "intrinsics.json")))
+        is_file(pa) && !(out->intrinsics = sinew__dup_join(ctx, dir, "intrinsics.json")))
         rc = SINEW_ENOMEM;
     if (rc)
         sinew_run_source_free(ctx, out);

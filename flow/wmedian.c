@@ -119,7 +119,8 @@ void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
                 if (yd > yu)
                     div += (v[(size_t)yd * w + x] - v[(size_t)yu * w + x]) / (float)(yd - yu);
                 float o = div < 0.f ? expf(-div * div * kd) : 1.f;
-                float e = sinew__sample(l1->lum, w, h, (float)x + u[i], (float)y + v[i]) - l0->lum[i];
+                float e =
+                    sinew__sample(l1->lum, w, h, (float)x + u[i], (float)y + v[i]) - l0->lum[i];
                 occ[i - (size_t)oa * (size_t)w] = o * expf(-e * e * ke);
             }
         }

@@ -41,5 +41,8 @@ int sinew__check_dims(sinew_ctx *ctx, const char *what, int64_t width, int64_t h
 
 /* "a/b" into buf; ELIMIT (message names the path) if it does not fit (flow/run.c). */
 int sinew__path_join(sinew_ctx *ctx, char *buf, size_t n, const char *a, const char *b);
+/* Atomic output files are written as DIR/.NAME + SINEW__TMP_TAG + 6 hex digits, then
+ * renamed to DIR/NAME (sinew_outfile_open in flow/core.c). */
+#define SINEW__TMP_TAG ".tmp-"
 
 #endif

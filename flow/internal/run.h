@@ -36,6 +36,14 @@ int sinew__stamp_cmp(const void *x, const void *y);
 
 /* mkdir -p; EIO naming the folder. */
 int sinew__mkdirs(sinew_ctx *ctx, const char *path);
+/* "a/b" in a new string (NULL when out of memory). */
+char *sinew__dup_join(sinew_ctx *ctx, const char *a, const char *b);
+/* Names in folder `dir` that keep() accepts, sorted by name (byte order): "dir/name" with
+ * `join`, else the bare name. EIO names an unreadable folder; ELIMIT when more than `max`
+ * names are accepted. *out (n strings) is freed with sinew__free_names. */
+int sinew__list_dir(sinew_ctx *ctx, const char *dir, int (*keep)(const char *name), int join,
+                    size_t max, char ***out, size_t *n);
+void sinew__free_names(sinew_ctx *ctx, char **names, size_t n);
 /* Write a cJSON value as formatted text plus a newline, atomically. */
 int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj);
 /* Read and parse a JSON file of at most max_bytes; EFORMAT naming the file. */

@@ -213,7 +213,7 @@ EOF2
     expect_error "flow --check into a file leaves no flow" "$T/ff2.flo" "notdir: exists and is not a folder" \
         "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$T/ff2.flo" --check "$T/notdir" --preset fast
 else
-    skip "flow --check" "this build has no 'sinew flow'"
+    fail "flow --check" "sinew flow --help failed"
 fi
 
 # Issue 5 target: occlusion (mask bits 0|1) F1 >= 0.8 against the demo scene's exact

@@ -65,6 +65,30 @@ void tu_write_bytes(const char *path, const void *data, size_t n)
     assert_int_equal(fclose(f), 0);
 }
 
+void tu_write_npy(const char *path, int major, const char *dict, const void *data, size_t n)
+{
+    size_t dl = strlen(dict), pre = major == 1 ? 10 : 12;
+    size_t hl = dl + 1;
+    hl += (64 - (pre + hl) % 64) % 64;
+    assert_true(hl < 65536);
+    unsigned char *out = malloc(pre + hl + n);
+    assert_non_null(out);
+    memcpy(out, "\x93NUMPY", 6);
+    out[6] = (unsigned char)major;
+    out[7] = 0;
+    out[8] = (unsigned char)(hl & 0xff);
+    out[9] = (unsigned char)(hl >> 8);
+    if (major != 1)
+        out[10] = out[11] = 0;
+    memset(out + pre, ' ', hl);
+    memcpy(out + pre, dict, dl);
+    out[pre + hl - 1] = '\n';
+    if (n)
+        memcpy(out + pre + hl, data, n);
+    tu_write_bytes(path, out, pre + hl + n);
+    free(out);
+}
+
 int tu_file_exists(const char *path)
 {
     struct stat st;

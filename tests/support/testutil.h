@@ -24,6 +24,11 @@ const char *tu_data_dir(void);
 const char *tu_data_file(char *buf, size_t n, const char *rel);
 /* Write raw bytes to a file (test fixtures). */
 void tu_write_bytes(const char *path, const void *data, size_t n);
+/* Write an .npy file by hand from the published layout (NumPy format documentation,
+ * NEP 1): magic, version `major` (1: 2-byte header length, 2: 4-byte), the header text
+ * `dict` padded with spaces and '\n' so the data starts at a multiple of 64, then n bytes
+ * of data. Malformed dicts are allowed on purpose (reader tests). */
+void tu_write_npy(const char *path, int major, const char *dict, const void *data, size_t n);
 int tu_file_exists(const char *path);
 /* Python with numpy (Debian python3-numpy): $PYTHON or /usr/bin/python3. */
 const char *tu_python(void);

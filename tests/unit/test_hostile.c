@@ -1070,14 +1070,9 @@ static int read_any(sinew_ctx *ctx, const char *path, int reader)
 static void npy_with_shape(const char *path, const char *shape)
 {
     char h[256];
-    int n = snprintf(h, sizeof h, "{'descr': '<f4', 'fortran_order': False, 'shape': %s, }", shape);
-    while ((10 + n + 1) % 64)
-        h[n++] = ' ';
-    h[n++] = '\n';
-    unsigned char b[400] = {0x93, 'N', 'U', 'M', 'P', 'Y', 1, 0};
-    b[8] = (unsigned char)(n & 255), b[9] = (unsigned char)(n >> 8);
-    memcpy(b + 10, h, (size_t)n);
-    tu_write_bytes(path, b, 10 + (size_t)n + 64); /* 64 zero bytes of "data" */
+    snprintf(h, sizeof h, "{'descr': '<f4', 'fortran_order': False, 'shape': %s, }", shape);
+    static const unsigned char zeros[64]; /* a few bytes of "data" */
+    tu_write_npy(path, 1, h, zeros, sizeof zeros);
 }
 
 static void test_hostile_limits_before_allocation(void **state)

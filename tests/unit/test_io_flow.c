@@ -423,28 +423,6 @@ static void test_io_flow_malformed_pfm(void **state)
     sinew_image_free(&b);
 }
 
-/* Write an .npy with the given version and header text (padding added) plus data. */
-static void write_npy_raw(const char *p, int major, const char *dict, const void *data, size_t n)
-{
-    unsigned char out[512];
-    size_t dl = strlen(dict), pre = major == 1 ? 10 : 12;
-    size_t hl = dl + 1;
-    hl += (64 - (pre + hl) % 64) % 64;
-    memcpy(out, "\x93NUMPY", 6);
-    out[6] = (unsigned char)major;
-    out[7] = 0;
-    out[8] = (unsigned char)(hl & 0xff);
-    out[9] = (unsigned char)(hl >> 8);
-    out[10] = out[11] = 0;
-    memset(out + pre, ' ', hl);
-    memcpy(out + pre, dict, dl);
-    out[pre + hl - 1] = '\n';
-    assert_true(pre + hl + n <= sizeof out);
-    if (n)
-        memcpy(out + pre + hl, data, n);
-    tu_write_bytes(p, out, pre + hl + n);
-}
-
 static void test_io_flow_malformed_npy(void **state)
 {
     tu_fixture *f = *state;
@@ -489,7 +467,7 @@ static void test_io_flow_malformed_npy(void **state)
          SINEW_EFORMAT, "malformed"},
     };
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
-        write_npy_raw(p, 1, cases[i].dict, z, cases[i].bytes);
+        tu_write_npy(p, 1, cases[i].dict, z, cases[i].bytes);
         sinew_image b;
         int rc = sinew_flow_read(f->ctx, &b, p, SINEW_FLOW_AUTO);
         if (rc != cases[i].want || !strstr(sinew_ctx_message(f->ctx), cases[i].msg) ||
@@ -499,7 +477,7 @@ static void test_io_flow_malformed_npy(void **state)
     }
     /* version 2.0 header written by hand, big-endian float64 */
     const unsigned char be8[16] = {0x3f, 0xf0, 0, 0, 0, 0, 0, 0, 0xc0, 0x04, 0, 0, 0, 0, 0, 0};
-    write_npy_raw(p, 2, "{\"descr\": \">f8\", \"fortran_order\": False, \"shape\": (1, 1, 2)}", be8,
+    tu_write_npy(p, 2, "{\"descr\": \">f8\", \"fortran_order\": False, \"shape\": (1, 1, 2)}", be8,
                   16);
     sinew_image b;
     assert_int_equal(sinew_flow_read(f->ctx, &b, p, SINEW_FLOW_AUTO), SINEW_OK);
@@ -540,7 +518,7 @@ static void test_io_flow_short_file_refused_before_allocation(void **state)
     tu_write_bytes(p, buf, (size_t)n);
     assert_int_equal(sinew_flow_read(ctx, &b, p, SINEW_FLOW_AUTO), SINEW_EFORMAT);
     p = tu_fixture_path(f, "big.npy");
-    write_npy_raw(p, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (15872, 15872, 2), }",
+    tu_write_npy(p, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (15872, 15872, 2), }",
                   NULL, 0);
     assert_int_equal(sinew_flow_read(ctx, &b, p, SINEW_FLOW_AUTO), SINEW_EFORMAT);
     n = snprintf(buf, sizeof buf, "P6\n15872 15872\n65535\n");

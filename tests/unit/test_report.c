@@ -49,9 +49,7 @@ static void test_report_png_roundtrip(void **state)
     sinew_ctx_free(ctx);
 }
 
-/* A .npy file (format 1.0, '<f4', C order) written by hand from the published layout:
- * magic, version, little-endian header length, dict padded with spaces and '\n' so the
- * data starts at a multiple of 64 (NumPy format documentation, NEP 1). */
+/* A .npy file (format 1.0, '<f4', C order) written by hand (tu_write_npy). */
 static void write_npy(const char *path, const float *data, int h, int w, int c)
 {
     char dict[128];
@@ -61,20 +59,7 @@ static void write_npy(const char *path, const float *data, int h, int w, int c)
     else
         snprintf(dict, sizeof dict, "{'descr': '<f4', 'fortran_order': False, 'shape': (%d, %d), }",
                  h, w);
-    size_t dl = strlen(dict), total = 10 + dl + 1;
-    size_t pad = (64 - total % 64) % 64;
-    size_t hl = dl + pad + 1;
-    size_t n = (size_t)h * w * c * 4;
-    unsigned char *b = malloc(10 + hl + n);
-    memcpy(b, "\x93NUMPY\x01\x00", 8);
-    b[8] = (unsigned char)(hl & 255);
-    b[9] = (unsigned char)(hl >> 8);
-    memcpy(b + 10, dict, dl);
-    memset(b + 10 + dl, ' ', pad);
-    b[10 + hl - 1] = '\n';
-    memcpy(b + 10 + hl, data, n);
-    tu_write_bytes(path, b, 10 + hl + n);
-    free(b);
+    tu_write_npy(path, 1, dict, data, (size_t)h * w * c * 4);
 }
 
 static char *read_text(const char *path)

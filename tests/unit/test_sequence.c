@@ -194,6 +194,43 @@ static void test_sequence_schema_errors_name_the_key(void **state)
     assert_int_equal(sinew_sequence_resolve(seq, "a.png", res, sizeof res), SINEW_OK);
     assert_string_equal(res, "./a.png");
     sinew_sequence_free(seq);
+    /* pattern frame lists and run settings; the frame-count limit comes before any
+     * allocation */
+    expect_error(ctx, "{\"version\":1,\"frames\":{\"color\":\"%d%d.png\",\"count\":2}}", C,
+                 "frames.color");
+    expect_error(ctx, "{\"version\":1,\"frames\":{\"color\":\"a.png\",\"count\":2}}", C,
+                 "frames.color");
+    expect_error(ctx, "{\"version\":1,\"frames\":{\"color\":\"%5d.png\",\"count\":2}}", C,
+                 "frames.color");
+    expect_error(ctx, "{\"version\":1,\"frames\":{\"color\":\"%d.png\",\"count\":1000001}}", C,
+                 "frames.count");
+    expect_error(ctx, "{\"version\":1,\"frames\":{\"color\":\"%d.png\"}}", C,
+                 "frames.count: missing");
+    expect_error(ctx, "{\"version\":1,\"frames\":{\"color\":\"%d.png\",\"count\":2,\"skip\":1}}", C,
+                 "unknown key 'skip'");
+    expect_error(ctx, "{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"depth_kind\":\"disparity\"}",
+                 C, "depth_kind");
+    expect_error(ctx,
+                 "{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+                 "\"gap\"}}}",
+                 C, "run.schedule.gap: missing");
+    expect_error(ctx,
+                 "{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+                 "\"keyframe\",\"every\":2,\"window\":1,\"gap\":3}}}",
+                 C, "unknown key 'gap'");
+    expect_error(ctx,
+                 "{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"schedule\":{\"kind\":"
+                 "\"spiral\"}}}",
+                 C, "run.schedule.kind");
+    expect_error(ctx,
+                 "{\"version\":1,\"frames\":[{\"color\":\"a\"},{\"color\":\"b\"}],\"run\":{"
+                 "\"schedule\":{\"kind\":\"list\",\"pairs\":[[0,1],[1,1]]}}}",
+                 C, "run.schedule.pairs[1]");
+    expect_error(ctx,
+                 "{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"match_stride\":-1}}", C,
+                 "run.match_stride");
+    expect_error(ctx, "{\"version\":1,\"frames\":[{\"color\":\"a\"}],\"run\":{\"preset\":7}}", C,
+                 "run.preset: expected a string");
     sinew_ctx_free(ctx);
 }
 

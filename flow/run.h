@@ -17,6 +17,7 @@
 #include <stdint.h>
 
 #include "flow/core.h"
+#include "flow/sequence.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -139,6 +140,12 @@ typedef struct sinew_run_source {
  * present or counts differ. Free with sinew_run_source_free. */
 int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
                                  sinew_run_source *out);
+/* The frames of a sequence file (flow/sequence.h), their paths resolved against the
+ * file's folder. ELIMIT (message names `where` and the frame) for a path too long to
+ * resolve. intrinsics stays NULL: a sequence carries its intrinsics as values. Free with
+ * sinew_run_source_free. */
+int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq,
+                                   const char *where, sinew_run_source *out);
 void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
 
 /* ---- the run engine ------------------------------------------------------------ */

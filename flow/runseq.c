@@ -38,6 +38,52 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src)
     memset(src, 0, sizeof *src);
 }
 
+/* A copy of sequence path `rel` resolved against the sequence's folder; NULL for NULL. */
+static int resolve_dup(sinew_ctx *ctx, const sinew_sequence *seq, const char *rel,
+                       const char *where, size_t f, const char **out)
+{
+    char buf[SINEW__PATH_MAX];
+    *out = NULL;
+    if (!rel)
+        return SINEW_OK;
+    if (sinew_sequence_resolve(seq, rel, buf, sizeof buf) != SINEW_OK)
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s: frames[%zu]: path too long", where, f);
+    size_t n = strlen(buf);
+    char *d = sinew__alloc(ctx, n + 1);
+    if (!d)
+        return SINEW_ENOMEM;
+    memcpy(d, buf, n + 1);
+    *out = d;
+    return SINEW_OK;
+}
+
+int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, const char *where,
+                                   sinew_run_source *out)
+{
+    if (!ctx || !seq || !out)
+        return SINEW_EINVAL;
+    memset(out, 0, sizeof *out);
+    if (!where)
+        where = "sequence";
+    size_t n = seq->n_frames;
+    out->frames = n ? sinew__calloc(ctx, n, sizeof *out->frames) : NULL;
+    if (n && !out->frames)
+        return SINEW_ENOMEM;
+    out->nframes = n;
+    for (size_t f = 0; f < n; f++) {
+        const sinew_seq_frame *fr = &seq->frames[f];
+        sinew_run_frame *o = &out->frames[f];
+        int rc;
+        if ((rc = resolve_dup(ctx, seq, fr->color, where, f, &o->color)) ||
+            (rc = resolve_dup(ctx, seq, fr->depth, where, f, &o->depth)) ||
+            (rc = resolve_dup(ctx, seq, fr->labels, where, f, &o->labels))) {
+            sinew_run_source_free(ctx, out);
+            return rc;
+        }
+    }
+    return SINEW_OK;
+}
+
 /* Image files (by extension, not hidden): the frames of a default-layout folder. */
 static int image_ext(const char *name)
 {

@@ -39,54 +39,63 @@ enum {
     IMG_N
 };
 
+/* The files of the layout (docs/formats.md): one per frame t, or per pair (t, t + 1) named
+ * by t. The backward truth of pair (t - 1, t) is written with frame t, from the rays of
+ * frame t cached by its render; the forward truth of (t, t + 1) too. */
+enum { OUT_FRAME, OUT_FORWARD, OUT_BACKWARD };
+static const struct out_file {
+    const char *folder, *ext;
+    int img;  /* IMG_* */
+    int when; /* OUT_* */
+} outs[] = {
+    {"color", "png", IMG_COLOR, OUT_FRAME},
+    {"depth", "png", IMG_MM, OUT_FRAME},
+    {"labels", "png", IMG_LABELS, OUT_FRAME},
+    /* the pair entries in the order of sinew_seq_pair's file fields */
+    {"truth/flow_forward", "flo", IMG_FWD, OUT_FORWARD},
+    {"truth/flow_backward", "flo", IMG_BWD, OUT_BACKWARD},
+    {"truth/occlusion_forward", "png", IMG_OFWD, OUT_FORWARD},
+    {"truth/occlusion_backward", "png", IMG_OBWD, OUT_BACKWARD},
+    {"truth/scene_flow", "npy", IMG_SF, OUT_FORWARD},
+};
+#define NOUT (int)(sizeof outs / sizeof outs[0])
+
+/* Name of output k for frame or pair t, relative to the sequence folder. */
+static void out_name(char *buf, size_t n, int k, int t)
+{
+    snprintf(buf, n, "%s/%06d.%s", outs[k].folder, t, outs[k].ext);
+}
+
+static int write_out(sinew_ctx *ctx, const char *dir, int k, int t, const sinew_image *im)
+{
+    char rel[64], path[4200];
+    int st;
+    out_name(rel, sizeof rel, k, t);
+    if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)))
+        return st;
+    const sinew_image *img = &im[outs[k].img];
+    if (!strcmp(outs[k].ext, "flo"))
+        return sinew_flow_write(ctx, path, img, SINEW_FLOW_FLO);
+    if (!strcmp(outs[k].ext, "npy"))
+        return sinew_npy_write_image(ctx, path, img, 0);
+    return sinew_image_write_png(ctx, path, img);
+}
+
 static int write_frame(sinew_synth *s, const char *dir, int t, sinew_image *im)
 {
     const sinew_synth_params *P = sinew__synth_params(s);
     sinew_ctx *ctx = sinew__synth_ctx(s);
-    char rel[64], path[4200];
-    int st;
+    int st, bwd = t > 0, fwd = t + 1 < P->frames;
     if ((st = sinew_synth_render(s, t, &im[IMG_COLOR], &im[IMG_DEPTH], &im[IMG_LABELS])) ||
-        (st = sinew_synth_depth_mm(s, t, &im[IMG_DEPTH], &im[IMG_MM])))
+        (st = sinew_synth_depth_mm(s, t, &im[IMG_DEPTH], &im[IMG_MM])) ||
+        (bwd && (st = sinew_synth_truth(s, t, t - 1, &im[IMG_BWD], &im[IMG_OBWD], NULL))) ||
+        (fwd && (st = sinew_synth_truth(s, t, t + 1, &im[IMG_FWD], &im[IMG_OFWD], &im[IMG_SF]))))
         return st;
-    snprintf(rel, sizeof rel, "color/%06d.png", t);
-    if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
-        (st = sinew_image_write_png(ctx, path, &im[IMG_COLOR])))
-        return st;
-    snprintf(rel, sizeof rel, "depth/%06d.png", t);
-    if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
-        (st = sinew_image_write_png(ctx, path, &im[IMG_MM])))
-        return st;
-    snprintf(rel, sizeof rel, "labels/%06d.png", t);
-    if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
-        (st = sinew_image_write_png(ctx, path, &im[IMG_LABELS])))
-        return st;
-    /* backward truth of pair (t-1, t) uses the hits of frame t cached by the render */
-    if (t > 0) {
-        if ((st = sinew_synth_truth(s, t, t - 1, &im[IMG_BWD], &im[IMG_OBWD], NULL)))
-            return st;
-        snprintf(rel, sizeof rel, "truth/flow_backward/%06d.flo", t - 1);
-        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
-            (st = sinew_flow_write(ctx, path, &im[IMG_BWD], SINEW_FLOW_FLO)))
-            return st;
-        snprintf(rel, sizeof rel, "truth/occlusion_backward/%06d.png", t - 1);
-        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
-            (st = sinew_image_write_png(ctx, path, &im[IMG_OBWD])))
-            return st;
-    }
-    if (t + 1 < P->frames) {
-        if ((st = sinew_synth_truth(s, t, t + 1, &im[IMG_FWD], &im[IMG_OFWD], &im[IMG_SF])))
-            return st;
-        snprintf(rel, sizeof rel, "truth/flow_forward/%06d.flo", t);
-        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
-            (st = sinew_flow_write(ctx, path, &im[IMG_FWD], SINEW_FLOW_FLO)))
-            return st;
-        snprintf(rel, sizeof rel, "truth/occlusion_forward/%06d.png", t);
-        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
-            (st = sinew_image_write_png(ctx, path, &im[IMG_OFWD])))
-            return st;
-        snprintf(rel, sizeof rel, "truth/scene_flow/%06d.npy", t);
-        if ((st = sinew__path_join(ctx, path, sizeof path, dir, rel)) ||
-            (st = sinew_npy_write_image(ctx, path, &im[IMG_SF], 0)))
+    for (int k = 0; k < NOUT; k++) {
+        int w = outs[k].when;
+        if ((w == OUT_BACKWARD && !bwd) || (w == OUT_FORWARD && !fwd))
+            continue;
+        if ((st = write_out(ctx, dir, k, w == OUT_BACKWARD ? t - 1 : t, im)))
             return st;
     }
     return SINEW_OK;
@@ -96,7 +105,7 @@ static int build_sequence(sinew_synth *s, sinew_sequence *seq)
 {
     const sinew_synth_params *P = sinew__synth_params(s);
     static const char *const labels[] = {"background", "tray", "pad", "block", "probe"};
-    char c[64], d[64], l[64], a[80], b[80], e[80], f[80], g[80];
+    char names[NOUT][80];
     int st;
     if ((st = sinew_sequence_set_name(seq,
                                       "sinew demo scene (invented): probe on a silicone pad")) ||
@@ -110,12 +119,11 @@ static int build_sequence(sinew_synth *s, sinew_sequence *seq)
     for (int t = 0; t < P->frames; t++) {
         sinew_seq_frame fr;
         sinew_seq_frame_init(&fr);
-        snprintf(c, sizeof c, "color/%06d.png", t);
-        snprintf(d, sizeof d, "depth/%06d.png", t);
-        snprintf(l, sizeof l, "labels/%06d.png", t);
-        fr.color = c;
-        fr.depth = d;
-        fr.labels = l;
+        for (int k = 0; k < 3; k++)
+            out_name(names[k], sizeof names[k], k, t);
+        fr.color = names[0];
+        fr.depth = names[1];
+        fr.labels = names[2];
         fr.timestamp = t / SINEW__SYNTH_FPS;
         fr.has_pose = 1;
         sinew_synth_pose(s, t, fr.pose);
@@ -123,12 +131,9 @@ static int build_sequence(sinew_synth *s, sinew_sequence *seq)
             return st;
     }
     for (int t = 0; t + 1 < P->frames; t++) {
-        snprintf(a, sizeof a, "truth/flow_forward/%06d.flo", t);
-        snprintf(b, sizeof b, "truth/flow_backward/%06d.flo", t);
-        snprintf(e, sizeof e, "truth/occlusion_forward/%06d.png", t);
-        snprintf(f, sizeof f, "truth/occlusion_backward/%06d.png", t);
-        snprintf(g, sizeof g, "truth/scene_flow/%06d.npy", t);
-        sinew_seq_pair p = {t, t + 1, a, b, e, f, g};
+        for (int k = 3; k < NOUT; k++)
+            out_name(names[k], sizeof names[k], k, t);
+        sinew_seq_pair p = {t, t + 1, names[3], names[4], names[5], names[6], names[7]};
         if ((st = sinew_sequence_add_pair(seq, &p)))
             return st;
     }
@@ -141,19 +146,12 @@ int sinew_synth_write(sinew_synth *s, const char *dir)
         return SINEW_EINVAL;
     sinew_ctx *ctx = sinew__synth_ctx(s);
     const sinew_synth_params *P = sinew__synth_params(s);
-    static const char *const sub[] = {"color",
-                                      "depth",
-                                      "labels",
-                                      "truth",
-                                      "truth/flow_forward",
-                                      "truth/flow_backward",
-                                      "truth/occlusion_forward",
-                                      "truth/occlusion_backward",
-                                      "truth/scene_flow"};
     char path[4200];
     int st = make_dir(ctx, dir);
-    for (size_t i = 0; !st && i < sizeof sub / sizeof *sub; i++)
-        if (!(st = sinew__path_join(ctx, path, sizeof path, dir, sub[i])))
+    if (!st && !(st = sinew__path_join(ctx, path, sizeof path, dir, "truth")))
+        st = make_dir(ctx, path); /* parent of the truth folders */
+    for (int k = 0; !st && k < NOUT; k++)
+        if (!(st = sinew__path_join(ctx, path, sizeof path, dir, outs[k].folder)))
             st = make_dir(ctx, path);
     if (st)
         return st;

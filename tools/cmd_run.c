@@ -90,68 +90,6 @@ static void usage(FILE *out)
 
 typedef enum { PROG_AUTO, PROG_PLAIN, PROG_JSON } prog_mode;
 
-/* A sequence.json turned into the engine's frame list: paths resolved against the
- * file's folder, intrinsics values as a camera. */
-typedef struct {
-    sinew_sequence *seq;
-    sinew_run_frame *frames;
-    char **paths; /* every resolved string, for freeing */
-    size_t npaths;
-    sinew_camera cam;
-    int has_cam;
-} seq_input;
-
-static void seq_input_free(seq_input *si)
-{
-    for (size_t k = 0; k < si->npaths; k++)
-        free(si->paths[k]);
-    free(si->paths);
-    free(si->frames);
-    sinew_sequence_free(si->seq);
-    memset(si, 0, sizeof *si);
-}
-
-static const char *resolve(seq_input *si, const char *rel)
-{
-    if (!rel)
-        return NULL;
-    char buf[4096];
-    if (sinew_sequence_resolve(si->seq, rel, buf, sizeof buf) != SINEW_OK)
-        return NULL;
-    char *d = strdup(buf);
-    if (d)
-        si->paths[si->npaths++] = d;
-    return d;
-}
-
-static int load_sequence_file(sinew_ctx *ctx, const char *path, seq_input *si)
-{
-    memset(si, 0, sizeof si[0]);
-    int rc = sinew_sequence_read(ctx, &si->seq, path);
-    if (rc)
-        return cli_status(CMD, ctx, rc);
-    size_t n = si->seq->n_frames; /* >= 1: sinew_sequence_read validates */
-    si->frames = calloc(n, sizeof *si->frames);
-    si->paths = calloc(3 * n, sizeof *si->paths);
-    if (!si->frames || !si->paths)
-        return cli_error(CMD, "out of memory");
-    for (size_t f = 0; f < n; f++) {
-        const sinew_seq_frame *fr = &si->seq->frames[f];
-        si->frames[f].color = resolve(si, fr->color);
-        si->frames[f].depth = resolve(si, fr->depth);
-        si->frames[f].labels = resolve(si, fr->labels);
-        if (!si->frames[f].color || (fr->depth && !si->frames[f].depth) ||
-            (fr->labels && !si->frames[f].labels))
-            return cli_error(CMD, "%s: frames[%zu]: path too long", path, f);
-    }
-    if (si->seq->has_intrinsics) {
-        sinew_camera_init(&si->cam, si->seq->fx, si->seq->fy, si->seq->cx, si->seq->cy,
-                          si->seq->width, si->seq->height);
-        si->has_cam = 1;
-    }
-    return CLI_OK;
-}
-
 typedef struct {
     prog_mode mode;
     int live; /* auto mode on a terminal */
@@ -604,8 +542,8 @@ int cmd_run(int argc, char **argv)
     int ret = CLI_FAIL, rc;
     sinew_run_source src;
     memset(&src, 0, sizeof src);
-    seq_input si;
-    memset(&si, 0, sizeof si);
+    sinew_sequence *seq = NULL;
+    sinew_camera cam;
     sinew_schedule seq_sched;
     memset(&seq_sched, 0, sizeof seq_sched);
     sinew_pair *seq_pairs = NULL;
@@ -628,17 +566,22 @@ int cmd_run(int argc, char **argv)
             goto done;
         }
     } else {
-        if (load_sequence_file(ctx, is_dir ? seqpath : input, &si) != CLI_OK)
+        const char *sp = is_dir ? seqpath : input;
+        if ((rc = sinew_sequence_read(ctx, &seq, sp)) ||
+            (rc = sinew_run_source_from_sequence(ctx, seq, sp, &src))) {
+            cli_status(CMD, ctx, rc);
             goto done;
-        src.frames = si.frames;
-        src.nframes = si.seq->n_frames;
-        if (si.has_cam)
-            pp.camera = &si.cam;
-        if (!depth_scale_set && si.seq->depth_scale > 0)
-            pp.depth_scale = si.seq->depth_scale;
-        pp.depth_ray = si.seq->depth_ray;
+        }
+        if (seq->has_intrinsics) {
+            sinew_camera_init(&cam, seq->fx, seq->fy, seq->cx, seq->cy, seq->width,
+                              seq->height);
+            pp.camera = &cam;
+        }
+        if (!depth_scale_set && seq->depth_scale > 0)
+            pp.depth_scale = seq->depth_scale;
+        pp.depth_ray = seq->depth_ray;
         /* the sequence's "run" settings, unless the command line gave them */
-        const sinew_seq_run *sr = &si.seq->run;
+        const sinew_seq_run *sr = &seq->run;
         if (!preset_set && sr->preset)
             pp.preset = sr->preset;
         if (!format_set && sr->flow_format && sinew_run_flow_format_parse(sr->flow_format, &pp.flow_format)) {
@@ -803,10 +746,8 @@ done:
     sinew_ctx_dealloc(ctx, pairs);
     free(list);
     free(seq_pairs);
-    if (si.seq)
-        seq_input_free(&si); /* the frames belong to si, not to src */
-    else
-        sinew_run_source_free(ctx, &src);
+    sinew_run_source_free(ctx, &src);
+    sinew_sequence_free(seq);
     sinew_ctx_free(ctx);
     return ret;
 }

@@ -312,6 +312,15 @@ static void test_run_source_folder_layouts(void **state)
     sinew_ctx_free(ctx);
 }
 
+static int source_from_sequence_op(sinew_ctx *ctx, void *ud)
+{
+    sinew_run_source src;
+    int rc = sinew_run_source_from_sequence(ctx, ud, "seq.json", &src);
+    if (!rc)
+        sinew_run_source_free(ctx, &src);
+    return rc;
+}
+
 static void test_run_sequence_run_settings_and_patterns(void **state)
 {
     (void)state;
@@ -336,6 +345,16 @@ static void test_run_sequence_run_settings_and_patterns(void **state)
     assert_string_equal(seq->run.flow_format, "npy16");
     assert_true(seq->run.has_match_stride);
     assert_int_equal(seq->run.match_stride, 0);
+    /* the engine's frame list: paths resolved against the file's folder */
+    sinew_run_source src;
+    assert_int_equal(sinew_run_source_from_sequence(ctx, seq, "dir/seq.json", &src), SINEW_OK);
+    assert_int_equal(src.nframes, 3);
+    assert_string_equal(src.frames[0].color, "dir/rgb/img_0008.png");
+    assert_string_equal(src.frames[2].depth, "dir/d/12.png");
+    assert_null(src.frames[1].labels);
+    assert_null(src.intrinsics);
+    sinew_run_source_free(ctx, &src);
+    tu_fail_each_allocation("run source from a sequence", source_from_sequence_op, seq);
     /* write and read back: same settings (frames come back as a list) */
     char *dir = tu_tmpdir();
     char p[600];

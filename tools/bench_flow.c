@@ -6,7 +6,9 @@
  * in the same process, so ratios compare across machines.
  *
  *   bench_flow DATA_DIR [--runs N] [--rss fast=B1/B2,balanced=B1/B2,...]   print the table
- *   bench_flow --rss-probe PRESET DATA_DIR W H      print the peak-RSS growth in bytes
+ *   bench_flow --rss-probe PRESET DATA_DIR W H [PAIR]   print the peak-RSS growth in bytes
+ *                                                       (PAIR: index in pair_names, default
+ *                                                       5 = Urban2, gray; 8 = chairs, colour)
  *
  * Memory is reported as bytes per pixel plus a fixed overhead: the line through the
  * growth of one forward estimate at RSS_SIZES (B1, B2; one process each, as ru_maxrss
@@ -143,12 +145,12 @@ static long max_rss_kb(void)
     return ru.ru_maxrss;
 }
 
-/* Peak-RSS growth of one w x h forward estimate (Urban2 resized), in bytes. */
-static int rss_probe(const char *preset, const char *data, int w, int h)
+/* Peak-RSS growth of one w x h forward estimate (pair `which` resized), in bytes. */
+static int rss_probe(const char *preset, const char *data, int w, int h, int which)
 {
     sinew_ctx *ctx = sinew_ctx_new();
     pair p;
-    load_pair(ctx, &p, data, 5);
+    load_pair(ctx, &p, data, which >= 0 && which < NPAIR ? which : 5);
     sinew_image a, b, fl;
     resize(ctx, &a, &p.f0, w, h);
     resize(ctx, &b, &p.f1, w, h);
@@ -166,8 +168,9 @@ static int rss_probe(const char *preset, const char *data, int w, int h)
 
 int main(int argc, char **argv)
 {
-    if (argc == 6 && !strcmp(argv[1], "--rss-probe"))
-        return rss_probe(argv[2], argv[3], atoi(argv[4]), atoi(argv[5]));
+    if ((argc == 6 || argc == 7) && !strcmp(argv[1], "--rss-probe"))
+        return rss_probe(argv[2], argv[3], atoi(argv[4]), atoi(argv[5]),
+                         argc == 7 ? atoi(argv[6]) : 5);
     if (argc < 2) {
         fprintf(stderr, "usage: bench_flow DATA_DIR [--runs N] [--rss LIST]\n");
         return 2;

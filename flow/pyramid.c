@@ -13,6 +13,16 @@
 #include "flow/internal/flowimpl.h"
 #include "flow/internal/parallel.h"
 
+/* Gaussian blur before each 2x2 box halving. Levels 1 and coarser are already band-limited
+ * by the blur and box that made them, so 0.6 px more suffices there (common practice). The
+ * frames themselves can hold detail up to the pixel pitch (Urban3's striped facades alias
+ * into false patterns at the coarser levels), so the first halving blurs with 0.9 px.
+ * Chosen on the Middlebury training pairs (docs/benchmarks.md: mean EPE of the accurate
+ * preset 0.268 -> 0.255, balanced 0.342 -> 0.317, fast 0.582 -> 0.563; 0.8 and 1.0 were
+ * within 0.001 of 0.9; 0.9 at every level gave 0.255 too but FlyingChairs 2.45). */
+#define PYR_SIGMA0 0.9f
+#define PYR_SIGMA 0.6f
+
 void sinew__level_size(int w, int h, int level, int *lw, int *lh)
 {
     for (int i = 0; i < level; i++) {
@@ -106,8 +116,9 @@ void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tm
                 int colour = c < p->channels && p->channels > 1;
                 const float *src = colour ? up->ch[c] : up->lum;
                 float *dst = colour ? lv->ch[c] : lv->lum;
-                /* anti-alias before the 2x2 box: sigma 0.6 (common practice) */
-                sinew__blur(tmp, src, tmp + n, up->w, up->h, 0.6f, nt);
+                /* anti-alias before the 2x2 box (see PYR_SIGMA0) */
+                sinew__blur(tmp, src, tmp + n, up->w, up->h, l == 1 ? PYR_SIGMA0 : PYR_SIGMA,
+                            nt);
                 sinew__halve(dst, tmp, up->w, up->h, nt);
             }
         }

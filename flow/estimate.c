@@ -5,7 +5,8 @@
  *   1. takes the bilinearly upsampled (x2) flow of the level above,
  *   2. runs dense inverse search (flow/dis.c) if the level is at or above dis_finest,
  *   3. runs `warps` variational refinement steps (flow/variational.c), each followed by
- *      a median filter of the flow when enabled,
+ *      a median filter of the flow when enabled (and the first, at the finest
+ *      fuse_levels levels, by candidate selection near motion boundaries, flow/fuse.c),
  * down to finest_level; a coarser final level is upsampled to full resolution.
  * Both frames' pyramids live in the estimator; when a run's frame0 equals the previous
  * run's frame1 (byte comparison) the old frame1 pyramid is reused.
@@ -74,6 +75,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         .wmedian = 7,
         .wmedian_levels = SINEW__MAX_LEVELS,
         .wmedian_band = 0.5f,
+        .fuse_levels = 0,
         .color = 1,
         .hs_iters = 0,
         .work_mib = 32,
@@ -95,6 +97,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.warps_fine = 4;
         d.inner = 15;
         d.median = 2;
+        d.fuse_levels = 2;
     } else if (!strcmp(name, "baseline")) {
         d.method = SINEW_FLOW_HORN_SCHUNCK;
         d.dis_finest = -1;
@@ -146,6 +149,7 @@ int sinew_flow_params_check(sinew_ctx *ctx, const sinew_flow_params *p)
     RANGE_I(wmedian, 0, 10);
     RANGE_I(wmedian_levels, 1, SINEW__MAX_LEVELS);
     RANGE_F(wmedian_band, 1e-6, 1e6);
+    RANGE_I(fuse_levels, 0, SINEW__MAX_LEVELS);
     RANGE_I(color, 0, 1);
     RANGE_I(hs_iters, 0, 10000);
     RANGE_I(work_mib, 1, 65536);
@@ -423,6 +427,13 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
                 sinew__wmedian(gu, gv, u, v, &l0, &l1, e->channels, &wp, e->work,
                                e->work_floats, nt);
             if (p->median > 0 || wm) {
+                memcpy(u, gu, n * sizeof(float));
+                memcpy(v, gv, n * sizeof(float));
+                grads = 0;
+            }
+            /* once per level, so the later warps refine what it chose */
+            if (k == 0 && s < finest + p->fuse_levels) {
+                sinew__fuse(gu, gv, u, v, &l0, &l1, e->channels, p->wmedian_band, nt);
                 memcpy(u, gu, n * sizeof(float));
                 memcpy(v, gv, n * sizeof(float));
                 grads = 0;

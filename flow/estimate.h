@@ -53,6 +53,10 @@ typedef struct sinew_flow_params {
     int wmedian_levels; /* ... at the finest this many computed levels, 1..12 */
     float wmedian_band; /* boundary test: flow differs by more than this (L1, px) within
                            a 5x5 neighbourhood, > 0 */
+    int fuse_levels;  /* candidate selection near motion boundaries (a boundary pixel takes
+                         a nearby pixel's flow when that one matches frame 1 clearly
+                         better; same boundary test) after the first warp of each of the
+                         finest this many computed levels, 0..12; 0 = off */
     int color;        /* 1: RGB frames use a 3-channel data term; 0: luminance only */
     int hs_iters;     /* Jacobi iterations per warp for SINEW_FLOW_HORN_SCHUNCK */
     int work_mib;     /* solver scratch budget in MiB, 1..65536 (presets: 32). A level whose

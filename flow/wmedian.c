@@ -133,23 +133,7 @@ void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
             for (int x = 0; x < w; x++) {
                 size_t i = (size_t)y * (size_t)w + (size_t)x;
                 float uc = u[i], vc = v[i];
-                int edge = 0;
-                for (int dy = -2; dy <= 2 && !edge; dy++) {
-                    int yy = y + dy;
-                    if (yy < 0 || yy >= h)
-                        continue;
-                    for (int dx = -2; dx <= 2; dx++) {
-                        int xx = x + dx;
-                        if (xx < 0 || xx >= w)
-                            continue;
-                        size_t j = (size_t)yy * (size_t)w + (size_t)xx;
-                        if (fabsf(u[j] - uc) + fabsf(v[j] - vc) > band) {
-                            edge = 1;
-                            break;
-                        }
-                    }
-                }
-                if (!edge)
+                if (!sinew__flow_edge(u, v, w, h, x, y, band))
                     continue;
                 int n = 0;
                 float total = 0.f;

@@ -55,6 +55,8 @@ static void usage(FILE *out)
             "  --wmedian-levels N    ... at the finest N computed levels\n"
             "  --wmedian-band X      boundary test: flow differs by more than X px (L1)\n"
             "                        within 5x5 pixels\n"
+            "  --fuse-levels N       candidate selection near motion boundaries at the\n"
+            "                        finest N computed levels (0 = off)\n"
             "  --gray                use luminance only, even for colour frames\n"
             "  --work-mib N          solver scratch budget in MiB (default 32); larger\n"
             "                        images are solved in overlapping bands of rows\n"
@@ -75,7 +77,7 @@ enum {
     O_LEVELS = 256, O_FINEST, O_PFINEST, O_PSIZE, O_PSTRIDE, O_PITERS, O_WARPS, O_OUTER,
     O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_WMEDIAN, O_WMEDIAN_LEVELS,
     O_WARPS_FINE, O_FINE_LEVELS,
-    O_WMEDIAN_BAND, O_GRAY, O_WORK_MIB
+    O_WMEDIAN_BAND, O_FUSE_LEVELS, O_GRAY, O_WORK_MIB
 };
 
 /* Apply one advanced option to p; returns 0 or -1 if the value does not parse. */
@@ -107,6 +109,7 @@ static int set_param(sinew_flow_params *p, int opt, const char *arg)
     case O_WMEDIAN: p->wmedian = (int)iv; break;
     case O_WMEDIAN_LEVELS: p->wmedian_levels = (int)iv; break;
     case O_WMEDIAN_BAND: p->wmedian_band = (float)dv; break;
+    case O_FUSE_LEVELS: p->fuse_levels = (int)iv; break;
     case O_WORK_MIB: p->work_mib = (int)iv; break;
     default: return -1;
     }
@@ -141,6 +144,7 @@ int cmd_flow(int argc, char **argv)
         {"wmedian", required_argument, NULL, O_WMEDIAN},
         {"wmedian-levels", required_argument, NULL, O_WMEDIAN_LEVELS},
         {"wmedian-band", required_argument, NULL, O_WMEDIAN_BAND},
+        {"fuse-levels", required_argument, NULL, O_FUSE_LEVELS},
         {"gray", no_argument, NULL, O_GRAY},
         {"work-mib", required_argument, NULL, O_WORK_MIB},
         {NULL, 0, NULL, 0},

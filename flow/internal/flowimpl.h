@@ -8,6 +8,7 @@
 #ifndef SINEW_INTERNAL_FLOWIMPL_H
 #define SINEW_INTERNAL_FLOWIMPL_H
 
+#include <math.h>
 #include <stddef.h>
 
 #include "flow/core.h"
@@ -120,6 +121,29 @@ void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__l
                       int channels, const sinew__var_params *p, float *work, size_t work_floats,
                       unsigned char *mask, int nt);
 
+/* 1 if some flow vector in the 5x5 neighbourhood of (x, y) (clipped at the border)
+ * differs from the one at (x, y) by more than `band` px (L1): a motion-boundary pixel. */
+static inline int sinew__flow_edge(const float *u, const float *v, int w, int h, int x, int y,
+                                   float band)
+{
+    size_t i = (size_t)y * (size_t)w + (size_t)x;
+    float uc = u[i], vc = v[i];
+    for (int dy = -2; dy <= 2; dy++) {
+        int yy = y + dy;
+        if (yy < 0 || yy >= h)
+            continue;
+        for (int dx = -2; dx <= 2; dx++) {
+            int xx = x + dx;
+            if (xx < 0 || xx >= w)
+                continue;
+            size_t j = (size_t)yy * (size_t)w + (size_t)xx;
+            if (fabsf(u[j] - uc) + fabsf(v[j] - vc) > band)
+                return 1;
+        }
+    }
+    return 0;
+}
+
 /* ---- occlusion-aware weighted median near motion boundaries (flow/wmedian.c) ---- */
 typedef struct sinew__wmed_params {
     int radius;                        /* window radius, 1..10 */
@@ -134,6 +158,13 @@ typedef struct sinew__wmed_params {
 void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
                     const sinew__level *l0, const sinew__level *l1, int channels,
                     const sinew__wmed_params *p, float *occ, size_t occ_floats, int nt);
+
+/* ---- candidate selection near motion boundaries (flow/fuse.c) ---- */
+/* Copy (u, v) to (uo, vo) (no aliasing), except that at boundary pixels (sinew__flow_edge
+ * with `band`) the flow of a nearby pixel replaces the own one when it explains the
+ * pixel's 3x3 neighbourhood in frame 1 clearly better. */
+void sinew__fuse(float *uo, float *vo, const float *u, const float *v, const sinew__level *l0,
+                 const sinew__level *l1, int channels, float band, int nt);
 
 /* ---- coarse-to-fine Horn-Schunck baseline (Horn and Schunck 1981) ---- */
 int sinew__hs_planes(void);

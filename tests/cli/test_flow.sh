@@ -112,5 +112,7 @@ expect_error "bad weighted-median radius" "$o" 'wmedian' \
     "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$o" --wmedian 11
 expect_error "bad fine-level warps" "$o" 'warps_fine' \
     "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$o" --warps-fine 99
+expect_error "bad candidate-selection levels" "$o" 'fuse_levels' \
+    "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$o" --fuse-levels 13
 expect_error "bad thread count" "$o" 'threads' "$SINEW_BIN" flow "$T/a.pgm" "$T/b.pgm" -o "$o" -t x
 expect_error "one frame only" "$o" 'expected FRAME1 and FRAME2' "$SINEW_BIN" flow "$T/a.pgm" -o "$o"

@@ -8,7 +8,10 @@
  * next to an image edge moves back to the edge (where a plain median keeps it), pixels
  * away from motion boundaries are left alone, and the result is thread-independent and
  * does not depend on how many rows its scratch holds; patch-search densification likewise
- * gives the same bits in chunks of rows. */
+ * gives the same bits in chunks of rows; candidate selection near motion boundaries on a
+ * built pair whose answer is known: a background strip given the foreground's flow gets
+ * its own flow back, a region moving towards a pixel is never offered to it, and the
+ * result is thread-independent. */
 #include "tests/support/testutil.h"
 
 #include <math.h>
@@ -288,6 +291,111 @@ static void test_kernels_dis_chunks_identical(void **state)
     free(pu);
 }
 
+/* Candidate selection (flow/fuse.c) on a random texture split at x = 24 (an image edge:
+ * values in [0, 0.4] left, [0.6, 1] right): the left part moves by `ub` px in x, the
+ * right part stays (frame 1 built from frame 0 accordingly).
+ * The estimate gives the right part's flow (0) to the two left columns x = 22, 23. */
+typedef struct fu_case {
+    wm_case a;     /* frame 0 (img), flow (u, v), output (uo, vo) */
+    float *img1;   /* frame 1 */
+    sinew__level l1;
+} fu_case;
+
+static void fu_setup(fu_case *c, float ub)
+{
+    int w = 48, h = 24;
+    wm_setup(&c->a, w, h);
+    c->img1 = calloc((size_t)w * (size_t)h, sizeof(float));
+    assert_non_null(c->img1);
+    srand(5);
+    for (int i = 0; i < w * h; i++) {
+        c->a.img[i] = 0.4f * (float)rand() / (float)RAND_MAX + (i % w >= 24 ? 0.6f : 0.f);
+        c->img1[i] = (float)rand() / (float)RAND_MAX; /* uncovered: anything */
+    }
+    for (int y = 0; y < h; y++) {
+        for (int x = 0; x < 24; x++) /* left part: I1(x + ub) = I0(x) */
+            if (x + (int)ub >= 0 && x + (int)ub < w)
+                c->img1[y * w + x + (int)ub] = c->a.img[y * w + x];
+        for (int x = 24; x < w; x++) /* right part in front: I1(x) = I0(x) */
+            c->img1[y * w + x] = c->a.img[y * w + x];
+        for (int x = 0; x < w; x++)
+            c->a.u[y * w + x] = x < 22 ? ub : 0.f;
+    }
+    c->l1 = c->a.l;
+    c->l1.lum = c->l1.ch[0] = c->img1;
+}
+
+static void fu_free(fu_case *c)
+{
+    free(c->img1);
+    wm_free(&c->a);
+}
+
+static void test_kernels_fuse_restores_background(void **state)
+{
+    (void)state;
+    fu_case c;
+    fu_setup(&c, -2.f); /* the left part moves away from the right one: all visible */
+    sinew__fuse(c.a.uo, c.a.vo, c.a.u, c.a.v, &c.a.l, &c.l1, 1, 0.5f, 2);
+    for (int y = 0; y < c.a.h; y++) {
+        const float *uo = c.a.uo + y * c.a.w;
+        /* the wrong columns take the left part's flow, which matches them exactly */
+        assert_true(uo[22] == -2.f && uo[23] == -2.f);
+        /* correct pixels keep their flow; v is untouched */
+        for (int x = 0; x < c.a.w; x++) {
+            if (x != 22 && x != 23)
+                assert_true(uo[x] == c.a.u[y * c.a.w + x]);
+            assert_true(c.a.vo[y * c.a.w + x] == 0.f);
+        }
+    }
+    fu_free(&c);
+}
+
+static void test_kernels_fuse_refuses_covering_region(void **state)
+{
+    (void)state;
+    fu_case c;
+    /* the left part moves towards the right one (its columns 22, 23 get covered); its
+     * flow would match columns 20, 21 if they had it wrong, but a region moving towards a
+     * pixel is never offered to it (the pixel may be about to be occluded) */
+    fu_setup(&c, 2.f);
+    for (int y = 0; y < c.a.h; y++)
+        for (int x = 20; x < 22; x++)
+            c.a.u[y * c.a.w + x] = 0.f;
+    sinew__fuse(c.a.uo, c.a.vo, c.a.u, c.a.v, &c.a.l, &c.l1, 1, 0.5f, 1);
+    assert_memory_equal(c.a.uo, c.a.u, (size_t)c.a.w * (size_t)c.a.h * sizeof(float));
+    fu_free(&c);
+}
+
+static void test_kernels_fuse_threads_identical(void **state)
+{
+    (void)state;
+    int w = 83, h = 57;
+    size_t n = (size_t)w * (size_t)h;
+    wm_case a;
+    wm_setup(&a, w, h);
+    float *img1 = malloc(n * sizeof *img1), *u1 = malloc(n * sizeof *u1),
+          *v1 = malloc(n * sizeof *v1);
+    assert_true(img1 && u1 && v1);
+    srand(12);
+    for (size_t i = 0; i < n; i++) {
+        a.img[i] = (float)rand() / (float)RAND_MAX;
+        img1[i] = (float)rand() / (float)RAND_MAX;
+        a.u[i] = (float)(rand() % 7) - 3.f + (float)rand() / (float)RAND_MAX;
+        a.v[i] = (float)(rand() % 5) - 2.f;
+    }
+    sinew__level l1 = a.l;
+    l1.lum = l1.ch[0] = img1;
+    sinew__fuse(u1, v1, a.u, a.v, &a.l, &l1, 1, 0.5f, 1);
+    sinew__fuse(a.uo, a.vo, a.u, a.v, &a.l, &l1, 1, 0.5f, 3);
+    assert_memory_equal(u1, a.uo, n * sizeof *u1);
+    assert_memory_equal(v1, a.vo, n * sizeof *v1);
+    free(img1);
+    free(u1);
+    free(v1);
+    wm_free(&a);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -297,6 +405,9 @@ int main(void)
         cmocka_unit_test(test_kernels_wmedian_snaps_boundary_to_edge),
         cmocka_unit_test(test_kernels_wmedian_threads_and_chunks_identical),
         cmocka_unit_test(test_kernels_dis_chunks_identical),
+        cmocka_unit_test(test_kernels_fuse_restores_background),
+        cmocka_unit_test(test_kernels_fuse_refuses_covering_region),
+        cmocka_unit_test(test_kernels_fuse_threads_identical),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

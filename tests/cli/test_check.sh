@@ -219,8 +219,10 @@ fi
 # Issue 5 target: occlusion (mask bits 0|1) F1 >= 0.8 against the demo scene's exact
 # occlusion truth (ray-cast by `sinew synth`, seed 1, 640x480), with sinew's own flow
 # (preset accurate, `sinew flow --check`), mean over pairs 0-1, 1-2, 2-3. Measured
-# 2026-12-02: F1 0.771, 0.859, 0.900 (P 0.66/0.78/0.84, R 0.94/0.96/0.97), mean 0.843
-# (docs/benchmarks.md, tools/bench_check). With the balanced preset the mean is 0.69.
+# 2026-12-02 04:11: F1 0.771, 0.859, 0.900 (P 0.66/0.78/0.84, R 0.94/0.96/0.97), mean
+# 0.843 (docs/benchmarks.md, tools/bench_check); with the first-halving blur and candidate
+# selection: F1 0.921, 0.938, 0.913 (P 0.89/0.91/0.86, R 0.96/0.96/0.97), mean 0.924.
+# With the balanced preset the mean was 0.69.
 if "$SINEW_BIN" synth -o "$T/occdemo" --frames 4 >/dev/null 2>"$T/err"; then
     f1s=""
     for i in 0 1 2; do

@@ -379,38 +379,45 @@ static inline void med_compare(float *restrict a, float *restrict b, int kind)
     }
 }
 
+/* One output row of the median filter (radius r, its comparator network). */
+SINEW__CLONES static void median_row(float *restrict dst, const float *restrict src, int w,
+                                     int h, int r, int y, const unsigned char (*net)[3],
+                                     int ncmp)
+{
+    int side = 2 * r + 1, mid = side * side / 2;
+    float buf[25][MED_LANES];
+    for (int x0 = 0; x0 < w; x0 += MED_LANES) {
+        int q = 0;
+        for (int dy = -r; dy <= r; dy++) {
+            int yy = y + dy < 0 ? 0 : (y + dy >= h ? h - 1 : y + dy);
+            const float *row = src + (size_t)yy * (size_t)w;
+            for (int dx = -r; dx <= r; dx++, q++) {
+                int first = x0 + dx, last = x0 + MED_LANES - 1 + dx;
+                if (first >= 0 && last < w) {
+                    memcpy(buf[q], row + first, sizeof buf[q]);
+                } else {
+                    /* clamped borders; lanes past the row end repeat the last pixel */
+                    for (int i = 0; i < MED_LANES; i++) {
+                        int xx = first + i < 0 ? 0 : (first + i >= w ? w - 1 : first + i);
+                        buf[q][i] = row[xx];
+                    }
+                }
+            }
+        }
+        for (int c = 0; c < ncmp; c++)
+            med_compare(buf[net[c][0]], buf[net[c][1]], net[c][2]);
+        int nb = w - x0 < MED_LANES ? w - x0 : MED_LANES;
+        memcpy(dst + (size_t)y * (size_t)w + (size_t)x0, buf[mid], (size_t)nb * sizeof(float));
+    }
+}
+
 void sinew__median(float *dst, const float *src, int w, int h, int r, int nt)
 {
     (void)nt; /* unused without OpenMP */
     const unsigned char(*net)[3] = r == 1 ? med9_net : med25_net;
     int ncmp = r == 1 ? (int)(sizeof med9_net / sizeof med9_net[0])
                       : (int)(sizeof med25_net / sizeof med25_net[0]);
-    int side = 2 * r + 1, mid = side * side / 2;
     SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < h; y++) {
-        float buf[25][MED_LANES];
-        for (int x0 = 0; x0 < w; x0 += MED_LANES) {
-            int q = 0;
-            for (int dy = -r; dy <= r; dy++) {
-                int yy = y + dy < 0 ? 0 : (y + dy >= h ? h - 1 : y + dy);
-                const float *row = src + (size_t)yy * (size_t)w;
-                for (int dx = -r; dx <= r; dx++, q++) {
-                    int first = x0 + dx, last = x0 + MED_LANES - 1 + dx;
-                    if (first >= 0 && last < w) {
-                        memcpy(buf[q], row + first, sizeof buf[q]);
-                    } else {
-                        /* clamped borders; lanes past the row end repeat the last pixel */
-                        for (int i = 0; i < MED_LANES; i++) {
-                            int xx = first + i < 0 ? 0 : (first + i >= w ? w - 1 : first + i);
-                            buf[q][i] = row[xx];
-                        }
-                    }
-                }
-            }
-            for (int c = 0; c < ncmp; c++)
-                med_compare(buf[net[c][0]], buf[net[c][1]], net[c][2]);
-            int nb = w - x0 < MED_LANES ? w - x0 : MED_LANES;
-            memcpy(dst + (size_t)y * (size_t)w + (size_t)x0, buf[mid], (size_t)nb * sizeof(float));
-        }
-    }
+    for (int y = 0; y < h; y++)
+        median_row(dst, src, w, h, r, y, net, ncmp);
 }

@@ -13,6 +13,16 @@
 
 #include "flow/core.h"
 
+/* Functions marked SINEW__CLONES are also built for AVX2 (8 floats per vector) and the
+ * version is picked at run time where the CPU has it. AVX2 has no fused multiply-add and
+ * we compile without FP contraction, so both versions compute the same bits. GCC on
+ * x86-64 Linux (ifunc) only; elsewhere the plain build. */
+#if defined(__GNUC__) && !defined(__clang__) && defined(__x86_64__) && defined(__linux__)
+#define SINEW__CLONES __attribute__((target_clones("avx2", "default")))
+#else
+#define SINEW__CLONES
+#endif
+
 #define SINEW__MAX_LEVELS 12
 #define SINEW__MAX_CH 3
 

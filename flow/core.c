@@ -165,6 +165,17 @@ void *sinew__calloc(sinew_ctx *ctx, size_t count, size_t size)
     return p;
 }
 
+char *sinew__strdup(sinew_ctx *ctx, const char *s)
+{
+    if (!s)
+        return NULL;
+    size_t n = strlen(s) + 1;
+    char *d = sinew__alloc(ctx, n);
+    if (d)
+        memcpy(d, s, n);
+    return d;
+}
+
 void sinew__free(sinew_ctx *ctx, void *p)
 {
     if (p)

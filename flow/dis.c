@@ -141,6 +141,55 @@ static void search_patch(float *pu, float *pv, const sinew__level *l0, const sin
     *pv = v;
 }
 
+/* Densification of row y: each pixel's flow becomes the average of the flows of the
+ * patches covering it, weighted by 1 / max(1, |I1(x + w) - I0(x)| in 0..255 units);
+ * pixels no patch covers keep theirs. au, av, aw: w floats of scratch each. */
+static void densify_row(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
+                        const sinew__dis_params *p, const float *pu, const float *pv, int nx,
+                        int ny, int y, float *restrict au, float *restrict av,
+                        float *restrict aw)
+{
+    int w = l0->w, h = l0->h, ps = p->patch < MAXPS ? p->patch : MAXPS, st = p->stride;
+    size_t ro = (size_t)y * (size_t)w;
+    for (int x = 0; x < w; x++)
+        au[x] = av[x] = aw[x] = 0.f;
+    const float *i0 = l0->lum + ro;
+    for (int j = 0; j < ny; j++) {
+        int y0 = patch_origin(j, st, h, ps);
+        if (y < y0 || y >= y0 + ps)
+            continue;
+        for (int i = 0; i < nx; i++) {
+            int x0 = patch_origin(i, st, w, ps);
+            float fu = pu[(size_t)j * nx + i], fv = pv[(size_t)j * nx + i];
+            float fxf = floorf(fu), fyf = floorf(fv);
+            float ax = fu - fxf, ay = fv - fyf;
+            int ya = y + (int)fyf, yb = ya + 1;
+            ya = ya < 0 ? 0 : (ya >= h ? h - 1 : ya);
+            yb = yb < 0 ? 0 : (yb >= h ? h - 1 : yb);
+            const float *ra = l1->lum + (size_t)ya * (size_t)w;
+            const float *rb = l1->lum + (size_t)yb * (size_t)w;
+            for (int x = x0; x < x0 + ps; x++) {
+                int xa = x + (int)fxf, xb = xa + 1;
+                xa = xa < 0 ? 0 : (xa >= w ? w - 1 : xa);
+                xb = xb < 0 ? 0 : (xb >= w ? w - 1 : xb);
+                float top = ra[xa] + ax * (ra[xb] - ra[xa]);
+                float bot = rb[xa] + ax * (rb[xb] - rb[xa]);
+                float d = fabsf(top + ay * (bot - top) - i0[x]) * 255.0f;
+                float lam = 1.0f / (d > 1.0f ? d : 1.0f);
+                au[x] += lam * fu;
+                av[x] += lam * fv;
+                aw[x] += lam;
+            }
+        }
+    }
+    for (int x = 0; x < w; x++) {
+        if (aw[x] > 0.f) {
+            u[ro + x] = au[x] / aw[x];
+            v[ro + x] = av[x] / aw[x];
+        }
+    }
+}
+
 void sinew__dis_level(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
                       const sinew__dis_params *p, float *pu, float *pv, float *accw,
                       size_t acc_floats, int nt)
@@ -167,48 +216,11 @@ void sinew__dis_level(float *u, float *v, const sinew__level *l0, const sinew__l
     for (int ca = 0; ca < h; ca += chunk) {
         int cb = ca + chunk < h ? ca + chunk : h;
         size_t cn = (size_t)w * (size_t)(cb - ca);
-        float *accu = accw, *accv = accw + cn, *acc = accw + 2 * cn;
         SINEW_PARALLEL_FOR(nt)
         for (int y = ca; y < cb; y++) {
-            size_t ro = (size_t)y * (size_t)w, ao = (size_t)(y - ca) * (size_t)w;
-            float *restrict au = accu + ao, *restrict av = accv + ao, *restrict aw = acc + ao;
-            for (int x = 0; x < w; x++)
-                au[x] = av[x] = aw[x] = 0.f;
-            const float *i0 = l0->lum + ro;
-            for (int j = 0; j < ny; j++) {
-                int y0 = patch_origin(j, st, h, ps);
-                if (y < y0 || y >= y0 + ps)
-                    continue;
-                for (int i = 0; i < nx; i++) {
-                    int x0 = patch_origin(i, st, w, ps);
-                    float fu = pu[(size_t)j * nx + i], fv = pv[(size_t)j * nx + i];
-                    float fxf = floorf(fu), fyf = floorf(fv);
-                    float ax = fu - fxf, ay = fv - fyf;
-                    int ya = y + (int)fyf, yb = ya + 1;
-                    ya = ya < 0 ? 0 : (ya >= h ? h - 1 : ya);
-                    yb = yb < 0 ? 0 : (yb >= h ? h - 1 : yb);
-                    const float *ra = l1->lum + (size_t)ya * (size_t)w;
-                    const float *rb = l1->lum + (size_t)yb * (size_t)w;
-                    for (int x = x0; x < x0 + ps; x++) {
-                        int xa = x + (int)fxf, xb = xa + 1;
-                        xa = xa < 0 ? 0 : (xa >= w ? w - 1 : xa);
-                        xb = xb < 0 ? 0 : (xb >= w ? w - 1 : xb);
-                        float top = ra[xa] + ax * (ra[xb] - ra[xa]);
-                        float bot = rb[xa] + ax * (rb[xb] - rb[xa]);
-                        float d = fabsf(top + ay * (bot - top) - i0[x]) * 255.0f;
-                        float lam = 1.0f / (d > 1.0f ? d : 1.0f);
-                        au[x] += lam * fu;
-                        av[x] += lam * fv;
-                        aw[x] += lam;
-                    }
-                }
-            }
-            for (int x = 0; x < w; x++) {
-                if (aw[x] > 0.f) {
-                    u[ro + x] = au[x] / aw[x];
-                    v[ro + x] = av[x] / aw[x];
-                }
-            }
+            size_t ao = (size_t)(y - ca) * (size_t)w;
+            densify_row(u, v, l0, l1, p, pu, pv, nx, ny, y, accw + ao, accw + cn + ao,
+                        accw + 2 * cn + ao);
         }
     }
 }

@@ -358,6 +358,13 @@ static void level_gradients(const sinew_estimator *e, sinew__level *l0, sinew__l
     sinew__gradient(l1->gx, l1->gy, l1->lum, l1->w, l1->h, nt);
 }
 
+/* (du, dv) = (su, sv), n floats each */
+static void copy_flow(float *du, float *dv, const float *su, const float *sv, size_t n)
+{
+    memcpy(du, su, n * sizeof(float));
+    memcpy(dv, sv, n * sizeof(float));
+}
+
 /* Coarse-to-fine estimation from pyramid a to pyramid b into the interleaved image out. */
 static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyramid *a,
                          const sinew__pyramid *b)
@@ -384,9 +391,7 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
         if (s < top) {
             /* the coarse flow moves to g, the upsampled one fills (u, v) */
             const sinew__level *up = &a->lv[s + 1];
-            size_t un = (size_t)up->w * (size_t)up->h;
-            memcpy(gu, u, un * sizeof(float));
-            memcpy(gv, v, un * sizeof(float));
+            copy_flow(gu, gv, u, v, (size_t)up->w * (size_t)up->h);
             sinew__flow_up(u, v, l0.w, l0.h, gu, gv, up->w, up->h, nt);
         }
         int grads = 0; /* g holds this level's gradients */
@@ -419,23 +424,20 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
                 sinew__median(gu, u, l0.w, l0.h, p->median, nt);
                 sinew__median(gv, v, l0.w, l0.h, p->median, nt);
             } else if (wm) {
-                memcpy(gu, u, n * sizeof(float));
-                memcpy(gv, v, n * sizeof(float));
+                copy_flow(gu, gv, u, v, n);
             }
             /* boundary pixels: weighted median of the flow before the plain median */
             if (wm)
                 sinew__wmedian(gu, gv, u, v, &l0, &l1, e->channels, &wp, e->work,
                                e->work_floats, nt);
             if (p->median > 0 || wm) {
-                memcpy(u, gu, n * sizeof(float));
-                memcpy(v, gv, n * sizeof(float));
+                copy_flow(u, v, gu, gv, n);
                 grads = 0;
             }
             /* once per level, so the later warps refine what it chose */
             if (k == 0 && s < finest + p->fuse_levels) {
                 sinew__fuse(gu, gv, u, v, &l0, &l1, e->channels, p->wmedian_band, nt);
-                memcpy(u, gu, n * sizeof(float));
-                memcpy(v, gv, n * sizeof(float));
+                copy_flow(u, v, gu, gv, n);
                 grads = 0;
             }
         }

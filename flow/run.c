@@ -336,15 +336,6 @@ char *sinew__dup_join(sinew_ctx *ctx, const char *a, const char *b)
     return s;
 }
 
-static char *dup_str(sinew_ctx *ctx, const char *s)
-{
-    size_t l = strlen(s);
-    char *c = sinew__alloc(ctx, l + 1);
-    if (c)
-        memcpy(c, s, l + 1);
-    return c;
-}
-
 void sinew__free_names(sinew_ctx *ctx, char **names, size_t n)
 {
     for (size_t i = 0; names && i < n; i++)
@@ -384,7 +375,8 @@ int sinew__list_dir(sinew_ctx *ctx, const char *dir, int (*keep)(const char *nam
             names = g;
             cap = nc;
         }
-        names[k] = join ? sinew__dup_join(ctx, dir, e->d_name) : dup_str(ctx, e->d_name);
+        names[k] =
+            join ? sinew__dup_join(ctx, dir, e->d_name) : sinew__strdup(ctx, e->d_name);
         if (!names[k])
             rc = SINEW_ENOMEM;
         else

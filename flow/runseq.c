@@ -48,13 +48,8 @@ static int resolve_dup(sinew_ctx *ctx, const sinew_sequence *seq, const char *re
         return SINEW_OK;
     if (sinew_sequence_resolve(seq, rel, buf, sizeof buf) != SINEW_OK)
         return sinew__fail(ctx, SINEW_ELIMIT, "%s: frames[%zu]: path too long", where, f);
-    size_t n = strlen(buf);
-    char *d = sinew__alloc(ctx, n + 1);
-    if (!d)
-        return SINEW_ENOMEM;
-    memcpy(d, buf, n + 1);
-    *out = d;
-    return SINEW_OK;
+    *out = sinew__strdup(ctx, buf);
+    return *out ? SINEW_OK : SINEW_ENOMEM;
 }
 
 int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, const char *where,

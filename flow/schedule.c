@@ -338,14 +338,12 @@ int sinew_stamp_list_read(sinew_ctx *ctx, const char *path, sinew_stamp_list *ou
             return sinew__fail(ctx, SINEW_EFORMAT, "%s: line %zu: expected 'timestamp filename'",
                                path, lineno);
         }
-        size_t nl = strlen(tok[1]);
-        char *name = sinew__alloc(ctx, nl + 1);
+        char *name = sinew__strdup(ctx, tok[1]);
         if (!name) {
             sinew_stamp_list_free(ctx, out);
             sinew_ctx_dealloc(ctx, buf);
             return SINEW_ENOMEM;
         }
-        memcpy(name, tok[1], nl + 1);
         out->t[out->n] = t;
         out->name[out->n] = name;
         out->n++;

@@ -22,22 +22,11 @@
 
 /* ---- memory ---- */
 
-static char *dup_str(sinew_ctx *ctx, const char *s)
-{
-    if (!s)
-        return NULL;
-    size_t n = strlen(s) + 1;
-    char *d = sinew__alloc(ctx, n);
-    if (d)
-        memcpy(d, s, n);
-    return d;
-}
-
 /* Copy an optional string into *dst (freeing the old one). */
 static int set_str(sinew_ctx *ctx, char **dst, const char *s)
 {
     char *d = NULL;
-    if (s && !(d = dup_str(ctx, s)))
+    if (s && !(d = sinew__strdup(ctx, s)))
         return SINEW_ENOMEM;
     sinew__free(ctx, *dst);
     *dst = d;
@@ -122,7 +111,7 @@ int sinew_sequence_set_label_names(sinew_sequence *seq, const char *const *names
         if (!arr)
             return SINEW_ENOMEM;
         for (size_t i = 0; i < n; i++) {
-            if (!names[i] || !(arr[i] = dup_str(ctx, names[i]))) {
+            if (!names[i] || !(arr[i] = sinew__strdup(ctx, names[i]))) {
                 for (size_t j = 0; j < i; j++)
                     sinew__free(ctx, arr[j]);
                 sinew__free(ctx, arr);

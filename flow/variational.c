@@ -581,6 +581,17 @@ static void edge_weights(planes *P, const sinew__level *l0, float edge, int nt)
     }
 }
 
+/* One image row from its even-x and odd-x halves (split layout): added to dst (add) or
+ * stored. */
+static inline void unsplit_row(float *restrict dst, const float *restrict even,
+                               const float *restrict odd, int w, int add)
+{
+    for (int x = 0; x < w; x++) {
+        float d = x & 1 ? odd[x >> 1] : even[x >> 1];
+        dst[x] = add ? dst[x] + d : d;
+    }
+}
+
 /* Rows ya .. yb - 1 of the increment (du, dv, split layout) into row-major planes whose
  * first row is row ya: added to them (add) or stored. */
 static void put_increment(float *u, float *v, int add, const planes *P, int ya, int yb, int nt)
@@ -592,43 +603,23 @@ static void put_increment(float *u, float *v, int add, const planes *P, int ya, 
         /* even x have colour y & 1, odd x the other one */
         size_t o = (size_t)(y - ya) * (size_t)w;
         size_t oe = rb_row(P, y & 1, y), oo = rb_row(P, !(y & 1), y);
-        float *restrict ur = u + o, *restrict vr = v + o;
-        const float *restrict due = P->du + oe, *restrict dve = P->dv + oe;
-        const float *restrict duo = P->du + oo, *restrict dvo = P->dv + oo;
-        int pairs = w / 2;
-        if (add) {
-            for (int k = 0; k < pairs; k++) {
-                ur[2 * k] += due[k];
-                ur[2 * k + 1] += duo[k];
-                vr[2 * k] += dve[k];
-                vr[2 * k + 1] += dvo[k];
-            }
-            if (w & 1) {
-                ur[w - 1] += due[pairs];
-                vr[w - 1] += dve[pairs];
-            }
-        } else {
-            for (int k = 0; k < pairs; k++) {
-                ur[2 * k] = due[k];
-                ur[2 * k + 1] = duo[k];
-                vr[2 * k] = dve[k];
-                vr[2 * k + 1] = dvo[k];
-            }
-            if (w & 1) {
-                ur[w - 1] = due[pairs];
-                vr[w - 1] = dve[pairs];
-            }
-        }
+        unsplit_row(u + o, P->du + oe, P->du + oo, w, add);
+        unsplit_row(v + o, P->dv + oe, P->dv + oo, w, add);
     }
 }
 
-/* dst += src over n floats */
-static void add_planes(float *restrict dst, const float *restrict src, size_t n, int nt)
+/* (u, v) += (du, dv) on rows ya .. yb - 1, the increment stored row-major from row ya */
+static void add_rows(float *u, float *v, const float *du, const float *dv, int ya, int yb,
+                     int w, int nt)
 {
     (void)nt; /* unused without OpenMP */
+    size_t o = (size_t)ya * (size_t)w;
+    ptrdiff_t n = (ptrdiff_t)(yb - ya) * w;
     SINEW_PARALLEL_FOR(nt)
-    for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
-        dst[i] += src[i];
+    for (ptrdiff_t i = 0; i < n; i++) {
+        u[o + (size_t)i] += du[i];
+        v[o + (size_t)i] += dv[i];
+    }
 }
 
 /* Solve for the increment on rows r0 .. r1 - 1 of the level, treating them as a whole
@@ -700,25 +691,22 @@ void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__l
         return;
     }
     /* Bands of `core` rows, each solved with BAND_HALO rows of context on both sides. A
-     * band's increment waits in `pend` until the next band (whose context reaches into
-     * it) is solved; bands are at least BAND_HALO rows, so no later band reads it. */
+     * band's increment (rows pa .. pb - 1) waits in pend_u, pend_v until the next band,
+     * whose context reaches into it, is solved; bands are at least BAND_HALO rows, so no
+     * later band reads it. */
     int core = (int)band_core(channels, w, work_floats);
     size_t band_floats = (size_t)sinew__var_planes(channels) * (size_t)w *
                          (size_t)(core + 2 * BAND_HALO);
-    float *pu = work + band_floats, *pv = pu + (size_t)core * (size_t)w;
+    float *pend_u = work + band_floats, *pend_v = pend_u + (size_t)core * (size_t)w;
     int pa = 0, pb = 0;
     for (int a = 0; a < h; a += core) {
         int b = a + core < h ? a + core : h;
         int r0 = a > BAND_HALO ? a - BAND_HALO : 0, r1 = b + BAND_HALO < h ? b + BAND_HALO : h;
         solve_band(&P, u, v, l0, l1, r0, r1, channels, p, work, mask, nt);
-        size_t pn = (size_t)(pb - pa) * (size_t)w, po = (size_t)pa * (size_t)w;
-        add_planes(u + po, pu, pn, nt);
-        add_planes(v + po, pv, pn, nt);
-        put_increment(pu, pv, 0, &P, a - r0, b - r0, nt);
+        add_rows(u, v, pend_u, pend_v, pa, pb, w, nt);
+        put_increment(pend_u, pend_v, 0, &P, a - r0, b - r0, nt);
         pa = a;
         pb = b;
     }
-    size_t pn = (size_t)(pb - pa) * (size_t)w, po = (size_t)pa * (size_t)w;
-    add_planes(u + po, pu, pn, nt);
-    add_planes(v + po, pv, pn, nt);
+    add_rows(u, v, pend_u, pend_v, pa, pb, w, nt);
 }

@@ -22,6 +22,8 @@ int sinew__fail(sinew_ctx *ctx, int status, const char *fmt, ...) SINEW__PRINTF(
 /* Allocation through the context's allocator; sets ENOMEM message on failure. */
 void *sinew__alloc(sinew_ctx *ctx, size_t n);
 void *sinew__calloc(sinew_ctx *ctx, size_t count, size_t size); /* zeroed, overflow-checked */
+/* A copy of string s from the context's allocator; NULL for NULL or out of memory. */
+char *sinew__strdup(sinew_ctx *ctx, const char *s);
 void sinew__free(sinew_ctx *ctx, void *p);
 
 /* Checked arithmetic: return 0 and store the result, or return nonzero on overflow. */

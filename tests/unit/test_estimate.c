@@ -7,6 +7,7 @@
 #include "tests/support/testutil.h"
 
 #include <math.h>
+#include <stddef.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -398,35 +399,36 @@ static void test_estimate_bad_arguments(void **state)
     sinew_flow_params p;
     assert_int_equal(sinew_flow_params_preset(&p, "nonsense"), SINEW_EINVAL);
     assert_int_equal(sinew_flow_params_preset(NULL, "fast"), SINEW_EINVAL);
-    assert_int_equal(sinew_flow_params_preset(&p, "fast"), SINEW_OK);
     sinew_estimator *e = NULL;
-    p.omega = 2.5f;
-    assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
-    assert_null(e);
-    assert_non_null(strstr(sinew_ctx_message(ctx), "omega"));
-    p.omega = 1.5f;
-    p.dis_stride = 99;
-    assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
-    p.dis_stride = 4;
-    p.alpha = NAN;
-    assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
-    p.alpha = 0.02f;
-    p.wmedian = 11;
-    assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
-    assert_non_null(strstr(sinew_ctx_message(ctx), "wmedian"));
-    p.wmedian = 5;
-    p.wmedian_band = NAN;
-    assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
-    p.wmedian_band = 0.5f;
-    p.warps_fine = 51;
-    assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
-    p.warps_fine = 0;
-    p.fine_levels = 0;
-    assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
-    p.fine_levels = 2;
-    p.fuse_levels = 13;
-    assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
-    assert_non_null(strstr(sinew_ctx_message(ctx), "fuse_levels"));
+    /* one out-of-range field at a time, from the fast preset: EINVAL naming the field */
+    static const struct {
+        const char *field;
+        size_t off;
+        int is_float;
+        double bad;
+    } bad[] = {
+        {"omega", offsetof(sinew_flow_params, omega), 1, 2.5},
+        {"dis_stride", offsetof(sinew_flow_params, dis_stride), 0, 99},
+        {"alpha", offsetof(sinew_flow_params, alpha), 1, NAN},
+        {"wmedian", offsetof(sinew_flow_params, wmedian), 0, 11},
+        {"wmedian_band", offsetof(sinew_flow_params, wmedian_band), 1, NAN},
+        {"warps_fine", offsetof(sinew_flow_params, warps_fine), 0, 51},
+        {"fine_levels", offsetof(sinew_flow_params, fine_levels), 0, 0},
+        {"fuse_levels", offsetof(sinew_flow_params, fuse_levels), 0, 13},
+        {"work_mib", offsetof(sinew_flow_params, work_mib), 0, 0},
+    };
+    for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++) {
+        assert_int_equal(sinew_flow_params_preset(&p, "fast"), SINEW_OK);
+        char *field = (char *)&p + bad[k].off;
+        if (bad[k].is_float)
+            *(float *)(void *)field = (float)bad[k].bad;
+        else
+            *(int *)(void *)field = (int)bad[k].bad;
+        assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_EINVAL);
+        assert_null(e);
+        if (!strstr(sinew_ctx_message(ctx), bad[k].field))
+            fail_msg("%s: message '%s'", bad[k].field, sinew_ctx_message(ctx));
+    }
     assert_int_equal(sinew_flow_params_preset(&p, "fast"), SINEW_OK);
     assert_int_equal(sinew_estimator_new(ctx, &e, &p), SINEW_OK);
     sinew_image a, b, fl, small, f32;

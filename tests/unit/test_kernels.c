@@ -133,6 +133,17 @@ static void wm_free(wm_case *c)
     free(c->occ);
 }
 
+/* Random texture and a random flow of a few distinct motions (seeded). */
+static void wm_fill_random(wm_case *c, unsigned seed)
+{
+    srand(seed);
+    for (size_t i = 0; i < (size_t)c->w * (size_t)c->h; i++) {
+        c->img[i] = (float)rand() / (float)RAND_MAX;
+        c->u[i] = (float)(rand() % 7) - 3.f + (float)rand() / (float)RAND_MAX;
+        c->v[i] = (float)(rand() % 5) - 2.f;
+    }
+}
+
 /* Run the filter with the estimator's constants and occ_floats of scratch (0: the whole
  * plane); untouched outputs stay at `mark`. */
 static void wm_run_occ(wm_case *c, float mark, int nt, size_t occ_floats)
@@ -207,12 +218,7 @@ static void test_kernels_wmedian_threads_and_chunks_identical(void **state)
     size_t n = (size_t)w * (size_t)h;
     wm_case a;
     wm_setup(&a, w, h);
-    srand(11);
-    for (size_t i = 0; i < n; i++) {
-        a.img[i] = (float)rand() / (float)RAND_MAX;
-        a.u[i] = (float)(rand() % 7) - 3.f + (float)rand() / (float)RAND_MAX;
-        a.v[i] = (float)(rand() % 5) - 2.f;
-    }
+    wm_fill_random(&a, 11);
     wm_run(&a, 0.f, 1);
     float *u1 = malloc(n * sizeof *u1), *v1 = malloc(n * sizeof *v1);
     assert_non_null(u1);
@@ -377,13 +383,9 @@ static void test_kernels_fuse_threads_identical(void **state)
     float *img1 = malloc(n * sizeof *img1), *u1 = malloc(n * sizeof *u1),
           *v1 = malloc(n * sizeof *v1);
     assert_true(img1 && u1 && v1);
-    srand(12);
-    for (size_t i = 0; i < n; i++) {
-        a.img[i] = (float)rand() / (float)RAND_MAX;
+    wm_fill_random(&a, 12);
+    for (size_t i = 0; i < n; i++)
         img1[i] = (float)rand() / (float)RAND_MAX;
-        a.u[i] = (float)(rand() % 7) - 3.f + (float)rand() / (float)RAND_MAX;
-        a.v[i] = (float)(rand() % 5) - 2.f;
-    }
     sinew__level l1 = a.l;
     l1.lum = l1.ch[0] = img1;
     sinew__fuse(u1, v1, a.u, a.v, &a.l, &l1, 1, 0.5f, 1);

@@ -16,6 +16,7 @@
 
 #define CAMERA_MAX_FILE ((size_t)1 << 20)
 #define CAMERA_MAX_COEF 1e3
+#define CAMERA_MIN_FOCAL 0.1
 
 void sinew_camera_init(sinew_camera *cam, double fx, double fy, double cx, double cy, int width,
                        int height)
@@ -50,10 +51,15 @@ int sinew_camera_check(sinew_ctx *ctx, const sinew_camera *cam, const char *what
     for (size_t i = 0; i < sizeof f / sizeof f[0]; i++)
         if (!isfinite(f[i].v))
             return sinew__fail(ctx, SINEW_EVALUE, "%s: %s is not a finite number", what, f[i].name);
-    if (!(cam->fx > 0))
-        return sinew__fail(ctx, SINEW_EVALUE, "%s: fx must be > 0 (got %g)", what, cam->fx);
-    if (!(cam->fy > 0))
-        return sinew__fail(ctx, SINEW_EVALUE, "%s: fy must be > 0 (got %g)", what, cam->fy);
+    /* Below CAMERA_MIN_FOCAL px the pinhole field of view exceeds 179.9 degrees even for a
+     * 640-px-wide image: such values come from normalised or mis-scaled intrinsics, and
+     * they blow unprojected coordinates out of float range. */
+    if (!(cam->fx >= CAMERA_MIN_FOCAL))
+        return sinew__fail(ctx, SINEW_EVALUE, "%s: fx must be >= %g pixels (got %g)", what,
+                           CAMERA_MIN_FOCAL, cam->fx);
+    if (!(cam->fy >= CAMERA_MIN_FOCAL))
+        return sinew__fail(ctx, SINEW_EVALUE, "%s: fy must be >= %g pixels (got %g)", what,
+                           CAMERA_MIN_FOCAL, cam->fy);
     if (fabs(cam->cx) > 1e7 || fabs(cam->cy) > 1e7 || cam->fx > 1e7 || cam->fy > 1e7)
         return sinew__fail(ctx, SINEW_EVALUE, "%s: implausible focal length or centre", what);
     for (size_t i = 4; i < sizeof f / sizeof f[0]; i++)

@@ -5,6 +5,7 @@
 #include "flow/lift.h"
 
 #include <ctype.h>
+#include <float.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -13,6 +14,15 @@
 #include "flow/internal/lift.h"
 
 /* ---- per-pixel rules ---- */
+
+/* Every coordinate finite and within float32 range (so the stored table stays finite). */
+static int fits_float(const double X[3])
+{
+    for (int k = 0; k < 3; k++)
+        if (!(fabs(X[k]) <= FLT_MAX))
+            return 0;
+    return 1;
+}
 
 static inline float zat(const sinew_image *d, int x, int y)
 {
@@ -115,8 +125,13 @@ int sinew__lift_eval(const sinew_image *d0, const sinew_image *d1, const sinew_c
         ty = d1->height - 1;
     if (window_edge(d1, tx, ty, p->edge_radius, p->edge_rel))
         return SINEW_REJECT_DEPTH1_EDGE;
-    sinew_camera_unproject(cam, x, y, z0, lp->X0);
-    sinew_camera_unproject(cam, u1, v1, z1, lp->X1);
+    /* A point whose ray cannot be undistorted, or whose coordinates do not fit a float32
+     * (absurd intrinsics or depth scale), has no usable 3-D position: the table promises
+     * finite values. */
+    if (!sinew_camera_unproject(cam, x, y, z0, lp->X0) || !fits_float(lp->X0))
+        return SINEW_REJECT_DEPTH0_INVALID;
+    if (!sinew_camera_unproject(cam, u1, v1, z1, lp->X1) || !fits_float(lp->X1))
+        return SINEW_REJECT_DEPTH1_HOLE;
     double dx = lp->X1[0] - lp->X0[0], dy = lp->X1[1] - lp->X0[1], dz = lp->X1[2] - lp->X0[2];
     if (sqrt(dx * dx + dy * dy + dz * dz) > p->max_displacement)
         return SINEW_REJECT_DISPLACEMENT;

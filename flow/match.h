@@ -26,9 +26,10 @@ typedef enum sinew_reject {
     SINEW_REJECT_OUTSIDE,          /* x + w(x) outside [0, W-1] x [0, H-1] */
     SINEW_REJECT_LOW_WEIGHT,       /* confidence not finite or <= min_weight */
     SINEW_REJECT_LABEL_CHANGE,     /* label0 != label1 and drop_label_change is set */
-    SINEW_REJECT_DEPTH0_INVALID,   /* no valid depth at x */
+    SINEW_REJECT_DEPTH0_INVALID,   /* no valid depth (or no float-sized 3-D point) at x */
     SINEW_REJECT_DEPTH0_EDGE,      /* depth discontinuity (or hole) near x */
-    SINEW_REJECT_DEPTH1_HOLE,      /* a bilinear neighbour of x + w(x) has no depth */
+    SINEW_REJECT_DEPTH1_HOLE,      /* a bilinear neighbour of x + w(x) has no depth (or no
+                                      float-sized 3-D point there) */
     SINEW_REJECT_DEPTH1_STRADDLE,  /* the bilinear neighbours straddle a depth edge */
     SINEW_REJECT_DEPTH1_EDGE,      /* depth discontinuity (or hole) near x + w(x) */
     SINEW_REJECT_DISPLACEMENT,     /* |X1 - X0| above max_displacement */

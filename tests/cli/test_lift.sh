@@ -139,6 +139,19 @@ expect_error "lift missing flow" "$T/e1.npy" "nope.npy" "$SINEW_BIN" lift --flow
 expect_error "lift hostile intrinsics" "$T/e2.npy" "kbad.json.*fx" "$SINEW_BIN" lift \
     --flow "$T/flow.npy" --depth0 "$T/d0.png" --depth1 "$T/d1.png" --intrinsics "$T/kbad.json" \
     -o "$T/e2.npy"
+# A focal length of 1e-300 px once gave inf in X/Y with exit 0 (issue 21, item 6).
+expect_error "lift tiny focal length" "$T/e10.npy" "intrinsics.*fx must be >= 0.1" "$SINEW_BIN" \
+    lift --flow "$T/flow.npy" --depth0 "$T/d0.png" --depth1 "$T/d1.png" \
+    --intrinsics 1e-300,1e-300,31.5,23.5 -o "$T/e10.npy"
+# An absurd depth scale puts depth beyond float range: those points are rejected, and
+# every value in the table stays finite (docs/formats.md promises it).
+"$SINEW_BIN" lift --flow "$T/flow.npy" --depth0 "$T/d0.png" --depth1 "$T/d1.png" \
+    --intrinsics 0.1,0.1,31.5,23.5 --depth-scale 1e-34 -o "$T/huge.npy" >"$T/out" 2>"$T/err"
+if "$PYTHON" -c "
+import numpy as np, sys
+M = np.load(sys.argv[1] + '/huge.npy')
+assert np.isfinite(M).all(), 'non-finite values'
+" "$T" 2>"$T/py"; then pass "lift table finite under absurd scales"; else fail "lift table finite under absurd scales" "$(tail -2 "$T/py") $(cat "$T/err")"; fi
 expect_error "lift depth size" "$T/e3.npy" "dsmall.png" "$SINEW_BIN" lift --flow "$T/flow.npy" \
     --depth0 "$T/d0.png" --depth1 "$T/dsmall.png" --intrinsics "$K" -o "$T/e3.npy"
 expect_error "lift 8-bit depth" "$T/e4.npy" "d8.png.*8-bit" "$SINEW_BIN" lift --flow "$T/flow.npy" \

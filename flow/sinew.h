@@ -15,5 +15,6 @@
 #include "flow/report.h"
 #include "flow/run.h"
 #include "flow/sequence.h"
+#include "flow/stereo.h"
 #include "flow/synth.h"
 #endif

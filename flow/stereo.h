@@ -1,0 +1,140 @@
+/* SPDX-License-Identifier: MIT */
+/* Dense disparity of a rectified stereo pair by semi-global matching (Hirschmüller,
+ * PAMI 30(2), 2008) on census costs (Zabih & Woodfill, ECCV 1994), with sub-pixel
+ * refinement, a left-right consistency check that speaks the flow check's vocabulary
+ * (flow/check.h mask bits), a per-pixel confidence, holes filled from the background
+ * side, and disparity -> depth. Method, constants and measurements: docs/methods.md
+ * "Stereo"; files: docs/formats.md "Disparity and stereo calibration".
+ *
+ * Convention (Middlebury and KITTI): a left pixel (x, y) with disparity d > 0 matches
+ * the right pixel (x - d, y); a right pixel (x, y) with disparity d matches the left
+ * pixel (x + d, y). Disparities are in pixels. */
+#ifndef SINEW_STEREO_H
+#define SINEW_STEREO_H
+
+#include <stdint.h>
+
+#include "flow/check.h"
+#include "flow/core.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* Parameters; sinew_stereo_params_default fills the documented defaults (or use
+ * sinew_stereo_preset). Penalties are in census units (differing bits of a 9x7 census
+ * window, 0..62). */
+typedef struct sinew_stereo_params {
+    int min_disparity;    /* smallest disparity searched, px (may be negative). Default 0 */
+    int num_disparities;  /* number searched (1..1024); 0 = automatic: width / 6 rounded up
+                             to a multiple of 16, at most 256. Default 0 */
+    int paths;            /* aggregation directions: 4 (horizontal, vertical) or 8 (and
+                             diagonals). Default 8 */
+    int p1;               /* penalty for a disparity change of 1 px between neighbours.
+                             Default 7 */
+    int p2;               /* penalty for larger changes. Default 100 */
+    double lr_tolerance;  /* left-right check: |dL(x) - dR(x - dL)| > tol is inconsistent,
+                             px (>= 0). Default 1 */
+    int median;           /* 1: 3x3 median of both disparity maps before the check. Default 1 */
+    size_t memory_budget; /* bytes for the cost volumes (3 bytes per pixel and disparity);
+                             larger images are processed in bands of rows with a 48-row
+                             overlap (paths restart at band edges). Default 512 MiB */
+} sinew_stereo_params;
+
+void sinew_stereo_params_default(sinew_stereo_params *p);
+
+/* Named presets: "fast" (4 paths) and "balanced" (8 paths, the default). Returns
+ * SINEW_EINVAL for another name (p untouched). */
+int sinew_stereo_preset(sinew_stereo_params *p, const char *name);
+
+/* The number of disparities actually searched for an image width (resolves 0). */
+int sinew_stereo_num_disparities(const sinew_stereo_params *p, int width);
+
+/* Counts of one run. */
+typedef struct sinew_stereo_stats {
+    int64_t pixels;                     /* width * height */
+    int64_t kept;                       /* mask == 0 */
+    int64_t reason[SINEW_MASK_NBITS];   /* pixels with bit i set */
+    int64_t filled;                     /* pixels whose disparity was filled (mask != 0) */
+    int min_disparity, num_disparities; /* range searched */
+    int bands;                          /* bands of rows processed */
+} sinew_stereo_stats;
+
+/* Outputs, allocated by the caller with the left frame's width and height (right map:
+ * the right frame's, which is the same); each may be NULL except disparity:
+ *   disparity:  SINEW_F32 1 channel, left view, sub-pixel, px; every pixel has a value:
+ *               pixels the check rejects are filled from the background side (the
+ *               lower of the nearest kept disparities to the left and right on the row).
+ *   right:      SINEW_F32 1 channel, right view, sub-pixel, not filled (NaN where the
+ *               check of the right view rejects).
+ *   mask:       SINEW_U8 1 channel, left view, bits of flow/check.h: SINEW_MASK_FB
+ *               (left-right inconsistent), SINEW_MASK_OUTSIDE (x - d left of the right
+ *               frame), SINEW_MASK_UNKNOWN (no disparity could be chosen). 0 = kept.
+ *   confidence: SINEW_F32 1 channel in [0, 1]: 1 - S1 / S2 with S1 the best aggregated
+ *               cost and S2 the best one at least 2 px away ("peak ratio", Hu &
+ *               Mordohai, PAMI 2012); 0 where the mask is non-zero. */
+typedef struct sinew_stereo_output {
+    sinew_image *disparity;
+    sinew_image *right;
+    sinew_image *mask;
+    sinew_image *confidence;
+    sinew_stereo_stats stats; /* filled on success */
+} sinew_stereo_output;
+
+/* Disparity of a rectified pair. left, right: SINEW_U8 or SINEW_U16, 1..4 channels
+ * (alpha ignored, colour to luma 0.299 R + 0.587 G + 0.114 B), same size (ESIZE
+ * otherwise). p = NULL uses the defaults. Returns SINEW_OK, EINVAL (bad parameters or
+ * types), ESIZE, ENOMEM. Integer costs and aggregation: outputs are bit-identical for
+ * every thread count of ctx. Outputs are undefined on failure. */
+int sinew_stereo_run(sinew_ctx *ctx, sinew_stereo_output *out, const sinew_image *left,
+                     const sinew_image *right, const sinew_stereo_params *p);
+
+/* ---- scoring against true disparity (Scharstein & Szeliski, IJCV 2002; KITTI 2015) ---- */
+typedef struct sinew_stereo_scores {
+    int64_t pixels; /* pixels counted: region non-zero and true disparity known */
+    int64_t bad1;   /* |d - d_true| > 1 px; non-finite estimates count as bad (holes) */
+    int64_t bad2;   /* > 2 px */
+    int64_t d1;     /* KITTI D1: > 3 px and > 5 % of d_true */
+    double abs_sum; /* sum of |d - d_true| (|d_true| for non-finite estimates) */
+} sinew_stereo_scores;
+
+/* True disparity in px from stored codes: SINEW_U8/U16 1..4 channels (first channel
+ * read), d = code / scale, code 0 = unknown (NaN). *out receives a new SINEW_F32 map.
+ * scale > 0 (Middlebury 2003 quarter size: 4, Tsukuba: 16, Venus: 8, KITTI: 256). */
+int sinew_stereo_truth(sinew_ctx *ctx, sinew_image *out, const sinew_image *codes, double scale);
+
+/* Count errors of disparity est (SINEW_F32 1 channel) against truth (SINEW_F32, NaN =
+ * unknown) over pixels where region (optional SINEW_U8/U16, first channel) is non-zero.
+ * *out is overwritten. Rates: bad1 / pixels etc.; mean absolute error abs_sum / pixels.
+ * EINVAL / ESIZE. Serial per-row partial sums: deterministic. */
+int sinew_stereo_score(sinew_ctx *ctx, sinew_stereo_scores *out, const sinew_image *est,
+                       const sinew_image *truth, const sinew_image *region);
+
+/* Rectified stereo geometry for disparity -> depth: Z = fx * baseline / (d + doffs). */
+typedef struct sinew_stereo_calib {
+    double fx, fy, cx, cy; /* left camera (rectified), px */
+    double doffs;          /* x-difference of the principal points, cx(right) -
+                              cx(left), px (Middlebury 2014 convention) */
+    double baseline;       /* metres, > 0 */
+    int width, height;     /* calibration image size, 0 = unknown */
+} sinew_stereo_calib;
+
+/* Load a calibration JSON (docs/formats.md): {"left": {"fx","fy","cx","cy"},
+ * "right": {"fx","fy","cx","cy"}, "baseline": metres, optional "width", "height",
+ * "comment"}. Refuses with one message naming the file: unknown keys (ECONFIG),
+ * missing or non-finite values, focal length outside (0, 1e6) px, baseline outside
+ * (0, 100] m, focal lengths of the two cameras differing by more than 1 %, or
+ * cy differing by more than 1 px (not a rectified pair) (EVALUE). */
+int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const char *path);
+
+/* Depth z = fx * baseline / (d + doffs) in metres for every pixel of a SINEW_F32
+ * 1-channel disparity; NaN where mask (optional SINEW_U8, same size) is non-zero,
+ * where d is not finite or d <= 0, or where d + doffs <= 0. *z receives a newly
+ * allocated SINEW_F32 map. valid (may be NULL) receives the number of finite depths. */
+int sinew_stereo_depth(sinew_ctx *ctx, sinew_image *z, const sinew_image *disparity,
+                       const sinew_image *mask, const sinew_stereo_calib *calib, int64_t *valid);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

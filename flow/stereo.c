@@ -4,7 +4,7 @@
  * Woodfill, "Non-parametric local transforms for computing visual correspondence",
  * ECCV 1994).
  *
- *   1. frames -> luma (float), 9x7 census signature per pixel (62 bits, bit set where
+ *   1. frames -> luma (float), 5x5 census signature per pixel (24 bits, bit set where
  *      the neighbour is darker than the centre; coordinates clamped at the border);
  *   2. per band of rows: cost C(x, y, d) = Hamming distance between the left signature
  *      at x and the right one at x - d (uint8; candidates falling outside the right
@@ -31,8 +31,8 @@
 #include "flow/internal/base.h"
 #include "flow/internal/parallel.h"
 
-#define CENSUS_RX 4 /* 9x7 window (Hirschmüller, Buder, Ernst: census 9x7 on FPGAs, 2012) */
-#define CENSUS_RY 3
+#define CENSUS_RX 2 /* 5x5 window: 24 bits (measured against 9x7 and 7x7, docs/methods.md) */
+#define CENSUS_RY 2
 #define CENSUS_BITS ((2 * CENSUS_RX + 1) * (2 * CENSUS_RY + 1) - 1)
 #define BAND_OVERLAP 48 /* rows of run-up for vertical paths at band edges (our choice) */
 #define BIG_COST 0x3fff /* sentinel outside the disparity range; P1 + BIG fits uint16 */
@@ -46,8 +46,9 @@ void sinew_stereo_params_default(sinew_stereo_params *p)
     p->min_disparity = 0;
     p->num_disparities = 0;
     p->paths = 8;
-    p->p1 = 7;
+    p->p1 = 20;
     p->p2 = 100;
+    p->p2_edge = 4.0;
     p->lr_tolerance = 1.0;
     p->median = 1;
     p->memory_budget = (size_t)512 << 20;
@@ -93,6 +94,8 @@ static int check_params(sinew_ctx *ctx, const sinew_stereo_params *p)
         return sinew__fail(ctx, SINEW_EINVAL,
                            "stereo: penalties need 0 <= p1 <= p2 <= 1000 (got %d, %d)", p->p1,
                            p->p2);
+    if (!isfinite(p->p2_edge) || p->p2_edge < 0 || p->p2_edge > 255)
+        return sinew__fail(ctx, SINEW_EINVAL, "stereo: p2_edge must be within 0..255");
     if (!isfinite(p->lr_tolerance) || p->lr_tolerance < 0)
         return sinew__fail(ctx, SINEW_EINVAL, "stereo: lr_tolerance must be finite and >= 0");
     return SINEW_OK;
@@ -170,6 +173,8 @@ typedef struct band {
     int y0;             /* first image row of the band */
     uint8_t *c;         /* [h][w][nd] */
     uint16_t *s;        /* [h][w][nd] */
+    const float *g;     /* left luma of the band's first row ([h][w]) */
+    float p2_edge;      /* luma step (gray levels) above which P2 is reduced; 0 = never */
 } band;
 
 static void band_costs(band *b, const uint64_t *cl, const uint64_t *cr, int nt)
@@ -271,11 +276,21 @@ static void aggregate_dir(band *b, int dx, int dy, uint16_t *tmp, int p1, int p2
         int x, y;
         chain_start(i, w, h, dx, dy, &x, &y);
         uint16_t pmin = 0;
+        float gprev = 0;
         for (int k = 0; x >= 0 && x < w && y >= 0 && y < h; k++, x += dx, y += dy) {
             const size_t o = ((size_t)y * w + x) * nd;
+            const float gcur = b->g[(size_t)y * w + x];
             uint16_t *cur = l[k & 1];
+            int p2e = p2;
+            if (b->p2_edge > 0) {
+                const float step = fabsf(gcur - gprev);
+                if (step > b->p2_edge)
+                    p2e = (int)((float)p2 * b->p2_edge / step);
+                p2e = p2e < p1 ? p1 : p2e;
+            }
             pmin = k == 0 ? path_start(cur, b->c + o, nd)
-                          : path_step(cur, l[(k + 1) & 1], pmin, b->c + o, nd, p1, p2);
+                          : path_step(cur, l[(k + 1) & 1], pmin, b->c + o, nd, p1, p2e);
+            gprev = gcur;
             add_to(b->s + o, cur, nd);
         }
     }
@@ -545,7 +560,15 @@ int sinew_stereo_run(sinew_ctx *ctx, sinew_stereo_output *out, const sinew_image
             break;
         const int y0 = a - BAND_OVERLAP > 0 && nbands > 1 ? a - BAND_OVERLAP : 0;
         const int y1 = e + BAND_OVERLAP < h && nbands > 1 ? e + BAND_OVERLAP : h;
-        band b = {.w = w, .h = y1 - y0, .nd = nd, .dmin = dmin, .y0 = y0, .c = sc.c, .s = sc.s};
+        band b = {.w = w,
+                  .h = y1 - y0,
+                  .nd = nd,
+                  .dmin = dmin,
+                  .y0 = y0,
+                  .c = sc.c,
+                  .s = sc.s,
+                  .g = sc.gl + (size_t)y0 * w,
+                  .p2_edge = (float)p.p2_edge};
         band_costs(&b, sc.cl, sc.cr, nt);
         aggregate(&b, p.paths, sc.rowtmp, p.p1, p.p2, nt);
         band_winners(&b, a, e, sc.dl, sc.dr, sc.conf, nt);

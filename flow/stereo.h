@@ -22,8 +22,8 @@ extern "C" {
 #endif
 
 /* Parameters; sinew_stereo_params_default fills the documented defaults (or use
- * sinew_stereo_preset). Penalties are in census units (differing bits of a 9x7 census
- * window, 0..62). */
+ * sinew_stereo_preset). Penalties are in census units (differing bits of a 5x5 census
+ * window, 0..24). */
 typedef struct sinew_stereo_params {
     int min_disparity;    /* smallest disparity searched, px (may be negative). Default 0 */
     int num_disparities;  /* number searched (1..1024); 0 = automatic: width / 6 rounded up
@@ -31,8 +31,11 @@ typedef struct sinew_stereo_params {
     int paths;            /* aggregation directions: 4 (horizontal, vertical) or 8 (and
                              diagonals). Default 8 */
     int p1;               /* penalty for a disparity change of 1 px between neighbours.
-                             Default 7 */
+                             Default 20 */
     int p2;               /* penalty for larger changes. Default 100 */
+    double p2_edge;       /* intensity-adaptive P2 (Hirschmueller 2008): across a left luma
+                             step |dI| > p2_edge gray levels (0..255) the penalty is
+                             max(p1, p2 * p2_edge / |dI|); 0 = constant P2. Default 4 */
     double lr_tolerance;  /* left-right check: |dL(x) - dR(x - dL)| > tol is inconsistent,
                              px (>= 0). Default 1 */
     int median;           /* 1: 3x3 median of both disparity maps before the check. Default 1 */

@@ -118,7 +118,7 @@ int main(int argc, char **argv)
 {
     if (argc < 2) {
         fprintf(stderr, "usage: bench_stereo DATA_DIR [--runs N] [--preset P] [--p1 N] [--p2 N] "
-                        "[--paths N] [--budget MIB] [--save DIR]\n");
+                        "[--paths N] [--p2-edge G] [--budget MIB] [--save DIR]\n");
         return 2;
     }
     const char *data = argv[1], *save = NULL;
@@ -138,6 +138,8 @@ int main(int argc, char **argv)
             p.p1 = atoi(v);
         else if (!strcmp(k, "--p2"))
             p.p2 = atoi(v);
+        else if (!strcmp(k, "--p2-edge"))
+            p.p2_edge = atof(v);
         else if (!strcmp(k, "--paths"))
             p.paths = atoi(v);
         else if (!strcmp(k, "--budget"))

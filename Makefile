@@ -160,7 +160,7 @@ $(BUILD)/bench_%: $(BUILD)/obj/tools/bench_%.o $(LIB)
 	$(CC) $(LDFLAGS_ALL) -o $@ $< $(LIB) $(LIBS_ALL)
 
 bench: deps
-	@$(MAKE) --no-print-directory all $(BUILD)/bench_flow
+	@$(MAKE) --no-print-directory all $(BUILD)/bench_flow $(BUILD)/bench_stereo
 	@SINEW_BUILD=$(BUILD) tools/bench
 
 install: $(BIN) $(LIB)

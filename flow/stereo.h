@@ -137,6 +137,14 @@ int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const cha
 int sinew_stereo_depth(sinew_ctx *ctx, sinew_image *z, const sinew_image *disparity,
                        const sinew_image *mask, const sinew_stereo_calib *calib, int64_t *valid);
 
+/* Write a SINEW_F32 1-channel map (disparity in px or depth in m) by the path's
+ * extension, atomically: .npy (float32 H x W, NaN kept), .pfm (float, NaN kept) or .png
+ * (16-bit gray codes round(v * png_scale), 0 where v is NaN or <= 0 or the code would
+ * exceed 65535; KITTI disparity uses png_scale 256, millimetre depth 1000). Another
+ * extension is SINEW_EUNSUPPORTED naming the path. Needs io. */
+int sinew_stereo_write_map(sinew_ctx *ctx, const char *path, const sinew_image *map,
+                           double png_scale);
+
 #ifdef __cplusplus
 }
 #endif

@@ -15,6 +15,7 @@
 
 #include "flow/internal/base.h"
 #include "flow/internal/parallel.h"
+#include "flow/io.h"
 
 /* ---- true disparity and scores ---- */
 
@@ -257,5 +258,49 @@ int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const cha
                            path);
     st = calib_parse(ctx, calib, root, path);
     cJSON_Delete(root);
+    return st;
+}
+
+/* ---- writing maps ---- */
+
+static int has_ext(const char *path, const char *ext)
+{
+    const size_t n = strlen(path), e = strlen(ext);
+    if (n < e)
+        return 0;
+    for (size_t i = 0; i < e; i++)
+        if (tolower((unsigned char)path[n - e + i]) != ext[i])
+            return 0;
+    return 1;
+}
+
+int sinew_stereo_write_map(sinew_ctx *ctx, const char *path, const sinew_image *map,
+                           double png_scale)
+{
+    if (!ctx || !path || !is_map(map))
+        return ctx ? sinew__fail(ctx, SINEW_EINVAL, "stereo: a map is F32 with 1 channel")
+                   : SINEW_EINVAL;
+    if (has_ext(path, ".npy"))
+        return sinew_npy_write_image(ctx, path, map, 0);
+    if (has_ext(path, ".pfm"))
+        return sinew_pfm_write_image(ctx, path, map);
+    if (!has_ext(path, ".png"))
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: write .npy, .pfm or .png (16-bit)", path);
+    if (!isfinite(png_scale) || png_scale <= 0)
+        return sinew__fail(ctx, SINEW_EINVAL, "%s: the PNG scale must be > 0", path);
+    sinew_image codes;
+    int st = sinew_image_alloc(ctx, &codes, map->width, map->height, 1, SINEW_U16);
+    if (st)
+        return st;
+    for (int y = 0; y < map->height; y++) {
+        const float *v = sinew_image_row_f32(map, y);
+        uint16_t *o = sinew_image_row_u16(&codes, y);
+        for (int x = 0; x < map->width; x++) {
+            const double c = isfinite(v[x]) && v[x] > 0 ? floor((double)v[x] * png_scale + 0.5) : 0;
+            o[x] = c >= 1 && c <= 65535 ? (uint16_t)c : 0;
+        }
+    }
+    st = sinew_image_write_png(ctx, path, &codes);
+    sinew_image_free(&codes);
     return st;
 }

@@ -1,0 +1,128 @@
+# SPDX-License-Identifier: MIT
+# End-to-end tests of `sinew stereo`: a synthetic pair shifted by a known disparity (made
+# and read back with the Python standard library, so the checks do not rely on sinew's own
+# readers), the check folder, depth from a calibration against the formula worked by hand,
+# one-line errors with no partial output, and the same bytes for 1 and 2 threads.
+. tests/cli/lib.sh
+
+if "$SINEW_BIN" stereo --help | tail -n 3 | grep -q "not a medical device"; then
+    pass "stereo --help ends with the notice"
+else fail "stereo --help ends with the notice" "notice missing"; fi
+
+# Left: smooth random texture 160x60; right(x) = left(x + 5): disparity 5 everywhere
+# (left x < 5 leaves the right frame). Wider right frame for the size error.
+"$PYTHON" - "$T" <<'EOF'
+import random, sys
+t = sys.argv[1]
+random.seed(7)
+W, H, D = 160, 60, 5
+tex = [[random.randrange(256) for _ in range(W + D)] for _ in range(H)]
+def pgm(path, rows, w):
+    with open(path, 'wb') as f:
+        f.write(b'P5\n%d %d\n255\n' % (w, len(rows)))
+        for r in rows:
+            f.write(bytes(r[:w]))
+pgm(t + '/l.pgm', [r[:W] for r in tex], W)
+pgm(t + '/wide.pgm', tex, W + D)
+EOF
+# right(x) = left(x + 5) (the last column repeats where x + 5 leaves the left frame)
+"$PYTHON" - "$T" <<'EOF'
+import sys
+t = sys.argv[1]
+b = open(t + '/l.pgm', 'rb').read()
+hdr = b'P5\n160 60\n255\n'
+px = b[len(hdr):]
+W, H, D = 160, 60, 5
+out = bytearray()
+for y in range(H):
+    row = px[y * W:(y + 1) * W]
+    out += bytes(row[min(x + D, W - 1)] for x in range(W))
+open(t + '/r.pgm', 'wb').write(hdr + bytes(out))
+EOF
+
+cat >"$T/read.py" <<'EOF'
+import struct, sys
+def pfm(path):
+    f = open(path, 'rb')
+    kind = f.readline().strip(); w, h = map(int, f.readline().split()); s = float(f.readline())
+    n = w * h
+    v = struct.unpack(('<' if s < 0 else '>') + 'f' * n, f.read(4 * n))
+    return w, h, [v[(h - 1 - y) * w:(h - y) * w] for y in range(h)]  # PFM rows bottom-up
+def npy(path):
+    b = open(path, 'rb').read()
+    n = struct.unpack('<H', b[8:10])[0]; hdr = b[10:10 + n].decode()
+    assert "'<f4'" in hdr, hdr
+    shape = eval(hdr)['shape']; h, w = shape
+    v = struct.unpack('<' + 'f' * (w * h), b[10 + n:10 + n + 4 * w * h])
+    return w, h, [v[y * w:(y + 1) * w] for y in range(h)]
+EOF
+
+if "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/d.pfm" --right "$T/rd.npy" \
+    --check "$T/chk" --disparities 16 >"$T/out" 2>"$T/err"; then
+    pass "stereo runs on a synthetic pair"
+else fail "stereo runs on a synthetic pair" "$(head -c 300 "$T/err")"; fi
+
+# interior pixels (x >= 12, away from the census window at the border) get 5 +- 0.2
+if "$PYTHON" - "$T" <<'EOF'
+import sys; sys.path.insert(0, sys.argv[1]); from read import pfm, npy
+w, h, d = pfm(sys.argv[1] + '/d.pfm')
+vals = [d[y][x] for y in range(h) for x in range(12, w)]
+good = sum(abs(v - 5) <= 0.2 for v in vals)
+assert good >= 0.99 * len(vals), (good, len(vals))
+assert all(v == v for row in d for v in row)  # filled: no NaN in the left map
+w, h, r = npy(sys.argv[1] + '/rd.npy')
+inner = [r[y][x] for y in range(h) for x in range(8, w - 12)]
+assert sum(abs(v - 5) <= 0.2 for v in inner) >= 0.99 * len(inner)
+EOF
+then pass "disparity 5 recovered (left .pfm, right .npy)"
+else fail "disparity 5 recovered (left .pfm, right .npy)" "values off"; fi
+
+ok=1
+for f in mask.png confidence.npy disparity.png reasons.png stereo.json; do
+    [ -s "$T/chk/$f" ] || { ok=0; fail "check folder" "$f missing"; }
+done
+[ $ok = 1 ] && pass "check folder has mask, confidence, pictures, stereo.json"
+if "$PYTHON" -c "import json,sys; j=json.load(open(sys.argv[1])); assert j['pixels']==9600 and j['kept']+j['filled']==9600 and j['reasons']['outside']+j['reasons']['fb_inconsistent']>=4*60" "$T/chk/stereo.json"; then
+    pass "stereo.json counts"
+else fail "stereo.json counts" "$(cat "$T/chk/stereo.json")"; fi
+
+# depth: Z = fx B / (d + doffs) (Middlebury 2014 convention, doffs = cx_right - cx_left),
+# by hand: 500 px * 0.2 m / (5 + 5) px = 10 m.
+cat >"$T/cal.json" <<'EOF'
+{"left": {"fx": 500, "fy": 500, "cx": 80, "cy": 30},
+ "right": {"fx": 500, "fy": 500, "cx": 85, "cy": 30}, "baseline": 0.2}
+EOF
+if "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/d2.png" --disparities 16 --calib "$T/cal.json" \
+    --depth "$T/z.npy" >"$T/out" 2>"$T/err" && "$PYTHON" - "$T" <<'EOF'
+import sys; sys.path.insert(0, sys.argv[1]); from read import npy
+w, h, z = npy(sys.argv[1] + '/z.npy')
+inner = [z[y][x] for y in range(h) for x in range(12, w)]
+assert sum(abs(v - 10) <= 0.2 for v in inner) >= 0.99 * len(inner), inner[:5]
+assert all(z[y][x] != z[y][x] for y in range(h) for x in range(3))  # rejected: NaN
+EOF
+then pass "depth from the calibration (10 m by hand)"
+else fail "depth from the calibration (10 m by hand)" "$(head -c 300 "$T/err")"; fi
+
+expect_ok "one thread" "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/t1.pfm" --disparities 16 --threads 1
+expect_ok "two threads" "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/t2.pfm" --disparities 16 --threads 2
+if cmp -s "$T/t1.pfm" "$T/t2.pfm"; then pass "same bytes for 1 and 2 threads"
+else fail "same bytes for 1 and 2 threads" "outputs differ"; fi
+
+# errors: one line, exit non-zero, no output left behind
+expect_error "frames of different sizes" "$T/e1.pfm" "wide.pgm: 165x60" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/wide.pgm" -o "$T/e1.pfm"
+expect_error "missing frame" "$T/e2.pfm" "nope.png" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/nope.png" -o "$T/e2.pfm"
+printf '{"left": {"fx": 500, "fy": 500, "cx": 80, "cy": 30}, "right": {"fx": 500, "fy": 500, "cx": 80, "cy": 30}, "baseline": 120}' >"$T/bad.json"
+expect_error "impossible baseline" "$T/e3.pfm" "bad.json: impossible baseline" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e3.pfm" --calib "$T/bad.json" --depth "$T/e3.npy"
+printf '{"left": {"fx": 0, "fy": 500, "cx": 80, "cy": 30}, "right": {"fx": 500, "fy": 500, "cx": 80, "cy": 30}, "baseline": 0.1}' >"$T/bad2.json"
+expect_error "impossible focal length" "$T/e4.pfm" "bad2.json: impossible focal length" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e4.pfm" --calib "$T/bad2.json"
+expect_error "unsupported output" "$T/e5.txt" "e5.txt: write .npy, .pfm or .png" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e5.txt" --disparities 16
+expect_error "--depth without --calib" "$T/e6.pfm" "needs --calib" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e6.pfm" --depth "$T/e6.npy"
+expect_error "unknown preset" "$T/e7.pfm" "fast or balanced" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e7.pfm" --preset slow
+expect_error "one frame" - "two frames" "$SINEW_BIN" stereo "$T/l.pgm" -o "$T/e8.pfm"

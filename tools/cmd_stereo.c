@@ -1,0 +1,355 @@
+/* SPDX-License-Identifier: MIT */
+/* sinew stereo: dense disparity of a rectified pair (flow/stereo.h), optionally the
+ * right view's disparity, the left-right check folder (mask, confidence, pictures with
+ * labelled colour bars, stereo.json) and depth from a calibration file. */
+#define _POSIX_C_SOURCE 200809L
+#include <errno.h>
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "flow/sinew.h"
+#include "tools/cli.h"
+
+static const char *CMD = "stereo";
+
+static void usage(FILE *out)
+{
+    fprintf(out,
+            "usage: sinew stereo LEFT RIGHT -o DISP [--right RDISP] [--check DIR]\n"
+            "                    [--calib FILE --depth DEPTH] [--preset fast|balanced] [options]\n"
+            "\n"
+            "Dense disparity of a rectified stereo pair by semi-global matching on census\n"
+            "costs, with a left-right consistency check. A left pixel (x, y) with disparity\n"
+            "d matches the right pixel (x - d, y). Frames: PNG, JPEG, PGM/PPM, same size.\n"
+            "Outputs by extension: .pfm or .npy (float32, px) or .png (16-bit, value =\n"
+            "disparity x 256, 0 = none, the KITTI convention). DISP has a value at every\n"
+            "pixel: pixels the check rejects are filled from the background side (the\n"
+            "check folder's mask.png still marks them).\n"
+            "\n"
+            "options:\n"
+            "  -o, --output DISP         left-view disparity (required)\n"
+            "  --right RDISP             right-view disparity (NaN / 0 where rejected)\n"
+            "  --check DIR               folder: mask.png (0 kept; 1 left-right inconsistent,\n"
+            "                            2 match outside the right frame, 64 unknown),\n"
+            "                            confidence.npy, disparity.png and reasons.png\n"
+            "                            (pictures), depth.png with --calib, stereo.json\n"
+            "  --calib FILE              rectified calibration JSON (docs/formats.md)\n"
+            "  --depth DEPTH             depth z = fx B / (d + doffs): .npy/.pfm in metres\n"
+            "                            (NaN invalid) or .png 16-bit millimetres (0 invalid);\n"
+            "                            invalid where the check rejects or d <= 0\n"
+            "  --preset P                fast (4 paths) or balanced (8 paths, default)\n"
+            "  --disparities N           number of disparities searched (default: width/6\n"
+            "                            rounded up to a multiple of 16, at most 256)\n"
+            "  --min-disparity N         smallest disparity searched (default 0)\n"
+            "  --p1 N --p2 N             smoothness penalties in census bits (default 20, 100)\n"
+            "  --lr-tolerance PX         left-right check tolerance (default 1)\n"
+            "  --threads N               worker threads (0 = all cores, default)\n"
+            "  -h, --help                this help\n"
+            "\n"
+            "examples:\n"
+            "  sinew stereo left.png right.png -o disp.pfm --check out/stereo\n"
+            "  sinew stereo l.png r.png -o disp.png --calib rig.json --depth depth.png\n"
+            "\n%s",
+            cli_notice);
+}
+
+enum {
+    OPT_RIGHT = 256,
+    OPT_CHECK,
+    OPT_CALIB,
+    OPT_DEPTH,
+    OPT_PRESET,
+    OPT_NDISP,
+    OPT_MINDISP,
+    OPT_P1,
+    OPT_P2,
+    OPT_LRTOL,
+    OPT_THREADS
+};
+
+static int make_dir(const char *dir)
+{
+    if (mkdir(dir, 0777) != 0 && errno != EEXIST)
+        return cli_error(CMD, "%s: cannot create folder: %s", dir, strerror(errno));
+    struct stat st;
+    if (stat(dir, &st) != 0 || !S_ISDIR(st.st_mode))
+        return cli_error(CMD, "%s: not a folder", dir);
+    return 0;
+}
+
+static int join(char *buf, size_t n, const char *dir, const char *name)
+{
+    if ((size_t)snprintf(buf, n, "%s/%s", dir, name) >= n)
+        return cli_error(CMD, "%s: path too long", dir);
+    return 0;
+}
+
+/* stereo.json: parameters and counts. */
+static int write_json(sinew_ctx *ctx, const char *path, const sinew_stereo_params *p,
+                      const sinew_stereo_stats *s, const char *preset)
+{
+    sinew_outfile *f;
+    int st = sinew_outfile_open(ctx, &f, path);
+    if (st)
+        return st;
+    FILE *o = sinew_outfile_stream(f);
+    fprintf(o,
+            "{\n  \"preset\": \"%s\",\n  \"min_disparity\": %d,\n  \"num_disparities\": %d,\n"
+            "  \"paths\": %d,\n  \"p1\": %d,\n  \"p2\": %d,\n  \"p2_edge\": %.17g,\n"
+            "  \"lr_tolerance\": %.17g,\n  \"median\": %d,\n  \"bands\": %d,\n"
+            "  \"pixels\": %lld,\n  \"kept\": %lld,\n  \"filled\": %lld,\n  \"reasons\": {",
+            preset, s->min_disparity, s->num_disparities, p->paths, p->p1, p->p2, p->p2_edge,
+            p->lr_tolerance, p->median, s->bands, (long long)s->pixels, (long long)s->kept,
+            (long long)s->filled);
+    for (int b = 0; b < SINEW_MASK_NBITS; b++)
+        fprintf(o, "%s\"%s\": %lld", b ? ", " : "", sinew_check_bit_name(b),
+                (long long)s->reason[b]);
+    fprintf(o, "}\n}\n");
+    return sinew_outfile_commit(ctx, f);
+}
+
+/* Heatmap picture of a map with a labelled colour bar. */
+static int picture(sinew_ctx *ctx, const char *path, const sinew_image *map, double lo, double hi,
+                   const char *label)
+{
+    sinew_image pic;
+    int st = sinew_draw_heatmap(ctx, &pic, map, lo, hi, label, 1);
+    if (!st)
+        st = sinew_image_write_png(ctx, path, &pic);
+    sinew_image_free(&pic);
+    return st;
+}
+
+typedef struct job {
+    const char *left, *right, *out, *rout, *check, *calib, *depth, *preset;
+} job;
+
+static int write_check(sinew_ctx *ctx, const job *j, const sinew_stereo_output *o,
+                       const sinew_image *frame, const sinew_image *z, const sinew_stereo_params *p)
+{
+    char path[4096];
+    int st;
+    if (make_dir(j->check))
+        return CLI_FAIL;
+    sinew_image pic = {0};
+    const double lo = o->stats.min_disparity, hi = lo + o->stats.num_disparities - 1;
+    if (join(path, sizeof path, j->check, "mask.png"))
+        return CLI_FAIL;
+    if ((st = sinew_image_write_png(ctx, path, o->mask)))
+        return cli_status(CMD, ctx, st);
+    if (join(path, sizeof path, j->check, "confidence.npy"))
+        return CLI_FAIL;
+    if ((st = sinew_npy_write_image(ctx, path, o->confidence, 0)))
+        return cli_status(CMD, ctx, st);
+    if (join(path, sizeof path, j->check, "disparity.png"))
+        return CLI_FAIL;
+    if ((st = picture(ctx, path, o->disparity, lo, hi, "DISPARITY (PX)")))
+        return cli_status(CMD, ctx, st);
+    if (join(path, sizeof path, j->check, "reasons.png"))
+        return CLI_FAIL;
+    st = sinew_draw_reasons(ctx, &pic, frame, o->mask, 1);
+    if (!st)
+        st = sinew_image_write_png(ctx, path, &pic);
+    sinew_image_free(&pic);
+    if (st)
+        return cli_status(CMD, ctx, st);
+    if (z) {
+        if (join(path, sizeof path, j->check, "depth.png"))
+            return CLI_FAIL;
+        /* 0 to twice the median depth: a few far pixels (d near 0) would flatten the rest */
+        double med = NAN;
+        if ((st = sinew_depth_median(ctx, z, &med, NULL)))
+            return cli_status(CMD, ctx, st);
+        if ((st = picture(ctx, path, z, 0, isfinite(med) ? 2 * med : 0, "DEPTH (M)")))
+            return cli_status(CMD, ctx, st);
+    }
+    if (join(path, sizeof path, j->check, "stereo.json"))
+        return CLI_FAIL;
+    if ((st = write_json(ctx, path, p, &o->stats, j->preset)))
+        return cli_status(CMD, ctx, st);
+    return CLI_OK;
+}
+
+static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
+{
+    int rc = CLI_FAIL, st;
+    sinew_image l = {0}, r = {0}, d = {0}, rd = {0}, m = {0}, c = {0}, z = {0};
+    sinew_stereo_calib calib;
+    if (j->calib && (st = sinew_stereo_calib_load(ctx, &calib, j->calib))) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    if ((st = sinew_image_read(ctx, &l, j->left)) || (st = sinew_image_read(ctx, &r, j->right))) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    if (l.width != r.width || l.height != r.height) {
+        cli_error(CMD, "%s: %dx%d, but %s is %dx%d", j->right, r.width, r.height, j->left, l.width,
+                  l.height);
+        goto done;
+    }
+    if (j->calib && calib.width && (calib.width != l.width || calib.height != l.height)) {
+        cli_error(CMD, "%s: calibrated for %dx%d, frames are %dx%d", j->calib, calib.width,
+                  calib.height, l.width, l.height);
+        goto done;
+    }
+    if ((st = sinew_image_alloc(ctx, &d, l.width, l.height, 1, SINEW_F32)) ||
+        (st = sinew_image_alloc(ctx, &rd, l.width, l.height, 1, SINEW_F32)) ||
+        (st = sinew_image_alloc(ctx, &m, l.width, l.height, 1, SINEW_U8)) ||
+        (st = sinew_image_alloc(ctx, &c, l.width, l.height, 1, SINEW_F32))) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    sinew_stereo_output o = {.disparity = &d, .right = &rd, .mask = &m, .confidence = &c};
+    if ((st = sinew_stereo_run(ctx, &o, &l, &r, p))) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    int64_t valid = 0;
+    if (j->calib && (st = sinew_stereo_depth(ctx, &z, &d, &m, &calib, &valid))) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    if ((st = sinew_stereo_write_map(ctx, j->out, &d, 256.0)) ||
+        (j->rout && (st = sinew_stereo_write_map(ctx, j->rout, &rd, 256.0))) ||
+        (j->depth && (st = sinew_stereo_write_map(ctx, j->depth, &z, 1000.0)))) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    if (j->check && write_check(ctx, j, &o, &l, j->calib ? &z : NULL, p))
+        goto done;
+    printf("%s: %dx%d, disparities %d..%d, kept %.1f%% (left-right inconsistent %.1f%%, "
+           "outside %.1f%%)%s",
+           j->out, l.width, l.height, o.stats.min_disparity,
+           o.stats.min_disparity + o.stats.num_disparities - 1,
+           100.0 * (double)o.stats.kept / (double)o.stats.pixels,
+           100.0 * (double)o.stats.reason[0] / (double)o.stats.pixels,
+           100.0 * (double)o.stats.reason[1] / (double)o.stats.pixels, j->calib ? "" : "\n");
+    if (j->calib)
+        printf(", depth valid %.1f%%\n", 100.0 * (double)valid / (double)o.stats.pixels);
+    rc = CLI_OK;
+done:;
+    sinew_image *all[] = {&l, &r, &d, &rd, &m, &c, &z};
+    for (size_t i = 0; i < sizeof all / sizeof all[0]; i++)
+        sinew_image_free(all[i]);
+    return rc;
+}
+
+static int parse_int(const char *opt, const char *arg, long lo, long hi, int *out)
+{
+    long v;
+    if (cli_parse_int(arg, lo, hi, &v))
+        return cli_usage_error(CMD, "%s needs an integer %ld..%ld, got '%s'", opt, lo, hi, arg);
+    *out = (int)v;
+    return 0;
+}
+
+int cmd_stereo(int argc, char **argv)
+{
+    static const struct option opts[] = {
+        {"output", required_argument, NULL, 'o'},
+        {"right", required_argument, NULL, OPT_RIGHT},
+        {"check", required_argument, NULL, OPT_CHECK},
+        {"calib", required_argument, NULL, OPT_CALIB},
+        {"depth", required_argument, NULL, OPT_DEPTH},
+        {"preset", required_argument, NULL, OPT_PRESET},
+        {"disparities", required_argument, NULL, OPT_NDISP},
+        {"min-disparity", required_argument, NULL, OPT_MINDISP},
+        {"p1", required_argument, NULL, OPT_P1},
+        {"p2", required_argument, NULL, OPT_P2},
+        {"lr-tolerance", required_argument, NULL, OPT_LRTOL},
+        {"threads", required_argument, NULL, OPT_THREADS},
+        {"help", no_argument, NULL, 'h'},
+        {NULL, 0, NULL, 0},
+    };
+    job j = {.preset = "balanced"};
+    sinew_stereo_params p;
+    sinew_stereo_params_default(&p);
+    int ndisp = -1, mindisp = 0, p1 = -1, p2 = -1, threads = 0, c, bad;
+    double lrtol = -1;
+    optind = 0;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, ":ho:", opts, NULL)) != -1) {
+        bad = 0;
+        switch (c) {
+        case 'h':
+            usage(stdout);
+            return CLI_OK;
+        case 'o':
+            j.out = optarg;
+            break;
+        case OPT_RIGHT:
+            j.rout = optarg;
+            break;
+        case OPT_CHECK:
+            j.check = optarg;
+            break;
+        case OPT_CALIB:
+            j.calib = optarg;
+            break;
+        case OPT_DEPTH:
+            j.depth = optarg;
+            break;
+        case OPT_PRESET:
+            if (sinew_stereo_preset(&p, optarg))
+                return cli_usage_error(CMD, "--preset must be fast or balanced, got '%s'", optarg);
+            j.preset = optarg;
+            break;
+        case OPT_NDISP:
+            bad = parse_int("--disparities", optarg, 1, 1024, &ndisp);
+            break;
+        case OPT_MINDISP:
+            bad = parse_int("--min-disparity", optarg, -1024, 1024, &mindisp);
+            break;
+        case OPT_P1:
+            bad = parse_int("--p1", optarg, 0, 1000, &p1);
+            break;
+        case OPT_P2:
+            bad = parse_int("--p2", optarg, 0, 1000, &p2);
+            break;
+        case OPT_LRTOL:
+            if (cli_parse_double(optarg, &lrtol) || !(lrtol >= 0) || !isfinite(lrtol))
+                return cli_usage_error(CMD, "--lr-tolerance needs a number >= 0, got '%s'", optarg);
+            break;
+        case OPT_THREADS:
+            bad = parse_int("--threads", optarg, 0, 4096, &threads);
+            break;
+        case ':':
+            return cli_usage_error(CMD, "option %s needs a value", argv[optind - 1]);
+        default:
+            return cli_usage_error(CMD, "unknown option '%s'", argv[optind - 1]);
+        }
+        if (bad)
+            return bad;
+    }
+    if (argc - optind != 2)
+        return cli_usage_error(CMD, "needs two frames: LEFT RIGHT");
+    j.left = argv[optind];
+    j.right = argv[optind + 1];
+    if (!j.out)
+        return cli_usage_error(CMD, "-o DISP is required");
+    if (j.depth && !j.calib)
+        return cli_usage_error(CMD, "--depth needs --calib FILE");
+    /* explicit options override the preset, whichever order they came in */
+    if (ndisp > 0)
+        p.num_disparities = ndisp;
+    p.min_disparity = mindisp;
+    if (p1 >= 0)
+        p.p1 = p1;
+    if (p2 >= 0)
+        p.p2 = p2;
+    if (lrtol >= 0)
+        p.lr_tolerance = lrtol;
+    if (p.p2 < p.p1)
+        return cli_usage_error(CMD, "--p2 must be >= --p1 (got %d < %d)", p.p2, p.p1);
+    sinew_ctx *ctx = cli_ctx(CMD, threads);
+    if (!ctx)
+        return CLI_FAIL;
+    const int rc = run(ctx, &j, &p);
+    sinew_ctx_free(ctx);
+    return rc;
+}

@@ -127,6 +127,7 @@ static int check_out(sinew_ctx *ctx, const sinew_image *im, int w, int h, sinew_
 
 static void luma(const sinew_image *img, float *g, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     const int w = img->width, h = img->height, c = img->channels;
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
@@ -146,6 +147,7 @@ static void luma(const sinew_image *img, float *g, int nt)
 
 static void census(const float *g, uint64_t *cs, int w, int h, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
         for (int x = 0; x < w; x++) {
@@ -179,6 +181,7 @@ typedef struct band {
 
 static void band_costs(band *b, const uint64_t *cl, const uint64_t *cr, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     const int w = b->w, nd = b->nd;
     SINEW_PARALLEL_FOR(nt)
     for (int yb = 0; yb < b->h; yb++) {
@@ -265,6 +268,7 @@ static void chain_start(int i, int w, int h, int dx, int dy, int *x, int *y)
  * chain: disjoint writes). tmp: per thread 2 * (nd + 2) uint16. */
 static void aggregate_dir(band *b, int dx, int dy, uint16_t *tmp, int p1, int p2, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     const int w = b->w, h = b->h, nd = b->nd;
     const size_t stride = (size_t)nd + 2;
     const int nchains = (dy ? w : 0) + (dx ? (dy ? h - 1 : h) : 0);
@@ -299,6 +303,7 @@ static void aggregate_dir(band *b, int dx, int dy, uint16_t *tmp, int p1, int p2
 /* All paths of one band: S = sum over directions of Lr. */
 static void aggregate(band *b, int paths, uint16_t *tmp, int p1, int p2, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     static const int dirs[8][2] = {{1, 0}, {-1, 0}, {0, 1},  {0, -1},
                                    {1, 1}, {-1, 1}, {1, -1}, {-1, -1}};
     const size_t row = (size_t)b->w * b->nd;
@@ -324,6 +329,7 @@ static float parabola(int d, int nd, const uint16_t *sm, const uint16_t *s0, con
 /* Left and right winners for the band rows [a, b) (image rows), written to full maps. */
 static void band_winners(const band *b, int a, int e, float *dl, float *dr, float *conf, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     const int w = b->w, nd = b->nd;
     SINEW_PARALLEL_FOR(nt)
     for (int y = a; y < e; y++) {
@@ -371,6 +377,7 @@ static void band_winners(const band *b, int a, int e, float *dl, float *dr, floa
 
 static void median3(float *dst, const float *src, int w, int h, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
         for (int x = 0; x < w; x++) {
@@ -410,6 +417,7 @@ static int nearest_index(float x, int w)
 static void check_fill(float *dl, float *dr, uint8_t *mask, const float *dl_raw, int w, int h,
                        int dmin, double tol, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
         float *l = dl + (size_t)y * w;

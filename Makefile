@@ -70,6 +70,7 @@ endif
 VEC_FLAGS := $(shell $(CC) -fvect-cost-model=cheap -E -x c /dev/null >/dev/null 2>&1 && \
                echo -fvect-cost-model=cheap) -fno-math-errno
 $(BUILD)/obj/flow/variational.o: CFLAGS_ALL += $(VEC_FLAGS)
+$(BUILD)/obj/flow/stereo.o: CFLAGS_ALL += $(VEC_FLAGS)
 
 LIB_SRC  := $(sort $(wildcard flow/*.c))
 TOOL_SRC := $(filter-out tools/bench_%.c,$(sort $(wildcard tools/*.c)))

@@ -25,6 +25,7 @@
  * for the rows of one band (C and S), bands chosen from params.memory_budget. */
 #include "flow/stereo.h"
 
+#include <stdlib.h>
 #include <math.h>
 #include <string.h>
 
@@ -216,19 +217,20 @@ static void band_costs(band *b, const uint64_t *cl, const uint64_t *cr, int nt)
 static uint16_t path_step(uint16_t *restrict out, const uint16_t *restrict prev, uint16_t pmin,
                           const uint8_t *restrict c, int nd, int p1, int p2)
 {
-    const int jump = pmin + p2;
-    int mn = BIG_COST;
+    /* all in 16 bits (values stay below BIG_COST + P2 + 24) so the loops vectorise */
+    const uint16_t jump = (uint16_t)(pmin + p2), q1 = (uint16_t)p1;
     for (int d = 0; d < nd; d++) {
-        int v = prev[d];
-        const int a = prev[d - 1] + p1, b = prev[d + 1] + p1;
+        uint16_t v = prev[d];
+        const uint16_t a = (uint16_t)(prev[d - 1] + q1), b = (uint16_t)(prev[d + 1] + q1);
         v = a < v ? a : v;
         v = b < v ? b : v;
         v = jump < v ? jump : v;
-        v = c[d] + v - pmin;
-        out[d] = (uint16_t)v;
-        mn = v < mn ? v : mn;
+        out[d] = (uint16_t)(c[d] + v - pmin);
     }
-    return (uint16_t)mn;
+    uint16_t mn = BIG_COST;
+    for (int d = 0; d < nd; d++)
+        mn = out[d] < mn ? out[d] : mn;
+    return mn;
 }
 
 /* First pixel of a path: Lr = C. */
@@ -266,7 +268,7 @@ static void chain_start(int i, int w, int h, int dx, int dy, int *x, int *y)
 /* Add the path costs Lr of direction (dx, dy) into S. Every path is a chain of pixels
  * independent of the others, so chains run in parallel (each pixel on exactly one
  * chain: disjoint writes). tmp: per thread 2 * (nd + 2) uint16. */
-static void aggregate_dir(band *b, int dx, int dy, uint16_t *tmp, int p1, int p2, int nt)
+static void aggregate_dir(band *b, int dx, int dy, int first, uint16_t *tmp, int p1, int p2, int nt)
 {
     (void)nt; /* unused without OpenMP */
     const int w = b->w, h = b->h, nd = b->nd;
@@ -295,7 +297,10 @@ static void aggregate_dir(band *b, int dx, int dy, uint16_t *tmp, int p1, int p2
             pmin = k == 0 ? path_start(cur, b->c + o, nd)
                           : path_step(cur, l[(k + 1) & 1], pmin, b->c + o, nd, p1, p2e);
             gprev = gcur;
-            add_to(b->s + o, cur, nd);
+            if (first)
+                memcpy(b->s + o, cur, (size_t)nd * sizeof *cur);
+            else
+                add_to(b->s + o, cur, nd);
         }
     }
 }
@@ -303,15 +308,11 @@ static void aggregate_dir(band *b, int dx, int dy, uint16_t *tmp, int p1, int p2
 /* All paths of one band: S = sum over directions of Lr. */
 static void aggregate(band *b, int paths, uint16_t *tmp, int p1, int p2, int nt)
 {
-    (void)nt; /* unused without OpenMP */
     static const int dirs[8][2] = {{1, 0}, {-1, 0}, {0, 1},  {0, -1},
                                    {1, 1}, {-1, 1}, {1, -1}, {-1, -1}};
-    const size_t row = (size_t)b->w * b->nd;
-    SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < b->h; y++)
-        memset(b->s + (size_t)y * row, 0, row * sizeof *b->s);
+    /* the first direction (left to right: one path per row) stores, the others add */
     for (int r = 0; r < paths; r++)
-        aggregate_dir(b, dirs[r][0], dirs[r][1], tmp, p1, p2, nt);
+        aggregate_dir(b, dirs[r][0], dirs[r][1], r == 0, tmp, p1, p2, nt);
 }
 
 /* ---- step 4: winner-take-all ---- */
@@ -550,8 +551,8 @@ int sinew_stereo_run(sinew_ctx *ctx, sinew_stereo_output *out, const sinew_image
         !(sc.dr = sinew__calloc(ctx, npx, sizeof(float))) ||
         !(sc.conf = sinew__calloc(ctx, npx, sizeof(float))) ||
         !(sc.dtmp = sinew__calloc(ctx, npx, sizeof(float))) ||
-        !(sc.mask = sinew__calloc(ctx, npx, 1)) || !(sc.c = sinew__calloc(ctx, vol, 1)) ||
-        !(sc.s = sinew__calloc(ctx, vol, sizeof(uint16_t))) ||
+        !(sc.mask = sinew__calloc(ctx, npx, 1)) || !(sc.c = sinew__alloc(ctx, vol)) ||
+        !(sc.s = sinew__alloc(ctx, vol * sizeof(uint16_t))) || /* fully written per band */
         !(sc.rowtmp = sinew__calloc(ctx, (size_t)nthr * 2, stride * sizeof(uint16_t)))) {
         scratch_free(ctx, &sc);
         return SINEW_ENOMEM;
@@ -621,5 +622,145 @@ int sinew_stereo_run(sinew_ctx *ctx, sinew_stereo_output *out, const sinew_image
         }
     }
     scratch_free(ctx, &sc);
+    return SINEW_OK;
+}
+
+/* ---- rectification test ----
+ * Features: in each OFF_CELL x OFF_CELL cell the pixel with the largest smallest
+ * eigenvalue of the 5x5 structure tensor (Shi & Tomasi, CVPR 1994), if it is textured
+ * at all. Each is matched in the right frame over the disparity range and +-search_y
+ * rows by the summed census Hamming distance over a 7x7 block; a match counts when its
+ * cost is below OFF_RATIO times the best cost at least 2 px away (ratio test, Lowe, IJCV
+ * 2004) and it is not on the edge of the search window. The answer is the median
+ * vertical offset of the counted matches. */
+#define OFF_CELL 24    /* px between features (our choice) */
+#define OFF_BLOCK 3    /* 7x7 block of census signatures */
+#define OFF_RATIO 0.8  /* common practice for the ratio test */
+#define OFF_MIN_EIG 25 /* (gray level / px)^2 summed over 5x5: flat cells are skipped */
+
+static double min_eig(const float *g, int w, int x, int y)
+{
+    double a = 0, b = 0, c = 0;
+    for (int j = -2; j <= 2; j++)
+        for (int i = -2; i <= 2; i++) {
+            const float *p = g + (size_t)(y + j) * w + x + i;
+            const double gx = 0.5 * (p[1] - p[-1]), gy = 0.5 * (p[w] - p[-w]);
+            a += gx * gx;
+            b += gx * gy;
+            c += gy * gy;
+        }
+    return 0.5 * (a + c - sqrt((a - c) * (a - c) + 4 * b * b));
+}
+
+static int block_cost(const uint64_t *cl, const uint64_t *cr, int w, int xl, int yl, int xr, int yr)
+{
+    int s = 0;
+    for (int j = -OFF_BLOCK; j <= OFF_BLOCK; j++)
+        for (int i = -OFF_BLOCK; i <= OFF_BLOCK; i++)
+            s += __builtin_popcountll(cl[(size_t)(yl + j) * w + xl + i] ^
+                                      cr[(size_t)(yr + j) * w + xr + i]);
+    return s;
+}
+
+static int cmp_float(const void *a, const void *b)
+{
+    const float x = *(const float *)a, y = *(const float *)b;
+    return (x > y) - (x < y);
+}
+
+int sinew_stereo_vertical_offset(sinew_ctx *ctx, const sinew_image *left, const sinew_image *right,
+                                 int min_disparity, int num_disparities, int search_y, double *dy,
+                                 int *matched)
+{
+    if (!ctx || !dy || !matched)
+        return SINEW_EINVAL;
+    *dy = 0;
+    *matched = 0;
+    int st;
+    if ((st = check_frame(ctx, left, "left")) || (st = check_frame(ctx, right, "right")))
+        return st;
+    const int w = left->width, h = left->height;
+    if (right->width != w || right->height != h)
+        return sinew__fail(ctx, SINEW_ESIZE, "stereo: left frame is %dx%d, right frame %dx%d", w, h,
+                           right->width, right->height);
+    if (num_disparities < 1 || num_disparities > MAX_DISPARITIES || search_y < 1 ||
+        search_y > 256 || min_disparity < -MAX_DISPARITIES || min_disparity > MAX_DISPARITIES)
+        return sinew__fail(ctx, SINEW_EINVAL, "stereo: bad range for the rectification test");
+    const int margin = OFF_BLOCK + 3 + search_y, nt = sinew_ctx_threads(ctx);
+    const int nx = (w - 2 * margin) / OFF_CELL, ny = (h - 2 * margin) / OFF_CELL;
+    if (nx < 1 || ny < 1)
+        return SINEW_OK; /* too small to tell */
+    const size_t npx = (size_t)w * h, nf = (size_t)nx * ny;
+    float *gl = sinew__calloc(ctx, npx, sizeof(float)),
+          *gr = sinew__calloc(ctx, npx, sizeof(float));
+    uint64_t *cl = sinew__calloc(ctx, npx, sizeof(uint64_t));
+    uint64_t *cr = sinew__calloc(ctx, npx, sizeof(uint64_t));
+    float *off = sinew__calloc(ctx, nf, sizeof(float));
+    if (!gl || !gr || !cl || !cr || !off) {
+        void *all[] = {gl, gr, cl, cr, off};
+        for (int i = 0; i < 5; i++)
+            sinew__free(ctx, all[i]);
+        return SINEW_ENOMEM;
+    }
+    luma(left, gl, nt);
+    luma(right, gr, nt);
+    census(gl, cl, w, h, nt);
+    census(gr, cr, w, h, nt);
+    SINEW_PARALLEL_FOR(nt)
+    for (int k = 0; k < (int)nf; k++) {
+        const int cx0 = margin + (k % nx) * OFF_CELL, cy0 = margin + (k / nx) * OFF_CELL;
+        int fx = -1, fy = -1;
+        double best_eig = OFF_MIN_EIG;
+        for (int y = cy0; y < cy0 + OFF_CELL; y += 2)
+            for (int x = cx0; x < cx0 + OFF_CELL; x += 2) {
+                const double e = min_eig(gl, w, x, y);
+                if (e > best_eig)
+                    best_eig = e, fx = x, fy = y;
+            }
+        off[k] = NAN;
+        if (fx < 0)
+            continue;
+        int best = INT32_MAX, bd = 0, bj = 0;
+        for (int j = -search_y; j <= search_y; j++)
+            for (int d = min_disparity; d < min_disparity + num_disparities; d++) {
+                const int xr = fx - d;
+                if (xr < OFF_BLOCK + 1 || xr >= w - OFF_BLOCK - 1)
+                    continue;
+                const int c = block_cost(cl, cr, w, fx, fy, xr, fy + j);
+                if (c < best)
+                    best = c, bd = d, bj = j;
+            }
+        if (best == INT32_MAX || bj == -search_y || bj == search_y)
+            continue;
+        int second = INT32_MAX;
+        for (int j = -search_y; j <= search_y; j++)
+            for (int d = min_disparity; d < min_disparity + num_disparities; d++) {
+                const int xr = fx - d;
+                if ((abs(j - bj) <= 1 && abs(d - bd) <= 1) || xr < OFF_BLOCK + 1 ||
+                    xr >= w - OFF_BLOCK - 1)
+                    continue;
+                const int c = block_cost(cl, cr, w, fx, fy, xr, fy + j);
+                second = c < second ? c : second;
+            }
+        if (second == INT32_MAX || (double)best >= OFF_RATIO * (double)second)
+            continue;
+        const int xr = fx - bd;
+        const int cm = block_cost(cl, cr, w, fx, fy, xr, fy + bj - 1);
+        const int cp = block_cost(cl, cr, w, fx, fy, xr, fy + bj + 1);
+        const int den = cm - 2 * best + cp;
+        off[k] = (float)bj + (den > 0 ? (float)(cm - cp) / (float)(2 * den) : 0.0f);
+    }
+    size_t n = 0;
+    for (size_t k = 0; k < nf; k++)
+        if (!isnan(off[k]))
+            off[n++] = off[k];
+    if (n > 0) {
+        qsort(off, n, sizeof *off, cmp_float);
+        *dy = n % 2 ? off[n / 2] : 0.5 * ((double)off[n / 2 - 1] + off[n / 2]);
+    }
+    *matched = (int)n;
+    void *all[] = {gl, gr, cl, cr, off};
+    for (int i = 0; i < 5; i++)
+        sinew__free(ctx, all[i]);
     return SINEW_OK;
 }

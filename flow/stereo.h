@@ -16,6 +16,7 @@
 
 #include "flow/check.h"
 #include "flow/core.h"
+#include "flow/synth.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -113,6 +114,17 @@ int sinew_stereo_truth(sinew_ctx *ctx, sinew_image *out, const sinew_image *code
 int sinew_stereo_score(sinew_ctx *ctx, sinew_stereo_scores *out, const sinew_image *est,
                        const sinew_image *truth, const sinew_image *region);
 
+/* Rectification test: the median vertical offset (px, right minus left) of features
+ * matched between the frames. Textured points (one per 24x24 cell) of the left frame are
+ * searched in the right frame over the disparities [min_disparity, min_disparity +
+ * num_disparities) and +-search_y rows (1..256) by census block matching with a ratio
+ * test. *dy receives the median offset of the reliable matches (0 with none) and
+ * *matched their number; a rectified pair gives |dy| well below 1 px. Returns SINEW_OK,
+ * EINVAL, ESIZE, ENOMEM. Deterministic for any thread count. */
+int sinew_stereo_vertical_offset(sinew_ctx *ctx, const sinew_image *left, const sinew_image *right,
+                                 int min_disparity, int num_disparities, int search_y, double *dy,
+                                 int *matched);
+
 /* Rectified stereo geometry for disparity -> depth: Z = fx * baseline / (d + doffs). */
 typedef struct sinew_stereo_calib {
     double fx, fy, cx, cy; /* left camera (rectified), px */
@@ -144,6 +156,22 @@ int sinew_stereo_depth(sinew_ctx *ctx, sinew_image *z, const sinew_image *dispar
  * extension is SINEW_EUNSUPPORTED naming the path. Needs io. */
 int sinew_stereo_write_map(sinew_ctx *ctx, const char *path, const sinew_image *map,
                            double png_scale);
+
+/* ---- stereo mode of the demo scene (flow/synth.h) ----
+ * The right camera is the scene camera moved by `baseline` metres (0 < baseline <= 1)
+ * along its x axis: same intrinsics and orientation, so the pair is rectified with
+ * doffs = 0 and the exact left disparity is fx * baseline / z. Outputs (each may be NULL,
+ * sized like the scene): right frame SINEW_U8 RGB rendered like the left frames;
+ * disparity SINEW_F32 1 channel, NaN where the ray hits nothing; occluded SINEW_U8 1
+ * channel, 255 where the left pixel is hidden from or outside the right view. */
+int sinew_stereo_synth_render(sinew_synth *s, int frame, double baseline, sinew_image *right,
+                              sinew_image *disparity, sinew_image *occluded);
+
+/* Write the stereo files of every frame into the sequence folder dir (beside the files
+ * of sinew_synth_write): right/NNNNNN.png, truth/disparity/NNNNNN.pfm,
+ * truth/occlusion_stereo/NNNNNN.png, and stereo_calib.json (the calibration format of
+ * sinew_stereo_calib_load). Atomic per file. */
+int sinew_stereo_synth_write(sinew_synth *s, const char *dir, double baseline);
 
 #ifdef __cplusplus
 }

@@ -47,6 +47,14 @@ static void usage(FILE *out)
             "  --min-disparity N         smallest disparity searched (default 0)\n"
             "  --p1 N --p2 N             smoothness penalties in census bits (default 20, 100)\n"
             "  --lr-tolerance PX         left-right check tolerance (default 1)\n"
+            "  --no-rectify-check        skip the rectification test (by default a pair whose\n"
+            "                            matching features are more than 1 px apart\n"
+            "                            vertically is refused)\n"
+            "  --truth FILE              score DISP against true disparity: .pfm/.npy in px\n"
+            "                            (NaN or <= 0 unknown) or 8/16-bit PNG/PGM codes\n"
+            "                            divided by --truth-scale (default 256, KITTI; 0 =\n"
+            "                            unknown); prints bad-1px, bad-2px, mean abs error, D1\n"
+            "  --occ MASK                with --truth: skip pixels where MASK is nonzero\n"
             "  --threads N               worker threads (0 = all cores, default)\n"
             "  -h, --help                this help\n"
             "\n"
@@ -68,7 +76,11 @@ enum {
     OPT_P1,
     OPT_P2,
     OPT_LRTOL,
-    OPT_THREADS
+    OPT_THREADS,
+    OPT_NORECT,
+    OPT_TRUTH,
+    OPT_TRUTH_SCALE,
+    OPT_OCC
 };
 
 static int make_dir(const char *dir)
@@ -126,7 +138,14 @@ static int picture(sinew_ctx *ctx, const char *path, const sinew_image *map, dou
 
 typedef struct job {
     const char *left, *right, *out, *rout, *check, *calib, *depth, *preset;
+    const char *truth, *occ; /* --truth, --occ */
+    double truth_scale;
+    int no_rectify_check;
 } job;
+
+#define RECTIFY_SEARCH 16      /* rows searched above and below (our choice) */
+#define RECTIFY_MIN_MATCHES 10 /* fewer reliable features: no verdict (our choice) */
+#define RECTIFY_MAX_DY 1.0     /* px; rectified Middlebury/KITTI pairs give < 0.06 */
 
 static int write_check(sinew_ctx *ctx, const job *j, const sinew_stereo_output *o,
                        const sinew_image *frame, const sinew_image *z, const sinew_stereo_params *p)
@@ -174,6 +193,85 @@ static int write_check(sinew_ctx *ctx, const job *j, const sinew_stereo_output *
     return CLI_OK;
 }
 
+/* --truth: bad-1px, bad-2px, mean absolute error and D1 of the filled left disparity
+ * over pixels with a true value that --occ (nonzero = occluded) does not exclude. */
+static int score(sinew_ctx *ctx, const job *j, const sinew_image *d)
+{
+    sinew_image raw = {0}, t = {0}, occ = {0}, region = {0};
+    int st, rc = CLI_FAIL;
+    const size_t n = strlen(j->truth);
+    const char *ext = n >= 4 ? j->truth + n - 4 : "";
+    if (!strcmp(ext, ".pfm") || !strcmp(ext, ".PFM"))
+        st = sinew_pfm_read_image(ctx, &raw, j->truth);
+    else if (!strcmp(ext, ".npy") || !strcmp(ext, ".NPY"))
+        st = sinew_npy_read_image(ctx, &raw, j->truth);
+    else
+        st = sinew_image_read(ctx, &raw, j->truth);
+    if (st) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    if (raw.type == SINEW_F32) {
+        if (raw.channels != 1) {
+            cli_error(CMD, "%s: a disparity map has one channel", j->truth);
+            goto done;
+        }
+        t = raw;
+        memset(&raw, 0, sizeof raw);
+        for (int y = 0; y < t.height; y++)
+            for (int x = 0; x < t.width; x++)
+                if (!(sinew_image_row_f32(&t, y)[x] > 0))
+                    sinew_image_row_f32(&t, y)[x] = NAN;
+    } else if ((st = sinew_stereo_truth(ctx, &t, &raw, j->truth_scale))) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    if (t.width != d->width || t.height != d->height) {
+        cli_error(CMD, "%s: %dx%d, but the frames are %dx%d", j->truth, t.width, t.height, d->width,
+                  d->height);
+        goto done;
+    }
+    if (j->occ) {
+        if ((st = sinew_image_read(ctx, &occ, j->occ))) {
+            cli_status(CMD, ctx, st);
+            goto done;
+        }
+        if (occ.width != d->width || occ.height != d->height) {
+            cli_error(CMD, "%s: %dx%d, but the frames are %dx%d", j->occ, occ.width, occ.height,
+                      d->width, d->height);
+            goto done;
+        }
+        if ((st = sinew_image_alloc(ctx, &region, d->width, d->height, 1, SINEW_U8))) {
+            cli_status(CMD, ctx, st);
+            goto done;
+        }
+        for (int y = 0; y < d->height; y++)
+            for (int x = 0; x < d->width; x++) {
+                const size_t i = (size_t)x * occ.channels;
+                const unsigned v = occ.type == SINEW_U8 ? sinew_image_row_u8(&occ, y)[i]
+                                                        : sinew_image_row_u16(&occ, y)[i];
+                sinew_image_row_u8(&region, y)[x] = v == 0;
+            }
+    }
+    sinew_stereo_scores sc;
+    if ((st = sinew_stereo_score(ctx, &sc, d, &t, j->occ ? &region : NULL))) {
+        cli_status(CMD, ctx, st);
+        goto done;
+    }
+    const double np = sc.pixels > 0 ? (double)sc.pixels : NAN;
+    printf("truth: bad-1px %.2f%%, bad-2px %.2f%%, mean abs error %.3f px, D1 %.2f%% over %lld "
+           "px%s\n",
+           100 * (double)sc.bad1 / np, 100 * (double)sc.bad2 / np, sc.abs_sum / np,
+           100 * (double)sc.d1 / np, (long long)sc.pixels, j->occ ? " (non-occluded)" : "");
+    rc = CLI_OK;
+done:
+    sinew_image_free(&raw);
+    sinew_image_free(&t);
+    sinew_image_free(&occ);
+    sinew_image_free(&region);
+    return rc;
+}
+
 static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
 {
     int rc = CLI_FAIL, st;
@@ -196,6 +294,25 @@ static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
         cli_error(CMD, "%s: calibrated for %dx%d, frames are %dx%d", j->calib, calib.width,
                   calib.height, l.width, l.height);
         goto done;
+    }
+    if (!j->no_rectify_check) {
+        /* a pair off by more than a pixel vertically is not rectified (our threshold;
+           SGM searches rows only) */
+        double dy;
+        int matched;
+        if ((st = sinew_stereo_vertical_offset(ctx, &l, &r, p->min_disparity,
+                                               sinew_stereo_num_disparities(p, l.width),
+                                               RECTIFY_SEARCH, &dy, &matched))) {
+            cli_status(CMD, ctx, st);
+            goto done;
+        }
+        if (matched >= RECTIFY_MIN_MATCHES && fabs(dy) > RECTIFY_MAX_DY) {
+            cli_error(CMD,
+                      "%s: not rectified with %s: matching features are %.1f px apart "
+                      "vertically (median of %d); rectify the pair or pass --no-rectify-check",
+                      j->right, j->left, dy, matched);
+            goto done;
+        }
     }
     if ((st = sinew_image_alloc(ctx, &d, l.width, l.height, 1, SINEW_F32)) ||
         (st = sinew_image_alloc(ctx, &rd, l.width, l.height, 1, SINEW_F32)) ||
@@ -231,6 +348,8 @@ static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
            100.0 * (double)o.stats.reason[1] / (double)o.stats.pixels, j->calib ? "" : "\n");
     if (j->calib)
         printf(", depth valid %.1f%%\n", 100.0 * (double)valid / (double)o.stats.pixels);
+    if (j->truth && score(ctx, j, &d))
+        goto done;
     rc = CLI_OK;
 done:;
     sinew_image *all[] = {&l, &r, &d, &rd, &m, &c, &z};
@@ -263,10 +382,14 @@ int cmd_stereo(int argc, char **argv)
         {"p2", required_argument, NULL, OPT_P2},
         {"lr-tolerance", required_argument, NULL, OPT_LRTOL},
         {"threads", required_argument, NULL, OPT_THREADS},
+        {"no-rectify-check", no_argument, NULL, OPT_NORECT},
+        {"truth", required_argument, NULL, OPT_TRUTH},
+        {"truth-scale", required_argument, NULL, OPT_TRUTH_SCALE},
+        {"occ", required_argument, NULL, OPT_OCC},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
-    job j = {.preset = "balanced"};
+    job j = {.preset = "balanced", .truth_scale = 256.0};
     sinew_stereo_params p;
     sinew_stereo_params_default(&p);
     int ndisp = -1, mindisp = 0, p1 = -1, p2 = -1, threads = 0, c, bad;
@@ -318,6 +441,20 @@ int cmd_stereo(int argc, char **argv)
         case OPT_THREADS:
             bad = parse_int("--threads", optarg, 0, 4096, &threads);
             break;
+        case OPT_NORECT:
+            j.no_rectify_check = 1;
+            break;
+        case OPT_TRUTH:
+            j.truth = optarg;
+            break;
+        case OPT_TRUTH_SCALE:
+            if (cli_parse_double(optarg, &j.truth_scale) || !(j.truth_scale > 0) ||
+                !isfinite(j.truth_scale))
+                return cli_usage_error(CMD, "--truth-scale needs a number > 0, got '%s'", optarg);
+            break;
+        case OPT_OCC:
+            j.occ = optarg;
+            break;
         case ':':
             return cli_usage_error(CMD, "option %s needs a value", argv[optind - 1]);
         default:
@@ -334,6 +471,8 @@ int cmd_stereo(int argc, char **argv)
         return cli_usage_error(CMD, "-o DISP is required");
     if (j.depth && !j.calib)
         return cli_usage_error(CMD, "--depth needs --calib FILE");
+    if (j.occ && !j.truth)
+        return cli_usage_error(CMD, "--occ needs --truth FILE");
     /* explicit options override the preset, whichever order they came in */
     if (ndisp > 0)
         p.num_disparities = ndisp;

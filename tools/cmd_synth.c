@@ -16,7 +16,7 @@ static void usage(FILE *out)
 {
     fprintf(out,
             "usage: sinew synth -o DIR [--frames N] [--size WxH] [--seed S] [--noise]\n"
-            "                   [--threads N]\n"
+            "                   [--stereo BASELINE] [--threads N]\n"
             "\n"
             "Write the demo scene: an invented RGB-D sequence of a rounded probe pressing\n"
             "into a textured silicone pad and dragging it sideways, a foam block sliding in\n"
@@ -31,6 +31,10 @@ static void usage(FILE *out)
             "  -s, --size WxH     image size, at least 8x8 (default 640x480)\n"
             "      --seed S       seed for textures and small motion variations (default 1)\n"
             "      --noise        sensor-like noise and holes at depth edges in the depth PNGs\n"
+            "      --stereo B     also a right camera B metres to the right (0 < B <= 1):\n"
+            "                     right/NNNNNN.png, exact left disparity\n"
+            "                     truth/disparity/NNNNNN.pfm, truth/occlusion_stereo/,\n"
+            "                     stereo_calib.json (for sinew stereo --calib)\n"
             "  -j, --threads N    threads (default: all); output is identical for any count\n"
             "  -h, --help         show this help\n"
             "\n"
@@ -60,8 +64,10 @@ int cmd_synth(int argc, char **argv)
         {"output", required_argument, NULL, 'o'}, {"frames", required_argument, NULL, 'n'},
         {"size", required_argument, NULL, 's'},   {"seed", required_argument, NULL, 'S'},
         {"noise", no_argument, NULL, 'N'},        {"threads", required_argument, NULL, 'j'},
-        {"help", no_argument, NULL, 'h'},         {NULL, 0, NULL, 0},
+        {"help", no_argument, NULL, 'h'},         {"stereo", required_argument, NULL, 'B'},
+        {NULL, 0, NULL, 0},
     };
+    double baseline = 0; /* --stereo: right frames and exact disparity (flow/stereo.h) */
     sinew_synth_params p;
     sinew_synth_params_default(&p);
     const char *dir = NULL;
@@ -96,6 +102,11 @@ int cmd_synth(int argc, char **argv)
             if (cli_parse_int(optarg, 0, 4096, &threads))
                 return cli_usage_error(CMD, "--threads: '%s' is not an integer in 0..4096", optarg);
             break;
+        case 'B':
+            if (cli_parse_double(optarg, &baseline) || !(baseline > 0) || baseline > 1.0)
+                return cli_usage_error(CMD, "--stereo: '%s' is not a baseline in (0, 1] metres",
+                                       optarg);
+            break;
         case 'h':
             usage(stdout);
             return CLI_OK;
@@ -116,6 +127,8 @@ int cmd_synth(int argc, char **argv)
     int st = sinew_synth_new(ctx, &s, &p);
     if (!st)
         st = sinew_synth_write(s, dir);
+    if (!st && baseline > 0)
+        st = sinew_stereo_synth_write(s, dir, baseline);
     sinew_synth_free(s);
     int rc = CLI_OK;
     if (st)
@@ -124,6 +137,9 @@ int cmd_synth(int argc, char **argv)
         printf("wrote %d frames (%dx%d, seed %llu%s) and their exact ground truth to %s\n",
                p.frames, p.width, p.height, (unsigned long long)p.seed,
                p.depth_noise ? ", depth noise" : "", dir);
+    if (!st && baseline > 0)
+        printf("stereo: right frames %.3f m to the right, exact disparity, %s/stereo_calib.json\n",
+               baseline, dir);
     sinew_ctx_free(ctx);
     return rc;
 }

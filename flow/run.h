@@ -1,7 +1,8 @@
 /* SPDX-License-Identifier: MIT */
-/* Whole-sequence runs: content hashes (SHA-256), pair schedules with stable output
- * names, deterministic sharding, colour/depth association by timestamp, and the run
- * engine that gives resume, per-pair "done" records and the run manifest.
+/* Whole-sequence runs: frame sources (sequence files, plain folders), the run engine
+ * that gives resume, per-pair "done" records and the run manifest, and the standard
+ * pair pipeline. Content hashes are in flow/sha256.h, pair schedules, sharding and
+ * timestamp association in flow/schedule.h (both included here).
  *
  * The engine does not know how a pair is processed: the caller passes a pair function
  * (the `sinew run` command passes the flow/check/match/lift pipeline; tests pass a
@@ -17,104 +18,13 @@
 #include <stdint.h>
 
 #include "flow/core.h"
+#include "flow/schedule.h"
 #include "flow/sequence.h"
+#include "flow/sha256.h"
 
 #ifdef __cplusplus
 extern "C" {
 #endif
-
-/* ---- SHA-256 (FIPS 180-4) ------------------------------------------------------ */
-typedef struct sinew_sha256 {
-    uint32_t h[8];
-    uint64_t bytes;          /* message length so far */
-    unsigned char block[64]; /* pending partial block */
-    size_t fill;             /* bytes pending in block */
-} sinew_sha256;
-
-/* Start a digest. Never fails. */
-void sinew_sha256_init(sinew_sha256 *s);
-/* Add n bytes (data may be NULL when n == 0). */
-void sinew_sha256_update(sinew_sha256 *s, const void *data, size_t n);
-/* Finish: write the 32-byte digest. The state must be re-initialised before reuse. */
-void sinew_sha256_final(sinew_sha256 *s, unsigned char digest[32]);
-/* Lower-case hex of a digest into hex[65] (NUL-terminated). */
-void sinew_sha256_hex(const unsigned char digest[32], char hex[65]);
-/* Digest of a whole file, read in blocks (memory does not grow with file size).
- * bytes (may be NULL) receives the file size. EIO naming the path if it cannot be
- * opened or read. */
-int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32], uint64_t *bytes);
-
-/* ---- pair schedules ------------------------------------------------------------
- * Frames are numbered 0..nframes-1 in sequence order. A pair (i, j) means flow from
- * frame i to frame j (forward) and from j to i (backward). */
-typedef struct sinew_pair {
-    int32_t i;
-    int32_t j;
-} sinew_pair;
-
-typedef enum sinew_schedule_kind {
-    SINEW_SCHEDULE_CONSECUTIVE = 0, /* (0,1) (1,2) ... (n-2,n-1) */
-    SINEW_SCHEDULE_GAP,             /* (0,k) (1,k+1) ... : every frame to the k-th next */
-    SINEW_SCHEDULE_KEYFRAME,        /* every `every`-th frame i to each of i+1..i+window */
-    SINEW_SCHEDULE_LIST             /* explicit pairs, kept in the given order */
-} sinew_schedule_kind;
-
-typedef struct sinew_schedule {
-    sinew_schedule_kind kind;
-    int gap;                /* GAP: k >= 1 */
-    int every;              /* KEYFRAME: keyframe spacing >= 1 (keyframes 0, every, 2*every...) */
-    int window;             /* KEYFRAME: partners per keyframe >= 1 */
-    const sinew_pair *list; /* LIST: borrowed */
-    size_t list_len;
-} sinew_schedule;
-
-/* Limits checked before any allocation. Frame numbers in pair names have 6 digits. */
-#define SINEW_RUN_MAX_FRAMES 1000000
-#define SINEW_RUN_MAX_PAIRS 10000000
-
-/* Expand a schedule for nframes frames into *pairs (allocated on ctx; free with
- * sinew_ctx_dealloc; NULL when *npairs is 0). Pairs whose partner falls past the
- * last frame are dropped. ECONFIG for a bad parameter, a LIST pair out of range,
- * i == j, or a pair listed twice (it would share an output folder); ELIMIT beyond the
- * limits above. Order: increasing i then j, except LIST which keeps its order. */
-int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes,
-                         sinew_pair **pairs, size_t *npairs);
-
-/* Stable output name of a pair: "%06d-%06d" of (i, j), e.g. "000012-000013". buf needs
- * at least SINEW_PAIR_NAME_MAX bytes. Returns buf. */
-#define SINEW_PAIR_NAME_MAX 16
-char *sinew_pair_name(char *buf, sinew_pair p);
-
-/* Shard ownership: pair number `index` (position in the schedule, 0-based) belongs to
- * shard k of n exactly when index % n == k. Deterministic and independent of which
- * pairs are already done, so shards never write the same pair. */
-static inline int sinew_shard_owns(size_t index, int k, int n)
-{
-    return n <= 1 || (int)(index % (size_t)n) == k;
-}
-
-/* ---- timestamp association -----------------------------------------------------
- * Match two stamp lists (seconds): a candidate is (a, b) with
- * |ta[a] - (tb[b] + offset)| < max_diff; candidates are taken greedily from the
- * smallest difference (ties: smaller a, then smaller b), each stamp used at most once.
- * This is the procedure of the published TUM RGB-D association tool (max difference
- * 0.02 s, offset 0; ../shared/notes/published-numbers.md section 7, tagged V2 for the
- * defaults and M-hi for the greedy rule).
- * match[a] receives the index into tb, or -1 if a has no partner. Returns the number
- * of matches through *nmatched. ECONFIG if max_diff <= 0 or any stamp is not finite. */
-int sinew_associate(sinew_ctx *ctx, const double *ta, size_t na, const double *tb, size_t nb,
-                    double max_diff, double offset, int32_t *match, size_t *nmatched);
-
-/* A "timestamp filename" list (rgb.txt / depth.txt style): one entry per line, '#'
- * lines and blank lines ignored, extra columns refused. Strings and arrays are
- * allocated on ctx; free with sinew_stamp_list_free. */
-typedef struct sinew_stamp_list {
-    size_t n;
-    double *t;
-    char **name;
-} sinew_stamp_list;
-int sinew_stamp_list_read(sinew_ctx *ctx, const char *path, sinew_stamp_list *out);
-void sinew_stamp_list_free(sinew_ctx *ctx, sinew_stamp_list *l);
 
 /* ---- sequences from a plain folder ----------------------------------------------
  * Default layout of a folder given instead of a sequence.json (docs/formats.md):

@@ -15,8 +15,8 @@
 #include <string.h>
 
 #include "flow/internal/base.h"
-#include "flow/internal/run.h"
-#include "flow/run.h"
+#include "flow/internal/schedule.h"
+#include "flow/schedule.h"
 
 char *sinew_pair_name(char *buf, sinew_pair p)
 {

@@ -14,6 +14,8 @@
 #include "flow/metrics.h"
 #include "flow/report.h"
 #include "flow/run.h"
+#include "flow/schedule.h"
+#include "flow/sha256.h"
 #include "flow/sequence.h"
 #include "flow/stereo.h"
 #include "flow/synth.h"

@@ -13,7 +13,7 @@
 
 #include "flow/internal/base.h"
 #include "flow/internal/parallel.h"
-#include "flow/internal/run.h"
+#include "flow/internal/fs.h"
 #include "flow/internal/synth.h"
 #include "flow/io.h"
 #include "flow/stereo.h"

@@ -10,6 +10,7 @@
 #include <sys/stat.h>
 
 #include "flow/internal/base.h"
+#include "flow/internal/fs.h"
 #include "flow/internal/synth.h"
 #include "flow/io.h"
 #include "flow/sequence.h"

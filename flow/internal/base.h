@@ -41,8 +41,6 @@ static inline int sinew__add_size(size_t a, size_t b, size_t *out)
  * for the message. Returns SINEW_OK, EFORMAT (non-positive) or ELIMIT. */
 int sinew__check_dims(sinew_ctx *ctx, const char *what, int64_t width, int64_t height);
 
-/* "a/b" into buf; ELIMIT (message names the path) if it does not fit (flow/run.c). */
-int sinew__path_join(sinew_ctx *ctx, char *buf, size_t n, const char *a, const char *b);
 /* Atomic output files are written as DIR/.NAME + SINEW__TMP_TAG + 6 hex digits, then
  * renamed to DIR/NAME (sinew_outfile_open in flow/core.c). */
 #define SINEW__TMP_TAG ".tmp-"

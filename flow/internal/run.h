@@ -1,5 +1,7 @@
 /* SPDX-License-Identifier: MIT */
-/* Private helpers shared by the run engine files (run.c, manifest.c, runpipe.c). */
+/* Private declarations shared by the run engine files (run.c, manifest.c, runpipe.c,
+ * runseq.c): pair inputs, keys and records. Paths and folders are in fs.h, JSON files in
+ * json.h. */
 #ifndef SINEW_INTERNAL_RUN_H
 #define SINEW_INTERNAL_RUN_H
 
@@ -8,9 +10,11 @@
 
 #include <cJSON.h>
 
+#include "flow/internal/fs.h"
+#include "flow/internal/json.h"
+#include "flow/internal/schedule.h"
 #include "flow/run.h"
 
-#define SINEW__PATH_MAX 4096
 #define SINEW__MAX_INPUTS 10
 #define SINEW__DONE_FILE "done.json"
 #define SINEW__ERROR_FILE "error.json"
@@ -26,28 +30,6 @@ typedef struct sinew__input {
     uint64_t bytes;
 } sinew__input;
 
-/* A time stamp and its position in its list; sinew__stamp_cmp orders by time, then
- * position (qsort comparator; flow/schedule.c). */
-typedef struct sinew__stamp {
-    double t;
-    size_t idx;
-} sinew__stamp;
-int sinew__stamp_cmp(const void *x, const void *y);
-
-/* mkdir -p; EIO naming the folder. */
-int sinew__mkdirs(sinew_ctx *ctx, const char *path);
-/* "a/b" in a new string (NULL when out of memory). */
-char *sinew__dup_join(sinew_ctx *ctx, const char *a, const char *b);
-/* Names in folder `dir` that keep() accepts, sorted by name (byte order): "dir/name" with
- * `join`, else the bare name. EIO names an unreadable folder; ELIMIT when more than `max`
- * names are accepted. *out (n strings) is freed with sinew__free_names. */
-int sinew__list_dir(sinew_ctx *ctx, const char *dir, int (*keep)(const char *name), int join,
-                    size_t max, char ***out, size_t *n);
-void sinew__free_names(sinew_ctx *ctx, char **names, size_t n);
-/* Write a cJSON value as formatted text plus a newline, atomically. */
-int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj);
-/* Read and parse a JSON file of at most max_bytes; EFORMAT naming the file. */
-int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON **out);
 
 const sinew_run_spec *sinew__run_spec(const sinew_run *run);
 sinew_ctx *sinew__run_ctx(const sinew_run *run);

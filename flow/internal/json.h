@@ -1,0 +1,17 @@
+/* SPDX-License-Identifier: MIT */
+/* JSON files (flow/json.c): private helpers for the library's readers and writers. */
+#ifndef SINEW_INTERNAL_JSON_H
+#define SINEW_INTERNAL_JSON_H
+
+#include <stddef.h>
+
+#include <cJSON.h>
+
+#include "flow/core.h"
+
+/* Write a cJSON value as formatted text plus a newline, atomically. */
+int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj);
+/* Read and parse a JSON file of at most max_bytes; EFORMAT naming the file. */
+int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON **out);
+
+#endif

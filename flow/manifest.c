@@ -50,7 +50,7 @@ static cJSON *read_stats(sinew_ctx *ctx, const char *dir)
 {
     char p[SINEW__PATH_MAX];
     cJSON *j = NULL;
-    if (sinew__path_join(ctx, p, sizeof p, dir, SINEW__STATS_FILE) ||
+    if (sinew__path_join(ctx, p, sizeof p, dir, SINEW_RUN_STATS_FILE) ||
         sinew__json_read(ctx, p, (size_t)16 << 20, &j)) {
         sinew_ctx_clear(ctx);
         return NULL;
@@ -63,7 +63,7 @@ static cJSON *read_error(sinew_ctx *ctx, const char *dir)
     char p[SINEW__PATH_MAX];
     struct stat st;
     cJSON *j = NULL;
-    if (sinew__path_join(ctx, p, sizeof p, dir, SINEW__ERROR_FILE) || stat(p, &st) != 0 ||
+    if (sinew__path_join(ctx, p, sizeof p, dir, SINEW_RUN_ERROR_FILE) || stat(p, &st) != 0 ||
         sinew__json_read(ctx, p, (size_t)1 << 20, &j)) {
         sinew_ctx_clear(ctx);
         return NULL;
@@ -139,7 +139,7 @@ static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, 
  * works on an output folder at a time). */
 static void remove_stale_temporaries(sinew_ctx *ctx, const char *outdir)
 {
-    static const char prefix[] = "." SINEW__MANIFEST_FILE SINEW__TMP_TAG;
+    static const char prefix[] = "." SINEW_RUN_MANIFEST_FILE SINEW__TMP_TAG;
     DIR *d = opendir(outdir);
     if (!d)
         return;
@@ -203,7 +203,7 @@ int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *
     pairs = NULL;
     char p[SINEW__PATH_MAX];
     remove_stale_temporaries(ctx, s->outdir);
-    rc = sinew__path_join(ctx, p, sizeof p, s->outdir, SINEW__MANIFEST_FILE);
+    rc = sinew__path_join(ctx, p, sizeof p, s->outdir, SINEW_RUN_MANIFEST_FILE);
     if (!rc)
         rc = sinew__json_write(ctx, p, root);
 done:

@@ -22,6 +22,7 @@
 #include "flow/internal/base.h"
 #include "flow/io.h"
 #include "flow/report.h"
+#include "flow/run.h"
 
 #define MANIFEST_MAX_BYTES ((size_t)256 << 20)
 
@@ -320,7 +321,7 @@ static int load_manifest(report *r)
 {
     sinew_ctx *ctx = r->ctx;
     char path[4096];
-    if ((size_t)snprintf(path, sizeof path, "%s/manifest.json", r->rundir) >= sizeof path)
+    if ((size_t)snprintf(path, sizeof path, "%s/" SINEW_RUN_MANIFEST_FILE, r->rundir) >= sizeof path)
         return sinew__fail(ctx, SINEW_EINVAL, "%s: path too long", r->rundir);
     unsigned char *buf = NULL;
     size_t len = 0;
@@ -389,7 +390,7 @@ static int load_manifest(report *r)
 
 static int pair_path(const report *r, const pair_info *q, const char *file, char *buf, size_t n)
 {
-    return q->safe && (size_t)snprintf(buf, n, "%s/pairs/%s/%s", r->rundir, q->name, file) < n;
+    return q->safe && (size_t)snprintf(buf, n, "%s/" SINEW_RUN_PAIRS_DIR "/%s/%s", r->rundir, q->name, file) < n;
 }
 
 static int exists(const char *path)
@@ -402,7 +403,8 @@ static int exists(const char *path)
 
 static int find_flow(const report *r, const pair_info *q, char *buf, size_t n)
 {
-    static const char *const names[] = {"forward.flo", "forward.npy", "forward.pfm", "forward.png"};
+    static const char *const names[] = {SINEW_RUN_FORWARD ".flo", SINEW_RUN_FORWARD ".npy",
+                                         SINEW_RUN_FORWARD ".pfm", SINEW_RUN_FORWARD ".png"};
     for (size_t k = 0; k < sizeof names / sizeof names[0]; k++)
         if (pair_path(r, q, names[k], buf, n) && exists(buf))
             return 1;
@@ -582,26 +584,26 @@ static int pair_pictures(report *r, sbuf *b, const pair_info *q, double fmax)
 
     /* confidence */
     st = SINEW_OK;
-    if (pair_path(r, q, "confidence.npy", path, sizeof path) && exists(path)) {
+    if (pair_path(r, q, SINEW_RUN_CONFIDENCE_FILE, path, sizeof path) && exists(path)) {
         st = read_checked(ctx, &img, path, 1, 1, SINEW_F32);
         if (!st)
             st = sinew_draw_heatmap(ctx, &pic, &img, 0, 1, NULL, 0);
     }
-    if ((rc = figure(r, b, q, "confidence", st, &pic, "no confidence.npy")))
+    if ((rc = figure(r, b, q, "confidence", st, &pic, "no " SINEW_RUN_CONFIDENCE_FILE)))
         goto done;
     sinew_image_free(&pic);
     sinew_image_free(&img);
 
     /* reasons */
     st = SINEW_OK;
-    if (pair_path(r, q, "mask.png", path, sizeof path) && exists(path)) {
+    if (pair_path(r, q, SINEW_RUN_MASK_FILE, path, sizeof path) && exists(path)) {
         st = read_checked(ctx, &img, path, 0, 1, SINEW_U8);
         if (!st) {
             int same = frame.data && frame.width == img.width && frame.height == img.height;
             st = sinew_draw_reasons(ctx, &pic, same ? &frame : NULL, &img, 0);
         }
     }
-    rc = figure(r, b, q, "rejection reasons", st, &pic, "no mask.png");
+    rc = figure(r, b, q, "rejection reasons", st, &pic, "no " SINEW_RUN_MASK_FILE);
 done:
     sb_puts(b, "</div></article>\n");
     sinew_image_free(&frame);
@@ -618,7 +620,7 @@ static int derive_metrics(report *r, pair_info *q)
     sinew_ctx *ctx = r->ctx;
     char path[4096];
     sinew_image img;
-    if (isnan(q->m[M_KEPT]) && pair_path(r, q, "mask.png", path, sizeof path) && exists(path)) {
+    if (isnan(q->m[M_KEPT]) && pair_path(r, q, SINEW_RUN_MASK_FILE, path, sizeof path) && exists(path)) {
         int st = read_checked(ctx, &img, path, 0, 1, SINEW_U8);
         if (st == SINEW_ENOMEM)
             return st;
@@ -639,7 +641,7 @@ static int derive_metrics(report *r, pair_info *q)
     static const struct {
         int metric;
         const char *file;
-    } maps[2] = {{M_CONF, "confidence.npy"}, {M_FB, "fb_error.npy"}};
+    } maps[2] = {{M_CONF, SINEW_RUN_CONFIDENCE_FILE}, {M_FB, SINEW_RUN_FB_ERROR_FILE}};
     for (int k = 0; k < 2; k++) {
         if (!isnan(q->m[maps[k].metric]) || !pair_path(r, q, maps[k].file, path, sizeof path) ||
             !exists(path))
@@ -1108,7 +1110,7 @@ static int build(report *r, sbuf *page)
     sb_puts(page, "<h2>All pairs</h2>\n");
     pair_table(page, r);
     inputs_section(page, r);
-    sb_printf(page, "<h2>Manifest</h2>\n<details><summary>manifest.json (%zu bytes)</summary><pre>",
+    sb_printf(page, "<h2>Manifest</h2>\n<details><summary>" SINEW_RUN_MANIFEST_FILE " (%zu bytes)</summary><pre>",
               r->manifest_len);
     sb_esc(page, r->manifest_text);
     sb_puts(page, "</pre></details>\n<footer>sinew is a research tool, not a medical device: "

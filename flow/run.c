@@ -156,7 +156,7 @@ int sinew__run_pair_dir(sinew_run *run, size_t index, char *buf, size_t n)
 {
     char name[SINEW_PAIR_NAME_MAX], rel[SINEW_PAIR_NAME_MAX + 8];
     sinew_pair_name(name, run->spec.pairs[index]);
-    snprintf(rel, sizeof rel, "pairs/%s", name);
+    snprintf(rel, sizeof rel, SINEW_RUN_PAIRS_DIR "/%s", name);
     return sinew__path_join(run->ctx, buf, n, run->spec.outdir, rel);
 }
 
@@ -190,7 +190,7 @@ int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
     int rc = sinew__mkdirs(ctx, spec->outdir);
     char pairs[SINEW__PATH_MAX];
     if (!rc)
-        rc = sinew__path_join(ctx, pairs, sizeof pairs, spec->outdir, "pairs");
+        rc = sinew__path_join(ctx, pairs, sizeof pairs, spec->outdir, SINEW_RUN_PAIRS_DIR);
     if (!rc)
         rc = sinew__mkdirs(ctx, pairs);
     if (rc)
@@ -259,7 +259,7 @@ static int empty_dir(sinew_ctx *ctx, const char *dir)
 /* The pair's outputs: regular files other than the records and temporaries. */
 static int is_output(const char *nm)
 {
-    return nm[0] != '.' && strcmp(nm, SINEW__DONE_FILE) && strcmp(nm, SINEW__ERROR_FILE);
+    return nm[0] != '.' && strcmp(nm, SINEW_RUN_DONE_FILE) && strcmp(nm, SINEW_RUN_ERROR_FILE);
 }
 
 static cJSON *record_head(const sinew_run *run, size_t index, const char *name)
@@ -288,7 +288,7 @@ static int write_error_record(sinew_run *run, size_t index, const char *name, co
         return sinew__fail(run->ctx, SINEW_ENOMEM, "out of memory");
     }
     char p[SINEW__PATH_MAX];
-    int rc = sinew__path_join(run->ctx, p, sizeof p, dir, SINEW__ERROR_FILE);
+    int rc = sinew__path_join(run->ctx, p, sizeof p, dir, SINEW_RUN_ERROR_FILE);
     if (!rc)
         rc = sinew__json_write(run->ctx, p, o);
     cJSON_Delete(o);
@@ -342,7 +342,7 @@ static int write_done_record(sinew_run *run, size_t index, const char *name, con
         cJSON_AddItemToArray(outs, e);
     }
     char p[SINEW__PATH_MAX];
-    if (!(rc = sinew__path_join(ctx, p, sizeof p, dir, SINEW__DONE_FILE)))
+    if (!(rc = sinew__path_join(ctx, p, sizeof p, dir, SINEW_RUN_DONE_FILE)))
         rc = sinew__json_write(ctx, p, o);
 done:
     cJSON_Delete(o);
@@ -357,7 +357,7 @@ int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, i
     if (record)
         *record = NULL;
     char p[SINEW__PATH_MAX];
-    if (sinew__path_join(ctx, p, sizeof p, dir, SINEW__DONE_FILE))
+    if (sinew__path_join(ctx, p, sizeof p, dir, SINEW_RUN_DONE_FILE))
         return SINEW_PAIR_PENDING;
     struct stat st;
     if (stat(p, &st) != 0)
@@ -444,7 +444,7 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
             if (!rc && !stats)
                 rc = sinew__fail(ctx, SINEW_EINTERNAL, "%s: pair function gave no stats", name);
             char sp[SINEW__PATH_MAX];
-            if (!rc && !(rc = sinew__path_join(ctx, sp, sizeof sp, dir, SINEW__STATS_FILE))) {
+            if (!rc && !(rc = sinew__path_join(ctx, sp, sizeof sp, dir, SINEW_RUN_STATS_FILE))) {
                 size_t n = strlen(stats);
                 stats[n] = '\n'; /* the stats buffer is NUL-terminated; replace it */
                 rc = sinew_write_file(ctx, sp, stats, n + 1);

@@ -58,6 +58,24 @@ int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq,
                                    const char *where, sinew_run_source *out);
 void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
 
+/* ---- the run folder (docs/formats.md) -------------------------------------------
+ * OUTDIR/SINEW_RUN_MANIFEST_FILE and OUTDIR/SINEW_RUN_PAIRS_DIR/NAME/ per pair (NAME from
+ * sinew_pair_name), holding the files below; forward and backward flow are
+ * SINEW_RUN_FORWARD "." EXT and SINEW_RUN_BACKWARD "." EXT (sinew_run_flow_ext). The
+ * engine (run.c, manifest.c), the pipeline (runpipe.c), the report (report.c) and the
+ * `sinew run` command use these names only. */
+#define SINEW_RUN_PAIRS_DIR "pairs"
+#define SINEW_RUN_MANIFEST_FILE "manifest.json"
+#define SINEW_RUN_DONE_FILE "done.json"
+#define SINEW_RUN_ERROR_FILE "error.json"
+#define SINEW_RUN_STATS_FILE "stats.json"
+#define SINEW_RUN_FORWARD "forward"
+#define SINEW_RUN_BACKWARD "backward"
+#define SINEW_RUN_MASK_FILE "mask.png"
+#define SINEW_RUN_CONFIDENCE_FILE "confidence.npy"
+#define SINEW_RUN_FB_ERROR_FILE "fb_error.npy"
+#define SINEW_RUN_MATCHES_FILE "matches.npy"
+
 /* ---- the run engine ------------------------------------------------------------ */
 typedef struct sinew_run_frame {
     const char *color;  /* image path, required */

@@ -450,7 +450,7 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
     int lift = pl->have_camera && s0->z.data && s1->z.data;
     int labels = s0->labels.data && s1->labels.data;
     char fwd_name[32];
-    snprintf(fwd_name, sizeof fwd_name, "forward.%s", sinew_run_flow_ext(pl->params.flow_format));
+    snprintf(fwd_name, sizeof fwd_name, SINEW_RUN_FORWARD ".%s", sinew_run_flow_ext(pl->params.flow_format));
     sinew_match_inputs in = {&pl->fwd,
                              &pl->mask,
                              &pl->conf,
@@ -460,8 +460,8 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
                              lift ? &s1->z : NULL,
                              lift ? &pl->cam : NULL,
                              fwd_name,
-                             "mask.png",
-                             "confidence.npy",
+                             SINEW_RUN_MASK_FILE,
+                             SINEW_RUN_CONFIDENCE_FILE,
                              labels ? fr0->labels : NULL,
                              labels ? fr1->labels : NULL,
                              lift ? fr0->depth : NULL,
@@ -477,7 +477,7 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
                                lift ? &pl->depth : NULL,
                                {lift ? s0->z_median : NAN, lift ? s1->z_median : NAN}};
     char p[SINEW__PATH_MAX];
-    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, "matches.npy")) ||
+    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, SINEW_RUN_MATCHES_FILE)) ||
         (rc = sinew_matches_save(ctx, m, &mp, &in, &src, p)))
         return rc;
     return SINEW_OK;
@@ -515,18 +515,18 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
         return rc;
     const char *ext = sinew_run_flow_ext(pl->params.flow_format);
     char p[SINEW__PATH_MAX], name[32];
-    snprintf(name, sizeof name, "forward.%s", ext);
+    snprintf(name, sizeof name, SINEW_RUN_FORWARD ".%s", ext);
     if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, name)) ||
         (rc = sinew_flow_write(ctx, p, &pl->fwd, (sinew_flow_format)pl->params.flow_format)))
         return rc;
-    snprintf(name, sizeof name, "backward.%s", ext);
+    snprintf(name, sizeof name, SINEW_RUN_BACKWARD ".%s", ext);
     if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, name)) ||
         (rc = sinew_flow_write(ctx, p, &pl->bwd, (sinew_flow_format)pl->params.flow_format)))
         return rc;
-    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, "mask.png")) ||
+    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, SINEW_RUN_MASK_FILE)) ||
         (rc = sinew_image_write_png(ctx, p, &pl->mask)))
         return rc;
-    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, "confidence.npy")) ||
+    if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, SINEW_RUN_CONFIDENCE_FILE)) ||
         (rc = sinew_npy_write_image(ctx, p, &pl->conf, 0)))
         return rc;
     sinew_matches m;

@@ -293,7 +293,7 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec)
             continue;
         char name[SINEW_PAIR_NAME_MAX], path[4200];
         sinew_pair_name(name, spec->pairs[q]);
-        snprintf(path, sizeof path, "%s/pairs/%s/stats.json", spec->outdir, name);
+        snprintf(path, sizeof path, "%s/" SINEW_RUN_PAIRS_DIR "/%s/" SINEW_RUN_STATS_FILE, spec->outdir, name);
         unsigned char *buf;
         size_t len;
         cJSON *j = NULL;
@@ -668,7 +668,7 @@ int cmd_run(int argc, char **argv)
         }
         printf("manifest: %zu pairs: %zu done, %zu failed, %zu pending\n", npairs, nd, nf, np);
         if (nf || np)
-            cli_error(CMD, "%s/manifest.json: %zu pairs failed and %zu are pending", outdir, nf,
+            cli_error(CMD, "%s/" SINEW_RUN_MANIFEST_FILE ": %zu pairs failed and %zu are pending", outdir, nf,
                       np);
         else
             ret = CLI_OK;
@@ -719,7 +719,7 @@ int cmd_run(int argc, char **argv)
         }
     }
     if (shard_n == 1 && mrc == SINEW_OK && pmode != PROG_JSON)
-        printf("manifest: %s/manifest.json (%zu done, %zu failed, %zu pending)\n", outdir, nd, nf,
+        printf("manifest: %s/" SINEW_RUN_MANIFEST_FILE " (%zu done, %zu failed, %zu pending)\n", outdir, nd, nf,
                np);
     fflush(stdout);
     if (res.interrupted) {

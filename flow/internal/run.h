@@ -16,10 +16,6 @@
 #include "flow/run.h"
 
 #define SINEW__MAX_INPUTS 10
-#define SINEW__DONE_FILE "done.json"
-#define SINEW__ERROR_FILE "error.json"
-#define SINEW__STATS_FILE "stats.json"
-#define SINEW__MANIFEST_FILE "manifest.json"
 
 /* One hashed input of a pair: role ("color0", "depth1", "intrinsics", ...), path
  * (borrowed), digest and size. */

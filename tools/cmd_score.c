@@ -22,6 +22,8 @@
 #include "flow/sinew.h"
 #include "tools/cli.h"
 #include "tools/score_layout.h"
+#include "tools/score_out.h"
+#include "tools/score_read.h"
 
 #define CMD "score"
 #define SPARSE_STEPS 100
@@ -101,370 +103,6 @@ static void usage(FILE *out)
             score_layout_names, cli_notice);
 }
 
-/* ---- results ---- */
-
-typedef struct {
-    char *id;
-    sinew_flow_errors err;
-    sinew_flow_summary s[SINEW_REGION_COUNT];
-    double time_s; /* estimator wall-clock seconds; NaN = not run */
-    double ause;   /* AUSE of the pair's confidence; NaN = none */
-} pair_row;
-
-static const char *const region_key[SINEW_REGION_COUNT] = {"all", "noc", "occ"};
-static const char *const region_text[SINEW_REGION_COUNT] = {
-    "all scored pixels", "non-occluded pixels (noc)", "occluded pixels (occ)"};
-
-static void summarize_row(pair_row *r)
-{
-    for (int k = 0; k < SINEW_REGION_COUNT; k++)
-        sinew_flow_stats_summarize(&r->s[k], &r->err.region[k]);
-}
-
-/* ---- reading inputs ---- */
-
-/* Read an image and reduce it to SINEW_U8 1 channel: raw = 0 gives 1 where any colour
- * channel (alpha ignored) is nonzero; raw = 1 keeps the value of the first channel
- * (8-bit images only, for bit masks). */
-static int read_mask(sinew_ctx *ctx, const char *path, int raw, int invert, sinew_image *out)
-{
-    sinew_image img;
-    int st = sinew_image_read(ctx, &img, path);
-    if (st)
-        return cli_status(CMD, ctx, st);
-    int colour = img.channels == 2 ? 1 : img.channels == 4 ? 3 : img.channels;
-    if (raw && img.type != SINEW_U8) {
-        sinew_image_free(&img);
-        return cli_error(CMD, "%s: a bit mask must be an 8-bit image", path);
-    }
-    st = sinew_image_alloc(ctx, out, img.width, img.height, 1, SINEW_U8);
-    if (st) {
-        sinew_image_free(&img);
-        return cli_status(CMD, ctx, st);
-    }
-    for (int y = 0; y < img.height; y++) {
-        uint8_t *o = sinew_image_row_u8(out, y);
-        for (int x = 0; x < img.width; x++) {
-            unsigned any = 0, first;
-            if (img.type == SINEW_U8) {
-                const uint8_t *p = sinew_image_row_u8(&img, y) + (size_t)x * img.channels;
-                first = p[0];
-                for (int c = 0; c < colour; c++)
-                    any |= p[c];
-            } else {
-                const uint16_t *p = sinew_image_row_u16(&img, y) + (size_t)x * img.channels;
-                first = p[0];
-                for (int c = 0; c < colour; c++)
-                    any |= p[c];
-            }
-            uint8_t v = raw ? (uint8_t)first : (uint8_t)(any != 0);
-            o[x] = invert ? (uint8_t)!v : v;
-        }
-    }
-    sinew_image_free(&img);
-    return CLI_OK;
-}
-
-static int read_flow(sinew_ctx *ctx, const char *path, sinew_image *out)
-{
-    int st = sinew_flow_read(ctx, out, path, SINEW_FLOW_AUTO);
-    return st ? cli_status(CMD, ctx, st) : CLI_OK;
-}
-
-static int same_size(const sinew_image *a, const char *pa, const sinew_image *b, const char *pb)
-{
-    if (a->width == b->width && a->height == b->height)
-        return CLI_OK;
-    return cli_error(CMD, "%s: size %dx%d does not match %s (%dx%d)", pa, a->width, a->height, pb,
-                     b->width, b->height);
-}
-
-/* mask &= other (both U8 1 channel, same size). */
-static void mask_and(sinew_image *mask, const sinew_image *other)
-{
-    for (int y = 0; y < mask->height; y++) {
-        uint8_t *m = sinew_image_row_u8(mask, y);
-        const uint8_t *o = sinew_image_row_u8(other, y);
-        for (int x = 0; x < mask->width; x++)
-            m[x] = (uint8_t)(m[x] && o[x]);
-    }
-}
-
-/* Add a validity mask read from `path` (invert: nonzero = excluded) into *eval. */
-static int add_eval_mask(sinew_ctx *ctx, const char *path, int invert, const sinew_image *gt,
-                         const char *gt_path, sinew_image *eval)
-{
-    sinew_image m;
-    int rc = read_mask(ctx, path, 0, invert, &m);
-    if (rc)
-        return rc;
-    if ((rc = same_size(&m, path, gt, gt_path))) {
-        sinew_image_free(&m);
-        return rc;
-    }
-    if (!eval->data) {
-        *eval = m;
-        return CLI_OK;
-    }
-    mask_and(eval, &m);
-    sinew_image_free(&m);
-    return CLI_OK;
-}
-
-/* KITTI occluded split: occ = 1 where flow_noc has no ground truth. */
-static int kitti_occ_from_noc(sinew_ctx *ctx, const char *noc_path, const sinew_image *gt,
-                              const char *gt_path, sinew_image *occ)
-{
-    sinew_image noc;
-    int rc = read_flow(ctx, noc_path, &noc);
-    if (rc)
-        return rc;
-    if ((rc = same_size(&noc, noc_path, gt, gt_path))) {
-        sinew_image_free(&noc);
-        return rc;
-    }
-    int st = sinew_image_alloc(ctx, occ, gt->width, gt->height, 1, SINEW_U8);
-    if (st) {
-        sinew_image_free(&noc);
-        return cli_status(CMD, ctx, st);
-    }
-    for (int y = 0; y < gt->height; y++) {
-        const float *n = sinew_image_row_f32(&noc, y);
-        uint8_t *o = sinew_image_row_u8(occ, y);
-        for (int x = 0; x < gt->width; x++)
-            o[x] = (uint8_t) !(isfinite(n[2 * x]) && isfinite(n[2 * x + 1]));
-    }
-    sinew_image_free(&noc);
-    return CLI_OK;
-}
-
-/* ---- output helpers ---- */
-
-static void json_num(cJSON *o, const char *k, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, k, v);
-    else
-        cJSON_AddNullToObject(o, k);
-}
-
-static void json_summary_fields(cJSON *o, const sinew_flow_summary *s)
-{
-    json_num(o, "epe", s->epe);
-    json_num(o, "aae_deg", s->aae_deg);
-    json_num(o, "r05_pct", s->r05_pct);
-    json_num(o, "r1_pct", s->r1_pct);
-    json_num(o, "r3_pct", s->r3_pct);
-    json_num(o, "r5_pct", s->r5_pct);
-    json_num(o, "fl_all_pct", s->fl_all_pct);
-    cJSON_AddNumberToObject(o, "n_valid", (double)s->n_valid);
-    cJSON_AddNumberToObject(o, "n_gt", (double)s->n_gt);
-    json_num(o, "density_pct", s->density_pct);
-}
-
-/* all-region fields at top level, noc/occ as sub-objects when present. */
-static cJSON *json_regions(const sinew_flow_summary s[SINEW_REGION_COUNT], int has_occ,
-                           const char *averaging)
-{
-    cJSON *o = cJSON_CreateObject();
-    if (!o)
-        return NULL;
-    cJSON_AddStringToObject(o, "averaging", averaging);
-    json_summary_fields(o, &s[SINEW_REGION_ALL]);
-    if (has_occ) {
-        for (int k = SINEW_REGION_NOC; k <= SINEW_REGION_OCC; k++) {
-            cJSON *sub = cJSON_AddObjectToObject(o, region_key[k]);
-            if (sub)
-                json_summary_fields(sub, &s[k]);
-        }
-    }
-    return o;
-}
-
-static const char *const density_note =
-    "pixels with known ground truth but unknown estimate are not scored; density_pct = "
-    "100 n_valid / n_gt";
-
-static int print_json(cJSON *root)
-{
-    char *txt = cJSON_Print(root);
-    if (!txt)
-        return cli_error(CMD, "out of memory");
-    int ok = fputs(txt, stdout) >= 0 && fputc('\n', stdout) != EOF && fflush(stdout) == 0;
-    cJSON_free(txt);
-    return ok ? CLI_OK : cli_error(CMD, "stdout: write failed");
-}
-
-static void fmt_val(char *buf, size_t n, double v, const char *fmt)
-{
-    if (isfinite(v))
-        snprintf(buf, n, fmt, v);
-    else
-        snprintf(buf, n, "n/a");
-}
-
-/* Optional columns of the text table. */
-typedef struct {
-    int time, ause;
-} text_cols;
-
-static void text_header(FILE *f, const char *first, text_cols c)
-{
-    fprintf(f, "%-24s %10s %8s %8s %8s %7s %7s %7s %7s %7s%s%s\n", first, "n_valid", "dens%", "EPE",
-            "AAE", "R0.5%", "R1%", "R3%", "R5%", "Fl%", c.time ? "  time_s" : "",
-            c.ause ? "     AUSE" : "");
-}
-
-static void text_row(FILE *f, const char *label, const sinew_flow_summary *s, double t, double ause,
-                     text_cols c)
-{
-    char v[10][32];
-    fmt_val(v[0], sizeof v[0], s->density_pct, "%.2f");
-    fmt_val(v[1], sizeof v[1], s->epe, "%.4f");
-    fmt_val(v[2], sizeof v[2], s->aae_deg, "%.3f");
-    fmt_val(v[3], sizeof v[3], s->r05_pct, "%.2f");
-    fmt_val(v[4], sizeof v[4], s->r1_pct, "%.2f");
-    fmt_val(v[5], sizeof v[5], s->r3_pct, "%.2f");
-    fmt_val(v[6], sizeof v[6], s->r5_pct, "%.2f");
-    fmt_val(v[7], sizeof v[7], s->fl_all_pct, "%.2f");
-    fmt_val(v[8], sizeof v[8], t, "%.3f");
-    fmt_val(v[9], sizeof v[9], ause, "%.5f");
-    fprintf(f, "%-24s %10lld %8s %8s %8s %7s %7s %7s %7s %7s", label, (long long)s->n_valid, v[0],
-            v[1], v[2], v[3], v[4], v[5], v[6], v[7]);
-    if (c.time)
-        fprintf(f, " %7s", v[8]);
-    if (c.ause)
-        fprintf(f, " %8s", v[9]);
-    fputc('\n', f);
-}
-
-static void csv_val(FILE *f, double v)
-{
-    if (isfinite(v))
-        fprintf(f, ",%.10g", v);
-    else
-        fputc(',', f);
-}
-
-/* The per-region CSV columns, in the order csv_row writes them. */
-static const char *const csv_fields[] = {"epe",    "aae_deg",    "r05_pct", "r1_pct",
-                                         "r3_pct", "r5_pct",     "fl_all_pct", "n_valid",
-                                         "n_gt",   "density_pct"};
-#define CSV_NFIELDS (sizeof csv_fields / sizeof csv_fields[0])
-
-static void csv_header(FILE *f)
-{
-    fputs("layout,pair,averaging", f);
-    for (int k = 0; k < SINEW_REGION_COUNT; k++)
-        for (size_t j = 0; j < CSV_NFIELDS; j++)
-            fprintf(f, ",%s%s%s", k == 0 ? "" : region_key[k], k == 0 ? "" : "_",
-                    csv_fields[j]);
-    fputs(",runtime_s,ause\n", f);
-}
-
-static void csv_row(FILE *f, const char *layout, const char *label, const char *averaging,
-                    const sinew_flow_summary s[SINEW_REGION_COUNT], int has_occ, double t,
-                    double ause)
-{
-    /* ids come from file names; quote them if they could break the CSV */
-    if (strpbrk(label, ",\"\n")) {
-        fprintf(f, "%s,\"", layout);
-        for (const char *c = label; *c; c++)
-            fputs(*c == '"' ? "\"\"" : (char[2]){*c, 0}, f);
-        fprintf(f, "\",%s", averaging);
-    } else {
-        fprintf(f, "%s,%s,%s", layout, label, averaging);
-    }
-    for (int k = 0; k < SINEW_REGION_COUNT; k++) {
-        if (k > 0 && !has_occ) { /* no occlusion split: empty fields */
-            for (size_t j = 0; j < CSV_NFIELDS; j++)
-                fputc(',', f);
-            continue;
-        }
-        const sinew_flow_summary *r = &s[k];
-        csv_val(f, r->epe);
-        csv_val(f, r->aae_deg);
-        csv_val(f, r->r05_pct);
-        csv_val(f, r->r1_pct);
-        csv_val(f, r->r3_pct);
-        csv_val(f, r->r5_pct);
-        csv_val(f, r->fl_all_pct);
-        fprintf(f, ",%lld,%lld", (long long)r->n_valid, (long long)r->n_gt);
-        csv_val(f, r->density_pct);
-    }
-    csv_val(f, t); /* empty when not measured */
-    csv_val(f, ause);
-    fputc('\n', f);
-}
-
-/* Summary rows over several pairs: [0] mean-of-pairs, [1] pooled-pixels, per region. */
-typedef struct {
-    sinew_flow_summary mean[SINEW_REGION_COUNT];
-    sinew_flow_summary pooled[SINEW_REGION_COUNT];
-    int has_occ;
-    double mean_time_s; /* mean over pairs with a time; NaN if none */
-    double mean_ause;   /* mean of per-pair AUSE (AUSE is not pooled); NaN if none */
-} summary_rows;
-
-static int summarize_all(const pair_row *rows, size_t n, summary_rows *out)
-{
-    memset(out, 0, sizeof *out);
-    sinew_flow_errors pool;
-    memset(&pool, 0, sizeof pool);
-    sinew_flow_summary *tmp = malloc((n ? n : 1) * sizeof *tmp);
-    if (!tmp)
-        return cli_error(CMD, "out of memory");
-    double tsum = 0, asum = 0;
-    size_t tn = 0, an = 0;
-    for (size_t i = 0; i < n; i++) {
-        sinew_flow_errors_add(&pool, &rows[i].err);
-        if (isfinite(rows[i].time_s)) {
-            tsum += rows[i].time_s;
-            tn++;
-        }
-        if (isfinite(rows[i].ause)) {
-            asum += rows[i].ause;
-            an++;
-        }
-    }
-    out->has_occ = pool.has_occ;
-    for (int k = 0; k < SINEW_REGION_COUNT; k++) {
-        size_t m = 0;
-        for (size_t i = 0; i < n; i++)
-            if (k == SINEW_REGION_ALL || rows[i].err.has_occ)
-                tmp[m++] = rows[i].s[k];
-        sinew_flow_summary_mean(&out->mean[k], tmp, m);
-        sinew_flow_stats_summarize(&out->pooled[k], &pool.region[k]);
-    }
-    out->mean_time_s = tn ? tsum / (double)tn : NAN;
-    out->mean_ause = an ? asum / (double)an : NAN;
-    free(tmp);
-    return CLI_OK;
-}
-
-static int write_csv(sinew_ctx *ctx, const char *path, const char *layout, const pair_row *rows,
-                     size_t n, const summary_rows *sum)
-{
-    sinew_outfile *of;
-    int st = sinew_outfile_open(ctx, &of, path);
-    if (st)
-        return cli_status(CMD, ctx, st);
-    FILE *f = sinew_outfile_stream(of);
-    csv_header(f);
-    const char *single = n == 1 && !sum ? sinew_averaging_name(SINEW_AVG_POOLED) : "per-pair";
-    for (size_t i = 0; i < n; i++)
-        csv_row(f, layout, rows[i].id, single, rows[i].s, rows[i].err.has_occ, rows[i].time_s,
-                rows[i].ause);
-    if (sum) {
-        csv_row(f, layout, "summary", sinew_averaging_name(SINEW_AVG_PAIR_MEAN), sum->mean,
-                sum->has_occ, sum->mean_time_s, sum->mean_ause);
-        csv_row(f, layout, "summary", sinew_averaging_name(SINEW_AVG_POOLED), sum->pooled,
-                sum->has_occ, sum->mean_time_s, NAN);
-    }
-    st = sinew_outfile_commit(ctx, of);
-    return st ? cli_status(CMD, ctx, st) : CLI_OK;
-}
-
 /* ---- one pair ---- */
 
 typedef struct {
@@ -501,7 +139,7 @@ static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image 
                        conf.channels);
         goto done;
     }
-    if ((rc = same_size(&conf, path, gt, gt_path)))
+    if ((rc = score_same_size(&conf, path, gt, gt_path)))
         goto done;
     if ((st = sinew_image_alloc(ctx, &epe, gt->width, gt->height, 1, SINEW_F32)) ||
         (st = sinew_flow_epe_map(ctx, &epe, est, gt))) {
@@ -546,7 +184,7 @@ done:
 }
 
 /* A fresh row for pair `id` (no time, no AUSE yet). */
-static void row_init(pair_row *row, const char *id)
+static void row_init(score_row *row, const char *id)
 {
     memset(row, 0, sizeof *row);
     row->id = (char *)id;
@@ -560,25 +198,25 @@ static void row_init(pair_row *row, const char *id)
 static int score_vs_truth(sinew_ctx *ctx, const sinew_image *est, const sinew_image *gt,
                           const char *gt_path, const char *occ_path, const char *noc_path,
                           const char *valid_path, const char *invalid_path, sinew_image *occ,
-                          sinew_image *eval, pair_row *row)
+                          sinew_image *eval, score_row *row)
 {
     int rc;
     if (occ_path) {
-        if ((rc = read_mask(ctx, occ_path, 0, 0, occ)) ||
-            (rc = same_size(occ, occ_path, gt, gt_path)))
+        if ((rc = score_read_mask(ctx, occ_path, 0, 0, occ)) ||
+            (rc = score_same_size(occ, occ_path, gt, gt_path)))
             return rc;
-    } else if (noc_path && (rc = kitti_occ_from_noc(ctx, noc_path, gt, gt_path, occ))) {
+    } else if (noc_path && (rc = score_kitti_occ_from_noc(ctx, noc_path, gt, gt_path, occ))) {
         return rc;
     }
-    if (valid_path && (rc = add_eval_mask(ctx, valid_path, 0, gt, gt_path, eval)))
+    if (valid_path && (rc = score_add_eval_mask(ctx, valid_path, 0, gt, gt_path, eval)))
         return rc;
-    if (invalid_path && (rc = add_eval_mask(ctx, invalid_path, 1, gt, gt_path, eval)))
+    if (invalid_path && (rc = score_add_eval_mask(ctx, invalid_path, 1, gt, gt_path, eval)))
         return rc;
     int st = sinew_flow_errors_compute(ctx, &row->err, est, gt, occ->data ? occ : NULL,
                                        eval->data ? eval : NULL);
     if (st)
         return cli_status(CMD, ctx, st);
-    summarize_row(row);
+    score_summarize_row(row);
     return CLI_OK;
 }
 
@@ -586,21 +224,21 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
                       const single_opts *o)
 {
     sinew_image est = {0}, gt = {0}, occ = {0}, eval = {0}, pred = {0};
-    pair_row row;
+    score_row row;
     row_init(&row, est_path);
     sinew_mask_scores ms;
     int have_ms = 0;
     sparse_result sp = {0};
     int rc;
-    if ((rc = read_flow(ctx, est_path, &est)) || (rc = read_flow(ctx, gt_path, &gt)) ||
-        (rc = same_size(&est, est_path, &gt, gt_path)))
+    if ((rc = score_read_flow(ctx, est_path, &est)) || (rc = score_read_flow(ctx, gt_path, &gt)) ||
+        (rc = score_same_size(&est, est_path, &gt, gt_path)))
         goto done;
     if ((rc = score_vs_truth(ctx, &est, &gt, gt_path, o->occ, o->noc, o->valid, o->invalid,
                              &occ, &eval, &row)))
         goto done;
     if (o->mask) {
-        if ((rc = read_mask(ctx, o->mask, 1, 0, &pred)) ||
-            (rc = same_size(&pred, o->mask, &gt, gt_path)))
+        if ((rc = score_read_mask(ctx, o->mask, 1, 0, &pred)) ||
+            (rc = score_same_size(&pred, o->mask, &gt, gt_path)))
             goto done;
         /* Score the mask where the truth is defined: inside the evaluation mask. */
         int st = sinew_mask_scores_compute(ctx, &ms, &pred, &occ, eval.data ? &eval : NULL,
@@ -615,17 +253,17 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
         (rc = score_confidence(ctx, o->confidence, &est, &gt, gt_path, &eval, &sp)))
         goto done;
 
-    if (o->csv && (rc = write_csv(ctx, o->csv, "pair", &row, 1, NULL)))
+    if (o->csv && (rc = score_write_csv(ctx, o->csv, "pair", &row, 1, NULL)))
         goto done;
     const char *avg = sinew_averaging_name(SINEW_AVG_POOLED);
     if (o->json) {
-        cJSON *root = json_regions(row.s, row.err.has_occ, avg);
+        cJSON *root = score_json_regions(row.s, row.err.has_occ, avg);
         if (!root) {
             rc = cli_error(CMD, "out of memory");
             goto done;
         }
         cJSON_AddStringToObject(root, "averaging_text", "one pair: mean over its scored pixels");
-        cJSON_AddStringToObject(root, "missing_estimate", density_note);
+        cJSON_AddStringToObject(root, "missing_estimate", score_density_note);
         cJSON_AddStringToObject(root, "estimate", est_path);
         cJSON_AddStringToObject(root, "ground_truth", gt_path);
         if (have_ms) {
@@ -633,9 +271,9 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
             sinew_mask_scores_rates(&ms, &p, &r, &f1);
             cJSON *m = cJSON_AddObjectToObject(root, "occlusion_mask");
             if (m) {
-                json_num(m, "precision", p);
-                json_num(m, "recall", r);
-                json_num(m, "f1", f1);
+                score_json_num(m, "precision", p);
+                score_json_num(m, "recall", r);
+                score_json_num(m, "f1", f1);
                 cJSON_AddNumberToObject(m, "tp", (double)ms.tp);
                 cJSON_AddNumberToObject(m, "fp", (double)ms.fp);
                 cJSON_AddNumberToObject(m, "fn", (double)ms.fn);
@@ -649,7 +287,7 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
                 cJSON_AddNumberToObject(s, "n", (double)sp.n);
                 cJSON_AddNumberToObject(s, "steps", SPARSE_STEPS);
                 if (sp.have) {
-                    json_num(s, "ause", sp.ause);
+                    score_json_num(s, "ause", sp.ause);
                     cJSON_AddItemToObject(s, "curve",
                                           cJSON_CreateDoubleArray(sp.curve, SPARSE_STEPS));
                     cJSON_AddItemToObject(s, "oracle",
@@ -659,7 +297,7 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
                 }
             }
         }
-        rc = print_json(root);
+        rc = score_print_json(root);
         cJSON_Delete(root);
         goto done;
     }
@@ -667,18 +305,18 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
     printf("averaging: %s (one pair: mean over its scored pixels)\n", avg);
     printf("dens%% = scored share of the known ground truth (unknown estimates are not "
            "scored)\n\n");
-    text_cols none = {0, 0};
-    text_header(stdout, "region", none);
+    score_cols none = {0, 0};
+    score_text_header(stdout, "region", none);
     for (int k = 0; k < SINEW_REGION_COUNT; k++)
         if (k == SINEW_REGION_ALL || row.err.has_occ)
-            text_row(stdout, region_key[k], &row.s[k], NAN, NAN, none);
+            score_text_row(stdout, score_region_key[k], &row.s[k], NAN, NAN, none);
     if (have_ms) {
         double p, r, f1;
         char a[3][32];
         sinew_mask_scores_rates(&ms, &p, &r, &f1);
-        fmt_val(a[0], sizeof a[0], p, "%.4f");
-        fmt_val(a[1], sizeof a[1], r, "%.4f");
-        fmt_val(a[2], sizeof a[2], f1, "%.4f");
+        score_fmt_val(a[0], sizeof a[0], p, "%.4f");
+        score_fmt_val(a[1], sizeof a[1], r, "%.4f");
+        score_fmt_val(a[2], sizeof a[2], f1, "%.4f");
         printf("\nocclusion mask (bits %u): precision %s  recall %s  F1 %s  (tp %lld fp %lld fn "
                "%lld tn %lld)\n",
                o->mask_bits, a[0], a[1], a[2], (long long)ms.tp, (long long)ms.fp, (long long)ms.fn,
@@ -686,7 +324,7 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
     }
     if (o->confidence) {
         char a[32];
-        fmt_val(a, sizeof a, sp.have ? sp.ause : NAN, "%.5f");
+        score_fmt_val(a, sizeof a, sp.have ? sp.ause : NAN, "%.5f");
         printf("\nconfidence: AUSE %s (sparsification, %d steps, %zu pixels)\n", a, SPARSE_STEPS,
                sp.n);
     }
@@ -727,7 +365,7 @@ static int estimate_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts 
         rc = cli_status(CMD, ctx, st);
         goto done;
     }
-    if ((rc = same_size(&f0, p->frame0, gt, p->gt)) || (rc = same_size(&f1, p->frame1, gt, p->gt)))
+    if ((rc = score_same_size(&f0, p->frame0, gt, p->gt)) || (rc = score_same_size(&f1, p->frame1, gt, p->gt)))
         goto done;
     if (f0.type != f1.type || f0.channels != f1.channels) {
         rc = cli_error(CMD, "%s: pixel format differs from %s", p->frame1, p->frame0);
@@ -768,14 +406,14 @@ done:
 }
 
 /* Score one dataset pair into *row (row->id borrowed from the pair). */
-static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts *o, pair_row *row)
+static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts *o, score_row *row)
 {
     sinew_image est = {0}, gt = {0}, occ = {0}, eval = {0};
     char *est_path = NULL, *conf_path = NULL, *tried = NULL;
     int rc;
     row_init(row, p->id);
     if (o->preset) {
-        if ((rc = read_flow(ctx, p->gt, &gt)) ||
+        if ((rc = score_read_flow(ctx, p->gt, &gt)) ||
             (rc = estimate_pair(ctx, p, o, &gt, &est, &row->time_s)))
             goto done;
     } else {
@@ -785,8 +423,8 @@ static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts
                        : cli_error(CMD, "out of memory");
             goto done;
         }
-        if ((rc = read_flow(ctx, p->gt, &gt)) || (rc = read_flow(ctx, est_path, &est)) ||
-            (rc = same_size(&est, est_path, &gt, p->gt)))
+        if ((rc = score_read_flow(ctx, p->gt, &gt)) || (rc = score_read_flow(ctx, est_path, &est)) ||
+            (rc = score_same_size(&est, est_path, &gt, p->gt)))
             goto done;
     }
     if ((rc = score_vs_truth(ctx, &est, &gt, p->gt, p->occ, p->gt_noc, NULL, p->invalid, &occ,
@@ -816,15 +454,15 @@ done:
     return rc;
 }
 
-static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *rows, size_t n)
+static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *rows, size_t n)
 {
-    summary_rows sum;
-    int rc = summarize_all(rows, n, &sum);
+    score_summary sum;
+    int rc = score_summarize_all(rows, n, &sum);
     if (rc)
         return rc;
-    if (o->csv && (rc = write_csv(ctx, o->csv, o->layout, rows, n, &sum)))
+    if (o->csv && (rc = score_write_csv(ctx, o->csv, o->layout, rows, n, &sum)))
         return rc;
-    text_cols cols = {isfinite(sum.mean_time_s) ? 1 : 0, o->confidences != NULL};
+    score_cols cols = {isfinite(sum.mean_time_s) ? 1 : 0, o->confidences != NULL};
     if (o->json) {
         cJSON *root = cJSON_CreateObject(), *pairs = NULL, *s = NULL;
         if (root) {
@@ -839,7 +477,7 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
             } else {
                 cJSON_AddStringToObject(root, "estimates", o->estimates);
             }
-            cJSON_AddStringToObject(root, "missing_estimate", density_note);
+            cJSON_AddStringToObject(root, "missing_estimate", score_density_note);
             pairs = cJSON_AddArrayToObject(root, "pairs");
             s = cJSON_AddObjectToObject(root, "summary");
         }
@@ -848,19 +486,19 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
             return cli_error(CMD, "out of memory");
         }
         for (size_t i = 0; i < n; i++) {
-            cJSON *r = json_regions(rows[i].s, rows[i].err.has_occ,
+            cJSON *r = score_json_regions(rows[i].s, rows[i].err.has_occ,
                                     "one pair: mean over its scored pixels");
             if (!r)
                 continue;
             cJSON_AddStringToObject(r, "id", rows[i].id);
             if (cols.time)
-                json_num(r, "runtime_s", rows[i].time_s);
+                score_json_num(r, "runtime_s", rows[i].time_s);
             if (cols.ause)
-                json_num(r, "ause", rows[i].ause);
+                score_json_num(r, "ause", rows[i].ause);
             cJSON_AddItemToArray(pairs, r);
         }
-        cJSON *m = json_regions(sum.mean, sum.has_occ, sinew_averaging_name(SINEW_AVG_PAIR_MEAN));
-        cJSON *p = json_regions(sum.pooled, sum.has_occ, sinew_averaging_name(SINEW_AVG_POOLED));
+        cJSON *m = score_json_regions(sum.mean, sum.has_occ, sinew_averaging_name(SINEW_AVG_PAIR_MEAN));
+        cJSON *p = score_json_regions(sum.pooled, sum.has_occ, sinew_averaging_name(SINEW_AVG_POOLED));
         if (m) {
             cJSON_AddStringToObject(m, "averaging_text", sinew_averaging_text(SINEW_AVG_PAIR_MEAN));
             cJSON_AddNumberToObject(m, "n_pairs", (double)sum.mean[0].n_pairs);
@@ -872,10 +510,10 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
             cJSON_AddItemToObject(s, sinew_averaging_name(SINEW_AVG_POOLED), p);
         }
         if (cols.time)
-            json_num(s, "mean_runtime_s", sum.mean_time_s);
+            score_json_num(s, "mean_runtime_s", sum.mean_time_s);
         if (cols.ause && m)
-            json_num(m, "ause", sum.mean_ause);
-        rc = print_json(root);
+            score_json_num(m, "ause", sum.mean_ause);
+        rc = score_print_json(root);
         cJSON_Delete(root);
         return rc;
     }
@@ -896,15 +534,15 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const pair_row *r
     for (int k = 0; k < SINEW_REGION_COUNT; k++) {
         if (k != SINEW_REGION_ALL && !sum.has_occ)
             continue;
-        printf("\n[%s] %s\n", region_key[k], region_text[k]);
-        text_header(stdout, "pair", cols);
+        printf("\n[%s] %s\n", score_region_key[k], score_region_text[k]);
+        score_text_header(stdout, "pair", cols);
         for (size_t i = 0; i < n; i++)
             if (k == SINEW_REGION_ALL || rows[i].err.has_occ)
-                text_row(stdout, rows[i].id, &rows[i].s[k], rows[i].time_s,
+                score_text_row(stdout, rows[i].id, &rows[i].s[k], rows[i].time_s,
                          k == SINEW_REGION_ALL ? rows[i].ause : NAN, cols);
-        text_row(stdout, sinew_averaging_name(SINEW_AVG_PAIR_MEAN), &sum.mean[k], sum.mean_time_s,
+        score_text_row(stdout, sinew_averaging_name(SINEW_AVG_PAIR_MEAN), &sum.mean[k], sum.mean_time_s,
                  k == SINEW_REGION_ALL ? sum.mean_ause : NAN, cols);
-        text_row(stdout, sinew_averaging_name(SINEW_AVG_POOLED), &sum.pooled[k], sum.mean_time_s,
+        score_text_row(stdout, sinew_averaging_name(SINEW_AVG_POOLED), &sum.pooled[k], sum.mean_time_s,
                  NAN, cols);
     }
     return fflush(stdout) == 0 ? CLI_OK : cli_error(CMD, "stdout: write failed");
@@ -916,7 +554,7 @@ static int run_layout(sinew_ctx *ctx, const layout_opts *o)
     int rc = score_layout_list(CMD, o->layout, o->root, o->pass, &set);
     if (rc)
         return rc;
-    pair_row *rows = calloc(set.n, sizeof *rows);
+    score_row *rows = calloc(set.n, sizeof *rows);
     if (!rows) {
         score_set_free(&set);
         return cli_error(CMD, "out of memory");

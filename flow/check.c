@@ -27,7 +27,7 @@ void sinew_check_params_default(sinew_check_params *p)
     if (!p)
         return;
     memset(p, 0, sizeof *p);
-    /* Sundaram, Brox, Keutzer ECCV 2010 constants (see ../shared notes §4.1, [V2]). */
+    /* Constants of Sundaram, Brox, Keutzer, ECCV 2010. */
     p->fb_alpha = 0.01;
     p->fb_beta = 0.5;
     p->boundary_alpha = 0.01;

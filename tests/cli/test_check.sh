@@ -86,7 +86,7 @@ assert np.isnan(fb[out]).all() and (fb[~out] == 0).all()
 assert (c[out] == 0).all() and (c[~out] == 1).all()
 assert (c16 == np.round(c * 65535)).all()
 assert j['counts']['outside'] == 19 and j['counts']['kept'] == 77, j['counts']
-# Sundaram, Brox, Keutzer ECCV 2010 defaults; [V2] published-numbers.md section 4.1
+# Sundaram, Brox, Keutzer ECCV 2010 defaults
 assert j['params']['fb_alpha'] == 0.01 and j['params']['fb_beta'] == 0.5
 assert j['width'] == 12 and j['height'] == 8
 EOF

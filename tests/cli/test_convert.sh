@@ -1,6 +1,6 @@
 # SPDX-License-Identifier: MIT
 # End-to-end tests of `sinew convert` and the top-level --help/--version: every
-# Middlebury ground-truth .flo (../shared/data, see SOURCES.md) round-trips through
+# Middlebury ground-truth .flo (Baker et al., IJCV 2011; read from $SINEW_DATA) round-trips through
 # .npy and PFM bit-exactly and through KITTI PNG within 1/128 px (checked with numpy);
 # malformed inputs give one stderr line naming the file, a non-zero exit and no output.
 . "$(dirname "$0")/lib.sh"
@@ -47,8 +47,8 @@ if ! have_data middlebury; then
     skip "middlebury round trips" "no data in $SINEW_DATA"
     exit 0
 fi
-# Middlebury ground truth (SOURCES.md §1) and, for motions up to 78 px, the two
-# FlyingChairs examples (SOURCES.md §3), as paths relative to the data folder.
+# Middlebury ground truth (Baker et al., IJCV 2011) and, for motions up to 78 px, the two
+# FlyingChairs examples, as paths relative to the data folder.
 SEQS="middlebury/Dimetrodon/flow10.flo middlebury/Grove2/flow10.flo
 middlebury/Grove3/flow10.flo middlebury/Hydrangea/flow10.flo
 middlebury/RubberWhale/flow10.flo middlebury/Urban2/flow10.flo middlebury/Urban3/flow10.flo

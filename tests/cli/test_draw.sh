@@ -55,7 +55,7 @@ def read_png(path):
 EOF
 
 # Independent numpy version of the Middlebury colour code (colorcode.cpp, Scharstein
-# 2007; recorded in ../shared/notes/published-numbers.md section 6.2 [V]).
+# 2007, published with Baker et al., IJCV 2011).
 cat >"$T/wheel.py" <<'EOF'
 import numpy as np
 def wheel():

@@ -1,7 +1,7 @@
 # SPDX-License-Identifier: MIT
 # End-to-end tests of `sinew flow`: help, forward and backward fields on synthetic PGM
 # frames with a known shift and on the Middlebury RubberWhale pair (Baker et al., IJCV 2011;
-# ../shared/data, see SOURCES.md; endpoint error computed with numpy), and every bad-input
+# read from $SINEW_DATA; endpoint error computed with numpy), and every bad-input
 # path: one stderr line naming the problem, non-zero exit, no output file.
 . "$(dirname "$0")/lib.sh"
 

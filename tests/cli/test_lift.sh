@@ -175,7 +175,7 @@ for c in lift match; do
         pass "$c --help notice"; else fail "$c --help notice" "missing"; fi
 done
 
-# ---- 7-Scenes (Shotton et al., CVPR 2013; SOURCES.md §2): static scene, camera-to-world
+# ---- 7-Scenes (Shotton et al., CVPR 2013): static scene, camera-to-world
 # poses, fx = fy = 585, cx = 320, cy = 240, depth mm. The flow is computed in numpy from
 # the ground-truth relative pose (frame-0 points projected into frame 1); the depth is read
 # by sinew itself (a zero-flow lift of frame 0 lists every usable X0). Checks: X0 against

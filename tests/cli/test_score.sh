@@ -142,7 +142,7 @@ if have_data middlebury; then
         fail "Middlebury layout" "exit $? ($(head -c 300 "$T/err"))"
     fi
     # Ground truth scored against itself: EPE 0, AAE 0, density 100 % (unknown pixels of
-    # Dimetrodon/Hydrangea/RubberWhale skipped: SOURCES.md counts 10772/14880/3622).
+    # Dimetrodon/Hydrangea/RubberWhale skipped: numpy counts 10772/14880/3622 on the published files).
     V="$SINEW_DATA/middlebury/Dimetrodon/flow10.flo"
     if "$SINEW_BIN" score "$V" "$V" --json >"$T/self.json" 2>"$T/err" &&
         "$PYTHON" -c 'import json,sys; d=json.load(open(sys.argv[1]));

@@ -9,14 +9,14 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* 7-Scenes intrinsics (SOURCES.md §2, camera-intrinsics.txt): fx = fy = 585, cx = 320,
+/* 7-Scenes intrinsics (Shotton et al., CVPR 2013; the dataset's camera-intrinsics.txt): fx = fy = 585, cx = 320,
  * cy = 240, 640x480. */
 static void seven_scenes(sinew_camera *c)
 {
     sinew_camera_init(c, 585, 585, 320, 240, 640, 480);
 }
 
-/* TUM RGB-D "Freiburg 1 RGB" calibration (published-numbers.md §7, [V2]): a real lens
+/* TUM RGB-D "Freiburg 1 RGB" calibration (Sturm et al., IROS 2012; the benchmark's file-format page): a real lens
  * with strong radial distortion (d0..d4 = k1 k2 p1 p2 k3). */
 static void freiburg1(sinew_camera *c)
 {
@@ -34,8 +34,8 @@ static void test_camera_backproject_hand_values(void **state)
     sinew_camera c;
     seven_scenes(&c);
     double X[3];
-    /* Pinhole back-projection X = (u - cx) z / fx, Y = (v - cy) z / fy (TUM page formula,
-     * published-numbers.md §7 [V2]); hand-computed: (400 - 320) * 2 / 585 = 160/585. */
+    /* Pinhole back-projection X = (u - cx) z / fx, Y = (v - cy) z / fy (the TUM RGB-D
+     * benchmark's file-format page, Sturm et al., IROS 2012); hand-computed: (400 - 320) * 2 / 585 = 160/585. */
     assert_true(sinew_camera_unproject(&c, 400, 100, 2.0, X));
     assert_near(X[0], 160.0 / 585.0, 1e-15);
     assert_near(X[1], -280.0 / 585.0, 1e-15);
@@ -44,7 +44,7 @@ static void test_camera_backproject_hand_values(void **state)
     assert_true(sinew_camera_unproject(&c, 320, 240, 1.5, X));
     assert_near(X[0], 0, 0);
     assert_near(X[1], 0, 0);
-    /* TUM ROS default intrinsics 525/319.5/239.5 [V2]: pixel (100, 400) at z = 2. */
+    /* TUM ROS default intrinsics 525/319.5/239.5 (the same page): pixel (100, 400) at z = 2. */
     sinew_camera_init(&c, 525, 525, 319.5, 239.5, 640, 480);
     sinew_camera_unproject(&c, 100, 400, 2.0, X);
     assert_near(X[0], -439.0 / 525.0, 1e-15);
@@ -144,7 +144,7 @@ static void test_camera_load_formats(void **state)
     sinew_ctx *ctx = sinew_ctx_new();
     char *dir = tu_tmpdir();
     sinew_camera c;
-    /* The 7-Scenes text layout: tab separated, scientific notation (SOURCES.md §2). */
+    /* The 7-Scenes text layout: tab separated, scientific notation (the dataset's files). */
     assert_int_equal(load_text(ctx, dir,
                                "5.850000000e+02\t0.000000000e+00\t3.200000000e+02\t\n"
                                "0.000000000e+00\t5.850000000e+02\t2.400000000e+02\t\n"

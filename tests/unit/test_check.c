@@ -110,7 +110,7 @@ static void test_check_defaults_are_published_constants(void **state)
     (void)state;
     sinew_check_params p;
     sinew_check_params_default(&p);
-    /* Sundaram, Brox, Keutzer ECCV 2010; constants [V2] in published-numbers.md §4.1. */
+    /* Sundaram, Brox, Keutzer ECCV 2010 constants. */
     assert_true(p.fb_alpha == 0.01 && p.fb_beta == 0.5);
     assert_true(p.boundary_alpha == 0.01 && p.boundary_beta == 0.002);
     sinew_check_param list[SINEW_CHECK_NPARAMS];

@@ -12,9 +12,8 @@
 #define PI_T 3.14159265358979323846
 
 /* ---- independent reference of the Middlebury colour code ----
- * Source: colorcode.cpp (D. Scharstein, 2007), as recorded in
- * ../shared/notes/published-numbers.md section 6.2 [V], cited in Baker et al.,
- * IJCV 92(1):1-31, 2011. Written here in the published loop style (a running column
+ * Source: colorcode.cpp (D. Scharstein, 2007), the colour code published with the
+ * Middlebury flow benchmark, Baker et al., IJCV 92(1):1-31, 2011. Written here in the published loop style (a running column
  * counter over six segments), separately from flow/draw.c's per-index formula. */
 enum { RY = 15, YG = 6, GC = 4, CB = 11, BM = 13, MR = 6, NCOLS = RY + YG + GC + CB + BM + MR };
 
@@ -94,7 +93,7 @@ static void test_draw_wheel_entries_match_construction(void **state)
     uint8_t rgb[3];
     assert_int_equal(sinew_wheel_entry(-1, rgb), SINEW_EINVAL);
     assert_int_equal(sinew_wheel_entry(55, rgb), SINEW_EINVAL);
-    /* Segment starts worked by hand from the segment table (published-numbers.md 6.2):
+    /* Segment starts worked by hand from the segment table of colorcode.cpp:
      * 0 red, 15 yellow, 21 green, 25 cyan, 36 blue, 49 magenta, 7 = 255*7/15 = 119 green,
      * 54 = 255 - 255*5/6 = 43 blue. */
     const int hand[][4] = {{0, 255, 0, 0},    {7, 255, 119, 0},  {15, 255, 255, 0},

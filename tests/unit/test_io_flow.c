@@ -2,7 +2,7 @@
 /* Unit tests for flow-field and array files (flow/io_flow.c, io_npy.c, io_pfm.c):
  * round trips in every format, each format's unknown-vector convention, malformed
  * files, allocation-failure injection, and external checks against the Middlebury
- * ground truth (facts recorded in ../shared/data/SOURCES.md), NumPy (Debian
+ * ground truth (facts measured with numpy on the published files), NumPy (Debian
  * python3-numpy reading and writing .npy, including float16 rounding) and the
  * published KITTI flow PNG formula. */
 #define _POSIX_C_SOURCE 200809L
@@ -74,7 +74,7 @@ static void test_io_flow_flo_layout(void **state)
     unsigned char *buf;
     size_t len;
     assert_int_equal(sinew_read_file(f->ctx, p, 1000, &buf, &len), SINEW_OK);
-    /* Middlebury flow-code README (published-numbers.md §6.1): "PIEH", int32 w, h, then
+    /* Middlebury flow-code README (Baker et al., IJCV 2011): "PIEH", int32 w, h, then
      * (u, v) float32 pairs row-major, little-endian; unknown written as 1e10. */
     assert_int_equal(len, 12 + 3 * 2 * 8);
     assert_memory_equal(buf, "PIEH\x03\0\0\0\x02\0\0\0", 12);
@@ -175,7 +175,7 @@ static void test_io_flow_kitti_formula(void **state)
     r1[3] = -250.25f;
     const char *p = tu_fixture_path(f, "k.png");
     assert_int_equal(sinew_flow_write(f->ctx, p, &a, SINEW_FLOW_AUTO), SINEW_OK);
-    /* KITTI 2015 devkit readme (published-numbers.md §3.1): 16-bit RGB, channel 1 = u,
+    /* KITTI 2015 devkit readme (Menze and Geiger, CVPR 2015): 16-bit RGB, channel 1 = u,
      * channel 2 = v, flow = (code - 2^15) / 64, channel 3 = valid. The writer stores
      * round(64 c + 2^15). */
     sinew_image png;
@@ -602,11 +602,11 @@ static void test_io_flow_published_ground_truth(void **state)
     tu_fixture *f = *state;
     if (!tu_data_dir())
         skip();
-    /* Facts from ../shared/data/SOURCES.md (numpy on the same files): size, count of
+    /* Facts measured with numpy on the same published files: size, count of
      * unknown pixels (|u| or |v| > 1e9) and maximum |flow| to 0.1 px; §1 Middlebury,
      * §3 FlyingChairs (no unknown pixels, max |flow| 78.0 and 63.5). Tolerance 0.05 px
      * (the records are rounded to 0.1), except FlyingChairs pair 0: numpy on that file
-     * gives 77.945 (float32 and float64 alike), which SOURCES.md records as 78.0, so that
+     * gives 77.945 (float32 and float64 alike), which the rounded record gives as 78.0, so that
      * entry is checked to 0.1 px. */
     static const struct {
         const char *seq;
@@ -652,7 +652,7 @@ static void test_io_flow_published_ground_truth(void **state)
             fail_msg("%s: unknown %ld (want %ld), max |flow| %.3f (want %.1f)", gt[i].seq, unknown,
                      gt[i].unknown, maxmag, gt[i].maxmag);
         if (strstr(gt[i].seq, "Venus"))
-            assert_true(maxv == 0.0); /* SOURCES.md: "Venus has v == 0" */
+            assert_true(maxv == 0.0); /* numpy on the published file: Venus has v == 0 */
         sinew_image_free(&fl);
     }
 }

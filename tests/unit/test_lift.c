@@ -18,7 +18,7 @@ static void test_lift_depth_codes_and_scale(void **state)
     sinew_image raw, z;
     assert_int_equal(sinew_image_alloc(ctx, &raw, 4, 2, 1, SINEW_U16), SINEW_OK);
     uint16_t *r0 = sinew_image_row_u16(&raw, 0), *r1 = sinew_image_row_u16(&raw, 1);
-    /* TUM RGB-D convention (published-numbers.md §7 [V2]): 5000 = 1 m, 10000 = 2 m,
+    /* TUM RGB-D convention (Sturm et al., IROS 2012; file-format page): 5000 = 1 m, 10000 = 2 m,
      * 0 = missing; 65535 is the saturated/invalid code of many sensors (common practice). */
     r0[0] = 5000;
     r0[1] = 10000;
@@ -50,7 +50,7 @@ static void test_lift_depth_codes_and_scale(void **state)
     assert_int_equal(n, 3);
     assert_near(med, 1.0, 0);
     sinew_image_free(&z);
-    /* Millimetre sensors: scale 1000 (7-Scenes, SOURCES.md §2). */
+    /* Millimetre sensors: scale 1000 (7-Scenes, Shotton et al., CVPR 2013). */
     p.scale = 1000;
     p.near = 0;
     p.far = INFINITY;
@@ -753,7 +753,7 @@ static void test_lift_pose_file(void **state)
     char *dir = tu_tmpdir();
     char p[600];
     tu_path(p, sizeof p, dir, "pose.txt");
-    /* 7-Scenes layout: tab separated, CRLF (SOURCES.md §2). */
+    /* 7-Scenes layout: tab separated, CRLF (the dataset's pose files). */
     const char *t = "  1.0e+000\t0\t0\t0.5\t\r\n0 1 0 -0.25\r\n0 0 1 2\r\n0 0 0 1\r\n";
     tu_write_bytes(p, t, strlen(t));
     sinew_rigid T;
@@ -777,7 +777,7 @@ static void test_lift_pose_file(void **state)
     sinew_ctx_free(ctx);
 }
 
-/* ---- 7-Scenes (Shotton et al., CVPR 2013; SOURCES.md §2) ----
+/* ---- 7-Scenes (Shotton et al., CVPR 2013) ----
  * Static scene, camera-to-world poses in metres, fx = fy = 585, cx = 320, cy = 240,
  * depth in millimetres, 0 = invalid. With a static scene every correct lifted match
  * satisfies X1 = T X0 with T = inv(P1) P0. */

@@ -180,7 +180,7 @@ static void test_run_shards_partition_pairs(void **state)
 /* Crafted example in the style of a TUM RGB-D rgb.txt/depth.txt pair (30 Hz colour,
  * depth stamps offset by a few milliseconds, one depth frame dropped, one colour
  * frame with two depth candidates). Rule: |ta - tb| < 0.02 s, greedy on the smallest
- * difference, each stamp used once (published-numbers.md section 7). */
+ * difference, each stamp used once (the TUM RGB-D association tool; Sturm et al., IROS 2012). */
 static void test_run_associate_greedy_within_tolerance(void **state)
 {
     (void)state;

@@ -420,6 +420,37 @@ int sinew_write_file(sinew_ctx *ctx, const char *path, const void *buf, size_t l
     return sinew_outfile_commit(ctx, f);
 }
 
+int sinew__open_regular(sinew_ctx *ctx, const char *path, FILE **fp)
+{
+    *fp = NULL;
+    if (!path || !*path)
+        return sinew__fail(ctx, SINEW_EINVAL, "empty file name");
+    /* O_NONBLOCK: opening a FIFO for reading would otherwise wait for a writer. */
+    int fd = open(path, O_RDONLY | O_NONBLOCK | O_CLOEXEC);
+    if (fd < 0)
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open: %s", path, strerror(errno));
+    struct stat st;
+    const char *why = NULL;
+    if (fstat(fd, &st) != 0)
+        why = "cannot stat";
+    else if (S_ISDIR(st.st_mode))
+        why = "is a directory";
+    else if (!S_ISREG(st.st_mode))
+        why = "not a regular file (a device, FIFO or socket)";
+    else {
+        int fl = fcntl(fd, F_GETFL);
+        if (fl == -1 || fcntl(fd, F_SETFL, fl & ~O_NONBLOCK) == -1)
+            why = "cannot open";
+    }
+    FILE *f = why ? NULL : fdopen(fd, "rb");
+    if (!f) {
+        close(fd);
+        return sinew__fail(ctx, SINEW_EIO, "%s: %s", path, why ? why : "cannot open");
+    }
+    *fp = f;
+    return SINEW_OK;
+}
+
 int sinew_read_file(sinew_ctx *ctx, const char *path, size_t max_bytes, unsigned char **buf,
                     size_t *len)
 {
@@ -427,13 +458,14 @@ int sinew_read_file(sinew_ctx *ctx, const char *path, size_t max_bytes, unsigned
         return SINEW_EINVAL;
     *buf = NULL;
     *len = 0;
-    FILE *fp = fopen(path, "rb");
-    if (!fp)
-        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open: %s", path, strerror(errno));
+    FILE *fp;
+    int rc = sinew__open_regular(ctx, path, &fp);
+    if (rc)
+        return rc;
     struct stat st;
-    if (fstat(fileno(fp), &st) != 0 || S_ISDIR(st.st_mode)) {
+    if (fstat(fileno(fp), &st) != 0) {
         fclose(fp);
-        return sinew__fail(ctx, SINEW_EIO, "%s: not a regular file", path);
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot stat: %s", path, strerror(errno));
     }
     if ((uint64_t)st.st_size > (uint64_t)max_bytes) {
         fclose(fp);

@@ -18,19 +18,7 @@
 
 int sinew__io_open(sinew_ctx *ctx, const char *path, FILE **fp)
 {
-    *fp = NULL;
-    if (!path || !*path)
-        return sinew__fail(ctx, SINEW_EINVAL, "empty file name");
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open: %s", path, strerror(errno));
-    struct stat st;
-    if (fstat(fileno(f), &st) != 0 || S_ISDIR(st.st_mode)) {
-        fclose(f);
-        return sinew__fail(ctx, SINEW_EIO, "%s: is a directory", path);
-    }
-    *fp = f;
-    return SINEW_OK;
+    return sinew__open_regular(ctx, path, fp);
 }
 
 int sinew__io_read(sinew_ctx *ctx, const char *path, FILE *fp, void *buf, size_t n,

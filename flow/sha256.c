@@ -129,9 +129,10 @@ int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32]
 {
     if (!ctx || !path || !digest)
         return SINEW_EINVAL;
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open: %s", path, strerror(errno));
+    FILE *f;
+    int rc = sinew__open_regular(ctx, path, &f);
+    if (rc)
+        return rc;
     enum { CHUNK = 1 << 16 };
     unsigned char *buf = sinew__alloc(ctx, CHUNK);
     if (!buf) {

@@ -5,6 +5,7 @@
 #define SINEW_INTERNAL_BASE_H
 
 #include <stddef.h>
+#include <stdio.h>
 #include <stdint.h>
 
 #include "flow/core.h"
@@ -35,6 +36,11 @@ static inline int sinew__add_size(size_t a, size_t b, size_t *out)
 {
     return __builtin_add_overflow(a, b, out);
 }
+
+/* Open an input file for reading. It must be a regular file, checked with fstat on the
+ * open descriptor (a FIFO is opened without blocking, so a FIFO or device is refused
+ * instead of hanging or reading forever). Errors name the path: SINEW_EIO. */
+int sinew__open_regular(sinew_ctx *ctx, const char *path, FILE **fp);
 
 /* Validate image dimensions from a header before allocating anything: dims >= 1,
  * width*height within the context's pixel limit. `what` names the file or object

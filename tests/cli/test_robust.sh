@@ -60,3 +60,28 @@ mkdir -p "$T/adir.flo"
 expect_error "output is a directory" - "adir\.flo.*directory" "$SINEW_BIN" convert "$seed" "$T/adir.flo"
 # --- output folder that does not exist ---
 expect_error "missing output folder" "$T/nope/x.flo" "nope/x\.flo" "$SINEW_BIN" convert "$seed" "$T/nope/x.flo"
+
+# --- devices and FIFOs as inputs (issue 21, item 1): refused at once, never read ------
+# On the previous main a FIFO blocked in open() and /dev/zero was hashed forever by run;
+# `timeout` turns a hang into a failure here (exit 124 and no error line).
+mkfifo "$T/fifo.flo" "$T/fifo.txt"
+expect_error "FIFO flow input is refused" - "fifo\.flo: not a regular file" \
+    timeout -s KILL 30 "$SINEW_BIN" convert "$T/fifo.flo" "$T/fifo_out.npy"
+expect_error "device flow input is refused" - "/dev/zero: not a regular file" \
+    timeout -s KILL 30 "$SINEW_BIN" flow /dev/zero /dev/zero -o "$T/dev_out.flo"
+expect_error "FIFO intrinsics are refused" "$T/fifo_m.npy" "fifo\.txt: not a regular file" \
+    timeout -s KILL 30 "$SINEW_BIN" lift --flow "$T/small.npy" --depth0 "$T/small.npy" \
+    --depth1 "$T/small.npy" --intrinsics "$T/fifo.txt" -o "$T/fifo_m.npy"
+mkdir -p "$T/fiforun"
+mkfifo "$T/fiforun/manifest.json"
+expect_error "FIFO manifest is refused by report" "$T/fiforun/report.html" \
+    "manifest\.json: not a regular file" timeout -s KILL 30 "$SINEW_BIN" report "$T/fiforun"
+# A sequence whose frame is /dev/zero: the pair fails with the device named, the run ends.
+"$SINEW_BIN" synth -o "$T/devseq" --frames 2 --size 64x48 >/dev/null 2>&1 ||
+    fail "device frame in a run" "synth failed"
+sed 's#"color/000001.png"#"/dev/zero"#' "$T/devseq/sequence.json" >"$T/devseq/dev.json"
+timeout -s KILL 60 "$SINEW_BIN" run "$T/devseq/dev.json" -o "$T/devrun" --preset fast >"$T/out" 2>"$T/err"
+rc=$?
+if [ "$rc" -eq 1 ] && grep -q "/dev/zero: not a regular file" "$T/out" "$T/err"; then
+    pass "device frame in a run"
+else fail "device frame in a run" "exit $rc: $(head -c 300 "$T/err")"; fi

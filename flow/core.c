@@ -47,20 +47,34 @@ static void default_free(void *ud, void *p)
 const char *sinew_strerror(int status)
 {
     switch (status) {
-    case SINEW_OK: return "success";
-    case SINEW_EINVAL: return "invalid argument";
-    case SINEW_ENOMEM: return "out of memory";
-    case SINEW_EOVERFLOW: return "size overflow";
-    case SINEW_ELIMIT: return "limit exceeded";
-    case SINEW_ESIZE: return "sizes do not match";
-    case SINEW_EIO: return "input/output error";
-    case SINEW_EFORMAT: return "malformed file";
-    case SINEW_EUNSUPPORTED: return "unsupported";
-    case SINEW_ECONFIG: return "bad configuration";
-    case SINEW_EVALUE: return "invalid value";
-    case SINEW_EINTERRUPTED: return "interrupted";
-    case SINEW_EINTERNAL: return "internal error";
-    default: return "unknown status";
+    case SINEW_OK:
+        return "success";
+    case SINEW_EINVAL:
+        return "invalid argument";
+    case SINEW_ENOMEM:
+        return "out of memory";
+    case SINEW_EOVERFLOW:
+        return "size overflow";
+    case SINEW_ELIMIT:
+        return "limit exceeded";
+    case SINEW_ESIZE:
+        return "sizes do not match";
+    case SINEW_EIO:
+        return "input/output error";
+    case SINEW_EFORMAT:
+        return "malformed file";
+    case SINEW_EUNSUPPORTED:
+        return "unsupported";
+    case SINEW_ECONFIG:
+        return "bad configuration";
+    case SINEW_EVALUE:
+        return "invalid value";
+    case SINEW_EINTERRUPTED:
+        return "interrupted";
+    case SINEW_EINTERNAL:
+        return "internal error";
+    default:
+        return "unknown status";
     }
 }
 
@@ -200,11 +214,9 @@ int sinew__check_dims(sinew_ctx *ctx, const char *what, int64_t width, int64_t h
     if (width < 1 || height < 1)
         return sinew__fail(ctx, SINEW_EFORMAT, "%s: invalid dimensions %lldx%lld", what,
                            (long long)width, (long long)height);
-    if (width > ctx->max_pixels || height > ctx->max_pixels ||
-        width > ctx->max_pixels / height)
-        return sinew__fail(ctx, SINEW_ELIMIT,
-                           "%s: %lldx%lld exceeds the limit of %lld pixels", what,
-                           (long long)width, (long long)height, (long long)ctx->max_pixels);
+    if (width > ctx->max_pixels || height > ctx->max_pixels || width > ctx->max_pixels / height)
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s: %lldx%lld exceeds the limit of %lld pixels",
+                           what, (long long)width, (long long)height, (long long)ctx->max_pixels);
     return SINEW_OK;
 }
 
@@ -213,9 +225,12 @@ int sinew__check_dims(sinew_ctx *ctx, const char *what, int64_t width, int64_t h
 size_t sinew_type_size(sinew_type t)
 {
     switch (t) {
-    case SINEW_U8: return 1;
-    case SINEW_U16: return 2;
-    case SINEW_F32: return 4;
+    case SINEW_U8:
+        return 1;
+    case SINEW_U16:
+        return 2;
+    case SINEW_F32:
+        return 4;
     }
     return 0;
 }
@@ -277,8 +292,8 @@ int sinew_image_copy(sinew_ctx *ctx, sinew_image *dst, const sinew_image *src)
 
 int sinew_image_same_shape(const sinew_image *a, const sinew_image *b)
 {
-    return a && b && a->width == b->width && a->height == b->height &&
-           a->channels == b->channels && a->type == b->type;
+    return a && b && a->width == b->width && a->height == b->height && a->channels == b->channels &&
+           a->type == b->type;
 }
 
 /* ---- atomic output ---- */

@@ -102,8 +102,8 @@ typedef struct sinew_image {
     int height;
     int channels;
     sinew_type type;
-    size_t stride;        /* bytes between row starts */
-    unsigned char *data;  /* first pixel of row 0 */
+    size_t stride;       /* bytes between row starts */
+    unsigned char *data; /* first pixel of row 0 */
     /* private: how to release data (NULL for views) */
     sinew_allocator owner_;
 } sinew_image;

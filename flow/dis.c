@@ -84,8 +84,7 @@ static float patch_error(float *restrict e, const float *restrict s, const float
 }
 
 static void search_patch(float *pu, float *pv, const sinew__level *l0, const sinew__level *l1,
-                         int x0, int y0, int ps, int iters, float max_move, float u0,
-                         float v0)
+                         int x0, int y0, int ps, int iters, float max_move, float u0, float v0)
 {
     float t[MAXPS * MAXPS], gx[MAXPS * MAXPS], gy[MAXPS * MAXPS];
     float s[MAXPS * MAXPS], e[MAXPS * MAXPS];
@@ -146,8 +145,7 @@ static void search_patch(float *pu, float *pv, const sinew__level *l0, const sin
  * pixels no patch covers keep theirs. au, av, aw: w floats of scratch each. */
 static void densify_row(float *u, float *v, const sinew__level *l0, const sinew__level *l1,
                         const sinew__dis_params *p, const float *pu, const float *pv, int nx,
-                        int ny, int y, float *restrict au, float *restrict av,
-                        float *restrict aw)
+                        int ny, int y, float *restrict au, float *restrict av, float *restrict aw)
 {
     int w = l0->w, h = l0->h, ps = p->patch < MAXPS ? p->patch : MAXPS, st = p->stride;
     size_t ro = (size_t)y * (size_t)w;

@@ -32,19 +32,19 @@ struct sinew_estimator {
     int w, h, channels, levels;
     float *pyr_mem[2];
     sinew__pyramid pyr[2];
-    int cur0;                /* index of frame 0's pyramid in pyr[] */
-    unsigned char *last1;    /* copy of the previous frame 1 (for pyramid reuse) */
+    int cur0;             /* index of frame 0's pyramid in pyr[] */
+    unsigned char *last1; /* copy of the previous frame 1 (for pyramid reuse) */
     size_t last1_len, last1_cap;
     int last1_valid;
     sinew_type last1_type;
     int last1_fc;
-    float *u, *v;            /* full-resolution flow planes */
-    float *g;                /* 4 planes of gp floats: gradients, flow and pyramid scratch */
-    size_t gp;               /* floats per plane of g (n rounded up to 16) */
-    float *work;             /* solver work: var bands, patch densification, median weights */
+    float *u, *v; /* full-resolution flow planes */
+    float *g;     /* 4 planes of gp floats: gradients, flow and pyramid scratch */
+    size_t gp;    /* floats per plane of g (n rounded up to 16) */
+    float *work;  /* solver work: var bands, patch densification, median weights */
     size_t work_floats;
     unsigned char *mask;
-    float *pu, *pv;          /* patch flows */
+    float *pu, *pv; /* patch flows */
 };
 
 int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
@@ -112,13 +112,13 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
     return SINEW_OK;
 }
 
-#define RANGE_I(f, lo, hi)                                                                   \
-    if (p->f < (lo) || p->f > (hi))                                                          \
-        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter " #f " = %d outside [%d, %d]",  \
-                           p->f, (int)(lo), (int)(hi));
-#define RANGE_F(f, lo, hi)                                                                   \
-    if (!(p->f >= (lo) && p->f <= (hi)))                                                     \
-        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter " #f " = %g outside [%g, %g]",  \
+#define RANGE_I(f, lo, hi)                                                                         \
+    if (p->f < (lo) || p->f > (hi))                                                                \
+        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter " #f " = %d outside [%d, %d]", p->f, \
+                           (int)(lo), (int)(hi));
+#define RANGE_F(f, lo, hi)                                                                         \
+    if (!(p->f >= (lo) && p->f <= (hi)))                                                           \
+        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter " #f " = %g outside [%g, %g]",       \
                            (double)p->f, (double)(lo), (double)(hi));
 
 int sinew_flow_params_check(sinew_ctx *ctx, const sinew_flow_params *p)
@@ -126,8 +126,7 @@ int sinew_flow_params_check(sinew_ctx *ctx, const sinew_flow_params *p)
     if (!p)
         return sinew__fail(ctx, SINEW_EINVAL, "flow parameters: NULL");
     if (p->method != SINEW_FLOW_VARIATIONAL && p->method != SINEW_FLOW_HORN_SCHUNCK)
-        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter method = %d unknown",
-                           (int)p->method);
+        return sinew__fail(ctx, SINEW_EINVAL, "flow parameter method = %d unknown", (int)p->method);
     RANGE_I(levels, 0, SINEW__MAX_LEVELS);
     RANGE_I(finest_level, 0, SINEW__MAX_LEVELS - 1);
     RANGE_I(dis_finest, -1, SINEW__MAX_LEVELS - 1);
@@ -306,8 +305,8 @@ static int check_flow(sinew_ctx *ctx, const sinew_image *f, const sinew_image *f
     if (!f->data || f->type != SINEW_F32 || f->channels != 2)
         return sinew__fail(ctx, SINEW_EINVAL, "%s: flow must be a 2-channel float image", what);
     if (f->width != frame->width || f->height != frame->height)
-        return sinew__fail(ctx, SINEW_ESIZE, "%s: flow is %dx%d, frames are %dx%d", what,
-                           f->width, f->height, frame->width, frame->height);
+        return sinew__fail(ctx, SINEW_ESIZE, "%s: flow is %dx%d, frames are %dx%d", what, f->width,
+                           f->height, frame->width, frame->height);
     return SINEW_OK;
 }
 
@@ -380,8 +379,8 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
         memset(v, 0, n * sizeof(float));
     }
     sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters, 0.f}; /* move: per level */
-    sinew__var_params vp = {p->alpha, p->gamma, p->delta, p->edge, p->eps, p->omega,
-                            p->outer, p->inner};
+    sinew__var_params vp = {p->alpha, p->gamma, p->delta, p->edge,
+                            p->eps,   p->omega, p->outer, p->inner};
     /* weighted-median constants: flow/wmedian.c */
     sinew__wmed_params wp = {p->wmedian, 7.f, 10.f, 0.3f, 10.f, p->wmedian_band};
     int var = p->method == SINEW_FLOW_VARIATIONAL;
@@ -396,8 +395,7 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
         }
         int grads = 0; /* g holds this level's gradients */
         if (p->dis_finest >= 0 && s >= p->dis_finest && l0.w >= p->dis_patch &&
-            l0.h >= p->dis_patch)
-        {
+            l0.h >= p->dis_patch) {
             level_gradients(e, &l0, &l1, nt);
             grads = 1;
             /* a patch may move up to one patch size from its start, half of that at the
@@ -414,8 +412,8 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
                 if (!grads)
                     level_gradients(e, &l0, &l1, nt);
                 grads = 1;
-                sinew__var_level(u, v, &l0, &l1, e->channels, &vp, e->work, e->work_floats,
-                                 e->mask, nt);
+                sinew__var_level(u, v, &l0, &l1, e->channels, &vp, e->work, e->work_floats, e->mask,
+                                 nt);
             }
             /* filters write the new flow to g (the gradients there are recomputed when
              * needed again), then it is copied back */
@@ -428,8 +426,8 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
             }
             /* boundary pixels: weighted median of the flow before the plain median */
             if (wm)
-                sinew__wmedian(gu, gv, u, v, &l0, &l1, e->channels, &wp, e->work,
-                               e->work_floats, nt);
+                sinew__wmedian(gu, gv, u, v, &l0, &l1, e->channels, &wp, e->work, e->work_floats,
+                               nt);
             if (p->median > 0 || wm) {
                 copy_flow(u, v, gu, gv, n);
                 grads = 0;
@@ -482,8 +480,8 @@ int sinew_estimator_run(sinew_estimator *est, sinew_image *fwd, sinew_image *bwd
     if (bwd && (st = check_flow(ctx, bwd, frame0, "backward flow")))
         return st;
     int channels = est->p.color && frame0->channels >= 3 ? 3 : 1;
-    int reuse = est->w == frame0->width && est->h == frame0->height &&
-                est->channels == channels && same_as_last1(est, frame0);
+    int reuse = est->w == frame0->width && est->h == frame0->height && est->channels == channels &&
+                same_as_last1(est, frame0);
     if ((st = ensure_buffers(est, frame0->width, frame0->height, channels)))
         return st;
     int nt = sinew_ctx_threads(ctx);

@@ -28,42 +28,42 @@ typedef struct sinew_flow_params {
     int finest_level; /* finest level at which flow is computed (0 = full resolution); a
                          coarser result is upsampled bilinearly. 0..levels-1 */
     /* dense inverse search (Kroeger et al. 2016) */
-    int dis_finest;   /* finest level that runs patch search; -1 = no patch search */
-    int dis_patch;    /* patch side in pixels, 4..32 */
-    int dis_stride;   /* distance between patch origins in pixels, 1..dis_patch */
-    int dis_iters;    /* Gauss-Newton iterations per patch, 1..100 */
+    int dis_finest; /* finest level that runs patch search; -1 = no patch search */
+    int dis_patch;  /* patch side in pixels, 4..32 */
+    int dis_stride; /* distance between patch origins in pixels, 1..dis_patch */
+    int dis_iters;  /* Gauss-Newton iterations per patch, 1..100 */
     /* variational refinement (Brox et al. 2004), at every level from the coarsest used
        down to finest_level */
-    int warps;        /* warping steps per level, 0..50 (0 = no refinement) */
-    int warps_fine;   /* warping steps at the finest fine_levels computed levels instead
-                         of `warps`, 0..50; 0 = `warps` everywhere */
-    int fine_levels;  /* how many of the finest computed levels use warps_fine, 1..12 */
-    int outer;        /* fixed-point (lagged-nonlinearity) iterations per warp, 1..50 */
-    int inner;        /* red-black SOR sweeps per fixed-point iteration, 1..200 */
-    float alpha;      /* smoothness weight (> 0) */
-    float gamma;      /* gradient-constancy weight (>= 0) */
-    float delta;      /* brightness/colour-constancy weight (>= 0) */
-    float edge;       /* edge-aware smoothness: weight exp(-edge*|grad I0|), I in [0,1]; >= 0 */
-    float eps;        /* Charbonnier epsilon, > 0 */
-    float omega;      /* SOR relaxation, in (0, 2) */
-    int median;       /* median filter radius after each warp: 0 off, 1 = 3x3, 2 = 5x5
-                         (Sun, Roth, Black 2010) */
-    int wmedian;      /* occlusion-aware weighted median (Sun, Roth, Black 2010) near motion
-                         boundaries after each warp: window radius 1..10, 0 = off */
+    int warps;          /* warping steps per level, 0..50 (0 = no refinement) */
+    int warps_fine;     /* warping steps at the finest fine_levels computed levels instead
+                           of `warps`, 0..50; 0 = `warps` everywhere */
+    int fine_levels;    /* how many of the finest computed levels use warps_fine, 1..12 */
+    int outer;          /* fixed-point (lagged-nonlinearity) iterations per warp, 1..50 */
+    int inner;          /* red-black SOR sweeps per fixed-point iteration, 1..200 */
+    float alpha;        /* smoothness weight (> 0) */
+    float gamma;        /* gradient-constancy weight (>= 0) */
+    float delta;        /* brightness/colour-constancy weight (>= 0) */
+    float edge;         /* edge-aware smoothness: weight exp(-edge*|grad I0|), I in [0,1]; >= 0 */
+    float eps;          /* Charbonnier epsilon, > 0 */
+    float omega;        /* SOR relaxation, in (0, 2) */
+    int median;         /* median filter radius after each warp: 0 off, 1 = 3x3, 2 = 5x5
+                           (Sun, Roth, Black 2010) */
+    int wmedian;        /* occlusion-aware weighted median (Sun, Roth, Black 2010) near motion
+                           boundaries after each warp: window radius 1..10, 0 = off */
     int wmedian_levels; /* ... at the finest this many computed levels, 1..12 */
     float wmedian_band; /* boundary test: flow differs by more than this (L1, px) within
                            a 5x5 neighbourhood, > 0 */
-    int fuse_levels;  /* candidate selection near motion boundaries (a boundary pixel takes
-                         a nearby pixel's flow when that one matches frame 1 clearly
-                         better; same boundary test) after the first warp of each of the
-                         finest this many computed levels, 0..12; 0 = off */
-    int color;        /* 1: RGB frames use a 3-channel data term; 0: luminance only */
-    int hs_iters;     /* Jacobi iterations per warp for SINEW_FLOW_HORN_SCHUNCK */
-    int work_mib;     /* solver scratch budget in MiB, 1..65536 (presets: 32). A level whose
-                         variational planes exceed it is solved in bands of rows with 32
-                         rows of overlapping context, so memory stays ~ 30 bytes per pixel
-                         plus this budget. Results depend on it (for images that large),
-                         never on the thread count. */
+    int fuse_levels;    /* candidate selection near motion boundaries (a boundary pixel takes
+                           a nearby pixel's flow when that one matches frame 1 clearly
+                           better; same boundary test) after the first warp of each of the
+                           finest this many computed levels, 0..12; 0 = off */
+    int color;          /* 1: RGB frames use a 3-channel data term; 0: luminance only */
+    int hs_iters;       /* Jacobi iterations per warp for SINEW_FLOW_HORN_SCHUNCK */
+    int work_mib;       /* solver scratch budget in MiB, 1..65536 (presets: 32). A level whose
+                           variational planes exceed it is solved in bands of rows with 32
+                           rows of overlapping context, so memory stays ~ 30 bytes per pixel
+                           plus this budget. Results depend on it (for images that large),
+                           never on the thread count. */
 } sinew_flow_params;
 
 /* Fill *p with a named preset: "fast", "balanced", "accurate", or "baseline" (coarse-to-

@@ -99,8 +99,7 @@ int sinew__list_dir(sinew_ctx *ctx, const char *dir, int (*keep)(const char *nam
             names = g;
             cap = nc;
         }
-        names[k] =
-            join ? sinew__dup_join(ctx, dir, e->d_name) : sinew__strdup(ctx, e->d_name);
+        names[k] = join ? sinew__dup_join(ctx, dir, e->d_name) : sinew__strdup(ctx, e->d_name);
         if (!names[k])
             rc = SINEW_ENOMEM;
         else

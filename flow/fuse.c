@@ -39,8 +39,8 @@
 #define FU_MAXC (8 * FU_NDIST)
 
 /* Cost C(w) at (x, y) with the normalised window weights aw[9]. */
-static float cand_cost(const sinew__level *l0, const sinew__level *l1, int channels, int x,
-                       int y, float cu, float cv, const float *aw)
+static float cand_cost(const sinew__level *l0, const sinew__level *l1, int channels, int x, int y,
+                       float cu, float cv, const float *aw)
 {
     int w = l0->w, h = l0->h;
     float cost = 0.f;
@@ -94,7 +94,7 @@ void sinew__fuse(float *uo, float *vo, const float *u, const float *v, const sin
                  const sinew__level *l1, int channels, float band, int nt)
 {
     (void)nt; /* unused without OpenMP */
-    static const int dir[8][2] = {{1, 0}, {-1, 0}, {0, 1}, {0, -1},
+    static const int dir[8][2] = {{1, 0}, {-1, 0},  {0, 1},  {0, -1},
                                   {1, 1}, {-1, -1}, {1, -1}, {-1, 1}};
     static const int dist[FU_NDIST] = {3, 6, 12};
     int w = l0->w, h = l0->h;

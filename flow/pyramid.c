@@ -117,8 +117,7 @@ void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tm
                 const float *src = colour ? up->ch[c] : up->lum;
                 float *dst = colour ? lv->ch[c] : lv->lum;
                 /* anti-alias before the 2x2 box (see PYR_SIGMA0) */
-                sinew__blur(tmp, src, tmp + n, up->w, up->h, l == 1 ? PYR_SIGMA0 : PYR_SIGMA,
-                            nt);
+                sinew__blur(tmp, src, tmp + n, up->w, up->h, l == 1 ? PYR_SIGMA0 : PYR_SIGMA, nt);
                 sinew__halve(dst, tmp, up->w, up->h, nt);
             }
         }
@@ -130,8 +129,10 @@ void sinew__blur(float *dst, const float *src, float *tmp, int w, int h, float s
     (void)nt; /* unused without OpenMP */
     float k[16];
     int r = (int)ceilf(3.0f * sigma);
-    if (r < 1) r = 1;
-    if (r > 7) r = 7;
+    if (r < 1)
+        r = 1;
+    if (r > 7)
+        r = 7;
     float sum = 0.f;
     for (int i = -r; i <= r; i++) {
         k[i + r] = expf(-(float)(i * i) / (2.f * sigma * sigma));
@@ -223,8 +224,7 @@ void sinew__halve(float *dst, const float *src, int sw, int sh, int nt)
     }
 }
 
-void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int sw, int sh,
-                        int nt)
+void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int sw, int sh, int nt)
 {
     (void)nt; /* unused without OpenMP */
     int dw = out->width, dh = out->height;
@@ -241,8 +241,8 @@ void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int 
     }
 }
 
-void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
-                    int sw, int sh, int nt)
+void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv, int sw,
+                    int sh, int nt)
 {
     (void)nt; /* unused without OpenMP */
     /* level l+1 pixel X covers level-l pixels 2X, 2X+1: centre 2X + 0.5 */
@@ -273,9 +273,8 @@ static inline int clampi(int v, int lo, int hi)
     return v < lo ? lo : (v > hi ? hi : v);
 }
 
-void sinew__warp_n(float *const *dst, const float *const *src, int count,
-                   unsigned char *outside, const float *u, const float *v, int w, int h,
-                   int y0, int sh, int nt)
+void sinew__warp_n(float *const *dst, const float *const *src, int count, unsigned char *outside,
+                   const float *u, const float *v, int w, int h, int y0, int sh, int nt)
 {
     (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
@@ -338,26 +337,25 @@ void sinew__warp(float *dst, unsigned char *outside, const float *src, const flo
 static const unsigned char med9_net[][3] = {
     {0, 1, 0}, {2, 3, 0}, {0, 2, 0}, {1, 3, 0}, {1, 2, 0}, {4, 5, 0}, {6, 7, 0}, {4, 6, 0},
     {5, 7, 0}, {5, 6, 0}, {0, 4, 0}, {2, 6, 0}, {2, 4, 0}, {1, 5, 0}, {3, 7, 1}, {3, 5, 0},
-    {1, 2, 2}, {3, 4, 0}, {5, 6, 1}, {0, 8, 2}, {4, 8, 1}, {2, 4, 2}, {3, 5, 1}, {3, 4, 2}
-};
+    {1, 2, 2}, {3, 4, 0}, {5, 6, 1}, {0, 8, 2}, {4, 8, 1}, {2, 4, 2}, {3, 5, 1}, {3, 4, 2}};
 static const unsigned char med25_net[][3] = {
-    {0, 1, 0}, {2, 3, 0}, {0, 2, 0}, {1, 3, 0}, {1, 2, 0}, {4, 5, 0}, {6, 7, 0}, {4, 6, 0},
-    {5, 7, 0}, {5, 6, 0}, {0, 4, 0}, {2, 6, 0}, {2, 4, 0}, {1, 5, 0}, {3, 7, 0}, {3, 5, 0},
-    {1, 2, 0}, {3, 4, 0}, {5, 6, 0}, {8, 9, 0}, {10, 11, 0}, {8, 10, 0}, {9, 11, 0}, {9, 10,
-    0}, {12, 13, 0}, {14, 15, 0}, {12, 14, 0}, {13, 15, 0}, {13, 14, 0}, {8, 12, 0}, {10,
-    14, 0}, {10, 12, 0}, {9, 13, 0}, {11, 15, 0}, {11, 13, 0}, {9, 10, 0}, {11, 12, 0}, {13,
-    14, 0}, {0, 8, 0}, {4, 12, 0}, {4, 8, 0}, {2, 10, 0}, {6, 14, 0}, {6, 10, 0}, {2, 4, 0},
-    {6, 8, 0}, {10, 12, 0}, {1, 9, 0}, {5, 13, 0}, {5, 9, 0}, {3, 11, 0}, {7, 15, 1}, {7,
-    11, 0}, {3, 5, 0}, {7, 9, 0}, {11, 13, 0}, {1, 2, 0}, {3, 4, 0}, {5, 6, 0}, {7, 8, 0},
-    {9, 10, 0}, {11, 12, 0}, {13, 14, 1}, {16, 17, 0}, {18, 19, 0}, {16, 18, 0}, {17, 19,
-    0}, {17, 18, 0}, {20, 21, 0}, {22, 23, 0}, {20, 22, 0}, {21, 23, 0}, {21, 22, 0}, {16,
-    20, 0}, {18, 22, 0}, {18, 20, 0}, {17, 21, 0}, {19, 23, 0}, {19, 21, 0}, {17, 18, 0},
-    {19, 20, 0}, {21, 22, 0}, {16, 24, 0}, {20, 24, 0}, {18, 20, 0}, {22, 24, 0}, {19, 21,
-    0}, {17, 18, 0}, {19, 20, 0}, {21, 22, 0}, {23, 24, 0}, {0, 16, 2}, {8, 24, 1}, {8, 16,
-    2}, {4, 20, 2}, {12, 20, 1}, {12, 16, 1}, {2, 18, 2}, {10, 18, 1}, {6, 22, 1}, {6, 10,
-    2}, {10, 12, 2}, {1, 17, 2}, {9, 17, 2}, {5, 21, 2}, {13, 21, 1}, {13, 17, 1}, {3, 19,
-    2}, {11, 19, 1}, {7, 23, 1}, {7, 11, 2}, {11, 13, 1}, {11, 12, 2}
-};
+    {0, 1, 0},   {2, 3, 0},   {0, 2, 0},   {1, 3, 0},   {1, 2, 0},   {4, 5, 0},   {6, 7, 0},
+    {4, 6, 0},   {5, 7, 0},   {5, 6, 0},   {0, 4, 0},   {2, 6, 0},   {2, 4, 0},   {1, 5, 0},
+    {3, 7, 0},   {3, 5, 0},   {1, 2, 0},   {3, 4, 0},   {5, 6, 0},   {8, 9, 0},   {10, 11, 0},
+    {8, 10, 0},  {9, 11, 0},  {9, 10, 0},  {12, 13, 0}, {14, 15, 0}, {12, 14, 0}, {13, 15, 0},
+    {13, 14, 0}, {8, 12, 0},  {10, 14, 0}, {10, 12, 0}, {9, 13, 0},  {11, 15, 0}, {11, 13, 0},
+    {9, 10, 0},  {11, 12, 0}, {13, 14, 0}, {0, 8, 0},   {4, 12, 0},  {4, 8, 0},   {2, 10, 0},
+    {6, 14, 0},  {6, 10, 0},  {2, 4, 0},   {6, 8, 0},   {10, 12, 0}, {1, 9, 0},   {5, 13, 0},
+    {5, 9, 0},   {3, 11, 0},  {7, 15, 1},  {7, 11, 0},  {3, 5, 0},   {7, 9, 0},   {11, 13, 0},
+    {1, 2, 0},   {3, 4, 0},   {5, 6, 0},   {7, 8, 0},   {9, 10, 0},  {11, 12, 0}, {13, 14, 1},
+    {16, 17, 0}, {18, 19, 0}, {16, 18, 0}, {17, 19, 0}, {17, 18, 0}, {20, 21, 0}, {22, 23, 0},
+    {20, 22, 0}, {21, 23, 0}, {21, 22, 0}, {16, 20, 0}, {18, 22, 0}, {18, 20, 0}, {17, 21, 0},
+    {19, 23, 0}, {19, 21, 0}, {17, 18, 0}, {19, 20, 0}, {21, 22, 0}, {16, 24, 0}, {20, 24, 0},
+    {18, 20, 0}, {22, 24, 0}, {19, 21, 0}, {17, 18, 0}, {19, 20, 0}, {21, 22, 0}, {23, 24, 0},
+    {0, 16, 2},  {8, 24, 1},  {8, 16, 2},  {4, 20, 2},  {12, 20, 1}, {12, 16, 1}, {2, 18, 2},
+    {10, 18, 1}, {6, 22, 1},  {6, 10, 2},  {10, 12, 2}, {1, 17, 2},  {9, 17, 2},  {5, 21, 2},
+    {13, 21, 1}, {13, 17, 1}, {3, 19, 2},  {11, 19, 1}, {7, 23, 1},  {7, 11, 2},  {11, 13, 1},
+    {11, 12, 2}};
 
 #define MED_LANES 64
 
@@ -380,9 +378,8 @@ static inline void med_compare(float *restrict a, float *restrict b, int kind)
 }
 
 /* One output row of the median filter (radius r, its comparator network). */
-SINEW__CLONES static void median_row(float *restrict dst, const float *restrict src, int w,
-                                     int h, int r, int y, const unsigned char (*net)[3],
-                                     int ncmp)
+SINEW__CLONES static void median_row(float *restrict dst, const float *restrict src, int w, int h,
+                                     int r, int y, const unsigned char (*net)[3], int ncmp)
 {
     int side = 2 * r + 1, mid = side * side / 2;
     float buf[25][MED_LANES];

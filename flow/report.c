@@ -321,7 +321,8 @@ static int load_manifest(report *r)
 {
     sinew_ctx *ctx = r->ctx;
     char path[4096];
-    if ((size_t)snprintf(path, sizeof path, "%s/" SINEW_RUN_MANIFEST_FILE, r->rundir) >= sizeof path)
+    if ((size_t)snprintf(path, sizeof path, "%s/" SINEW_RUN_MANIFEST_FILE, r->rundir) >=
+        sizeof path)
         return sinew__fail(ctx, SINEW_EINVAL, "%s: path too long", r->rundir);
     unsigned char *buf = NULL;
     size_t len = 0;
@@ -390,7 +391,8 @@ static int load_manifest(report *r)
 
 static int pair_path(const report *r, const pair_info *q, const char *file, char *buf, size_t n)
 {
-    return q->safe && (size_t)snprintf(buf, n, "%s/" SINEW_RUN_PAIRS_DIR "/%s/%s", r->rundir, q->name, file) < n;
+    return q->safe && (size_t)snprintf(buf, n, "%s/" SINEW_RUN_PAIRS_DIR "/%s/%s", r->rundir,
+                                       q->name, file) < n;
 }
 
 static int exists(const char *path)
@@ -404,7 +406,7 @@ static int exists(const char *path)
 static int find_flow(const report *r, const pair_info *q, char *buf, size_t n)
 {
     static const char *const names[] = {SINEW_RUN_FORWARD ".flo", SINEW_RUN_FORWARD ".npy",
-                                         SINEW_RUN_FORWARD ".pfm", SINEW_RUN_FORWARD ".png"};
+                                        SINEW_RUN_FORWARD ".pfm", SINEW_RUN_FORWARD ".png"};
     for (size_t k = 0; k < sizeof names / sizeof names[0]; k++)
         if (pair_path(r, q, names[k], buf, n) && exists(buf))
             return 1;
@@ -620,7 +622,8 @@ static int derive_metrics(report *r, pair_info *q)
     sinew_ctx *ctx = r->ctx;
     char path[4096];
     sinew_image img;
-    if (isnan(q->m[M_KEPT]) && pair_path(r, q, SINEW_RUN_MASK_FILE, path, sizeof path) && exists(path)) {
+    if (isnan(q->m[M_KEPT]) && pair_path(r, q, SINEW_RUN_MASK_FILE, path, sizeof path) &&
+        exists(path)) {
         int st = read_checked(ctx, &img, path, 0, 1, SINEW_U8);
         if (st == SINEW_ENOMEM)
             return st;
@@ -1110,7 +1113,9 @@ static int build(report *r, sbuf *page)
     sb_puts(page, "<h2>All pairs</h2>\n");
     pair_table(page, r);
     inputs_section(page, r);
-    sb_printf(page, "<h2>Manifest</h2>\n<details><summary>" SINEW_RUN_MANIFEST_FILE " (%zu bytes)</summary><pre>",
+    sb_printf(page,
+              "<h2>Manifest</h2>\n<details><summary>" SINEW_RUN_MANIFEST_FILE
+              " (%zu bytes)</summary><pre>",
               r->manifest_len);
     sb_esc(page, r->manifest_text);
     sb_puts(page, "</pre></details>\n<footer>sinew is a research tool, not a medical device: "

@@ -54,8 +54,8 @@ int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
  * file's folder. ELIMIT (message names `where` and the frame) for a path too long to
  * resolve. intrinsics stays NULL: a sequence carries its intrinsics as values. Free with
  * sinew_run_source_free. */
-int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq,
-                                   const char *where, sinew_run_source *out);
+int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, const char *where,
+                                   sinew_run_source *out);
 void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
 
 /* ---- the run folder (docs/formats.md) -------------------------------------------

@@ -450,7 +450,8 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
     int lift = pl->have_camera && s0->z.data && s1->z.data;
     int labels = s0->labels.data && s1->labels.data;
     char fwd_name[32];
-    snprintf(fwd_name, sizeof fwd_name, SINEW_RUN_FORWARD ".%s", sinew_run_flow_ext(pl->params.flow_format));
+    snprintf(fwd_name, sizeof fwd_name, SINEW_RUN_FORWARD ".%s",
+             sinew_run_flow_ext(pl->params.flow_format));
     sinew_match_inputs in = {&pl->fwd,
                              &pl->mask,
                              &pl->conf,

@@ -139,7 +139,6 @@ int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes
 
 /* ---- association ---- */
 
-
 typedef struct {
     double d;
     size_t a, b;

@@ -72,24 +72,41 @@ static void layout(planes *P, float *work, int channels, int w, int h)
     P->n = n;
     /* assemble_run relies on this order */
     for (int c = 0; c < channels; c++) {
-        P->ix[c] = work; work += n;
-        P->iy[c] = work; work += n;
-        P->it[c] = work; work += n;
+        P->ix[c] = work;
+        work += n;
+        P->iy[c] = work;
+        work += n;
+        P->it[c] = work;
+        work += n;
     }
-    P->lxt = work; work += n;
-    P->lyt = work; work += n;
-    P->lxx = work; work += n;
-    P->lxy = work; work += n;
-    P->lyy = work; work += n;
-    P->du = work; work += n;
-    P->dv = work; work += n;
-    P->a12 = work; work += n;
-    P->b1 = work; work += n;
-    P->b2 = work; work += n;
-    P->inv1 = work; work += n;
-    P->inv2 = work; work += n;
-    P->wx = work; work += n;
-    P->wy = work; work += n;
+    P->lxt = work;
+    work += n;
+    P->lyt = work;
+    work += n;
+    P->lxx = work;
+    work += n;
+    P->lxy = work;
+    work += n;
+    P->lyy = work;
+    work += n;
+    P->du = work;
+    work += n;
+    P->dv = work;
+    work += n;
+    P->a12 = work;
+    work += n;
+    P->b1 = work;
+    work += n;
+    P->b2 = work;
+    work += n;
+    P->inv1 = work;
+    work += n;
+    P->inv2 = work;
+    work += n;
+    P->wx = work;
+    work += n;
+    P->wy = work;
+    work += n;
     P->edge = work;
 }
 
@@ -124,8 +141,8 @@ static inline size_t rb_row(const planes *P, int c, int y)
 }
 
 /* dst = 0.5 * (a + b) */
-static void average(float *restrict dst, const float *restrict a, const float *restrict b,
-                    size_t n, int nt)
+static void average(float *restrict dst, const float *restrict a, const float *restrict b, size_t n,
+                    int nt)
 {
     (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
@@ -142,8 +159,8 @@ static void subtract(float *restrict dst, const float *restrict b, size_t n, int
         dst[i] -= b[i];
 }
 
-static void scale_masked(float *restrict p, const unsigned char *restrict mask, float s,
-                         size_t n, int nt)
+static void scale_masked(float *restrict p, const unsigned char *restrict mask, float s, size_t n,
+                         int nt)
 {
     (void)nt; /* unused without OpenMP */
     SINEW_PARALLEL_FOR(nt)
@@ -154,8 +171,7 @@ static void scale_masked(float *restrict p, const unsigned char *restrict mask, 
 /* Warp frame 1 and compute all derivative planes. l0, u, v, mask: the band's rows, which
  * start at row y0 of the level; l1: the whole level of frame 1. */
 static void derivatives(planes *P, const float *u, const float *v, const sinew__level *l0,
-                        const sinew__level *l1, int y0, int channels, unsigned char *mask,
-                        int nt)
+                        const sinew__level *l1, int y0, int channels, unsigned char *mask, int nt)
 {
     int w = l0->w, h = l0->h;
     size_t n = (size_t)w * (size_t)h;
@@ -223,8 +239,8 @@ static inline rbseg rb_seg(int w, int c, int y)
 
 /* One pixel's smoothness weight from its (u + du, v + dv) value c*, the value at its right
  * neighbour r* and the value below d* (equal to c* past the last column / row). */
-static inline float smooth_px(float uc, float vc, float ur, float vr, float ud, float vd,
-                              float eg, float alpha, float e2)
+static inline float smooth_px(float uc, float vc, float ur, float vr, float ud, float vd, float eg,
+                              float alpha, float e2)
 {
     float ux = ur - uc, vx = vr - vc, uy = ud - uc, vy = vd - vc;
     return alpha * eg / sqrtf(ux * ux + uy * uy + vx * vx + vy * vy + e2);
@@ -236,12 +252,11 @@ static inline float smooth_px(float uc, float vc, float ur, float vr, float ud, 
  * row (right neighbour of k at [k]); ddu, ddv: the other colour's row below (pixel below
  * k at [k]). On the last row the "below" arguments repeat the row itself. */
 static void smooth_run(float *restrict wx, float *restrict wy, const float *restrict u,
-                       const float *restrict v, const float *restrict ud,
-                       const float *restrict vd, const float *restrict du,
-                       const float *restrict dv, const float *restrict hdu,
-                       const float *restrict hdv, const float *restrict ddu,
-                       const float *restrict ddv, const float *restrict eg, int k1,
-                       float alpha, float e2)
+                       const float *restrict v, const float *restrict ud, const float *restrict vd,
+                       const float *restrict du, const float *restrict dv,
+                       const float *restrict hdu, const float *restrict hdv,
+                       const float *restrict ddu, const float *restrict ddv,
+                       const float *restrict eg, int k1, float alpha, float e2)
 {
     for (int k = 0; k < k1; k++) {
         float uc = u[2 * k] + du[k], vc = v[2 * k] + dv[k];
@@ -280,8 +295,7 @@ static void smooth_weights(planes *P, const float *u, const float *v, float alph
                 float uc = u[xo + 2 * (size_t)k] + du[k], vc = v[xo + 2 * (size_t)k] + dv[k];
                 wx[k] = 0.f;
                 wy[k] = smooth_px(uc, vc, uc, vc, u[xd + 2 * (size_t)k] + P->du[od + (size_t)k],
-                                  v[xd + 2 * (size_t)k] + P->dv[od + (size_t)k], eg[k], alpha,
-                                  e2);
+                                  v[xd + 2 * (size_t)k] + P->dv[od + (size_t)k], eg[k], alpha, e2);
             }
             if (yd == y)
                 for (int k = 0; k < s.len; k++)
@@ -297,14 +311,13 @@ static void smooth_weights(planes *P, const float *u, const float *v, float alph
  * the order of layout() (ix, iy, it per channel, then lxt, lyt, lxx, lxy, lyy). The has_*
  * flags say which neighbours exist (constant 1 in the interior). */
 RB_INLINE void assemble_run(float *restrict a12o, float *restrict b1o, float *restrict b2o,
-                                float *restrict inv1o, float *restrict inv2o,
-                                const float *restrict dup, const float *restrict dvp,
-                                const float *restrict wx, const float *restrict wy,
-                                const float *restrict hwx, int lo, const float *restrict uwy,
-                                const float *restrict dp, size_t n, const float *restrict u,
-                                const float *restrict v, size_t w, int k0, int k1,
-                                int channels, const sinew__var_params *p, int has_l,
-                                int has_r, int has_u, int has_d)
+                            float *restrict inv1o, float *restrict inv2o, const float *restrict dup,
+                            const float *restrict dvp, const float *restrict wx,
+                            const float *restrict wy, const float *restrict hwx, int lo,
+                            const float *restrict uwy, const float *restrict dp, size_t n,
+                            const float *restrict u, const float *restrict v, size_t w, int k0,
+                            int k1, int channels, const sinew__var_params *p, int has_l, int has_r,
+                            int has_u, int has_d)
 {
     float e2 = p->eps * p->eps;
     for (int k = k0; k < k1; k++) {
@@ -339,10 +352,14 @@ RB_INLINE void assemble_run(float *restrict a12o, float *restrict b1o, float *re
         float wu = has_u ? uwy[k] : 0.f, wd = wy[k];
         float sw = wl + wr + wu + wd;
         float su = 0.f, sv = 0.f;
-        if (has_l) su += wl * (u[i - 1] - u[i]), sv += wl * (v[i - 1] - v[i]);
-        if (has_r) su += wr * (u[i + 1] - u[i]), sv += wr * (v[i + 1] - v[i]);
-        if (has_u) su += wu * (u[i - w] - u[i]), sv += wu * (v[i - w] - v[i]);
-        if (has_d) su += wd * (u[i + w] - u[i]), sv += wd * (v[i + w] - v[i]);
+        if (has_l)
+            su += wl * (u[i - 1] - u[i]), sv += wl * (v[i - 1] - v[i]);
+        if (has_r)
+            su += wr * (u[i + 1] - u[i]), sv += wr * (v[i + 1] - v[i]);
+        if (has_u)
+            su += wu * (u[i - w] - u[i]), sv += wu * (v[i - w] - v[i]);
+        if (has_d)
+            su += wd * (u[i + w] - u[i]), sv += wd * (v[i + w] - v[i]);
         a12o[k] = a12;
         b1o[k] = b1 + su;
         b2o[k] = b2 + sv;
@@ -352,13 +369,13 @@ RB_INLINE void assemble_run(float *restrict a12o, float *restrict b1o, float *re
 }
 
 /* assemble_run for any channel count and flags: the border pixels (scalar). */
-RB_CLONES static void assemble_border(float *a12, float *b1, float *b2, float *inv1,
-                                      float *inv2, const float *du, const float *dv,
-                                      const float *wx, const float *wy, const float *hwx,
-                                      int lo, const float *uwy, const float *dp, size_t n,
-                                      const float *u, const float *v, size_t w, int k0, int k1,
-                                      int channels, const sinew__var_params *p, int has_l,
-                                      int has_r, int has_u, int has_d)
+RB_CLONES static void assemble_border(float *a12, float *b1, float *b2, float *inv1, float *inv2,
+                                      const float *du, const float *dv, const float *wx,
+                                      const float *wy, const float *hwx, int lo, const float *uwy,
+                                      const float *dp, size_t n, const float *u, const float *v,
+                                      size_t w, int k0, int k1, int channels,
+                                      const sinew__var_params *p, int has_l, int has_r, int has_u,
+                                      int has_d)
 {
     assemble_run(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, u, v, w, k0, k1,
                  channels, p, has_l, has_r, has_u, has_d);
@@ -386,14 +403,14 @@ RB_CLONES static void assemble_row(planes *P, const float *u, const float *v, in
     size_t ws = (size_t)w;
     int lo = s.par ? 0 : -1, hu = y > 0, hd = y + 1 < h;
     if (s.first)
-        assemble_border(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
-                        0, 1, channels, p, 0, w > 1, hu, hd);
+        assemble_border(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws, 0,
+                        1, channels, p, 0, w > 1, hu, hd);
     if (hu && hd && channels == 1)
-        assemble_run(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
-                     s.k0, s.k1, 1, p, 1, 1, 1, 1);
+        assemble_run(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws, s.k0,
+                     s.k1, 1, p, 1, 1, 1, 1);
     else if (hu && hd && channels == 3)
-        assemble_run(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
-                     s.k0, s.k1, 3, p, 1, 1, 1, 1);
+        assemble_run(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws, s.k0,
+                     s.k1, 3, p, 1, 1, 1, 1);
     else
         assemble_border(a12, b1, b2, inv1, inv2, du, dv, wx, wy, hwx, lo, uwy, dp, n, ur, vr, ws,
                         s.k0, s.k1, channels, p, 1, 1, hu, hd);
@@ -419,14 +436,14 @@ static void assemble(planes *P, const float *u, const float *v, int channels,
  * (has_* = 0) contributes weight * the pixel's own value, as the link weights are zero
  * there (wx, wy are 0 past the last column / row; left and up weights are taken as 0). */
 RB_INLINE void sor_run(float *restrict du, float *restrict dv, const float *restrict b1,
-                           const float *restrict b2, const float *restrict a12,
-                           const float *restrict inv1, const float *restrict inv2,
-                           const float *restrict wx, const float *restrict wy,
-                           const float *restrict hdu, const float *restrict hdv,
-                           const float *restrict hwx, int lo, const float *restrict udu,
-                           const float *restrict udv, const float *restrict uwy,
-                           const float *restrict ddu, const float *restrict ddv, int k0,
-                           int k1, float omega, int has_l, int has_r, int has_u, int has_d)
+                       const float *restrict b2, const float *restrict a12,
+                       const float *restrict inv1, const float *restrict inv2,
+                       const float *restrict wx, const float *restrict wy,
+                       const float *restrict hdu, const float *restrict hdv,
+                       const float *restrict hwx, int lo, const float *restrict udu,
+                       const float *restrict udv, const float *restrict uwy,
+                       const float *restrict ddu, const float *restrict ddv, int k0, int k1,
+                       float omega, int has_l, int has_r, int has_u, int has_d)
 {
     for (int k = k0; k < k1; k++) {
         float wl = has_l ? hwx[k + lo] : 0.f, wr = wx[k];
@@ -453,8 +470,8 @@ RB_CLONES static void sor_border(float *du, float *dv, const float *b1, const fl
                                  const float *ddv, int k0, int k1, float omega, int has_l,
                                  int has_r, int has_u, int has_d)
 {
-    sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu, ddv,
-            k0, k1, omega, has_l, has_r, has_u, has_d);
+    sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu, ddv, k0,
+            k1, omega, has_l, has_r, has_u, has_d);
 }
 
 /* Half-sweep update of row y of colour c (the other colour is read only). */
@@ -476,23 +493,23 @@ RB_CLONES static void sor_row(planes *P, int c, int y, float omega)
     if (hu && hd && w > 1) {
         /* interior row: all flags constant */
         if (s.first)
-            sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy,
-                    ddu, ddv, 0, 1, omega, 0, 1, 1, 1);
-        sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu,
-                ddv, s.k0, s.k1, omega, 1, 1, 1, 1);
+            sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu,
+                    ddv, 0, 1, omega, 0, 1, 1, 1);
+        sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu, ddv,
+                s.k0, s.k1, omega, 1, 1, 1, 1);
         if (s.last)
-            sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy,
-                    ddu, ddv, s.len - 1, s.len, omega, 1, 0, 1, 1);
+            sor_run(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu,
+                    ddv, s.len - 1, s.len, omega, 1, 0, 1, 1);
         return;
     }
     if (s.first)
-        sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy,
-                   ddu, ddv, 0, 1, omega, 0, w > 1, hu, hd);
-    sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu,
-               ddv, s.k0, s.k1, omega, 1, 1, hu, hd);
+        sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu,
+                   ddv, 0, 1, omega, 0, w > 1, hu, hd);
+    sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu, ddv,
+               s.k0, s.k1, omega, 1, 1, hu, hd);
     if (s.last)
-        sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy,
-                   ddu, ddv, s.len - 1, s.len, omega, 1, 0, hu, hd);
+        sor_border(du, dv, b1, b2, a12, inv1, inv2, wx, wy, hdu, hdv, hwx, lo, udu, udv, uwy, ddu,
+                   ddv, s.len - 1, s.len, omega, 1, 0, hu, hd);
 }
 
 /* ---- sweep schedule ----
@@ -609,8 +626,8 @@ static void put_increment(float *u, float *v, int add, const planes *P, int ya, 
 }
 
 /* (u, v) += (du, dv) on rows ya .. yb - 1, the increment stored row-major from row ya */
-static void add_rows(float *u, float *v, const float *du, const float *dv, int ya, int yb,
-                     int w, int nt)
+static void add_rows(float *u, float *v, const float *du, const float *dv, int ya, int yb, int w,
+                     int nt)
 {
     (void)nt; /* unused without OpenMP */
     size_t o = (size_t)ya * (size_t)w;
@@ -695,8 +712,8 @@ void sinew__var_level(float *u, float *v, const sinew__level *l0, const sinew__l
      * whose context reaches into it, is solved; bands are at least BAND_HALO rows, so no
      * later band reads it. */
     int core = (int)band_core(channels, w, work_floats);
-    size_t band_floats = (size_t)sinew__var_planes(channels) * (size_t)w *
-                         (size_t)(core + 2 * BAND_HALO);
+    size_t band_floats =
+        (size_t)sinew__var_planes(channels) * (size_t)w * (size_t)(core + 2 * BAND_HALO);
     float *pend_u = work + band_floats, *pend_v = pend_u + (size_t)core * (size_t)w;
     int pa = 0, pb = 0;
     for (int a = 0; a < h; a += core) {

@@ -56,7 +56,7 @@ static float weighted_select(float *val, float *wt, float *lv, float *lw, int n,
         float wless = 0.f, weq = 0.f;
         for (int i = 0; i < n; i++) {
             float x = val[i], wi = wt[i];
-            int lt = x < pivot, gt = x > pivot;
+            int lt = x<pivot, gt = x> pivot;
             lv[nl] = x;
             lw[nl] = wi;
             nl += lt;
@@ -68,8 +68,12 @@ static float weighted_select(float *val, float *wt, float *lv, float *lw, int n,
         }
         if (wless >= target && nl > 0) {
             /* continue in the lower part, now in lv/lw */
-            float *t = val; val = lv; lv = t;
-            t = wt; wt = lw; lw = t;
+            float *t = val;
+            val = lv;
+            lv = t;
+            t = wt;
+            wt = lw;
+            lw = t;
             n = nl;
         } else if (wless + weq >= target || nh == 0) {
             return pivot;
@@ -84,8 +88,8 @@ static float weighted_select(float *val, float *wt, float *lv, float *lw, int n,
 /* Soft visibility o(x) of rows ya .. yb - 1 into occ (row ya first): low where the flow
  * converges (negative divergence) or frame 1 does not match at x + w(x). */
 static void visibility_rows(float *occ, const float *u, const float *v, const sinew__level *l0,
-                            const sinew__level *l1, const sinew__wmed_params *p, int ya,
-                            int yb, int nt)
+                            const sinew__level *l1, const sinew__wmed_params *p, int ya, int yb,
+                            int nt)
 {
     (void)nt; /* unused without OpenMP */
     int w = l0->w, h = l0->h;
@@ -103,8 +107,7 @@ static void visibility_rows(float *occ, const float *u, const float *v, const si
             if (yd > yu)
                 div += (v[(size_t)yd * w + x] - v[(size_t)yu * w + x]) / (float)(yd - yu);
             float o = div < 0.f ? expf(-div * div * kd) : 1.f;
-            float e =
-                sinew__sample(l1->lum, w, h, (float)x + u[i], (float)y + v[i]) - l0->lum[i];
+            float e = sinew__sample(l1->lum, w, h, (float)x + u[i], (float)y + v[i]) - l0->lum[i];
             occ[i - (size_t)ya * (size_t)w] = o * expf(-e * e * ke);
         }
     }
@@ -166,9 +169,9 @@ static inline void filter_pixel(const wm_window *t, int x, int y, float *uo, flo
     *vo = weighted_select(vv, wt2, sv, sw, n, total);
 }
 
-void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
-                    const sinew__level *l0, const sinew__level *l1, int channels,
-                    const sinew__wmed_params *p, float *occ, size_t occ_floats, int nt)
+void sinew__wmedian(float *uo, float *vo, const float *u, const float *v, const sinew__level *l0,
+                    const sinew__level *l1, int channels, const sinew__wmed_params *p, float *occ,
+                    size_t occ_floats, int nt)
 {
     (void)nt; /* unused without OpenMP */
     int w = l0->w, h = l0->h, r = p->radius < WM_MAXR ? p->radius : WM_MAXR;
@@ -181,8 +184,9 @@ void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
     for (int dy = -r; dy <= r; dy++)
         for (int dx = -r; dx <= r; dx++)
             sx[(dy + r) * (2 * r + 1) + dx + r] = (float)(dx * dx + dy * dy) * ks;
-    wm_window t = {u, v, occ, l0, channels, r, 0,
-                   255.f * 255.f / (2.f * p->sigma_color * p->sigma_color), lut, sx};
+    wm_window t = {u,        v, occ, l0,
+                   channels, r, 0,   255.f * 255.f / (2.f * p->sigma_color * p->sigma_color),
+                   lut,      sx};
     /* chunks of rows: the visibility of a chunk's rows and r rows around them fits occ */
     size_t rows = occ_floats / (size_t)w;
     int chunk = rows >= (size_t)h ? h : (int)rows - 2 * r;

@@ -27,9 +27,9 @@
 #define NPRESET 4
 static const char *presets[NPRESET] = {"fast", "balanced", "accurate", "baseline"};
 #define NPAIR 10
-static const char *pair_names[NPAIR] = {"Dimetrodon", "Grove2",      "Grove3", "Hydrangea",
-                                        "RubberWhale", "Urban2",     "Urban3", "Venus",
-                                        "chairs-0",   "chairs-1"};
+static const char *pair_names[NPAIR] = {"Dimetrodon",  "Grove2",  "Grove3", "Hydrangea",
+                                        "RubberWhale", "Urban2",  "Urban3", "Venus",
+                                        "chairs-0",    "chairs-1"};
 static const int sizes[4][2] = {{320, 240}, {640, 480}, {1280, 1024}, {1920, 1080}};
 static const double rss_px[2] = {1920.0 * 1080.0, 3840.0 * 2160.0}; /* tools/bench */
 

@@ -74,10 +74,28 @@ static void usage(FILE *out)
 }
 
 enum {
-    O_LEVELS = 256, O_FINEST, O_PFINEST, O_PSIZE, O_PSTRIDE, O_PITERS, O_WARPS, O_OUTER,
-    O_INNER, O_ALPHA, O_GAMMA, O_DELTA, O_EDGE, O_MEDIAN, O_WMEDIAN, O_WMEDIAN_LEVELS,
-    O_WARPS_FINE, O_FINE_LEVELS,
-    O_WMEDIAN_BAND, O_FUSE_LEVELS, O_GRAY, O_WORK_MIB
+    O_LEVELS = 256,
+    O_FINEST,
+    O_PFINEST,
+    O_PSIZE,
+    O_PSTRIDE,
+    O_PITERS,
+    O_WARPS,
+    O_OUTER,
+    O_INNER,
+    O_ALPHA,
+    O_GAMMA,
+    O_DELTA,
+    O_EDGE,
+    O_MEDIAN,
+    O_WMEDIAN,
+    O_WMEDIAN_LEVELS,
+    O_WARPS_FINE,
+    O_FINE_LEVELS,
+    O_WMEDIAN_BAND,
+    O_FUSE_LEVELS,
+    O_GRAY,
+    O_WORK_MIB
 };
 
 /* Apply one advanced option to p; returns 0 or -1 if the value does not parse. */
@@ -90,28 +108,71 @@ static int set_param(sinew_flow_params *p, int opt, const char *arg)
     if (isint ? cli_parse_int(arg, -1, 100000, &iv) : cli_parse_double(arg, &dv))
         return -1;
     switch (opt) {
-    case O_LEVELS: p->levels = (int)iv; break;
-    case O_FINEST: p->finest_level = (int)iv; break;
-    case O_PFINEST: p->dis_finest = (int)iv; break;
-    case O_PSIZE: p->dis_patch = (int)iv; break;
-    case O_PSTRIDE: p->dis_stride = (int)iv; break;
-    case O_PITERS: p->dis_iters = (int)iv; break;
-    case O_WARPS: p->warps = (int)iv; break;
-    case O_WARPS_FINE: p->warps_fine = (int)iv; break;
-    case O_FINE_LEVELS: p->fine_levels = (int)iv; break;
-    case O_OUTER: p->outer = (int)iv; break;
-    case O_INNER: p->inner = (int)iv; break;
-    case O_ALPHA: p->alpha = (float)dv; break;
-    case O_GAMMA: p->gamma = (float)dv; break;
-    case O_DELTA: p->delta = (float)dv; break;
-    case O_EDGE: p->edge = (float)dv; break;
-    case O_MEDIAN: p->median = (int)iv; break;
-    case O_WMEDIAN: p->wmedian = (int)iv; break;
-    case O_WMEDIAN_LEVELS: p->wmedian_levels = (int)iv; break;
-    case O_WMEDIAN_BAND: p->wmedian_band = (float)dv; break;
-    case O_FUSE_LEVELS: p->fuse_levels = (int)iv; break;
-    case O_WORK_MIB: p->work_mib = (int)iv; break;
-    default: return -1;
+    case O_LEVELS:
+        p->levels = (int)iv;
+        break;
+    case O_FINEST:
+        p->finest_level = (int)iv;
+        break;
+    case O_PFINEST:
+        p->dis_finest = (int)iv;
+        break;
+    case O_PSIZE:
+        p->dis_patch = (int)iv;
+        break;
+    case O_PSTRIDE:
+        p->dis_stride = (int)iv;
+        break;
+    case O_PITERS:
+        p->dis_iters = (int)iv;
+        break;
+    case O_WARPS:
+        p->warps = (int)iv;
+        break;
+    case O_WARPS_FINE:
+        p->warps_fine = (int)iv;
+        break;
+    case O_FINE_LEVELS:
+        p->fine_levels = (int)iv;
+        break;
+    case O_OUTER:
+        p->outer = (int)iv;
+        break;
+    case O_INNER:
+        p->inner = (int)iv;
+        break;
+    case O_ALPHA:
+        p->alpha = (float)dv;
+        break;
+    case O_GAMMA:
+        p->gamma = (float)dv;
+        break;
+    case O_DELTA:
+        p->delta = (float)dv;
+        break;
+    case O_EDGE:
+        p->edge = (float)dv;
+        break;
+    case O_MEDIAN:
+        p->median = (int)iv;
+        break;
+    case O_WMEDIAN:
+        p->wmedian = (int)iv;
+        break;
+    case O_WMEDIAN_LEVELS:
+        p->wmedian_levels = (int)iv;
+        break;
+    case O_WMEDIAN_BAND:
+        p->wmedian_band = (float)dv;
+        break;
+    case O_FUSE_LEVELS:
+        p->fuse_levels = (int)iv;
+        break;
+    case O_WORK_MIB:
+        p->work_mib = (int)iv;
+        break;
+    default:
+        return -1;
     }
     return 0;
 }
@@ -152,22 +213,37 @@ int cmd_flow(int argc, char **argv)
     const char *out = NULL, *bout = NULL, *preset = "balanced", *check_dir = NULL;
     long threads = 0;
     /* advanced options are applied after the preset, in order */
-    struct { int opt; const char *name, *arg; } adv[64];
+    struct {
+        int opt;
+        const char *name, *arg;
+    } adv[64];
     int nadv = 0, gray = 0, c, li = -1;
     opterr = 0;
     optind = 1;
     while ((c = getopt_long(argc, argv, "o:b:c:p:t:h", opts, &li)) != -1) {
         switch (c) {
-        case 'o': out = optarg; break;
-        case 'b': bout = optarg; break;
-        case 'p': preset = optarg; break;
+        case 'o':
+            out = optarg;
+            break;
+        case 'b':
+            bout = optarg;
+            break;
+        case 'p':
+            preset = optarg;
+            break;
         case 't':
             if (cli_parse_int(optarg, 0, 1024, &threads))
                 return cli_usage_error("flow", "--threads: '%s' is not a count in 0..1024", optarg);
             break;
-        case 'h': usage(stdout); return CLI_OK;
-        case O_GRAY: gray = 1; break;
-        case 'c': check_dir = optarg; break;
+        case 'h':
+            usage(stdout);
+            return CLI_OK;
+        case O_GRAY:
+            gray = 1;
+            break;
+        case 'c':
+            check_dir = optarg;
+            break;
         case '?':
         case ':':
             return cli_usage_error("flow", "unknown option or missing value '%s'",
@@ -220,8 +296,8 @@ int cmd_flow(int argc, char **argv)
         reported = cli_error("flow", "%s: size %dx%d differs from %s (%dx%d)", f1, b.width,
                              b.height, f0, a.width, a.height);
     else if (!rc && (a.type != b.type || a.channels != b.channels))
-        reported = cli_error("flow", "%s: %d-channel %d-bit frame, but %s is %d-channel %d-bit",
-                             f1, b.channels, (int)sinew_type_size(b.type) * 8, f0, a.channels,
+        reported = cli_error("flow", "%s: %d-channel %d-bit frame, but %s is %d-channel %d-bit", f1,
+                             b.channels, (int)sinew_type_size(b.type) * 8, f0, a.channels,
                              (int)sinew_type_size(a.type) * 8);
     if (!rc && !reported)
         rc = sinew_image_alloc(ctx, &fwd, a.width, a.height, 2, SINEW_F32);

@@ -293,7 +293,8 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec)
             continue;
         char name[SINEW_PAIR_NAME_MAX], path[4200];
         sinew_pair_name(name, spec->pairs[q]);
-        snprintf(path, sizeof path, "%s/" SINEW_RUN_PAIRS_DIR "/%s/" SINEW_RUN_STATS_FILE, spec->outdir, name);
+        snprintf(path, sizeof path, "%s/" SINEW_RUN_PAIRS_DIR "/%s/" SINEW_RUN_STATS_FILE,
+                 spec->outdir, name);
         unsigned char *buf;
         size_t len;
         cJSON *j = NULL;
@@ -573,8 +574,7 @@ int cmd_run(int argc, char **argv)
             goto done;
         }
         if (seq->has_intrinsics) {
-            sinew_camera_init(&cam, seq->fx, seq->fy, seq->cx, seq->cy, seq->width,
-                              seq->height);
+            sinew_camera_init(&cam, seq->fx, seq->fy, seq->cx, seq->cy, seq->width, seq->height);
             pp.camera = &cam;
         }
         if (!depth_scale_set && seq->depth_scale > 0)
@@ -584,7 +584,8 @@ int cmd_run(int argc, char **argv)
         const sinew_seq_run *sr = &seq->run;
         if (!preset_set && sr->preset)
             pp.preset = sr->preset;
-        if (!format_set && sr->flow_format && sinew_run_flow_format_parse(sr->flow_format, &pp.flow_format)) {
+        if (!format_set && sr->flow_format &&
+            sinew_run_flow_format_parse(sr->flow_format, &pp.flow_format)) {
             cli_error(CMD, "%s: run.flow_format: unknown format", input);
             goto done;
         }
@@ -668,8 +669,8 @@ int cmd_run(int argc, char **argv)
         }
         printf("manifest: %zu pairs: %zu done, %zu failed, %zu pending\n", npairs, nd, nf, np);
         if (nf || np)
-            cli_error(CMD, "%s/" SINEW_RUN_MANIFEST_FILE ": %zu pairs failed and %zu are pending", outdir, nf,
-                      np);
+            cli_error(CMD, "%s/" SINEW_RUN_MANIFEST_FILE ": %zu pairs failed and %zu are pending",
+                      outdir, nf, np);
         else
             ret = CLI_OK;
         goto done;
@@ -719,8 +720,8 @@ int cmd_run(int argc, char **argv)
         }
     }
     if (shard_n == 1 && mrc == SINEW_OK && pmode != PROG_JSON)
-        printf("manifest: %s/" SINEW_RUN_MANIFEST_FILE " (%zu done, %zu failed, %zu pending)\n", outdir, nd, nf,
-               np);
+        printf("manifest: %s/" SINEW_RUN_MANIFEST_FILE " (%zu done, %zu failed, %zu pending)\n",
+               outdir, nd, nf, np);
     fflush(stdout);
     if (res.interrupted) {
         cli_error(CMD, "interrupted by signal %d after %zu of %zu pairs; rerun with --resume",

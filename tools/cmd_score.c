@@ -233,8 +233,8 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
     if ((rc = score_read_flow(ctx, est_path, &est)) || (rc = score_read_flow(ctx, gt_path, &gt)) ||
         (rc = score_same_size(&est, est_path, &gt, gt_path)))
         goto done;
-    if ((rc = score_vs_truth(ctx, &est, &gt, gt_path, o->occ, o->noc, o->valid, o->invalid,
-                             &occ, &eval, &row)))
+    if ((rc = score_vs_truth(ctx, &est, &gt, gt_path, o->occ, o->noc, o->valid, o->invalid, &occ,
+                             &eval, &row)))
         goto done;
     if (o->mask) {
         if ((rc = score_read_mask(ctx, o->mask, 1, 0, &pred)) ||
@@ -365,7 +365,8 @@ static int estimate_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts 
         rc = cli_status(CMD, ctx, st);
         goto done;
     }
-    if ((rc = score_same_size(&f0, p->frame0, gt, p->gt)) || (rc = score_same_size(&f1, p->frame1, gt, p->gt)))
+    if ((rc = score_same_size(&f0, p->frame0, gt, p->gt)) ||
+        (rc = score_same_size(&f1, p->frame1, gt, p->gt)))
         goto done;
     if (f0.type != f1.type || f0.channels != f1.channels) {
         rc = cli_error(CMD, "%s: pixel format differs from %s", p->frame1, p->frame0);
@@ -423,7 +424,8 @@ static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts
                        : cli_error(CMD, "out of memory");
             goto done;
         }
-        if ((rc = score_read_flow(ctx, p->gt, &gt)) || (rc = score_read_flow(ctx, est_path, &est)) ||
+        if ((rc = score_read_flow(ctx, p->gt, &gt)) ||
+            (rc = score_read_flow(ctx, est_path, &est)) ||
             (rc = score_same_size(&est, est_path, &gt, p->gt)))
             goto done;
     }
@@ -487,7 +489,7 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
         }
         for (size_t i = 0; i < n; i++) {
             cJSON *r = score_json_regions(rows[i].s, rows[i].err.has_occ,
-                                    "one pair: mean over its scored pixels");
+                                          "one pair: mean over its scored pixels");
             if (!r)
                 continue;
             cJSON_AddStringToObject(r, "id", rows[i].id);
@@ -497,8 +499,10 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
                 score_json_num(r, "ause", rows[i].ause);
             cJSON_AddItemToArray(pairs, r);
         }
-        cJSON *m = score_json_regions(sum.mean, sum.has_occ, sinew_averaging_name(SINEW_AVG_PAIR_MEAN));
-        cJSON *p = score_json_regions(sum.pooled, sum.has_occ, sinew_averaging_name(SINEW_AVG_POOLED));
+        cJSON *m =
+            score_json_regions(sum.mean, sum.has_occ, sinew_averaging_name(SINEW_AVG_PAIR_MEAN));
+        cJSON *p =
+            score_json_regions(sum.pooled, sum.has_occ, sinew_averaging_name(SINEW_AVG_POOLED));
         if (m) {
             cJSON_AddStringToObject(m, "averaging_text", sinew_averaging_text(SINEW_AVG_PAIR_MEAN));
             cJSON_AddNumberToObject(m, "n_pairs", (double)sum.mean[0].n_pairs);
@@ -539,11 +543,11 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
         for (size_t i = 0; i < n; i++)
             if (k == SINEW_REGION_ALL || rows[i].err.has_occ)
                 score_text_row(stdout, rows[i].id, &rows[i].s[k], rows[i].time_s,
-                         k == SINEW_REGION_ALL ? rows[i].ause : NAN, cols);
-        score_text_row(stdout, sinew_averaging_name(SINEW_AVG_PAIR_MEAN), &sum.mean[k], sum.mean_time_s,
-                 k == SINEW_REGION_ALL ? sum.mean_ause : NAN, cols);
-        score_text_row(stdout, sinew_averaging_name(SINEW_AVG_POOLED), &sum.pooled[k], sum.mean_time_s,
-                 NAN, cols);
+                               k == SINEW_REGION_ALL ? rows[i].ause : NAN, cols);
+        score_text_row(stdout, sinew_averaging_name(SINEW_AVG_PAIR_MEAN), &sum.mean[k],
+                       sum.mean_time_s, k == SINEW_REGION_ALL ? sum.mean_ause : NAN, cols);
+        score_text_row(stdout, sinew_averaging_name(SINEW_AVG_POOLED), &sum.pooled[k],
+                       sum.mean_time_s, NAN, cols);
     }
     return fflush(stdout) == 0 ? CLI_OK : cli_error(CMD, "stdout: write failed");
 }

@@ -61,10 +61,14 @@ static int parse_seed(const char *s, uint64_t *out)
 int cmd_synth(int argc, char **argv)
 {
     static const struct option opts[] = {
-        {"output", required_argument, NULL, 'o'}, {"frames", required_argument, NULL, 'n'},
-        {"size", required_argument, NULL, 's'},   {"seed", required_argument, NULL, 'S'},
-        {"noise", no_argument, NULL, 'N'},        {"threads", required_argument, NULL, 'j'},
-        {"help", no_argument, NULL, 'h'},         {"stereo", required_argument, NULL, 'B'},
+        {"output", required_argument, NULL, 'o'},
+        {"frames", required_argument, NULL, 'n'},
+        {"size", required_argument, NULL, 's'},
+        {"seed", required_argument, NULL, 'S'},
+        {"noise", no_argument, NULL, 'N'},
+        {"threads", required_argument, NULL, 'j'},
+        {"help", no_argument, NULL, 'h'},
+        {"stereo", required_argument, NULL, 'B'},
         {NULL, 0, NULL, 0},
     };
     double baseline = 0; /* --stereo: right frames and exact disparity (flow/stereo.h) */

@@ -22,14 +22,13 @@ static const command commands[] = {
 
 static void usage(FILE *out)
 {
-    fprintf(out,
-            "usage: sinew COMMAND [OPTIONS]\n"
-            "\n"
-            "Dense frame-to-frame correspondences for non-rigid RGB-D tracking, on the CPU:\n"
-            "optical flow both ways, consistency and occlusion checks, confidence, 2-D and\n"
-            "lifted 3-D matches, scores against ground truth, pictures.\n"
-            "\n"
-            "commands:\n");
+    fprintf(out, "usage: sinew COMMAND [OPTIONS]\n"
+                 "\n"
+                 "Dense frame-to-frame correspondences for non-rigid RGB-D tracking, on the CPU:\n"
+                 "optical flow both ways, consistency and occlusion checks, confidence, 2-D and\n"
+                 "lifted 3-D matches, scores against ground truth, pictures.\n"
+                 "\n"
+                 "commands:\n");
     for (size_t i = 0; commands[i].name; i++)
         fprintf(out, "  %-10s %s\n", commands[i].name, commands[i].summary);
     fprintf(out,

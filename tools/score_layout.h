@@ -27,8 +27,8 @@ typedef struct score_set {
 extern const char score_layout_names[];
 
 /* Fill *out with the pairs of `root` in layout `layout` ("middlebury", "sintel",
- * "kitti", "chairs", "list"), sorted by id (list: in file order). `pass` is the Sintel pass ("clean" or
- * "final"). On failure prints one line (naming the folder or file) and returns
+ * "kitti", "chairs", "list"), sorted by id (list: in file order). `pass` is the Sintel pass
+ * ("clean" or "final"). On failure prints one line (naming the folder or file) and returns
  * CLI_FAIL, or CLI_USAGE for an unknown layout; *out is then empty. */
 int score_layout_list(const char *cmd, const char *layout, const char *root, const char *pass,
                       score_set *out);

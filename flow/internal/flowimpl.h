@@ -58,13 +58,12 @@ void sinew__gradient(float *gx, float *gy, const float *src, int w, int h, int n
 /* Halve: 2x2 box average (clamped) of src (sw x sh) into dst (ceil(sw/2) x ceil(sh/2)). */
 void sinew__halve(float *dst, const float *src, int sw, int sh, int nt);
 /* Upsample a flow field from (sw, sh) to (dw, dh) = level below: bilinear, values x2. */
-void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv,
-                    int sw, int sh, int nt);
+void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv, int sw,
+                    int sh, int nt);
 /* Upsample a flow field (su, sv) of sw x sh by any factor straight into the interleaved
  * 2-channel float image `out` (its size is the target; bilinear, values scaled per
  * axis), so no full-size planar copy is needed. */
-void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int sw, int sh,
-                        int nt);
+void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int sw, int sh, int nt);
 /* Bicubic warp: dst(x,y) = src(x+u, y+v) with clamped coordinates. If `outside` is not
  * NULL it receives 1 where the sample point lies outside the image, else 0. */
 void sinew__warp(float *dst, unsigned char *outside, const float *src, const float *u,
@@ -72,19 +71,24 @@ void sinew__warp(float *dst, unsigned char *outside, const float *src, const flo
 /* The same warp applied to `count` planes at once (shared weights): dst[c] from src[c].
  * dst, u, v, outside are h rows of a band starting at row y0 of the w x sh source:
  * dst(x, y) = src(x + u, y0 + y + v). */
-void sinew__warp_n(float *const *dst, const float *const *src, int count,
-                   unsigned char *outside, const float *u, const float *v, int w, int h,
-                   int y0, int sh, int nt);
+void sinew__warp_n(float *const *dst, const float *const *src, int count, unsigned char *outside,
+                   const float *u, const float *v, int w, int h, int y0, int sh, int nt);
 /* Bilinear sample with clamped coordinates. */
 static inline float sinew__sample(const float *img, int w, int h, float x, float y)
 {
-    if (x < 0.f) x = 0.f;
-    if (y < 0.f) y = 0.f;
-    if (x > (float)(w - 1)) x = (float)(w - 1);
-    if (y > (float)(h - 1)) y = (float)(h - 1);
+    if (x < 0.f)
+        x = 0.f;
+    if (y < 0.f)
+        y = 0.f;
+    if (x > (float)(w - 1))
+        x = (float)(w - 1);
+    if (y > (float)(h - 1))
+        y = (float)(h - 1);
     int x0 = (int)x, y0 = (int)y;
-    if (x0 > w - 2) x0 = w > 1 ? w - 2 : 0;
-    if (y0 > h - 2) y0 = h > 1 ? h - 2 : 0;
+    if (x0 > w - 2)
+        x0 = w > 1 ? w - 2 : 0;
+    if (y0 > h - 2)
+        y0 = h > 1 ? h - 2 : 0;
     float fx = x - (float)x0, fy = y - (float)y0;
     int x1 = w > 1 ? x0 + 1 : x0;
     size_t r0 = (size_t)y0 * (size_t)w, r1 = h > 1 ? r0 + (size_t)w : r0;
@@ -156,18 +160,18 @@ static inline int sinew__flow_edge(const float *u, const float *v, int w, int h,
 
 /* ---- occlusion-aware weighted median near motion boundaries (flow/wmedian.c) ---- */
 typedef struct sinew__wmed_params {
-    int radius;                        /* window radius, 1..10 */
-    float sigma_space, sigma_color;    /* pixels; intensity in 0..255 units */
-    float sigma_div, sigma_err;        /* divergence (px/px); intensity 0..255 units */
-    float band;                        /* boundary test: L1 flow difference in a 5x5, px */
+    int radius;                     /* window radius, 1..10 */
+    float sigma_space, sigma_color; /* pixels; intensity in 0..255 units */
+    float sigma_div, sigma_err;     /* divergence (px/px); intensity 0..255 units */
+    float band;                     /* boundary test: L1 flow difference in a 5x5, px */
 } sinew__wmed_params;
 /* Replace (uo, vo) at boundary pixels of the flow (u, v) by its weighted median; other
  * pixels of (uo, vo) are left untouched. (uo, vo) must not alias (u, v). occ: occ_floats
  * >= (2 * radius + 1) * w floats of scratch (the rows run in chunks that fit; the result
  * does not depend on the chunking). */
-void sinew__wmedian(float *uo, float *vo, const float *u, const float *v,
-                    const sinew__level *l0, const sinew__level *l1, int channels,
-                    const sinew__wmed_params *p, float *occ, size_t occ_floats, int nt);
+void sinew__wmedian(float *uo, float *vo, const float *u, const float *v, const sinew__level *l0,
+                    const sinew__level *l1, int channels, const sinew__wmed_params *p, float *occ,
+                    size_t occ_floats, int nt);
 
 /* ---- candidate selection near motion boundaries (flow/fuse.c) ---- */
 /* Copy (u, v) to (uo, vo) (no aliasing), except that at boundary pixels (sinew__flow_edge

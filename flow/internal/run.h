@@ -26,7 +26,6 @@ typedef struct sinew__input {
     uint64_t bytes;
 } sinew__input;
 
-
 const sinew_run_spec *sinew__run_spec(const sinew_run *run);
 sinew_ctx *sinew__run_ctx(const sinew_run *run);
 /* OUTDIR/pairs/NAME of pair `index`. */

@@ -41,8 +41,8 @@ void fuzz_cleanup(void)
     char path[600];
     if (!fuzz_dir[0])
         return;
-    static const char *const sfx[] = {".png", ".jpg", ".pgm", ".flo", ".pfm", ".npy",
-                                      ".json", ".txt", ".bin", ""};
+    static const char *const sfx[] = {".png", ".jpg",  ".pgm", ".flo", ".pfm",
+                                      ".npy", ".json", ".txt", ".bin", ""};
     for (size_t i = 0; i < sizeof sfx / sizeof sfx[0]; i++) {
         snprintf(path, sizeof path, "%s/input%s", fuzz_dir, sfx[i]);
         unlink(path);

@@ -9,15 +9,15 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* 7-Scenes intrinsics (Shotton et al., CVPR 2013; the dataset's camera-intrinsics.txt): fx = fy = 585, cx = 320,
- * cy = 240, 640x480. */
+/* 7-Scenes intrinsics (Shotton et al., CVPR 2013; the dataset's camera-intrinsics.txt): fx = fy =
+ * 585, cx = 320, cy = 240, 640x480. */
 static void seven_scenes(sinew_camera *c)
 {
     sinew_camera_init(c, 585, 585, 320, 240, 640, 480);
 }
 
-/* TUM RGB-D "Freiburg 1 RGB" calibration (Sturm et al., IROS 2012; the benchmark's file-format page): a real lens
- * with strong radial distortion (d0..d4 = k1 k2 p1 p2 k3). */
+/* TUM RGB-D "Freiburg 1 RGB" calibration (Sturm et al., IROS 2012; the benchmark's file-format
+ * page): a real lens with strong radial distortion (d0..d4 = k1 k2 p1 p2 k3). */
 static void freiburg1(sinew_camera *c)
 {
     sinew_camera_init(c, 517.3, 516.5, 318.6, 255.3, 640, 480);
@@ -35,7 +35,8 @@ static void test_camera_backproject_hand_values(void **state)
     seven_scenes(&c);
     double X[3];
     /* Pinhole back-projection X = (u - cx) z / fx, Y = (v - cy) z / fy (the TUM RGB-D
-     * benchmark's file-format page, Sturm et al., IROS 2012); hand-computed: (400 - 320) * 2 / 585 = 160/585. */
+     * benchmark's file-format page, Sturm et al., IROS 2012); hand-computed: (400 - 320) * 2 / 585
+     * = 160/585. */
     assert_true(sinew_camera_unproject(&c, 400, 100, 2.0, X));
     assert_near(X[0], 160.0 / 585.0, 1e-15);
     assert_near(X[1], -280.0 / 585.0, 1e-15);

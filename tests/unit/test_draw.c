@@ -13,8 +13,9 @@
 
 /* ---- independent reference of the Middlebury colour code ----
  * Source: colorcode.cpp (D. Scharstein, 2007), the colour code published with the
- * Middlebury flow benchmark, Baker et al., IJCV 92(1):1-31, 2011. Written here in the published loop style (a running column
- * counter over six segments), separately from flow/draw.c's per-index formula. */
+ * Middlebury flow benchmark, Baker et al., IJCV 92(1):1-31, 2011. Written here in the published
+ * loop style (a running column counter over six segments), separately from flow/draw.c's per-index
+ * formula. */
 enum { RY = 15, YG = 6, GC = 4, CB = 11, BM = 13, MR = 6, NCOLS = RY + YG + GC + CB + BM + MR };
 
 static void ref_wheel(int wheel[NCOLS][3])

@@ -28,11 +28,18 @@
  *             chairs 3.5397, 0.9427
  * Urban3 moves by up to 0.1 px with small parameter changes (a striped facade whose
  * vertical motion the data term barely sees), so its margin is not slack. */
-#define MIDDLEBURY_BOUNDS \
-    {"Dimetrodon", 0.39, 0.21}, {"Grove2", 0.32, 0.18}, {"Grove3", 1.01, 0.59}, \
-        {"Hydrangea", 0.47, 0.25}, {"RubberWhale", 0.39, 0.14}, {"Urban2", 0.75, 0.32}, \
-        {"Urban3", 1.20, 0.41}, {"Venus", 0.62, 0.27}
-#define CHAIRS_BOUNDS {5.55, 2.00}, {3.92, 1.06} /* fast, accurate */
+#define MIDDLEBURY_BOUNDS                                                                          \
+    {"Dimetrodon", 0.39, 0.21}, {"Grove2", 0.32, 0.18}, {"Grove3", 1.01, 0.59},                    \
+        {"Hydrangea", 0.47, 0.25}, {"RubberWhale", 0.39, 0.14}, {"Urban2", 0.75, 0.32},            \
+        {"Urban3", 1.20, 0.41},                                                                    \
+    {                                                                                              \
+        "Venus", 0.62, 0.27                                                                        \
+    }
+#define CHAIRS_BOUNDS                                                                              \
+    {5.55, 2.00},                                                                                  \
+    {                                                                                              \
+        3.92, 1.06                                                                                 \
+    } /* fast, accurate */
 /* Banded solve vs whole-level solve, EPE difference against the exact rotation: measured
  * below 1e-7 on this smooth texture (2026-12-02); on real pairs with occlusions it is
  * larger (accurate preset, --work-mib 1: Urban3 +0.0004 px, Grove3 -0.0002 px; see
@@ -181,7 +188,7 @@ static void check_shift(const char *preset, int ch, double du, double dv, double
 static void test_estimate_subpixel_translation(void **state)
 {
     (void)state;
-    check_shift("balanced", 1, 1.3, -0.7, 0.01);  /* measured 0.0025 */
+    check_shift("balanced", 1, 1.3, -0.7, 0.01);   /* measured 0.0025 */
     check_shift("accurate", 1, -0.45, 0.25, 0.01); /* measured 0.0014 */
     check_shift("fast", 1, 2.6, 1.2, 0.06);        /* measured 0.022 */
 }
@@ -289,7 +296,6 @@ static void test_estimate_threads_bit_identical(void **state)
     }
     sinew_ctx_free(ctx);
 }
-
 
 /* Frames down to one pixel wide or tall reach every border case of the red/black solver
  * (first and last row, first and last column, rows with no pixel of one colour, thread
@@ -561,8 +567,10 @@ static void test_estimate_demo_scene_epe(void **state)
     assert_int_equal(sinew_synth_render(s, 0, &a, NULL, NULL), SINEW_OK);
     assert_int_equal(sinew_synth_render(s, 1, &b, NULL, NULL), SINEW_OK);
     assert_int_equal(sinew_synth_truth(s, 0, 1, &gt, NULL, NULL), SINEW_OK);
-    static const struct { const char *preset; double bound; } runs[] = {
-        {"fast", DEMO_FAST_BOUND}, {"balanced", DEMO_BAL_BOUND}};
+    static const struct {
+        const char *preset;
+        double bound;
+    } runs[] = {{"fast", DEMO_FAST_BOUND}, {"balanced", DEMO_BAL_BOUND}};
     for (size_t i = 0; i < sizeof runs / sizeof runs[0]; i++) {
         sinew_estimator *e = new_est(ctx, runs[i].preset);
         assert_int_equal(sinew_estimator_run(e, &fl, NULL, &a, &b), SINEW_OK);
@@ -584,9 +592,10 @@ static void test_estimate_demo_scene_epe(void **state)
 static void test_estimate_middlebury_epe(void **state)
 {
     (void)state;
-    static const struct { const char *seq; double fast, accurate; } pairs[] = {
-        MIDDLEBURY_BOUNDS
-    };
+    static const struct {
+        const char *seq;
+        double fast, accurate;
+    } pairs[] = {MIDDLEBURY_BOUNDS};
     for (size_t i = 0; i < sizeof pairs / sizeof pairs[0]; i++) {
         char a[256], b[256], g[256];
         snprintf(a, sizeof a, "middlebury/%s/frame10.png", pairs[i].seq);

@@ -478,7 +478,7 @@ static void test_io_flow_malformed_npy(void **state)
     /* version 2.0 header written by hand, big-endian float64 */
     const unsigned char be8[16] = {0x3f, 0xf0, 0, 0, 0, 0, 0, 0, 0xc0, 0x04, 0, 0, 0, 0, 0, 0};
     tu_write_npy(p, 2, "{\"descr\": \">f8\", \"fortran_order\": False, \"shape\": (1, 1, 2)}", be8,
-                  16);
+                 16);
     sinew_image b;
     assert_int_equal(sinew_flow_read(f->ctx, &b, p, SINEW_FLOW_AUTO), SINEW_OK);
     assert_true(sinew_image_row_f32(&b, 0)[0] == 1.0f && sinew_image_row_f32(&b, 0)[1] == -2.5f);
@@ -519,7 +519,7 @@ static void test_io_flow_short_file_refused_before_allocation(void **state)
     assert_int_equal(sinew_flow_read(ctx, &b, p, SINEW_FLOW_AUTO), SINEW_EFORMAT);
     p = tu_fixture_path(f, "big.npy");
     tu_write_npy(p, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (15872, 15872, 2), }",
-                  NULL, 0);
+                 NULL, 0);
     assert_int_equal(sinew_flow_read(ctx, &b, p, SINEW_FLOW_AUTO), SINEW_EFORMAT);
     n = snprintf(buf, sizeof buf, "P6\n15872 15872\n65535\n");
     p = tu_fixture_path(f, "big.ppm");

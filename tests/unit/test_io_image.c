@@ -510,7 +510,8 @@ static void test_io_image_depth_png_matches_reference_decoder(void **state)
                 hi = v > hi ? v : hi;
             }
         }
-    /* measured on these files: valid range about 0.94-2.9 m (so in millimetres, loosely bracketed) */
+    /* measured on these files: valid range about 0.94-2.9 m (so in millimetres, loosely bracketed)
+     */
     assert_true(valid > 0 && lo >= 800 && hi <= 3500);
     sinew_image_free(&d);
     sinew_image_free(&r);

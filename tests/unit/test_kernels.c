@@ -57,8 +57,8 @@ static void check_median(int w, int h, int r, int levels_of_value, unsigned seed
             float want = ref_median(src, w, h, x, y, r);
             float got = dst[(size_t)y * (size_t)w + (size_t)x];
             if (got != want)
-                fail_msg("median r=%d %dx%d at (%d,%d): %g, want %g", r, w, h, x, y,
-                         (double)got, (double)want);
+                fail_msg("median r=%d %dx%d at (%d,%d): %g, want %g", r, w, h, x, y, (double)got,
+                         (double)want);
         }
     free(src);
     free(dst);
@@ -67,7 +67,7 @@ static void check_median(int w, int h, int r, int levels_of_value, unsigned seed
 static void test_kernels_median_matches_sort(void **state)
 {
     (void)state;
-    static const int sizes[][2] = {{1, 1}, {1, 7}, {9, 1}, {5, 5},    {63, 4},
+    static const int sizes[][2] = {{1, 1},  {1, 7},  {9, 1},   {5, 5},   {63, 4},
                                    {64, 3}, {65, 6}, {130, 5}, {200, 33}};
     for (int r = 1; r <= 2; r++)
         for (size_t s = 0; s < sizeof sizes / sizeof sizes[0]; s++) {
@@ -258,8 +258,8 @@ static void test_kernels_dis_chunks_identical(void **state)
             img0[y * w + x] = 0.5f + 0.2f * sinf(0.4f * (float)x + 0.3f * (float)y) +
                               0.1f * cosf(0.23f * (float)x * (float)y / 9.f);
             float xs = (float)x + 1.3f, ys = (float)y - 0.6f;
-            img1[y * w + x] = 0.5f + 0.2f * sinf(0.4f * xs + 0.3f * ys) +
-                              0.1f * cosf(0.23f * xs * ys / 9.f);
+            img1[y * w + x] =
+                0.5f + 0.2f * sinf(0.4f * xs + 0.3f * ys) + 0.1f * cosf(0.23f * xs * ys / 9.f);
         }
     sinew__level l0 = {.w = w, .h = h, .lum = img0, .gx = img0 + 2 * n, .gy = img0 + 3 * n};
     sinew__level l1 = {.w = w, .h = h, .lum = img1, .gx = img0 + 4 * n, .gy = img0 + 5 * n};
@@ -302,8 +302,8 @@ static void test_kernels_dis_chunks_identical(void **state)
  * right part stays (frame 1 built from frame 0 accordingly).
  * The estimate gives the right part's flow (0) to the two left columns x = 22, 23. */
 typedef struct fu_case {
-    wm_case a;     /* frame 0 (img), flow (u, v), output (uo, vo) */
-    float *img1;   /* frame 1 */
+    wm_case a;   /* frame 0 (img), flow (u, v), output (uo, vo) */
+    float *img1; /* frame 1 */
     sinew__level l1;
 } fu_case;
 

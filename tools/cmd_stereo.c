@@ -9,6 +9,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 #include <sys/stat.h>
 
 #include "flow/sinew.h"
@@ -358,6 +359,16 @@ done:;
     return rc;
 }
 
+/* The extensions sinew_stereo_write_map accepts (case-insensitive). */
+static int map_ext_ok(const char *path)
+{
+    const size_t n = strlen(path);
+    if (n < 4)
+        return 0;
+    const char *e = path + n - 4;
+    return !strcasecmp(e, ".npy") || !strcasecmp(e, ".pfm") || !strcasecmp(e, ".png");
+}
+
 static int parse_int(const char *opt, const char *arg, long lo, long hi, int *out)
 {
     long v;
@@ -471,6 +482,11 @@ int cmd_stereo(int argc, char **argv)
         return cli_usage_error(CMD, "-o DISP is required");
     if (j.depth && !j.calib)
         return cli_usage_error(CMD, "--depth needs --calib FILE");
+    /* refuse an output format before spending the matching time on it */
+    const char *outs[3] = {j.out, j.rout, j.depth};
+    for (int i = 0; i < 3; i++)
+        if (outs[i] && !map_ext_ok(outs[i]))
+            return cli_usage_error(CMD, "%s: write .npy, .pfm or .png (16-bit)", outs[i]);
     if (j.occ && !j.truth)
         return cli_usage_error(CMD, "--occ needs --truth FILE");
     /* explicit options override the preset, whichever order they came in */

@@ -16,11 +16,6 @@
 
 #include "flow/internal/io.h"
 
-int sinew__io_open(sinew_ctx *ctx, const char *path, FILE **fp)
-{
-    return sinew__open_regular(ctx, path, fp);
-}
-
 int sinew__io_read(sinew_ctx *ctx, const char *path, FILE *fp, void *buf, size_t n,
                    const char *what)
 {

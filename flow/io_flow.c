@@ -64,7 +64,7 @@ static void normalise_unknown(sinew_image *flow, float thresh)
 static int flo_read(sinew_ctx *ctx, const char *path, sinew_image *out)
 {
     FILE *fp;
-    int rc = sinew__io_open(ctx, path, &fp);
+    int rc = sinew__open_regular(ctx, path, &fp);
     if (rc)
         return rc;
     unsigned char hdr[12];

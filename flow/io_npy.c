@@ -207,7 +207,7 @@ int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow
 {
     memset(out, 0, sizeof *out);
     FILE *fp;
-    int rc = sinew__io_open(ctx, path, &fp);
+    int rc = sinew__open_regular(ctx, path, &fp);
     if (rc)
         return rc;
     npy_header h;

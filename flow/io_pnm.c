@@ -73,7 +73,7 @@ int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path)
     if (!ctx || !out || !path)
         return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read image: missing argument") : SINEW_EINVAL;
     FILE *fp;
-    int rc = sinew__io_open(ctx, path, &fp);
+    int rc = sinew__open_regular(ctx, path, &fp);
     if (rc)
         return rc;
     unsigned char sig[8];

@@ -23,6 +23,7 @@
 #include <time.h>
 
 #include "flow/sinew.h"
+#include "tools/bench_util.h"
 
 #define NPRESET 4
 static const char *presets[NPRESET] = {"fast", "balanced", "accurate", "baseline"};
@@ -33,24 +34,7 @@ static const char *pair_names[NPAIR] = {"Dimetrodon",  "Grove2",  "Grove3", "Hyd
 static const int sizes[4][2] = {{320, 240}, {640, 480}, {1280, 1024}, {1920, 1080}};
 static const double rss_px[2] = {1920.0 * 1080.0, 3840.0 * 2160.0}; /* tools/bench */
 
-static double now(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
-}
-
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
-static void die(sinew_ctx *ctx, const char *what)
-{
-    fprintf(stderr, "bench_flow: %s: %s\n", what, ctx ? sinew_ctx_message(ctx) : "");
-    exit(1);
-}
+#define die(ctx, what) bench_die("bench_flow", ctx, what)
 
 /* Bilinear resize of an 8/16-bit frame (for the size sweep). */
 static void resize(sinew_ctx *ctx, sinew_image *dst, const sinew_image *src, int w, int h)
@@ -120,12 +104,12 @@ static double time_runs(sinew_estimator *e, sinew_image *fl, const sinew_image *
     if (runs > 64)
         runs = 64;
     for (int r = 0; r < runs; r++) {
-        double t0 = now();
+        double t0 = bench_now();
         if (sinew_estimator_run(e, fl, NULL, a, b))
             die(ctx, "run");
-        t[r] = now() - t0;
+        t[r] = bench_now() - t0;
     }
-    qsort(t, (size_t)runs, sizeof t[0], cmp_double);
+    qsort(t, (size_t)runs, sizeof t[0], bench_cmp_double);
     return runs % 2 ? t[runs / 2] : 0.5 * (t[runs / 2 - 1] + t[runs / 2]);
 }
 

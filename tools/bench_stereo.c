@@ -19,6 +19,7 @@
 #include <time.h>
 
 #include "flow/sinew.h"
+#include "tools/bench_util.h"
 
 typedef struct pair {
     const char *name, *dir, *left, *right, *truth, *nonocc, *all;
@@ -42,24 +43,7 @@ static const pair pairs[] = {
 };
 #define NPAIRS (sizeof pairs / sizeof pairs[0])
 
-static double now(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
-}
-
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
-static void die(sinew_ctx *ctx, const char *what)
-{
-    fprintf(stderr, "bench_stereo: %s: %s\n", what, ctx ? sinew_ctx_message(ctx) : "");
-    exit(1);
-}
+#define die(ctx, what) bench_die("bench_stereo", ctx, what)
 
 static void load(sinew_ctx *ctx, sinew_image *im, const char *data, const char *dir,
                  const char *file)
@@ -116,12 +100,12 @@ static double run_median(sinew_ctx *ctx, sinew_stereo_output *o, const sinew_ima
 {
     double t[32];
     for (int i = 0; i < runs; i++) {
-        const double t0 = now();
+        const double t0 = bench_now();
         if (sinew_stereo_run(ctx, o, l, r, p))
             die(ctx, "stereo");
-        t[i] = now() - t0;
+        t[i] = bench_now() - t0;
     }
-    qsort(t, (size_t)runs, sizeof t[0], cmp_double);
+    qsort(t, (size_t)runs, sizeof t[0], bench_cmp_double);
     return t[runs / 2];
 }
 
@@ -265,13 +249,13 @@ int main(int argc, char **argv)
         double ts[32], tf[32];
         for (int i = 0; i < runs; i++) {
             ts[i] = run_median(ctx, &o, &l, &r, &q, 1);
-            const double t0 = now();
+            const double t0 = bench_now();
             if (sinew_estimator_run(e, &fl, &fb, &l, &r))
                 die(ctx, "flow");
-            tf[i] = now() - t0;
+            tf[i] = bench_now() - t0;
         }
-        qsort(ts, (size_t)runs, sizeof ts[0], cmp_double);
-        qsort(tf, (size_t)runs, sizeof tf[0], cmp_double);
+        qsort(ts, (size_t)runs, sizeof ts[0], bench_cmp_double);
+        qsort(tf, (size_t)runs, sizeof tf[0], bench_cmp_double);
         printf("640x480, 64 disparities, %s: stereo %.1f ms, balanced flow %.1f ms (both "
                "directions), ratio %.2f\n",
                th ? "1 thread" : "default threads", 1e3 * ts[runs / 2], 1e3 * tf[runs / 2],

@@ -12,9 +12,6 @@
 #include "flow/core.h"
 #include "flow/internal/base.h"
 
-/* Open `path` for binary reading; refuses directories. EIO naming the file on failure. */
-int sinew__io_open(sinew_ctx *ctx, const char *path, FILE **fp);
-
 /* Read exactly n bytes. A short read is EFORMAT "PATH: truncated WHAT" (or "PATH: empty
  * file" if nothing at all could be read from the start), a stream error is EIO. */
 int sinew__io_read(sinew_ctx *ctx, const char *path, FILE *fp, void *buf, size_t n,

@@ -1,11 +1,14 @@
 /* SPDX-License-Identifier: MIT */
-/* JSON files: read and parse with a size limit, write formatted text atomically. */
+/* JSON files: read and parse with a size limit, write formatted text atomically;
+ * number-or-null and string-or-null writers (flow/json.h); strict getters. */
+#include <math.h>
 #include <string.h>
 
 #include <cJSON.h>
 
 #include "flow/internal/base.h"
 #include "flow/internal/json.h"
+#include "flow/json.h"
 
 int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj)
 {
@@ -35,4 +38,41 @@ int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON *
         return sinew__fail(ctx, SINEW_EFORMAT, "%s: invalid JSON near byte %zu", path, off);
     *out = j;
     return SINEW_OK;
+}
+
+cJSON *sinew_json_number(double v)
+{
+    return isfinite(v) ? cJSON_CreateNumber(v) : cJSON_CreateNull();
+}
+
+cJSON *sinew_json_add_number(cJSON *obj, const char *key, double v)
+{
+    cJSON *item = sinew_json_number(v);
+    if (item && !cJSON_AddItemToObject(obj, key, item)) {
+        cJSON_Delete(item);
+        return NULL;
+    }
+    return item;
+}
+
+cJSON *sinew_json_add_string(cJSON *obj, const char *key, const char *s)
+{
+    cJSON *item = s ? cJSON_CreateString(s) : cJSON_CreateNull();
+    if (item && !cJSON_AddItemToObject(obj, key, item)) {
+        cJSON_Delete(item);
+        return NULL;
+    }
+    return item;
+}
+
+double sinew__json_num(const cJSON *obj, const char *key)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, key);
+    return cJSON_IsNumber(v) && isfinite(v->valuedouble) ? v->valuedouble : NAN;
+}
+
+const char *sinew__json_str(const cJSON *obj, const char *key)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, key);
+    return cJSON_IsString(v) && v->valuestring ? v->valuestring : NULL;
 }

@@ -14,6 +14,7 @@
 #include "flow/internal/base.h"
 #include "flow/internal/io.h"
 #include "flow/io.h"
+#include "flow/json.h"
 #include "flow/match.h"
 
 /* ---- readers ---- */
@@ -136,36 +137,20 @@ int sinew_matches_sidecar_path(const char *npy_path, char *buf, size_t n)
     return SINEW_OK;
 }
 
-static void add_num(cJSON *o, const char *k, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, k, v);
-    else
-        cJSON_AddNullToObject(o, k);
-}
-
-static void add_str(cJSON *o, const char *k, const char *v)
-{
-    if (v)
-        cJSON_AddStringToObject(o, k, v);
-    else
-        cJSON_AddNullToObject(o, k);
-}
-
 static cJSON *camera_json(const sinew_camera *c)
 {
     cJSON *o = cJSON_CreateObject();
-    add_num(o, "fx", c->fx);
-    add_num(o, "fy", c->fy);
-    add_num(o, "cx", c->cx);
-    add_num(o, "cy", c->cy);
-    add_num(o, "width", c->width);
-    add_num(o, "height", c->height);
-    add_num(o, "k1", c->k1);
-    add_num(o, "k2", c->k2);
-    add_num(o, "p1", c->p1);
-    add_num(o, "p2", c->p2);
-    add_num(o, "k3", c->k3);
+    sinew_json_add_number(o, "fx", c->fx);
+    sinew_json_add_number(o, "fy", c->fy);
+    sinew_json_add_number(o, "cx", c->cx);
+    sinew_json_add_number(o, "cy", c->cy);
+    sinew_json_add_number(o, "width", c->width);
+    sinew_json_add_number(o, "height", c->height);
+    sinew_json_add_number(o, "k1", c->k1);
+    sinew_json_add_number(o, "k2", c->k2);
+    sinew_json_add_number(o, "p1", c->p1);
+    sinew_json_add_number(o, "p2", c->p2);
+    sinew_json_add_number(o, "k3", c->k3);
     return o;
 }
 
@@ -191,7 +176,7 @@ static char *sidecar_text(const sinew_matches *m, const sinew_match_params *p,
     cJSON_AddStringToObject(root, "format", "sinew-matches");
     cJSON_AddNumberToObject(root, "format_version", 1);
     cJSON_AddStringToObject(root, "sinew_version", SINEW_VERSION_STRING);
-    add_str(root, "command", src ? src->command : NULL);
+    sinew_json_add_string(root, "command", src ? src->command : NULL);
     cJSON_AddNumberToObject(root, "rows", (double)m->rows);
     cJSON *cols = cJSON_AddArrayToObject(root, "columns");
     cJSON *units = cJSON_AddObjectToObject(root, "units");
@@ -210,7 +195,7 @@ static char *sidecar_text(const sinew_matches *m, const sinew_match_params *p,
     cJSON_AddNumberToObject(root, "height", m->height);
     if (m->has_depth && src && src->camera) {
         cJSON *k = camera_json(src->camera);
-        add_str(k, "source", src->intrinsics);
+        sinew_json_add_string(k, "source", src->intrinsics);
         if (src->camera_file && src->camera_file->width > 0 &&
             (src->camera_file->width != src->camera->width ||
              src->camera_file->height != src->camera->height)) {
@@ -222,22 +207,19 @@ static char *sidecar_text(const sinew_matches *m, const sinew_match_params *p,
         const sinew_depth_params *d = src->depth;
         cJSON *o = cJSON_AddObjectToObject(root, "depth");
         cJSON_AddStringToObject(o, "kind", (unsigned)d->kind < 3 ? kinds[d->kind] : "?");
-        add_num(o, "scale", d->scale);
+        sinew_json_add_number(o, "scale", d->scale);
         cJSON_AddStringToObject(o, "scale_meaning",
                                 d->kind == SINEW_DEPTH_DISPARITY
                                     ? "16-bit codes per pixel of disparity"
                                     : "16-bit codes per metre (float files are metres)");
-        add_num(o, "near_m", d->near);
-        add_num(o, "far_m", d->far);
+        sinew_json_add_number(o, "near_m", d->near);
+        sinew_json_add_number(o, "far_m", d->far);
         if (d->kind == SINEW_DEPTH_DISPARITY)
-            add_num(o, "baseline_m", d->baseline);
+            sinew_json_add_number(o, "baseline_m", d->baseline);
         cJSON_AddStringToObject(o, "invalid", "16-bit codes 0 and 65535; NaN, Inf, <= 0");
         cJSON *med = cJSON_AddArrayToObject(o, "median_valid_m");
         for (int i = 0; i < 2; i++)
-            cJSON_AddItemToArray(med,
-                                 isfinite(src->depth_median[i])
-                                     ? cJSON_CreateNumber(round(src->depth_median[i] * 1e6) / 1e6)
-                                     : cJSON_CreateNull());
+            cJSON_AddItemToArray(med, sinew_json_number(round(src->depth_median[i] * 1e6) / 1e6));
     }
     cJSON *par = cJSON_AddObjectToObject(root, "params");
     cJSON_AddStringToObject(par, "sampling",
@@ -249,25 +231,25 @@ static char *sidecar_text(const sinew_matches *m, const sinew_match_params *p,
         cJSON_AddNumberToObject(par, "cell", p->cell);
         cJSON_AddNumberToObject(par, "per_cell", p->per_cell);
     }
-    add_num(par, "min_weight", p->min_weight);
+    sinew_json_add_number(par, "min_weight", p->min_weight);
     cJSON_AddBoolToObject(par, "drop_label_change", p->drop_label_change != 0);
     if (m->has_depth) {
-        add_num(par, "edge_rel", p->edge_rel);
+        sinew_json_add_number(par, "edge_rel", p->edge_rel);
         cJSON_AddNumberToObject(par, "edge_radius", p->edge_radius);
-        add_num(par, "max_displacement_m", p->max_displacement);
+        sinew_json_add_number(par, "max_displacement_m", p->max_displacement);
         cJSON_AddBoolToObject(par, "normals", p->normals != 0);
     }
     cJSON *inp = cJSON_AddObjectToObject(root, "inputs");
-    add_str(inp, "flow", in ? in->flow_name : NULL);
-    add_str(inp, "check_dir", src ? src->check_dir : NULL);
-    add_str(inp, "mask", in ? in->mask_name : NULL);
-    add_str(inp, "confidence", in ? in->confidence_name : NULL);
-    add_str(inp, "labels0", in ? in->labels0_name : NULL);
-    add_str(inp, "labels1", in ? in->labels1_name : NULL);
+    sinew_json_add_string(inp, "flow", in ? in->flow_name : NULL);
+    sinew_json_add_string(inp, "check_dir", src ? src->check_dir : NULL);
+    sinew_json_add_string(inp, "mask", in ? in->mask_name : NULL);
+    sinew_json_add_string(inp, "confidence", in ? in->confidence_name : NULL);
+    sinew_json_add_string(inp, "labels0", in ? in->labels0_name : NULL);
+    sinew_json_add_string(inp, "labels1", in ? in->labels1_name : NULL);
     if (m->has_depth) {
-        add_str(inp, "depth0", in ? in->depth0_name : NULL);
-        add_str(inp, "depth1", in ? in->depth1_name : NULL);
-        add_str(inp, "intrinsics", src ? src->intrinsics : NULL);
+        sinew_json_add_string(inp, "depth0", in ? in->depth0_name : NULL);
+        sinew_json_add_string(inp, "depth1", in ? in->depth1_name : NULL);
+        sinew_json_add_string(inp, "intrinsics", src ? src->intrinsics : NULL);
     }
     cJSON *cnt = cJSON_AddObjectToObject(root, "counts");
     cJSON_AddNumberToObject(cnt, "pixels", (double)m->pixels);

@@ -223,6 +223,40 @@ const char *sinew_run_flow_ext(int flow_format);
  * "png"): SINEW_OK and *flow_format set, or SINEW_EINVAL for an unknown name. */
 int sinew_run_flow_format_parse(const char *name, int *flow_format);
 
+/* Settings a caller has chosen itself (e.g. on the command line): a sequence must not
+ * override them (bits for `keep` below). */
+#define SINEW_RUN_KEEP_PRESET 1u
+#define SINEW_RUN_KEEP_FLOW_FORMAT 2u
+#define SINEW_RUN_KEEP_MATCH_STRIDE 4u
+#define SINEW_RUN_KEEP_DEPTH_SCALE 8u
+/* Apply a sequence's settings to pipeline parameters: its intrinsics (copied into *cam,
+ * and p->camera = cam), depth scale (when > 0), depth kind, and the "run" keys preset,
+ * flow_format and match_stride (flow/sequence.h), except the fields whose bit is set in
+ * keep. p->preset may then borrow the sequence's string. ECONFIG "WHERE:
+ * run.flow_format: unknown format" for a format sinew_run_flow_format_parse refuses. */
+int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_params *p,
+                                             struct sinew_camera *cam, const sinew_sequence *seq,
+                                             const char *where, unsigned keep);
+/* The sequence's "run.schedule" as a schedule: when the sequence has one, *out is set and
+ * a list schedule's pairs are allocated on ctx into *list (free with sinew_ctx_dealloc);
+ * otherwise *out is left as it is. *list is NULL unless pairs were allocated. */
+int sinew_run_schedule_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, sinew_schedule *out,
+                                     sinew_pair **list);
+
+/* The summary numbers of a computed pair, from OUTDIR/pairs/NAME/stats.json as the
+ * pipeline writes it; NaN for a number that is missing. */
+typedef struct sinew_run_pair_summary {
+    double kept_fraction;   /* check.kept_fraction */
+    double kept, pixels;    /* check.kept, check.pixels */
+    double forward_mean_px; /* forward.mean_length_px */
+    double match_rows;      /* matches.rows */
+    int lifted;             /* matches.lifted is true */
+} sinew_run_pair_summary;
+/* Read a pair's summary; the read or parse error naming the file when stats.json is
+ * missing or not JSON (e.g. the pair is pending). */
+int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
+                                sinew_run_pair_summary *out);
+
 /* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
  * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).
  * Paths are written into fwd/bwd (size n); EIO naming the missing file. */

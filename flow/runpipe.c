@@ -21,6 +21,7 @@
 #include "flow/internal/base.h"
 #include "flow/internal/run.h"
 #include "flow/io.h"
+#include "flow/json.h"
 #include "flow/match.h"
 #include "flow/run.h"
 
@@ -93,6 +94,83 @@ void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p)
     p->depth_scale = 1000;
     p->match_stride = 4;
     p->matches = 1;
+}
+
+int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_params *p,
+                                             sinew_camera *cam, const sinew_sequence *seq,
+                                             const char *where, unsigned keep)
+{
+    if (!ctx || !p || !cam || !seq || !where)
+        return SINEW_EINVAL;
+    if (seq->has_intrinsics) {
+        sinew_camera_init(cam, seq->fx, seq->fy, seq->cx, seq->cy, seq->width, seq->height);
+        p->camera = cam;
+    }
+    if (!(keep & SINEW_RUN_KEEP_DEPTH_SCALE) && seq->depth_scale > 0)
+        p->depth_scale = seq->depth_scale;
+    p->depth_ray = seq->depth_ray;
+    const sinew_seq_run *r = &seq->run;
+    if (!(keep & SINEW_RUN_KEEP_PRESET) && r->preset)
+        p->preset = r->preset;
+    if (!(keep & SINEW_RUN_KEEP_FLOW_FORMAT) && r->flow_format &&
+        sinew_run_flow_format_parse(r->flow_format, &p->flow_format))
+        return sinew__fail(ctx, SINEW_ECONFIG, "%s: run.flow_format: unknown format", where);
+    if (!(keep & SINEW_RUN_KEEP_MATCH_STRIDE) && r->has_match_stride)
+        p->match_stride = r->match_stride;
+    return SINEW_OK;
+}
+
+int sinew_run_schedule_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, sinew_schedule *out,
+                                     sinew_pair **list)
+{
+    if (!ctx || !seq || !out || !list)
+        return SINEW_EINVAL;
+    *list = NULL;
+    const sinew_seq_run *r = &seq->run;
+    if (!r->has_schedule)
+        return SINEW_OK;
+    sinew_pair *p = NULL;
+    if (r->n_pairs && !(p = sinew__calloc(ctx, r->n_pairs, sizeof *p)))
+        return SINEW_ENOMEM;
+    for (size_t q = 0; q < r->n_pairs; q++)
+        p[q] = (sinew_pair){r->pairs[2 * q], r->pairs[2 * q + 1]};
+    memset(out, 0, sizeof *out);
+    out->kind = (sinew_schedule_kind)r->schedule_kind;
+    out->gap = r->gap;
+    out->every = r->every;
+    out->window = r->window;
+    out->list = p;
+    out->list_len = r->n_pairs;
+    *list = p;
+    return SINEW_OK;
+}
+
+int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
+                                sinew_run_pair_summary *out)
+{
+    if (!ctx || !outdir || !out)
+        return SINEW_EINVAL;
+    char name[SINEW_PAIR_NAME_MAX], path[4200];
+    sinew_pair_name(name, pair);
+    int len = snprintf(path, sizeof path, "%s/" SINEW_RUN_PAIRS_DIR "/%s/" SINEW_RUN_STATS_FILE,
+                       outdir, name);
+    if (len < 0 || (size_t)len >= sizeof path)
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s: path too long", outdir);
+    cJSON *j;
+    int rc = sinew__json_read(ctx, path, (size_t)16 << 20, &j);
+    if (rc)
+        return rc;
+    const cJSON *check = cJSON_GetObjectItemCaseSensitive(j, "check");
+    const cJSON *fwd = cJSON_GetObjectItemCaseSensitive(j, "forward");
+    const cJSON *m = cJSON_GetObjectItemCaseSensitive(j, "matches");
+    out->kept_fraction = sinew__json_num(check, "kept_fraction");
+    out->kept = sinew__json_num(check, "kept");
+    out->pixels = sinew__json_num(check, "pixels");
+    out->forward_mean_px = sinew__json_num(fwd, "mean_length_px");
+    out->match_rows = sinew__json_num(m, "rows");
+    out->lifted = cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(m, "lifted"));
+    cJSON_Delete(j);
+    return SINEW_OK;
 }
 
 int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *p, char *buf,
@@ -339,14 +417,6 @@ static double finite_mean(const sinew_image *img)
     return n ? sum / (double)n : NAN;
 }
 
-static void add_num_or_null(cJSON *o, const char *key, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
 static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
                         const sinew_check_stats *cs, const sinew_matches *m, const frame_slot *s0,
                         const frame_slot *s1)
@@ -357,8 +427,8 @@ static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
     /* summary numbers at the top level (read by the run report, docs/formats.md) */
     cJSON_AddNumberToObject(o, "kept_fraction",
                             cs->pixels ? (double)cs->kept / (double)cs->pixels : 0.0);
-    add_num_or_null(o, "mean_confidence", finite_mean(&pl->conf));
-    add_num_or_null(o, "fb_error_mean", finite_mean(&pl->fberr));
+    sinew_json_add_number(o, "mean_confidence", finite_mean(&pl->conf));
+    sinew_json_add_number(o, "fb_error_mean", finite_mean(&pl->fberr));
     cJSON *warn = cJSON_AddArrayToObject(o, "warnings");
     const frame_slot *sl[2] = {s0, s1};
     const int32_t fi[2] = {job->pair.i, job->pair.j};

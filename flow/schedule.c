@@ -137,6 +137,125 @@ int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes
     return SINEW_OK;
 }
 
+/* ---- schedule text (sinew run --schedule) ---- */
+
+/* The decimal integer from s to end, in lo..hi (strtol rules: leading blanks and a
+ * sign allowed). */
+static int parse_count(const char *s, const char *end, long lo, long hi, long *out)
+{
+    char *e;
+    errno = 0;
+    long v = strtol(s, &e, 10);
+    if (errno || e != end || e == s || v < lo || v > hi)
+        return -1;
+    *out = v;
+    return 0;
+}
+
+/* One line of a list file: 1 if it holds a pair (into *p, when p is not NULL), 0 if
+ * it is blank or a comment, -1 if malformed. line is NUL-terminated. */
+static int list_line(const char *line, sinew_pair *p)
+{
+    const char *h = line + strspn(line, " \t\r");
+    if (!*h || *h == '#')
+        return 0;
+    long i, j;
+    char extra[2];
+    if (sscanf(h, "%ld %ld %1s", &i, &j, extra) != 2 || i < 0 || j < 0 ||
+        i >= SINEW_RUN_MAX_FRAMES || j >= SINEW_RUN_MAX_FRAMES)
+        return -1;
+    if (p)
+        *p = (sinew_pair){(int32_t)i, (int32_t)j};
+    return 1;
+}
+
+/* Walk the lines of buf (NUL-terminated, modified in place and restored): count the
+ * pairs, or store them when pairs is not NULL. -1 with *bad_line on a malformed line. */
+static int64_t list_scan(char *buf, size_t len, sinew_pair *pairs, size_t *bad_line)
+{
+    int64_t n = 0;
+    size_t line = 0;
+    for (char *q = buf; q < buf + len;) {
+        char *nl = memchr(q, '\n', (size_t)(buf + len - q));
+        char *end = nl ? nl : buf + len;
+        char saved = *end;
+        *end = 0;
+        line++;
+        int r = list_line(q, pairs ? &pairs[n] : NULL);
+        *end = saved;
+        if (r < 0) {
+            *bad_line = line;
+            return -1;
+        }
+        n += r;
+        q = end + 1;
+    }
+    return n;
+}
+
+static int parse_list(sinew_ctx *ctx, const char *path, sinew_schedule *out, sinew_pair **list)
+{
+    unsigned char *buf;
+    size_t len, bad = 0;
+    int rc = sinew_read_file(ctx, path, (size_t)64 << 20, &buf, &len);
+    if (rc)
+        return rc;
+    int64_t n = list_scan((char *)buf, len, NULL, &bad);
+    sinew_pair *p = NULL;
+    if (n < 0)
+        rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: line %zu: expected 'I J' (frame numbers)", path,
+                         bad);
+    else if (n > SINEW_RUN_MAX_PAIRS)
+        rc = sinew__fail(ctx, SINEW_ELIMIT, "%s: %lld pairs, limit %d", path, (long long)n,
+                         SINEW_RUN_MAX_PAIRS);
+    else if (n > 0 && !(p = sinew__calloc(ctx, (size_t)n, sizeof *p)))
+        rc = SINEW_ENOMEM;
+    else if (n > 0)
+        list_scan((char *)buf, len, p, &bad);
+    sinew_ctx_dealloc(ctx, buf);
+    if (rc)
+        return rc;
+    out->kind = SINEW_SCHEDULE_LIST;
+    out->list = p;
+    out->list_len = (size_t)n;
+    *list = p;
+    return SINEW_OK;
+}
+
+int sinew_schedule_parse(sinew_ctx *ctx, const char *text, sinew_schedule *out, sinew_pair **list)
+{
+    if (!ctx || !text || !out || !list)
+        return SINEW_EINVAL;
+    memset(out, 0, sizeof *out);
+    *list = NULL;
+    const char *end = text + strlen(text);
+    long a, b;
+    if (!strcmp(text, "consecutive")) {
+        out->kind = SINEW_SCHEDULE_CONSECUTIVE;
+        return SINEW_OK;
+    }
+    if (!strncmp(text, "gap:", 4)) {
+        if (parse_count(text + 4, end, 1, SINEW_RUN_MAX_FRAMES, &a))
+            return SINEW_EINVAL;
+        out->kind = SINEW_SCHEDULE_GAP;
+        out->gap = (int)a;
+        return SINEW_OK;
+    }
+    if (!strncmp(text, "keyframe:", 9)) {
+        const char *c = strchr(text + 9, ':');
+        if (!c || parse_count(text + 9, c, 1, SINEW_RUN_MAX_FRAMES, &a) ||
+            parse_count(c + 1, end, 1, SINEW_RUN_MAX_FRAMES, &b))
+            return SINEW_EINVAL;
+        out->kind = SINEW_SCHEDULE_KEYFRAME;
+        out->every = (int)a;
+        out->window = (int)b;
+        return SINEW_OK;
+    }
+    if (!strncmp(text, "list:", 5))
+        return parse_list(ctx, text + 5, out, list);
+    return SINEW_EINVAL;
+}
+
 /* ---- association ---- */
 
 typedef struct {

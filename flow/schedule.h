@@ -49,6 +49,19 @@ typedef struct sinew_schedule {
 int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes,
                          sinew_pair **pairs, size_t *npairs);
 
+/* Parse a schedule as `sinew run --schedule` takes it: "consecutive", "gap:K",
+ * "keyframe:K:M" (every K-th frame to the next M frames) or "list:FILE". K and M are
+ * decimal integers in 1..SINEW_RUN_MAX_FRAMES. FILE holds one pair "I J" per line
+ * (frame numbers from 0, below SINEW_RUN_MAX_FRAMES; blank lines and lines starting
+ * with '#' skipped). For a list the pairs are allocated on ctx into *list (free with
+ * sinew_ctx_dealloc; NULL for an empty file) and out->list points to them; otherwise
+ * *list is NULL. Returns SINEW_EINVAL without a message for text of none of these
+ * forms (a usage error: no file is read), the read error naming FILE, EFORMAT
+ * "FILE: line N: expected 'I J' (frame numbers)", or ELIMIT beyond
+ * SINEW_RUN_MAX_PAIRS pairs. Ranges against the frame count are checked later by
+ * sinew_schedule_pairs. */
+int sinew_schedule_parse(sinew_ctx *ctx, const char *text, sinew_schedule *out, sinew_pair **list);
+
 /* Stable output name of a pair: "%06d-%06d" of (i, j), e.g. "000012-000013". buf needs
  * at least SINEW_PAIR_NAME_MAX bytes. Returns buf. */
 #define SINEW_PAIR_NAME_MAX 16

@@ -9,6 +9,7 @@
 #include "flow/depth.h"
 #include "flow/draw.h"
 #include "flow/estimate.h"
+#include "flow/json.h"
 #include "flow/lift.h"
 #include "flow/match.h"
 #include "flow/metrics.h"

@@ -49,14 +49,6 @@ void cli_check_result_free(cli_check_result *r)
     sinew_image_free(&r->confidence);
 }
 
-static void add_path(cJSON *obj, const char *name, const char *path)
-{
-    if (path)
-        cJSON_AddStringToObject(obj, name, path);
-    else
-        cJSON_AddNullToObject(obj, name);
-}
-
 cJSON *cli_check_json(const cli_check_result *r, const sinew_check_params *p,
                       const cli_check_paths *paths)
 {
@@ -68,15 +60,15 @@ cJSON *cli_check_json(const cli_check_result *r, const sinew_check_params *p,
     cJSON_AddNumberToObject(root, "width", r->mask.width);
     cJSON_AddNumberToObject(root, "height", r->mask.height);
     cJSON *in = cJSON_AddObjectToObject(root, "inputs");
-    add_path(in, "forward", paths->forward);
-    add_path(in, "backward", paths->backward);
-    add_path(in, "frame0", paths->frame0);
-    add_path(in, "frame1", paths->frame1);
-    add_path(in, "ignore", paths->ignore);
-    add_path(in, "ignore_polarity",
-             !paths->ignore                            ? NULL
-             : p->ignore_polarity == SINEW_IGNORE_ZERO ? "zero"
-                                                       : "nonzero");
+    sinew_json_add_string(in, "forward", paths->forward);
+    sinew_json_add_string(in, "backward", paths->backward);
+    sinew_json_add_string(in, "frame0", paths->frame0);
+    sinew_json_add_string(in, "frame1", paths->frame1);
+    sinew_json_add_string(in, "ignore", paths->ignore);
+    sinew_json_add_string(in, "ignore_polarity",
+                          !paths->ignore                            ? NULL
+                          : p->ignore_polarity == SINEW_IGNORE_ZERO ? "zero"
+                                                                    : "nonzero");
     cJSON *pj = cJSON_AddObjectToObject(root, "params");
     sinew_check_param list[SINEW_CHECK_NPARAMS];
     sinew_check_params_list(p, list, SINEW_CHECK_NPARAMS);

@@ -1,7 +1,10 @@
 /* SPDX-License-Identifier: MIT */
 /* sinew run: process a whole sequence pair by pair with resume, shards and progress.
- * The library does the work (flow/run.h); this file parses options, loads the
- * sequence, installs the signal flag, prints progress and maps results to exit codes.
+ * The library does the work (flow/run.h). This file runs four steps: parse the command
+ * line (run_args), plan (load the sequence or folder, apply its settings under the
+ * command line's, expand the schedule: run_plan), execute (dry run, merge, or the run
+ * with the signal flag and progress) and print (summary lines, the --report table, the
+ * one-line error and the exit code).
  * Progress goes to stdout (a live line on a terminal, plain or JSON lines otherwise);
  * stderr carries only the final one-line error, if any. */
 #define _GNU_SOURCE
@@ -14,8 +17,6 @@
 #include <sys/stat.h>
 #include <time.h>
 #include <unistd.h>
-
-#include <cJSON.h>
 
 #include "flow/camera.h"
 #include "flow/io.h"
@@ -189,138 +190,273 @@ static void on_progress(void *ud, const sinew_run_progress *p)
     fflush(stdout);
 }
 
-static int parse_schedule(sinew_ctx *ctx, const char *s, sinew_schedule *out, sinew_pair **list,
-                          size_t *nlist)
+/* ---- parse ---- */
+
+typedef struct {
+    const char *input, *outdir, *flow_from, *schedule;
+    int resume, dry, report, merge, shard_k, shard_n;
+    unsigned keep; /* SINEW_RUN_KEEP_* bits of the settings given on the command line */
+    long threads;
+    double max_dt;
+    sinew_run_on_error on_error;
+    prog_mode progress;
+    sinew_run_pipeline_params pp;
+} run_args;
+
+enum {
+    O_RESUME = 256,
+    O_SHARD,
+    O_DRY,
+    O_ONERR,
+    O_PROGRESS,
+    O_FMT,
+    O_FROM,
+    O_THREADS,
+    O_REPORT,
+    O_SCHED,
+    O_PRESET,
+    O_MAXDT,
+    O_MERGE,
+    O_DSCALE,
+    O_MSTRIDE
+};
+
+static int parse_shard(const char *arg, run_args *a)
 {
-    memset(out, 0, sizeof *out);
-    *list = NULL;
-    *nlist = 0;
-    long a, b;
-    if (!strcmp(s, "consecutive")) {
-        out->kind = SINEW_SCHEDULE_CONSECUTIVE;
-        return 0;
+    long k, n;
+    char buf[64];
+    snprintf(buf, sizeof buf, "%s", arg);
+    char *sl = strchr(buf, '/');
+    if (!sl)
+        return cli_usage_error(CMD, "--shard: expected K/N, got '%s'", arg);
+    *sl = 0;
+    if (cli_parse_int(sl + 1, 1, 1000000, &n) || cli_parse_int(buf, 0, n - 1, &k))
+        return cli_usage_error(CMD, "--shard: expected K/N with 0 <= K < N, got '%s'", arg);
+    a->shard_k = (int)k;
+    a->shard_n = (int)n;
+    return CLI_OK;
+}
+
+/* One option into *a: CLI_OK, or the usage error's exit code. */
+static int parse_option(int c, const char *arg, run_args *a)
+{
+    switch (c) {
+    case 'o':
+        a->outdir = arg;
+        break;
+    case O_RESUME:
+        a->resume = 1;
+        break;
+    case O_DRY:
+        a->dry = 1;
+        break;
+    case O_REPORT:
+        a->report = 1;
+        break;
+    case O_MERGE:
+        a->merge = 1;
+        break;
+    case O_FROM:
+        a->flow_from = arg;
+        break;
+    case O_SCHED:
+        a->schedule = arg;
+        break;
+    case O_PRESET:
+        a->pp.preset = arg;
+        a->keep |= SINEW_RUN_KEEP_PRESET;
+        break;
+    case O_SHARD:
+        return parse_shard(arg, a);
+    case O_ONERR:
+        if (!strcmp(arg, "stop"))
+            a->on_error = SINEW_RUN_STOP;
+        else if (!strcmp(arg, "skip"))
+            a->on_error = SINEW_RUN_SKIP;
+        else
+            return cli_usage_error(CMD, "--on-error: expected stop or skip, got '%s'", arg);
+        break;
+    case O_PROGRESS:
+        if (!strcmp(arg, "auto"))
+            a->progress = PROG_AUTO;
+        else if (!strcmp(arg, "plain"))
+            a->progress = PROG_PLAIN;
+        else if (!strcmp(arg, "json"))
+            a->progress = PROG_JSON;
+        else
+            return cli_usage_error(CMD, "--progress: expected auto, plain or json, got '%s'", arg);
+        break;
+    case O_FMT:
+        a->keep |= SINEW_RUN_KEEP_FLOW_FORMAT;
+        if (sinew_run_flow_format_parse(arg, &a->pp.flow_format))
+            return cli_usage_error(
+                CMD, "--flow-format: expected flo, npy, npy16, pfm or png, got '%s'", arg);
+        break;
+    case O_THREADS:
+        if (cli_parse_int(arg, 0, 4096, &a->threads))
+            return cli_usage_error(CMD, "--threads: expected 0..4096, got '%s'", arg);
+        break;
+    case O_MAXDT:
+        if (cli_parse_double(arg, &a->max_dt) || !(a->max_dt > 0))
+            return cli_usage_error(CMD, "--max-dt: expected seconds > 0, got '%s'", arg);
+        break;
+    case O_DSCALE:
+        if (cli_parse_double(arg, &a->pp.depth_scale) || !(a->pp.depth_scale > 0))
+            return cli_usage_error(CMD, "--depth-scale: expected codes per metre > 0, got '%s'",
+                                   arg);
+        a->keep |= SINEW_RUN_KEEP_DEPTH_SCALE;
+        break;
+    case O_MSTRIDE: {
+        long v;
+        if (cli_parse_int(arg, 0, 1 << 20, &v))
+            return cli_usage_error(CMD, "--match-stride: expected pixels >= 0, got '%s'", arg);
+        a->pp.match_stride = (int)v;
+        a->keep |= SINEW_RUN_KEEP_MATCH_STRIDE;
+        break;
     }
-    if (!strncmp(s, "gap:", 4)) {
-        if (cli_parse_int(s + 4, 1, SINEW_RUN_MAX_FRAMES, &a))
-            return -1;
-        out->kind = SINEW_SCHEDULE_GAP;
-        out->gap = (int)a;
-        return 0;
     }
-    if (!strncmp(s, "keyframe:", 9)) {
-        char buf[64];
-        snprintf(buf, sizeof buf, "%s", s + 9);
-        char *c = strchr(buf, ':');
-        if (!c)
-            return -1;
-        *c = 0;
-        if (cli_parse_int(buf, 1, SINEW_RUN_MAX_FRAMES, &a) ||
-            cli_parse_int(c + 1, 1, SINEW_RUN_MAX_FRAMES, &b))
-            return -1;
-        out->kind = SINEW_SCHEDULE_KEYFRAME;
-        out->every = (int)a;
-        out->window = (int)b;
-        return 0;
-    }
-    if (!strncmp(s, "list:", 5)) {
-        const char *path = s + 5;
-        unsigned char *buf;
-        size_t len;
-        if (sinew_read_file(ctx, path, (size_t)64 << 20, &buf, &len))
-            return -2;
-        size_t cap = 0, n = 0, line = 0;
-        sinew_pair *p = NULL;
-        int bad = 0;
-        for (char *q = strtok((char *)buf, "\n"); q && !bad; q = strtok(NULL, "\n")) {
-            line++;
-            char *h = q + strspn(q, " \t\r");
-            if (!*h || *h == '#')
-                continue;
-            long i, j;
-            char extra[2];
-            if (sscanf(h, "%ld %ld %1s", &i, &j, extra) != 2 || i < 0 || j < 0 ||
-                i >= SINEW_RUN_MAX_FRAMES || j >= SINEW_RUN_MAX_FRAMES) {
-                bad = 1;
-                break;
-            }
-            if (n == cap) {
-                if (cap >= SINEW_RUN_MAX_PAIRS) {
-                    bad = 1;
-                    break;
-                }
-                cap = cap ? cap * 2 : 64;
-                sinew_pair *g = realloc(p, cap * sizeof *p);
-                if (!g) {
-                    bad = 1;
-                    break;
-                }
-                p = g;
-            }
-            p[n++] = (sinew_pair){(int32_t)i, (int32_t)j};
+    return CLI_OK;
+}
+
+/* The command line into *a. Returns -1 to go on, otherwise the exit code (help shown,
+ * or a usage error). */
+static int parse_args(int argc, char **argv, run_args *a)
+{
+    static const struct option opts[] = {{"output", required_argument, NULL, 'o'},
+                                         {"resume", no_argument, NULL, O_RESUME},
+                                         {"shard", required_argument, NULL, O_SHARD},
+                                         {"dry-run", no_argument, NULL, O_DRY},
+                                         {"on-error", required_argument, NULL, O_ONERR},
+                                         {"progress", required_argument, NULL, O_PROGRESS},
+                                         {"flow-format", required_argument, NULL, O_FMT},
+                                         {"flow-from", required_argument, NULL, O_FROM},
+                                         {"threads", required_argument, NULL, O_THREADS},
+                                         {"report", no_argument, NULL, O_REPORT},
+                                         {"schedule", required_argument, NULL, O_SCHED},
+                                         {"preset", required_argument, NULL, O_PRESET},
+                                         {"max-dt", required_argument, NULL, O_MAXDT},
+                                         {"merge", no_argument, NULL, O_MERGE},
+                                         {"depth-scale", required_argument, NULL, O_DSCALE},
+                                         {"match-stride", required_argument, NULL, O_MSTRIDE},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {NULL, 0, NULL, 0}};
+    memset(a, 0, sizeof *a);
+    a->shard_n = 1;
+    a->max_dt = 0.02;
+    a->on_error = SINEW_RUN_STOP;
+    a->progress = PROG_AUTO;
+    sinew_run_pipeline_params_default(&a->pp);
+    optind = 1;
+    opterr = 0;
+    int c, r;
+    while ((c = getopt_long(argc, argv, ":o:h", opts, NULL)) != -1) {
+        if (c == 'h') {
+            usage(stdout);
+            return CLI_OK;
         }
-        sinew_ctx_dealloc(ctx, buf);
-        if (bad) {
-            free(p);
-            cli_error(CMD, "%s: line %zu: expected 'I J' (frame numbers)", path, line);
-            return -2;
-        }
-        out->kind = SINEW_SCHEDULE_LIST;
-        out->list = p;
-        out->list_len = n;
-        *list = p;
-        *nlist = n;
-        return 0;
+        if (c == ':')
+            return cli_usage_error(CMD, "option %s needs a value", argv[optind - 1]);
+        if (c == '?')
+            return cli_usage_error(CMD, "unknown option %s", argv[optind - 1]);
+        if ((r = parse_option(c, optarg, a)) != CLI_OK)
+            return r;
     }
+    if (optind != argc - 1)
+        return cli_usage_error(CMD, optind >= argc ? "missing SEQUENCE.json or FOLDER"
+                                                   : "expected one SEQUENCE.json or FOLDER");
+    if (!a->outdir)
+        return cli_usage_error(CMD, "missing -o OUTDIR");
+    if (a->merge && (a->dry || a->shard_n > 1))
+        return cli_usage_error(CMD, "--merge cannot be combined with --dry-run or --shard");
+    a->input = argv[optind];
     return -1;
 }
 
-static double num_at(const cJSON *o, const char *a, const char *b)
+/* ---- plan ---- */
+
+typedef struct {
+    sinew_run_source src;
+    sinew_sequence *seq;
+    sinew_camera cam;
+    sinew_pair *list;  /* the schedule's explicit pairs (on ctx) or NULL */
+    sinew_pair *pairs; /* the expanded schedule (on ctx) */
+    size_t npairs;
+    char options[512];
+    sinew_run_spec spec;
+} run_plan;
+
+/* Frames: a folder without sequence.json is scanned (flow/run.h), anything else is read
+ * as a sequence whose settings apply under the command line's. */
+static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
 {
-    const cJSON *x = cJSON_GetObjectItemCaseSensitive(o, a);
-    if (b)
-        x = cJSON_GetObjectItemCaseSensitive(x, b);
-    return cJSON_IsNumber(x) ? x->valuedouble : NAN;
+    struct stat st;
+    if (stat(a->input, &st) != 0)
+        return cli_error(CMD, "%s: not found", a->input);
+    char seqpath[4200];
+    snprintf(seqpath, sizeof seqpath, "%s/sequence.json", a->input);
+    int is_dir = S_ISDIR(st.st_mode), rc;
+    if (is_dir && stat(seqpath, &st) != 0) {
+        if ((rc = sinew_run_source_from_folder(ctx, a->input, a->max_dt, &p->src)))
+            return cli_status(CMD, ctx, rc);
+        return CLI_OK;
+    }
+    const char *sp = is_dir ? seqpath : a->input;
+    if ((rc = sinew_sequence_read(ctx, &p->seq, sp)) ||
+        (rc = sinew_run_source_from_sequence(ctx, p->seq, sp, &p->src)) ||
+        (rc = sinew_run_pipeline_params_apply_sequence(ctx, &a->pp, &p->cam, p->seq, a->input,
+                                                       a->keep)))
+        return cli_status(CMD, ctx, rc);
+    return CLI_OK;
 }
 
-/* --report: one line per owned pair from its stats.json, then the totals. */
-static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec)
+/* The pairs: --schedule, else the sequence's schedule, else consecutive. */
+static int plan_pairs(sinew_ctx *ctx, const run_args *a, run_plan *p)
 {
-    printf("%-13s %8s %10s %10s %9s\n", "pair", "kept", "|fwd| px", "matches", "lifted");
-    double kept = 0, pixels = 0, rows = 0;
-    size_t n = 0;
-    for (size_t q = 0; q < spec->npairs; q++) {
-        if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
-            continue;
-        char name[SINEW_PAIR_NAME_MAX], path[4200];
-        sinew_pair_name(name, spec->pairs[q]);
-        snprintf(path, sizeof path, "%s/" SINEW_RUN_PAIRS_DIR "/%s/" SINEW_RUN_STATS_FILE,
-                 spec->outdir, name);
-        unsigned char *buf;
-        size_t len;
-        cJSON *j = NULL;
-        if (sinew_read_file(ctx, path, (size_t)16 << 20, &buf, &len) == SINEW_OK) {
-            j = cJSON_ParseWithLength((const char *)buf, len);
-            sinew_ctx_dealloc(ctx, buf);
-        }
-        if (!j) {
-            printf("%-13s %8s\n", name, "-");
-            continue;
-        }
-        const cJSON *m = cJSON_GetObjectItemCaseSensitive(j, "matches");
-        double k = num_at(j, "check", "kept_fraction");
-        double r = num_at(j, "matches", "rows");
-        printf("%-13s %7.1f%% %10.3f %10.0f %9s\n", name, 100 * k,
-               num_at(j, "forward", "mean_length_px"), r,
-               cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(m, "lifted")) ? "yes" : "no");
-        kept += num_at(j, "check", "kept");
-        pixels += num_at(j, "check", "pixels");
-        rows += isfinite(r) ? r : 0;
-        n++;
-        cJSON_Delete(j);
-    }
-    if (n)
-        printf("%-13s %7.1f%% %10s %10.0f\n", "all", pixels > 0 ? 100 * kept / pixels : 0.0, "",
-               rows);
+    sinew_schedule sched = {SINEW_SCHEDULE_CONSECUTIVE, 0, 0, 0, NULL, 0};
+    int rc = a->schedule ? sinew_schedule_parse(ctx, a->schedule, &sched, &p->list)
+             : p->seq    ? sinew_run_schedule_from_sequence(ctx, p->seq, &sched, &p->list)
+                         : SINEW_OK;
+    if (rc == SINEW_EINVAL && a->schedule)
+        return cli_usage_error(CMD,
+                               "--schedule: expected consecutive, gap:K, keyframe:K:M or "
+                               "list:FILE, got '%s'",
+                               a->schedule);
+    if (rc || (rc = sinew_schedule_pairs(ctx, &sched, p->src.nframes, &p->pairs, &p->npairs)) ||
+        (rc = sinew_run_pipeline_options(ctx, &a->pp, p->options, sizeof p->options)))
+        return cli_status(CMD, ctx, rc);
+    return CLI_OK;
+}
+
+static int plan(sinew_ctx *ctx, run_args *a, run_plan *p)
+{
+    int r = plan_source(ctx, a, p);
+    if (r == CLI_OK)
+        r = plan_pairs(ctx, a, p);
+    if (r != CLI_OK)
+        return r;
+    sinew_run_spec *s = &p->spec;
+    s->frames = p->src.frames;
+    s->nframes = p->src.nframes;
+    s->intrinsics = p->src.intrinsics;
+    s->pairs = p->pairs;
+    s->npairs = p->npairs;
+    s->flow_from = a->flow_from;
+    s->options = p->options;
+    s->outdir = a->outdir;
+    s->shard_k = a->shard_k;
+    s->shard_n = a->shard_n;
+    s->resume = a->resume;
+    s->on_error = a->on_error;
+    s->cancel = &stop_flag;
+    return CLI_OK;
+}
+
+static void plan_free(sinew_ctx *ctx, run_plan *p)
+{
+    sinew_ctx_dealloc(ctx, p->pairs);
+    sinew_ctx_dealloc(ctx, p->list);
+    sinew_run_source_free(ctx, &p->src);
+    sinew_sequence_free(p->seq);
 }
 
 /* Rough disk and time estimate for --dry-run (documented in docs/formats.md). */
@@ -377,308 +513,53 @@ static void dry_run(sinew_ctx *ctx, const sinew_run_spec *spec, const sinew_run_
            per_pair * (double)owned / 1e6, eta);
 }
 
-int cmd_run(int argc, char **argv)
-{
-    enum {
-        O_RESUME = 256,
-        O_SHARD,
-        O_DRY,
-        O_ONERR,
-        O_PROGRESS,
-        O_FMT,
-        O_FROM,
-        O_THREADS,
-        O_REPORT,
-        O_SCHED,
-        O_PRESET,
-        O_MAXDT,
-        O_MERGE,
-        O_DSCALE,
-        O_MSTRIDE
-    };
-    static const struct option opts[] = {{"output", required_argument, NULL, 'o'},
-                                         {"resume", no_argument, NULL, O_RESUME},
-                                         {"shard", required_argument, NULL, O_SHARD},
-                                         {"dry-run", no_argument, NULL, O_DRY},
-                                         {"on-error", required_argument, NULL, O_ONERR},
-                                         {"progress", required_argument, NULL, O_PROGRESS},
-                                         {"flow-format", required_argument, NULL, O_FMT},
-                                         {"flow-from", required_argument, NULL, O_FROM},
-                                         {"threads", required_argument, NULL, O_THREADS},
-                                         {"report", no_argument, NULL, O_REPORT},
-                                         {"schedule", required_argument, NULL, O_SCHED},
-                                         {"preset", required_argument, NULL, O_PRESET},
-                                         {"max-dt", required_argument, NULL, O_MAXDT},
-                                         {"merge", no_argument, NULL, O_MERGE},
-                                         {"depth-scale", required_argument, NULL, O_DSCALE},
-                                         {"match-stride", required_argument, NULL, O_MSTRIDE},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {NULL, 0, NULL, 0}};
-    const char *outdir = NULL, *flow_from = NULL, *sched_arg = "consecutive";
-    int resume = 0, dry = 0, report = 0, merge = 0, shard_k = 0, shard_n = 1;
-    int depth_scale_set = 0, preset_set = 0, format_set = 0, stride_set = 0, sched_set = 0;
-    long threads = 0;
-    double max_dt = 0.02;
-    sinew_run_on_error on_error = SINEW_RUN_STOP;
-    prog_mode pmode = PROG_AUTO;
-    sinew_run_pipeline_params pp;
-    sinew_run_pipeline_params_default(&pp);
-    optind = 1;
-    opterr = 0;
-    int c;
-    while ((c = getopt_long(argc, argv, ":o:h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'o':
-            outdir = optarg;
-            break;
-        case O_RESUME:
-            resume = 1;
-            break;
-        case O_DRY:
-            dry = 1;
-            break;
-        case O_REPORT:
-            report = 1;
-            break;
-        case O_MERGE:
-            merge = 1;
-            break;
-        case O_FROM:
-            flow_from = optarg;
-            break;
-        case O_SCHED:
-            sched_arg = optarg;
-            sched_set = 1;
-            break;
-        case O_PRESET:
-            pp.preset = optarg;
-            preset_set = 1;
-            break;
-        case O_SHARD: {
-            long k, n;
-            char buf[64];
-            snprintf(buf, sizeof buf, "%s", optarg);
-            char *sl = strchr(buf, '/');
-            if (!sl)
-                return cli_usage_error(CMD, "--shard: expected K/N, got '%s'", optarg);
-            *sl = 0;
-            if (cli_parse_int(sl + 1, 1, 1000000, &n) || cli_parse_int(buf, 0, n - 1, &k))
-                return cli_usage_error(CMD, "--shard: expected K/N with 0 <= K < N, got '%s'",
-                                       optarg);
-            shard_k = (int)k;
-            shard_n = (int)n;
-            break;
-        }
-        case O_ONERR:
-            if (!strcmp(optarg, "stop"))
-                on_error = SINEW_RUN_STOP;
-            else if (!strcmp(optarg, "skip"))
-                on_error = SINEW_RUN_SKIP;
-            else
-                return cli_usage_error(CMD, "--on-error: expected stop or skip, got '%s'", optarg);
-            break;
-        case O_PROGRESS:
-            if (!strcmp(optarg, "auto"))
-                pmode = PROG_AUTO;
-            else if (!strcmp(optarg, "plain"))
-                pmode = PROG_PLAIN;
-            else if (!strcmp(optarg, "json"))
-                pmode = PROG_JSON;
-            else
-                return cli_usage_error(CMD, "--progress: expected auto, plain or json, got '%s'",
-                                       optarg);
-            break;
-        case O_FMT:
-            format_set = 1;
-            if (sinew_run_flow_format_parse(optarg, &pp.flow_format))
-                return cli_usage_error(CMD,
-                                       "--flow-format: expected flo, npy, npy16, pfm or png, "
-                                       "got '%s'",
-                                       optarg);
-            break;
-        case O_THREADS:
-            if (cli_parse_int(optarg, 0, 4096, &threads))
-                return cli_usage_error(CMD, "--threads: expected 0..4096, got '%s'", optarg);
-            break;
-        case O_MAXDT:
-            if (cli_parse_double(optarg, &max_dt) || !(max_dt > 0))
-                return cli_usage_error(CMD, "--max-dt: expected seconds > 0, got '%s'", optarg);
-            break;
-        case O_DSCALE:
-            if (cli_parse_double(optarg, &pp.depth_scale) || !(pp.depth_scale > 0))
-                return cli_usage_error(CMD, "--depth-scale: expected codes per metre > 0, got '%s'",
-                                       optarg);
-            depth_scale_set = 1;
-            break;
-        case O_MSTRIDE: {
-            long v;
-            if (cli_parse_int(optarg, 0, 1 << 20, &v))
-                return cli_usage_error(CMD, "--match-stride: expected pixels >= 0, got '%s'",
-                                       optarg);
-            pp.match_stride = (int)v;
-            stride_set = 1;
-            break;
-        }
-        case 'h':
-            usage(stdout);
-            return CLI_OK;
-        case ':':
-            return cli_usage_error(CMD, "option %s needs a value", argv[optind - 1]);
-        default:
-            return cli_usage_error(CMD, "unknown option %s", argv[optind - 1]);
-        }
-    }
-    if (optind != argc - 1)
-        return cli_usage_error(CMD, optind >= argc ? "missing SEQUENCE.json or FOLDER"
-                                                   : "expected one SEQUENCE.json or FOLDER");
-    if (!outdir)
-        return cli_usage_error(CMD, "missing -o OUTDIR");
-    if (merge && (dry || shard_n > 1))
-        return cli_usage_error(CMD, "--merge cannot be combined with --dry-run or --shard");
-    const char *input = argv[optind];
+/* ---- execute and print ---- */
 
-    sinew_ctx *ctx = cli_ctx(CMD, (int)threads);
-    if (!ctx)
-        return CLI_FAIL;
-    int ret = CLI_FAIL, rc;
-    sinew_run_source src;
-    memset(&src, 0, sizeof src);
-    sinew_sequence *seq = NULL;
-    sinew_camera cam;
-    sinew_schedule seq_sched;
-    memset(&seq_sched, 0, sizeof seq_sched);
-    sinew_pair *seq_pairs = NULL;
-    int use_seq_sched = 0;
-    sinew_pair *pairs = NULL, *list = NULL;
-    size_t npairs = 0, nlist = 0;
-    sinew_run *run = NULL;
-    sinew_run_pipeline *pl = NULL;
-    struct stat st;
-    if (stat(input, &st) != 0) {
-        cli_error(CMD, "%s: not found", input);
-        goto done;
-    }
-    char seqpath[4200];
-    snprintf(seqpath, sizeof seqpath, "%s/sequence.json", input);
-    int is_dir = S_ISDIR(st.st_mode);
-    if (is_dir && stat(seqpath, &st) != 0) {
-        if ((rc = sinew_run_source_from_folder(ctx, input, max_dt, &src))) {
-            cli_status(CMD, ctx, rc);
-            goto done;
+/* --report: one line per owned pair from its stats.json, then the totals. */
+static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec)
+{
+    printf("%-13s %8s %10s %10s %9s\n", "pair", "kept", "|fwd| px", "matches", "lifted");
+    double kept = 0, pixels = 0, rows = 0;
+    size_t n = 0;
+    for (size_t q = 0; q < spec->npairs; q++) {
+        if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
+            continue;
+        char name[SINEW_PAIR_NAME_MAX];
+        sinew_pair_name(name, spec->pairs[q]);
+        sinew_run_pair_summary s;
+        if (sinew_run_pair_summary_read(ctx, spec->outdir, spec->pairs[q], &s) != SINEW_OK) {
+            printf("%-13s %8s\n", name, "-");
+            continue;
         }
-    } else {
-        const char *sp = is_dir ? seqpath : input;
-        if ((rc = sinew_sequence_read(ctx, &seq, sp)) ||
-            (rc = sinew_run_source_from_sequence(ctx, seq, sp, &src))) {
-            cli_status(CMD, ctx, rc);
-            goto done;
-        }
-        if (seq->has_intrinsics) {
-            sinew_camera_init(&cam, seq->fx, seq->fy, seq->cx, seq->cy, seq->width, seq->height);
-            pp.camera = &cam;
-        }
-        if (!depth_scale_set && seq->depth_scale > 0)
-            pp.depth_scale = seq->depth_scale;
-        pp.depth_ray = seq->depth_ray;
-        /* the sequence's "run" settings, unless the command line gave them */
-        const sinew_seq_run *sr = &seq->run;
-        if (!preset_set && sr->preset)
-            pp.preset = sr->preset;
-        if (!format_set && sr->flow_format &&
-            sinew_run_flow_format_parse(sr->flow_format, &pp.flow_format)) {
-            cli_error(CMD, "%s: run.flow_format: unknown format", input);
-            goto done;
-        }
-        if (!stride_set && sr->has_match_stride)
-            pp.match_stride = sr->match_stride;
-        if (!sched_set && sr->has_schedule) {
-            seq_sched.kind = (sinew_schedule_kind)sr->schedule_kind;
-            seq_sched.gap = sr->gap;
-            seq_sched.every = sr->every;
-            seq_sched.window = sr->window;
-            if (sr->n_pairs) {
-                seq_pairs = calloc(sr->n_pairs, sizeof *seq_pairs);
-                if (!seq_pairs) {
-                    cli_error(CMD, "out of memory");
-                    goto done;
-                }
-                for (size_t q = 0; q < sr->n_pairs; q++)
-                    seq_pairs[q] = (sinew_pair){sr->pairs[2 * q], sr->pairs[2 * q + 1]};
-            }
-            seq_sched.list = seq_pairs;
-            seq_sched.list_len = sr->n_pairs;
-            use_seq_sched = 1;
-        }
+        printf("%-13s %7.1f%% %10.3f %10.0f %9s\n", name, 100 * s.kept_fraction, s.forward_mean_px,
+               s.match_rows, s.lifted ? "yes" : "no");
+        kept += s.kept;
+        pixels += s.pixels;
+        rows += isfinite(s.match_rows) ? s.match_rows : 0;
+        n++;
     }
-    sinew_schedule sched;
-    int pr = 0;
-    if (use_seq_sched)
-        sched = seq_sched;
-    else
-        pr = parse_schedule(ctx, sched_arg, &sched, &list, &nlist);
-    if (pr == -1) {
-        ret = cli_usage_error(CMD,
-                              "--schedule: expected consecutive, gap:K, keyframe:K:M or "
-                              "list:FILE, got '%s'",
-                              sched_arg);
-        goto done;
-    }
-    if (pr == -2) {
-        if (sinew_ctx_message(ctx)[0])
-            cli_status(CMD, ctx, SINEW_EIO);
-        goto done;
-    }
-    if ((rc = sinew_schedule_pairs(ctx, &sched, src.nframes, &pairs, &npairs))) {
-        cli_status(CMD, ctx, rc);
-        goto done;
-    }
-    char options[512];
-    if ((rc = sinew_run_pipeline_options(ctx, &pp, options, sizeof options))) {
-        cli_status(CMD, ctx, rc);
-        goto done;
-    }
-    sinew_run_spec spec;
-    memset(&spec, 0, sizeof spec);
-    spec.frames = src.frames;
-    spec.nframes = src.nframes;
-    spec.intrinsics = src.intrinsics;
-    spec.pairs = pairs;
-    spec.npairs = npairs;
-    spec.flow_from = flow_from;
-    spec.options = options;
-    spec.outdir = outdir;
-    spec.shard_k = shard_k;
-    spec.shard_n = shard_n;
-    spec.resume = resume;
-    spec.on_error = on_error;
-    spec.cancel = &stop_flag;
-    if (dry) {
-        dry_run(ctx, &spec, &pp);
-        ret = CLI_OK;
-        goto done;
-    }
-    if ((rc = sinew_run_new(ctx, &run, &spec))) {
-        cli_status(CMD, ctx, rc);
-        goto done;
-    }
+    if (n)
+        printf("%-13s %7.1f%% %10s %10.0f\n", "all", pixels > 0 ? 100 * kept / pixels : 0.0, "",
+               rows);
+}
+
+/* --merge: rebuild the manifest from every shard's records. */
+static int merge(sinew_ctx *ctx, sinew_run *run, const run_args *a, size_t npairs)
+{
     size_t nd = 0, nf = 0, np = 0;
-    if (merge) {
-        if ((rc = sinew_run_write_manifest(run, 1, &nd, &nf, &np))) {
-            cli_status(CMD, ctx, rc);
-            goto done;
-        }
-        printf("manifest: %zu pairs: %zu done, %zu failed, %zu pending\n", npairs, nd, nf, np);
-        if (nf || np)
-            cli_error(CMD, "%s/" SINEW_RUN_MANIFEST_FILE ": %zu pairs failed and %zu are pending",
-                      outdir, nf, np);
-        else
-            ret = CLI_OK;
-        goto done;
-    }
-    if ((rc = sinew_run_pipeline_new(ctx, &pl, &spec, &pp))) {
-        cli_status(CMD, ctx, rc);
-        goto done;
-    }
+    int rc = sinew_run_write_manifest(run, 1, &nd, &nf, &np);
+    if (rc)
+        return cli_status(CMD, ctx, rc);
+    printf("manifest: %zu pairs: %zu done, %zu failed, %zu pending\n", npairs, nd, nf, np);
+    if (nf || np)
+        return cli_error(CMD,
+                         "%s/" SINEW_RUN_MANIFEST_FILE ": %zu pairs failed and %zu are pending",
+                         a->outdir, nf, np);
+    return CLI_OK;
+}
+
+static void install_signals(void)
+{
     struct sigaction sa;
     memset(&sa, 0, sizeof sa);
     sa.sa_handler = on_signal;
@@ -686,69 +567,99 @@ int cmd_run(int argc, char **argv)
     sigemptyset(&sa.sa_mask);
     sigaction(SIGINT, &sa, NULL);
     sigaction(SIGTERM, &sa, NULL);
-    progress_state ps = {pmode, pmode == PROG_AUTO && isatty(STDOUT_FILENO), now_s(), 0};
+}
+
+/* The run itself, then the manifest (whole runs only), the summary lines, the --report
+ * table and page, and the final one-line error. */
+static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *run)
+{
+    sinew_run_pipeline *pl = NULL;
+    int rc = sinew_run_pipeline_new(ctx, &pl, &p->spec, &a->pp);
+    if (rc)
+        return cli_status(CMD, ctx, rc);
+    install_signals();
+    progress_state ps = {a->progress, a->progress == PROG_AUTO && isatty(STDOUT_FILENO), now_s(),
+                         0};
     sinew_run_result res;
     rc = sinew_run_execute(run, sinew_run_pipeline_pair, pl, on_progress, &ps, &res);
+    sinew_run_pipeline_free(pl);
     char first[1024];
     snprintf(first, sizeof first, "%s", sinew_ctx_message(ctx));
     if (ps.live)
         printf("\n");
-    int mrc = SINEW_OK;
-    if (shard_n == 1)
+    int whole = a->shard_n == 1, mrc = SINEW_OK;
+    size_t nd = 0, nf = 0, np = 0;
+    if (whole)
         mrc = sinew_run_write_manifest(run, 0, &nd, &nf, &np);
     double el = now_s() - ps.t0;
-    if (pmode == PROG_JSON)
+    if (a->progress == PROG_JSON)
         printf("{\"event\":\"end\",\"total\":%zu,\"computed\":%zu,\"skipped\":%zu,\"failed\":%zu,"
                "\"interrupted\":%s,\"elapsed_s\":%.3f}\n",
                res.total, res.computed, res.skipped, res.failed, res.interrupted ? "true" : "false",
                el);
     else
         printf("%zu pairs%s: %zu computed, %zu skipped, %zu failed in %.1f s\n", res.total,
-               shard_n > 1 ? " in this shard" : "", res.computed, res.skipped, res.failed, el);
+               whole ? "" : " in this shard", res.computed, res.skipped, res.failed, el);
     int hrc = SINEW_OK;
     char hmsg[1024] = "";
-    if (report) {
-        print_report(ctx, &spec);
+    if (a->report) {
+        print_report(ctx, &p->spec);
         char html[4200];
-        snprintf(html, sizeof html, "%s/report.html", outdir);
-        if (shard_n == 1 && mrc == SINEW_OK && !res.interrupted) {
-            hrc = sinew_report_write(ctx, outdir, html, NULL);
+        snprintf(html, sizeof html, "%s/report.html", a->outdir);
+        if (whole && mrc == SINEW_OK && !res.interrupted) {
+            hrc = sinew_report_write(ctx, a->outdir, html, NULL);
             if (hrc)
                 snprintf(hmsg, sizeof hmsg, "%s", sinew_ctx_message(ctx));
             else
                 printf("report: %s\n", html);
         }
     }
-    if (shard_n == 1 && mrc == SINEW_OK && pmode != PROG_JSON)
+    if (whole && mrc == SINEW_OK && a->progress != PROG_JSON)
         printf("manifest: %s/" SINEW_RUN_MANIFEST_FILE " (%zu done, %zu failed, %zu pending)\n",
-               outdir, nd, nf, np);
+               a->outdir, nd, nf, np);
     fflush(stdout);
-    if (res.interrupted) {
-        cli_error(CMD, "interrupted by signal %d after %zu of %zu pairs; rerun with --resume",
-                  (int)stop_signal, res.computed + res.skipped, res.total);
-    } else if (rc) {
-        if (res.failed > 1 || on_error == SINEW_RUN_SKIP)
-            cli_error(CMD, "%zu of %zu pairs failed; first: %s", res.failed, res.total, first);
-        else
-            cli_error(CMD, "%s", first);
-    } else if (mrc) {
-        cli_status(CMD, ctx, mrc);
-    } else if (hrc) {
-        cli_error(CMD, "%s", hmsg);
-    } else {
-        ret = CLI_OK;
-        if (shard_n > 1)
-            printf("shard %d/%d done; when every shard is done run: sinew run %s -o %s --merge\n",
-                   shard_k, shard_n, input, outdir);
-    }
-done:
-    sinew_run_pipeline_free(pl);
+    if (res.interrupted)
+        return cli_error(CMD,
+                         "interrupted by signal %d after %zu of %zu pairs; rerun with --resume",
+                         (int)stop_signal, res.computed + res.skipped, res.total);
+    if (rc && (res.failed > 1 || a->on_error == SINEW_RUN_SKIP))
+        return cli_error(CMD, "%zu of %zu pairs failed; first: %s", res.failed, res.total, first);
+    if (rc)
+        return cli_error(CMD, "%s", first);
+    if (mrc)
+        return cli_status(CMD, ctx, mrc);
+    if (hrc)
+        return cli_error(CMD, "%s", hmsg);
+    if (!whole)
+        printf("shard %d/%d done; when every shard is done run: sinew run %s -o %s --merge\n",
+               a->shard_k, a->shard_n, a->input, a->outdir);
+    return CLI_OK;
+}
+
+int cmd_run(int argc, char **argv)
+{
+    run_args a;
+    int ret = parse_args(argc, argv, &a);
+    if (ret >= 0)
+        return ret;
+    sinew_ctx *ctx = cli_ctx(CMD, (int)a.threads);
+    if (!ctx)
+        return CLI_FAIL;
+    run_plan p;
+    memset(&p, 0, sizeof p);
+    sinew_run *run = NULL;
+    int rc;
+    ret = plan(ctx, &a, &p);
+    if (ret == CLI_OK && a.dry)
+        dry_run(ctx, &p.spec, &a.pp);
+    else if (ret == CLI_OK && (rc = sinew_run_new(ctx, &run, &p.spec)))
+        ret = cli_status(CMD, ctx, rc);
+    else if (ret == CLI_OK && a.merge)
+        ret = merge(ctx, run, &a, p.npairs);
+    else if (ret == CLI_OK)
+        ret = execute(ctx, &a, &p, run);
     sinew_run_free(run);
-    sinew_ctx_dealloc(ctx, pairs);
-    free(list);
-    free(seq_pairs);
-    sinew_run_source_free(ctx, &src);
-    sinew_sequence_free(seq);
+    plan_free(ctx, &p);
     sinew_ctx_free(ctx);
     return ret;
 }

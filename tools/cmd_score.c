@@ -271,9 +271,9 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
             sinew_mask_scores_rates(&ms, &p, &r, &f1);
             cJSON *m = cJSON_AddObjectToObject(root, "occlusion_mask");
             if (m) {
-                score_json_num(m, "precision", p);
-                score_json_num(m, "recall", r);
-                score_json_num(m, "f1", f1);
+                sinew_json_add_number(m, "precision", p);
+                sinew_json_add_number(m, "recall", r);
+                sinew_json_add_number(m, "f1", f1);
                 cJSON_AddNumberToObject(m, "tp", (double)ms.tp);
                 cJSON_AddNumberToObject(m, "fp", (double)ms.fp);
                 cJSON_AddNumberToObject(m, "fn", (double)ms.fn);
@@ -287,7 +287,7 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
                 cJSON_AddNumberToObject(s, "n", (double)sp.n);
                 cJSON_AddNumberToObject(s, "steps", SPARSE_STEPS);
                 if (sp.have) {
-                    score_json_num(s, "ause", sp.ause);
+                    sinew_json_add_number(s, "ause", sp.ause);
                     cJSON_AddItemToObject(s, "curve",
                                           cJSON_CreateDoubleArray(sp.curve, SPARSE_STEPS));
                     cJSON_AddItemToObject(s, "oracle",
@@ -494,9 +494,9 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
                 continue;
             cJSON_AddStringToObject(r, "id", rows[i].id);
             if (cols.time)
-                score_json_num(r, "runtime_s", rows[i].time_s);
+                sinew_json_add_number(r, "runtime_s", rows[i].time_s);
             if (cols.ause)
-                score_json_num(r, "ause", rows[i].ause);
+                sinew_json_add_number(r, "ause", rows[i].ause);
             cJSON_AddItemToArray(pairs, r);
         }
         cJSON *m =
@@ -514,9 +514,9 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
             cJSON_AddItemToObject(s, sinew_averaging_name(SINEW_AVG_POOLED), p);
         }
         if (cols.time)
-            score_json_num(s, "mean_runtime_s", sum.mean_time_s);
+            sinew_json_add_number(s, "mean_runtime_s", sum.mean_time_s);
         if (cols.ause && m)
-            score_json_num(m, "ause", sum.mean_ause);
+            sinew_json_add_number(m, "ause", sum.mean_ause);
         rc = score_print_json(root);
         cJSON_Delete(root);
         return rc;

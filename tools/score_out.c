@@ -25,26 +25,18 @@ void score_summarize_row(score_row *r)
         sinew_flow_stats_summarize(&r->s[k], &r->err.region[k]);
 }
 
-void score_json_num(cJSON *o, const char *k, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, k, v);
-    else
-        cJSON_AddNullToObject(o, k);
-}
-
 static void json_summary_fields(cJSON *o, const sinew_flow_summary *s)
 {
-    score_json_num(o, "epe", s->epe);
-    score_json_num(o, "aae_deg", s->aae_deg);
-    score_json_num(o, "r05_pct", s->r05_pct);
-    score_json_num(o, "r1_pct", s->r1_pct);
-    score_json_num(o, "r3_pct", s->r3_pct);
-    score_json_num(o, "r5_pct", s->r5_pct);
-    score_json_num(o, "fl_all_pct", s->fl_all_pct);
+    sinew_json_add_number(o, "epe", s->epe);
+    sinew_json_add_number(o, "aae_deg", s->aae_deg);
+    sinew_json_add_number(o, "r05_pct", s->r05_pct);
+    sinew_json_add_number(o, "r1_pct", s->r1_pct);
+    sinew_json_add_number(o, "r3_pct", s->r3_pct);
+    sinew_json_add_number(o, "r5_pct", s->r5_pct);
+    sinew_json_add_number(o, "fl_all_pct", s->fl_all_pct);
     cJSON_AddNumberToObject(o, "n_valid", (double)s->n_valid);
     cJSON_AddNumberToObject(o, "n_gt", (double)s->n_gt);
-    score_json_num(o, "density_pct", s->density_pct);
+    sinew_json_add_number(o, "density_pct", s->density_pct);
 }
 
 /* all-region fields at top level, noc/occ as sub-objects when present. */

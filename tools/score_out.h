@@ -39,8 +39,6 @@ extern const char *const score_density_note;
 
 /* Per-region summaries of a row from its error sums. */
 void score_summarize_row(score_row *r);
-/* Number, or null when not finite. */
-void score_json_num(cJSON *o, const char *k, double v);
 /* all-region fields at top level, noc/occ as sub-objects when present. */
 cJSON *score_json_regions(const sinew_flow_summary s[SINEW_REGION_COUNT], int has_occ,
                           const char *averaging);

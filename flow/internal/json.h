@@ -13,5 +13,9 @@
 int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj);
 /* Read and parse a JSON file of at most max_bytes; EFORMAT naming the file. */
 int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON **out);
+/* obj[key] as a finite number, else NaN (missing key, other type, obj not an object). */
+double sinew__json_num(const cJSON *obj, const char *key);
+/* obj[key] as a string, else NULL. */
+const char *sinew__json_str(const cJSON *obj, const char *key);
 
 #endif

@@ -376,6 +376,151 @@ static void test_run_sequence_run_settings_and_patterns(void **state)
     sinew_ctx_free(ctx);
 }
 
+static int parse_list_op(sinew_ctx *ctx, void *ud)
+{
+    sinew_schedule s;
+    sinew_pair *list;
+    int rc = sinew_schedule_parse(ctx, ud, &s, &list);
+    sinew_ctx_dealloc(ctx, list);
+    return rc;
+}
+
+static void test_run_schedule_parse(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_schedule s;
+    sinew_pair *list = NULL;
+    assert_int_equal(sinew_schedule_parse(ctx, "consecutive", &s, &list), SINEW_OK);
+    assert_int_equal(s.kind, SINEW_SCHEDULE_CONSECUTIVE);
+    assert_null(list);
+    assert_int_equal(sinew_schedule_parse(ctx, "gap:3", &s, &list), SINEW_OK);
+    assert_int_equal(s.kind, SINEW_SCHEDULE_GAP);
+    assert_int_equal(s.gap, 3);
+    assert_int_equal(sinew_schedule_parse(ctx, "keyframe:5:2", &s, &list), SINEW_OK);
+    assert_int_equal(s.kind, SINEW_SCHEDULE_KEYFRAME);
+    assert_int_equal(s.every, 5);
+    assert_int_equal(s.window, 2);
+    /* usage errors: no message, no file touched */
+    const char *bad[] = {
+        "",           "gap",         "gap:",        "gap:0",        "gap:2x",         "gap:1000001",
+        "keyframe:3", "keyframe::2", "keyframe:3:", "keyframe:3:0", "keyframe:1:2:3", "Consecutive",
+        "list",       "every:2"};
+    for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++)
+        assert_int_equal(sinew_schedule_parse(ctx, bad[k], &s, &list), SINEW_EINVAL);
+
+    char *dir = tu_tmpdir();
+    char p[600], arg[700];
+    tu_path(p, sizeof p, dir, "pairs.txt");
+    const char *txt = "# pairs\n0 2\n\n  3\t1\r\n# end\n5 4";
+    tu_write_bytes(p, txt, strlen(txt));
+    snprintf(arg, sizeof arg, "list:%s", p);
+    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_OK);
+    assert_int_equal(s.kind, SINEW_SCHEDULE_LIST);
+    assert_int_equal(s.list_len, 3);
+    assert_ptr_equal(s.list, list);
+    assert_int_equal(list[1].i, 3);
+    assert_int_equal(list[1].j, 1);
+    assert_int_equal(list[2].i, 5);
+    assert_int_equal(list[2].j, 4);
+    sinew_ctx_dealloc(ctx, list);
+    tu_fail_each_allocation("schedule list", parse_list_op, arg);
+    /* the line number counts blank lines too */
+    const char *bad_txt = "0 1\n\n# x\n2 3 4\n";
+    tu_write_bytes(p, bad_txt, strlen(bad_txt));
+    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_EFORMAT);
+    assert_null(list);
+    char want[800];
+    snprintf(want, sizeof want, "%s: line 4: expected 'I J' (frame numbers)", p);
+    assert_string_equal(sinew_ctx_message(ctx), want);
+    tu_write_bytes(p, "1 -2\n", 5);
+    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_EFORMAT);
+    tu_write_bytes(p, "1 1000000\n", 10);
+    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_EFORMAT);
+    /* an empty list is a list of no pairs */
+    tu_write_bytes(p, "# none\n", 7);
+    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_OK);
+    assert_int_equal(s.list_len, 0);
+    assert_null(list);
+    tu_path(p, sizeof p, dir, "missing.txt");
+    snprintf(arg, sizeof arg, "list:%s", p);
+    assert_int_not_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_OK);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "missing.txt"));
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
+static void test_run_sequence_settings_apply_under_given_ones(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    const char *txt = "{\"version\": 1, \"depth_scale\": 5000, \"depth_kind\": \"ray\","
+                      " \"intrinsics\": {\"fx\": 500, \"fy\": 501, \"cx\": 319.5, \"cy\": 239.5,"
+                      " \"width\": 640, \"height\": 480},"
+                      " \"frames\": {\"color\": \"c/%d.png\", \"count\": 4},"
+                      " \"run\": {\"schedule\": {\"kind\": \"list\", \"pairs\": [[0, 2], [3, 1]]},"
+                      " \"preset\": \"fast\", \"flow_format\": \"npy16\", \"match_stride\": 0}}";
+    sinew_sequence *seq = NULL;
+    assert_int_equal(sinew_sequence_parse(ctx, &seq, txt, strlen(txt), "seq.json"), SINEW_OK);
+    sinew_run_pipeline_params pp;
+    sinew_camera cam;
+    sinew_run_pipeline_params_default(&pp);
+    assert_int_equal(sinew_run_pipeline_params_apply_sequence(ctx, &pp, &cam, seq, "seq.json", 0),
+                     SINEW_OK);
+    assert_string_equal(pp.preset, "fast");
+    assert_int_equal(pp.flow_format, SINEW_FLOW_NPY16);
+    assert_int_equal(pp.match_stride, 0);
+    assert_true(pp.depth_scale == 5000);
+    assert_int_equal(pp.depth_ray, 1);
+    assert_ptr_equal(pp.camera, &cam);
+    assert_true(cam.fx == 500 && cam.cy == 239.5);
+    /* settings the caller gave stay */
+    sinew_run_pipeline_params_default(&pp);
+    pp.preset = "accurate";
+    pp.match_stride = 7;
+    pp.depth_scale = 1000;
+    unsigned keep = SINEW_RUN_KEEP_PRESET | SINEW_RUN_KEEP_FLOW_FORMAT |
+                    SINEW_RUN_KEEP_MATCH_STRIDE | SINEW_RUN_KEEP_DEPTH_SCALE;
+    assert_int_equal(
+        sinew_run_pipeline_params_apply_sequence(ctx, &pp, &cam, seq, "seq.json", keep), SINEW_OK);
+    assert_string_equal(pp.preset, "accurate");
+    assert_int_equal(pp.flow_format, SINEW_FLOW_FLO);
+    assert_int_equal(pp.match_stride, 7);
+    assert_true(pp.depth_scale == 1000);
+    /* the schedule, and a sequence without one leaves the caller's */
+    sinew_schedule s = {SINEW_SCHEDULE_GAP, 2, 0, 0, NULL, 0};
+    sinew_pair *list = NULL;
+    assert_int_equal(sinew_run_schedule_from_sequence(ctx, seq, &s, &list), SINEW_OK);
+    assert_int_equal(s.kind, SINEW_SCHEDULE_LIST);
+    assert_int_equal(s.list_len, 2);
+    assert_int_equal(list[1].i, 3);
+    assert_int_equal(list[1].j, 1);
+    sinew_ctx_dealloc(ctx, list);
+    sinew_sequence_free(seq);
+    const char *plain = "{\"version\": 1, \"frames\": {\"color\": \"c/%d.png\", \"count\": 2},"
+                        " \"run\": {\"flow_format\": \"pfm\"}}";
+    assert_int_equal(sinew_sequence_parse(ctx, &seq, plain, strlen(plain), "p.json"), SINEW_OK);
+    /* the reader refuses unknown formats; a sequence built in code may still hold one */
+    char *owned = seq->run.flow_format, tiff[] = "tiff";
+    seq->run.flow_format = tiff;
+    s = (sinew_schedule){SINEW_SCHEDULE_GAP, 2, 0, 0, NULL, 0};
+    assert_int_equal(sinew_run_schedule_from_sequence(ctx, seq, &s, &list), SINEW_OK);
+    assert_int_equal(s.kind, SINEW_SCHEDULE_GAP);
+    assert_null(list);
+    sinew_run_pipeline_params_default(&pp);
+    assert_int_equal(sinew_run_pipeline_params_apply_sequence(ctx, &pp, &cam, seq, "p.json", 0),
+                     SINEW_ECONFIG);
+    assert_string_equal(sinew_ctx_message(ctx), "p.json: run.flow_format: unknown format");
+    assert_null(pp.camera);
+    assert_int_equal(sinew_run_pipeline_params_apply_sequence(ctx, &pp, &cam, seq, "p.json",
+                                                              SINEW_RUN_KEEP_FLOW_FORMAT),
+                     SINEW_OK);
+    seq->run.flow_format = owned;
+    sinew_sequence_free(seq);
+    sinew_ctx_free(ctx);
+}
+
 static void test_run_pipeline_options_text(void **state)
 {
     (void)state;
@@ -700,6 +845,8 @@ int main(void)
         cmocka_unit_test(test_run_sha256_file_matches_memory),
         cmocka_unit_test(test_run_schedule_kinds_and_names),
         cmocka_unit_test(test_run_shards_partition_pairs),
+        cmocka_unit_test(test_run_schedule_parse),
+        cmocka_unit_test(test_run_sequence_settings_apply_under_given_ones),
         cmocka_unit_test(test_run_associate_greedy_within_tolerance),
         cmocka_unit_test(test_run_associate_offset_and_errors),
         cmocka_unit_test(test_run_stamp_list_read),

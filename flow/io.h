@@ -27,6 +27,10 @@ int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path);
 
 /* Write a PNG: SINEW_U8 or SINEW_U16, 1..4 channels (gray, gray+alpha, RGB, RGBA). */
 int sinew_image_write_png(sinew_ctx *ctx, const char *path, const sinew_image *img);
+/* Encode an 8-bit image (SINEW_U8, 1..4 channels: gray, gray+alpha, RGB, RGBA) as PNG
+ * in memory. *png is allocated on ctx (sinew_ctx_dealloc), *len its size. EINVAL for
+ * other images, EFORMAT with libpng's message if encoding fails. */
+int sinew_png_encode(sinew_ctx *ctx, const sinew_image *img, unsigned char **png, size_t *len);
 
 /* ---- flow fields ----
  * In memory a flow field is a SINEW_F32 image with 2 channels (u, v) in pixels;

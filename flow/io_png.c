@@ -7,6 +7,9 @@
  * images expand to RGB (RGBA with a tRNS chunk), gray below 8 bits expands to 8 bits,
  * 16-bit samples stay 16-bit integers in host byte order. No gamma is applied.
  *
+ * In-memory encoding of 8-bit pictures (sinew_png_encode, for the report's inline
+ * thumbnails) uses the simplified API: 8-bit samples pass through it unchanged.
+ *
  * libpng reports errors by longjmp. Each setjmp lives in exactly one function
  * (read_impl, write_impl) whose error branch only touches locals that are not modified
  * after setjmp. libpng's own allocations go through the context allocator, so failure
@@ -221,4 +224,49 @@ int sinew_image_write_png(sinew_ctx *ctx, const char *path, const sinew_image *i
         return rc;
     }
     return sinew_outfile_commit(ctx, f);
+}
+
+/* ---- in-memory encoding (the report's thumbnails) ---- */
+
+/* One pass of the simplified writer: buf NULL asks for the size into *size. */
+static int encode_pass(sinew_ctx *ctx, const sinew_image *img, void *buf, png_alloc_size_t *size)
+{
+    static const png_uint_32 formats[4] = {PNG_FORMAT_GRAY, PNG_FORMAT_GA, PNG_FORMAT_RGB,
+                                           PNG_FORMAT_RGBA};
+    png_image im;
+    memset(&im, 0, sizeof im);
+    im.version = PNG_IMAGE_VERSION;
+    im.width = (png_uint_32)img->width;
+    im.height = (png_uint_32)img->height;
+    im.format = formats[img->channels - 1];
+    if (png_image_write_to_memory(&im, buf, size, 0, img->data, (png_int_32)img->stride, NULL))
+        return SINEW_OK;
+    int st = sinew__fail(ctx, SINEW_EFORMAT, "png: %s", im.message);
+    png_image_free(&im);
+    return st;
+}
+
+int sinew_png_encode(sinew_ctx *ctx, const sinew_image *img, unsigned char **png, size_t *len)
+{
+    if (!ctx || !img || !png || !len || !img->data || img->type != SINEW_U8 || img->channels < 1 ||
+        img->channels > 4)
+        return SINEW_EINVAL;
+    *png = NULL;
+    *len = 0;
+    if (img->stride > INT32_MAX)
+        return sinew__fail(ctx, SINEW_ELIMIT, "png: image rows too long to encode");
+    png_alloc_size_t size = 0;
+    int st = encode_pass(ctx, img, NULL, &size);
+    if (st)
+        return st;
+    unsigned char *buf = sinew__alloc(ctx, size ? size : 1);
+    if (!buf)
+        return SINEW_ENOMEM;
+    if ((st = encode_pass(ctx, img, buf, &size))) {
+        sinew__free(ctx, buf);
+        return st;
+    }
+    *png = buf;
+    *len = size;
+    return SINEW_OK;
 }

@@ -22,6 +22,17 @@ int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj)
     return rc;
 }
 
+int sinew__json_parse(sinew_ctx *ctx, const char *path, const char *text, size_t len, cJSON **out)
+{
+    const char *end = NULL;
+    *out = cJSON_ParseWithLengthOpts(text, len, &end, 0);
+    if (!*out) {
+        size_t off = end ? (size_t)(end - text) : 0;
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: invalid JSON near byte %zu", path, off);
+    }
+    return SINEW_OK;
+}
+
 int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON **out)
 {
     *out = NULL;
@@ -30,14 +41,9 @@ int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON *
     int rc = sinew_read_file(ctx, path, max_bytes, &buf, &len);
     if (rc)
         return rc;
-    const char *end = NULL;
-    cJSON *j = cJSON_ParseWithLengthOpts((const char *)buf, len, &end, 0);
-    size_t off = end ? (size_t)(end - (const char *)buf) : 0;
+    rc = sinew__json_parse(ctx, path, (const char *)buf, len, out);
     sinew_ctx_dealloc(ctx, buf);
-    if (!j)
-        return sinew__fail(ctx, SINEW_EFORMAT, "%s: invalid JSON near byte %zu", path, off);
-    *out = j;
-    return SINEW_OK;
+    return rc;
 }
 
 cJSON *sinew_json_number(double v)

@@ -36,11 +36,6 @@ void sinew_report_options_default(sinew_report_options *o);
 int sinew_report_write(sinew_ctx *ctx, const char *rundir, const char *html_path,
                        const sinew_report_options *o);
 
-/* Encode an 8-bit image (SINEW_U8, 1..4 channels: gray, gray+alpha, RGB, RGBA) as PNG
- * in memory. *png is allocated on ctx (sinew_ctx_dealloc), *len its size. EINVAL for
- * other images, EFORMAT with libpng's message if encoding fails. */
-int sinew_png_encode(sinew_ctx *ctx, const sinew_image *img, unsigned char **png, size_t *len);
-
 #ifdef __cplusplus
 }
 #endif

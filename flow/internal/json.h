@@ -11,6 +11,9 @@
 
 /* Write a cJSON value as formatted text plus a newline, atomically. */
 int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj);
+/* Parse text (len bytes, no terminator needed) read from path; EFORMAT "PATH: invalid
+ * JSON near byte N". */
+int sinew__json_parse(sinew_ctx *ctx, const char *path, const char *text, size_t len, cJSON **out);
 /* Read and parse a JSON file of at most max_bytes; EFORMAT naming the file. */
 int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON **out);
 /* obj[key] as a finite number, else NaN (missing key, other type, obj not an object). */

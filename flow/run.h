@@ -75,6 +75,7 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
 #define SINEW_RUN_CONFIDENCE_FILE "confidence.npy"
 #define SINEW_RUN_FB_ERROR_FILE "fb_error.npy"
 #define SINEW_RUN_MATCHES_FILE "matches.npy"
+#define SINEW_RUN_OPTIONS_FILE "options.json"
 
 /* ---- the run engine ------------------------------------------------------------ */
 typedef struct sinew_run_frame {
@@ -222,6 +223,8 @@ const char *sinew_run_flow_ext(int flow_format);
 /* Flow format for a --flow-format / sequence.json name ("flo", "npy", "npy16", "pfm",
  * "png"): SINEW_OK and *flow_format set, or SINEW_EINVAL for an unknown name. */
 int sinew_run_flow_format_parse(const char *name, int *flow_format);
+/* The name sinew_run_flow_format_parse takes for a flow format; NULL if unknown. */
+const char *sinew_run_flow_format_name(int flow_format);
 
 /* Settings a caller has chosen itself (e.g. on the command line): a sequence must not
  * override them (bits for `keep` below). */
@@ -242,6 +245,45 @@ int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_
  * otherwise *out is left as it is. *list is NULL unless pairs were allocated. */
 int sinew_run_schedule_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, sinew_schedule *out,
                                      sinew_pair **list);
+
+/* ---- stored options (OUTDIR/SINEW_RUN_OPTIONS_FILE, docs/formats.md) -------------
+ * The settings that shape a run's outputs, written before its first pair, so that
+ * --resume, --merge and later shards reuse them instead of silently recomputing
+ * finished pairs with other settings. A key a caller gives again must agree with the
+ * stored value; a key it leaves out is taken from the file. */
+typedef struct sinew_run_options {
+    char preset[32];      /* flow preset name */
+    int flow_format;      /* sinew_flow_format */
+    int match_stride;     /* pixels; 0 = every kept pixel */
+    double depth_scale;   /* 16-bit depth codes per metre */
+    double max_dt;        /* colour/depth association tolerance, seconds */
+    char schedule[1024];  /* schedule text as given; "" = the sequence's or consecutive */
+    char flow_from[4096]; /* folder of imported flows; "" = flows are estimated */
+} sinew_run_options;
+
+/* Bits naming the keys of sinew_run_options (the first four equal SINEW_RUN_KEEP_*). */
+#define SINEW_RUN_OPT_PRESET SINEW_RUN_KEEP_PRESET
+#define SINEW_RUN_OPT_FLOW_FORMAT SINEW_RUN_KEEP_FLOW_FORMAT
+#define SINEW_RUN_OPT_MATCH_STRIDE SINEW_RUN_KEEP_MATCH_STRIDE
+#define SINEW_RUN_OPT_DEPTH_SCALE SINEW_RUN_KEEP_DEPTH_SCALE
+#define SINEW_RUN_OPT_SCHEDULE 16u
+#define SINEW_RUN_OPT_MAX_DT 32u
+#define SINEW_RUN_OPT_FLOW_FROM 64u
+#define SINEW_RUN_OPT_ALL 127u
+
+/* Write *o to OUTDIR/SINEW_RUN_OPTIONS_FILE atomically (OUTDIR must exist). ELIMIT for
+ * a string that does not fit its field. */
+int sinew_run_options_write(sinew_ctx *ctx, const char *outdir, const sinew_run_options *o);
+/* Read OUTDIR/SINEW_RUN_OPTIONS_FILE into *o. *found = 0 and SINEW_OK when the file does
+ * not exist (a folder from an older sinew, or a new run); EFORMAT naming the file and
+ * the key for a file that is not a complete options record. */
+int sinew_run_options_read(sinew_ctx *ctx, const char *outdir, sinew_run_options *o, int *found);
+/* Unless force is set, compare the keys in `given` of *o with *stored: the first that
+ * differs gives ECONFIG "WHERE: KEY is 'STORED' there but 'GIVEN' was given". Then every
+ * key not in `given` is copied from *stored into *o, so *o holds the run's options (with
+ * force, the given keys replace the stored ones). */
+int sinew_run_options_reconcile(sinew_ctx *ctx, const char *where, const sinew_run_options *stored,
+                                sinew_run_options *o, unsigned given, int force);
 
 /* The summary numbers of a computed pair, from OUTDIR/pairs/NAME/stats.json as the
  * pipeline writes it; NaN for a number that is missing. */

@@ -76,7 +76,7 @@ int sinew_run_flow_format_parse(const char *name, int *flow_format)
     return SINEW_EINVAL;
 }
 
-static const char *format_name(int flow_format)
+const char *sinew_run_flow_format_name(int flow_format)
 {
     for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)
         if (formats[k].fmt == flow_format)
@@ -178,7 +178,7 @@ int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *
 {
     if (!ctx || !p || !buf || !p->preset)
         return SINEW_EINVAL;
-    const char *fmt = format_name(p->flow_format);
+    const char *fmt = sinew_run_flow_format_name(p->flow_format);
     if (!fmt)
         return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow format %d", p->flow_format);
     sinew_flow_params fp;

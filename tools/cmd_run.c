@@ -65,8 +65,11 @@ static void usage(FILE *out)
         "  --depth-scale S        16-bit depth codes per metre (default 1000; TUM: 5000)\n"
         "  --match-stride S       matches on a grid of step S pixels (default 4; 0 = all)\n"
         "  --resume               skip pairs that are complete and up to date\n"
+        "  --force-options        let options given here replace the ones stored in\n"
+        "                         OUTDIR/options.json (finished pairs are then redone)\n"
         "  --shard K/N            process only pairs whose number %% N == K\n"
         "  --merge                compute nothing; rebuild manifest.json from all shards\n"
+
         "  --dry-run              list the pairs, estimate disk use and time, write nothing\n"
         "  --on-error stop|skip   on a failing pair: stop (default) or record and go on\n"
         "  --progress auto|plain|json   live line on a terminal (auto), plain lines, or\n"
@@ -75,6 +78,12 @@ static void usage(FILE *out)
         "                         OUTDIR/report.html (sinew report)\n"
         "  --threads N            threads per pair (0 = all cores); outputs identical\n"
         "  -h, --help             this help\n"
+        "\n"
+        "A run stores the options that shape its outputs (preset, flow format, match\n"
+        "stride, depth scale, max-dt, schedule, flow-from) in OUTDIR/options.json before\n"
+        "its first pair. --resume, --merge and --shard runs in that folder take every\n"
+        "option not given from there; a given option that differs is refused.\n"
+        ""
         "\n"
         "examples:\n"
         "  sinew run demo/out/seq -o runs/demo\n"
@@ -194,8 +203,10 @@ static void on_progress(void *ud, const sinew_run_progress *p)
 
 typedef struct {
     const char *input, *outdir, *flow_from, *schedule;
-    int resume, dry, report, merge, shard_k, shard_n;
-    unsigned keep; /* SINEW_RUN_KEEP_* bits of the settings given on the command line */
+    int resume, dry, report, merge, shard_k, shard_n, force_options;
+    unsigned keep;  /* SINEW_RUN_KEEP_* bits of the settings given on the command line */
+    unsigned given; /* SINEW_RUN_OPT_* bits of the same, plus schedule, max-dt, flow-from */
+    sinew_run_options stored; /* OUTDIR/options.json when it was applied (owns the strings) */
     long threads;
     double max_dt;
     sinew_run_on_error on_error;
@@ -218,7 +229,8 @@ enum {
     O_MAXDT,
     O_MERGE,
     O_DSCALE,
-    O_MSTRIDE
+    O_MSTRIDE,
+    O_FORCE
 };
 
 static int parse_shard(const char *arg, run_args *a)
@@ -258,9 +270,14 @@ static int parse_option(int c, const char *arg, run_args *a)
         break;
     case O_FROM:
         a->flow_from = arg;
+        a->given |= SINEW_RUN_OPT_FLOW_FROM;
         break;
     case O_SCHED:
         a->schedule = arg;
+        a->given |= SINEW_RUN_OPT_SCHEDULE;
+        break;
+    case O_FORCE:
+        a->force_options = 1;
         break;
     case O_PRESET:
         a->pp.preset = arg;
@@ -299,6 +316,7 @@ static int parse_option(int c, const char *arg, run_args *a)
     case O_MAXDT:
         if (cli_parse_double(arg, &a->max_dt) || !(a->max_dt > 0))
             return cli_usage_error(CMD, "--max-dt: expected seconds > 0, got '%s'", arg);
+        a->given |= SINEW_RUN_OPT_MAX_DT;
         break;
     case O_DSCALE:
         if (cli_parse_double(arg, &a->pp.depth_scale) || !(a->pp.depth_scale > 0))
@@ -338,6 +356,7 @@ static int parse_args(int argc, char **argv, run_args *a)
                                          {"merge", no_argument, NULL, O_MERGE},
                                          {"depth-scale", required_argument, NULL, O_DSCALE},
                                          {"match-stride", required_argument, NULL, O_MSTRIDE},
+                                         {"force-options", no_argument, NULL, O_FORCE},
                                          {"help", no_argument, NULL, 'h'},
                                          {NULL, 0, NULL, 0}};
     memset(a, 0, sizeof *a);
@@ -369,6 +388,7 @@ static int parse_args(int argc, char **argv, run_args *a)
     if (a->merge && (a->dry || a->shard_n > 1))
         return cli_usage_error(CMD, "--merge cannot be combined with --dry-run or --shard");
     a->input = argv[optind];
+    a->given |= a->keep;
     return -1;
 }
 
@@ -384,6 +404,77 @@ typedef struct {
     char options[512];
     sinew_run_spec spec;
 } run_plan;
+
+/* The options of a run as sinew_run_options: from the command line (before planning)
+ * or the effective ones (after the sequence's settings were applied). */
+static int options_from_args(const run_args *a, sinew_run_options *o)
+{
+    memset(o, 0, sizeof *o);
+    o->flow_format = a->pp.flow_format;
+    o->match_stride = a->pp.match_stride;
+    o->depth_scale = a->pp.depth_scale;
+    o->max_dt = a->max_dt;
+    const char *src[3] = {a->pp.preset, a->schedule ? a->schedule : "",
+                          a->flow_from ? a->flow_from : ""};
+    char *dst[3] = {o->preset, o->schedule, o->flow_from};
+    size_t cap[3] = {sizeof o->preset, sizeof o->schedule, sizeof o->flow_from};
+    for (int k = 0; k < 3; k++) {
+        if (strlen(src[k]) >= cap[k])
+            return cli_error(CMD, "%s: longer than %zu bytes", src[k], cap[k] - 1);
+        memcpy(dst[k], src[k], strlen(src[k]) + 1);
+    }
+    return CLI_OK;
+}
+
+/* --resume, --merge and --shard runs in a folder that holds options.json take every
+ * option not given on the command line from there (over the sequence's settings) and
+ * refuse a given one that differs, unless --force-options. A fresh whole run replaces
+ * the file. */
+static int plan_stored_options(sinew_ctx *ctx, run_args *a)
+{
+    if (!a->resume && !a->merge && a->shard_n == 1)
+        return CLI_OK;
+    int found = 0, rc = sinew_run_options_read(ctx, a->outdir, &a->stored, &found);
+    if (rc)
+        return cli_status(CMD, ctx, rc);
+    if (!found)
+        return CLI_OK;
+    sinew_run_options given;
+    if ((rc = options_from_args(a, &given)) != CLI_OK)
+        return rc;
+    char where[4200];
+    snprintf(where, sizeof where, "%s/" SINEW_RUN_OPTIONS_FILE, a->outdir);
+    if ((rc = sinew_run_options_reconcile(ctx, where, &a->stored, &given, a->given,
+                                          a->force_options)))
+        return cli_error(CMD, "%s (--force-options lets the given value replace it)",
+                         sinew_ctx_message(ctx));
+    a->stored = given;
+    a->pp.preset = a->stored.preset;
+    a->pp.flow_format = a->stored.flow_format;
+    a->pp.match_stride = a->stored.match_stride;
+    a->pp.depth_scale = a->stored.depth_scale;
+    a->max_dt = a->stored.max_dt;
+    a->schedule = a->stored.schedule[0] ? a->stored.schedule : NULL;
+    a->flow_from = a->stored.flow_from[0] ? a->stored.flow_from : NULL;
+    /* the stored values are the effective ones of the first run: the sequence's
+     * settings were already applied to them */
+    a->keep |= SINEW_RUN_KEEP_PRESET | SINEW_RUN_KEEP_FLOW_FORMAT | SINEW_RUN_KEEP_MATCH_STRIDE |
+               SINEW_RUN_KEEP_DEPTH_SCALE;
+    return CLI_OK;
+}
+
+/* Write the effective options into OUTDIR before the first pair (not for --merge,
+ * which computes nothing). */
+static int store_options(sinew_ctx *ctx, const run_args *a)
+{
+    sinew_run_options o;
+    int rc = options_from_args(a, &o);
+    if (rc != CLI_OK)
+        return rc;
+    if ((rc = sinew_run_options_write(ctx, a->outdir, &o)))
+        return cli_status(CMD, ctx, rc);
+    return CLI_OK;
+}
 
 /* Frames: a folder without sequence.json is scanned (flow/run.h), anything else is read
  * as a sequence whose settings apply under the command line's. */
@@ -429,7 +520,9 @@ static int plan_pairs(sinew_ctx *ctx, const run_args *a, run_plan *p)
 
 static int plan(sinew_ctx *ctx, run_args *a, run_plan *p)
 {
-    int r = plan_source(ctx, a, p);
+    int r = plan_stored_options(ctx, a);
+    if (r == CLI_OK)
+        r = plan_source(ctx, a, p);
     if (r == CLI_OK)
         r = plan_pairs(ctx, a, p);
     if (r != CLI_OK)
@@ -656,7 +749,7 @@ int cmd_run(int argc, char **argv)
         ret = cli_status(CMD, ctx, rc);
     else if (ret == CLI_OK && a.merge)
         ret = merge(ctx, run, &a, p.npairs);
-    else if (ret == CLI_OK)
+    else if (ret == CLI_OK && (ret = store_options(ctx, &a)) == CLI_OK)
         ret = execute(ctx, &a, &p, run);
     sinew_run_free(run);
     plan_free(ctx, &p);

@@ -223,6 +223,43 @@ if "$B" run "$T/tum" -o "$T/tumout" $OPT --dry-run >"$T/out" 2>&1 && [ "$(grep -
 else
     fail "timestamp association keeps 3 of 4 colour frames (2 pairs)" "$(cat "$T/out")"
 fi
+# ---- stored options (OUTDIR/options.json): resume and merge reuse the run's options
+# (issue 17: a fast run resumed without --preset was recomputed with balanced; a merge
+# without the shards' options found every pair pending)
+if "$B" run "$T/seq" -o "$T/again" --resume --progress plain >"$T/out" 2>&1 \
+    && grep -q "0 computed, 5 skipped" "$T/out" && diff -r "$T/whole" "$T/again" >/dev/null; then
+    pass "resume without the options takes them from options.json"
+else
+    fail "resume without the options takes them from options.json" "$(tail -2 "$T/out")"
+fi
+expect_error "resume with a different preset is refused, naming key and values" - \
+    "again/options\.json: preset is 'fast' there but 'accurate' was given" \
+    "$B" run "$T/seq" -o "$T/again" --resume --preset accurate --progress plain
+if diff -r "$T/whole" "$T/again" >/dev/null; then pass "a refused resume changes nothing"
+else fail "a refused resume changes nothing" "$(diff -rq "$T/whole" "$T/again" | head -3)"; fi
+expect_error "merge with a different match stride is refused" - "match_stride is '4' there but '2'" \
+    "$B" run "$T/seq" -o "$T/sh" --merge --match-stride 2
+if "$B" run "$T/seq" -o "$T/sh" --merge >"$T/out" 2>&1 && grep -q "5 done, 0 failed, 0 pending" "$T/out"; then
+    pass "merge without the shards' options finds every pair done"
+else
+    fail "merge without the shards' options finds every pair done" "$(tail -2 "$T/out")"
+fi
+if grep -q "run: sinew run $T/seq -o $T/sh --merge" "$T/s2"; then pass "shard hint prints a merge command that works"
+else fail "shard hint prints a merge command that works" "$(tail -1 "$T/s2")"; fi
+expect_error "a shard with other options than the stored ones is refused" - "preset is 'fast' there" \
+    "$B" run "$T/seq" -o "$T/sh" --shard 1/3 --preset balanced
+cp -r "$T/again" "$T/forced"
+"$B" run "$T/seq" -o "$T/forced" --resume --match-stride 8 --force-options --progress plain >"$T/out" 2>&1
+if grep -q "5 computed, 0 skipped" "$T/out" && grep -q '"match_stride":	8' "$T/forced/options.json" \
+    && grep -q '"preset":	"fast"' "$T/forced/options.json"; then
+    pass "--force-options recomputes with the given option and stores it"
+else
+    fail "--force-options recomputes with the given option and stores it" "$(tail -2 "$T/out")"
+fi
+printf '{"sinew_run_options": 1, "preset": "fast"}\n' >"$T/forced/options.json"
+expect_error "an incomplete options.json is refused, naming the file and key" - "forced/options\.json: flow_format" \
+    "$B" run "$T/seq" -o "$T/forced" --resume
+
 "$B" run "$T/tum" -o "$T/tumout" $OPT --max-dt 0.03 --dry-run >"$T/out" 2>&1
 [ "$(grep -c '^0000' "$T/out")" -eq 3 ] && pass "--max-dt 0.03 keeps all 4 frames" || fail "--max-dt 0.03 keeps all 4 frames" "$(cat "$T/out")"
 

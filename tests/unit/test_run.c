@@ -548,6 +548,63 @@ static void test_run_pipeline_options_text(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* Stored options: a written record reads back equal; a given key that differs is
+ * refused naming the key and both values; keys not given come from the record; force
+ * lets the given ones win; a folder without the record reports found = 0. */
+static void test_run_options_store_and_reconcile(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    sinew_run_options w, r, g;
+    memset(&w, 0, sizeof w);
+    snprintf(w.preset, sizeof w.preset, "accurate");
+    w.flow_format = SINEW_FLOW_NPY16;
+    w.match_stride = 2;
+    w.depth_scale = 5000;
+    w.max_dt = 0.03;
+    snprintf(w.schedule, sizeof w.schedule, "gap:2");
+    int found = 1;
+    assert_int_equal(sinew_run_options_read(ctx, dir, &r, &found), SINEW_OK);
+    assert_int_equal(found, 0);
+    assert_int_equal(sinew_run_options_write(ctx, dir, &w), SINEW_OK);
+    memset(&r, 0, sizeof r);
+    assert_int_equal(sinew_run_options_read(ctx, dir, &r, &found), SINEW_OK);
+    assert_int_equal(found, 1);
+    assert_memory_equal(&r, &w, sizeof w);
+
+    memset(&g, 0, sizeof g);
+    snprintf(g.preset, sizeof g.preset, "balanced");
+    g.match_stride = 2;
+    assert_int_equal(sinew_run_options_reconcile(ctx, "X", &r, &g, SINEW_RUN_OPT_PRESET, 0),
+                     SINEW_ECONFIG);
+    assert_string_equal(sinew_ctx_message(ctx),
+                        "X: preset is 'accurate' there but 'balanced' was given");
+    assert_int_equal(sinew_run_options_reconcile(ctx, "X", &r, &g, SINEW_RUN_OPT_MATCH_STRIDE, 0),
+                     SINEW_OK);
+    assert_memory_equal(&g, &w, sizeof w);
+    snprintf(g.preset, sizeof g.preset, "fast");
+    g.max_dt = 0.5;
+    assert_int_equal(sinew_run_options_reconcile(ctx, "X", &r, &g, SINEW_RUN_OPT_PRESET, 1),
+                     SINEW_OK);
+    assert_string_equal(g.preset, "fast");
+    assert_true(g.max_dt == 0.03);
+    assert_string_equal(g.schedule, "gap:2");
+
+    char path[4200];
+    FILE *f = fopen(tu_path(path, sizeof path, dir, "options.json"), "w");
+    assert_non_null(f);
+    fputs("{\"sinew_run_options\": 1, \"preset\": \"fast\", \"flow_format\": \"flo\", "
+          "\"match_stride\": 4, \"depth_scale\": -1, \"max_dt\": 0.02, \"schedule\": null, "
+          "\"flow_from\": null}\n",
+          f);
+    fclose(f);
+    assert_int_equal(sinew_run_options_read(ctx, dir, &r, &found), SINEW_EFORMAT);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "options.json: depth_scale"));
+    tu_rmtree(dir);
+    sinew_ctx_free(ctx);
+}
+
 /* ---- engine with a stand-in pair function ---- */
 
 typedef struct {
@@ -852,6 +909,7 @@ int main(void)
         cmocka_unit_test(test_run_stamp_list_read),
         cmocka_unit_test(test_run_source_folder_layouts),
         cmocka_unit_test(test_run_pipeline_options_text),
+        cmocka_unit_test(test_run_options_store_and_reconcile),
         cmocka_unit_test(test_run_sequence_run_settings_and_patterns),
         cmocka_unit_test(test_run_engine_resume_skips_only_up_to_date),
         cmocka_unit_test(test_run_engine_shards_match_whole_run),

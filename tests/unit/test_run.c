@@ -602,6 +602,7 @@ static void test_run_options_store_and_reconcile(void **state)
     assert_int_equal(sinew_run_options_read(ctx, dir, &r, &found), SINEW_EFORMAT);
     assert_non_null(strstr(sinew_ctx_message(ctx), "options.json: depth_scale"));
     tu_rmtree(dir);
+    free(dir);
     sinew_ctx_free(ctx);
 }
 

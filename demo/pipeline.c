@@ -64,7 +64,7 @@ int main(void)
         return fail(ctx, rc);
 
     /* 3. Forward-backward check: reason mask and confidence. */
-    sinew_check_input ci = {&fwd, &bwd, &c0, &c1, NULL};
+    sinew_check_input ci = {&fwd, &bwd, &c0, &c1, NULL, NULL};
     sinew_check_output co = {NULL, &mask, &conf, {0}};
     if ((rc = sinew_image_alloc(ctx, &mask, W, H, 1, SINEW_U8)) ||
         (rc = sinew_image_alloc(ctx, &conf, W, H, 1, SINEW_F32)) ||

@@ -20,6 +20,7 @@
 #include <string.h>
 
 #include "flow/internal/base.h"
+#include "flow/internal/occlusion.h"
 #include "flow/internal/parallel.h"
 
 void sinew_check_params_default(sinew_check_params *p)
@@ -31,7 +32,13 @@ void sinew_check_params_default(sinew_check_params *p)
     p->fb_alpha = 0.01;
     p->fb_beta = 0.5;
     p->boundary_alpha = 0.01;
-    p->boundary_beta = 0.002;
+    /* Our choice: fb_beta / 4 (docs/methods.md, "Motion boundaries"). */
+    p->boundary_beta = 0.125;
+    /* Occlusion rule (docs/methods.md, "Occlusion"): half a pixel of coverage; one and a
+     * half competitors; 5 % depth separation (our choices). */
+    p->occ_range = 0.5;
+    p->occ_crowd = 1.5;
+    p->occ_depth_tolerance = 0.05;
     /* Our choices (documented in docs/methods.md). */
     p->photo_threshold = 0.1;
     p->saturation_level = 0.98;
@@ -49,8 +56,8 @@ void sinew_check_params_default(sinew_check_params *p)
 }
 
 static const char *const bit_names[SINEW_MASK_NBITS] = {
-    "fb_inconsistent", "outside",   "motion_boundary", "photometric",
-    "ignored",         "saturated", "unknown_flow",
+    "occluded", "outside",   "motion_boundary", "photometric",
+    "ignored",  "saturated", "unknown_flow",    "fb_mismatch",
 };
 
 const char *sinew_check_bit_name(int bit)
@@ -76,6 +83,9 @@ size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *o
         {"fb_beta", p->fb_beta},
         {"boundary_alpha", p->boundary_alpha},
         {"boundary_beta", p->boundary_beta},
+        {"occ_range", p->occ_range},
+        {"occ_crowd", p->occ_crowd},
+        {"occ_depth_tolerance", p->occ_depth_tolerance},
         {"photo_threshold", p->photo_threshold},
         {"saturation_level", p->saturation_level},
         {"texture_radius", p->texture_radius},
@@ -296,6 +306,8 @@ typedef struct scratch {
     double *dtbuf;        /* per-thread distance-transform buffers */
     int *dtv;             /* per-thread envelope indices */
     unsigned *hist;       /* residual histogram */
+    float *range;         /* backward-flow splat density on frame 0 (range map) */
+    float *crowd;         /* forward-flow splat density on frame 1, or z-buffer with depth */
     float *fb;            /* fb output if caller passed none */
     uint8_t *mask;        /* mask plane (contiguous) */
 } scratch;
@@ -308,7 +320,8 @@ static void scratch_free(sinew_ctx *ctx, scratch *s)
                     (void **)&s->fbratio, (void **)&s->resid, (void **)&s->lmin,
                     (void **)&s->t3a,     (void **)&s->t3b,   (void **)&s->dist2,
                     (void **)&s->rows,    (void **)&s->dtbuf, (void **)&s->dtv,
-                    (void **)&s->hist,    (void **)&s->fb,    (void **)&s->mask};
+                    (void **)&s->hist,    (void **)&s->fb,    (void **)&s->mask,
+                    (void **)&s->range,   (void **)&s->crowd};
     for (size_t i = 0; i < sizeof all / sizeof all[0]; i++) {
         sinew__free(ctx, *all[i]);
         *all[i] = NULL;
@@ -343,6 +356,8 @@ static int scratch_alloc(sinew_ctx *ctx, scratch *s, int w, int h, int frames, i
     GET(dtv, (size_t)nthreads * nmax, int);
     GET(fb, n, float);
     GET(mask, n, uint8_t);
+    GET(range, n, float);
+    GET(crowd, n, float);
 #undef GET
     s->big = (double)w * w + (double)h * h + 1;
     if (bad) {
@@ -394,7 +409,7 @@ static void pass_geometry(const sinew_check_input *in, const sinew_check_params 
                         double du = u + bu, dv = v + bv, b2 = bu * bu + bv * bv;
                         double e2 = du * du + dv * dv;
                         if (e2 > p->fb_alpha * (w2 + b2) + p->fb_beta)
-                            m |= SINEW_MASK_FB;
+                            m |= SINEW_MASK_OCCLUDED; /* decided in pass_occlusion */
                         e = (float)sqrt(e2);
                         ratio = (float)(e2 / (p->conf_fb_alpha * (w2 + b2) + p->conf_fb_beta));
                     }
@@ -418,10 +433,57 @@ static void pass_geometry(const sinew_check_input *in, const sinew_check_params 
     }
 }
 
+/* ---- pass 2b: occlusion ---- */
+
+/* Split the forward-backward inconsistent pixels (bit OCCLUDED after pass 2) into
+ * OCCLUDED, when x is not seen in frame 1 (range map below occ_range) or loses its
+ * target (crowded target without depth; a nearer surface lands there with depth), and
+ * MISMATCH otherwise. The splats are serial (flow/occlusion.c); the decision is per
+ * pixel. */
+static void pass_occlusion(const sinew_check_input *in, const sinew_check_params *p, scratch *s,
+                           int nthreads)
+{
+    (void)nthreads; /* unused without OpenMP */
+    const sinew_image *F = in->forward;
+    int w = F->width, h = F->height;
+    sinew__splat_density(in->backward, s->range);
+    if (in->depth0)
+        sinew__splat_zmin(F, in->depth0, s->crowd);
+    else
+        sinew__splat_density(F, s->crowd);
+    SINEW_PARALLEL_FOR(nthreads)
+    for (int y = 0; y < h; y++) {
+        const float *fr = sinew_image_row_f32(F, y);
+        const float *zr = in->depth0 ? sinew_image_row_f32(in->depth0, y) : NULL;
+        for (int x = 0; x < w; x++) {
+            size_t k = (size_t)y * w + x;
+            if (!(s->mask[k] & SINEW_MASK_OCCLUDED))
+                continue;
+            int occluded = s->range[k] < p->occ_range;
+            if (!occluded) {
+                double px = x + (double)fr[2 * x], py = y + (double)fr[2 * x + 1];
+                px = px < 0 ? 0 : px > w - 1 ? w - 1 : px;
+                py = py < 0 ? 0 : py > h - 1 ? h - 1 : py;
+                double z = zr ? zr[x] : NAN;
+                if (zr && isfinite(z) && z > 0) {
+                    int nx = (int)floor(px + 0.5), ny = (int)floor(py + 0.5);
+                    nx = nx > w - 1 ? w - 1 : nx;
+                    ny = ny > h - 1 ? h - 1 : ny;
+                    occluded = z > s->crowd[(size_t)ny * w + nx] * (1 + p->occ_depth_tolerance);
+                } else if (!zr) {
+                    occluded = sample_plane(s->crowd, w, h, px, py) > p->occ_crowd;
+                }
+            }
+            if (!occluded)
+                s->mask[k] = (uint8_t)((s->mask[k] & ~SINEW_MASK_OCCLUDED) | SINEW_MASK_MISMATCH);
+        }
+    }
+}
+
 /* ---- pass 3: photometric fit ---- */
 
 #define FIT_EXCLUDE                                                                                \
-    (SINEW_MASK_FB | SINEW_MASK_OUTSIDE | SINEW_MASK_BOUNDARY | SINEW_MASK_SATURATED |             \
+    (SINEW_MASK_FB_ANY | SINEW_MASK_OUTSIDE | SINEW_MASK_BOUNDARY | SINEW_MASK_SATURATED |         \
      SINEW_MASK_UNKNOWN | SINEW_MASK_IGNORE)
 
 /* Least-squares fit of warp1 ≈ g gray0 + o over pixels not excluded by the mask and,
@@ -719,6 +781,8 @@ static int validate(sinew_ctx *ctx, const sinew_check_output *out, const sinew_c
     if (in->frame0 && ((st = check_image(ctx, "frame 0", in->frame0, w, h, 0, 0)) ||
                        (st = check_image(ctx, "frame 1", in->frame1, w, h, 0, 0))))
         return st;
+    if (in->depth0 && (st = check_image(ctx, "depth 0", in->depth0, w, h, 1, 1)))
+        return st;
     if (in->ignore) {
         if ((st = check_image(ctx, "ignore mask", in->ignore, w, h, 0, 0)))
             return st;
@@ -775,6 +839,7 @@ int sinew_check_run(sinew_ctx *ctx, sinew_check_output *out, const sinew_check_i
         to_gray(in->frame1, s.gray1, nthreads);
     }
     pass_geometry(in, params, &s, nthreads);
+    pass_occlusion(in, params, &s, nthreads);
     if (frames) {
         pass_photo(params, &s, w, h, &stats, nthreads);
         pass_texture(&s, w, h, params->texture_radius, nthreads);

@@ -14,23 +14,30 @@ extern "C" {
 
 /* Mask bits: a pixel is kept iff its mask value is 0; otherwise each set bit is one
  * reason to reject it (several may be set).
- *   FB         forward-backward inconsistent
+ *   OCCLUDED   forward-backward inconsistent and not visible in frame 1 (the occlusion
+ *              rule: nothing of frame 1 lands on it, or it loses the competition for
+ *              its target; docs/methods.md, "Occlusion")
  *   OUTSIDE    target x + w(x) outside frame 1's area [-0.5, W-0.5) x [-0.5, H-0.5)
  *   BOUNDARY   motion boundary (flow gradient too large)
  *   PHOTO      photometric residual too large
  *   IGNORE     inside the user's ignore mask
  *   SATURATED  clipped near-white source or target pixel
- *   UNKNOWN    forward flow at x, or backward flow at the target, unknown (NaN/Inf) */
-#define SINEW_MASK_FB (1u << 0)
+ *   UNKNOWN    forward flow at x, or backward flow at the target, unknown (NaN/Inf)
+ *   MISMATCH   forward-backward inconsistent but visible in frame 1 (a flow error)
+ * Every forward-backward inconsistent pixel has exactly one of OCCLUDED and MISMATCH. */
+#define SINEW_MASK_OCCLUDED (1u << 0)
 #define SINEW_MASK_OUTSIDE (1u << 1)
 #define SINEW_MASK_BOUNDARY (1u << 2)
 #define SINEW_MASK_PHOTO (1u << 3)
 #define SINEW_MASK_IGNORE (1u << 4)
 #define SINEW_MASK_SATURATED (1u << 5)
 #define SINEW_MASK_UNKNOWN (1u << 6)
-#define SINEW_MASK_NBITS 7
+#define SINEW_MASK_MISMATCH (1u << 7)
+#define SINEW_MASK_NBITS 8
+/* Forward-backward inconsistent, occluded or not. */
+#define SINEW_MASK_FB_ANY (SINEW_MASK_OCCLUDED | SINEW_MASK_MISMATCH)
 /* Bits that mean "occluded or leaves the view": the occlusion estimate. */
-#define SINEW_MASK_OCCLUSION (SINEW_MASK_FB | SINEW_MASK_OUTSIDE)
+#define SINEW_MASK_OCCLUSION (SINEW_MASK_OCCLUDED | SINEW_MASK_OUTSIDE)
 
 /* Which pixels of the user's ignore mask are ignored. There is no default: a caller
  * that passes an ignore mask must say which polarity it uses. */
@@ -47,9 +54,17 @@ typedef struct sinew_check_params {
     /* Forward-backward test (Sundaram, Brox, Keutzer, ECCV 2010): inconsistent if
      * |w + ŵ|² > fb_alpha (|w|² + |ŵ|²) + fb_beta.  Defaults 0.01 and 0.5 px². */
     double fb_alpha, fb_beta;
-    /* Motion boundary (same paper): |∇u|² + |∇v|² > boundary_alpha |w|² + boundary_beta.
-     * Defaults 0.01 and 0.002. Gradients by central differences (see docs). */
+    /* Motion boundary (form of the same paper): |∇u|² + |∇v|² > boundary_alpha |w|² +
+     * boundary_beta. Defaults 0.01 and 0.125 = fb_beta / 4: a step the forward-backward
+     * test can see (0.71 px across the two-pixel span of the central difference), so the
+     * test does not depend on the image size (docs/methods.md). */
     double boundary_alpha, boundary_beta;
+    /* Occlusion rule for forward-backward inconsistent pixels (docs/methods.md): occluded
+     * if the range map (backward-flow splat density) at x is below occ_range (default
+     * 0.5), or x loses its target: without depth, the forward-splat density at x + w(x)
+     * exceeds occ_crowd (default 1.5); with depth, a surface nearer than
+     * z(x) / (1 + occ_depth_tolerance) lands there (default 0.05). */
+    double occ_range, occ_crowd, occ_depth_tolerance;
     /* Photometric residual after a robust global gain/offset fit: rejected if
      * |I1(x + w) - (g I0(x) + o)| > photo_threshold. Default 0.1. */
     double photo_threshold;
@@ -87,7 +102,7 @@ typedef struct sinew_check_param {
     const char *name; /* static storage */
     double value;
 } sinew_check_param;
-#define SINEW_CHECK_NPARAMS 15
+#define SINEW_CHECK_NPARAMS 18
 /* Copy min(max, SINEW_CHECK_NPARAMS) pairs into out (may be NULL when max is 0); returns
  * SINEW_CHECK_NPARAMS. */
 size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *out, size_t max);
@@ -103,6 +118,9 @@ typedef struct sinew_check_input {
     const sinew_image *frame0;
     const sinew_image *frame1;
     const sinew_image *ignore;
+    /* optional: SINEW_F32 1 channel depth z of frame 0 (any unit, larger = farther, NaN
+     * or <= 0 = invalid), same size; decides who loses a target (z-buffer). Borrowed. */
+    const sinew_image *depth0;
 } sinew_check_input;
 
 /* Counts and fitted values of one run. */
@@ -135,7 +153,7 @@ typedef struct sinew_check_output {
 int sinew_check_run(sinew_ctx *ctx, sinew_check_output *out, const sinew_check_input *in,
                     const sinew_check_params *p);
 
-/* Short name of mask bit i (0..SINEW_MASK_NBITS-1), e.g. "fb_inconsistent"; NULL
+/* Short name of mask bit i (0..SINEW_MASK_NBITS-1), e.g. "occluded"; NULL
  * otherwise. Static storage. */
 const char *sinew_check_bit_name(int bit);
 

@@ -205,21 +205,22 @@ void sinew_colourmap(double t, uint8_t rgb[3])
 /* ---- reasons --------------------------------------------------------------------- */
 
 _Static_assert(SINEW_DRAW_REASONS == SINEW_MASK_NBITS, "one colour per mask bit");
-_Static_assert(SINEW_MASK_FB == 1u && SINEW_MASK_SATURATED == 1u << 5 &&
-                   SINEW_MASK_UNKNOWN == 1u << 6,
+_Static_assert(SINEW_MASK_OCCLUDED == 1u && SINEW_MASK_SATURATED == 1u << 5 &&
+                   SINEW_MASK_UNKNOWN == 1u << 6 && SINEW_MASK_MISMATCH == 1u << 7,
                "reason colours follow the mask bit order of flow/check.h");
 
 static const struct {
     uint8_t c[3];
     const char *name;
 } reasons[SINEW_DRAW_REASONS] = {
-    {{232, 112, 92}, "FB MISMATCH"},   /* bit 0: forward-backward inconsistent (coral) */
-    {{92, 164, 232}, "LEAVES FRAME"},  /* bit 1: target outside the frame (sky blue) */
-    {{236, 192, 72}, "MOTION EDGE"},   /* bit 2: motion boundary (amber) */
-    {{172, 124, 224}, "PHOTOMETRIC"},  /* bit 3: photometric error (violet) */
-    {{150, 160, 172}, "USER IGNORE"},  /* bit 4: user ignore mask (slate gray) */
-    {{112, 204, 152}, "SATURATED"},    /* bit 5: saturated pixels (mint) */
-    {{226, 128, 190}, "UNKNOWN FLOW"}, /* bit 6: flow unknown here or at the target (rose) */
+    {{232, 112, 92}, "OCCLUDED"},        /* bit 0: occluded in frame 1 (coral) */
+    {{92, 164, 232}, "OUTSIDE"},         /* bit 1: target outside the frame (sky blue) */
+    {{236, 192, 72}, "MOTION BOUNDARY"}, /* bit 2: motion boundary (amber) */
+    {{172, 124, 224}, "PHOTOMETRIC"},    /* bit 3: photometric error (violet) */
+    {{150, 160, 172}, "IGNORED"},        /* bit 4: user ignore mask (slate gray) */
+    {{112, 204, 152}, "SATURATED"},      /* bit 5: saturated pixels (mint) */
+    {{226, 128, 190}, "UNKNOWN FLOW"},   /* bit 6: flow unknown here or at the target (rose) */
+    {{196, 150, 108}, "FB MISMATCH"},    /* bit 7: inconsistent but visible (tan) */
 };
 
 int sinew_reason_style(int bit, uint8_t rgb[3], const char **name)
@@ -647,7 +648,7 @@ static int reason_legend(sinew_image *img, int w, int y0, int s)
     int pad = 6 * s, x = pad, y = y0 + pad, line = 10 * s;
     for (int b = 0; b < SINEW_DRAW_REASONS; b++) {
         char text[32];
-        snprintf(text, sizeof text, "%d %s", b, reasons[b].name);
+        snprintf(text, sizeof text, "%u %s", 1u << b, reasons[b].name); /* mask value, name */
         int item = 8 * s + 4 * s + sinew_text_width(text, s) + 10 * s;
         if (x > pad && x + item > w) {
             x = pad;
@@ -683,7 +684,7 @@ int sinew_draw_reasons(sinew_ctx *ctx, sinew_image *out, const sinew_image *fram
         const uint8_t *m = sinew_image_row_u8(mask, y);
         uint8_t *o = sinew_image_row_u8(out, y);
         for (int x = 0; x < w; x++) {
-            unsigned bits = m[x] & 0x7Fu;
+            unsigned bits = m[x];
             if (!bits)
                 continue;
             const uint8_t *c = reasons[__builtin_ctz(bits)].c;

@@ -44,7 +44,7 @@ void sinew_colourmap(double t, uint8_t rgb[3]);
 #define SINEW_DRAW_NOVALUE_B 56
 
 /* ---- rejection reasons (mask bits, see flow/check.h) ---- */
-#define SINEW_DRAW_REASONS 7
+#define SINEW_DRAW_REASONS 8
 /* Overlay colour and short legend name of mask bit `bit` (0..6). SINEW_EINVAL otherwise.
  * name may be NULL; *name is static storage. */
 int sinew_reason_style(int bit, uint8_t rgb[3], const char **name);

@@ -125,7 +125,7 @@ typedef struct sinew_mask_scores {
 } sinew_mask_scores;
 
 /* pred: SINEW_U8 1 channel; a pixel is predicted occluded when (pred & bits) != 0, or
- * when pred != 0 if bits == 0 (e.g. bits = SINEW_MASK_FB | SINEW_MASK_OUTSIDE for
+ * when pred != 0 if bits == 0 (e.g. bits = SINEW_MASK_OCCLUDED | SINEW_MASK_OUTSIDE for
  * sinew's check masks). truth: SINEW_U8 1 channel, nonzero = occluded. valid: NULL or
  * SINEW_U8 1 channel, nonzero = count this pixel. Same sizes. *out is overwritten.
  * EINVAL / ESIZE / ENOMEM. Deterministic for any thread count. */

@@ -435,7 +435,7 @@ static void check_fill(float *dl, float *dr, uint8_t *mask, const float *dl_raw,
             else {
                 const float o = r[nearest_index(xr, w)];
                 if (!(fabsf(o - l[x]) <= (float)tol))
-                    bits = SINEW_MASK_FB;
+                    bits = SINEW_MASK_OCCLUDED;
             }
             m[x] = bits;
         }

@@ -71,7 +71,7 @@ typedef struct sinew_stereo_stats {
  *               lower of the nearest kept disparities to the left and right on the row).
  *   right:      SINEW_F32 1 channel, right view, sub-pixel, not filled (NaN where the
  *               check of the right view rejects).
- *   mask:       SINEW_U8 1 channel, left view, bits of flow/check.h: SINEW_MASK_FB
+ *   mask:       SINEW_U8 1 channel, left view, bits of flow/check.h: SINEW_MASK_OCCLUDED
  *               (left-right inconsistent), SINEW_MASK_OUTSIDE (x - d left of the right
  *               frame), SINEW_MASK_UNKNOWN (no disparity could be chosen). 0 = kept.
  *   confidence: SINEW_F32 1 channel in [0, 1]: 1 - S1 / S2 with S1 the best aggregated

@@ -29,9 +29,10 @@ static void usage(FILE *out)
             "(.flo, KITTI .png, .pfm, .npy). Frames enable the photometric, saturation and\n"
             "texture terms. DIR (created if missing) receives:\n"
             "  fb_error.npy    float32 HxW, |w(x) + w_b(x + w(x))| in px (NaN: not checkable)\n"
-            "  mask.png        8-bit, 0 = kept; bits: 1 fb inconsistent, 2 target outside,\n"
-            "                  4 motion boundary, 8 photometric, 16 ignored, 32 saturated,\n"
-            "                  64 unknown flow\n"
+            "  mask.png        8-bit, 0 = kept; reason bits: 1 occluded, 2 outside,\n"
+            "                  4 motion_boundary, 8 photometric, 16 ignored, 32 saturated,\n"
+            "                  64 unknown_flow, 128 fb_mismatch (occlusion estimate:\n"
+            "                  mask & 3)\n"
             "  confidence.npy  float32 HxW in [0, 1]; confidence.png the same as 16-bit\n"
             "  check.json      parameters and pixel counts per reason\n"
             "\n"
@@ -217,8 +218,12 @@ int cmd_check(int argc, char **argv)
         goto done;
     if (paths.ignore && read_image(ctx, &ign, paths.ignore))
         goto done;
-    sinew_check_input in = {&fwd, &bwd, paths.frame0 ? &f0 : NULL, paths.frame1 ? &f1 : NULL,
-                            paths.ignore ? &ign : NULL};
+    sinew_check_input in = {&fwd,
+                            &bwd,
+                            paths.frame0 ? &f0 : NULL,
+                            paths.frame1 ? &f1 : NULL,
+                            paths.ignore ? &ign : NULL,
+                            NULL};
     if (cli_check_compute(CMD, ctx, &r, &in, &p, &paths))
         goto done;
     if (!(root = cli_check_json(&r, &p, &paths))) {

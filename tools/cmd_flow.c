@@ -315,7 +315,7 @@ int cmd_flow(int argc, char **argv)
     if (!rc && !reported && check_dir) {
         sinew_check_params cp;
         sinew_check_params_default(&cp);
-        sinew_check_input in = {&fwd, &bwd, &a, &b, NULL};
+        sinew_check_input in = {&fwd, &bwd, &a, &b, NULL, NULL};
         reported = cli_check_compute("flow", ctx, &chk, &in, &cp, &chk_paths);
         if (!reported && !(chk_json = cli_check_json(&chk, &cp, &chk_paths)))
             reported = cli_error("flow", "out of memory");

@@ -84,7 +84,7 @@ conf = np.load(d + '/chk/confidence.npy')
 assert np.array_equal(M[:, c['weight']], conf[v.astype(int), u.astype(int)])
 assert np.allclose(M[:, c['nz0']], -1, atol=1e-5)
 assert meta['counts']['masked'] == 2 and meta['counts']['kept'] == len(M)
-assert meta['mask_bits']['fb_inconsistent'] == 2 and meta['mask_bits']['motion_boundary'] == 1
+assert meta['mask_bits']['occluded'] + meta['mask_bits']['fb_mismatch'] == 2 and meta['mask_bits']['motion_boundary'] == 1
 assert meta['depth']['scale'] == 1000 and meta['depth']['kind'] == 'z'
 assert meta['intrinsics']['fx'] == 60 and meta['inputs']['depth0'].endswith('d0.png')
 assert abs(meta['depth']['median_valid_m'][1] - 1.52) < 1e-6

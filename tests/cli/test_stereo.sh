@@ -82,7 +82,7 @@ for f in mask.png confidence.npy disparity.png reasons.png stereo.json; do
     [ -s "$T/chk/$f" ] || { ok=0; fail "check folder" "$f missing"; }
 done
 [ $ok = 1 ] && pass "check folder has mask, confidence, pictures, stereo.json"
-if "$PYTHON" -c "import json,sys; j=json.load(open(sys.argv[1])); assert j['pixels']==9600 and j['kept']+j['filled']==9600 and j['reasons']['outside']+j['reasons']['fb_inconsistent']>=4*60" "$T/chk/stereo.json"; then
+if "$PYTHON" -c "import json,sys; j=json.load(open(sys.argv[1])); assert j['pixels']==9600 and j['kept']+j['filled']==9600 and j['reasons']['outside']+j['reasons']['occluded']>=4*60" "$T/chk/stereo.json"; then
     pass "stereo.json counts"
 else fail "stereo.json counts" "$(cat "$T/chk/stereo.json")"; fi
 

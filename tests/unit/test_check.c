@@ -76,7 +76,7 @@ static int run(sinew_ctx *ctx, outs *r, const sinew_image *fwd, const sinew_imag
                const sinew_image *f0, const sinew_image *f1, const sinew_image *ign,
                const sinew_check_params *p)
 {
-    sinew_check_input in = {fwd, bwd, f0, f1, ign};
+    sinew_check_input in = {fwd, bwd, f0, f1, ign, NULL};
     return sinew_check_run(ctx, &r->o, &in, p);
 }
 
@@ -110,17 +110,21 @@ static void test_check_defaults_are_published_constants(void **state)
     (void)state;
     sinew_check_params p;
     sinew_check_params_default(&p);
-    /* Sundaram, Brox, Keutzer ECCV 2010 constants. */
+    /* Sundaram, Brox, Keutzer ECCV 2010 constants (the boundary floor is ours:
+     * fb_beta / 4, docs/methods.md). */
     assert_true(p.fb_alpha == 0.01 && p.fb_beta == 0.5);
-    assert_true(p.boundary_alpha == 0.01 && p.boundary_beta == 0.002);
+    assert_true(p.boundary_alpha == 0.01 && p.boundary_beta == p.fb_beta / 4);
+    assert_true(p.occ_range == 0.5 && p.occ_crowd == 1.5 && p.occ_depth_tolerance == 0.05);
     sinew_check_param list[SINEW_CHECK_NPARAMS];
     assert_int_equal(sinew_check_params_list(&p, list, SINEW_CHECK_NPARAMS), SINEW_CHECK_NPARAMS);
     assert_string_equal(list[1].name, "fb_beta");
     assert_true(list[1].value == 0.5);
     assert_int_equal(sinew_check_params_list(&p, NULL, 0), SINEW_CHECK_NPARAMS);
-    assert_string_equal(sinew_check_bit_name(0), "fb_inconsistent");
+    assert_string_equal(sinew_check_bit_name(0), "occluded");
+    assert_string_equal(sinew_check_bit_name(7), "fb_mismatch");
     assert_null(sinew_check_bit_name(SINEW_MASK_NBITS));
-    assert_int_equal(SINEW_MASK_FB, 1);
+    assert_int_equal(SINEW_MASK_OCCLUDED, 1);
+    assert_int_equal(SINEW_MASK_MISMATCH, 128);
     assert_int_equal(SINEW_MASK_OUTSIDE, 2);
     assert_int_equal(SINEW_MASK_BOUNDARY, 4);
     assert_int_equal(SINEW_MASK_PHOTO, 8);
@@ -181,7 +185,7 @@ static void test_check_fb_hand_computed(void **state)
     for (int x = 0; x < 7; x++) {
         assert_float_equal(*fl(&r.fb, x, 1), fabs(0.25 - 0.5 * x), 1e-6);
         int bad = x >= 2;
-        assert_int_equal(mk(&r.mask, x, 1) & SINEW_MASK_FB, bad ? SINEW_MASK_FB : 0);
+        assert_int_equal((mk(&r.mask, x, 1) & SINEW_MASK_FB_ANY) != 0, bad);
     }
     assert_int_equal(mk(&r.mask, 7, 1), SINEW_MASK_OUTSIDE);
     assert_conf_range(&r.conf);
@@ -197,22 +201,22 @@ static void test_check_fb_hand_computed(void **state)
     /* The constants are tunable: a looser beta makes x = 2 consistent. */
     p.fb_beta = 0.6;
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, &p), SINEW_OK);
-    assert_int_equal(mk(&r.mask, 2, 1) & SINEW_MASK_FB, 0);
-    assert_int_equal(mk(&r.mask, 3, 1) & SINEW_MASK_FB, SINEW_MASK_FB);
+    assert_int_equal(mk(&r.mask, 2, 1) & SINEW_MASK_FB_ANY, 0);
+    assert_true(mk(&r.mask, 3, 1) & SINEW_MASK_FB_ANY);
     outs_free(&r);
     free_imgs(&f, &b, NULL, NULL);
     sinew_ctx_free(ctx);
 }
 
 /* Step edge in u between columns 3 and 4. Central differences: |∂u/∂x| = step/2 at
- * x = 3 and x = 4, 0 elsewhere. Step 1: 0.25 > 0.002 (x = 3) and > 0.01 + 0.002 (x = 4)
- * -> boundary. Step 0.05: 0.000625 < 0.002 -> none. Step 0.1: 0.0025 > 0.002 (x = 3,
- * |w| = 0) and > 0.01 * 0.01 + 0.002 = 0.0021 (x = 4). */
+ * x = 3 and x = 4, 0 elsewhere; threshold 0.01 |w|² + 0.125. Step 1: 0.25 > 0.125
+ * (x = 3) and > 0.01 + 0.125 (x = 4) -> boundary. Step 0.5: 0.0625 < 0.125 -> none.
+ * Step 0.8: 0.16 > 0.125 (x = 3, |w| = 0) and > 0.01 * 0.64 + 0.125 = 0.1314 (x = 4). */
 static void test_check_motion_boundary_step(void **state)
 {
     (void)state;
     sinew_ctx *ctx = ctx_new();
-    const float steps[3] = {1.0f, 0.05f, 0.1f};
+    const float steps[3] = {1.0f, 0.5f, 0.8f};
     const int expect[3] = {1, 0, 1};
     for (int t = 0; t < 3; t++) {
         sinew_image f, b;
@@ -235,6 +239,85 @@ static void test_check_motion_boundary_step(void **state)
         outs_free(&r);
         free_imgs(&f, &b, NULL, NULL);
     }
+    sinew_ctx_free(ctx);
+}
+
+/* A block of columns 2..5 moves right by 2 over a static background (12 x 3): in
+ * frame 1 it covers columns 4..7, so background columns 6 and 7 of frame 0 are occluded
+ * and columns 2, 3 of frame 1 are disoccluded (backward flow 0 there). Forward flow at
+ * 6, 7 is the background's 0, the backward flow at their targets the block's -2: FB
+ * error 2 px, inconsistent. Range map (backward splat): frame-1 columns 4..7 land on
+ * 2..5, the rest on themselves, so columns 6 and 7 get 0 -> OCCLUDED. Forward splat
+ * density at their targets: 2 (the block's pixels 4, 5 land there too) -> crowded. */
+static void block_scene(sinew_ctx *ctx, sinew_image *f, sinew_image *b, sinew_image *z, float zfg,
+                        float zbg)
+{
+    flow_fill(ctx, f, 12, 3, 0.0f, 0.0f);
+    flow_fill(ctx, b, 12, 3, 0.0f, 0.0f);
+    assert_int_equal(sinew_image_alloc(ctx, z, 12, 3, 1, SINEW_F32), SINEW_OK);
+    for (int y = 0; y < 3; y++)
+        for (int x = 0; x < 12; x++) {
+            int fg = x >= 2 && x <= 5;
+            fl(f, x, y)[0] = fg ? 2.0f : 0.0f;
+            fl(b, x, y)[0] = x >= 4 && x <= 7 ? -2.0f : 0.0f;
+            *fl(z, x, y) = fg ? zfg : zbg;
+        }
+}
+
+static void test_check_occlusion_rule(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = ctx_new();
+    sinew_image f, b, z;
+    block_scene(ctx, &f, &b, &z, 1.0f, 2.0f);
+    outs r;
+    outs_alloc(ctx, &r, 12, 3);
+    sinew_check_params p;
+    sinew_check_params_default(&p);
+    for (int variant = 0; variant < 5; variant++) {
+        /* 0: range map; 1: crowding alone (occ_range 0); 2: z-buffer alone, block nearer;
+         * 3: z-buffer alone, block farther (a wrong depth order): visible -> MISMATCH;
+         * 4: neither cue (occ_range 0, occ_crowd huge) -> MISMATCH. */
+        p.occ_range = variant == 0 ? 0.5 : 0.0;
+        p.occ_crowd = variant == 4 ? 1e9 : 1.5;
+        if (variant == 3)
+            for (int y = 0; y < 3; y++)
+                for (int x = 0; x < 12; x++)
+                    *fl(&z, x, y) = x >= 2 && x <= 5 ? 3.0f : 2.0f;
+        sinew_check_input in = {&f, &b, NULL, NULL, NULL, variant >= 2 && variant <= 3 ? &z : NULL};
+        assert_int_equal(sinew_check_run(ctx, &r.o, &in, &p), SINEW_OK);
+        unsigned want = variant <= 2 ? SINEW_MASK_OCCLUDED : SINEW_MASK_MISMATCH;
+        for (int y = 0; y < 3; y++)
+            for (int x = 0; x < 12; x++) {
+                unsigned m = mk(&r.mask, x, y) & (SINEW_MASK_FB_ANY | SINEW_MASK_OUTSIDE);
+                assert_int_equal(m, x == 6 || x == 7 ? want : 0);
+            }
+        assert_int_equal(r.o.stats.reason[variant <= 2 ? 0 : 7], 6);
+    }
+    outs_free(&r);
+    free_imgs(&f, &b, &z, NULL);
+    sinew_ctx_free(ctx);
+}
+
+/* Uniform forward flow 1 px right, backward flow 0: every pixel is inconsistent (error
+ * 1 px > sqrt(0.51)), but frame 1 covers frame 0 once (range 1) and no target is hit
+ * twice (density 1): a flow error, not an occlusion. */
+static void test_check_mismatch_is_not_occlusion(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = ctx_new();
+    sinew_image f, b;
+    flow_fill(ctx, &f, 10, 4, 1.0f, 0.0f);
+    flow_fill(ctx, &b, 10, 4, 0.0f, 0.0f);
+    outs r;
+    outs_alloc(ctx, &r, 10, 4);
+    assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, NULL), SINEW_OK);
+    for (int y = 0; y < 4; y++)
+        for (int x = 0; x < 9; x++)
+            assert_int_equal(mk(&r.mask, x, y) & SINEW_MASK_FB_ANY, SINEW_MASK_MISMATCH);
+    assert_int_equal(r.o.stats.reason[0], 0);
+    outs_free(&r);
+    free_imgs(&f, &b, NULL, NULL);
     sinew_ctx_free(ctx);
 }
 
@@ -409,7 +492,7 @@ static void test_check_boundary_distance_exact(void **state)
     sinew_image f, b;
     flow_fill(ctx, &f, w, h, 0.0f, 0.0f);
     flow_fill(ctx, &b, w, h, 0.0f, 0.0f);
-    fl(&f, 10, 10)[0] = 0.2f;
+    fl(&f, 10, 10)[0] = 1.0f; /* steps of 1 px: (1/2)² > 0.125 at the 4 neighbours */
     outs r;
     outs_alloc(ctx, &r, w, h);
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, NULL), SINEW_OK);
@@ -581,7 +664,7 @@ static void test_check_alloc_failure_is_clean(void **state)
         tu_failalloc fa = {at, 0, 0};
         sinew_ctx *fc = tu_ctx_failing(&fa);
         assert_non_null(fc);
-        sinew_check_input in = {&f, &b, &f0, &f1, NULL};
+        sinew_check_input in = {&f, &b, &f0, &f1, NULL, NULL};
         sinew_check_output o;
         memset(&o, 0, sizeof o); /* all outputs NULL: the confidence is scratch too */
         int st = sinew_check_run(fc, &o, &in, NULL);
@@ -606,6 +689,8 @@ int main(void)
         cmocka_unit_test(test_check_fb_hand_computed),
         cmocka_unit_test(test_check_motion_boundary_step),
         cmocka_unit_test(test_check_outside_rule),
+        cmocka_unit_test(test_check_occlusion_rule),
+        cmocka_unit_test(test_check_mismatch_is_not_occlusion),
         cmocka_unit_test(test_check_photometric_brightness_gain),
         cmocka_unit_test(test_check_saturated_pixels),
         cmocka_unit_test(test_check_ignore_polarity),

@@ -4,6 +4,7 @@
  * and every picture on small known inputs. */
 #include "tests/support/testutil.h"
 
+#include <ctype.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -383,21 +384,25 @@ static void test_draw_reasons_bit_colours(void **state)
     assert_int_equal(sinew_image_alloc(ctx, &frame, 10, 2, 3, SINEW_U8), SINEW_OK);
     memset(frame.data, 100, frame.stride * 2);
     uint8_t *m = sinew_image_row_u8(&mask, 0);
-    for (int b = 0; b < 7; b++)
+    for (int b = 0; b < 8; b++)
         m[b] = (uint8_t)(1u << b);
-    m[7] = 0x0C; /* bits 2 and 3: the lowest (2) wins */
-    m[8] = 0x80; /* bit 7: reserved, not a reason */
+    m[8] = 0x0C; /* bits 2 and 3: the lowest (2) wins */
     assert_int_equal(sinew_draw_reasons(ctx, &out, &frame, &mask, 0), SINEW_OK);
     /* Gray 100 -> g = (77+150+29)*100+128 >> 8 = 100; dimmed 20 + (14000+127)/255 = 75. */
     const int dim = 75;
     expect_rgb(px(&out, 9, 1), dim, dim, dim);
-    expect_rgb(px(&out, 8, 0), dim, dim, dim);
-    uint8_t seen[7][3];
-    for (int b = 0; b < 7; b++) {
+    expect_rgb(px(&out, 9, 0), dim, dim, dim);
+    uint8_t seen[8][3];
+    for (int b = 0; b < 8; b++) {
         uint8_t c[3];
         const char *name = NULL;
         assert_int_equal(sinew_reason_style(b, c, &name), SINEW_OK);
         assert_non_null(name);
+        /* one vocabulary: the legend is the check's bit name, upper case, '_' -> ' ' */
+        const char *bn = sinew_check_bit_name(b);
+        assert_int_equal(strlen(name), strlen(bn));
+        for (size_t i = 0; bn[i]; i++)
+            assert_int_equal(name[i], bn[i] == '_' ? ' ' : toupper((unsigned char)bn[i]));
         int e[3];
         for (int k = 0; k < 3; k++)
             e[k] = (7 * c[k] + 3 * dim + 5) / 10;
@@ -406,8 +411,8 @@ static void test_draw_reasons_bit_colours(void **state)
         for (int o = 0; o < b; o++) /* one distinct colour per bit */
             assert_memory_not_equal(seen[o], seen[b], 3);
     }
-    assert_memory_equal(px(&out, 7, 0), seen[2], 3);
-    assert_int_equal(sinew_reason_style(7, NULL, NULL), SINEW_EINVAL);
+    assert_memory_equal(px(&out, 8, 0), seen[2], 3);
+    assert_int_equal(sinew_reason_style(8, NULL, NULL), SINEW_EINVAL);
     sinew_image_free(&out);
     /* Legend adds a strip; without a frame the background is black. */
     assert_int_equal(sinew_draw_reasons(ctx, &out, NULL, &mask, 1), SINEW_OK);

@@ -298,7 +298,8 @@ static int stage_op(sinew_ctx *ctx, void *ud)
             sinew_check_params p;
             sinew_check_params_default(&p);
             p.ignore_polarity = SINEW_IGNORE_NONZERO;
-            sinew_check_input ci = {&s->in.flow, &s->bwd, &s->in.frame, &s->in.frame, &s->ignore};
+            sinew_check_input ci = {&s->in.flow,  &s->bwd,    &s->in.frame,
+                                    &s->in.frame, &s->ignore, NULL};
             sinew_check_output co = {&fb, &mask, &conf, {0}};
             rc = sinew_check_run(ctx, &co, &ci, &p);
         }
@@ -308,7 +309,7 @@ static int stage_op(sinew_ctx *ctx, void *ud)
         break;
     }
     case 1: { /* check with scratch-only outputs */
-        sinew_check_input ci = {&s->in.flow, &s->bwd, NULL, NULL, NULL};
+        sinew_check_input ci = {&s->in.flow, &s->bwd, NULL, NULL, NULL, NULL};
         sinew_check_output co = {NULL, NULL, NULL, {0}};
         rc = sinew_check_run(ctx, &co, &ci, NULL);
         break;
@@ -420,7 +421,7 @@ static void test_faults_every_stage(void **state)
             ((float *)sinew_image_row_f32(&s.in.flow, y))[2 * x] *= 0.1f;
             ((float *)sinew_image_row_f32(&s.in.flow, y))[2 * x + 1] *= 0.1f;
             sinew_image_row_u8(&s.ignore, y)[x] = (uint8_t)(x == 3);
-            sinew_image_row_u8(&s.mask, y)[x] = (uint8_t)(y == 2 ? SINEW_MASK_FB : 0);
+            sinew_image_row_u8(&s.mask, y)[x] = (uint8_t)(y == 2 ? SINEW_MASK_OCCLUDED : 0);
             sinew_image_row_f32(&s.conf, y)[x] = (float)((x + y) % 7) / 7.0f + 0.01f;
             sinew_image_row_u16(&s.labels, y)[x] = (uint16_t)(x / 4);
         }

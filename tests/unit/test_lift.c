@@ -916,7 +916,7 @@ static void test_lift_7scenes_estimated_flow_agrees_with_ground_truth(void **sta
         assert_int_equal(sinew_image_alloc(ctx, &mask, 640, 480, 1, SINEW_U8), SINEW_OK);
         assert_int_equal(sinew_image_alloc(ctx, &conf, 640, 480, 1, SINEW_F32), SINEW_OK);
         assert_int_equal(sinew_estimator_run(est, &fwd, &bwd, &f[0], &f[1]), SINEW_OK);
-        sinew_check_input ci = {&fwd, &bwd, &f[0], &f[1], NULL};
+        sinew_check_input ci = {&fwd, &bwd, &f[0], &f[1], NULL, NULL};
         sinew_check_output co;
         memset(&co, 0, sizeof co);
         co.mask = &mask;

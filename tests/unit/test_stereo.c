@@ -106,7 +106,8 @@ static void test_stereo_plane_known_disparity(void **state)
     assert_true(exact >= inner * 99 / 100);
     for (int y = 0; y < h; y++)
         for (int x = 0; x < 5; x++) {
-            assert_true(sinew_image_row_u8(&s.m, y)[x] & (SINEW_MASK_OUTSIDE | SINEW_MASK_FB));
+            assert_true(sinew_image_row_u8(&s.m, y)[x] &
+                        (SINEW_MASK_OUTSIDE | SINEW_MASK_OCCLUDED));
             assert_true(sinew_image_row_f32(&s.c, y)[x] == 0.0f);
             assert_true(isfinite(sinew_image_row_f32(&s.d, y)[x])); /* filled */
         }
@@ -218,7 +219,7 @@ static void test_stereo_depth_worked_example(void **state)
     assert_int_equal(sinew_image_alloc(ctx, &m, 6, 1, 1, SINEW_U8), SINEW_OK);
     const float v[6] = {40, 90, 0, -3, NAN, 40};
     memcpy(sinew_image_row_f32(&d, 0), v, sizeof v);
-    sinew_image_row_u8(&m, 0)[5] = SINEW_MASK_FB;
+    sinew_image_row_u8(&m, 0)[5] = SINEW_MASK_OCCLUDED;
     sinew_stereo_calib c = {.fx = 1000, .fy = 1000, .doffs = 10, .baseline = 0.1};
     int64_t valid = -1;
     assert_int_equal(sinew_stereo_depth(ctx, &z, &d, &m, &c, &valid), SINEW_OK);

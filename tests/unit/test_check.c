@@ -480,8 +480,8 @@ static void test_check_ignore_polarity(void **state)
     sinew_ctx_free(ctx);
 }
 
-/* One bump u = 0.2 at (10, 10) of a zero field: the boundary pixels are its four
- * 4-neighbours (central difference 0.1, 0.01 > 0.002), not the bump itself. The
+/* One bump u = 1 at (10, 10) of a zero field: the boundary pixels are its four
+ * 4-neighbours (central difference 0.5, 0.25 > 0.125), not the bump itself. The
  * boundary term of the confidence must use the exact Euclidean distance to them,
  * checked against brute force. */
 static void test_check_boundary_distance_exact(void **state)
@@ -492,7 +492,7 @@ static void test_check_boundary_distance_exact(void **state)
     sinew_image f, b;
     flow_fill(ctx, &f, w, h, 0.0f, 0.0f);
     flow_fill(ctx, &b, w, h, 0.0f, 0.0f);
-    fl(&f, 10, 10)[0] = 1.0f; /* steps of 1 px: (1/2)² > 0.125 at the 4 neighbours */
+    fl(&f, 10, 10)[0] = 1.0f;
     outs r;
     outs_alloc(ctx, &r, w, h);
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, NULL), SINEW_OK);

@@ -8,6 +8,9 @@
  * Progress goes to stdout (a live line on a terminal, plain or JSON lines otherwise);
  * stderr carries only the final one-line error, if any. */
 #define _GNU_SOURCE
+#include <dirent.h>
+#include <errno.h>
+#include <ftw.h>
 #include <getopt.h>
 #include <math.h>
 #include <signal.h>
@@ -70,7 +73,8 @@ static void usage(FILE *out)
         "  --shard K/N            process only pairs whose number %% N == K\n"
         "  --merge                compute nothing; rebuild manifest.json from all shards\n"
 
-        "  --dry-run              list the pairs, estimate disk use and time, write nothing\n"
+        "  --dry-run              list the pairs, check every input file, estimate disk\n"
+        "                         and time from one probe pair run in $TMPDIR (removed)\n"
         "  --on-error stop|skip   on a failing pair: stop (default) or record and go on\n"
         "  --progress auto|plain|json   live line on a terminal (auto), plain lines, or\n"
         "                         JSON lines\n"
@@ -552,58 +556,152 @@ static void plan_free(sinew_ctx *ctx, run_plan *p)
     sinew_sequence_free(p->seq);
 }
 
-/* Rough disk and time estimate for --dry-run (documented in docs/formats.md). */
-static void dry_run(sinew_ctx *ctx, const sinew_run_spec *spec, const sinew_run_pipeline_params *pp)
+/* ---- dry run ---- */
+
+/* 0 when PATH is a readable regular file; otherwise prints it with the reason. */
+static int check_input(const char *role, const char *path)
 {
-    size_t owned = 0;
+    struct stat st;
+    FILE *f = NULL;
+    const char *why = NULL;
+    if (stat(path, &st) != 0)
+        why = errno == ENOENT ? "missing" : strerror(errno);
+    else if (!S_ISREG(st.st_mode))
+        why = "not a regular file";
+    else if (!(f = fopen(path, "rb")))
+        why = strerror(errno);
+    if (f)
+        fclose(f);
+    if (!why)
+        return 0;
+    printf("input %s: %s: %s\n", role, path, why);
+    return 1;
+}
+
+/* Every input file of the owned pairs (frames once each, imported flows per pair):
+ * the number of missing or unreadable ones, each listed by name. */
+static size_t check_inputs(sinew_ctx *ctx, const sinew_run_spec *spec)
+{
+    unsigned char *seen = calloc(spec->nframes ? spec->nframes : 1, 1);
+    size_t bad = 0;
+    if (spec->intrinsics)
+        bad += (size_t)check_input("intrinsics", spec->intrinsics);
+    for (size_t q = 0; q < spec->npairs; q++) {
+        if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
+            continue;
+        size_t ij[2] = {spec->pairs[q].i, spec->pairs[q].j};
+        for (int e = 0; e < 2; e++) {
+            const sinew_run_frame *fr = &spec->frames[ij[e]];
+            if (seen && seen[ij[e]])
+                continue;
+            if (seen)
+                seen[ij[e]] = 1;
+            bad += (size_t)check_input("color", fr->color);
+            if (fr->depth)
+                bad += (size_t)check_input("depth", fr->depth);
+            if (fr->labels)
+                bad += (size_t)check_input("labels", fr->labels);
+        }
+        char name[SINEW_PAIR_NAME_MAX], fwd[4200], bwd[4200];
+        if (spec->flow_from &&
+            sinew_run_find_import(ctx, spec->flow_from, sinew_pair_name(name, spec->pairs[q]), fwd,
+                                  bwd, sizeof fwd) != SINEW_OK) {
+            printf("input flow: %s\n", sinew_ctx_message(ctx));
+            bad++;
+        }
+    }
+    free(seen);
+    return bad;
+}
+
+static int remove_entry(const char *path, const struct stat *st, int flag, struct FTW *ftw)
+{
+    (void)st;
+    (void)flag;
+    (void)ftw;
+    return remove(path);
+}
+
+/* The probe: the first owned pair run for real into a fresh temporary folder (removed
+ * afterwards), timed as a whole and its output bytes counted. */
+static int probe_pair(sinew_ctx *ctx, const sinew_run_spec *spec,
+                      const sinew_run_pipeline_params *pp, size_t q, double *secs, double *bytes)
+{
+    const char *tmp = getenv("TMPDIR");
+    char dir[4200];
+    snprintf(dir, sizeof dir, "%s/sinew-probe.XXXXXX", tmp && *tmp ? tmp : "/tmp");
+    if (!mkdtemp(dir))
+        return cli_error(CMD, "%s: cannot create the probe folder: %s", dir, strerror(errno));
+    sinew_run_spec one = *spec;
+    one.pairs = &spec->pairs[q];
+    one.npairs = 1;
+    one.shard_k = 0;
+    one.shard_n = 1;
+    one.resume = 0;
+    one.on_error = SINEW_RUN_STOP;
+    one.outdir = dir;
+    sinew_run *run = NULL;
+    sinew_run_pipeline *pl = NULL;
+    sinew_run_result res;
+    double t0 = now_s();
+    int rc = sinew_run_new(ctx, &run, &one);
+    if (!rc)
+        rc = sinew_run_pipeline_new(ctx, &pl, &one, pp);
+    if (!rc)
+        rc = sinew_run_execute(run, sinew_run_pipeline_pair, pl, NULL, NULL, &res);
+    *secs = now_s() - t0;
+    sinew_run_pipeline_free(pl);
+    sinew_run_free(run);
+    *bytes = 0;
+    char name[SINEW_PAIR_NAME_MAX], pdir[4300];
+    snprintf(pdir, sizeof pdir, "%s/" SINEW_RUN_PAIRS_DIR "/%s", dir,
+             sinew_pair_name(name, spec->pairs[q]));
+    DIR *d = opendir(pdir);
+    for (struct dirent *e; d && (e = readdir(d));) {
+        char f[4600];
+        struct stat st;
+        snprintf(f, sizeof f, "%s/%s", pdir, e->d_name);
+        if (lstat(f, &st) == 0 && S_ISREG(st.st_mode))
+            *bytes += (double)st.st_size;
+    }
+    if (d)
+        closedir(d);
+    nftw(dir, remove_entry, 8, FTW_DEPTH | FTW_PHYS);
+    return rc ? cli_status(CMD, ctx, rc) : CLI_OK;
+}
+
+/* --dry-run: the owned pairs, every input file checked (missing or unreadable ones
+ * listed by name, then exit 1), and disk and time from a probe: the first owned pair
+ * run for real in a temporary folder. The run folder itself is not touched. */
+static int dry_run(sinew_ctx *ctx, const sinew_run_spec *spec, const sinew_run_pipeline_params *pp)
+{
+    size_t owned = 0, first = 0;
     for (size_t q = 0; q < spec->npairs; q++) {
         if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
             continue;
         char name[SINEW_PAIR_NAME_MAX];
         printf("%s\n", sinew_pair_name(name, spec->pairs[q]));
-        owned++;
+        if (!owned++)
+            first = q;
     }
-    int w = 0, h = 0;
-    sinew_image img;
-    if (spec->nframes && sinew_image_read(ctx, &img, spec->frames[0].color) == SINEW_OK) {
-        w = img.width;
-        h = img.height;
-        sinew_image_free(&img);
+    size_t bad = check_inputs(ctx, spec);
+    if (bad)
+        return cli_error(CMD, "%zu input file%s missing or unreadable (listed above)", bad,
+                         bad == 1 ? "" : "s");
+    if (!owned) {
+        printf("0 pairs\n");
+        return CLI_OK;
     }
-    if (!w) {
-        printf("%zu pairs; frame size unknown (%s), no estimate\n", owned, sinew_ctx_message(ctx));
-        return;
-    }
-    double px = (double)w * h;
-    double flow = 8 * px + 128; /* flo / npy float32 */
-    switch (pp->flow_format) {
-    case SINEW_FLOW_NPY16:
-        flow = 4 * px + 128;
-        break;
-    case SINEW_FLOW_PFM:
-        flow = 12 * px + 32;
-        break;
-    case SINEW_FLOW_KITTI:
-        flow = 6 * px;
-        break; /* 16-bit RGB before compression: bound */
-    default:
-        break;
-    }
-    double per_pair = 2 * flow + px /* mask bound */ + 4 * px + 128 /* confidence */ + 4096;
-    /* Seconds per megapixel for one pair (both directions, check, matches), measured
-     * with sinew 0.1.0 on the shared 2-core build machine (160x120 and 640x480 demo
-     * frames): fast 22, balanced 59, accurate 198; imported flows 4.5. Rough: machines
-     * and load differ. */
-    double spm = !strcmp(pp->preset, "fast")       ? 22.0
-                 : !strcmp(pp->preset, "accurate") ? 198.0
-                                                   : 59.0;
-    if (spec->flow_from)
-        spm = 4.5; /* import, check and matches only: measured likewise */
-    double secs = spm * px / 1e6 * (double)owned;
+    double secs = 0, bytes = 0;
+    int r = probe_pair(ctx, spec, pp, first, &secs, &bytes);
+    if (r != CLI_OK)
+        return r;
     char eta[32];
-    fmt_eta(eta, sizeof eta, secs);
-    printf("%zu pairs of %dx%d; disk about %.1f MB; time roughly %s on 2 cores\n", owned, w, h,
-           per_pair * (double)owned / 1e6, eta);
+    fmt_eta(eta, sizeof eta, secs * (double)owned);
+    printf("%zu pairs; disk about %.1f MB; time about %s (probe: pair %zu took %.2f s, "
+           "%.2f MB)\n",
+           owned, bytes * (double)owned / 1e6, eta, first, secs, bytes / 1e6);
+    return CLI_OK;
 }
 
 /* ---- execute and print ---- */
@@ -744,7 +842,7 @@ int cmd_run(int argc, char **argv)
     int rc;
     ret = plan(ctx, &a, &p);
     if (ret == CLI_OK && a.dry)
-        dry_run(ctx, &p.spec, &a.pp);
+        ret = dry_run(ctx, &p.spec, &a.pp);
     else if (ret == CLI_OK && (rc = sinew_run_new(ctx, &run, &p.spec)))
         ret = cli_status(CMD, ctx, rc);
     else if (ret == CLI_OK && a.merge)

@@ -270,6 +270,22 @@ if "$B" run "$T/seq" -o "$T/dry" $OPT --dry-run --shard 1/2 >"$T/out" 2>&1 && [ 
 else
     fail "dry run lists the shard's pairs and an estimate, writes nothing" "$(cat "$T/out")"
 fi
+# the estimate comes from a probe pair run in a temporary folder that is removed again;
+# disk is the probe's bytes times the pairs (issue 17: estimates were 20-70x off)
+mkdir -p "$T/probe_tmp"
+if TMPDIR="$T/probe_tmp" "$B" run "$T/seq" -o "$T/dry" $OPT --dry-run >"$T/out" 2>&1 \
+    && [ -z "$(ls -A "$T/probe_tmp")" ] && [ ! -e "$T/dry" ]; then
+    pass "dry run probe leaves nothing behind"
+else
+    fail "dry run probe leaves nothing behind" "$(ls -A "$T/probe_tmp") $(tail -1 "$T/out")"
+fi
+est=$(sed -n 's/.*disk about \([0-9.]*\) MB.*/\1/p' "$T/out")
+real=$(cat "$T"/whole/pairs/*/* | wc -c)
+if awk -v e="$est" -v r="$real" 'BEGIN { d = e * 1e6 / r; exit !(d > 0.9 && d < 1.1) }'; then
+    pass "dry run disk estimate within 10% of the real run"
+else
+    fail "dry run disk estimate within 10% of the real run" "estimated $est MB, real $real bytes"
+fi
 
 # ---- imported .flo flows: check and matches only, same results as from estimated flows
 if "$B" run "$T/seq" -o "$T/imp" $OPT --flow-from "$T/whole/pairs" >"$T/out" 2>"$T/err"; then
@@ -312,6 +328,16 @@ if "$B" synth -o "$T/demo" --frames 6 --size 160x120 >/dev/null 2>"$T/err"; then
     # (report.html names the run folder, so it is left out here)
     if diff -r -x report.html "$T/demorun" "$T/demorun2" >/dev/null; then pass "folder with sequence.json = the file"
     else fail "folder with sequence.json = the file" "$(diff -rq "$T/demorun" "$T/demorun2" | head -3)"; fi
+
+    # dry run: every input checked, missing ones listed by name, exit 1 (issue 17: a
+    # missing frame passed the dry run and failed the real run later)
+    mv "$T/demo/depth/000003.png" "$T/demo/depth/000003.keep"
+    expect_error "dry run names a missing frame and fails" - "1 input file missing" \
+        "$B" run "$T/demo" -o "$T/dry" $OPT --dry-run
+    if grep -q "input depth: .*depth/000003.png: missing" "$T/out" && [ ! -e "$T/dry" ]; then
+        pass "dry run lists the missing frame by name"
+    else fail "dry run lists the missing frame by name" "$(cat "$T/out")"; fi
+    mv "$T/demo/depth/000003.keep" "$T/demo/depth/000003.png"
 
     # schema: run settings, numbered frame pattern, errors naming the key
     cd "$T/demo" || exit 1

@@ -57,6 +57,9 @@ int sinew_synth_new(sinew_ctx *ctx, sinew_synth **out, const sinew_synth_params 
         return sinew__fail(ctx, SINEW_EINVAL, "frames must be at least 2 (got %d)", p->frames);
     if (p->frames > 1000000)
         return sinew__fail(ctx, SINEW_EINVAL, "frames must be at most 1000000");
+    if (!(p->swing >= 0 && p->swing <= SINEW_SYNTH_MAX_SWING))
+        return sinew__fail(ctx, SINEW_EINVAL, "swing %g px/frame outside [0, %g]", p->swing,
+                           SINEW_SYNTH_MAX_SWING);
     if (p->depth_noise != 0 && p->depth_noise != 1)
         return sinew__fail(ctx, SINEW_EINVAL, "depth_noise must be 0 or 1");
     int st = sinew__check_dims(ctx, "image size", p->width, p->height);
@@ -83,6 +86,7 @@ int sinew_synth_new(sinew_ctx *ctx, sinew_synth **out, const sinew_synth_params 
         return SINEW_ENOMEM;
     }
     sinew__synth_scene_init(&s->scene, p->seed, p->width, p->height);
+    sinew__synth_swing_init(&s->scene, p->swing, p->frames);
     *out = s;
     return SINEW_OK;
 }

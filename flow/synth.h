@@ -44,7 +44,16 @@ typedef struct sinew_synth_params {
     uint64_t seed;   /* textures, colours and small variations of the motion (default 1) */
     int depth_noise; /* 0: written depth is the exact depth rounded to millimetres;
                         1: adds sensor-like noise and holes at depth edges (default 0) */
+    double swing;    /* 0 (default): the probe presses and drags the pad. > 0: fast-motion
+                        sweep instead: the pad stays at rest and the probe, lifted 20 mm
+                        above it, is swung across the view at constant speed, crossing the
+                        pad centre between the middle frames; its own motion there is
+                        `swing` px/frame in the image (the camera's slow drift adds a few
+                        px). At most SINEW_SYNTH_MAX_SWING. */
 } sinew_synth_params;
+
+/* Largest swing speed, px/frame. */
+#define SINEW_SYNTH_MAX_SWING 1000.0
 
 /* Fill *p with the defaults above. */
 void sinew_synth_params_default(sinew_synth_params *p);

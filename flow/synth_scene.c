@@ -169,6 +169,24 @@ static double phase(const sinew__synth_scene *sc, double frame)
     return m <= 1.0 ? m : 2.0 - m;
 }
 
+/* The probe's ordinary motion at phase ph: presses in over the first third, drags the
+ * pad along a bent path. */
+static void probe_state(const sinew__synth_scene *sc, double ph, sinew__synth_state *st)
+{
+    st->dent_depth =
+        sc->dent_depth0 + (sc->dent_depth1 - sc->dent_depth0) * smoothstep(0, 0.35, ph);
+    double a = smoothstep(0.1, 1.0, ph);
+    double dl = sqrt(sc->drag_end[0] * sc->drag_end[0] + sc->drag_end[1] * sc->drag_end[1]);
+    double bend = sc->drag_bend * 4 * a * (1 - a) / (dl > 0 ? dl : 1);
+    st->drag[0] = sc->drag_end[0] * a - sc->drag_end[1] * bend;
+    st->drag[1] = sc->drag_end[1] * a + sc->drag_end[0] * bend;
+    st->dent_c[0] = sc->drag_anchor[0] + st->drag[0];
+    st->dent_c[1] = sc->drag_anchor[1] + st->drag[1];
+    st->tip[0] = st->dent_c[0];
+    st->tip[1] = st->dent_c[1];
+    st->tip[2] = sc->pad_h - st->dent_depth + sc->probe_r;
+}
+
 void sinew__synth_state_at(const sinew__synth_scene *sc, double frame, sinew__synth_state *st)
 {
     memset(st, 0, sizeof *st);
@@ -195,19 +213,13 @@ void sinew__synth_state_at(const sinew__synth_scene *sc, double frame, sinew__sy
         st->R[6 + i] = f[i];
     }
 
-    /* probe: presses in over the first third, drags along a bent path */
-    st->dent_depth =
-        sc->dent_depth0 + (sc->dent_depth1 - sc->dent_depth0) * smoothstep(0, 0.35, ph);
-    double a = smoothstep(0.1, 1.0, ph);
-    double dl = sqrt(sc->drag_end[0] * sc->drag_end[0] + sc->drag_end[1] * sc->drag_end[1]);
-    double bend = sc->drag_bend * 4 * a * (1 - a) / (dl > 0 ? dl : 1);
-    st->drag[0] = sc->drag_end[0] * a - sc->drag_end[1] * bend;
-    st->drag[1] = sc->drag_end[1] * a + sc->drag_end[0] * bend;
-    st->dent_c[0] = sc->drag_anchor[0] + st->drag[0];
-    st->dent_c[1] = sc->drag_anchor[1] + st->drag[1];
-    st->tip[0] = st->dent_c[0];
-    st->tip[1] = st->dent_c[1];
-    st->tip[2] = sc->pad_h - st->dent_depth + sc->probe_r;
+    if (sc->swing_v > 0) {
+        /* fast-motion sweep: pad at rest, probe moving at constant speed above it */
+        for (int i = 0; i < 3; i++)
+            st->tip[i] = sc->swing_p0[i] + sc->swing_dir[i] * sc->swing_v * (frame - sc->swing_c);
+    } else {
+        probe_state(sc, ph, st);
+    }
 
     /* block */
     st->block_c[0] = sc->block_x0 + (sc->block_x1 - sc->block_x0) * ph;
@@ -580,4 +592,25 @@ void sinew__synth_position(const sinew__synth_scene *sc, const sinew__synth_stat
             Y[i] = m[i];
         return;
     }
+}
+
+void sinew__synth_swing_init(sinew__synth_scene *sc, double px, int frames)
+{
+    sc->swing_v = 0;
+    if (!(px > 0))
+        return;
+    /* crossing point: 20 mm above the pad centre, between the middle frames */
+    sc->swing_c = 0.5 * (frames - 1);
+    sc->swing_p0[0] = 0.0;
+    sc->swing_p0[1] = 0.0;
+    sc->swing_p0[2] = sc->pad_h + sc->probe_r + 0.02;
+    sinew__synth_state st;
+    sinew__synth_state_at(sc, sc->swing_c, &st);
+    /* along the camera's x axis there (horizontal: the camera has no roll), so the tip's
+     * own image motion at the crossing is px / frame: v = px * z / fx */
+    for (int i = 0; i < 3; i++)
+        sc->swing_dir[i] = st.R[i];
+    double Xc[3];
+    sinew__synth_to_camera(&st, sc->swing_p0, Xc);
+    sc->swing_v = px * Xc[2] / sc->fx;
 }

@@ -9,6 +9,11 @@
  *   bench_flow --rss-probe PRESET DATA_DIR W H [PAIR]   print the peak-RSS growth in bytes
  *                                                       (PAIR: index in pair_names, default
  *                                                       5 = Urban2, gray; 8 = chairs, colour)
+ *   bench_flow --swing PRESET                           print the displacement sweep only
+ *
+ * Displacement sweep: the demo scene's probe swung across the view at 640x480
+ * (sinew_synth_params.swing, exact ground truth), mean EPE over the probe's pixels of
+ * frame 0 (label 4), one frame pair per speed in swing_px.
  *
  * Memory is reported as bytes per pixel plus a fixed overhead: the line through the
  * growth of one forward estimate at RSS_SIZES (B1, B2; one process each, as ru_maxrss
@@ -35,6 +40,47 @@ static const int sizes[4][2] = {{320, 240}, {640, 480}, {1280, 1024}, {1920, 108
 static const double rss_px[2] = {1920.0 * 1080.0, 3840.0 * 2160.0}; /* tools/bench */
 
 #define die(ctx, what) bench_die("bench_flow", ctx, what)
+
+#define NSWING 6
+static const double swing_px[NSWING] = {8, 16, 32, 64, 128, 192};
+
+/* Mean EPE of `preset` over the probe's pixels of the demo scene's swing pair at
+ * `speed` px/frame, 640x480. */
+static double swing_epe(sinew_ctx *ctx, sinew_estimator *e, double speed)
+{
+    sinew_synth_params sp;
+    sinew_synth_params_default(&sp);
+    sp.frames = 2;
+    sp.swing = speed;
+    sinew_synth *s;
+    sinew_image a, b, gt, lab, f;
+    int W = sp.width, H = sp.height;
+    if (sinew_synth_new(ctx, &s, &sp) || sinew_image_alloc(ctx, &a, W, H, 3, SINEW_U8) ||
+        sinew_image_alloc(ctx, &b, W, H, 3, SINEW_U8) ||
+        sinew_image_alloc(ctx, &lab, W, H, 1, SINEW_U8) ||
+        sinew_image_alloc(ctx, &gt, W, H, 2, SINEW_F32) ||
+        sinew_image_alloc(ctx, &f, W, H, 2, SINEW_F32) ||
+        sinew_synth_render(s, 0, &a, NULL, &lab) || sinew_synth_render(s, 1, &b, NULL, NULL) ||
+        sinew_synth_truth(s, 0, 1, &gt, NULL, NULL) || sinew_estimator_run(e, &f, NULL, &a, &b))
+        die(ctx, "swing");
+    double sum = 0;
+    long cnt = 0;
+    for (int y = 0; y < H; y++) {
+        const float *g = sinew_image_row_f32(&gt, y), *q = sinew_image_row_f32(&f, y);
+        const uint8_t *l = sinew_image_row_u8(&lab, y);
+        for (int x = 0; x < W; x++) {
+            if (l[x] != 4 || !isfinite(g[2 * x]))
+                continue;
+            sum += hypot(q[2 * x] - g[2 * x], q[2 * x + 1] - g[2 * x + 1]);
+            cnt++;
+        }
+    }
+    sinew_image *imgs[] = {&a, &b, &gt, &lab, &f};
+    for (int i = 0; i < 5; i++)
+        sinew_image_free(imgs[i]);
+    sinew_synth_free(s);
+    return cnt ? sum / (double)cnt : NAN;
+}
 
 /* Bilinear resize of an 8/16-bit frame (for the size sweep). */
 static void resize(sinew_ctx *ctx, sinew_image *dst, const sinew_image *src, int w, int h)
@@ -155,6 +201,16 @@ int main(int argc, char **argv)
     if ((argc == 6 || argc == 7) && !strcmp(argv[1], "--rss-probe"))
         return rss_probe(argv[2], argv[3], atoi(argv[4]), atoi(argv[5]),
                          argc == 7 ? atoi(argv[6]) : 5);
+    if (argc == 3 && !strcmp(argv[1], "--swing")) {
+        sinew_ctx *ctx = sinew_ctx_new();
+        sinew_estimator *e = make_est(ctx, argv[2]);
+        for (int z = 0; z < NSWING; z++)
+            printf("swing %3.0f px/frame: probe EPE %.3f\n", swing_px[z],
+                   swing_epe(ctx, e, swing_px[z]));
+        sinew_estimator_free(e);
+        sinew_ctx_free(ctx);
+        return 0;
+    }
     if (argc < 2) {
         fprintf(stderr, "usage: bench_flow DATA_DIR [--runs N] [--rss LIST]\n");
         return 2;
@@ -175,7 +231,7 @@ int main(int argc, char **argv)
         load_pair(ctx, &pairs[i], data, i);
 
     double epe[NPRESET][NPAIR], fl[NPRESET][NPAIR], ms[NPRESET][NPAIR];
-    double mspx[NPRESET][4], scale[NPRESET];
+    double mspx[NPRESET][4], scale[NPRESET], swing[NPRESET][NSWING];
     for (int k = 0; k < NPRESET; k++) {
         sinew_estimator *e = make_est(ctx, presets[k]);
         for (int i = 0; i < NPAIR; i++) {
@@ -194,6 +250,8 @@ int main(int argc, char **argv)
             ms[k][i] = 1e3 * t;
             sinew_image_free(&f);
         }
+        for (int z = 0; z < NSWING; z++)
+            swing[k][z] = swing_epe(ctx, e, swing_px[z]);
         /* size sweep on the Urban2 pair, resized */
         for (int z = 0; z < 4; z++) {
             int w = sizes[z][0], h = sizes[z][1];
@@ -261,6 +319,13 @@ int main(int argc, char **argv)
     printf("\n| %-22s |", "Chairs mean Fl-all");
     for (int k = 0; k < NPRESET; k++)
         printf(" %-26.2f%% |", 0.5 * (fl[k][8] + fl[k][9]));
+    for (int z = 0; z < NSWING; z++) {
+        char lab[64];
+        snprintf(lab, sizeof lab, "swing %3.0f px/f, probe", swing_px[z]);
+        printf("\n| %-22s |", lab);
+        for (int k = 0; k < NPRESET; k++)
+            printf(" EPE %-23.3f |", swing[k][z]);
+    }
     for (int z = 0; z < 4; z++) {
         char lab[64];
         snprintf(lab, sizeof lab, "ms/Mpx %dx%d", sizes[z][0], sizes[z][1]);

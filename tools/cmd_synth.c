@@ -16,7 +16,7 @@ static void usage(FILE *out)
 {
     fprintf(out,
             "usage: sinew synth -o DIR [--frames N] [--size WxH] [--seed S] [--noise]\n"
-            "                   [--stereo BASELINE] [--threads N]\n"
+            "                   [--stereo BASELINE] [--swing PX] [--threads N]\n"
             "\n"
             "Write the demo scene: an invented RGB-D sequence of a rounded probe pressing\n"
             "into a textured silicone pad and dragging it sideways, a foam block sliding in\n"
@@ -35,12 +35,17 @@ static void usage(FILE *out)
             "                     right/NNNNNN.png, exact left disparity\n"
             "                     truth/disparity/NNNNNN.pfm, truth/occlusion_stereo/,\n"
             "                     stereo_calib.json (for sinew stereo --calib)\n"
+            "      --swing PX     fast-motion sweep: the pad stays at rest and the probe is\n"
+            "                     swung across the view above it at constant speed, PX\n"
+            "                     px/frame in the image where it crosses the pad centre\n"
+            "                     (between the middle frames); 0 < PX <= 1000\n"
             "  -j, --threads N    threads (default: all); output is identical for any count\n"
             "  -h, --help         show this help\n"
             "\n"
             "examples:\n"
             "  sinew synth -o demo/out/scene\n"
             "  sinew synth -o /tmp/small --frames 5 --size 160x120 --seed 7 --noise\n"
+            "  sinew synth -o /tmp/fast --frames 2 --swing 128\n"
             "\n%s",
             cli_notice);
 }
@@ -61,15 +66,11 @@ static int parse_seed(const char *s, uint64_t *out)
 int cmd_synth(int argc, char **argv)
 {
     static const struct option opts[] = {
-        {"output", required_argument, NULL, 'o'},
-        {"frames", required_argument, NULL, 'n'},
-        {"size", required_argument, NULL, 's'},
-        {"seed", required_argument, NULL, 'S'},
-        {"noise", no_argument, NULL, 'N'},
-        {"threads", required_argument, NULL, 'j'},
-        {"help", no_argument, NULL, 'h'},
-        {"stereo", required_argument, NULL, 'B'},
-        {NULL, 0, NULL, 0},
+        {"output", required_argument, NULL, 'o'}, {"frames", required_argument, NULL, 'n'},
+        {"size", required_argument, NULL, 's'},   {"seed", required_argument, NULL, 'S'},
+        {"noise", no_argument, NULL, 'N'},        {"threads", required_argument, NULL, 'j'},
+        {"help", no_argument, NULL, 'h'},         {"stereo", required_argument, NULL, 'B'},
+        {"swing", required_argument, NULL, 'W'},  {NULL, 0, NULL, 0},
     };
     double baseline = 0; /* --stereo: right frames and exact disparity (flow/stereo.h) */
     sinew_synth_params p;
@@ -111,6 +112,12 @@ int cmd_synth(int argc, char **argv)
                 return cli_usage_error(CMD, "--stereo: '%s' is not a baseline in (0, 1] metres",
                                        optarg);
             break;
+        case 'W':
+            if (cli_parse_double(optarg, &p.swing) || !(p.swing > 0) ||
+                p.swing > SINEW_SYNTH_MAX_SWING)
+                return cli_usage_error(CMD, "--swing: '%s' is not a speed in (0, 1000] px/frame",
+                                       optarg);
+            break;
         case 'h':
             usage(stdout);
             return CLI_OK;
@@ -138,9 +145,9 @@ int cmd_synth(int argc, char **argv)
     if (st)
         rc = cli_status(CMD, ctx, st);
     else
-        printf("wrote %d frames (%dx%d, seed %llu%s) and their exact ground truth to %s\n",
+        printf("wrote %d frames (%dx%d, seed %llu%s%s) and their exact ground truth to %s\n",
                p.frames, p.width, p.height, (unsigned long long)p.seed,
-               p.depth_noise ? ", depth noise" : "", dir);
+               p.depth_noise ? ", depth noise" : "", p.swing > 0 ? ", probe swing" : "", dir);
     if (!st && baseline > 0)
         printf("stereo: right frames %.3f m to the right, exact disparity, %s/stereo_calib.json\n",
                baseline, dir);

@@ -47,6 +47,10 @@ typedef struct sinew__synth_scene {
     double lowtex_c[2], lowtex_r;
     double tint[5][3];
     double light[3];
+    /* fast-motion sweep (sinew_synth_params.swing): 0 = off; else the probe tip moves
+       by swing_v metres per frame along swing_dir from swing_p0, reached at frame
+       swing_c */
+    double swing_v, swing_c, swing_dir[3], swing_p0[3];
 } sinew__synth_scene;
 
 /* The scene at one instant: camera pose and every motion parameter. */
@@ -70,6 +74,8 @@ typedef struct sinew__synth_hit {
 } sinew__synth_hit;
 
 void sinew__synth_scene_init(sinew__synth_scene *sc, uint64_t seed, int width, int height);
+/* Set up the fast-motion sweep for `px` px/frame (0 = off) over `frames` frames. */
+void sinew__synth_swing_init(sinew__synth_scene *sc, double px, int frames);
 /* State at frame index `frame` (time frame / fps seconds). */
 void sinew__synth_state_at(const sinew__synth_scene *sc, double frame, sinew__synth_state *st);
 /* Cast the camera ray through pixel position (px, py) (pixel centres at integers).

@@ -82,3 +82,27 @@ expect_error "synth missing parent" "$T/nope/out" "nope/out: cannot create folde
 : >"$T/file"
 expect_error "synth output is a file" - "file: cannot create folder" \
     "$SINEW_BIN" synth -o "$T/file" --frames 2 --size 16x16
+
+# --swing: the probe's own image motion where it crosses the pad centre is the requested
+# speed (v = px * z / fx at the crossing point); the rod's upper part is nearer the camera,
+# so its pixels move a little faster: mean over its pixels in [1.0, 1.2] x the speed
+expect_ok "synth --swing 100" "$SINEW_BIN" synth -o "$T/s" --frames 2 --size 320x240 --swing 100
+cat >"$T/swing.py" <<'EOF2'
+import sys
+import numpy as np
+sys.path.insert(0, 'demo')
+from truth import read_png, read_flo
+root, speed = sys.argv[1], float(sys.argv[2])
+f = read_flo(root + '/truth/flow_forward/000000.flo')
+lab = read_png(root + '/labels/000000.png')[:, :, 0]
+m = lab == 4
+probe = float(np.hypot(f[..., 0], f[..., 1])[m].mean())
+rest = float(np.nanmedian(np.hypot(f[..., 0], f[..., 1])[(lab == 2) | (lab == 1)]))
+print('probe %d px, mean |flow| %.1f px; tray and pad median %.1f px' % (m.sum(), probe, rest))
+sys.exit(0 if m.sum() > 100 and speed <= probe <= 1.2 * speed and rest < 10 else 1)
+EOF2
+if "$PYTHON" "$T/swing.py" "$T/s" 100 >"$T/sw.out" 2>&1; then
+    pass "--swing 100 moves the probe ~100 px/frame, the rest slowly ($(cat "$T/sw.out"))"
+else fail "--swing speed" "$(tail -c 400 "$T/sw.out")"; fi
+expect_error "synth --swing 0" - "--swing: '0'" "$SINEW_BIN" synth -o "$T/e" --swing 0
+expect_error "synth --swing 2000" - "--swing: '2000'" "$SINEW_BIN" synth -o "$T/e" --swing 2000

@@ -24,6 +24,12 @@ struct sinew_ctx {
     sinew_allocator alloc;
     int64_t max_pixels;
     int threads;
+    const volatile sig_atomic_t *cancel;
+    /* Temporary names of outputs being written, for sinew_ctx_remove_temporaries from a
+     * signal handler: a slot's path is written while tmp_live is 0, then tmp_live set;
+     * cleared before the name is renamed or freed. */
+    volatile sig_atomic_t tmp_live[SINEW_CTX_TRACKED_TEMPORARIES];
+    char tmp_path[SINEW_CTX_TRACKED_TEMPORARIES][SINEW__TMP_PATH_MAX];
     char message[1024];
 };
 
@@ -145,6 +151,59 @@ int sinew_ctx_set_threads(sinew_ctx *ctx, int threads)
 int sinew_ctx_threads(const sinew_ctx *ctx)
 {
     return ctx ? ctx->threads : 0;
+}
+
+int sinew_ctx_set_cancel(sinew_ctx *ctx, const volatile sig_atomic_t *flag)
+{
+    if (!ctx)
+        return SINEW_EINVAL;
+    ctx->cancel = flag;
+    return SINEW_OK;
+}
+
+int sinew_ctx_cancelled(const sinew_ctx *ctx)
+{
+    return ctx && ctx->cancel && *ctx->cancel;
+}
+
+int sinew__check_cancel(sinew_ctx *ctx, const char *what)
+{
+    if (!sinew_ctx_cancelled(ctx))
+        return SINEW_OK;
+    return sinew__fail(ctx, SINEW_EINTERRUPTED, "%s: interrupted", what);
+}
+
+int sinew_ctx_remove_temporaries(sinew_ctx *ctx)
+{
+    int n = 0;
+    if (!ctx)
+        return 0;
+    for (int k = 0; k < SINEW_CTX_TRACKED_TEMPORARIES; k++)
+        if (ctx->tmp_live[k] && unlink(ctx->tmp_path[k]) == 0)
+            n++;
+    return n;
+}
+
+/* Track / untrack an open temporary output (slot index or -1 when every slot is busy or
+ * the name is too long: the file is then just not removed by a signal handler). */
+static int tmp_track(sinew_ctx *ctx, const char *tmp)
+{
+    size_t len = strlen(tmp);
+    if (len >= SINEW__TMP_PATH_MAX)
+        return -1;
+    for (int k = 0; k < SINEW_CTX_TRACKED_TEMPORARIES; k++)
+        if (!ctx->tmp_live[k]) {
+            memcpy(ctx->tmp_path[k], tmp, len + 1);
+            ctx->tmp_live[k] = 1;
+            return k;
+        }
+    return -1;
+}
+
+static void tmp_untrack(sinew_ctx *ctx, int slot)
+{
+    if (slot >= 0)
+        ctx->tmp_live[slot] = 0;
 }
 
 int sinew__fail(sinew_ctx *ctx, int status, const char *fmt, ...)
@@ -301,6 +360,7 @@ int sinew_image_same_shape(const sinew_image *a, const sinew_image *b)
 struct sinew_outfile {
     FILE *fp;
     sinew_ctx *ctx;
+    int slot; /* tmp_track slot or -1 */
     char *path;
     char *tmp;
 };
@@ -370,6 +430,7 @@ int sinew_outfile_open(sinew_ctx *ctx, sinew_outfile **out, const char *path)
         sinew__free(ctx, f);
         return sinew__fail(ctx, SINEW_EIO, "%s: cannot open: %s", path, strerror(e));
     }
+    f->slot = tmp_track(ctx, f->tmp);
     *out = f;
     return SINEW_OK;
 }
@@ -382,6 +443,7 @@ void *sinew_outfile_stream(sinew_outfile *f)
 static void outfile_release(sinew_outfile *f)
 {
     sinew_ctx *ctx = f->ctx;
+    tmp_untrack(ctx, f->slot);
     sinew__free(ctx, f->path);
     sinew__free(ctx, f->tmp);
     sinew__free(ctx, f);
@@ -409,6 +471,8 @@ int sinew_outfile_commit(sinew_ctx *ctx, sinew_outfile *f)
     if (fclose(f->fp) != 0 && !err)
         err = errno ? errno : EIO;
     f->fp = NULL;
+    tmp_untrack(f->ctx, f->slot);
+    f->slot = -1;
     if (!err && rename(f->tmp, f->path) != 0)
         err = errno;
     if (err) {

@@ -4,6 +4,7 @@
 #ifndef SINEW_CORE_H
 #define SINEW_CORE_H
 
+#include <signal.h>
 #include <stddef.h>
 #include <stdint.h>
 
@@ -78,6 +79,21 @@ int64_t sinew_ctx_max_pixels(const sinew_ctx *ctx);
  * bit-identical for every value. */
 int sinew_ctx_set_threads(sinew_ctx *ctx, int threads);
 int sinew_ctx_threads(const sinew_ctx *ctx);
+
+/* Stop requests. `flag` (borrowed, may be NULL to detach) is typically set by a signal
+ * handler; while it is nonzero, long loops on this context stop early with
+ * SINEW_EINTERRUPTED: hashing a file (per 64 KiB block), the run engine between pairs
+ * and before it trusts or empties a pair folder, manifest and report building (per
+ * pair). Per-row kernels of one image do not check it. sinew_ctx_cancelled() reads it. */
+int sinew_ctx_set_cancel(sinew_ctx *ctx, const volatile sig_atomic_t *flag);
+int sinew_ctx_cancelled(const sinew_ctx *ctx);
+/* Remove the temporary files of the outputs this context is writing right now (atomic
+ * outputs not yet committed; at most SINEW_CTX_TRACKED_TEMPORARIES at once are
+ * tracked). Async-signal-safe (only unlink), so a signal handler may call it right
+ * before _exit(); best effort: a file committed at the same instant is not touched.
+ * Returns the number of files removed. */
+#define SINEW_CTX_TRACKED_TEMPORARIES 4
+int sinew_ctx_remove_temporaries(sinew_ctx *ctx);
 
 /* Allocate/free through the context's allocator (64-byte aligned). For callers that
  * hand buffers to sinew or receive buffers from it. sinew_ctx_alloc sets the message

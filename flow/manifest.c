@@ -32,7 +32,10 @@ static int add_entry(sinew_ctx *ctx, cJSON *arr, const char *role, const char *p
         return SINEW_ENOMEM;
     unsigned char d[32];
     uint64_t bytes;
-    if (sinew_sha256_file(ctx, path, d, &bytes)) {
+    int rc = sinew_sha256_file(ctx, path, d, &bytes);
+    if (rc == SINEW_EINTERRUPTED)
+        return rc;
+    if (rc) {
         if (!cJSON_AddStringToObject(o, "error", sinew_ctx_message(ctx)))
             return SINEW_ENOMEM;
         sinew_ctx_clear(ctx);
@@ -100,7 +103,11 @@ static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, 
         const char *error = NULL;
         char msg[1024];
         cJSON *stats = NULL, *err = NULL;
-        if (sinew__run_pair_inputs(run, q, in, &nin, fwd, bwd, sizeof fwd)) {
+        if ((rc = sinew__check_cancel(ctx, s->outdir)))
+            return rc;
+        if ((rc = sinew__run_pair_inputs(run, q, in, &nin, fwd, bwd, sizeof fwd))) {
+            if (rc == SINEW_EINTERRUPTED)
+                return rc;
             snprintf(msg, sizeof msg, "%s", sinew_ctx_message(ctx));
             sinew_ctx_clear(ctx);
             status = "failed";
@@ -108,11 +115,14 @@ static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, 
         } else {
             sinew__run_pair_key(run, q, in, nin, key);
             if (s->flow_from) {
-                if (add_entry(ctx, inputs, "flow_forward", fwd) ||
-                    add_entry(ctx, inputs, "flow_backward", bwd))
-                    return SINEW_ENOMEM;
+                if ((rc = add_entry(ctx, inputs, "flow_forward", fwd)) ||
+                    (rc = add_entry(ctx, inputs, "flow_backward", bwd)))
+                    return rc;
             }
-            if (sinew__run_record_status(run, dir, key, verify, NULL) == SINEW_PAIR_SKIPPED) {
+            int rs = sinew__run_record_status(run, dir, key, verify, NULL);
+            if ((rc = sinew__check_cancel(ctx, s->outdir)))
+                return rc; /* a verification cut short proves nothing */
+            if (rs == SINEW_PAIR_SKIPPED) {
                 status = "done";
                 stats = read_stats(ctx, dir);
             } else if ((err = read_error(ctx, dir)) != NULL) {
@@ -178,13 +188,13 @@ int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *
         cJSON_AddStringToObject(root, "options", opt);
     cJSON_AddNumberToObject(root, "frames", (double)s->nframes);
     cJSON_AddItemToObject(root, "inputs", inputs);
-    if (s->intrinsics && add_entry(ctx, inputs, "intrinsics", s->intrinsics))
+    if (s->intrinsics && (rc = add_entry(ctx, inputs, "intrinsics", s->intrinsics)))
         goto done;
     for (size_t f = 0; f < s->nframes; f++) {
         const sinew_run_frame *fr = &s->frames[f];
-        if (add_entry(ctx, inputs, "color", fr->color) ||
-            (fr->depth && add_entry(ctx, inputs, "depth", fr->depth)) ||
-            (fr->labels && add_entry(ctx, inputs, "labels", fr->labels)))
+        if ((rc = add_entry(ctx, inputs, "color", fr->color)) ||
+            (fr->depth && (rc = add_entry(ctx, inputs, "depth", fr->depth))) ||
+            (fr->labels && (rc = add_entry(ctx, inputs, "labels", fr->labels))))
             goto done;
     }
     rc = build_pairs(run, verify, pairs, inputs, cnt);

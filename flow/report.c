@@ -230,7 +230,8 @@ static int build(sinew__report *r, sinew__sbuf *page)
     sinew_ctx *ctx = r->ctx;
     int st;
     for (size_t i = 0; i < r->npairs; i++)
-        if ((st = sinew__report_derive_metrics(r, &r->pairs[i])))
+        if ((st = sinew__check_cancel(ctx, r->rundir)) ||
+            (st = sinew__report_derive_metrics(r, &r->pairs[i])))
             return st;
 
     /* Pictured pairs: evenly spaced, safe names only. */
@@ -286,6 +287,8 @@ static int build(sinew__report *r, sinew__sbuf *page)
     st = SINEW_OK;
     for (size_t j = 0; j < npic && !st; j++) {
         const sinew__report_pair *q = &r->pairs[pick[j]];
+        if ((st = sinew__check_cancel(ctx, r->rundir)))
+            break;
         if (!q->safe) {
             sinew__report_warn(r, q->name, "pair name is not a plain folder name; no pictures",
                                NULL);

@@ -32,7 +32,8 @@ void sinew_report_options_default(sinew_report_options *o);
 /* Read RUNDIR/manifest.json and the pair folders RUNDIR/pairs/NAME/ and write the page
  * to html_path atomically (o may be NULL for defaults). Output is deterministic (no
  * clock, no host names). Errors: EIO/EFORMAT naming manifest.json when it is missing,
- * not JSON or has no "pairs" array; EINVAL for bad options; EIO for the output. */
+ * not JSON or has no "pairs" array; EINVAL for bad options; EIO for the output;
+ * EINTERRUPTED when the context's stop flag is set (checked per pair). */
 int sinew_report_write(sinew_ctx *ctx, const char *rundir, const char *html_path,
                        const sinew_report_options *o);
 

@@ -416,7 +416,7 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
     for (size_t q = 0; q < s->npairs; q++) {
         if (!sinew_shard_owns(q, s->shard_k, s->shard_n))
             continue;
-        if (s->cancel && *s->cancel) {
+        if ((s->cancel && *s->cancel) || sinew_ctx_cancelled(ctx)) {
             result->interrupted = 1;
             break;
         }
@@ -433,6 +433,8 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
             sinew__run_pair_key(run, q, in, nin, key);
             if (s->resume && sinew__run_record_status(run, dir, key, 1, NULL) == SINEW_PAIR_SKIPPED)
                 st = SINEW_PAIR_SKIPPED;
+            /* a verification cut short by a stop request proves nothing: keep the folder */
+            rc = sinew__check_cancel(ctx, dir);
         }
         if (!rc && st == SINEW_PAIR_COMPUTED)
             rc = empty_dir(ctx, dir);
@@ -455,6 +457,12 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
                 rc = write_done_record(run, q, name, dir, key, in, nin);
         }
         char msg[1024] = "";
+        if (rc == SINEW_EINTERRUPTED) {
+            /* stopped inside the pair (hashing): not a failure of the pair; whatever it
+             * left has no done record and is emptied when the pair is next computed */
+            result->interrupted = 1;
+            break;
+        }
         if (rc) {
             st = SINEW_PAIR_FAILED;
             snprintf(msg, sizeof msg, "%s",

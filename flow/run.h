@@ -155,14 +155,17 @@ typedef struct sinew_run sinew_run;
 int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec);
 void sinew_run_free(sinew_run *run);
 
-/* Process every owned pair in schedule order. For each: stop if *cancel is set;
+/* Process every owned pair in schedule order. For each: stop if *cancel or the
+ * context's stop flag (sinew_ctx_set_cancel) is set;
  * hash the inputs (each file once per run) and form the pair key
  * SHA-256(version, options, pair, input digests); with resume, skip the pair when
  * its done record carries that key and every listed output has the recorded size
  * and digest; otherwise empty the pair folder, call fn, write stats.json, then write
  * done.json last (atomically). A failure writes error.json beside the pair; with
- * SINEW_RUN_STOP the run ends there. Returns SINEW_OK when every owned pair ended
- * computed or skipped, SINEW_EINTERRUPTED when cancelled, otherwise the first
+ * SINEW_RUN_STOP the run ends there. The context's stop flag also cuts hashing short;
+ * the pair it happens in is then neither failed nor emptied and gets no record (without
+ * done.json it is recomputed next time), and the run ends interrupted. Returns SINEW_OK when every
+ * owned pair ended computed or skipped, SINEW_EINTERRUPTED when cancelled, otherwise the first
  * failure's status (its message stays on ctx). *result is always filled. */
 int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
                       sinew_run_progress_fn progress, void *progress_ud, sinew_run_result *result);
@@ -174,7 +177,8 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
  * name, fsync, rename), so shards or a merge step never leave a torn manifest.
  * verify = 1 also checks the size and SHA-256 of every output listed in each done
  * record (as --resume does; a merge step should), 0 trusts the records (right after
- * this process wrote them). Counts are returned through the optional pointers. */
+ * this process wrote them). Counts are returned through the optional pointers.
+ * EINTERRUPTED (nothing written) when the context's stop flag is set. */
 int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *nfailed,
                              size_t *npending);
 

@@ -142,12 +142,15 @@ int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32]
     sinew_sha256 s;
     sinew_sha256_init(&s);
     size_t got;
-    while ((got = fread(buf, 1, CHUNK, f)) > 0)
+    int stop = 0;
+    while (!(stop = sinew_ctx_cancelled(ctx)) && (got = fread(buf, 1, CHUNK, f)) > 0)
         sinew_sha256_update(&s, buf, got);
     int bad = ferror(f);
     int e = errno;
     fclose(f);
     sinew__free(ctx, buf);
+    if (stop)
+        return sinew__check_cancel(ctx, path);
     if (bad)
         return sinew__fail(ctx, SINEW_EIO, "%s: cannot read: %s", path, strerror(e ? e : EIO));
     sinew_sha256_final(&s, digest);

@@ -31,7 +31,8 @@ void sinew_sha256_final(sinew_sha256 *s, unsigned char digest[32]);
 void sinew_sha256_hex(const unsigned char digest[32], char hex[65]);
 /* Digest of a whole file, read in blocks (memory does not grow with file size).
  * bytes (may be NULL) receives the file size. EIO naming the path if it cannot be
- * opened or read. */
+ * opened or read; EINTERRUPTED when the context's stop flag is set (checked per 64 KiB
+ * block, sinew_ctx_set_cancel). */
 int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32], uint64_t *bytes);
 
 #ifdef __cplusplus

@@ -1,5 +1,6 @@
 /* SPDX-License-Identifier: MIT */
-/* Command-line helpers: one-line errors, strict parsing. */
+/* Command-line helpers: one-line errors, strict parsing, stop requests by signal. */
+#define _POSIX_C_SOURCE 200809L
 #include "tools/cli.h"
 
 #include <errno.h>
@@ -8,6 +9,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 const char cli_notice[] =
     "sinew is a research tool, not a medical device: its output must not be used for\n"
@@ -115,4 +117,67 @@ sinew_ctx *cli_ctx(const char *cmd, int threads)
         return NULL;
     }
     return ctx;
+}
+
+/* ---- stop requests: the only process-wide state, owned by the command line ---- */
+
+static volatile sig_atomic_t stop_flag;
+static volatile sig_atomic_t stop_signal;
+static sinew_ctx *stop_ctx;
+static char stop_extra[4200];
+static volatile sig_atomic_t stop_extra_set;
+static char stop_line[200];
+static size_t stop_line_len;
+
+static void on_stop_signal(int sig)
+{
+    if (stop_flag) {
+        /* second request: only async-signal-safe calls from here on */
+        if (stop_ctx)
+            (void)sinew_ctx_remove_temporaries(stop_ctx);
+        if (stop_extra_set)
+            (void)unlink(stop_extra);
+        ssize_t w = write(STDERR_FILENO, stop_line, stop_line_len);
+        (void)w;
+        _exit(128 + sig);
+    }
+    stop_signal = sig;
+    stop_flag = 1;
+}
+
+void cli_stop_install(const char *cmd, sinew_ctx *ctx)
+{
+    int n = snprintf(stop_line, sizeof stop_line,
+                     "sinew: %s: stopped at once by a second signal; rerun with --resume\n", cmd);
+    stop_line_len = n > 0 && (size_t)n < sizeof stop_line ? (size_t)n : 0;
+    stop_ctx = ctx;
+    sinew_ctx_set_cancel(ctx, &stop_flag);
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = on_stop_signal;
+    sa.sa_flags = SA_RESTART;
+    sigemptyset(&sa.sa_mask);
+    sigaddset(&sa.sa_mask, SIGINT);
+    sigaddset(&sa.sa_mask, SIGTERM);
+    sigaction(SIGINT, &sa, NULL);
+    sigaction(SIGTERM, &sa, NULL);
+}
+
+void cli_stop_also_remove(const char *path)
+{
+    stop_extra_set = 0;
+    if (path && strlen(path) < sizeof stop_extra) {
+        memcpy(stop_extra, path, strlen(path) + 1);
+        stop_extra_set = 1;
+    }
+}
+
+int cli_stop_signal(void)
+{
+    return (int)stop_signal;
+}
+
+const volatile sig_atomic_t *cli_stop_flag(void)
+{
+    return &stop_flag;
 }

@@ -4,6 +4,8 @@
 #ifndef SINEW_CLI_H
 #define SINEW_CLI_H
 
+#include <signal.h>
+
 #include "flow/sinew.h"
 
 /* Exit codes: 0 success, 1 runtime failure, 2 usage error. */
@@ -25,6 +27,20 @@ int cli_parse_int(const char *s, long min, long max, long *out);
 int cli_parse_double(const char *s, double *out);
 /* Parse "WxH". */
 int cli_parse_size(const char *s, int *w, int *h);
+
+/* Stop requests for long commands. cli_stop_install(cmd, ctx) makes the first SIGINT or
+ * SIGTERM set a flag that ctx's long loops read (sinew_ctx_set_cancel), so the command
+ * stops at the next safe point; a second one removes the temporary files ctx is
+ * writing and the file named by cli_stop_also_remove (e.g. a lock), prints one line
+ * "sinew: CMD: stopped at once ..." and exits at once with 128 + the signal number
+ * (130 for SIGINT, 143 for SIGTERM).
+ * cli_stop_signal() is the first signal received, 0 if none. */
+void cli_stop_install(const char *cmd, sinew_ctx *ctx);
+/* A path (copied; NULL to forget it) the second signal also unlinks. */
+void cli_stop_also_remove(const char *path);
+int cli_stop_signal(void);
+/* The flag itself (for APIs that take a flag pointer, e.g. sinew_run_spec.cancel). */
+const volatile sig_atomic_t *cli_stop_flag(void);
 
 /* Create a context with the thread count from --threads (0 = default); prints on failure. */
 sinew_ctx *cli_ctx(const char *cmd, int threads);

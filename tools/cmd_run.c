@@ -29,16 +29,6 @@
 
 static const char *const CMD = "run";
 
-/* Set by SIGINT/SIGTERM; the library reads it between pairs. */
-static volatile sig_atomic_t stop_flag;
-static volatile sig_atomic_t stop_signal;
-
-static void on_signal(int sig)
-{
-    stop_flag = 1;
-    stop_signal = sig;
-}
-
 static void usage(FILE *out)
 {
     fprintf(
@@ -544,7 +534,7 @@ static int plan(sinew_ctx *ctx, run_args *a, run_plan *p)
     s->shard_n = a->shard_n;
     s->resume = a->resume;
     s->on_error = a->on_error;
-    s->cancel = &stop_flag;
+    s->cancel = cli_stop_flag();
     return CLI_OK;
 }
 
@@ -749,17 +739,6 @@ static int merge(sinew_ctx *ctx, sinew_run *run, const run_args *a, size_t npair
     return CLI_OK;
 }
 
-static void install_signals(void)
-{
-    struct sigaction sa;
-    memset(&sa, 0, sizeof sa);
-    sa.sa_handler = on_signal;
-    sa.sa_flags = SA_RESTART;
-    sigemptyset(&sa.sa_mask);
-    sigaction(SIGINT, &sa, NULL);
-    sigaction(SIGTERM, &sa, NULL);
-}
-
 /* The run itself, then the manifest (whole runs only), the summary lines, the --report
  * table and page, and the final one-line error. */
 static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *run)
@@ -768,7 +747,8 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
     int rc = sinew_run_pipeline_new(ctx, &pl, &p->spec, &a->pp);
     if (rc)
         return cli_status(CMD, ctx, rc);
-    install_signals();
+    /* first SIGINT/SIGTERM: stop at the next safe point; second: at once (tools/cli.h) */
+    cli_stop_install(CMD, ctx);
     progress_state ps = {a->progress, a->progress == PROG_AUTO && isatty(STDOUT_FILENO), now_s(),
                          0};
     sinew_run_result res;
@@ -780,8 +760,11 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
         printf("\n");
     int whole = a->shard_n == 1, mrc = SINEW_OK;
     size_t nd = 0, nf = 0, np = 0;
+    /* the manifest is written even after a stop request (a second one ends it at once) */
+    sinew_ctx_set_cancel(ctx, NULL);
     if (whole)
         mrc = sinew_run_write_manifest(run, 0, &nd, &nf, &np);
+    sinew_ctx_set_cancel(ctx, cli_stop_flag());
     double el = now_s() - ps.t0;
     if (a->progress == PROG_JSON)
         printf("{\"event\":\"end\",\"total\":%zu,\"computed\":%zu,\"skipped\":%zu,\"failed\":%zu,"
@@ -812,7 +795,7 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
     if (res.interrupted)
         return cli_error(CMD,
                          "interrupted by signal %d after %zu of %zu pairs; rerun with --resume",
-                         (int)stop_signal, res.computed + res.skipped, res.total);
+                         cli_stop_signal(), res.computed + res.skipped, res.total);
     if (rc && (res.failed > 1 || a->on_error == SINEW_RUN_SKIP))
         return cli_error(CMD, "%zu of %zu pairs failed; first: %s", res.failed, res.total, first);
     if (rc)

@@ -50,5 +50,11 @@ int sinew__check_dims(sinew_ctx *ctx, const char *what, int64_t width, int64_t h
 /* Atomic output files are written as DIR/.NAME + SINEW__TMP_TAG + 6 hex digits, then
  * renamed to DIR/NAME (sinew_outfile_open in flow/core.c). */
 #define SINEW__TMP_TAG ".tmp-"
+/* Longest temporary name a context tracks for sinew_ctx_remove_temporaries. */
+#define SINEW__TMP_PATH_MAX 4200
+
+/* SINEW_OK, or SINEW_EINTERRUPTED with the message "WHAT: interrupted" when the
+ * context's stop flag is set (sinew_ctx_set_cancel). For long loops. */
+int sinew__check_cancel(sinew_ctx *ctx, const char *what);
 
 #endif

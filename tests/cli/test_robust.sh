@@ -85,3 +85,41 @@ rc=$?
 if [ "$rc" -eq 1 ] && grep -q "/dev/zero: not a regular file" "$T/out" "$T/err"; then
     pass "device frame in a run"
 else fail "device frame in a run" "exit $rc: $(head -c 300 "$T/err")"; fi
+
+# --- a second SIGINT/SIGTERM stops at once (issue 21, item 1) ------------------------
+# One pair of 480x360 frames with the accurate preset takes seconds, so both signals land
+# inside the pair. On the previous main the second signal was ignored: the run finished
+# the pair and exited 1. Now: exit 128 + signal, one line, no temporary file left, and
+# --resume completes the run.
+"$SINEW_BIN" synth -o "$T/sigseq" --frames 2 --size 480x360 >/dev/null 2>&1 ||
+    fail "second signal" "synth failed"
+for sig in INT TERM; do
+    want=$([ $sig = INT ] && echo 130 || echo 143)
+    out="$T/sig$sig"
+    "$SINEW_BIN" run "$T/sigseq" -o "$out" --preset accurate --progress plain \
+        >"$T/out" 2>"$T/err" &
+    pid=$!
+    # never hang (timeout(1) would relay the signals): a watchdog that ends with the run
+    ( n=0; while kill -0 $pid 2>/dev/null && [ $n -lt 1200 ]; do sleep 0.1; n=$((n + 1)); done
+      kill -KILL $pid 2>/dev/null ) &
+    dog=$!
+    n=0
+    while [ $n -lt 2000 ] && [ ! -d "$out/pairs/000000-000001" ] && kill -0 $pid 2>/dev/null; do
+        sleep 0.01; n=$((n + 1))
+    done
+    sleep 0.3
+    kill -$sig $pid 2>/dev/null; sleep 0.2; kill -$sig $pid 2>/dev/null
+    wait $pid; rc=$?
+    wait $dog 2>/dev/null
+    if [ "$rc" -ne "$want" ]; then
+        fail "second SIG$sig stops at once with exit $want" "exit $rc: $(head -c 300 "$T/err")"
+    elif [ "$(wc -l <"$T/err")" -ne 1 ] || ! grep -q "stopped at once" "$T/err"; then
+        fail "second SIG$sig stops at once with exit $want" "stderr: $(cat "$T/err")"
+    elif find "$out" -name '*.tmp-*' | grep -q .; then
+        fail "second SIG$sig stops at once with exit $want" "temporaries left: $(find "$out" -name '*.tmp-*')"
+    else pass "second SIG$sig stops at once with exit $want, no temporaries left"; fi
+done
+if timeout -s KILL 120 "$SINEW_BIN" run "$T/sigseq" -o "$T/sigINT" --preset accurate --resume \
+    >"$T/out" 2>"$T/err" && grep -q "1 done, 0 failed, 0 pending" "$T/out"; then
+    pass "resume after a second signal completes the run"
+else fail "resume after a second signal completes the run" "$(cat "$T/out" "$T/err" | head -c 300)"; fi

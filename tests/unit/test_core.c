@@ -102,6 +102,48 @@ static void test_core_outfile_atomic(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* The stop flag ends hashing with EINTERRUPTED naming the file; the temporaries of open
+ * outputs are what a second signal removes before exiting. */
+static void test_core_stop_flag_and_temporaries(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    char p[600], q[600];
+    tu_path(p, sizeof p, dir, "in.bin");
+    tu_write_bytes(p, "abc", 3);
+    static volatile sig_atomic_t flag;
+    flag = 1;
+    assert_int_equal(sinew_ctx_set_cancel(ctx, &flag), SINEW_OK);
+    assert_true(sinew_ctx_cancelled(ctx));
+    unsigned char d[32];
+    assert_int_equal(sinew_sha256_file(ctx, p, d, NULL), SINEW_EINTERRUPTED);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "in.bin: interrupted"));
+    flag = 0;
+    assert_int_equal(sinew_sha256_file(ctx, p, d, NULL), SINEW_OK);
+    /* two outputs being written: both temporaries go, the finished file stays */
+    sinew_outfile *f1, *f2;
+    tu_path(q, sizeof q, dir, "out1.bin");
+    assert_int_equal(sinew_outfile_open(ctx, &f1, q), SINEW_OK);
+    tu_path(q, sizeof q, dir, "out2.bin");
+    assert_int_equal(sinew_outfile_open(ctx, &f2, q), SINEW_OK);
+    assert_int_equal(sinew_ctx_remove_temporaries(ctx), 2);
+    char cmd[700];
+    snprintf(cmd, sizeof cmd, "ls -A '%s' | grep -q tmp-", dir);
+    assert_int_not_equal(system(cmd), 0);
+    sinew_outfile_abort(f1);
+    sinew_outfile_abort(f2);
+    /* committed outputs are no longer tracked */
+    assert_int_equal(sinew_write_file(ctx, q, "x", 1), SINEW_OK);
+    assert_int_equal(sinew_ctx_remove_temporaries(ctx), 0);
+    assert_true(tu_file_exists(q) && tu_file_exists(p));
+    sinew_ctx_set_cancel(ctx, NULL);
+    assert_false(sinew_ctx_cancelled(ctx));
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -110,6 +152,7 @@ int main(void)
         cmocka_unit_test(test_core_pixel_limit_refuses_huge),
         cmocka_unit_test(test_core_alloc_failure_is_clean),
         cmocka_unit_test(test_core_outfile_atomic),
+        cmocka_unit_test(test_core_stop_flag_and_temporaries),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -863,6 +863,52 @@ static void test_run_engine_cancel_stops_between_pairs(void **state)
     fixture_free(&fx);
 }
 
+/* The context's stop flag (what the CLI's first SIGINT/SIGTERM sets) cuts hashing short:
+ * the pair in progress is neither failed nor given a record; a resumed run with --resume
+ * trusts nothing it did not verify, and a stop during verification empties nothing. */
+static void test_run_engine_stop_flag_in_context(void **state)
+{
+    (void)state;
+    fixture fx;
+    fixture_make(&fx);
+    char out[600], p[700];
+    sinew_run_spec s = spec_for(&fx, "out", out, sizeof out);
+    static volatile sig_atomic_t flag;
+    flag = 0;
+    sinew_ctx_set_cancel(fx.ctx, &flag);
+    fake f = {0, -1, (sig_atomic_t *)&flag, 2}; /* set inside the second pair */
+    sinew_run_result r;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 0), SINEW_EINTERRUPTED);
+    assert_true(r.interrupted);
+    assert_int_equal(r.computed, 1); /* the second pair's done record was never written */
+    assert_int_equal(r.failed, 0);
+    snprintf(p, sizeof p, "%s/pairs/000001-000002/done.json", out);
+    assert_false(tu_file_exists(p));
+    snprintf(p, sizeof p, "%s/pairs/000001-000002/error.json", out);
+    assert_false(tu_file_exists(p));
+    /* the manifest is not built while the flag is set */
+    sinew_run *run;
+    assert_int_equal(sinew_run_new(fx.ctx, &run, &s), SINEW_OK);
+    assert_int_equal(sinew_run_write_manifest(run, 1, NULL, NULL, NULL), SINEW_EINTERRUPTED);
+    sinew_run_free(run);
+    snprintf(p, sizeof p, "%s/manifest.json", out);
+    assert_false(tu_file_exists(p));
+    /* a resumed run stopped at once leaves the done pair as it was */
+    s.resume = 1;
+    f.cancel_after = NULL;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 0), SINEW_EINTERRUPTED);
+    assert_int_equal(r.computed + r.skipped + r.failed, 0);
+    snprintf(p, sizeof p, "%s/pairs/000000-000001/done.json", out);
+    assert_true(tu_file_exists(p));
+    flag = 0;
+    f.calls = 0;
+    assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
+    assert_int_equal(r.skipped, 1);
+    assert_int_equal(r.computed, 4);
+    sinew_ctx_set_cancel(fx.ctx, NULL);
+    fixture_free(&fx);
+}
+
 static void test_run_engine_rejects_bad_spec(void **state)
 {
     (void)state;
@@ -916,6 +962,7 @@ int main(void)
         cmocka_unit_test(test_run_engine_shards_match_whole_run),
         cmocka_unit_test(test_run_engine_error_policies),
         cmocka_unit_test(test_run_engine_cancel_stops_between_pairs),
+        cmocka_unit_test(test_run_engine_stop_flag_in_context),
         cmocka_unit_test(test_run_engine_rejects_bad_spec),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

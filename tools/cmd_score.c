@@ -24,6 +24,7 @@
 #include "tools/score_layout.h"
 #include "tools/score_out.h"
 #include "tools/score_read.h"
+#include "tools/score_save.h"
 
 #define CMD "score"
 #define SPARSE_STEPS 100
@@ -558,6 +559,12 @@ static int run_layout(sinew_ctx *ctx, const layout_opts *o)
     int rc = score_layout_list(CMD, o->layout, o->root, o->pass, &set);
     if (rc)
         return rc;
+    /* every --save path is checked before anything is estimated or written */
+    if (o->save &&
+        (rc = score_save_check(CMD, &set, o->save, o->root, strcmp(o->layout, "list")))) {
+        score_set_free(&set);
+        return rc;
+    }
     score_row *rows = calloc(set.n, sizeof *rows);
     if (!rows) {
         score_set_free(&set);

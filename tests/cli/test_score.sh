@@ -194,6 +194,23 @@ sys.exit(0 if all(p["epe"] < 0.5 for p in d["pairs"]) else 1)' "$T/p1.json"; the
 else
     fail "--preset balanced" "exit $? ($(head -c 300 "$T/err"))"
 fi
+# ---- --save never writes onto or inside an input, never outside DIR (issue 21, item 4) --
+# On the previous main the first replaced p0/gt.flo with the estimate (a rescore then
+# reported EPE 0) and the second wrote outside the --save folder.
+cp "$P/p0/gt.flo" "$T/gt0.copy"
+expect_error "--save onto the dataset folder is refused" - "p0/gt\.flo: is an input" \
+    "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --preset fast --save "$P"
+if cmp -s "$P/p0/gt.flo" "$T/gt0.copy"; then pass "--save refused: ground truth untouched"
+else fail "--save refused: ground truth untouched" "p0/gt.flo changed"; fi
+mkdir -p "$P/up"
+printf '../p0/a.png ../p0/b.png ../../escape/gt.flo\n' >"$P/up/dotdot.txt"
+expect_error "--save: '..' in a list path is refused" - "escape/gt\.flo: outside the --save folder" \
+    "$SINEW_BIN" score --layout list --root "$P/up/dotdot.txt" --preset fast --save "$T/sv"
+if [ -e "$T/escape" ] || [ -e "$T/sv" ]; then fail "--save '..': nothing written" "$(ls "$T")"
+else pass "--save '..': nothing written"; fi
+mkdir -p "$T/svl" && ln -s "$P/p1" "$T/svl/p1"
+expect_error "--save through a link onto an input is refused" - "p1/gt\.flo: (is an input|outside)" \
+    "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --preset fast --save "$T/svl"
 expect_error "unknown preset is a usage error" - "unknown preset 'nope'" \
     "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --preset nope
 expect_error "--save needs --preset" - "--save" \

@@ -569,3 +569,94 @@ int sinew_read_file(sinew_ctx *ctx, const char *path, size_t max_bytes, unsigned
     *len = got;
     return SINEW_OK;
 }
+
+/* ---- text ---- */
+
+size_t sinew_utf8_len(const unsigned char *s, size_t n)
+{
+    if (!s || n == 0)
+        return 0;
+    unsigned c = s[0];
+    if (c < 0x80)
+        return 1;
+    size_t len;
+    unsigned lo = 0x80, hi = 0xBF; /* allowed range of the second byte */
+    if (c >= 0xC2 && c <= 0xDF)
+        len = 2;
+    else if (c >= 0xE0 && c <= 0xEF) {
+        len = 3;
+        if (c == 0xE0)
+            lo = 0xA0; /* no overlong forms */
+        else if (c == 0xED)
+            hi = 0x9F; /* no surrogates */
+    } else if (c >= 0xF0 && c <= 0xF4) {
+        len = 4;
+        if (c == 0xF0)
+            lo = 0x90;
+        else if (c == 0xF4)
+            hi = 0x8F; /* at most U+10FFFF */
+    } else
+        return 0;
+    if (n < len || s[1] < lo || s[1] > hi)
+        return 0;
+    for (size_t k = 2; k < len; k++)
+        if ((s[k] & 0xC0) != 0x80)
+            return 0;
+    return len;
+}
+
+int sinew_json_utf8(sinew_ctx *ctx, const char *text, size_t n, char **out, size_t *outn)
+{
+    if (!ctx || (!text && n) || !out)
+        return SINEW_EINVAL;
+    *out = NULL;
+    const unsigned char *s = (const unsigned char *)text;
+    size_t bad = 0;
+    for (size_t i = 0; i < n;) {
+        size_t l = sinew_utf8_len(s + i, n - i);
+        bad += l == 0;
+        i += l ? l : 1;
+    }
+    size_t cap;
+    if (sinew__mul_size(bad, 5, &cap) || sinew__add_size(cap, n + 1, &cap))
+        return sinew__fail(ctx, SINEW_EOVERFLOW, "JSON text too long");
+    char *d = sinew__alloc(ctx, cap);
+    if (!d)
+        return SINEW_ENOMEM;
+    size_t o = 0;
+    static const char hex[] = "0123456789abcdef";
+    for (size_t i = 0; i < n;) {
+        size_t l = sinew_utf8_len(s + i, n - i);
+        if (l) {
+            memcpy(d + o, s + i, l);
+            o += l;
+            i += l;
+        } else {
+            memcpy(d + o, "\\u00", 4);
+            d[o + 4] = hex[s[i] >> 4];
+            d[o + 5] = hex[s[i] & 15];
+            o += 6;
+            i++;
+        }
+    }
+    d[o] = '\0';
+    *out = d;
+    if (outn)
+        *outn = o;
+    return SINEW_OK;
+}
+
+int sinew_write_json_text(sinew_ctx *ctx, const char *path, const char *text)
+{
+    if (!ctx || !path || !text)
+        return SINEW_EINVAL;
+    char *u;
+    size_t n;
+    int rc = sinew_json_utf8(ctx, text, strlen(text), &u, &n);
+    if (rc)
+        return rc;
+    u[n] = '\n'; /* the terminator becomes the final newline */
+    rc = sinew_write_file(ctx, path, u, n + 1);
+    sinew_ctx_dealloc(ctx, u);
+    return rc;
+}

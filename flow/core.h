@@ -179,6 +179,24 @@ int sinew_write_file(sinew_ctx *ctx, const char *path, const void *buf, size_t l
 int sinew_read_file(sinew_ctx *ctx, const char *path, size_t max_bytes, unsigned char **buf,
                     size_t *len);
 
+/* ---- text from file names ---------------------------------------------------------
+ * File names are bytes; JSON must be UTF-8 (RFC 8259). Rule used by every JSON file
+ * sinew writes: a byte that is not part of valid UTF-8 is written as the escape \u00XX,
+ * i.e. read as Latin-1 (ISO 8859-1), so the file is valid UTF-8 JSON; such a name reads
+ * back as different bytes (it is for showing, not for reopening). */
+/* Length (1..4) of the valid UTF-8 sequence starting at s (n bytes available, n >= 1),
+ * or 0 if none starts there (RFC 3629: no overlong forms, no surrogates, at most
+ * U+10FFFF). */
+size_t sinew_utf8_len(const unsigned char *s, size_t n);
+/* Copy JSON text (n bytes) into a new NUL-terminated buffer (sinew_ctx_alloc; free
+ * with sinew_ctx_dealloc) with every byte outside valid UTF-8 replaced by \u00XX.
+ * Such bytes can only occur inside JSON strings, so the result is valid JSON. *outn
+ * (may be NULL) receives the length. ENOMEM / EOVERFLOW. */
+int sinew_json_utf8(sinew_ctx *ctx, const char *text, size_t n, char **out, size_t *outn);
+/* Write JSON text (NUL-terminated, e.g. from cJSON_Print) to path atomically, made valid
+ * UTF-8 as above, with a final newline. */
+int sinew_write_json_text(sinew_ctx *ctx, const char *path, const char *text);
+
 #ifdef __cplusplus
 }
 #endif

@@ -15,9 +15,8 @@ int sinew__json_write(sinew_ctx *ctx, const char *path, const cJSON *obj)
     char *text = cJSON_Print(obj);
     if (!text)
         return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory formatting JSON", path);
-    size_t n = strlen(text);
-    text[n] = '\n'; /* replace the terminator: cJSON output is text, add a final newline */
-    int rc = sinew_write_file(ctx, path, text, n + 1);
+    /* file names may hold any bytes: written as valid UTF-8 (flow/core.h) */
+    int rc = sinew_write_json_text(ctx, path, text);
     cJSON_free(text);
     return rc;
 }

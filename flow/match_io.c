@@ -305,9 +305,16 @@ int sinew_matches_save(sinew_ctx *ctx, const sinew_matches *m, const sinew_match
         return rc;
     }
     FILE *fp = sinew_outfile_stream(f);
-    fputs(text, fp);
-    fputc('\n', fp);
+    char *u = NULL;
+    rc = sinew_json_utf8(ctx, text, strlen(text), &u, NULL); /* source paths: any bytes */
     cJSON_free(text);
+    if (rc) {
+        sinew_outfile_abort(f);
+        return rc;
+    }
+    fputs(u, fp);
+    fputc('\n', fp);
+    sinew_ctx_dealloc(ctx, u);
     rc = sinew_npy_write_table(ctx, npy_path, m->data, m->rows, (size_t)m->cols);
     if (rc) {
         sinew_outfile_abort(f);

@@ -446,12 +446,8 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
             if (!rc && !stats)
                 rc = sinew__fail(ctx, SINEW_EINTERNAL, "%s: pair function gave no stats", name);
             char sp[SINEW__PATH_MAX];
-            if (!rc && !(rc = sinew__path_join(ctx, sp, sizeof sp, dir, SINEW_RUN_STATS_FILE))) {
-                size_t n = strlen(stats);
-                stats[n] = '\n'; /* the stats buffer is NUL-terminated; replace it */
-                rc = sinew_write_file(ctx, sp, stats, n + 1);
-                stats[n] = '\0';
-            }
+            if (!rc && !(rc = sinew__path_join(ctx, sp, sizeof sp, dir, SINEW_RUN_STATS_FILE)))
+                rc = sinew_write_json_text(ctx, sp, stats); /* valid UTF-8, final newline */
             sinew_ctx_dealloc(ctx, stats);
             if (!rc)
                 rc = write_done_record(run, q, name, dir, key, in, nin);

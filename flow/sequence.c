@@ -1022,10 +1022,7 @@ int sinew_sequence_write(sinew_sequence *seq, const char *path)
     cJSON_Delete(root);
     if (!text)
         return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory building JSON", path);
-    size_t n = strlen(text);
-    text[n] = '\n'; /* overwrite the terminator: the file ends with a newline */
-    st = sinew_write_file(ctx, path, text, n + 1);
-    text[n] = 0;
+    st = sinew_write_json_text(ctx, path, text); /* valid UTF-8, final newline */
     cJSON_free(text);
     return st;
 }

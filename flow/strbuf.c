@@ -98,11 +98,30 @@ void sinew__sb_append(sinew__sbuf *b, const sinew__sbuf *o)
         sinew__sb_put(b, o->p, o->n);
 }
 
+/* HTML text: markup characters as entities; file names are bytes, so a byte outside
+ * valid UTF-8 is written as the character of its Latin-1 reading (&#xXX;, as in the JSON
+ * files) and a control byte other than tab and newline as U+FFFD: no raw bytes. */
 void sinew__sb_esc(sinew__sbuf *b, const char *s)
 {
     if (!s)
         return;
+    size_t n = strlen(s);
     for (const char *p = s; *p; p++) {
+        unsigned char c = (unsigned char)*p;
+        size_t l = sinew_utf8_len((const unsigned char *)p, n - (size_t)(p - s));
+        if (l == 0) {
+            sinew__sb_printf(b, "&#x%02X;", c);
+            continue;
+        }
+        if (l > 1) {
+            sinew__sb_put(b, p, l);
+            p += l - 1;
+            continue;
+        }
+        if ((c < 0x20 && c != '\t' && c != '\n') || c == 0x7f) {
+            sinew__sb_puts(b, "&#xFFFD;");
+            continue;
+        }
         switch (*p) {
         case '&':
             sinew__sb_puts(b, "&amp;");

@@ -16,17 +16,72 @@ const char cli_notice[] =
     "diagnosis or treatment. Handle clinical or patient-derived data under your\n"
     "institution's rules (ethics approval, consent, de-identification).\n";
 
+/* C0 controls, DEL, and C1 controls (U+0080..U+009F, UTF-8 C2 80..C2 9F): bytes at s
+ * that a terminal could act on; returns their length (0: none). */
+static size_t control_len(const unsigned char *s)
+{
+    if (s[0] < 0x20 || s[0] == 0x7f)
+        return 1;
+    if (s[0] == 0xc2 && s[1] >= 0x80 && s[1] <= 0x9f)
+        return 2;
+    return 0;
+}
+
+const char *cli_term_text(const char *s, char *buf, size_t n)
+{
+    size_t o = 0;
+    if (!n)
+        return buf;
+    for (const unsigned char *p = (const unsigned char *)s; *p && o + 1 < n;) {
+        size_t c = control_len(p);
+        if (!c) {
+            buf[o++] = (char)*p++;
+            continue;
+        }
+        for (size_t k = 0; k < c; k++, p++) {
+            if (o + 5 > n)
+                break;
+            o += (size_t)snprintf(buf + o, n - o, "\\x%02x", *p);
+        }
+        if (o + 5 > n)
+            break;
+    }
+    buf[o] = '\0';
+    return buf;
+}
+
+void cli_json_string(FILE *f, const char *s)
+{
+    fputc('"', f);
+    size_t n = strlen(s);
+    const unsigned char *u = (const unsigned char *)s;
+    for (size_t i = 0; i < n;) {
+        size_t l = sinew_utf8_len(u + i, n - i);
+        if (l == 1 && (u[i] == '"' || u[i] == '\\'))
+            fprintf(f, "\\%c", u[i]);
+        else if (l == 1 && u[i] < 0x20)
+            fprintf(f, "\\u%04x", u[i]);
+        else if (l)
+            fwrite(u + i, 1, l, f);
+        else
+            fprintf(f, "\\u00%02x", u[i]); /* not UTF-8: its Latin-1 reading */
+        i += l ? l : 1;
+    }
+    fputc('"', f);
+}
+
 static void vprint_line(const char *cmd, const char *fmt, va_list ap)
 {
-    char buf[2048];
+    char buf[2048], safe[4096];
     vsnprintf(buf, sizeof buf, fmt, ap);
     for (char *p = buf; *p; p++)
         if (*p == '\n' || *p == '\r')
             *p = ' ';
+    cli_term_text(buf, safe, sizeof safe); /* file names may carry ESC and friends */
     if (cmd && *cmd)
-        fprintf(stderr, "sinew: %s: %s\n", cmd, buf);
+        fprintf(stderr, "sinew: %s: %s\n", cmd, safe);
     else
-        fprintf(stderr, "sinew: %s\n", buf);
+        fprintf(stderr, "sinew: %s\n", safe);
 }
 
 int cli_error(const char *cmd, const char *fmt, ...)

@@ -5,6 +5,7 @@
 #define SINEW_CLI_H
 
 #include <signal.h>
+#include <stdio.h>
 
 #include "flow/sinew.h"
 
@@ -21,6 +22,14 @@ int cli_error(const char *cmd, const char *fmt, ...) __attribute__((format(print
 int cli_usage_error(const char *cmd, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 /* Print the context's message for a failed status (or the generic text). Returns CLI_FAIL. */
 int cli_status(const char *cmd, sinew_ctx *ctx, int status);
+
+/* Text from file names on a terminal or in JSON (names are bytes):
+ * cli_term_text copies s into buf (size n, truncated) with control bytes (C0, DEL and
+ * the C1 range U+0080..U+009F) written as \xHH, so a name cannot drive the terminal;
+ * cli_json_string prints s as a JSON string, bytes outside valid UTF-8 as \u00XX
+ * (their Latin-1 reading, as every JSON file sinew writes). */
+const char *cli_term_text(const char *s, char *buf, size_t n);
+void cli_json_string(FILE *f, const char *s);
 
 /* Strict parsers: the whole string must be a number in range; 0 on success. */
 int cli_parse_int(const char *s, long min, long max, long *out);

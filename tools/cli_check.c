@@ -149,12 +149,8 @@ int cli_check_write(const char *cmd, sinew_ctx *ctx, const cli_check_result *r, 
     st = SINEW_ENOMEM;
     if (!(text = cJSON_Print(root)))
         goto fail;
-    size_t len = strlen(text);
-    text[len] = '\n'; /* cJSON_Print's NUL becomes the final newline */
     snprintf(path, n, "%s/check.json", dir);
-    st = sinew_write_file(ctx, path, text, len + 1);
-    text[len] = '\0';
-    if (st)
+    if ((st = sinew_write_json_text(ctx, path, text))) /* valid UTF-8, final newline */
         goto fail;
     free(text);
     free(path);

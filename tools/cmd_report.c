@@ -110,8 +110,9 @@ int cmd_report(int argc, char **argv)
         return CLI_FAIL;
     int st = sinew_report_write(ctx, dir, out, &o);
     int rc = st ? cli_status(CMD, ctx, st) : CLI_OK;
+    char safe[4200];
     if (!rc)
-        printf("%s\n", out);
+        printf("%s\n", cli_term_text(out, safe, sizeof safe));
     sinew_ctx_free(ctx);
     return rc;
 }

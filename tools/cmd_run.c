@@ -135,21 +135,6 @@ static const char *status_word(sinew_pair_status s)
     }
 }
 
-static void json_string(FILE *f, const char *s)
-{
-    fputc('"', f);
-    for (; *s; s++) {
-        unsigned char c = (unsigned char)*s;
-        if (c == '"' || c == '\\')
-            fprintf(f, "\\%c", c);
-        else if (c < 0x20)
-            fprintf(f, "\\u%04x", c);
-        else
-            fputc(c, f);
-    }
-    fputc('"', f);
-}
-
 static void on_progress(void *ud, const sinew_run_progress *p)
 {
     progress_state *ps = ud;
@@ -157,7 +142,7 @@ static void on_progress(void *ud, const sinew_run_progress *p)
     /* rate and ETA from computed pairs only: skipped pairs cost almost nothing */
     double rate = el > 0 ? (double)p->computed / el : 0;
     double eta = rate > 0 ? (double)(p->total - p->finished) / rate : NAN;
-    char etab[32];
+    char etab[32], msg[4096]; /* messages name files: control bytes escaped */
     fmt_eta(etab, sizeof etab, p->finished == p->total ? 0 : eta);
     if (ps->mode == PROG_JSON) {
         printf("{\"event\":\"pair\",\"pair\":\"%s\",\"status\":\"%s\",\"finished\":%zu,"
@@ -167,7 +152,7 @@ static void on_progress(void *ud, const sinew_run_progress *p)
                p->failed, el, rate);
         if (p->message && *p->message) {
             printf(",\"error\":");
-            json_string(stdout, p->message);
+            cli_json_string(stdout, p->message);
         }
         printf("}\n");
     } else if (ps->live) {
@@ -183,11 +168,11 @@ static void on_progress(void *ud, const sinew_run_progress *p)
             putchar(' ');
         ps->last_len = (size_t)n;
         if (p->status == SINEW_PAIR_FAILED)
-            printf("\n%s failed: %s\n", p->name, p->message);
+            printf("\n%s failed: %s\n", p->name, cli_term_text(p->message, msg, sizeof msg));
     } else {
         printf("%zu/%zu %s %s", p->finished, p->total, p->name, status_word(p->status));
         if (p->status == SINEW_PAIR_FAILED)
-            printf(": %s", p->message);
+            printf(": %s", cli_term_text(p->message, msg, sizeof msg));
         printf("  (%.2f pairs/s, ETA %s)\n", rate, etab);
     }
     fflush(stdout);

@@ -302,7 +302,9 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
         cJSON_Delete(root);
         goto done;
     }
-    printf("sinew score: %s against %s\n", est_path, gt_path);
+    char te[1024], tg[1024];
+    printf("sinew score: %s against %s\n", cli_term_text(est_path, te, sizeof te),
+           cli_term_text(gt_path, tg, sizeof tg));
     printf("averaging: %s (one pair: mean over its scored pixels)\n", avg);
     printf("dens%% = scored share of the known ground truth (unknown estimates are not "
            "scored)\n\n");

@@ -64,11 +64,19 @@ const char *const score_density_note =
 
 int score_print_json(cJSON *root)
 {
-    char *txt = cJSON_Print(root);
+    char *txt = cJSON_Print(root), *u = NULL;
     if (!txt)
         return cli_error(CMD, "out of memory");
-    int ok = fputs(txt, stdout) >= 0 && fputc('\n', stdout) != EOF && fflush(stdout) == 0;
+    sinew_ctx *ctx = sinew_ctx_new();
+    int rc = ctx ? sinew_json_utf8(ctx, txt, strlen(txt), &u, NULL) : SINEW_ENOMEM;
     cJSON_free(txt);
+    if (rc) { /* ids and paths come from file names: valid UTF-8 only (flow/core.h) */
+        sinew_ctx_free(ctx);
+        return cli_error(CMD, "out of memory");
+    }
+    int ok = fputs(u, stdout) >= 0 && fputc('\n', stdout) != EOF && fflush(stdout) == 0;
+    sinew_ctx_dealloc(ctx, u);
+    sinew_ctx_free(ctx);
     return ok ? CLI_OK : cli_error(CMD, "stdout: write failed");
 }
 
@@ -101,8 +109,10 @@ void score_text_row(FILE *f, const char *label, const sinew_flow_summary *s, dou
     score_fmt_val(v[7], sizeof v[7], s->fl_all_pct, "%.2f");
     score_fmt_val(v[8], sizeof v[8], t, "%.3f");
     score_fmt_val(v[9], sizeof v[9], ause, "%.5f");
-    fprintf(f, "%-24s %10lld %8s %8s %8s %7s %7s %7s %7s %7s", label, (long long)s->n_valid, v[0],
-            v[1], v[2], v[3], v[4], v[5], v[6], v[7]);
+    char lab[1024]; /* pair ids come from file names */
+    fprintf(f, "%-24s %10lld %8s %8s %8s %7s %7s %7s %7s %7s",
+            cli_term_text(label, lab, sizeof lab), (long long)s->n_valid, v[0], v[1], v[2], v[3],
+            v[4], v[5], v[6], v[7]);
     if (c.time)
         fprintf(f, " %7s", v[8]);
     if (c.ause)

@@ -123,3 +123,45 @@ if timeout -s KILL 120 "$SINEW_BIN" run "$T/sigseq" -o "$T/sigINT" --preset accu
     >"$T/out" 2>"$T/err" && grep -q "1 done, 0 failed, 0 pending" "$T/out"; then
     pass "resume after a second signal completes the run"
 else fail "resume after a second signal completes the run" "$(cat "$T/out" "$T/err" | head -c 300)"; fi
+
+# --- file names that are not UTF-8 or carry control bytes (issue 21, item 7) ----------
+# Rule (docs/robustness.md): every JSON file is valid UTF-8 (a byte outside UTF-8 is
+# written as \u00XX, its Latin-1 reading), report.html has no raw bytes, the terminal
+# never gets a control byte from a file name. On the previous main manifest.json and
+# done.json held the raw bytes and ESC reached stderr.
+u8="$T/u8seq"
+mkdir -p "$u8/color"
+"$SINEW_BIN" synth -o "$T/u8src" --frames 3 --size 64x48 >/dev/null 2>&1
+cp "$T/u8src/color/000000.png" "$(printf '%s/color/a\351t\351.png' "$u8")"
+cp "$T/u8src/color/000001.png" "$(printf '%s/color/b\033[31mred.png' "$u8")"
+printf 'not a png' >"$(printf '%s/color/c\351\033]0;title\007.png' "$u8")"
+"$SINEW_BIN" run "$u8" -o "$T/u8run" --preset fast --on-error skip --report --progress plain \
+    >"$T/u8.out" 2>"$T/u8.err"
+"$PYTHON" - "$T/u8run" <<'PY' >"$T/u8.check" 2>&1
+import glob, json, sys
+root = sys.argv[1]
+files = glob.glob(root + "/**/*.json", recursive=True)
+assert any(f.endswith("manifest.json") for f in files), "no manifest"
+for f in files:
+    json.loads(open(f, "rb").read().decode("utf-8"))  # strict UTF-8, then JSON
+m = json.load(open(root + "/manifest.json", encoding="utf-8"))
+paths = [i["path"] for i in m["inputs"]]
+assert any(p.endswith("a\u00e9t\u00e9.png") for p in paths), paths  # Latin-1 reading
+html = open(root + "/report.html", "rb").read().decode("utf-8")
+bad = [c for c in html if (ord(c) < 0x20 and c not in "\t\n") or ord(c) == 0x7f]
+assert not bad, "raw control characters in report.html: %r" % bad[:5]
+print("ok")
+PY
+if grep -qx ok "$T/u8.check"; then pass "non-UTF-8 and ESC file names: valid UTF-8 JSON, clean report"
+else fail "non-UTF-8 and ESC file names: valid UTF-8 JSON, clean report" "$(tail -c 300 "$T/u8.check")"; fi
+if LC_ALL=C grep -q "$(printf '\033')" "$T/u8.out" "$T/u8.err"; then
+    fail "ESC in file names never reaches the terminal" "$(cat -v "$T/u8.out" "$T/u8.err" | head -c 300)"
+elif ! grep -q 'x1b' "$T/u8.out" "$T/u8.err"; then
+    fail "ESC in file names never reaches the terminal" "no escaped name: $(head -c 300 "$T/u8.err")"
+else pass "ESC in file names never reaches the terminal (written as \\x1b)"; fi
+"$SINEW_BIN" run "$u8" -o "$T/u8json" --preset fast --on-error skip --progress json \
+    >"$T/u8.jsonl" 2>/dev/null
+if "$PYTHON" -c 'import json,sys
+[json.loads(l) for l in open(sys.argv[1], "rb").read().decode("utf-8").splitlines()]' "$T/u8.jsonl"; then
+    pass "--progress json with such names: UTF-8 JSON lines"
+else fail "--progress json with such names: UTF-8 JSON lines" "$(cat -v "$T/u8.jsonl" | head -c 300)"; fi

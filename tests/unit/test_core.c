@@ -144,6 +144,44 @@ static void test_core_stop_flag_and_temporaries(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* UTF-8 validity per RFC 3629 section 4 (the byte-sequence grammar) and its section 10
+ * examples of what must be refused: overlong forms (C0 AF for '/'), surrogates
+ * (ED A0 80 = U+D800), code points above U+10FFFF (F4 90 80 80). */
+static void test_core_utf8_rules(void **state)
+{
+    (void)state;
+    static const struct {
+        const char *s;
+        size_t len;
+    } cases[] = {
+        {"A", 1},
+        {"\xC3\xA9", 2},         /* U+00E9 */
+        {"\xE2\x82\xAC", 3},     /* U+20AC */
+        {"\xF0\x9F\x98\x80", 4}, /* U+1F600 */
+        {"\xF4\x8F\xBF\xBF", 4}, /* U+10FFFF, the last code point */
+        {"\xC0\xAF", 0},         /* overlong '/' */
+        {"\xE0\x80\xAF", 0},     /* overlong '/' */
+        {"\xED\xA0\x80", 0},     /* surrogate U+D800 */
+        {"\xF4\x90\x80\x80", 0}, /* above U+10FFFF */
+        {"\xE9", 0},             /* Latin-1 e-acute alone */
+        {"\xC3", 0},             /* truncated */
+        {"\x80", 0},             /* lone continuation byte */
+    };
+    for (size_t k = 0; k < sizeof cases / sizeof cases[0]; k++)
+        assert_int_equal(sinew_utf8_len((const unsigned char *)cases[k].s, strlen(cases[k].s)),
+                         cases[k].len);
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *out;
+    size_t n;
+    const char in[] = "{\"p\": \"caf\xE9 \xC3\xA9\x1B\"}";
+    assert_int_equal(sinew_json_utf8(ctx, in, strlen(in), &out, &n), SINEW_OK);
+    /* the Latin-1 byte E9 becomes the escape; valid UTF-8 and other bytes stay */
+    assert_string_equal(out, "{\"p\": \"caf\\u00e9 \xC3\xA9\x1B\"}");
+    assert_int_equal(n, strlen(out));
+    sinew_ctx_dealloc(ctx, out);
+    sinew_ctx_free(ctx);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -153,6 +191,7 @@ int main(void)
         cmocka_unit_test(test_core_alloc_failure_is_clean),
         cmocka_unit_test(test_core_outfile_atomic),
         cmocka_unit_test(test_core_stop_flag_and_temporaries),
+        cmocka_unit_test(test_core_utf8_rules),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

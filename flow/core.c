@@ -30,7 +30,7 @@ struct sinew_ctx {
      * cleared before the name is renamed or freed. */
     volatile sig_atomic_t tmp_live[SINEW_CTX_TRACKED_TEMPORARIES];
     char tmp_path[SINEW_CTX_TRACKED_TEMPORARIES][SINEW__TMP_PATH_MAX];
-    char message[1024];
+    char message[SINEW_MESSAGE_MAX];
 };
 
 static void *default_alloc(void *ud, size_t n)
@@ -206,13 +206,41 @@ static void tmp_untrack(sinew_ctx *ctx, int slot)
         ctx->tmp_live[slot] = 0;
 }
 
+char *sinew_text_fit(char *dst, size_t n, const char *src)
+{
+    static const char mid[] = " ... ";
+    size_t len = strlen(src), m = sizeof mid - 1;
+    if (len < n || n < 16) {
+        if (n == 0)
+            return dst;
+        len = len < n ? len : n - 1;
+        memmove(dst, src, len);
+        dst[len] = '\0';
+        return dst;
+    }
+    /* keep a third at the start (the file name) and the rest at the end (the cause) */
+    size_t room = n - 1 - m, head = room / 3, tail = room - head;
+    while (head > 0 && ((unsigned char)src[head] & 0xC0) == 0x80)
+        head--; /* do not split a UTF-8 character */
+    size_t t0 = len - tail;
+    while (t0 < len && ((unsigned char)src[t0] & 0xC0) == 0x80)
+        t0++;
+    memmove(dst, src, head);
+    memcpy(dst + head, mid, m);
+    memmove(dst + head + m, src + t0, len - t0 + 1);
+    return dst;
+}
+
 int sinew__fail(sinew_ctx *ctx, int status, const char *fmt, ...)
 {
     if (ctx) {
+        /* two paths of SINEW__PATH_MAX and a cause fit here; then fit into the message */
+        char full[3 * SINEW_MESSAGE_MAX + 2 * 4096];
         va_list ap;
         va_start(ap, fmt);
-        vsnprintf(ctx->message, sizeof ctx->message, fmt, ap);
+        vsnprintf(full, sizeof full, fmt, ap);
         va_end(ap);
+        sinew_text_fit(ctx->message, sizeof ctx->message, full);
     }
     return status;
 }

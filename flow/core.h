@@ -63,6 +63,14 @@ sinew_ctx *sinew_ctx_new(void);
 sinew_ctx *sinew_ctx_new_with(const sinew_allocator *a);
 void sinew_ctx_free(sinew_ctx *ctx);
 
+/* Longest detail message, NUL included. A longer one keeps its start and its end with
+ * " ... " in the middle, so both the file name and the cause survive. Buffers of this
+ * size hold any message copied from a context. */
+#define SINEW_MESSAGE_MAX 2048
+/* Copy src into dst (size n >= 16) the same way: whole if it fits, else its start and
+ * end around " ... " (cut at UTF-8 character boundaries). Returns dst. */
+char *sinew_text_fit(char *dst, size_t n, const char *src);
+
 /* Detail of the last failure on this context ("" if none). Valid until the next call
  * that fails on the same context. Messages name the file involved where there is one. */
 const char *sinew_ctx_message(const sinew_ctx *ctx);

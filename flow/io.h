@@ -74,6 +74,13 @@ int sinew_npy_write_image(sinew_ctx *ctx, const char *path, const sinew_image *i
  * rows may be 0 (an empty table, shape (0, cols)); data may then be NULL. */
 int sinew_npy_write_table(sinew_ctx *ctx, const char *path, const float *data, size_t rows,
                           size_t cols);
+/* Read a 2-D .npy table (rows x cols, rows may be 0) into *data (contiguous float32,
+ * sinew_ctx_alloc; NULL when rows = 0; free with sinew_ctx_dealloc). Everything is
+ * checked from the header before the data is read: 2 dimensions, a float dtype,
+ * cols >= 1 and, when expect_cols > 0, cols == expect_cols; rows x cols within the
+ * pixel limit and within the file. EFORMAT / EUNSUPPORTED / ELIMIT naming the file. */
+int sinew_npy_read_table(sinew_ctx *ctx, const char *path, size_t expect_cols, float **data,
+                         size_t *rows, size_t *cols);
 /* PFM scalar ("Pf") or 3-channel ("PF") maps, e.g. float depth in metres. */
 int sinew_pfm_read_image(sinew_ctx *ctx, sinew_image *out, const char *path);
 int sinew_pfm_write_image(sinew_ctx *ctx, const char *path, const sinew_image *img);

@@ -203,24 +203,39 @@ static size_t float_descr(const char *d, int *big)
     return d[2] == '2' ? 2 : d[2] == '4' ? 4 : d[2] == '8' ? 8 : 0;
 }
 
+/* Open a float array in C order and read its header: *fp at the first data byte, the
+ * element size and byte order; on failure nothing stays open. */
+static int open_float_npy(sinew_ctx *ctx, const char *path, FILE **fp, npy_header *h, size_t *elem,
+                          int *big)
+{
+    memset(h, 0, sizeof *h);
+    int rc = sinew__open_regular(ctx, path, fp);
+    if (rc)
+        return rc;
+    rc = read_header(ctx, path, *fp, h);
+    if (!rc && !(*elem = float_descr(h->descr, big)))
+        rc = sinew__fail(ctx, SINEW_EUNSUPPORTED,
+                         "%s: .npy dtype '%s' not supported (need float16, float32 or float64)",
+                         path, h->descr);
+    if (!rc && h->fortran)
+        rc = sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: Fortran-order .npy not supported", path);
+    if (rc) {
+        fclose(*fp);
+        *fp = NULL;
+    }
+    return rc;
+}
+
 int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow)
 {
     memset(out, 0, sizeof *out);
     FILE *fp;
-    int rc = sinew__open_regular(ctx, path, &fp);
-    if (rc)
-        return rc;
     npy_header h;
-    memset(&h, 0, sizeof h); /* read_header may fail before filling it */
-    rc = read_header(ctx, path, fp, &h);
     int big = 0;
     size_t elem = 0;
-    if (!rc && !(elem = float_descr(h.descr, &big)))
-        rc = sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                         "%s: .npy dtype '%s' not supported (need float16, float32 or float64)",
-                         path, h.descr);
-    if (!rc && h.fortran)
-        rc = sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: Fortran-order .npy not supported", path);
+    int rc = open_float_npy(ctx, path, &fp, &h, &elem, &big);
+    if (rc)
+        return rc;
     int64_t c = h.ndim == 3 ? h.shape[2] : 1;
     if (!rc && (h.ndim < 2 || h.ndim > 3 || c < 1 || c > 4 || (flow && (h.ndim != 3 || c != 2))))
         rc = sinew__fail(ctx, flow ? SINEW_EFORMAT : SINEW_EUNSUPPORTED,
@@ -261,6 +276,60 @@ int sinew_npy_read_image(sinew_ctx *ctx, sinew_image *out, const char *path)
     if (!ctx || !out || !path)
         return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read .npy: missing argument") : SINEW_EINVAL;
     return sinew__npy_read(ctx, path, out, 0);
+}
+
+int sinew_npy_read_table(sinew_ctx *ctx, const char *path, size_t expect_cols, float **data,
+                         size_t *rows, size_t *cols)
+{
+    if (!ctx || !path || !data || !rows || !cols)
+        return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read .npy table: missing argument")
+                   : SINEW_EINVAL;
+    *data = NULL;
+    *rows = *cols = 0;
+    FILE *fp;
+    npy_header h;
+    int big = 0;
+    size_t elem = 0, rowbytes = 0, n = 0;
+    int rc = open_float_npy(ctx, path, &fp, &h, &elem, &big);
+    if (rc)
+        return rc;
+    if (!rc && (h.ndim != 2 || h.shape[1] < 1))
+        rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: not a table (need a 2-D N x C array, C >= 1)",
+                         path);
+    if (!rc && expect_cols && (uint64_t)h.shape[1] != expect_cols)
+        rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: table has %lld columns, expected %zu", path,
+                         (long long)h.shape[1], expect_cols);
+    if (!rc && h.shape[0] > 0)
+        rc = sinew__check_dims(ctx, path, h.shape[1], h.shape[0]);
+    if (!rc)
+        rc = sinew__io_bytes(ctx, path, h.shape[1], 1, 1, elem, &rowbytes);
+    if (!rc)
+        rc = sinew__io_check_remaining(ctx, path, fp, (size_t)h.shape[0], rowbytes, "NPY data");
+    if (!rc && h.shape[0] > 0) {
+        n = (size_t)h.shape[0] * (size_t)h.shape[1]; /* within the pixel limit: no overflow */
+        *data = sinew__alloc(ctx, n * sizeof **data);
+        unsigned char *scratch = *data ? sinew__alloc(ctx, rowbytes) : NULL;
+        if (!scratch)
+            rc = SINEW_ENOMEM;
+        for (int64_t r = 0; !rc && r < h.shape[0]; r++) {
+            rc = sinew__io_read(ctx, path, fp, scratch, rowbytes, "NPY data");
+            if (!rc)
+                sinew__io_decode_floats(*data + (size_t)r * (size_t)h.shape[1], scratch,
+                                        (size_t)h.shape[1], elem, big);
+        }
+        sinew__free(ctx, scratch);
+    }
+    if (!rc)
+        rc = sinew__io_expect_end(ctx, path, fp, "NPY data");
+    fclose(fp);
+    if (rc) {
+        sinew__free(ctx, *data);
+        *data = NULL;
+        return rc;
+    }
+    *rows = (size_t)h.shape[0];
+    *cols = (size_t)h.shape[1];
+    return SINEW_OK;
 }
 
 typedef struct npy_rows {

@@ -101,7 +101,7 @@ static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, 
         size_t nin = 0;
         const char *status = "pending";
         const char *error = NULL;
-        char msg[1024];
+        char msg[SINEW_MESSAGE_MAX];
         cJSON *stats = NULL, *err = NULL;
         if ((rc = sinew__check_cancel(ctx, s->outdir)))
             return rc;

@@ -412,7 +412,7 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
             result->total++;
     sinew__input in[SINEW__MAX_INPUTS];
     char fwd[SINEW__PATH_MAX], bwd[SINEW__PATH_MAX], dir[SINEW__PATH_MAX];
-    char first_msg[1024] = "";
+    char first_msg[SINEW_MESSAGE_MAX] = "";
     for (size_t q = 0; q < s->npairs; q++) {
         if (!sinew_shard_owns(q, s->shard_k, s->shard_n))
             continue;
@@ -452,7 +452,7 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
             if (!rc)
                 rc = write_done_record(run, q, name, dir, key, in, nin);
         }
-        char msg[1024] = "";
+        char msg[SINEW_MESSAGE_MAX] = "";
         if (rc == SINEW_EINTERRUPTED) {
             /* stopped inside the pair (hashing): not a failure of the pair; whatever it
              * left has no done record and is emptied when the pair is next computed */

@@ -397,7 +397,7 @@ static void flow_stats(const sinew_image *f, int64_t *unknown, double *mean, dou
         }
     }
     *unknown = unk;
-    *mean = known ? sum / (double)known : 0.0;
+    *mean = known ? sum / (double)known : NAN; /* no known vector: no mean (JSON null) */
     *max = mx;
 }
 
@@ -465,7 +465,10 @@ static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
         cJSON *d = cJSON_AddObjectToObject(o, nm[k]);
         if (d) {
             cJSON_AddNumberToObject(d, "unknown", (double)unk);
-            cJSON_AddNumberToObject(d, "mean_length_px", mean);
+            if (isfinite(mean))
+                cJSON_AddNumberToObject(d, "mean_length_px", mean);
+            else
+                cJSON_AddNullToObject(d, "mean_length_px");
         }
     }
     cJSON *c = cJSON_AddObjectToObject(o, "check");
@@ -567,6 +570,11 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
         return rc;
     const sinew_image *f0 = &s0->img, *f1 = &s1->img;
     int w = pl->width, h = pl->height;
+    if (pl->est && (f0->type != f1->type || f0->channels != f1->channels))
+        return sinew__fail(
+            ctx, SINEW_EINVAL, "%s: %d-channel %d-bit frame, but %s is %d-channel %d-bit",
+            pl->spec->frames[job->pair.j].color, f1->channels, (int)sinew_type_size(f1->type) * 8,
+            pl->spec->frames[job->pair.i].color, f0->channels, (int)sinew_type_size(f0->type) * 8);
     if (pl->est) {
         if ((rc = ensure(ctx, &pl->fwd, w, h, 2, SINEW_F32)) ||
             (rc = ensure(ctx, &pl->bwd, w, h, 2, SINEW_F32)) ||

@@ -72,6 +72,8 @@ int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes
                            SINEW_RUN_MAX_FRAMES);
     if (s->kind == SINEW_SCHEDULE_LIST && s->list_len && !s->list)
         return SINEW_EINVAL;
+    if (s->kind == SINEW_SCHEDULE_LIST && !s->list_len) /* a run that would do nothing */
+        return sinew__fail(ctx, SINEW_ECONFIG, "schedule: the pair list is empty");
     int64_t n = (int64_t)nframes;
     int64_t count = schedule_count(s, n);
     if (count < 0)
@@ -205,6 +207,8 @@ static int parse_list(sinew_ctx *ctx, const char *path, sinew_schedule *out, sin
     if (n < 0)
         rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: line %zu: expected 'I J' (frame numbers)", path,
                          bad);
+    else if (n == 0) /* a run that would end with success having done nothing */
+        rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no 'I J' lines: the schedule is empty", path);
     else if (n > SINEW_RUN_MAX_PAIRS)
         rc = sinew__fail(ctx, SINEW_ELIMIT, "%s: %lld pairs, limit %d", path, (long long)n,
                          SINEW_RUN_MAX_PAIRS);

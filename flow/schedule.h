@@ -43,7 +43,7 @@ typedef struct sinew_schedule {
 
 /* Expand a schedule for nframes frames into *pairs (allocated on ctx; free with
  * sinew_ctx_dealloc; NULL when *npairs is 0). Pairs whose partner falls past the
- * last frame are dropped. ECONFIG for a bad parameter, a LIST pair out of range,
+ * last frame are dropped. ECONFIG for a bad parameter, an empty LIST, a LIST pair out of range,
  * i == j, or a pair listed twice (it would share an output folder); ELIMIT beyond the
  * limits above. Order: increasing i then j, except LIST which keeps its order. */
 int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes,
@@ -54,10 +54,10 @@ int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes
  * decimal integers in 1..SINEW_RUN_MAX_FRAMES. FILE holds one pair "I J" per line
  * (frame numbers from 0, below SINEW_RUN_MAX_FRAMES; blank lines and lines starting
  * with '#' skipped). For a list the pairs are allocated on ctx into *list (free with
- * sinew_ctx_dealloc; NULL for an empty file) and out->list points to them; otherwise
- * *list is NULL. Returns SINEW_EINVAL without a message for text of none of these
- * forms (a usage error: no file is read), the read error naming FILE, EFORMAT
- * "FILE: line N: expected 'I J' (frame numbers)", or ELIMIT beyond
+ * sinew_ctx_dealloc) and out->list points to them; otherwise *list is NULL. Returns
+ * SINEW_EINVAL without a message for text of none of these forms (a usage error: no
+ * file is read), the read error naming FILE, EFORMAT "FILE: line N: expected 'I J'
+ * (frame numbers)", ECONFIG for a list of no pairs, or ELIMIT beyond
  * SINEW_RUN_MAX_PAIRS pairs. Ranges against the frame count are checked later by
  * sinew_schedule_pairs. */
 int sinew_schedule_parse(sinew_ctx *ctx, const char *text, sinew_schedule *out, sinew_pair **list);

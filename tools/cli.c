@@ -72,16 +72,30 @@ void cli_json_string(FILE *f, const char *s)
 
 static void vprint_line(const char *cmd, const char *fmt, va_list ap)
 {
-    char buf[2048], safe[4096];
-    vsnprintf(buf, sizeof buf, fmt, ap);
+    /* whole, never cut: the cause is at the end of the line */
+    va_list aq;
+    va_copy(aq, ap);
+    int w = vsnprintf(NULL, 0, fmt, aq);
+    va_end(aq);
+    size_t n = w > 0 ? (size_t)w + 1 : 1;
+    char *buf = malloc(n), *safe = malloc(4 * n); /* \xHH: at most 4 bytes per byte */
+    if (!buf || !safe) {
+        free(buf);
+        free(safe);
+        fprintf(stderr, "sinew: %s: out of memory printing an error\n", cmd ? cmd : "");
+        return;
+    }
+    vsnprintf(buf, n, fmt, ap);
     for (char *p = buf; *p; p++)
         if (*p == '\n' || *p == '\r')
             *p = ' ';
-    cli_term_text(buf, safe, sizeof safe); /* file names may carry ESC and friends */
+    cli_term_text(buf, safe, 4 * n); /* file names may carry ESC and friends */
     if (cmd && *cmd)
         fprintf(stderr, "sinew: %s: %s\n", cmd, safe);
     else
         fprintf(stderr, "sinew: %s\n", safe);
+    free(buf);
+    free(safe);
 }
 
 int cli_error(const char *cmd, const char *fmt, ...)
@@ -95,7 +109,7 @@ int cli_error(const char *cmd, const char *fmt, ...)
 
 int cli_usage_error(const char *cmd, const char *fmt, ...)
 {
-    char buf[1800];
+    char buf[3 * SINEW_MESSAGE_MAX];
     va_list ap;
     va_start(ap, fmt);
     vsnprintf(buf, sizeof buf, fmt, ap);

@@ -196,7 +196,7 @@ static int same_size(const sinew_image *a, const char *pa, const sinew_image *b,
 }
 
 /* Column indices from the sidecar: {"columns": ["u0", "v0", "u1", "v1", "weight", ...]}. */
-static int read_columns(sinew_ctx *ctx, const char *path, size_t ncols, sinew_match_table *t)
+static int read_columns(sinew_ctx *ctx, const char *path, size_t *ncols, sinew_match_table *t)
 {
     unsigned char *buf = NULL;
     size_t len = 0;
@@ -213,9 +213,9 @@ static int read_columns(sinew_ctx *ctx, const char *path, size_t ncols, sinew_ma
         rc = cli_error(CMD, "%s: no \"columns\" array", path);
         goto done;
     }
-    if ((size_t)cJSON_GetArraySize(cols) != ncols) {
-        rc = cli_error(CMD, "%s: names %d columns but the table has %zu", path,
-                       cJSON_GetArraySize(cols), ncols);
+    *ncols = (size_t)cJSON_GetArraySize(cols);
+    if (*ncols == 0) {
+        rc = cli_error(CMD, "%s: the \"columns\" array is empty", path);
         goto done;
     }
     int *slot[5] = {&t->u0, &t->v0, &t->u1, &t->v1, &t->weight};
@@ -253,9 +253,16 @@ static int file_exists(const char *p)
     return f != NULL;
 }
 
+/* A drawing failure names the picture ("image: WxH exceeds the limit" alone would not). */
+static int draw_failed(sinew_ctx *ctx, const opts *o, int st)
+{
+    const char *m = sinew_ctx_message(ctx);
+    return cli_error(CMD, "%s: %s", o->out, *m ? m : sinew_strerror(st));
+}
+
 static int draw_matches(sinew_ctx *ctx, sinew_image *out, const opts *o)
 {
-    sinew_image tab = {0}, f0 = {0}, f1 = {0};
+    sinew_image f0 = {0}, f1 = {0};
     float *data = NULL;
     int rc = 0;
     char side[4096];
@@ -273,34 +280,23 @@ static int draw_matches(sinew_ctx *ctx, sinew_image *out, const opts *o)
         }
         cols = side;
     }
-    int st = sinew_npy_read_image(ctx, &tab, o->table);
+    /* the sidecar first: the table's shape is checked against it from the header, before
+     * any data is read */
+    sinew_match_table t = {0};
+    size_t ncols = 0;
+    if ((rc = read_columns(ctx, cols, &ncols, &t)))
+        return rc;
+    int st = sinew_npy_read_table(ctx, o->table, ncols, &data, &t.rows, &t.cols);
     if (st)
         return cli_status(CMD, ctx, st);
-    if (tab.channels != 1) {
-        rc = cli_error(CMD, "%s: expected a 2-D N x C table", o->table);
-        goto done;
-    }
-    sinew_match_table t = {0};
-    t.rows = (size_t)tab.height;
-    t.cols = (size_t)tab.width;
-    if ((rc = read_columns(ctx, cols, t.cols, &t)))
-        goto done;
     if ((rc = read_frame(ctx, &f0, o->frame)) || (rc = read_frame(ctx, &f1, o->frame1)))
         goto done;
-    data = sinew_ctx_alloc(ctx, t.rows * t.cols * sizeof *data);
-    if (!data) {
-        rc = cli_status(CMD, ctx, SINEW_ENOMEM);
-        goto done;
-    }
-    for (size_t r = 0; r < t.rows; r++)
-        memcpy(data + r * t.cols, sinew_image_row_f32(&tab, (int)r), t.cols * sizeof *data);
     t.data = data;
     st = sinew_draw_matches(ctx, out, &f0, &f1, &t, (size_t)o->count, o->legend);
     if (st)
-        rc = cli_status(CMD, ctx, st);
+        rc = draw_failed(ctx, o, st);
 done:
     sinew_ctx_dealloc(ctx, data);
-    sinew_image_free(&tab);
     sinew_image_free(&f0);
     sinew_image_free(&f1);
     return rc;
@@ -342,7 +338,7 @@ static int draw_kind(sinew_ctx *ctx, const char *k, const opts *o, sinew_image *
         rc = draw_matches(ctx, out, o);
     }
     if (!rc && st)
-        rc = cli_status(CMD, ctx, st);
+        rc = draw_failed(ctx, o, st);
     sinew_image_free(&a);
     sinew_image_free(&b);
     sinew_image_free(&fr);

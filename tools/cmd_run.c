@@ -739,7 +739,7 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
     sinew_run_result res;
     rc = sinew_run_execute(run, sinew_run_pipeline_pair, pl, on_progress, &ps, &res);
     sinew_run_pipeline_free(pl);
-    char first[1024];
+    char first[SINEW_MESSAGE_MAX];
     snprintf(first, sizeof first, "%s", sinew_ctx_message(ctx));
     if (ps.live)
         printf("\n");
@@ -760,7 +760,7 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
         printf("%zu pairs%s: %zu computed, %zu skipped, %zu failed in %.1f s\n", res.total,
                whole ? "" : " in this shard", res.computed, res.skipped, res.failed, el);
     int hrc = SINEW_OK;
-    char hmsg[1024] = "";
+    char hmsg[SINEW_MESSAGE_MAX] = "";
     if (a->report) {
         print_report(ctx, &p->spec);
         char html[4200];

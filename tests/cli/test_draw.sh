@@ -180,7 +180,7 @@ expect_error "draw bad max" "$T/x4.png" "--max" "$B" draw flow --flow "$T/flow.n
 expect_error "draw option for another kind" "$T/x5.png" "--mask does not apply" "$B" draw flow --flow "$T/flow.npy" --mask "$T/mask.npy" -o "$T/x5.png"
 expect_error "draw missing input" "$T/x6.png" "needs --flow" "$B" draw epe --truth "$T/truth.npy" -o "$T/x6.png"
 expect_error "draw mask not integer" "$T/x7.png" "badmask\.npy.*integer" "$B" draw reasons --mask "$T/badmask.npy" -o "$T/x7.png"
-expect_error "draw sidecar column count" "$T/x8.png" "short\.json.*columns" "$B" draw matches --table "$T/m.npy" --columns "$T/short.json" --frame "$T/frame.pgm" --frame1 "$T/frame.pgm" -o "$T/x8.png"
+expect_error "draw sidecar column count" "$T/x8.png" "short\.json.*column" "$B" draw matches --table "$T/m.npy" --columns "$T/short.json" --frame "$T/frame.pgm" --frame1 "$T/frame.pgm" -o "$T/x8.png"
 expect_error "draw map channels" "$T/x9.png" "flow\.npy.*1-channel" "$B" draw fb-error --map "$T/flow.npy" -o "$T/x9.png"
 expect_error "draw unwritable output" - "nodir" "$B" draw wheel -o "$T/nodir/w.png"
 printf 'garbage' >"$T/junk.flo"

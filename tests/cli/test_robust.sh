@@ -165,3 +165,57 @@ if "$PYTHON" -c 'import json,sys
 [json.loads(l) for l in open(sys.argv[1], "rb").read().decode("utf-8").splitlines()]' "$T/u8.jsonl"; then
     pass "--progress json with such names: UTF-8 JSON lines"
 else fail "--progress json with such names: UTF-8 JSON lines" "$(cat -v "$T/u8.jsonl" | head -c 300)"; fi
+
+# --- smaller defects of issue 21 (item 9); each failed on the previous main ------------
+"$SINEW_BIN" synth -o "$T/i9" --frames 2 --size 64x48 >/dev/null 2>&1
+# an empty match table (0 rows, as match and lift write when nothing is kept) draws
+"$PYTHON" - "$T/i9" <<'PY'
+import json, sys
+import numpy as np
+d = sys.argv[1]
+np.save(d + "/empty.npy", np.zeros((0, 5), np.float32))
+json.dump({"columns": ["u0", "v0", "u1", "v1", "weight"]}, open(d + "/empty.json", "w"))
+# a table whose header claims 30 000 000 x 8 float32 (960 MB, sparse on disk) while its
+# sidecar names 5 columns: refused from the header, before the data is read
+hdr = "{'descr': '<f4', 'fortran_order': False, 'shape': (30000000, 8), }"
+hdr += " " * (63 - (10 + len(hdr)) % 64) + "\n"
+with open(d + "/huge.npy", "wb") as f:
+    f.write(b"\x93NUMPY\x01\x00" + len(hdr).to_bytes(2, "little") + hdr.encode())
+    f.truncate(f.tell() + 30000000 * 8 * 4)
+json.dump({"columns": ["u0", "v0", "u1", "v1", "weight"]}, open(d + "/huge.json", "w"))
+# imported flows that are unknown everywhere, for stats
+import os
+os.makedirs(d + "/nanflow/000000-000001", exist_ok=True)
+for n in ("forward", "backward"):
+    np.save(d + "/nanflow/000000-000001/%s.npy" % n, np.full((48, 64, 2), np.nan, np.float32))
+# a gray frame beside a colour one
+g = np.zeros((48, 64), np.uint8)
+os.makedirs(d + "/mixed/color", exist_ok=True)
+open(d + "/mixed/color/b.pgm", "wb").write(b"P5\n64 48\n255\n" + g.tobytes())
+PY
+cp "$T/i9/color/000000.png" "$T/i9/mixed/color/a.png"
+expect_ok "draw matches reads a 0-row table" "$SINEW_BIN" draw matches --table "$T/i9/empty.npy" \
+    --frame "$T/i9/color/000000.png" --frame1 "$T/i9/color/000001.png" -o "$T/i9/empty.png"
+expect_error "a table's shape is checked from its header" "$T/i9/huge.png" \
+    "huge\.npy: table has 8 columns, expected 5" \
+    "$SINEW_BIN" draw matches --table "$T/i9/huge.npy" \
+    --frame "$T/i9/color/000000.png" --frame1 "$T/i9/color/000001.png" -o "$T/i9/huge.png"
+printf '# no pairs\n\n' >"$T/i9/none.txt"
+expect_error "an empty list: schedule is an error" "$T/i9/none/manifest.json" \
+    "none\.txt: no 'I J' lines" "$SINEW_BIN" run "$T/i9" -o "$T/i9/none" --schedule "list:$T/i9/none.txt"
+long="$T/i9"
+for k in $(seq 1 30); do long="$long/a-rather-long-folder-name-for-the-test-$k"; done
+expect_error "a long error message keeps its cause" - \
+    "a-rather-long.*No such file or directory$" \
+    "$SINEW_BIN" flow "$long/a.png" "$long/b.png" -o "$T/i9/long.flo"
+expect_error "frames of different channel counts are named" - \
+    "b\.pgm: 1-channel 8-bit frame, but .*a\.png is 3-channel" \
+    "$SINEW_BIN" run "$T/i9/mixed" -o "$T/i9/mixedout" --preset fast
+"$SINEW_BIN" run "$T/i9" -o "$T/i9/nanrun" --flow-from "$T/i9/nanflow" >/dev/null 2>&1
+if "$PYTHON" -c 'import json,sys
+d = json.load(open(sys.argv[1]))
+sys.exit(0 if d["forward"]["mean_length_px"] is None and d["forward"]["unknown"] == 64 * 48 else 1)' \
+    "$T/i9/nanrun/pairs/000000-000001/stats.json" 2>/dev/null; then
+    pass "mean_length_px is null when every vector is unknown"
+else fail "mean_length_px is null when every vector is unknown" \
+    "$(head -c 300 "$T/i9/nanrun/pairs/000000-000001/stats.json" 2>&1)"; fi

@@ -182,6 +182,33 @@ static void test_core_utf8_rules(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* Long messages keep their start and their end (the cause). */
+static void test_core_text_fit(void **state)
+{
+    (void)state;
+    char big[3000], out[64];
+    memset(big, 'p', sizeof big);
+    memcpy(big + sizeof big - 12, ": the cause", 12);
+    sinew_text_fit(out, sizeof out, big);
+    assert_int_equal(strlen(out), sizeof out - 1);
+    assert_non_null(strstr(out, " ... "));
+    assert_non_null(strstr(out, ": the cause"));
+    assert_int_equal(out[0], 'p');
+    assert_string_equal(sinew_text_fit(out, sizeof out, "short"), "short");
+    /* the context keeps the cause of a message longer than SINEW_MESSAGE_MAX */
+    sinew_ctx *ctx = sinew_ctx_new();
+    char path[3000];
+    memset(path, 'd', sizeof path - 1);
+    path[sizeof path - 1] = '\0';
+    unsigned char *buf;
+    size_t len;
+    assert_int_equal(sinew_read_file(ctx, path, 10, &buf, &len), SINEW_EIO);
+    const char *m = sinew_ctx_message(ctx);
+    assert_true(strlen(m) < SINEW_MESSAGE_MAX);
+    assert_non_null(strstr(m, "cannot open: File name too long"));
+    sinew_ctx_free(ctx);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -192,6 +219,7 @@ int main(void)
         cmocka_unit_test(test_core_outfile_atomic),
         cmocka_unit_test(test_core_stop_flag_and_temporaries),
         cmocka_unit_test(test_core_utf8_rules),
+        cmocka_unit_test(test_core_text_fit),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

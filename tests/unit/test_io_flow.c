@@ -297,6 +297,15 @@ static void test_io_flow_pfm_layout(void **state)
 
 /* ---- npy ---- */
 
+static int read_table_op(sinew_ctx *ctx, void *ud)
+{
+    float *d;
+    size_t r, c;
+    int rc = sinew_npy_read_table(ctx, ud, 0, &d, &r, &c);
+    sinew_ctx_dealloc(ctx, d);
+    return rc;
+}
+
 static void test_io_flow_npy_image_and_table(void **state)
 {
     tu_fixture *f = *state;
@@ -331,10 +340,27 @@ static void test_io_flow_npy_image_and_table(void **state)
     assert_int_equal(b.height, 3);
     assert_true(sinew_image_row_f32(&b, 2)[1] == 6.0f);
     sinew_image_free(&b);
+    float *td;
+    size_t rows, cols;
+    assert_int_equal(sinew_npy_read_table(f->ctx, p, 2, &td, &rows, &cols), SINEW_OK);
+    assert_true(rows == 3 && cols == 2 && td[5] == 6.0f);
+    sinew_ctx_dealloc(f->ctx, td);
+    /* the column count is checked from the header */
+    assert_int_equal(sinew_npy_read_table(f->ctx, p, 5, &td, &rows, &cols), SINEW_EFORMAT);
+    assert_non_null(strstr(sinew_ctx_message(f->ctx), "table has 2 columns, expected 5"));
+    assert_null(td);
+    tu_fail_each_allocation(p, read_table_op, (void *)p);
     assert_int_equal(sinew_npy_write_table(f->ctx, p, NULL, 0, 7), SINEW_OK);
     assert_int_equal(sinew_read_file(f->ctx, p, 1000, &buf, &len), SINEW_OK);
     assert_non_null(strstr((char *)buf + 10, "'shape': (0, 7), }"));
     sinew_ctx_dealloc(f->ctx, buf);
+    /* an empty table reads as 0 rows (matches writes one when nothing is kept) */
+    assert_int_equal(sinew_npy_read_table(f->ctx, p, 0, &td, &rows, &cols), SINEW_OK);
+    assert_true(rows == 0 && cols == 7 && td == NULL);
+    /* an image is not a table */
+    tu_write_npy(p, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 1, 2), }",
+                 "\0\0\0\0\0\0\0\0", 8);
+    assert_int_equal(sinew_npy_read_table(f->ctx, p, 0, &td, &rows, &cols), SINEW_EFORMAT);
     /* float16 image round trip of values exactly representable in half */
     assert_int_equal(sinew_image_alloc(f->ctx, &d, 4, 1, 4, SINEW_F32), SINEW_OK);
     float *r = sinew_image_row_f32(&d, 0);

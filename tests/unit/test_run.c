@@ -437,10 +437,10 @@ static void test_run_schedule_parse(void **state)
     assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_EFORMAT);
     tu_write_bytes(p, "1 1000000\n", 10);
     assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_EFORMAT);
-    /* an empty list is a list of no pairs */
+    /* an empty list is refused: the run would succeed having done nothing (issue 21) */
     tu_write_bytes(p, "# none\n", 7);
-    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_OK);
-    assert_int_equal(s.list_len, 0);
+    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_ECONFIG);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "the schedule is empty"));
     assert_null(list);
     tu_path(p, sizeof p, dir, "missing.txt");
     snprintf(arg, sizeof arg, "list:%s", p);

@@ -1,8 +1,9 @@
 /* SPDX-License-Identifier: MIT */
 /* Paths and folders for the library's file-writing modules: joining paths, mkdir -p,
  * sorted folder listings. Every failure is recorded in the context naming the path. */
-#define _POSIX_C_SOURCE 200809L
+#define _XOPEN_SOURCE 700 /* realpath */
 #include <dirent.h>
+#include <limits.h>
 #include <errno.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -115,4 +116,23 @@ int sinew__list_dir(sinew_ctx *ctx, const char *dir, int (*keep)(const char *nam
     *out = names;
     *n = k;
     return SINEW_OK;
+}
+
+int sinew__refuse_link(sinew_ctx *ctx, const char *path)
+{
+    struct stat st;
+    if (lstat(path, &st) == 0 && S_ISLNK(st.st_mode))
+        return sinew__fail(ctx, SINEW_ECONFIG,
+                           "%s: is a symbolic link; sinew never writes or deletes through links",
+                           path);
+    return SINEW_OK;
+}
+
+int sinew__path_inside(const char *path, const char *dir)
+{
+    char a[PATH_MAX], b[PATH_MAX];
+    if (!realpath(path, a) || !realpath(dir, b))
+        return 0;
+    size_t nb = strlen(b);
+    return !strncmp(a, b, nb) && (a[nb] == '\0' || a[nb] == '/' || (nb == 1 && b[0] == '/'));
 }

@@ -110,8 +110,14 @@ static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, 
                 return rc;
             snprintf(msg, sizeof msg, "%s", sinew_ctx_message(ctx));
             sinew_ctx_clear(ctx);
-            status = "failed";
-            error = msg;
+            /* failed only if a run tried it (its error record); a pair the run never
+             * reached stays pending, with the reason it cannot be done yet, so the
+             * manifest counts agree with the run's own line */
+            const cJSON *m = (err = read_error(ctx, dir)) != NULL
+                                 ? cJSON_GetObjectItemCaseSensitive(err, "error")
+                                 : NULL;
+            status = err ? "failed" : "pending";
+            error = cJSON_IsString(m) ? m->valuestring : msg;
         } else {
             sinew__run_pair_key(run, q, in, nin, key);
             if (s->flow_from) {
@@ -144,21 +150,24 @@ static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, 
     return SINEW_OK;
 }
 
-/* A process killed while writing the manifest leaves its temporary file behind; the
- * next manifest writer removes such leftovers (only one unsharded run or merge step
- * works on an output folder at a time). */
+/* A process killed while writing the manifest or the report page leaves its temporary
+ * file behind; the next manifest writer (every whole run, --resume, --merge) removes
+ * such leftovers (the output folder's lock lets only one whole run or merge step work
+ * on it at a time). */
 static void remove_stale_temporaries(sinew_ctx *ctx, const char *outdir)
 {
-    static const char prefix[] = "." SINEW_RUN_MANIFEST_FILE SINEW__TMP_TAG;
+    static const char *const prefix[] = {"." SINEW_RUN_MANIFEST_FILE SINEW__TMP_TAG,
+                                         "." SINEW_RUN_REPORT_FILE SINEW__TMP_TAG};
     DIR *d = opendir(outdir);
     if (!d)
         return;
     struct dirent *e;
     char p[SINEW__PATH_MAX];
     while ((e = readdir(d)) != NULL)
-        if (!strncmp(e->d_name, prefix, sizeof prefix - 1) &&
-            !sinew__path_join(ctx, p, sizeof p, outdir, e->d_name))
-            (void)unlink(p);
+        for (size_t k = 0; k < sizeof prefix / sizeof prefix[0]; k++)
+            if (!strncmp(e->d_name, prefix[k], strlen(prefix[k])) &&
+                !sinew__path_join(ctx, p, sizeof p, outdir, e->d_name))
+                (void)unlink(p); /* unlink never follows a link */
     closedir(d);
     sinew_ctx_clear(ctx);
 }

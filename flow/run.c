@@ -17,8 +17,10 @@
 #define _POSIX_C_SOURCE 200809L
 #include <dirent.h>
 #include <errno.h>
+#include <fcntl.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <signal.h>
 #include <string.h>
 #include <sys/stat.h>
 #include <unistd.h>
@@ -40,6 +42,7 @@ typedef struct {
 
 struct sinew_run {
     sinew_ctx *ctx;
+    char lock[SINEW__PATH_MAX]; /* our lock file, "" when none is held */
     sinew_run_spec spec;
     digest_entry *cache; /* nframes * NROLES */
     digest_entry intrinsics;
@@ -160,6 +163,129 @@ int sinew__run_pair_dir(sinew_run *run, size_t index, char *buf, size_t n)
     return sinew__path_join(run->ctx, buf, n, run->spec.outdir, rel);
 }
 
+/* ---- the output folder's lock ---- */
+
+/* A lock file OUTDIR/run.lock (whole runs and merges) or OUTDIR/run.lock.K-of-N (shard
+ * K of N) holds "pid PID\nhost HOST\n". Shards of one N may work side by side; every
+ * other pair of holders excludes each other. A lock whose holder is a process of this
+ * host that no longer exists is stale and removed. */
+#define LOCK_PREFIX SINEW_RUN_LOCK_FILE
+
+typedef struct {
+    long pid;
+    char host[256];
+    int k, n; /* shard; n = 1 for a whole run */
+} lock_info;
+
+static int lock_name(char *buf, size_t n, int k, int shards)
+{
+    int w = shards == 1 ? snprintf(buf, n, LOCK_PREFIX)
+                        : snprintf(buf, n, LOCK_PREFIX ".%d-of-%d", k, shards);
+    return w < 0 || (size_t)w >= n;
+}
+
+/* Parse a lock file name and content; 0 when it is not a lock of ours. */
+static int lock_read(sinew_ctx *ctx, const char *dir, const char *name, lock_info *li)
+{
+    memset(li, 0, sizeof *li);
+    li->n = 1;
+    if (strncmp(name, LOCK_PREFIX, sizeof LOCK_PREFIX - 1))
+        return 0;
+    const char *rest = name + sizeof LOCK_PREFIX - 1;
+    char tail[8];
+    if (*rest && (sscanf(rest, ".%d-of-%d%1s", &li->k, &li->n, tail) != 2 || li->n < 2))
+        return 0;
+    char p[SINEW__PATH_MAX];
+    unsigned char *buf = NULL;
+    size_t len;
+    if (!sinew__path_join(ctx, p, sizeof p, dir, name) &&
+        !sinew_read_file(ctx, p, 4096, &buf, &len) &&
+        sscanf((const char *)buf, "pid %ld host %255s", &li->pid, li->host) != 2)
+        li->pid = 0;
+    sinew_ctx_dealloc(ctx, buf);
+    sinew_ctx_clear(ctx);
+    return 1;
+}
+
+static int lock_stale(const lock_info *li, const char *host)
+{
+    return li->pid > 0 && !strcmp(li->host, host) && kill((pid_t)li->pid, 0) != 0 && errno == ESRCH;
+}
+
+static int lock_conflict(sinew_ctx *ctx, const char *dir, const char *name, const lock_info *li)
+{
+    return sinew__fail(ctx, SINEW_ECONFIG,
+                       "%s/%s: the output folder is in use by process %ld on host %s (%s); "
+                       "wait for it, or remove the lock if that run is gone",
+                       dir, name, li->pid, li->host[0] ? li->host : "unknown",
+                       li->n > 1 ? "a shard" : "a whole run or merge");
+}
+
+static int lock_acquire(sinew_run *run)
+{
+    sinew_ctx *ctx = run->ctx;
+    const sinew_run_spec *s = &run->spec;
+    char host[256] = "", mine[64], p[SINEW__PATH_MAX], text[400];
+    if (gethostname(host, sizeof host - 1) != 0 || !host[0])
+        snprintf(host, sizeof host, "unknown");
+    for (char *c = host; *c; c++)
+        if (*c == ' ' || *c == '\n')
+            *c = '_';
+    if (lock_name(mine, sizeof mine, s->shard_k, s->shard_n) ||
+        sinew__path_join(ctx, p, sizeof p, s->outdir, mine))
+        return sinew__fail(ctx, SINEW_ELIMIT, "%s: path too long", s->outdir);
+    int tlen = snprintf(text, sizeof text, "pid %ld\nhost %s\n", (long)getpid(), host);
+    for (int attempt = 0;; attempt++) {
+        int fd = open(p, O_WRONLY | O_CREAT | O_EXCL | O_NOFOLLOW | O_CLOEXEC, 0666);
+        if (fd >= 0) {
+            int ok = write(fd, text, (size_t)tlen) == tlen;
+            ok = close(fd) == 0 && ok;
+            if (!ok) {
+                unlink(p);
+                return sinew__fail(ctx, SINEW_EIO, "%s: cannot write the lock", p);
+            }
+            break;
+        }
+        if (errno != EEXIST)
+            return sinew__fail(ctx, SINEW_EIO, "%s: cannot create: %s", p, strerror(errno));
+        lock_info li;
+        (void)lock_read(ctx, s->outdir, mine, &li);
+        if (attempt > 0 || !lock_stale(&li, host))
+            return lock_conflict(ctx, s->outdir, mine, &li);
+        unlink(p); /* stale: its holder is gone */
+    }
+    snprintf(run->lock, sizeof run->lock, "%s", p);
+    /* the other holders: shards of the same N may share the folder */
+    DIR *d = opendir(s->outdir);
+    struct dirent *e;
+    int rc = SINEW_OK;
+    while (d && !rc && (e = readdir(d)) != NULL) {
+        lock_info li;
+        if (!strcmp(e->d_name, mine) || !lock_read(ctx, s->outdir, e->d_name, &li))
+            continue;
+        char q[SINEW__PATH_MAX];
+        if (lock_stale(&li, host)) {
+            if (!sinew__path_join(ctx, q, sizeof q, s->outdir, e->d_name))
+                unlink(q);
+            continue;
+        }
+        if (!(li.n > 1 && li.n == s->shard_n && li.k != s->shard_k))
+            rc = lock_conflict(ctx, s->outdir, e->d_name, &li);
+    }
+    if (d)
+        closedir(d);
+    if (rc) {
+        unlink(run->lock);
+        run->lock[0] = '\0';
+    }
+    return rc;
+}
+
+const char *sinew_run_lock_path(const sinew_run *run)
+{
+    return run && run->lock[0] ? run->lock : NULL;
+}
+
 /* ---- setup ---- */
 
 int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
@@ -193,6 +319,16 @@ int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
         rc = sinew__path_join(ctx, pairs, sizeof pairs, spec->outdir, SINEW_RUN_PAIRS_DIR);
     if (!rc)
         rc = sinew__mkdirs(ctx, pairs);
+    if (!rc)
+        rc = sinew__refuse_link(ctx, pairs);
+    /* imported flows are inputs: the run would empty pair folders before reading them */
+    if (!rc && spec->flow_from &&
+        (sinew__path_inside(spec->flow_from, spec->outdir) ||
+         sinew__path_inside(spec->outdir, spec->flow_from)))
+        rc = sinew__fail(ctx, SINEW_ECONFIG,
+                         "%s: the imported flows and the output folder %s overlap (outputs never "
+                         "go onto or into an input); import from another folder",
+                         spec->flow_from, spec->outdir);
     if (rc)
         return rc;
     sinew_run *run = sinew__calloc(ctx, 1, sizeof *run);
@@ -207,6 +343,10 @@ int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
             return SINEW_ENOMEM;
         }
     }
+    if ((rc = lock_acquire(run))) {
+        sinew_run_free(run);
+        return rc;
+    }
     *out = run;
     return SINEW_OK;
 }
@@ -216,6 +356,8 @@ void sinew_run_free(sinew_run *run)
     if (!run)
         return;
     sinew_ctx *ctx = run->ctx;
+    if (run->lock[0])
+        unlink(run->lock);
     sinew__free(ctx, run->cache);
     sinew__free(ctx, run);
 }
@@ -232,27 +374,93 @@ sinew_ctx *sinew__run_ctx(const sinew_run *run)
 
 /* ---- pair folders ---- */
 
-/* Remove every regular file in a pair folder (outputs, records, stale temporaries). */
-static int empty_dir(sinew_ctx *ctx, const char *dir)
+/* Whether sinew writes a file of this name into a pair folder: the names of run.h, a
+ * flow in any of its formats, an output the folder's done record lists, or the
+ * temporary ".NAME.tmp-HHHHHH" of one of those. */
+static int lists(const cJSON *outs, const char *nm);
+
+static int made_by_sinew(const sinew_run_spec *s, const char *nm, const cJSON *listed)
 {
-    DIR *d = opendir(dir);
-    if (!d)
+    char base[256];
+    const char *t = nm[0] == '.' ? strstr(nm, SINEW__TMP_TAG) : NULL;
+    if (t) {
+        size_t bl = (size_t)(t - nm - 1);
+        if (strlen(t) != strlen(SINEW__TMP_TAG) + 6 || bl == 0 || bl >= sizeof base)
+            return 0;
+        memcpy(base, nm + 1, bl);
+        base[bl] = '\0';
+        nm = base;
+    }
+    static const char *const fixed[] = {SINEW_RUN_DONE_FILE,       SINEW_RUN_ERROR_FILE,
+                                        SINEW_RUN_STATS_FILE,      SINEW_RUN_MASK_FILE,
+                                        SINEW_RUN_CONFIDENCE_FILE, SINEW_RUN_FB_ERROR_FILE,
+                                        SINEW_RUN_MATCHES_FILE,    SINEW_RUN_MATCHES_SIDECAR};
+    for (size_t k = 0; k < sizeof fixed / sizeof fixed[0]; k++)
+        if (!strcmp(nm, fixed[k]))
+            return 1;
+    static const char *const flows[] = {SINEW_RUN_FORWARD ".flo",  SINEW_RUN_FORWARD ".npy",
+                                        SINEW_RUN_FORWARD ".pfm",  SINEW_RUN_FORWARD ".png",
+                                        SINEW_RUN_BACKWARD ".flo", SINEW_RUN_BACKWARD ".npy",
+                                        SINEW_RUN_BACKWARD ".pfm", SINEW_RUN_BACKWARD ".png"};
+    for (size_t k = 0; k < sizeof flows / sizeof flows[0]; k++)
+        if (!strcmp(nm, flows[k]))
+            return 1;
+    for (size_t k = 0; k < s->noutputs; k++)
+        if (!strcmp(nm, s->outputs[k]))
+            return 1;
+    return lists(listed, nm);
+}
+
+/* Empty a pair folder of what sinew made there (outputs, records, stale temporaries).
+ * Never follows a link: the folder is opened with O_NOFOLLOW and its entries removed
+ * relative to it (a link named like an output is removed itself, not its target). A
+ * file sinew did not make stays, and is reported (after everything else is removed). */
+static int empty_dir(sinew_run *run, const char *dir)
+{
+    sinew_ctx *ctx = run->ctx;
+    int fd = open(dir, O_RDONLY | O_DIRECTORY | O_NOFOLLOW | O_CLOEXEC);
+    if (fd < 0)
+        return sinew__fail(ctx, SINEW_EIO, "%s: cannot open folder%s: %s", dir,
+                           errno == ELOOP || errno == ENOTDIR ? " (a link is never followed)" : "",
+                           strerror(errno));
+    DIR *d = fdopendir(fd);
+    if (!d) {
+        close(fd);
         return sinew__fail(ctx, SINEW_EIO, "%s: cannot open folder: %s", dir, strerror(errno));
-    struct dirent *e;
+    }
+    cJSON *done = NULL;
     char p[SINEW__PATH_MAX];
-    int rc = SINEW_OK;
+    if (!sinew__path_join(ctx, p, sizeof p, dir, SINEW_RUN_DONE_FILE))
+        (void)sinew__json_read(ctx, p, (size_t)64 << 20, &done);
+    sinew_ctx_clear(ctx);
+    const cJSON *listed = cJSON_GetObjectItemCaseSensitive(done, "outputs");
+    struct dirent *e;
+    int rc = SINEW_OK, foreign = 0;
+    char first[256] = "";
     while ((e = readdir(d)) != NULL) {
         if (!strcmp(e->d_name, ".") || !strcmp(e->d_name, ".."))
             continue;
-        if (sinew__path_join(ctx, p, sizeof p, dir, e->d_name))
-            continue;
         struct stat st;
-        if (lstat(p, &st) == 0 && S_ISREG(st.st_mode) && unlink(p) != 0 && errno != ENOENT) {
-            rc = sinew__fail(ctx, SINEW_EIO, "%s: cannot remove: %s", p, strerror(errno));
+        if (fstatat(fd, e->d_name, &st, AT_SYMLINK_NOFOLLOW) != 0 ||
+            !(S_ISREG(st.st_mode) || S_ISLNK(st.st_mode)) ||
+            !made_by_sinew(&run->spec, e->d_name, listed)) {
+            if (!foreign++)
+                snprintf(first, sizeof first, "%s", e->d_name);
+            continue;
+        }
+        if (unlinkat(fd, e->d_name, 0) != 0 && errno != ENOENT) {
+            rc = sinew__fail(ctx, SINEW_EIO, "%s/%s: cannot remove: %s", dir, e->d_name,
+                             strerror(errno));
             break;
         }
     }
     closedir(d);
+    cJSON_Delete(done);
+    if (!rc && foreign)
+        rc = sinew__fail(ctx, SINEW_ECONFIG,
+                         "%s/%s: not made by sinew (%d such entr%s): sinew never deletes it; "
+                         "move it away to recompute this pair",
+                         dir, first, foreign, foreign == 1 ? "y" : "ies");
     return rc;
 }
 
@@ -350,6 +558,19 @@ done:
     return rc;
 }
 
+/* Whether a done record's "outputs" array names file nm. */
+static int lists(const cJSON *outs, const char *nm)
+{
+    const cJSON *e;
+    cJSON_ArrayForEach(e, outs)
+    {
+        const cJSON *f = cJSON_GetObjectItemCaseSensitive(e, "file");
+        if (cJSON_IsString(f) && !strcmp(f->valuestring, nm))
+            return 1;
+    }
+    return 0;
+}
+
 int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, int verify,
                              cJSON **record)
 {
@@ -368,6 +589,11 @@ int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, i
     const cJSON *k = cJSON_GetObjectItemCaseSensitive(j, "key");
     const cJSON *outs = cJSON_GetObjectItemCaseSensitive(j, "outputs");
     int ok = cJSON_IsString(k) && !strcmp(k->valuestring, key) && cJSON_IsArray(outs);
+    /* every expected output must be listed (a record written beside a partial folder,
+     * e.g. by an interleaved second run, lists fewer) */
+    ok = ok && lists(outs, SINEW_RUN_STATS_FILE);
+    for (size_t x = 0; ok && x < run->spec.noutputs; x++)
+        ok = lists(outs, run->spec.outputs[x]);
     const cJSON *e;
     cJSON_ArrayForEach(e, outs)
     {
@@ -428,6 +654,8 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
         if (!rc)
             rc = sinew__mkdirs(ctx, dir);
         if (!rc)
+            rc = sinew__refuse_link(ctx, dir);
+        if (!rc)
             rc = sinew__run_pair_inputs(run, q, in, &nin, fwd, bwd, sizeof fwd);
         if (!rc) {
             sinew__run_pair_key(run, q, in, nin, key);
@@ -437,7 +665,7 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
             rc = sinew__check_cancel(ctx, dir);
         }
         if (!rc && st == SINEW_PAIR_COMPUTED)
-            rc = empty_dir(ctx, dir);
+            rc = empty_dir(run, dir);
         if (!rc && st == SINEW_PAIR_COMPUTED) {
             sinew_run_job job = {
                 q, s->pairs[q], name, dir, s->flow_from ? fwd : NULL, s->flow_from ? bwd : NULL};
@@ -467,10 +695,13 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
                 result->status = rc;
                 snprintf(first_msg, sizeof first_msg, "%s", msg);
             }
-            /* leave only the error record: outputs of a failed pair are not results */
+            /* leave only the error record: outputs of a failed pair are not results; never
+             * in a linked folder (lstat: a link is not a folder) */
             struct stat dst;
-            if (stat(dir, &dst) == 0 && S_ISDIR(dst.st_mode) && !empty_dir(ctx, dir))
+            if (lstat(dir, &dst) == 0 && S_ISDIR(dst.st_mode)) {
+                (void)empty_dir(run, dir);
                 (void)write_error_record(run, q, name, dir, msg);
+            }
             result->failed++;
         } else if (st == SINEW_PAIR_SKIPPED) {
             result->skipped++;

@@ -66,6 +66,7 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
  * `sinew run` command use these names only. */
 #define SINEW_RUN_PAIRS_DIR "pairs"
 #define SINEW_RUN_MANIFEST_FILE "manifest.json"
+#define SINEW_RUN_REPORT_FILE "report.html" /* written by `sinew run --report` */
 #define SINEW_RUN_DONE_FILE "done.json"
 #define SINEW_RUN_ERROR_FILE "error.json"
 #define SINEW_RUN_STATS_FILE "stats.json"
@@ -74,7 +75,9 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
 #define SINEW_RUN_MASK_FILE "mask.png"
 #define SINEW_RUN_CONFIDENCE_FILE "confidence.npy"
 #define SINEW_RUN_FB_ERROR_FILE "fb_error.npy"
+#define SINEW_RUN_LOCK_FILE "run.lock" /* OUTDIR/run.lock or run.lock.K-of-N (shard K of N) */
 #define SINEW_RUN_MATCHES_FILE "matches.npy"
+#define SINEW_RUN_MATCHES_SIDECAR "matches.json" /* sinew_matches_sidecar_path of the above */
 #define SINEW_RUN_OPTIONS_FILE "options.json"
 
 /* ---- the run engine ------------------------------------------------------------ */
@@ -104,6 +107,13 @@ typedef struct sinew_run_spec {
     int resume;            /* skip pairs whose done record matches */
     sinew_run_on_error on_error;
     const volatile sig_atomic_t *cancel; /* nonzero: stop before the next pair; may be NULL */
+    /* Names of the files the pair function writes into a pair folder (besides the
+     * engine's stats.json), e.g. from sinew_run_pipeline_outputs; may be NULL (0).
+     * A done record must list each of them (and stats.json) for the pair to count as
+     * done; emptying a pair folder removes only these, the names of this header (flows
+     * in every format), the outputs listed in its done record and their temporaries. */
+    const char *const *outputs;
+    size_t noutputs;
 } sinew_run_spec;
 
 /* What the pair function receives. */
@@ -151,9 +161,16 @@ typedef struct sinew_run_result {
 typedef struct sinew_run sinew_run;
 
 /* Prepare a run: validates the spec (ECONFIG for bad shard numbers, pairs out of
- * range, limits) and creates OUTDIR and OUTDIR/pairs. Free with sinew_run_free. */
+ * range, limits, a linked OUTDIR/pairs, imported flows overlapping OUTDIR), creates
+ * OUTDIR and OUTDIR/pairs and locks OUTDIR: SINEW_RUN_LOCK_FILE (shard K of N:
+ * SINEW_RUN_LOCK_FILE ".K-of-N") holding "pid PID\nhost HOST\n". Shards of the same
+ * N share the folder; any other live holder gives ECONFIG naming the lock file, its
+ * process and host. A lock of a process of this host that no longer exists is stale
+ * and removed. sinew_run_free releases the lock. */
 int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec);
 void sinew_run_free(sinew_run *run);
+/* The lock file this run holds (for a signal handler to remove), or NULL. */
+const char *sinew_run_lock_path(const sinew_run *run);
 
 /* Process every owned pair in schedule order. For each: stop if *cancel or the
  * context's stop flag (sinew_ctx_set_cancel) is set;
@@ -222,6 +239,12 @@ int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew
 void sinew_run_pipeline_free(sinew_run_pipeline *pl);
 /* A sinew_run_pair_fn: pass the pipeline as ud. */
 int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job *job, char **stats);
+/* The files the pipeline writes into each pair folder with these parameters (static
+ * strings), for sinew_run_spec.outputs: up to SINEW_RUN_PIPELINE_MAX_OUTPUTS names into
+ * names; returns their number. */
+#define SINEW_RUN_PIPELINE_MAX_OUTPUTS 6
+size_t sinew_run_pipeline_outputs(const sinew_run_pipeline_params *p,
+                                  const char *names[SINEW_RUN_PIPELINE_MAX_OUTPUTS]);
 /* File extension (without dot) of a flow format, e.g. "flo"; NULL if unknown. */
 const char *sinew_run_flow_ext(int flow_format);
 /* Flow format for a --flow-format / sequence.json name ("flo", "npy", "npy16", "pfm",

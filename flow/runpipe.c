@@ -618,3 +618,27 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
         return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory writing stats", job->name);
     return SINEW_OK;
 }
+
+size_t sinew_run_pipeline_outputs(const sinew_run_pipeline_params *p,
+                                  const char *names[SINEW_RUN_PIPELINE_MAX_OUTPUTS])
+{
+    static const char *const fwd[] = {SINEW_RUN_FORWARD ".flo", SINEW_RUN_FORWARD ".npy",
+                                      SINEW_RUN_FORWARD ".pfm", SINEW_RUN_FORWARD ".png"};
+    static const char *const bwd[] = {SINEW_RUN_BACKWARD ".flo", SINEW_RUN_BACKWARD ".npy",
+                                      SINEW_RUN_BACKWARD ".pfm", SINEW_RUN_BACKWARD ".png"};
+    static const char *const ext[] = {"flo", "npy", "pfm", "png"};
+    const char *e = p ? sinew_run_flow_ext(p->flow_format) : NULL;
+    size_t n = 0;
+    for (size_t k = 0; e && k < 4; k++)
+        if (!strcmp(e, ext[k])) {
+            names[n++] = fwd[k];
+            names[n++] = bwd[k];
+        }
+    names[n++] = SINEW_RUN_MASK_FILE;
+    names[n++] = SINEW_RUN_CONFIDENCE_FILE;
+    if (p && p->matches) {
+        names[n++] = SINEW_RUN_MATCHES_FILE;
+        names[n++] = SINEW_RUN_MATCHES_SIDECAR;
+    }
+    return n;
+}

@@ -381,6 +381,7 @@ typedef struct {
     sinew_pair *pairs; /* the expanded schedule (on ctx) */
     size_t npairs;
     char options[512];
+    const char *outputs[SINEW_RUN_PIPELINE_MAX_OUTPUTS]; /* what each pair folder holds */
     sinew_run_spec spec;
 } run_plan;
 
@@ -520,6 +521,8 @@ static int plan(sinew_ctx *ctx, run_args *a, run_plan *p)
     s->resume = a->resume;
     s->on_error = a->on_error;
     s->cancel = cli_stop_flag();
+    s->noutputs = sinew_run_pipeline_outputs(&a->pp, p->outputs);
+    s->outputs = p->outputs;
     return CLI_OK;
 }
 
@@ -681,10 +684,21 @@ static int dry_run(sinew_ctx *ctx, const sinew_run_spec *spec, const sinew_run_p
 
 /* ---- execute and print ---- */
 
-/* --report: one line per owned pair from its stats.json, then the totals. */
-static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec)
+/* A JSON number, or null when not finite. */
+static void json_num(const char *key, double v)
 {
-    printf("%-13s %8s %10s %10s %9s\n", "pair", "kept", "|fwd| px", "matches", "lifted");
+    if (isfinite(v))
+        printf(",\"%s\":%.17g", key, v);
+    else
+        printf(",\"%s\":null", key);
+}
+
+/* --report: one line per owned pair from its stats.json, then the totals (JSON lines
+ * with --progress json, so stdout stays pure JSON). */
+static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
+{
+    if (!json)
+        printf("%-13s %8s %10s %10s %9s\n", "pair", "kept", "|fwd| px", "matches", "lifted");
     double kept = 0, pixels = 0, rows = 0;
     size_t n = 0;
     for (size_t q = 0; q < spec->npairs; q++) {
@@ -693,18 +707,31 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec)
         char name[SINEW_PAIR_NAME_MAX];
         sinew_pair_name(name, spec->pairs[q]);
         sinew_run_pair_summary s;
-        if (sinew_run_pair_summary_read(ctx, spec->outdir, spec->pairs[q], &s) != SINEW_OK) {
-            printf("%-13s %8s\n", name, "-");
+        int have = sinew_run_pair_summary_read(ctx, spec->outdir, spec->pairs[q], &s) == SINEW_OK;
+        if (json) {
+            printf("{\"event\":\"summary\",\"pair\":\"%s\"", name);
+            if (have) {
+                json_num("kept_fraction", s.kept_fraction);
+                json_num("mean_length_px", s.forward_mean_px);
+                json_num("matches", s.match_rows);
+                printf(",\"lifted\":%s", s.lifted ? "true" : "false");
+            }
+            printf("}\n");
+        }
+        if (!have) {
+            if (!json)
+                printf("%-13s %8s\n", name, "-");
             continue;
         }
-        printf("%-13s %7.1f%% %10.3f %10.0f %9s\n", name, 100 * s.kept_fraction, s.forward_mean_px,
-               s.match_rows, s.lifted ? "yes" : "no");
+        if (!json)
+            printf("%-13s %7.1f%% %10.3f %10.0f %9s\n", name, 100 * s.kept_fraction,
+                   s.forward_mean_px, s.match_rows, s.lifted ? "yes" : "no");
         kept += s.kept;
         pixels += s.pixels;
         rows += isfinite(s.match_rows) ? s.match_rows : 0;
         n++;
     }
-    if (n)
+    if (n && !json)
         printf("%-13s %7.1f%% %10s %10.0f\n", "all", pixels > 0 ? 100 * kept / pixels : 0.0, "",
                rows);
 }
@@ -716,7 +743,11 @@ static int merge(sinew_ctx *ctx, sinew_run *run, const run_args *a, size_t npair
     int rc = sinew_run_write_manifest(run, 1, &nd, &nf, &np);
     if (rc)
         return cli_status(CMD, ctx, rc);
-    printf("manifest: %zu pairs: %zu done, %zu failed, %zu pending\n", npairs, nd, nf, np);
+    if (a->progress == PROG_JSON)
+        printf("{\"event\":\"merge\",\"pairs\":%zu,\"done\":%zu,\"failed\":%zu,\"pending\":%zu}\n",
+               npairs, nd, nf, np);
+    else
+        printf("manifest: %zu pairs: %zu done, %zu failed, %zu pending\n", npairs, nd, nf, np);
     if (nf || np)
         return cli_error(CMD,
                          "%s/" SINEW_RUN_MANIFEST_FILE ": %zu pairs failed and %zu are pending",
@@ -732,8 +763,10 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
     int rc = sinew_run_pipeline_new(ctx, &pl, &p->spec, &a->pp);
     if (rc)
         return cli_status(CMD, ctx, rc);
-    /* first SIGINT/SIGTERM: stop at the next safe point; second: at once (tools/cli.h) */
+    /* first SIGINT/SIGTERM: stop at the next safe point; second: at once, releasing the
+     * output folder's lock (tools/cli.h) */
     cli_stop_install(CMD, ctx);
+    cli_stop_also_remove(sinew_run_lock_path(run));
     progress_state ps = {a->progress, a->progress == PROG_AUTO && isatty(STDOUT_FILENO), now_s(),
                          0};
     sinew_run_result res;
@@ -761,16 +794,22 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
                whole ? "" : " in this shard", res.computed, res.skipped, res.failed, el);
     int hrc = SINEW_OK;
     char hmsg[SINEW_MESSAGE_MAX] = "";
+    int json = a->progress == PROG_JSON;
     if (a->report) {
-        print_report(ctx, &p->spec);
+        print_report(ctx, &p->spec, json);
         char html[4200];
-        snprintf(html, sizeof html, "%s/report.html", a->outdir);
+        snprintf(html, sizeof html, "%s/" SINEW_RUN_REPORT_FILE, a->outdir);
         if (whole && mrc == SINEW_OK && !res.interrupted) {
             hrc = sinew_report_write(ctx, a->outdir, html, NULL);
-            if (hrc)
+            if (hrc) {
                 snprintf(hmsg, sizeof hmsg, "%s", sinew_ctx_message(ctx));
-            else
+            } else if (json) {
+                printf("{\"event\":\"report\",\"path\":");
+                cli_json_string(stdout, html);
+                printf("}\n");
+            } else {
                 printf("report: %s\n", html);
+            }
         }
     }
     if (whole && mrc == SINEW_OK && a->progress != PROG_JSON)
@@ -789,7 +828,9 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
         return cli_status(CMD, ctx, mrc);
     if (hrc)
         return cli_error(CMD, "%s", hmsg);
-    if (!whole)
+    if (!whole && json)
+        printf("{\"event\":\"shard_done\",\"shard\":%d,\"shards\":%d}\n", a->shard_k, a->shard_n);
+    else if (!whole)
         printf("shard %d/%d done; when every shard is done run: sinew run %s -o %s --merge\n",
                a->shard_k, a->shard_n, a->input, a->outdir);
     return CLI_OK;
@@ -817,6 +858,7 @@ int cmd_run(int argc, char **argv)
         ret = merge(ctx, run, &a, p.npairs);
     else if (ret == CLI_OK && (ret = store_options(ctx, &a)) == CLI_OK)
         ret = execute(ctx, &a, &p, run);
+    cli_stop_also_remove(NULL);
     sinew_run_free(run);
     plan_free(ctx, &p);
     sinew_ctx_free(ctx);

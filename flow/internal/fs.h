@@ -22,5 +22,11 @@ char *sinew__dup_join(sinew_ctx *ctx, const char *a, const char *b);
 int sinew__list_dir(sinew_ctx *ctx, const char *dir, int (*keep)(const char *name), int join,
                     size_t max, char ***out, size_t *n);
 void sinew__free_names(sinew_ctx *ctx, char **names, size_t n);
+/* ECONFIG naming path when it is a symbolic link (sinew never writes or deletes through
+ * one); SINEW_OK otherwise, also when it does not exist. */
+int sinew__refuse_link(sinew_ctx *ctx, const char *path);
+/* 1 when existing `path` is `dir` or lies below it once both are resolved (realpath:
+ * links, ".", ".."); 0 otherwise, also when either cannot be resolved. */
+int sinew__path_inside(const char *path, const char *dir);
 
 #endif

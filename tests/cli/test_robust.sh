@@ -219,3 +219,75 @@ sys.exit(0 if d["forward"]["mean_length_px"] is None and d["forward"]["unknown"]
     pass "mean_length_px is null when every vector is unknown"
 else fail "mean_length_px is null when every vector is unknown" \
     "$(head -c 300 "$T/i9/nanrun/pairs/000000-000001/stats.json" 2>&1)"; fi
+
+# --- the run folder (issue 21, items 2, 3, 5, 8; issue 17 item 4) ----------------------
+# Each failed on the previous main: a linked pair folder made run delete and write
+# outside OUTDIR; --flow-from OUTDIR/pairs emptied the flows it was to import; no lock;
+# a done.json listing only some outputs was trusted; --progress json mixed text lines in.
+R="$T/rf"
+mkdir -p "$R"
+"$SINEW_BIN" synth -o "$R/seq" --frames 2 --size 64x48 >/dev/null 2>&1
+mkdir -p "$R/out/pairs" "$R/victim"
+echo "years of work" >"$R/victim/thesis.txt"
+ln -s ../../victim "$R/out/pairs/000000-000001"
+expect_error "a linked pair folder is refused" - "000000-000001: is a symbolic link" \
+    "$SINEW_BIN" run "$R/seq" -o "$R/out" --preset fast
+if [ "$(ls "$R/victim")" = "thesis.txt" ] && grep -q "years" "$R/victim/thesis.txt"; then
+    pass "a linked pair folder: nothing deleted or written through the link"
+else fail "a linked pair folder: nothing deleted or written through the link" "$(ls "$R/victim")"; fi
+rm "$R/out/pairs/000000-000001"
+"$SINEW_BIN" run "$R/seq" -o "$R/out" --preset fast >/dev/null 2>&1 || fail "run folder setup" "run failed"
+P1="$R/out/pairs/000000-000001"
+echo "mine" >"$P1/notes.txt"
+expect_error "a file sinew did not make is never deleted" - "notes\.txt: not made by sinew" \
+    "$SINEW_BIN" run "$R/seq" -o "$R/out" --preset fast --match-stride 8
+if [ -f "$P1/notes.txt" ]; then pass "a foreign file in a pair folder stays"
+else fail "a foreign file in a pair folder stays" "notes.txt is gone"; fi
+rm "$P1/notes.txt"
+"$SINEW_BIN" run "$R/seq" -o "$R/out" --preset fast >/dev/null 2>&1
+cp "$P1/forward.flo" "$R/fwd.copy"
+expect_error "--flow-from inside the run's own output is refused" - "overlap" \
+    "$SINEW_BIN" run "$R/seq" -o "$R/out" --flow-from "$R/out/pairs"
+if cmp -s "$P1/forward.flo" "$R/fwd.copy"; then pass "--flow-from refused: the flows are intact"
+else fail "--flow-from refused: the flows are intact" "forward.flo changed or gone"; fi
+# a live holder (this shell, on this host) and a stale one (a process that has ended)
+printf 'pid %s\nhost %s\n' "$$" "$(hostname)" >"$R/out/run.lock"
+expect_error "a locked output folder is refused naming the holder" - \
+    "run\.lock: the output folder is in use by process $$ on host" \
+    "$SINEW_BIN" run "$R/seq" -o "$R/out" --preset fast --resume
+sh -c 'exit 0' & dead=$!; wait $dead
+printf 'pid %s\nhost %s\n' "$dead" "$(hostname)" >"$R/out/run.lock"
+expect_ok "a stale lock is removed" "$SINEW_BIN" run "$R/seq" -o "$R/out" --preset fast --resume
+if [ -e "$R/out/run.lock" ]; then fail "the lock is released at the end" "run.lock left"
+else pass "the lock is released at the end"; fi
+# a done record that lists only the two flows (as an interleaved run left it) is not trusted
+"$PYTHON" - "$P1/done.json" <<'PY'
+import json, sys
+d = json.load(open(sys.argv[1]))
+d["outputs"] = [o for o in d["outputs"] if o["file"].startswith(("forward", "backward"))]
+json.dump(d, open(sys.argv[1], "w"))
+PY
+rm "$P1/mask.png"
+"$SINEW_BIN" run "$R/seq" -o "$R/out" --preset fast --resume --progress plain >"$T/out" 2>&1
+if grep -q "1 computed, 0 skipped" "$T/out" && [ -f "$P1/mask.png" ]; then
+    pass "a pair with a partial done record is recomputed"
+else fail "a pair with a partial done record is recomputed" "$(tail -c 300 "$T/out")"; fi
+# --progress json: only JSON lines on stdout, also with --report; stale report temporaries go
+touch "$R/out/.report.html.tmp-abc123"
+"$SINEW_BIN" run "$R/seq" -o "$R/out" --preset fast --resume --report --progress json \
+    >"$T/rf.jsonl" 2>"$T/err"
+if "$PYTHON" -c 'import json,sys
+ev = [json.loads(l)["event"] for l in open(sys.argv[1])]
+sys.exit(0 if "report" in ev and "summary" in ev and ev.count("end") == 1 else 1)' "$T/rf.jsonl"; then
+    pass "--progress json keeps stdout pure JSON lines (with --report)"
+else fail "--progress json keeps stdout pure JSON lines (with --report)" "$(head -c 300 "$T/rf.jsonl")"; fi
+if ls -a "$R/out" | grep -q 'report.html.tmp-'; then
+    fail "--resume removes stale report temporaries" "$(ls -a "$R/out")"
+else pass "--resume removes stale report temporaries"; fi
+# a pair never reached (the run stopped at the first failure) is pending, not failed
+"$SINEW_BIN" synth -o "$R/seq3" --frames 3 --size 64x48 >/dev/null 2>&1
+sed 's#"color/000001.png"#"color/missing.png"#' "$R/seq3/sequence.json" >"$R/seq3/miss.json"
+"$SINEW_BIN" run "$R/seq3/miss.json" -o "$R/out3" --preset fast >"$T/out" 2>&1
+if grep -q "0 computed, 0 skipped, 1 failed" "$T/out" && grep -q "0 done, 1 failed, 1 pending" "$T/out"; then
+    pass "the run line and the manifest agree on failed pairs"
+else fail "the run line and the manifest agree on failed pairs" "$(tail -c 300 "$T/out")"; fi

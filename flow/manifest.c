@@ -157,7 +157,8 @@ static int build_pairs(sinew_run *run, int verify, cJSON *pairs, cJSON *inputs, 
 static void remove_stale_temporaries(sinew_ctx *ctx, const char *outdir)
 {
     static const char *const prefix[] = {"." SINEW_RUN_MANIFEST_FILE SINEW__TMP_TAG,
-                                         "." SINEW_RUN_REPORT_FILE SINEW__TMP_TAG};
+                                         "." SINEW_RUN_REPORT_FILE SINEW__TMP_TAG,
+                                         "." SINEW_RUN_OPTIONS_FILE SINEW__TMP_TAG};
     DIR *d = opendir(outdir);
     if (!d)
         return;

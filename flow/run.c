@@ -29,6 +29,7 @@
 
 #include "flow/internal/base.h"
 #include "flow/internal/run.h"
+#include "flow/io.h"
 #include "flow/run.h"
 
 enum { ROLE_COLOR = 0, ROLE_DEPTH, ROLE_LABELS, NROLES };
@@ -398,13 +399,14 @@ static int made_by_sinew(const sinew_run_spec *s, const char *nm, const cJSON *l
     for (size_t k = 0; k < sizeof fixed / sizeof fixed[0]; k++)
         if (!strcmp(nm, fixed[k]))
             return 1;
-    static const char *const flows[] = {SINEW_RUN_FORWARD ".flo",  SINEW_RUN_FORWARD ".npy",
-                                        SINEW_RUN_FORWARD ".pfm",  SINEW_RUN_FORWARD ".png",
-                                        SINEW_RUN_BACKWARD ".flo", SINEW_RUN_BACKWARD ".npy",
-                                        SINEW_RUN_BACKWARD ".pfm", SINEW_RUN_BACKWARD ".png"};
-    for (size_t k = 0; k < sizeof flows / sizeof flows[0]; k++)
-        if (!strcmp(nm, flows[k]))
-            return 1;
+    /* forward.EXT or backward.EXT, EXT of any flow format (the pipeline's table) */
+    const char *dot = strrchr(nm, '.');
+    size_t stem = dot ? (size_t)(dot - nm) : 0;
+    if (dot && ((stem == strlen(SINEW_RUN_FORWARD) && !strncmp(nm, SINEW_RUN_FORWARD, stem)) ||
+                (stem == strlen(SINEW_RUN_BACKWARD) && !strncmp(nm, SINEW_RUN_BACKWARD, stem))))
+        for (int f = SINEW_FLOW_AUTO + 1; sinew_run_flow_ext(f); f++)
+            if (!strcmp(dot + 1, sinew_run_flow_ext(f)))
+                return 1;
     for (size_t k = 0; k < s->noutputs; k++)
         if (!strcmp(nm, s->outputs[k]))
             return 1;

@@ -15,6 +15,7 @@
 #include <cjson/cJSON.h>
 
 #include "flow/internal/base.h"
+#include "flow/internal/json.h"
 #include "flow/sequence.h"
 
 #define MAX_JSON_BYTES ((size_t)256 << 20)
@@ -1018,12 +1019,10 @@ int sinew_sequence_write(sinew_sequence *seq, const char *path)
     if (st)
         return st;
     cJSON *root = build(seq);
-    char *text = root ? cJSON_Print(root) : NULL;
-    cJSON_Delete(root);
-    if (!text)
+    if (!root)
         return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory building JSON", path);
-    st = sinew_write_json_text(ctx, path, text); /* valid UTF-8, final newline */
-    cJSON_free(text);
+    st = sinew__json_write(ctx, path, root); /* valid UTF-8, final newline */
+    cJSON_Delete(root);
     return st;
 }
 

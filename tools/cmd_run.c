@@ -183,8 +183,10 @@ static void on_progress(void *ud, const sinew_run_progress *p)
 typedef struct {
     const char *input, *outdir, *flow_from, *schedule;
     int resume, dry, report, merge, shard_k, shard_n, force_options;
-    unsigned keep;  /* SINEW_RUN_KEEP_* bits of the settings given on the command line */
-    unsigned given; /* SINEW_RUN_OPT_* bits of the same, plus schedule, max-dt, flow-from */
+    /* SINEW_RUN_OPT_* bits of the options given on the command line; once options.json
+     * is applied, also every stored one (the sequence's settings must not override them;
+     * the first four bits are SINEW_RUN_KEEP_*) */
+    unsigned given;
     sinew_run_options stored; /* OUTDIR/options.json when it was applied (owns the strings) */
     long threads;
     double max_dt;
@@ -260,7 +262,7 @@ static int parse_option(int c, const char *arg, run_args *a)
         break;
     case O_PRESET:
         a->pp.preset = arg;
-        a->keep |= SINEW_RUN_KEEP_PRESET;
+        a->given |= SINEW_RUN_OPT_PRESET;
         break;
     case O_SHARD:
         return parse_shard(arg, a);
@@ -283,7 +285,7 @@ static int parse_option(int c, const char *arg, run_args *a)
             return cli_usage_error(CMD, "--progress: expected auto, plain or json, got '%s'", arg);
         break;
     case O_FMT:
-        a->keep |= SINEW_RUN_KEEP_FLOW_FORMAT;
+        a->given |= SINEW_RUN_OPT_FLOW_FORMAT;
         if (sinew_run_flow_format_parse(arg, &a->pp.flow_format))
             return cli_usage_error(
                 CMD, "--flow-format: expected flo, npy, npy16, pfm or png, got '%s'", arg);
@@ -301,14 +303,14 @@ static int parse_option(int c, const char *arg, run_args *a)
         if (cli_parse_double(arg, &a->pp.depth_scale) || !(a->pp.depth_scale > 0))
             return cli_usage_error(CMD, "--depth-scale: expected codes per metre > 0, got '%s'",
                                    arg);
-        a->keep |= SINEW_RUN_KEEP_DEPTH_SCALE;
+        a->given |= SINEW_RUN_OPT_DEPTH_SCALE;
         break;
     case O_MSTRIDE: {
         long v;
         if (cli_parse_int(arg, 0, 1 << 20, &v))
             return cli_usage_error(CMD, "--match-stride: expected pixels >= 0, got '%s'", arg);
         a->pp.match_stride = (int)v;
-        a->keep |= SINEW_RUN_KEEP_MATCH_STRIDE;
+        a->given |= SINEW_RUN_OPT_MATCH_STRIDE;
         break;
     }
     }
@@ -367,7 +369,6 @@ static int parse_args(int argc, char **argv, run_args *a)
     if (a->merge && (a->dry || a->shard_n > 1))
         return cli_usage_error(CMD, "--merge cannot be combined with --dry-run or --shard");
     a->input = argv[optind];
-    a->given |= a->keep;
     return -1;
 }
 
@@ -438,8 +439,8 @@ static int plan_stored_options(sinew_ctx *ctx, run_args *a)
     a->flow_from = a->stored.flow_from[0] ? a->stored.flow_from : NULL;
     /* the stored values are the effective ones of the first run: the sequence's
      * settings were already applied to them */
-    a->keep |= SINEW_RUN_KEEP_PRESET | SINEW_RUN_KEEP_FLOW_FORMAT | SINEW_RUN_KEEP_MATCH_STRIDE |
-               SINEW_RUN_KEEP_DEPTH_SCALE;
+    a->given |= SINEW_RUN_OPT_PRESET | SINEW_RUN_OPT_FLOW_FORMAT | SINEW_RUN_OPT_MATCH_STRIDE |
+                SINEW_RUN_OPT_DEPTH_SCALE;
     return CLI_OK;
 }
 
@@ -475,7 +476,7 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
     if ((rc = sinew_sequence_read(ctx, &p->seq, sp)) ||
         (rc = sinew_run_source_from_sequence(ctx, p->seq, sp, &p->src)) ||
         (rc = sinew_run_pipeline_params_apply_sequence(ctx, &a->pp, &p->cam, p->seq, a->input,
-                                                       a->keep)))
+                                                       a->given)))
         return cli_status(CMD, ctx, rc);
     return CLI_OK;
 }

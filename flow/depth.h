@@ -66,10 +66,6 @@ int sinew_depth_median(sinew_ctx *ctx, const sinew_image *z, double *median, siz
 #define SINEW_DEPTH_PLAUSIBLE_MIN 0.05
 #define SINEW_DEPTH_PLAUSIBLE_MAX 20.0
 
-/* Read a depth file by extension: .png (16-bit gray, raw codes -> SINEW_U16; 8-bit is
- * refused), .npy (H x W, float -> SINEW_F32) or .pfm ("Pf" -> SINEW_F32). Needs io. */
-int sinew_depth_read(sinew_ctx *ctx, sinew_image *raw, const char *path);
-
 #ifdef __cplusplus
 }
 #endif

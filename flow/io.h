@@ -25,6 +25,20 @@ extern "C" {
  * The result is an owned image; free with sinew_image_free. */
 int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path);
 
+/* Read a depth file by extension: .png (16-bit gray, raw codes -> SINEW_U16; 8-bit is
+ * refused), .npy (H x W, float -> SINEW_F32) or .pfm ("Pf" -> SINEW_F32). */
+int sinew_depth_read(sinew_ctx *ctx, sinew_image *raw, const char *path);
+/* Read a label image: one-channel 8- or 16-bit PNG (or PGM) of ids. Colour or float
+ * images are SINEW_EUNSUPPORTED naming the file. */
+int sinew_labels_read(sinew_ctx *ctx, sinew_image *labels, const char *path);
+/* Read a mask of bits (e.g. the check's reasons): an 8-bit one-channel PNG/PGM, or an
+ * integer-valued .npy (values 0..255). EFORMAT for other images, EVALUE naming the
+ * first pixel that is not an integer 0..255. */
+int sinew_mask_read(sinew_ctx *ctx, sinew_image *mask, const char *path);
+/* Read a one-channel float map (.npy or .pfm by extension; e.g. fb error, confidence):
+ * EUNSUPPORTED for other extensions, EFORMAT for other shapes. */
+int sinew_map_read(sinew_ctx *ctx, sinew_image *map, const char *path);
+
 /* Write a PNG: SINEW_U8 or SINEW_U16, 1..4 channels (gray, gray+alpha, RGB, RGBA). */
 int sinew_image_write_png(sinew_ctx *ctx, const char *path, const sinew_image *img);
 /* Encode an 8-bit image (SINEW_U8, 1..4 channels: gray, gray+alpha, RGB, RGBA) as PNG
@@ -44,6 +58,18 @@ typedef enum sinew_flow_format {
     SINEW_FLOW_NPY,      /* .npy  float32 H x W x 2, C order; unknown as NaN */
     SINEW_FLOW_NPY16     /* .npy  float16 H x W x 2 (writer choice; the reader accepts both) */
 } sinew_flow_format;
+
+/* Flow formats by name, as run folders and sequence files spell them: "flo", "npy",
+ * "npy16" (float16 .npy), "pfm", "png" (KITTI). _ext gives the file extension without
+ * the dot ("npy" for both .npy formats), _name the name; NULL for an unknown format.
+ * _parse: SINEW_OK and *fmt set, or SINEW_EINVAL for an unknown name. */
+const char *sinew_flow_format_ext(int fmt);
+const char *sinew_flow_format_name(int fmt);
+int sinew_flow_format_parse(const char *name, int *fmt);
+/* Find a flow file by stem: the first regular file STEM.EXT for EXT = flo, npy, pfm,
+ * png. 1 with its path in buf (size n); 0 when there is none (buf then holds STEM.flo,
+ * for messages); -1 when the path does not fit. */
+int sinew_flow_find(const char *stem, char *buf, size_t n);
 
 /* Format from the extension (.flo .png .pfm .npy, case-insensitive); EUNSUPPORTED with a
  * message naming the path if unknown. .npy maps to SINEW_FLOW_NPY (float32). */

@@ -12,6 +12,7 @@
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
+#include <strings.h>
 #include <sys/stat.h>
 
 #include "flow/internal/io.h"
@@ -252,4 +253,10 @@ void sinew__io_encode_floats(unsigned char *dst, const float *src, size_t n, siz
             dst[2 * i + (big ? 0 : 1)] = (unsigned char)(h >> 8);
         }
     }
+}
+
+int sinew__has_ext(const char *path, const char *ext)
+{
+    size_t n = strlen(path), e = strlen(ext);
+    return n >= e && !strcasecmp(path + n - e, ext);
 }

@@ -15,6 +15,7 @@
 #include <stdio.h>
 #include <string.h>
 #include <strings.h>
+#include <sys/stat.h>
 
 #include "flow/internal/io.h"
 #include "flow/io.h"
@@ -23,22 +24,73 @@
 #define FLO_UNKNOWN 1e10f
 #define FLO_UNKNOWN_THRESH 1e9f
 
+/* The one table of flow formats: name, extension, and lookup order (the order
+ * sinew_flow_find tries; the first entry of an extension is the one a path maps to). */
+static const struct {
+    sinew_flow_format fmt;
+    const char *name, *ext;
+} formats[] = {
+    {SINEW_FLOW_FLO, "flo", "flo"},     {SINEW_FLOW_NPY, "npy", "npy"},
+    {SINEW_FLOW_NPY16, "npy16", "npy"}, {SINEW_FLOW_PFM, "pfm", "pfm"},
+    {SINEW_FLOW_KITTI, "png", "png"},
+};
+#define NFORMATS (sizeof formats / sizeof formats[0])
+
+const char *sinew_flow_format_ext(int fmt)
+{
+    for (size_t k = 0; k < NFORMATS; k++)
+        if ((int)formats[k].fmt == fmt)
+            return formats[k].ext;
+    return NULL;
+}
+
+const char *sinew_flow_format_name(int fmt)
+{
+    for (size_t k = 0; k < NFORMATS; k++)
+        if ((int)formats[k].fmt == fmt)
+            return formats[k].name;
+    return NULL;
+}
+
+int sinew_flow_format_parse(const char *name, int *fmt)
+{
+    if (!name || !fmt)
+        return SINEW_EINVAL;
+    for (size_t k = 0; k < NFORMATS; k++)
+        if (!strcmp(name, formats[k].name)) {
+            *fmt = (int)formats[k].fmt;
+            return SINEW_OK;
+        }
+    return SINEW_EINVAL;
+}
+
+int sinew_flow_find(const char *stem, char *buf, size_t n)
+{
+    if (!stem || !buf || !n)
+        return -1;
+    for (size_t k = 0; k < NFORMATS; k++) {
+        if (k && !strcmp(formats[k].ext, formats[k - 1].ext))
+            continue;
+        int w = snprintf(buf, n, "%s.%s", stem, formats[k].ext);
+        if (w < 0 || (size_t)w >= n)
+            return -1;
+        struct stat st;
+        if (stat(buf, &st) == 0 && S_ISREG(st.st_mode))
+            return 1;
+    }
+    snprintf(buf, n, "%s.%s", stem, formats[0].ext);
+    return 0;
+}
+
 int sinew_flow_format_from_path(sinew_ctx *ctx, const char *path, sinew_flow_format *fmt)
 {
     if (!ctx || !path || !fmt)
         return ctx ? sinew__fail(ctx, SINEW_EINVAL, "flow format: missing argument") : SINEW_EINVAL;
     const char *slash = strrchr(path, '/');
     const char *dot = strrchr(slash ? slash + 1 : path, '.');
-    static const struct {
-        const char *ext;
-        sinew_flow_format fmt;
-    } map[] = {{".flo", SINEW_FLOW_FLO},
-               {".png", SINEW_FLOW_KITTI},
-               {".pfm", SINEW_FLOW_PFM},
-               {".npy", SINEW_FLOW_NPY}};
-    for (size_t i = 0; dot && i < sizeof map / sizeof map[0]; i++)
-        if (!strcasecmp(dot, map[i].ext)) {
-            *fmt = map[i].fmt;
+    for (size_t k = 0; dot && k < NFORMATS; k++)
+        if (!strcasecmp(dot + 1, formats[k].ext)) {
+            *fmt = formats[k].fmt;
             return SINEW_OK;
         }
     return sinew__fail(ctx, SINEW_EUNSUPPORTED,

@@ -1,6 +1,6 @@
 /* SPDX-License-Identifier: MIT */
-/* Binary PGM (P5) and PPM (P6) reading, and the content-sniffing dispatch behind
- * sinew_image_read.
+/* Binary PGM (P5) and PPM (P6) reading (sinew_image_read in io_image.c dispatches
+ * here).
  *
  * Netpbm header: magic, width, height, maxval as decimal tokens separated by
  * whitespace, '#' comments allowed between them, then exactly one whitespace byte and
@@ -63,39 +63,5 @@ int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *
         rc = sinew__io_expect_end(ctx, path, fp, "PNM raster");
     if (rc)
         sinew_image_free(out);
-    return rc;
-}
-
-int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path)
-{
-    if (out)
-        memset(out, 0, sizeof *out);
-    if (!ctx || !out || !path)
-        return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read image: missing argument") : SINEW_EINVAL;
-    FILE *fp;
-    int rc = sinew__open_regular(ctx, path, &fp);
-    if (rc)
-        return rc;
-    unsigned char sig[8];
-    size_t got = fread(sig, 1, sizeof sig, fp);
-    if (ferror(fp)) {
-        fclose(fp);
-        return sinew__fail(ctx, SINEW_EIO, "%s: cannot read", path);
-    }
-    rewind(fp);
-    static const unsigned char png_sig[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1a, '\n'};
-    if (got == 0)
-        rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: empty file", path);
-    else if (got == 8 && !memcmp(sig, png_sig, 8))
-        rc = sinew__png_read_fp(ctx, path, fp, out);
-    else if (got >= 3 && sig[0] == 0xff && sig[1] == 0xd8 && sig[2] == 0xff)
-        rc = sinew__jpeg_read_fp(ctx, path, fp, out);
-    else if (got >= 2 && sig[0] == 'P' && sig[1] >= '1' && sig[1] <= '7')
-        rc = sinew__pnm_read_fp(ctx, path, fp, out);
-    else
-        rc =
-            sinew__fail(ctx, SINEW_EFORMAT,
-                        "%s: not a PNG, JPEG or binary PGM/PPM image (unrecognised content)", path);
-    fclose(fp);
     return rc;
 }

@@ -153,6 +153,12 @@ int sinew_matches_save(sinew_ctx *ctx, const sinew_matches *m, const sinew_match
 
 /* The sidecar path for an npy path, into buf (returns SINEW_EINVAL if it does not fit). */
 int sinew_matches_sidecar_path(const char *npy_path, char *buf, size_t n);
+/* Read a sidecar's "columns" and give the column positions of u0, v0, u1, v1 and weight in
+ * idx[0..4]; weight is -1 when absent, the other four are required. *ncols: when non-zero
+ * the sidecar must name exactly that many columns; when zero it receives the sidecar's count
+ * (so a table can be checked against it from its header before any data is read). EFORMAT
+ * naming the file for a sidecar that does not fit. */
+int sinew_matches_read_columns(sinew_ctx *ctx, const char *path, size_t *ncols, int idx[5]);
 
 /* PLY for a 3-D viewer (needs depth): 2 * rows vertices (x y z float, red green blue
  * uchar; source points X0 orange, target points X1 blue) and rows edges joining X0 to X1
@@ -163,11 +169,7 @@ int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *p
  * round-trip float32). Atomic. */
 int sinew_matches_save_csv(sinew_ctx *ctx, const sinew_matches *m, const char *path);
 
-/* ---- readers for the match/lift inputs (need flow/io.h) ---- */
-
-/* Read a label image: one-channel 8- or 16-bit PNG (or PGM) of ids. Colour or float
- * images are SINEW_EUNSUPPORTED naming the file. */
-int sinew_labels_read(sinew_ctx *ctx, sinew_image *labels, const char *path);
+/* ---- the check folder, as match and lift read it (needs flow/io.h) ---- */
 
 /* Read the check stage's folder: DIR/mask.png (8-bit gray, 0 = kept) into *mask and
  * DIR/confidence.npy (H x W float in [0, 1]) into *confidence. The two paths are

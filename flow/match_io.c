@@ -1,7 +1,7 @@
 /* SPDX-License-Identifier: MIT */
 /* Match files: the npy table with its JSON sidecar, PLY (points + segments) and CSV
- * writers, and the readers the match/lift commands need (check folder, label images,
- * depth maps). Formats: docs/formats.md "Matches". cJSON stays inside this file. */
+ * writers, the sidecar's column reader, and the check folder reader the match/lift
+ * commands need. Formats: docs/formats.md "Matches". */
 #define _POSIX_C_SOURCE 200809L
 #include <cJSON.h>
 #include <math.h>
@@ -13,67 +13,12 @@
 #include "flow/depth.h"
 #include "flow/internal/base.h"
 #include "flow/internal/io.h"
+#include "flow/internal/json.h"
 #include "flow/io.h"
 #include "flow/json.h"
 #include "flow/match.h"
 
 /* ---- readers ---- */
-
-static int has_ext(const char *path, const char *ext)
-{
-    size_t n = strlen(path), e = strlen(ext);
-    return n >= e && !strcasecmp(path + n - e, ext);
-}
-
-int sinew_depth_read(sinew_ctx *ctx, sinew_image *raw, const char *path)
-{
-    if (!ctx || !raw || !path)
-        return SINEW_EINVAL;
-    memset(raw, 0, sizeof *raw);
-    int rc;
-    if (has_ext(path, ".npy"))
-        rc = sinew_npy_read_image(ctx, raw, path);
-    else if (has_ext(path, ".pfm"))
-        rc = sinew_pfm_read_image(ctx, raw, path);
-    else
-        rc = sinew_image_read(ctx, raw, path);
-    if (rc)
-        return rc;
-    if (raw->channels != 1) {
-        int ch = raw->channels;
-        sinew_image_free(raw);
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: depth must have one channel (got %d; colour-coded depth is "
-                           "not depth)",
-                           path, ch);
-    }
-    if (raw->type == SINEW_U8) {
-        sinew_image_free(raw);
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: 8-bit images cannot hold depth (expected 16-bit PNG codes or "
-                           "float metres in .npy/.pfm)",
-                           path);
-    }
-    return SINEW_OK;
-}
-
-int sinew_labels_read(sinew_ctx *ctx, sinew_image *labels, const char *path)
-{
-    if (!ctx || !labels || !path)
-        return SINEW_EINVAL;
-    int rc = sinew_image_read(ctx, labels, path);
-    if (rc)
-        return rc;
-    if (labels->channels != 1 || labels->type == SINEW_F32) {
-        int ch = labels->channels;
-        sinew_image_free(labels);
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: labels must be a one-channel 8- or 16-bit image (got %d "
-                           "channels)",
-                           path, ch);
-    }
-    return SINEW_OK;
-}
 
 int sinew_match_read_check(sinew_ctx *ctx, const char *dir, sinew_image *mask,
                            sinew_image *confidence, char *mask_path, char *confidence_path,
@@ -129,12 +74,53 @@ int sinew_matches_sidecar_path(const char *npy_path, char *buf, size_t n)
     if (!npy_path || !buf)
         return SINEW_EINVAL;
     size_t len = strlen(npy_path);
-    size_t stem = has_ext(npy_path, ".npy") ? len - 4 : len;
+    size_t stem = sinew__has_ext(npy_path, ".npy") ? len - 4 : len;
     if (stem + 6 > n)
         return SINEW_EINVAL;
     memcpy(buf, npy_path, stem);
     memcpy(buf + stem, ".json", 6);
     return SINEW_OK;
+}
+
+int sinew_matches_read_columns(sinew_ctx *ctx, const char *path, size_t *ncols, int idx[5])
+{
+    if (!ctx || !path || !ncols || !idx)
+        return SINEW_EINVAL;
+    static const char *const want[5] = {"u0", "v0", "u1", "v1", "weight"};
+    for (int k = 0; k < 5; k++)
+        idx[k] = -1;
+    cJSON *root;
+    int rc = sinew__json_read(ctx, path, (size_t)1 << 20, &root);
+    if (rc)
+        return rc;
+    const cJSON *cols = cJSON_GetObjectItemCaseSensitive(root, "columns"), *c;
+    if (!cJSON_IsArray(cols))
+        rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: no \"columns\" array", path);
+    else if (cJSON_GetArraySize(cols) == 0)
+        rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: the \"columns\" array is empty", path);
+    else if (*ncols && (size_t)cJSON_GetArraySize(cols) != *ncols)
+        rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: names %d columns but the table has %zu", path,
+                         cJSON_GetArraySize(cols), *ncols);
+    else
+        *ncols = (size_t)cJSON_GetArraySize(cols);
+    int i = 0;
+    const cJSON *list = rc ? NULL : cols;
+    cJSON_ArrayForEach(c, list)
+    {
+        if (!cJSON_IsString(c)) {
+            rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: column %d is not a string", path, i);
+            break;
+        }
+        for (int k = 0; k < 5; k++)
+            if (!strcmp(c->valuestring, want[k]))
+                idx[k] = i;
+        i++;
+    }
+    for (int k = 0; !rc && k < 4; k++)
+        if (idx[k] < 0)
+            rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: no column named \"%s\"", path, want[k]);
+    cJSON_Delete(root);
+    return rc;
 }
 
 static cJSON *camera_json(const sinew_camera *c)

@@ -140,12 +140,9 @@ int sinew__report_exists(const char *path)
 int sinew__report_find_flow(const sinew__report *r, const sinew__report_pair *q, char *buf,
                             size_t n)
 {
-    static const char *const names[] = {SINEW_RUN_FORWARD ".flo", SINEW_RUN_FORWARD ".npy",
-                                        SINEW_RUN_FORWARD ".pfm", SINEW_RUN_FORWARD ".png"};
-    for (size_t k = 0; k < sizeof names / sizeof names[0]; k++)
-        if (sinew__report_pair_path(r, q, names[k], buf, n) && sinew__report_exists(buf))
-            return 1;
-    return 0;
+    char stem[4096];
+    return sinew__report_pair_path(r, q, SINEW_RUN_FORWARD, stem, sizeof stem) &&
+           sinew_flow_find(stem, buf, n) == 1;
 }
 
 int sinew__report_read_checked(sinew_ctx *ctx, sinew_image *img, const char *path, int npy,

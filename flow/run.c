@@ -740,23 +740,17 @@ int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, cha
 {
     if (!ctx || !dir || !name || !fwd || !bwd)
         return SINEW_EINVAL;
-    static const char *const ext[] = {"flo", "npy", "pfm", "png"};
     char *out[2] = {fwd, bwd};
-    static const char *const base[2] = {"forward", "backward"};
+    static const char *const base[2] = {SINEW_RUN_FORWARD, SINEW_RUN_BACKWARD};
     for (int k = 0; k < 2; k++) {
-        int found = 0;
-        for (size_t e = 0; e < sizeof ext / sizeof ext[0] && !found; e++) {
-            int w = snprintf(out[k], n, "%s/%s/%s.%s", dir, name, base[k], ext[e]);
-            if (w < 0 || (size_t)w >= n)
-                return sinew__fail(ctx, SINEW_ELIMIT, "%s/%s: path too long", dir, name);
-            struct stat st;
-            found = stat(out[k], &st) == 0 && S_ISREG(st.st_mode);
-        }
-        if (!found) {
-            snprintf(out[k], n, "%s/%s/%s.flo", dir, name, base[k]);
+        char stem[4200];
+        int w = snprintf(stem, sizeof stem, "%s/%s/%s", dir, name, base[k]);
+        int found = w < 0 || (size_t)w >= sizeof stem ? -1 : sinew_flow_find(stem, out[k], n);
+        if (found < 0)
+            return sinew__fail(ctx, SINEW_ELIMIT, "%s/%s: path too long", dir, name);
+        if (!found)
             return sinew__fail(ctx, SINEW_EIO,
                                "%s: imported flow not found (also tried .npy, .pfm, .png)", out[k]);
-        }
     }
     return SINEW_OK;
 }

@@ -46,42 +46,19 @@ struct sinew_run_pipeline {
     sinew_image fwd, bwd, mask, conf, fberr;
 };
 
-static const struct {
-    int fmt;
-    const char *ext;
-    const char *name;
-} formats[] = {
-    {SINEW_FLOW_FLO, "flo", "flo"},     {SINEW_FLOW_NPY, "npy", "npy"},
-    {SINEW_FLOW_NPY16, "npy", "npy16"}, {SINEW_FLOW_PFM, "pfm", "pfm"},
-    {SINEW_FLOW_KITTI, "png", "png"},
-};
-
 const char *sinew_run_flow_ext(int flow_format)
 {
-    for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)
-        if (formats[k].fmt == flow_format)
-            return formats[k].ext;
-    return NULL;
+    return sinew_flow_format_ext(flow_format);
 }
 
 int sinew_run_flow_format_parse(const char *name, int *flow_format)
 {
-    if (!name || !flow_format)
-        return SINEW_EINVAL;
-    for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)
-        if (!strcmp(name, formats[k].name)) {
-            *flow_format = formats[k].fmt;
-            return SINEW_OK;
-        }
-    return SINEW_EINVAL;
+    return sinew_flow_format_parse(name, flow_format);
 }
 
 const char *sinew_run_flow_format_name(int flow_format)
 {
-    for (size_t k = 0; k < sizeof formats / sizeof formats[0]; k++)
-        if (formats[k].fmt == flow_format)
-            return formats[k].name;
-    return NULL;
+    return sinew_flow_format_name(flow_format);
 }
 
 void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p)
@@ -178,7 +155,7 @@ int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *
 {
     if (!ctx || !p || !buf || !p->preset)
         return SINEW_EINVAL;
-    const char *fmt = sinew_run_flow_format_name(p->flow_format);
+    const char *fmt = sinew_flow_format_name(p->flow_format);
     if (!fmt)
         return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow format %d", p->flow_format);
     sinew_flow_params fp;

@@ -16,6 +16,7 @@
 
 #include "flow/internal/base.h"
 #include "flow/internal/json.h"
+#include "flow/io.h"
 #include "flow/sequence.h"
 
 #define MAX_JSON_BYTES ((size_t)256 << 20)
@@ -209,7 +210,6 @@ static int check_path(sinew_ctx *ctx, const char *where, const char *key, const 
 }
 
 static const char *const schedule_kinds[] = {"consecutive", "gap", "keyframe", "list", NULL};
-static const char *const flow_formats[] = {"flo", "npy", "npy16", "pfm", "png", NULL};
 
 static int in_list(const char *s, const char *const *list)
 {
@@ -243,7 +243,8 @@ static int validate_run(sinew_ctx *ctx, const sinew_sequence *seq, const char *w
     }
     if (r->preset && !*r->preset)
         return bad_key(ctx, where, "run.preset", "empty string");
-    if (r->flow_format && in_list(r->flow_format, flow_formats) < 0)
+    int fmt;
+    if (r->flow_format && sinew_flow_format_parse(r->flow_format, &fmt) != SINEW_OK)
         return bad_key(ctx, where, "run.flow_format", "expected flo, npy, npy16, pfm or png");
     if (r->has_match_stride && (r->match_stride < 0 || r->match_stride > MAX_IMAGE_DIM))
         return bad_key(ctx, where, "run.match_stride", "must be 0..1048576");

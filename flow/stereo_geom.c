@@ -14,6 +14,7 @@
 #include <string.h>
 
 #include "flow/internal/base.h"
+#include "flow/internal/io.h"
 #include "flow/internal/parallel.h"
 #include "flow/io.h"
 
@@ -263,28 +264,17 @@ int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const cha
 
 /* ---- writing maps ---- */
 
-static int has_ext(const char *path, const char *ext)
-{
-    const size_t n = strlen(path), e = strlen(ext);
-    if (n < e)
-        return 0;
-    for (size_t i = 0; i < e; i++)
-        if (tolower((unsigned char)path[n - e + i]) != ext[i])
-            return 0;
-    return 1;
-}
-
 int sinew_stereo_write_map(sinew_ctx *ctx, const char *path, const sinew_image *map,
                            double png_scale)
 {
     if (!ctx || !path || !is_map(map))
         return ctx ? sinew__fail(ctx, SINEW_EINVAL, "stereo: a map is F32 with 1 channel")
                    : SINEW_EINVAL;
-    if (has_ext(path, ".npy"))
+    if (sinew__has_ext(path, ".npy"))
         return sinew_npy_write_image(ctx, path, map, 0);
-    if (has_ext(path, ".pfm"))
+    if (sinew__has_ext(path, ".pfm"))
         return sinew_pfm_write_image(ctx, path, map);
-    if (!has_ext(path, ".png"))
+    if (!sinew__has_ext(path, ".png"))
         return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: write .npy, .pfm or .png (16-bit)", path);
     if (!isfinite(png_scale) || png_scale <= 0)
         return sinew__fail(ctx, SINEW_EINVAL, "%s: the PNG scale must be > 0", path);

@@ -8,8 +8,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-
-#include <cJSON.h>
+#include <sys/stat.h>
 
 #include "flow/io.h"
 #include "tools/cli.h"
@@ -114,77 +113,10 @@ typedef struct opts {
 
 /* ---- input helpers (each names the file in its message) ---- */
 
-static int read_flow(sinew_ctx *ctx, sinew_image *f, const char *path)
+/* The status of a library read: 0, or the error line naming the file. */
+static int got(sinew_ctx *ctx, int st)
 {
-    int st = sinew_flow_read(ctx, f, path, SINEW_FLOW_AUTO);
     return st ? cli_status(CMD, ctx, st) : 0;
-}
-
-static int read_frame(sinew_ctx *ctx, sinew_image *f, const char *path)
-{
-    int st = sinew_image_read(ctx, f, path);
-    return st ? cli_status(CMD, ctx, st) : 0;
-}
-
-static int ends_with(const char *s, const char *suffix)
-{
-    size_t n = strlen(s), m = strlen(suffix);
-    return n >= m && !strcasecmp(s + n - m, suffix);
-}
-
-static int read_map(sinew_ctx *ctx, sinew_image *m, const char *path)
-{
-    int st;
-    if (ends_with(path, ".npy"))
-        st = sinew_npy_read_image(ctx, m, path);
-    else if (ends_with(path, ".pfm"))
-        st = sinew_pfm_read_image(ctx, m, path);
-    else
-        return cli_error(CMD, "%s: maps are read from .npy or .pfm", path);
-    if (st)
-        return cli_status(CMD, ctx, st);
-    if (m->type != SINEW_F32 || m->channels != 1) {
-        sinew_image_free(m);
-        return cli_error(CMD, "%s: expected a 1-channel map, got %d channels", path, m->channels);
-    }
-    return 0;
-}
-
-static int read_mask(sinew_ctx *ctx, sinew_image *mask, const char *path)
-{
-    sinew_image raw;
-    int st = ends_with(path, ".npy") ? sinew_npy_read_image(ctx, &raw, path)
-                                     : sinew_image_read(ctx, &raw, path);
-    if (st)
-        return cli_status(CMD, ctx, st);
-    if (raw.channels != 1 || raw.type == SINEW_U16) {
-        sinew_image_free(&raw);
-        return cli_error(CMD, "%s: a mask must be 8-bit with one channel", path);
-    }
-    if (raw.type == SINEW_U8) {
-        *mask = raw;
-        return 0;
-    }
-    st = sinew_image_alloc(ctx, mask, raw.width, raw.height, 1, SINEW_U8);
-    if (st) {
-        sinew_image_free(&raw);
-        return cli_status(CMD, ctx, st);
-    }
-    for (int y = 0; y < raw.height; y++) {
-        const float *r = sinew_image_row_f32(&raw, y);
-        uint8_t *o = sinew_image_row_u8(mask, y);
-        for (int x = 0; x < raw.width; x++) {
-            if (!(r[x] >= 0 && r[x] <= 255) || r[x] != floorf(r[x])) {
-                sinew_image_free(&raw);
-                sinew_image_free(mask);
-                return cli_error(CMD, "%s: mask value at (%d, %d) is not an integer 0..255", path,
-                                 x, y);
-            }
-            o[x] = (uint8_t)r[x];
-        }
-    }
-    sinew_image_free(&raw);
-    return 0;
 }
 
 static int same_size(const sinew_image *a, const char *pa, const sinew_image *b, const char *pb)
@@ -193,64 +125,6 @@ static int same_size(const sinew_image *a, const char *pa, const sinew_image *b,
         return 0;
     return cli_error(CMD, "%s is %dx%d but %s is %dx%d", pb, b->width, b->height, pa, a->width,
                      a->height);
-}
-
-/* Column indices from the sidecar: {"columns": ["u0", "v0", "u1", "v1", "weight", ...]}. */
-static int read_columns(sinew_ctx *ctx, const char *path, size_t *ncols, sinew_match_table *t)
-{
-    unsigned char *buf = NULL;
-    size_t len = 0;
-    int st = sinew_read_file(ctx, path, (size_t)1 << 20, &buf, &len);
-    if (st)
-        return cli_status(CMD, ctx, st);
-    cJSON *root = cJSON_ParseWithLength((const char *)buf, len);
-    sinew_ctx_dealloc(ctx, buf);
-    if (!root)
-        return cli_error(CMD, "%s: not valid JSON", path);
-    int rc = 0;
-    const cJSON *cols = cJSON_GetObjectItemCaseSensitive(root, "columns");
-    if (!cJSON_IsArray(cols)) {
-        rc = cli_error(CMD, "%s: no \"columns\" array", path);
-        goto done;
-    }
-    *ncols = (size_t)cJSON_GetArraySize(cols);
-    if (*ncols == 0) {
-        rc = cli_error(CMD, "%s: the \"columns\" array is empty", path);
-        goto done;
-    }
-    int *slot[5] = {&t->u0, &t->v0, &t->u1, &t->v1, &t->weight};
-    static const char *const want[5] = {"u0", "v0", "u1", "v1", "weight"};
-    for (int k = 0; k < 5; k++)
-        *slot[k] = -1;
-    int i = 0;
-    const cJSON *c;
-    cJSON_ArrayForEach(c, cols)
-    {
-        if (!cJSON_IsString(c)) {
-            rc = cli_error(CMD, "%s: column %d is not a string", path, i);
-            goto done;
-        }
-        for (int k = 0; k < 5; k++)
-            if (!strcmp(c->valuestring, want[k]))
-                *slot[k] = i;
-        i++;
-    }
-    for (int k = 0; k < 4; k++)
-        if (*slot[k] < 0) {
-            rc = cli_error(CMD, "%s: no column named \"%s\"", path, want[k]);
-            goto done;
-        }
-done:
-    cJSON_Delete(root);
-    return rc;
-}
-
-static int file_exists(const char *p)
-{
-    FILE *f = fopen(p, "rb");
-    if (f)
-        fclose(f);
-    return f != NULL;
 }
 
 /* A drawing failure names the picture ("image: WxH exceeds the limit" alone would not). */
@@ -267,29 +141,28 @@ static int draw_matches(sinew_ctx *ctx, sinew_image *out, const opts *o)
     int rc = 0;
     char side[4096];
     const char *cols = o->columns;
-    if (!cols) {
-        size_t n = strlen(o->table);
-        if (n + 6 > sizeof side)
+    if (!cols) { /* TABLE with .json for .npy when that exists, else TABLE.json */
+        struct stat sb;
+        if (strlen(o->table) + 6 > sizeof side)
             return cli_error(CMD, "%s: path too long", o->table);
-        if (ends_with(o->table, ".npy")) {
-            snprintf(side, sizeof side, "%.*s.json", (int)(n - 4), o->table);
-            if (!file_exists(side))
-                snprintf(side, sizeof side, "%s.json", o->table);
-        } else {
+        sinew_matches_sidecar_path(o->table, side, sizeof side);
+        if (stat(side, &sb) != 0)
             snprintf(side, sizeof side, "%s.json", o->table);
-        }
         cols = side;
     }
     /* the sidecar first: the table's shape is checked against it from the header, before
      * any data is read */
     sinew_match_table t = {0};
     size_t ncols = 0;
-    if ((rc = read_columns(ctx, cols, &ncols, &t)))
+    int idx[5];
+    if ((rc = got(ctx, sinew_matches_read_columns(ctx, cols, &ncols, idx))))
         return rc;
     int st = sinew_npy_read_table(ctx, o->table, ncols, &data, &t.rows, &t.cols);
     if (st)
         return cli_status(CMD, ctx, st);
-    if ((rc = read_frame(ctx, &f0, o->frame)) || (rc = read_frame(ctx, &f1, o->frame1)))
+    t.u0 = idx[0], t.v0 = idx[1], t.u1 = idx[2], t.v1 = idx[3], t.weight = idx[4];
+    if ((rc = got(ctx, sinew_image_read(ctx, &f0, o->frame))) ||
+        (rc = got(ctx, sinew_image_read(ctx, &f1, o->frame1))))
         goto done;
     t.data = data;
     st = sinew_draw_matches(ctx, out, &f0, &f1, &t, (size_t)o->count, o->legend);
@@ -310,27 +183,28 @@ static int draw_kind(sinew_ctx *ctx, const char *k, const opts *o, sinew_image *
     if (!strcmp(k, "wheel")) {
         st = sinew_draw_wheel(ctx, out, (int)o->size);
     } else if (!strcmp(k, "flow")) {
-        if (!(rc = read_flow(ctx, &a, o->flow)))
+        if (!(rc = got(ctx, sinew_flow_read(ctx, &a, o->flow, SINEW_FLOW_AUTO))))
             st = sinew_draw_flow(ctx, out, &a, max, o->legend);
     } else if (!strcmp(k, "arrows")) {
-        if (!(rc = read_flow(ctx, &a, o->flow)) && o->frame &&
-            !(rc = read_frame(ctx, &fr, o->frame)))
+        if (!(rc = got(ctx, sinew_flow_read(ctx, &a, o->flow, SINEW_FLOW_AUTO))) && o->frame &&
+            !(rc = got(ctx, sinew_image_read(ctx, &fr, o->frame))))
             rc = same_size(&a, o->flow, &fr, o->frame);
         if (!rc)
             st = sinew_draw_arrows(ctx, out, o->frame ? &fr : NULL, &a, (int)o->step, o->scale,
                                    o->legend);
     } else if (!strcmp(k, "fb-error") || !strcmp(k, "confidence")) {
         int conf = !strcmp(k, "confidence");
-        if (!(rc = read_map(ctx, &a, o->map)))
+        if (!(rc = got(ctx, sinew_map_read(ctx, &a, o->map))))
             st = sinew_draw_heatmap(ctx, out, &a, 0, conf ? 1 : max,
                                     conf ? "CONFIDENCE" : "FORWARD-BACKWARD ERROR (PX)", o->legend);
     } else if (!strcmp(k, "epe")) {
-        if (!(rc = read_flow(ctx, &a, o->flow)) && !(rc = read_flow(ctx, &b, o->truth)) &&
+        if (!(rc = got(ctx, sinew_flow_read(ctx, &a, o->flow, SINEW_FLOW_AUTO))) &&
+            !(rc = got(ctx, sinew_flow_read(ctx, &b, o->truth, SINEW_FLOW_AUTO))) &&
             !(rc = same_size(&a, o->flow, &b, o->truth)))
             st = sinew_draw_epe(ctx, out, &a, &b, max, o->legend);
     } else if (!strcmp(k, "reasons")) {
-        if (!(rc = read_mask(ctx, &a, o->mask)) && o->frame &&
-            !(rc = read_frame(ctx, &fr, o->frame)))
+        if (!(rc = got(ctx, sinew_mask_read(ctx, &a, o->mask))) && o->frame &&
+            !(rc = got(ctx, sinew_image_read(ctx, &fr, o->frame))))
             rc = same_size(&a, o->mask, &fr, o->frame);
         if (!rc)
             st = sinew_draw_reasons(ctx, out, o->frame ? &fr : NULL, &a, o->legend);

@@ -64,6 +64,9 @@ void sinew__io_decode_floats(float *dst, const unsigned char *src, size_t n, siz
 void sinew__io_encode_floats(unsigned char *dst, const float *src, size_t n, size_t elem,
                              int big_endian);
 
+/* 1 if path ends with ext (e.g. ".npy"), compared without case. */
+int sinew__has_ext(const char *path, const char *ext);
+
 /* Image decoders behind sinew_image_read; fp is open at the start of the file, which
  * the caller closes. On failure *out is left zeroed. */
 int sinew__png_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out);

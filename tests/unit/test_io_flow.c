@@ -799,6 +799,37 @@ static void test_io_flow_we_load_numpy(void **state)
     sinew_image_free(&h32);
 }
 
+/* The flow-format table: names, extensions, lookup by stem in the order flo, npy, pfm,
+ * png. */
+static void test_io_flow_format_table_and_find(void **state)
+{
+    tu_fixture *fx = *state;
+    int fmt = -1;
+    static const char *const names[5] = {"flo", "npy", "npy16", "pfm", "png"};
+    static const char *const exts[5] = {"flo", "npy", "npy", "pfm", "png"};
+    for (int k = 0; k < 5; k++) {
+        assert_int_equal(sinew_flow_format_parse(names[k], &fmt), SINEW_OK);
+        assert_string_equal(sinew_flow_format_name(fmt), names[k]);
+        assert_string_equal(sinew_flow_format_ext(fmt), exts[k]);
+    }
+    assert_int_equal(sinew_flow_format_parse("NPY", &fmt), SINEW_EINVAL);
+    assert_null(sinew_flow_format_ext(SINEW_FLOW_AUTO));
+    char stem[700], buf[800];
+    snprintf(stem, sizeof stem, "%s", tu_fixture_path(fx, "forward"));
+    assert_int_equal(sinew_flow_find(stem, buf, sizeof buf), 0);
+    assert_non_null(strstr(buf, "forward.flo"));
+    char png[800], npy[800];
+    snprintf(png, sizeof png, "%s.png", stem);
+    snprintf(npy, sizeof npy, "%s.npy", stem);
+    tu_write_bytes(png, "x", 1);
+    assert_int_equal(sinew_flow_find(stem, buf, sizeof buf), 1);
+    assert_string_equal(buf, png);
+    tu_write_bytes(npy, "x", 1);
+    assert_int_equal(sinew_flow_find(stem, buf, sizeof buf), 1);
+    assert_string_equal(buf, npy);
+    assert_int_equal(sinew_flow_find(stem, buf, strlen(stem) + 2), -1);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -833,6 +864,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_io_flow_numpy_loads_ours, tu_fixture_setup,
                                         tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_flow_we_load_numpy, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_flow_format_table_and_find, tu_fixture_setup,
                                         tu_fixture_teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

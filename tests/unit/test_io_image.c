@@ -517,6 +517,55 @@ static void test_io_image_depth_png_matches_reference_decoder(void **state)
     sinew_image_free(&r);
 }
 
+/* Masks of bits and one-channel maps: 8-bit PNG or integer .npy masks; float maps
+ * from .npy/.pfm only. */
+static void test_io_image_mask_and_map_readers(void **state)
+{
+    tu_fixture *fx = *state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_image img, out;
+    assert_int_equal(sinew_image_alloc(ctx, &img, 3, 2, 1, SINEW_U8), SINEW_OK);
+    for (int y = 0; y < 2; y++)
+        for (int x = 0; x < 3; x++)
+            sinew_image_row_u8(&img, y)[x] = (uint8_t)(y * 3 + x) * 10;
+    const char *png = tu_fixture_path(fx, "m.png");
+    char pngp[700];
+    snprintf(pngp, sizeof pngp, "%s", png);
+    assert_int_equal(sinew_image_write_png(ctx, pngp, &img), SINEW_OK);
+    assert_int_equal(sinew_mask_read(ctx, &out, pngp), SINEW_OK);
+    assert_int_equal(sinew_image_row_u8(&out, 1)[2], 50);
+    sinew_image_free(&out);
+    /* a float map read as a mask: integers pass, 2.5 is refused naming the pixel */
+    const float vals[6] = {0, 1, 2, 3, 255, 4};
+    char npy[700];
+    snprintf(npy, sizeof npy, "%s", tu_fixture_path(fx, "m.npy"));
+    tu_write_npy(npy, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (2, 3), }", vals,
+                 sizeof vals);
+    assert_int_equal(sinew_mask_read(ctx, &out, npy), SINEW_OK);
+    assert_int_equal(out.type, SINEW_U8);
+    assert_int_equal(sinew_image_row_u8(&out, 1)[1], 255);
+    sinew_image_free(&out);
+    assert_int_equal(sinew_map_read(ctx, &out, npy), SINEW_OK);
+    assert_true(sinew_image_row_f32(&out, 1)[2] == 4.0f);
+    sinew_image_free(&out);
+    const float bad[6] = {0, 1, 2.5f, 3, 4, 5};
+    tu_write_npy(npy, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (2, 3), }", bad,
+                 sizeof bad);
+    assert_int_equal(sinew_mask_read(ctx, &out, npy), SINEW_EVALUE);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "(2, 0) is not an integer 0..255"));
+    assert_null(out.data);
+    /* a 16-bit PNG is not a mask; a PNG is not a map */
+    sinew_image w;
+    assert_int_equal(sinew_image_alloc(ctx, &w, 3, 2, 1, SINEW_U16), SINEW_OK);
+    memset(w.data, 0, w.stride * 2);
+    assert_int_equal(sinew_image_write_png(ctx, pngp, &w), SINEW_OK);
+    assert_int_equal(sinew_mask_read(ctx, &out, pngp), SINEW_EFORMAT);
+    assert_int_equal(sinew_map_read(ctx, &out, pngp), SINEW_EUNSUPPORTED);
+    sinew_image_free(&w);
+    sinew_image_free(&img);
+    sinew_ctx_free(ctx);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -529,6 +578,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_io_image_jpeg, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_pnm, tu_fixture_setup, tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_allocation_failures, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_mask_and_map_readers, tu_fixture_setup,
                                         tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_damaged_files, tu_fixture_setup,
                                         tu_fixture_teardown),

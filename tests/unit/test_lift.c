@@ -1039,9 +1039,54 @@ static void test_lift_demo_scene_flow_error(void **state)
     }
 }
 
+/* The sidecar's column reader: positions by name, weight optional, one error line
+ * naming the file for sidecars that do not fit the table. */
+static void test_lift_sidecar_columns(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    char *dir = tu_tmpdir();
+    char p[600];
+    tu_path(p, sizeof p, dir, "m.json");
+    const char *ok = "{\"columns\": [\"weight\", \"u1\", \"v1\", \"u0\", \"v0\", \"label0\"]}";
+    tu_write_bytes(p, ok, strlen(ok));
+    int idx[5];
+    size_t n = 6;
+    assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_OK);
+    assert_int_equal(idx[0], 3);
+    assert_int_equal(idx[1], 4);
+    assert_int_equal(idx[2], 1);
+    assert_int_equal(idx[3], 2);
+    assert_int_equal(idx[4], 0);
+    n = 5;
+    assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_EFORMAT);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "names 6 columns but the table has 5"));
+    n = 0; /* 0: take the sidecar's count */
+    assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_OK);
+    assert_int_equal(n, 6);
+    const char *no_w = "{\"columns\": [\"u0\", \"v0\", \"u1\", \"v1\"]}";
+    tu_write_bytes(p, no_w, strlen(no_w));
+    n = 4;
+    assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_OK);
+    assert_int_equal(idx[4], -1);
+    const char *bad[] = {"{\"columns\": [\"u0\", \"v0\", \"u1\", 3]}", "{\"cols\": []}",
+                         "{\"columns\": [\"u0\", \"v0\", \"u1\", \"w\"]}", "[1,",
+                         "{\"columns\": []}"};
+    for (int k = 0; k < 5; k++) {
+        tu_write_bytes(p, bad[k], strlen(bad[k]));
+        n = k < 4 ? 4 : 0;
+        assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_EFORMAT);
+        assert_non_null(strstr(sinew_ctx_message(ctx), "m.json: "));
+    }
+    tu_rmtree(dir);
+    free(dir);
+    sinew_ctx_free(ctx);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_lift_sidecar_columns),
         cmocka_unit_test(test_lift_depth_codes_and_scale),
         cmocka_unit_test(test_lift_depth_float_ray_disparity),
         cmocka_unit_test(test_lift_plane_exact),

@@ -63,7 +63,7 @@ static void wheel_rgb(int k, int rgb[3])
     rgb[0] = 255, rgb[1] = 0, rgb[2] = 255 - 255 * i / 6;
 }
 
-int sinew_wheel_entry(int k, uint8_t rgb[3])
+int sinew_draw_wheel_entry(int k, uint8_t rgb[3])
 {
     if (k < 0 || k >= SINEW_WHEEL_COLOURS || !rgb)
         return SINEW_EINVAL;
@@ -74,7 +74,7 @@ int sinew_wheel_entry(int k, uint8_t rgb[3])
     return SINEW_OK;
 }
 
-void sinew_wheel_colour(double fx, double fy, uint8_t rgb[3])
+void sinew_draw_wheel_colour(double fx, double fy, uint8_t rgb[3])
 {
     if (!isfinite(fx) || !isfinite(fy)) {
         rgb[0] = rgb[1] = rgb[2] = 0;
@@ -152,7 +152,7 @@ static int image_max(sinew_ctx *ctx, const sinew_image *img, double *out)
     return SINEW_OK;
 }
 
-int sinew_flow_max_magnitude(sinew_ctx *ctx, const sinew_image *flow, double *max_mag)
+int sinew_draw_max_magnitude(sinew_ctx *ctx, const sinew_image *flow, double *max_mag)
 {
     if (!ctx || !max_mag)
         return SINEW_EINVAL;
@@ -182,7 +182,7 @@ static const struct {
     {1.00, {246, 234, 206}} /* pale cream */
 };
 
-void sinew_colourmap(double t, uint8_t rgb[3])
+void sinew_draw_colourmap(double t, uint8_t rgb[3])
 {
     if (isnan(t)) {
         rgb[0] = rgb[1] = rgb[2] = SINEW_DRAW_NOVALUE_A;
@@ -223,7 +223,7 @@ static const struct {
     {{196, 150, 108}, "FB MISMATCH"},    /* bit 7: inconsistent but visible (tan) */
 };
 
-int sinew_reason_style(int bit, uint8_t rgb[3], const char **name)
+int sinew_draw_reason_style(int bit, uint8_t rgb[3], const char **name)
 {
     if (bit < 0 || bit >= SINEW_DRAW_REASONS)
         return SINEW_EINVAL;
@@ -288,8 +288,8 @@ static int clip_segment(double *x0, double *y0, double *x1, double *y1, double h
     return 1;
 }
 
-void sinew_image_draw_line(sinew_image *img, double x0, double y0, double x1, double y1,
-                           const uint8_t rgb[3])
+void sinew_draw_line(sinew_image *img, double x0, double y0, double x1, double y1,
+                     const uint8_t rgb[3])
 {
     if (!is_canvas(img) || !rgb || !isfinite(x0) || !isfinite(y0) || !isfinite(x1) || !isfinite(y1))
         return;
@@ -317,12 +317,12 @@ void sinew_image_draw_line(sinew_image *img, double x0, double y0, double x1, do
     }
 }
 
-void sinew_image_draw_arrow(sinew_image *img, double x0, double y0, double x1, double y1,
-                            const uint8_t rgb[3])
+void sinew_draw_line_arrow(sinew_image *img, double x0, double y0, double x1, double y1,
+                           const uint8_t rgb[3])
 {
     if (!is_canvas(img) || !rgb)
         return;
-    sinew_image_draw_line(img, x0, y0, x1, y1, rgb);
+    sinew_draw_line(img, x0, y0, x1, y1, rgb);
     double dx = x1 - x0, dy = y1 - y0, len = sqrt(dx * dx + dy * dy);
     if (!(len > 1e-9) || !isfinite(len))
         return;
@@ -332,7 +332,7 @@ void sinew_image_draw_arrow(sinew_image *img, double x0, double y0, double x1, d
     for (int s = -1; s <= 1; s += 2) {
         double c = cos(ang), sn = s * sin(ang);
         double hx = c * bx - sn * by, hy = sn * bx + c * by;
-        sinew_image_draw_line(img, x1, y1, x1 + hl * hx, y1 + hl * hy, rgb);
+        sinew_draw_line(img, x1, y1, x1 + hl * hx, y1 + hl * hy, rgb);
     }
 }
 
@@ -422,7 +422,7 @@ static void paint_wheel(sinew_image *img, int x0, int y0, int size)
             if (dx * dx + dy * dy > ring * ring)
                 continue;
             uint8_t rgb[3];
-            sinew_wheel_colour(dx, dy, rgb);
+            sinew_draw_wheel_colour(dx, dy, rgb);
             put(img, x0 + x, y0 + y, rgb);
         }
 }
@@ -444,7 +444,7 @@ int sinew_draw_flow(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow, d
     if (st)
         return st;
     if (!isfinite(max_mag) || max_mag <= 0) {
-        st = sinew_flow_max_magnitude(ctx, flow, &max_mag);
+        st = sinew_draw_max_magnitude(ctx, flow, &max_mag);
         if (st)
             return st;
         if (max_mag <= 0)
@@ -460,7 +460,7 @@ int sinew_draw_flow(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow, d
         const float *p = sinew_image_row_f32(flow, y);
         uint8_t *o = sinew_image_row_u8(out, y);
         for (int x = 0; x < w; x++)
-            sinew_wheel_colour(p[2 * x] / m, p[2 * x + 1] / m, o + 3 * x);
+            sinew_draw_wheel_colour(p[2 * x] / m, p[2 * x + 1] / m, o + 3 * x);
     }
     if (legend) {
         int pad = 6 * s, d = 32 * s;
@@ -468,7 +468,7 @@ int sinew_draw_flow(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow, d
         char num[32], text[64];
         fmt_num(num, sizeof num, max_mag);
         snprintf(text, sizeof text, "WHEEL RADIUS %s PX", num);
-        sinew_image_draw_text(out, 2 * pad + d, h + pad + (d - 8 * s) / 2, s, text, strip_text);
+        sinew_draw_text(out, 2 * pad + d, h + pad + (d - 8 * s) / 2, s, text, strip_text);
     }
     return SINEW_OK;
 }
@@ -524,15 +524,15 @@ int sinew_draw_arrows(sinew_ctx *ctx, sinew_image *out, const sinew_image *frame
             }
             uint8_t rgb[3];
             double r = sqrt(u * u + v * v);
-            sinew_wheel_colour(u / r, v / r, rgb);
-            sinew_image_draw_arrow(out, x, y, x + scale * u, y + scale * v, rgb);
+            sinew_draw_wheel_colour(u / r, v / r, rgb);
+            sinew_draw_line_arrow(out, x, y, x + scale * u, y + scale * v, rgb);
         }
     }
     if (legend) {
         char num[32], text[96];
         fmt_num(num, sizeof num, scale);
         snprintf(text, sizeof text, "ONE ARROW PER %d PX, LENGTH X %s", step, num);
-        sinew_image_draw_text(out, 6 * s, h + 6 * s, s, text, strip_text);
+        sinew_draw_text(out, 6 * s, h + 6 * s, s, text, strip_text);
     }
     return SINEW_OK;
 }
@@ -549,14 +549,14 @@ static void paint_heat_legend(sinew_image *out, int y0, int s, double lo, double
     const int w = out->width, pad = 6 * s;
     int y = y0 + pad;
     if (label)
-        sinew_image_draw_text(out, pad, y, s, label, strip_text);
+        sinew_draw_text(out, pad, y, s, label, strip_text);
     y += 8 * s + 4 * s;
     int x0 = pad, x1 = w - 1 - pad;
     if (x1 <= x0)
         x0 = 0, x1 = w - 1;
     for (int x = x0; x <= x1; x++) {
         uint8_t rgb[3];
-        sinew_colourmap(x1 > x0 ? (double)(x - x0) / (x1 - x0) : 0.0, rgb);
+        sinew_draw_colourmap(x1 > x0 ? (double)(x - x0) / (x1 - x0) : 0.0, rgb);
         fill_rect(out, x, y, 1, 10 * s, rgb);
     }
     y += 10 * s + 4 * s;
@@ -564,9 +564,9 @@ static void paint_heat_legend(sinew_image *out, int y0, int s, double lo, double
     fmt_num(a, sizeof a, lo);
     fmt_num(m, sizeof m, 0.5 * (lo + hi));
     fmt_num(b, sizeof b, hi);
-    sinew_image_draw_text(out, x0, y, s, a, strip_muted);
-    sinew_image_draw_text(out, (x0 + x1) / 2 - sinew_text_width(m, s) / 2, y, s, m, strip_muted);
-    sinew_image_draw_text(out, x1 + 1 - sinew_text_width(b, s) + s, y, s, b, strip_muted);
+    sinew_draw_text(out, x0, y, s, a, strip_muted);
+    sinew_draw_text(out, (x0 + x1) / 2 - sinew_draw_text_width(m, s) / 2, y, s, m, strip_muted);
+    sinew_draw_text(out, x1 + 1 - sinew_draw_text_width(b, s) + s, y, s, b, strip_muted);
 }
 
 int sinew_draw_heatmap(sinew_ctx *ctx, sinew_image *out, const sinew_image *map, double lo,
@@ -599,7 +599,7 @@ int sinew_draw_heatmap(sinew_ctx *ctx, sinew_image *out, const sinew_image *map,
                 uint8_t g = ((x >> 2) + (y >> 2)) & 1 ? SINEW_DRAW_NOVALUE_B : SINEW_DRAW_NOVALUE_A;
                 o[3 * x] = o[3 * x + 1] = o[3 * x + 2] = g;
             } else {
-                sinew_colourmap((p[x] - l) / span, o + 3 * x);
+                sinew_draw_colourmap((p[x] - l) / span, o + 3 * x);
             }
         }
     }
@@ -649,14 +649,14 @@ static int reason_legend(sinew_image *img, int w, int y0, int s)
     for (int b = 0; b < SINEW_DRAW_REASONS; b++) {
         char text[32];
         snprintf(text, sizeof text, "%u %s", 1u << b, reasons[b].name); /* mask value, name */
-        int item = 8 * s + 4 * s + sinew_text_width(text, s) + 10 * s;
+        int item = 8 * s + 4 * s + sinew_draw_text_width(text, s) + 10 * s;
         if (x > pad && x + item > w) {
             x = pad;
             y += line;
         }
         if (img) {
             fill_rect(img, x, y, 8 * s, 7 * s, reasons[b].c);
-            sinew_image_draw_text(img, x + 12 * s, y, s, text, strip_text);
+            sinew_draw_text(img, x + 12 * s, y, s, text, strip_text);
         }
         x += item;
     }
@@ -759,10 +759,10 @@ int sinew_draw_matches(sinew_ctx *ctx, sinew_image *out, const sinew_image *fram
         double du = u1 - u0, dv = v1 - v0, len = sqrt(du * du + dv * dv);
         uint8_t rgb[3];
         if (len > 1e-9)
-            sinew_wheel_colour(du / len, dv / len, rgb);
+            sinew_draw_wheel_colour(du / len, dv / len, rgb);
         else
             memcpy(rgb, dot_gray, 3);
-        sinew_image_draw_line(out, u0, v0, off + u1, v1, rgb);
+        sinew_draw_line(out, u0, v0, off + u1, v1, rgb);
         dot(out, u0, v0, rgb);
         dot(out, off + u1, v1, rgb);
         drawn++;
@@ -770,7 +770,7 @@ int sinew_draw_matches(sinew_ctx *ctx, sinew_image *out, const sinew_image *fram
     if (legend) {
         char text[96];
         snprintf(text, sizeof text, "%zu OF %zu MATCHES SHOWN", drawn, t->rows);
-        sinew_image_draw_text(out, 6 * s, h + 6 * s, s, text, strip_text);
+        sinew_draw_text(out, 6 * s, h + 6 * s, s, text, strip_text);
     }
     return SINEW_OK;
 }

@@ -22,23 +22,23 @@ extern "C" {
 #define SINEW_WHEEL_COLOURS 55
 
 /* Entry k (0..54) of the wheel, RGB bytes. Returns SINEW_EINVAL for k out of range. */
-int sinew_wheel_entry(int k, uint8_t rgb[3]);
+int sinew_draw_wheel_entry(int k, uint8_t rgb[3]);
 
 /* Colour of a flow vector already divided by the maximum magnitude (fx, fy; radius 1 =
  * the maximum). Hue from atan2(-fy, -fx)/pi interpolated between wheel entries;
  * radius <= 1 fades to white at zero motion, radius > 1 is darkened to 0.75. Non-finite
  * input gives black (unknown). Pure function, thread-safe. */
-void sinew_wheel_colour(double fx, double fy, uint8_t rgb[3]);
+void sinew_draw_wheel_colour(double fx, double fy, uint8_t rgb[3]);
 
 /* Largest |(u, v)| over known pixels (both components finite) of a SINEW_F32
  * 2-channel flow; 0 if no pixel is known. SINEW_EINVAL for a wrong image type. */
-int sinew_flow_max_magnitude(sinew_ctx *ctx, const sinew_image *flow, double *max_mag);
+int sinew_draw_max_magnitude(sinew_ctx *ctx, const sinew_image *flow, double *max_mag);
 
 /* ---- scalar colour map ("dusk", our own) ----
  * Perceptually ordered: CIE L* rises monotonically from a dark slate blue (t = 0)
  * through teal and muted ochre to a pale cream (t = 1). Control points are listed in
  * docs/formats.md. t is clamped to [0, 1]; NaN gives the "no value" colour. */
-void sinew_colourmap(double t, uint8_t rgb[3]);
+void sinew_draw_colourmap(double t, uint8_t rgb[3]);
 /* Colour drawn for pixels with no value (NaN) in heatmaps: a dark checker of these two. */
 #define SINEW_DRAW_NOVALUE_A 40
 #define SINEW_DRAW_NOVALUE_B 56
@@ -47,7 +47,7 @@ void sinew_colourmap(double t, uint8_t rgb[3]);
 #define SINEW_DRAW_REASONS 8
 /* Overlay colour and short legend name of mask bit `bit` (0..6). SINEW_EINVAL otherwise.
  * name may be NULL; *name is static storage. */
-int sinew_reason_style(int bit, uint8_t rgb[3], const char **name);
+int sinew_draw_reason_style(int bit, uint8_t rgb[3], const char **name);
 /* Blend of a reason colour c over the dimmed frame value f, per channel (integer
  * division): (7 * c + 3 * f + 5) / 10, i.e. 70 % reason colour. */
 
@@ -127,19 +127,19 @@ int sinew_draw_matches(sinew_ctx *ctx, sinew_image *out, const sinew_image *fram
  * Images of any other type or channel count are left untouched. */
 /* A 1-pixel line between pixel centres (x0, y0) and (x1, y1) (Bresenham on rounded
  * ends). Non-finite coordinates draw nothing. */
-void sinew_image_draw_line(sinew_image *img, double x0, double y0, double x1, double y1,
-                           const uint8_t rgb[3]);
+void sinew_draw_line(sinew_image *img, double x0, double y0, double x1, double y1,
+                     const uint8_t rgb[3]);
 /* A line with an open head at (x1, y1): two strokes of length min(0.35 * length, 6)
  * at +-28 degrees from the reversed direction. */
-void sinew_image_draw_arrow(sinew_image *img, double x0, double y0, double x1, double y1,
-                            const uint8_t rgb[3]);
+void sinew_draw_line_arrow(sinew_image *img, double x0, double y0, double x1, double y1,
+                           const uint8_t rgb[3]);
 /* Text in the built-in 5x7 font scaled by `scale` (>= 1), top-left at (x, y); each
  * character cell is 6*scale wide and 8*scale tall. Lower-case letters draw as
  * upper-case; characters without a glyph draw as a small box. Returns the width drawn. */
-int sinew_image_draw_text(sinew_image *img, int x, int y, int scale, const char *text,
-                          const uint8_t rgb[3]);
-/* Width in pixels that sinew_image_draw_text would use. */
-int sinew_text_width(const char *text, int scale);
+int sinew_draw_text(sinew_image *img, int x, int y, int scale, const char *text,
+                    const uint8_t rgb[3]);
+/* Width in pixels that sinew_draw_text would use. */
+int sinew_draw_text_width(const char *text, int scale);
 
 #ifdef __cplusplus
 }

@@ -78,7 +78,7 @@ static const uint8_t *glyph_rows(char c)
     return missing;
 }
 
-int sinew_text_width(const char *text, int scale)
+int sinew_draw_text_width(const char *text, int scale)
 {
     if (!text || scale < 1)
         return 0;
@@ -88,8 +88,8 @@ int sinew_text_width(const char *text, int scale)
     return n * 6 * scale;
 }
 
-int sinew_image_draw_text(sinew_image *img, int x, int y, int scale, const char *text,
-                          const uint8_t rgb[3])
+int sinew_draw_text(sinew_image *img, int x, int y, int scale, const char *text,
+                    const uint8_t rgb[3])
 {
     if (!img || !img->data || img->type != SINEW_U8 || img->channels != 3 || !text || !rgb ||
         scale < 1)

@@ -273,7 +273,7 @@ static int build(sinew__report *r, sinew__sbuf *page)
             if (!sinew__report_find_flow(r, q, path, sizeof path))
                 continue;
             if (!sinew_flow_read(ctx, &f, path, SINEW_FLOW_AUTO)) {
-                if (!sinew_flow_max_magnitude(ctx, &f, &m) && m > fmax)
+                if (!sinew_draw_max_magnitude(ctx, &f, &m) && m > fmax)
                     fmax = m;
                 sinew_image_free(&f);
             }

@@ -229,14 +229,14 @@ void sinew__report_legend(sinew__sbuf *b, const sinew__report *r, double fmax)
         b, "<span>confidence 0<span class=\"bar\" style=\"background:linear-gradient(90deg");
     for (int i = 0; i <= 8; i++) {
         uint8_t c[3];
-        sinew_colourmap(i / 8.0, c);
+        sinew_draw_colourmap(i / 8.0, c);
         sinew__sb_printf(b, ",rgb(%d,%d,%d)", c[0], c[1], c[2]);
     }
     sinew__sb_puts(b, ")\"></span>1</span>");
     for (int bit = 0; bit < SINEW_DRAW_REASONS; bit++) {
         uint8_t c[3];
         const char *name;
-        sinew_reason_style(bit, c, &name);
+        sinew_draw_reason_style(bit, c, &name);
         sinew__sb_printf(b, "<span><span class=\"sw\" style=\"background:rgb(%d,%d,%d)\"></span>",
                          c[0], c[1], c[2]);
         sinew__sb_esc(b, name);

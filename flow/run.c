@@ -404,8 +404,8 @@ static int made_by_sinew(const sinew_run_spec *s, const char *nm, const cJSON *l
     size_t stem = dot ? (size_t)(dot - nm) : 0;
     if (dot && ((stem == strlen(SINEW_RUN_FORWARD) && !strncmp(nm, SINEW_RUN_FORWARD, stem)) ||
                 (stem == strlen(SINEW_RUN_BACKWARD) && !strncmp(nm, SINEW_RUN_BACKWARD, stem))))
-        for (int f = SINEW_FLOW_AUTO + 1; sinew_run_flow_ext(f); f++)
-            if (!strcmp(dot + 1, sinew_run_flow_ext(f)))
+        for (int f = SINEW_FLOW_AUTO + 1; sinew_flow_format_ext(f); f++)
+            if (!strcmp(dot + 1, sinew_flow_format_ext(f)))
                 return 1;
     for (size_t k = 0; k < s->noutputs; k++)
         if (!strcmp(nm, s->outputs[k]))

@@ -61,7 +61,7 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
 /* ---- the run folder (docs/formats.md) -------------------------------------------
  * OUTDIR/SINEW_RUN_MANIFEST_FILE and OUTDIR/SINEW_RUN_PAIRS_DIR/NAME/ per pair (NAME from
  * sinew_pair_name), holding the files below; forward and backward flow are
- * SINEW_RUN_FORWARD "." EXT and SINEW_RUN_BACKWARD "." EXT (sinew_run_flow_ext). The
+ * SINEW_RUN_FORWARD "." EXT and SINEW_RUN_BACKWARD "." EXT (sinew_flow_format_ext, flow/io.h). The
  * engine (run.c, manifest.c), the pipeline (runpipe.c), the report (report.c) and the
  * `sinew run` command use these names only. */
 #define SINEW_RUN_PAIRS_DIR "pairs"
@@ -245,13 +245,6 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
 #define SINEW_RUN_PIPELINE_MAX_OUTPUTS 6
 size_t sinew_run_pipeline_outputs(const sinew_run_pipeline_params *p,
                                   const char *names[SINEW_RUN_PIPELINE_MAX_OUTPUTS]);
-/* File extension (without dot) of a flow format, e.g. "flo"; NULL if unknown. */
-const char *sinew_run_flow_ext(int flow_format);
-/* Flow format for a --flow-format / sequence.json name ("flo", "npy", "npy16", "pfm",
- * "png"): SINEW_OK and *flow_format set, or SINEW_EINVAL for an unknown name. */
-int sinew_run_flow_format_parse(const char *name, int *flow_format);
-/* The name sinew_run_flow_format_parse takes for a flow format; NULL if unknown. */
-const char *sinew_run_flow_format_name(int flow_format);
 
 /* Settings a caller has chosen itself (e.g. on the command line): a sequence must not
  * override them (bits for `keep` below). */
@@ -263,7 +256,7 @@ const char *sinew_run_flow_format_name(int flow_format);
  * and p->camera = cam), depth scale (when > 0), depth kind, and the "run" keys preset,
  * flow_format and match_stride (flow/sequence.h), except the fields whose bit is set in
  * keep. p->preset may then borrow the sequence's string. ECONFIG "WHERE:
- * run.flow_format: unknown format" for a format sinew_run_flow_format_parse refuses. */
+ * run.flow_format: unknown format" for a format sinew_flow_format_parse refuses. */
 int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_params *p,
                                              struct sinew_camera *cam, const sinew_sequence *seq,
                                              const char *where, unsigned keep);

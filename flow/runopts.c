@@ -12,6 +12,7 @@
 #include <sys/stat.h>
 
 #include "flow/internal/base.h"
+#include "flow/io.h"
 #include "flow/internal/fs.h"
 #include "flow/internal/json.h"
 #include "flow/json.h"
@@ -41,7 +42,7 @@ int sinew_run_options_write(sinew_ctx *ctx, const char *outdir, const sinew_run_
 {
     if (!ctx || !outdir || !o)
         return SINEW_EINVAL;
-    const char *fmt = sinew_run_flow_format_name(o->flow_format);
+    const char *fmt = sinew_flow_format_name(o->flow_format);
     if (!fmt)
         return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow format %d", o->flow_format);
     char path[4200];
@@ -94,7 +95,7 @@ static int parse_options(sinew_ctx *ctx, const char *path, const cJSON *j, sinew
         return sinew__fail(ctx, SINEW_EFORMAT, "%s: not a sinew run options record (version %d)",
                            path, OPTIONS_VERSION);
     const char *fmt = sinew__json_str(j, "flow_format");
-    if (!fmt || sinew_run_flow_format_parse(fmt, &o->flow_format))
+    if (!fmt || sinew_flow_format_parse(fmt, &o->flow_format))
         return sinew__fail(ctx, SINEW_EFORMAT,
                            "%s: flow_format: expected flo, npy, npy16, pfm or png", path);
     const char *preset = sinew__json_str(j, "preset");
@@ -168,8 +169,8 @@ int sinew_run_options_reconcile(sinew_ctx *ctx, const char *where, const sinew_r
     }
     DIFF_TEXT(SINEW_RUN_OPT_PRESET, "preset", stored->preset, o->preset);
     if ((check & SINEW_RUN_OPT_FLOW_FORMAT) && stored->flow_format != o->flow_format) {
-        const char *sa = sinew_run_flow_format_name(stored->flow_format);
-        const char *sb = sinew_run_flow_format_name(o->flow_format);
+        const char *sa = sinew_flow_format_name(stored->flow_format);
+        const char *sb = sinew_flow_format_name(o->flow_format);
         return conflict(ctx, where, "flow_format", sa ? sa : "?", sb ? sb : "?");
     }
     DIFF_NUM(SINEW_RUN_OPT_MATCH_STRIDE, "match_stride", match_stride)

@@ -46,21 +46,6 @@ struct sinew_run_pipeline {
     sinew_image fwd, bwd, mask, conf, fberr;
 };
 
-const char *sinew_run_flow_ext(int flow_format)
-{
-    return sinew_flow_format_ext(flow_format);
-}
-
-int sinew_run_flow_format_parse(const char *name, int *flow_format)
-{
-    return sinew_flow_format_parse(name, flow_format);
-}
-
-const char *sinew_run_flow_format_name(int flow_format)
-{
-    return sinew_flow_format_name(flow_format);
-}
-
 void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p)
 {
     if (!p)
@@ -90,7 +75,7 @@ int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_
     if (!(keep & SINEW_RUN_KEEP_PRESET) && r->preset)
         p->preset = r->preset;
     if (!(keep & SINEW_RUN_KEEP_FLOW_FORMAT) && r->flow_format &&
-        sinew_run_flow_format_parse(r->flow_format, &p->flow_format))
+        sinew_flow_format_parse(r->flow_format, &p->flow_format))
         return sinew__fail(ctx, SINEW_ECONFIG, "%s: run.flow_format: unknown format", where);
     if (!(keep & SINEW_RUN_KEEP_MATCH_STRIDE) && r->has_match_stride)
         p->match_stride = r->match_stride;
@@ -189,7 +174,7 @@ int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew
     if (!ctx || !out || !spec || !p || !p->preset)
         return SINEW_EINVAL;
     *out = NULL;
-    if (!sinew_run_flow_ext(p->flow_format))
+    if (!sinew_flow_format_ext(p->flow_format))
         return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow format %d", p->flow_format);
     if (!(p->depth_scale > 0) || !isfinite(p->depth_scale) || p->match_stride < 0)
         return sinew__fail(ctx, SINEW_ECONFIG, "depth scale must be > 0 and match stride >= 0");
@@ -501,7 +486,7 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
     int labels = s0->labels.data && s1->labels.data;
     char fwd_name[32];
     snprintf(fwd_name, sizeof fwd_name, SINEW_RUN_FORWARD ".%s",
-             sinew_run_flow_ext(pl->params.flow_format));
+             sinew_flow_format_ext(pl->params.flow_format));
     sinew_match_inputs in = {&pl->fwd,
                              &pl->mask,
                              &pl->conf,
@@ -569,7 +554,7 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
     sinew_check_output out = {&pl->fberr, &pl->mask, &pl->conf, {0}};
     if ((rc = sinew_check_run(ctx, &out, &in, NULL)))
         return rc;
-    const char *ext = sinew_run_flow_ext(pl->params.flow_format);
+    const char *ext = sinew_flow_format_ext(pl->params.flow_format);
     char p[SINEW__PATH_MAX], name[32];
     snprintf(name, sizeof name, SINEW_RUN_FORWARD ".%s", ext);
     if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, name)) ||
@@ -604,7 +589,7 @@ size_t sinew_run_pipeline_outputs(const sinew_run_pipeline_params *p,
     static const char *const bwd[] = {SINEW_RUN_BACKWARD ".flo", SINEW_RUN_BACKWARD ".npy",
                                       SINEW_RUN_BACKWARD ".pfm", SINEW_RUN_BACKWARD ".png"};
     static const char *const ext[] = {"flo", "npy", "pfm", "png"};
-    const char *e = p ? sinew_run_flow_ext(p->flow_format) : NULL;
+    const char *e = p ? sinew_flow_format_ext(p->flow_format) : NULL;
     size_t n = 0;
     for (size_t k = 0; e && k < 4; k++)
         if (!strcmp(e, ext[k])) {

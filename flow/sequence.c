@@ -35,7 +35,7 @@ static int set_str(sinew_ctx *ctx, char **dst, const char *s)
     return SINEW_OK;
 }
 
-void sinew_seq_frame_init(sinew_seq_frame *f)
+void sinew_sequence_frame_init(sinew_seq_frame *f)
 {
     if (!f)
         return;
@@ -471,7 +471,7 @@ static int read_frame(reader *r, sinew_sequence *seq, const cJSON *o, size_t i)
     if (st)
         return st;
     sinew_seq_frame f;
-    sinew_seq_frame_init(&f);
+    sinew_sequence_frame_init(&f);
     double ts = NAN;
     int has_ts = 0;
     if ((st = get_string(r, o, path, "color", 1, &f.color)) ||
@@ -618,7 +618,7 @@ static int read_frame_pattern(reader *r, sinew_sequence *seq, const cJSON *o)
     for (long i = 0; i < count; i++) {
         long num = first + (long)step * i;
         sinew_seq_frame f;
-        sinew_seq_frame_init(&f);
+        sinew_sequence_frame_init(&f);
         for (int k = 0; k < 3; k++) {
             if (!pat[k])
                 continue;

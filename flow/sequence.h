@@ -96,7 +96,7 @@ int sinew_sequence_set_label_names(sinew_sequence *seq, const char *const *names
 int sinew_sequence_add_frame(sinew_sequence *seq, const sinew_seq_frame *frame);
 int sinew_sequence_add_pair(sinew_sequence *seq, const sinew_seq_pair *pair);
 /* A frame with every field absent (timestamp NaN), for filling in before add_frame. */
-void sinew_seq_frame_init(sinew_seq_frame *frame);
+void sinew_sequence_frame_init(sinew_seq_frame *frame);
 
 /* Parse JSON text (len bytes). `where` names the source in messages (a path). Relative
  * paths in the result resolve against the folder of `where`. */

@@ -119,7 +119,7 @@ static int build_sequence(sinew_synth *s, sinew_sequence *seq)
     seq->depth_scale = 1000.0;
     for (int t = 0; t < P->frames; t++) {
         sinew_seq_frame fr;
-        sinew_seq_frame_init(&fr);
+        sinew_sequence_frame_init(&fr);
         for (int k = 0; k < 3; k++)
             out_name(names[k], sizeof names[k], k, t);
         fr.color = names[0];

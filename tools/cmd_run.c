@@ -286,7 +286,7 @@ static int parse_option(int c, const char *arg, run_args *a)
         break;
     case O_FMT:
         a->given |= SINEW_RUN_OPT_FLOW_FORMAT;
-        if (sinew_run_flow_format_parse(arg, &a->pp.flow_format))
+        if (sinew_flow_format_parse(arg, &a->pp.flow_format))
             return cli_usage_error(
                 CMD, "--flow-format: expected flo, npy, npy16, pfm or png, got '%s'", arg);
         break;

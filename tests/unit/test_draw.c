@@ -80,21 +80,21 @@ static void test_draw_wheel_entries_match_construction(void **state)
     ref_wheel(wheel);
     for (int k = 0; k < NCOLS; k++) {
         uint8_t rgb[3];
-        assert_int_equal(sinew_wheel_entry(k, rgb), SINEW_OK);
+        assert_int_equal(sinew_draw_wheel_entry(k, rgb), SINEW_OK);
         expect_rgb(rgb, wheel[k][0], wheel[k][1], wheel[k][2]);
         /* The direction that lands on entry k at radius 1 (fk = k). */
         double th = PI_T * (2.0 * k / (NCOLS - 1) - 1.0);
         double fx = -cos(th), fy = -sin(th);
         int ref[3];
         ref_colour(fx, fy, ref);
-        sinew_wheel_colour(fx, fy, rgb);
+        sinew_draw_wheel_colour(fx, fy, rgb);
         expect_rgb(rgb, ref[0], ref[1], ref[2]);
         for (int b = 0; b < 3; b++) /* rounding of the angle may truncate one level */
             assert_true(abs(rgb[b] - wheel[k][b]) <= 1);
     }
     uint8_t rgb[3];
-    assert_int_equal(sinew_wheel_entry(-1, rgb), SINEW_EINVAL);
-    assert_int_equal(sinew_wheel_entry(55, rgb), SINEW_EINVAL);
+    assert_int_equal(sinew_draw_wheel_entry(-1, rgb), SINEW_EINVAL);
+    assert_int_equal(sinew_draw_wheel_entry(55, rgb), SINEW_EINVAL);
     /* Segment starts worked by hand from the segment table of colorcode.cpp:
      * 0 red, 15 yellow, 21 green, 25 cyan, 36 blue, 49 magenta, 7 = 255*7/15 = 119 green,
      * 54 = 255 - 255*5/6 = 43 blue. */
@@ -102,7 +102,7 @@ static void test_draw_wheel_entries_match_construction(void **state)
                            {21, 0, 255, 0},   {25, 0, 255, 255}, {36, 0, 0, 255},
                            {49, 255, 0, 255}, {54, 255, 0, 43}};
     for (size_t i = 0; i < sizeof hand / sizeof hand[0]; i++) {
-        sinew_wheel_entry(hand[i][0], rgb);
+        sinew_draw_wheel_entry(hand[i][0], rgb);
         expect_rgb(rgb, hand[i][1], hand[i][2], hand[i][3]);
     }
 }
@@ -118,7 +118,7 @@ static void test_draw_wheel_interpolated_directions(void **state)
             uint8_t rgb[3];
             int ref[3];
             ref_colour(dirs[i][0] * s, dirs[i][1] * s, ref);
-            sinew_wheel_colour(dirs[i][0] * s, dirs[i][1] * s, rgb);
+            sinew_draw_wheel_colour(dirs[i][0] * s, dirs[i][1] * s, rgb);
             expect_rgb(rgb, ref[0], ref[1], ref[2]);
         }
     }
@@ -128,19 +128,19 @@ static void test_draw_wheel_white_black_and_out_of_range(void **state)
 {
     (void)state;
     uint8_t rgb[3];
-    sinew_wheel_colour(0, 0, rgb); /* zero motion: white (radius 0 -> col = 1) */
+    sinew_draw_wheel_colour(0, 0, rgb); /* zero motion: white (radius 0 -> col = 1) */
     expect_rgb(rgb, 255, 255, 255);
-    sinew_wheel_colour(NAN, 0, rgb); /* unknown: black */
+    sinew_draw_wheel_colour(NAN, 0, rgb); /* unknown: black */
     expect_rgb(rgb, 0, 0, 0);
-    sinew_wheel_colour(0, INFINITY, rgb);
+    sinew_draw_wheel_colour(0, INFINITY, rgb);
     expect_rgb(rgb, 0, 0, 0);
     /* Rightward motion is entry 0 (red); radius 2 darkens by 0.75: 255*0.75 = 191.25. */
-    sinew_wheel_colour(1, 0, rgb);
+    sinew_draw_wheel_colour(1, 0, rgb);
     expect_rgb(rgb, 255, 0, 0);
-    sinew_wheel_colour(2, 0, rgb);
+    sinew_draw_wheel_colour(2, 0, rgb);
     expect_rgb(rgb, 191, 0, 0);
     /* Half radius: 1 - 0.5 * (1 - 0) = 0.5 -> 127 for the empty channels. */
-    sinew_wheel_colour(0.5, 0, rgb);
+    sinew_draw_wheel_colour(0.5, 0, rgb);
     expect_rgb(rgb, 255, 127, 127);
 }
 
@@ -167,7 +167,7 @@ static void test_draw_flow_pixels_and_max(void **state)
     set_uv(&f, 2, 0, NAN, 1);
     set_uv(&f, 3, 2, 0, -4);
     double m;
-    assert_int_equal(sinew_flow_max_magnitude(ctx, &f, &m), SINEW_OK);
+    assert_int_equal(sinew_draw_max_magnitude(ctx, &f, &m), SINEW_OK);
     assert_true(m == 6.0);
     sinew_image out;
     /* Fixed maximum 3: (3,0) at radius 1 is pure red, (6,0) out of range 0.75 red. */
@@ -228,24 +228,24 @@ static void test_draw_colourmap_lightness_monotonic(void **state)
 {
     (void)state;
     uint8_t a[3], b[3];
-    sinew_colourmap(0, a);
+    sinew_draw_colourmap(0, a);
     for (int i = 1; i <= 64; i++) {
-        sinew_colourmap(i / 64.0, b);
+        sinew_draw_colourmap(i / 64.0, b);
         assert_true(lstar(b) > lstar(a));
         memcpy(a, b, 3);
     }
-    sinew_colourmap(-5, a);
-    sinew_colourmap(0, b);
+    sinew_draw_colourmap(-5, a);
+    sinew_draw_colourmap(0, b);
     assert_memory_equal(a, b, 3);
-    sinew_colourmap(7, a);
-    sinew_colourmap(1, b);
+    sinew_draw_colourmap(7, a);
+    sinew_draw_colourmap(1, b);
     assert_memory_equal(a, b, 3);
     /* Ends dark and light enough to read in a dark room (our design targets). */
-    sinew_colourmap(0, a);
+    sinew_draw_colourmap(0, a);
     assert_true(lstar(a) < 12);
-    sinew_colourmap(1, a);
+    sinew_draw_colourmap(1, a);
     assert_true(lstar(a) > 90);
-    sinew_colourmap(NAN, a);
+    sinew_draw_colourmap(NAN, a);
     expect_rgb(a, SINEW_DRAW_NOVALUE_A, SINEW_DRAW_NOVALUE_A, SINEW_DRAW_NOVALUE_A);
 }
 
@@ -271,9 +271,9 @@ static void test_draw_heatmap_ramp_and_legend(void **state)
         prev = l;
     }
     uint8_t c[3];
-    sinew_colourmap(0, c);
+    sinew_draw_colourmap(0, c);
     assert_memory_equal(px(&out, 0, 0), c, 3);
-    sinew_colourmap(1, c);
+    sinew_draw_colourmap(1, c);
     assert_memory_equal(px(&out, w - 1, 0), c, 3);
     const uint8_t *nv = px(&out, 3, 5); /* checker: (3>>2)+(5>>2) = 1 -> B */
     expect_rgb(nv, SINEW_DRAW_NOVALUE_B, SINEW_DRAW_NOVALUE_B, SINEW_DRAW_NOVALUE_B);
@@ -281,8 +281,8 @@ static void test_draw_heatmap_ramp_and_legend(void **state)
      * find a strip row containing both ends. */
     int found = 0;
     uint8_t c0[3], c1[3];
-    sinew_colourmap(0, c0);
-    sinew_colourmap(1, c1);
+    sinew_draw_colourmap(0, c0);
+    sinew_draw_colourmap(1, c1);
     for (int y = h; y < out.height && !found; y++) {
         int has0 = 0, has1 = 0;
         for (int x = 0; x < w; x++) {
@@ -314,9 +314,9 @@ static void test_draw_epe_values(void **state)
     sinew_image out;
     assert_int_equal(sinew_draw_epe(ctx, &out, &f, &g, 5.0, 0), SINEW_OK);
     uint8_t c[3];
-    sinew_colourmap(1, c);
+    sinew_draw_colourmap(1, c);
     assert_memory_equal(px(&out, 0, 0), c, 3);
-    sinew_colourmap(0, c);
+    sinew_draw_colourmap(0, c);
     assert_memory_equal(px(&out, 1, 0), c, 3);
     expect_rgb(px(&out, 2, 0), SINEW_DRAW_NOVALUE_A, SINEW_DRAW_NOVALUE_A, SINEW_DRAW_NOVALUE_A);
     sinew_image_free(&out);
@@ -336,7 +336,7 @@ static void test_draw_arrow_endpoints(void **state)
     sinew_image img;
     assert_int_equal(sinew_image_alloc(ctx, &img, 20, 16, 3, SINEW_U8), SINEW_OK);
     const uint8_t white[3] = {255, 255, 255};
-    sinew_image_draw_arrow(&img, 2, 3, 12, 8, white);
+    sinew_draw_line_arrow(&img, 2, 3, 12, 8, white);
     expect_rgb(px(&img, 2, 3), 255, 255, 255);
     expect_rgb(px(&img, 12, 8), 255, 255, 255);
     expect_rgb(px(&img, 4, 4), 255, 255, 255); /* (4, 4) lies exactly on the line */
@@ -345,10 +345,10 @@ static void test_draw_arrow_endpoints(void **state)
     /* Head strokes sit behind the tip only: nothing beyond the tip along the line. */
     expect_rgb(px(&img, 14, 9), 0, 0, 0);
     /* Huge and non-finite coordinates are clipped or ignored, never hang. */
-    sinew_image_draw_line(&img, -1e12, 5, 1e12, 5, white);
+    sinew_draw_line(&img, -1e12, 5, 1e12, 5, white);
     expect_rgb(px(&img, 0, 5), 255, 255, 255);
     expect_rgb(px(&img, 19, 5), 255, 255, 255);
-    sinew_image_draw_line(&img, NAN, 0, 3, 3, white);
+    sinew_draw_line(&img, NAN, 0, 3, 3, white);
     sinew_image_free(&img);
 
     /* Grid arrows: 8x8 flow, step 4 -> arrows at (2,2), (6,2), (2,6), (6,6). */
@@ -358,7 +358,7 @@ static void test_draw_arrow_endpoints(void **state)
             set_uv(&f, x, y, 1, 0);
     assert_int_equal(sinew_draw_arrows(ctx, &out, NULL, &f, 4, 1.0, 0), SINEW_OK);
     uint8_t red[3];
-    sinew_wheel_colour(1, 0, red);
+    sinew_draw_wheel_colour(1, 0, red);
     assert_memory_equal(px(&out, 2, 2), red, 3);
     assert_memory_equal(px(&out, 3, 2), red, 3);
     assert_memory_equal(px(&out, 7, 6), red, 3);
@@ -396,7 +396,7 @@ static void test_draw_reasons_bit_colours(void **state)
     for (int b = 0; b < 8; b++) {
         uint8_t c[3];
         const char *name = NULL;
-        assert_int_equal(sinew_reason_style(b, c, &name), SINEW_OK);
+        assert_int_equal(sinew_draw_reason_style(b, c, &name), SINEW_OK);
         assert_non_null(name);
         /* one vocabulary: the legend is the check's bit name, upper case, '_' -> ' ' */
         const char *bn = sinew_check_bit_name(b);
@@ -412,7 +412,7 @@ static void test_draw_reasons_bit_colours(void **state)
             assert_memory_not_equal(seen[o], seen[b], 3);
     }
     assert_memory_equal(px(&out, 8, 0), seen[2], 3);
-    assert_int_equal(sinew_reason_style(8, NULL, NULL), SINEW_EINVAL);
+    assert_int_equal(sinew_draw_reason_style(8, NULL, NULL), SINEW_EINVAL);
     sinew_image_free(&out);
     /* Legend adds a strip; without a frame the background is black. */
     assert_int_equal(sinew_draw_reasons(ctx, &out, NULL, &mask, 1), SINEW_OK);
@@ -442,7 +442,7 @@ static void test_draw_matches_layout(void **state)
     assert_int_equal(out.width, 10 + SINEW_DRAW_GUTTER + 12);
     assert_int_equal(out.height, 9);
     uint8_t c[3];
-    sinew_wheel_colour(1, 0, c); /* displacement (3, 0): rightward */
+    sinew_draw_wheel_colour(1, 0, c); /* displacement (3, 0): rightward */
     assert_memory_equal(px(&out, 2, 2), c, 3);
     assert_memory_equal(px(&out, 10 + SINEW_DRAW_GUTTER + 5, 2), c, 3);
     assert_memory_equal(px(&out, 12, 2), c, 3); /* segment crosses the gutter */
@@ -467,9 +467,9 @@ static void test_draw_text_glyphs(void **state)
     sinew_image img;
     assert_int_equal(sinew_image_alloc(ctx, &img, 30, 10, 3, SINEW_U8), SINEW_OK);
     const uint8_t w[3] = {255, 255, 255};
-    assert_int_equal(sinew_text_width("L1", 1), 12);
-    assert_int_equal(sinew_text_width("L1", 2), 24);
-    assert_int_equal(sinew_image_draw_text(&img, 0, 0, 1, "l1", w), 12);
+    assert_int_equal(sinew_draw_text_width("L1", 1), 12);
+    assert_int_equal(sinew_draw_text_width("L1", 2), 24);
+    assert_int_equal(sinew_draw_text(&img, 0, 0, 1, "l1", w), 12);
     /* 'L': left column rows 0-6 and the bottom row; '1': stem at column 2 of cell 2. */
     for (int y = 0; y < 7; y++)
         expect_rgb(px(&img, 0, y), 255, 255, 255);

@@ -358,7 +358,7 @@ static void test_hostile_uniform_nasty_flow(void **state)
                     assert_true(sinew_image_row_u8(&mask, y)[x] & SINEW_MASK_UNKNOWN);
             }
         double mx;
-        must_ok(ctx, sinew_flow_max_magnitude(ctx, &fw, &mx), what);
+        must_ok(ctx, sinew_draw_max_magnitude(ctx, &fw, &mx), what);
         assert_true(!isnan(mx));
         if (!isfinite(nasty[i])) /* documented: 0 when no pixel is known */
             assert_true(mx == 0);
@@ -389,23 +389,23 @@ static void test_hostile_draw_primitives(void **state)
     uint8_t rgb[3];
     for (int i = 0; i < NNASTY; i++)
         for (int j = 0; j < NNASTY; j++) {
-            sinew_wheel_colour(nasty[i], nasty[j], rgb);
-            sinew_colourmap(nasty[i], rgb);
+            sinew_draw_wheel_colour(nasty[i], nasty[j], rgb);
+            sinew_draw_colourmap(nasty[i], rgb);
         }
     sinew_image img;
     assert_int_equal(sinew_image_alloc(f->ctx, &img, 1, 1, 3, SINEW_U8), SINEW_OK);
     const uint8_t c[3] = {255, 0, 0};
     for (int i = 0; i < NNASTY; i++)
         for (int j = 0; j < NNASTY; j++) {
-            sinew_image_draw_line(&img, nasty[i], 0, nasty[j], 0.2, c);
-            sinew_image_draw_arrow(&img, 0, nasty[i], 0.3, nasty[j], c);
-            sinew_image_draw_line(&img, -1e300, -1e300, 1e300, 1e300, c);
-            sinew_image_draw_line(&img, -DBL_MAX, 0.5, DBL_MAX, 0.5, c);
-            sinew_image_draw_arrow(&img, DBL_MAX, -DBL_MAX, -DBL_MAX, DBL_MAX, c);
+            sinew_draw_line(&img, nasty[i], 0, nasty[j], 0.2, c);
+            sinew_draw_line_arrow(&img, 0, nasty[i], 0.3, nasty[j], c);
+            sinew_draw_line(&img, -1e300, -1e300, 1e300, 1e300, c);
+            sinew_draw_line(&img, -DBL_MAX, 0.5, DBL_MAX, 0.5, c);
+            sinew_draw_line_arrow(&img, DBL_MAX, -DBL_MAX, -DBL_MAX, DBL_MAX, c);
         }
-    sinew_image_draw_text(&img, -5, -5, 1, "A-Z", c);
-    sinew_image_draw_text(&img, 2147483000, 2147483000, 3, "AB", c);
-    sinew_image_draw_text(&img, -2147483000, 0, 1, "AB", c);
+    sinew_draw_text(&img, -5, -5, 1, "A-Z", c);
+    sinew_draw_text(&img, 2147483000, 2147483000, 3, "AB", c);
+    sinew_draw_text(&img, -2147483000, 0, 1, "AB", c);
     sinew_image_free(&img);
     sinew_image pic;
     must_fail(f->ctx, sinew_draw_wheel(f->ctx, &pic, 0), "wheel size 0");

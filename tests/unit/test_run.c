@@ -542,9 +542,9 @@ static void test_run_pipeline_options_text(void **state)
     assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, 40), SINEW_ELIMIT);
     p.preset = "fast\",\"x";
     assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_ECONFIG);
-    assert_string_equal(sinew_run_flow_ext(SINEW_FLOW_NPY16), "npy");
-    assert_string_equal(sinew_run_flow_ext(SINEW_FLOW_KITTI), "png");
-    assert_null(sinew_run_flow_ext(99));
+    assert_string_equal(sinew_flow_format_ext(SINEW_FLOW_NPY16), "npy");
+    assert_string_equal(sinew_flow_format_ext(SINEW_FLOW_KITTI), "png");
+    assert_null(sinew_flow_format_ext(99));
     sinew_ctx_free(ctx);
 }
 

@@ -28,7 +28,7 @@ static sinew_sequence *build_example(sinew_ctx *ctx)
         snprintf(c, sizeof c, "color/%06d.png", t);
         snprintf(d, sizeof d, "depth/%06d.png", t);
         sinew_seq_frame f;
-        sinew_seq_frame_init(&f);
+        sinew_sequence_frame_init(&f);
         f.color = c;
         f.depth = t == 1 ? NULL : d;
         f.timestamp = t / 30.0;
@@ -248,7 +248,7 @@ static void test_sequence_writer_validates(void **state)
     assert_non_null(strstr(sinew_ctx_message(ctx), "frames"));
     assert_false(tu_file_exists(path));
     sinew_seq_frame f;
-    sinew_seq_frame_init(&f);
+    sinew_sequence_frame_init(&f);
     f.color = "a.png";
     f.depth = "a_depth.png";
     assert_int_equal(sinew_sequence_add_frame(seq, &f), SINEW_OK);

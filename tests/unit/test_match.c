@@ -1,5 +1,5 @@
 /* SPDX-License-Identifier: MIT */
-/* Unit tests for flow/depth.c, flow/match.c and flow/lift.c: depth conventions, every
+/* Unit tests for flow/depth.c, flow/match.c, flow/lift.c and flow/rigid.c: depth conventions, every
  * rejection rule on a synthetic plane with known motion, sampling, labels, thread
  * determinism, the rigid fit, and allocation failures. */
 #include "tests/support/testutil.h"
@@ -11,7 +11,7 @@
 
 /* ---- depth conventions ---- */
 
-static void test_lift_depth_codes_and_scale(void **state)
+static void test_match_depth_codes_and_scale(void **state)
 {
     (void)state;
     sinew_ctx *ctx = sinew_ctx_new();
@@ -79,7 +79,7 @@ static void test_lift_depth_codes_and_scale(void **state)
     sinew_ctx_free(ctx);
 }
 
-static void test_lift_depth_float_ray_disparity(void **state)
+static void test_match_depth_float_ray_disparity(void **state)
 {
     (void)state;
     sinew_ctx *ctx = sinew_ctx_new();
@@ -192,7 +192,7 @@ static long find_row(const sinew_matches *m, int x, int y)
     return -1;
 }
 
-static void test_lift_plane_exact(void **state)
+static void test_match_plane_exact(void **state)
 {
     (void)state;
     scene s;
@@ -229,7 +229,7 @@ static void test_lift_plane_exact(void **state)
     scene_free(&s);
 }
 
-static void test_lift_reject_flow_mask_weight_labels(void **state)
+static void test_match_reject_flow_mask_weight_labels(void **state)
 {
     (void)state;
     scene s;
@@ -299,7 +299,7 @@ static void test_lift_reject_flow_mask_weight_labels(void **state)
     scene_free(&s);
 }
 
-static void test_lift_reject_depth_holes_and_edges(void **state)
+static void test_match_reject_depth_holes_and_edges(void **state)
 {
     (void)state;
     scene s;
@@ -328,7 +328,7 @@ static void test_lift_reject_depth_holes_and_edges(void **state)
     scene_free(&s);
 }
 
-static void test_lift_reject_straddle_displacement(void **state)
+static void test_match_reject_straddle_displacement(void **state)
 {
     (void)state;
     scene s;
@@ -362,7 +362,7 @@ static void test_lift_reject_straddle_displacement(void **state)
     scene_free(&s);
 }
 
-static void test_lift_normals(void **state)
+static void test_match_normals(void **state)
 {
     (void)state;
     scene s;
@@ -408,7 +408,7 @@ static void test_lift_normals(void **state)
     scene_free(&s);
 }
 
-static void test_lift_sampling_stride_topk(void **state)
+static void test_match_sampling_stride_topk(void **state)
 {
     (void)state;
     scene s;
@@ -486,7 +486,7 @@ static void test_lift_sampling_stride_topk(void **state)
     scene_free(&s);
 }
 
-static void test_lift_threads_bit_identical(void **state)
+static void test_match_threads_bit_identical(void **state)
 {
     (void)state;
     scene s[2];
@@ -513,7 +513,7 @@ static void test_lift_threads_bit_identical(void **state)
     }
 }
 
-static void test_lift_bad_inputs(void **state)
+static void test_match_bad_inputs(void **state)
 {
     (void)state;
     scene s;
@@ -542,7 +542,7 @@ static void test_lift_bad_inputs(void **state)
     scene_free(&s);
 }
 
-static void test_lift_build_alloc_failures(void **state)
+static void test_match_build_alloc_failures(void **state)
 {
     (void)state;
     scene s;
@@ -574,7 +574,7 @@ static void test_lift_build_alloc_failures(void **state)
 
 /* ---- files ---- */
 
-static void test_lift_save_loads_in_numpy(void **state)
+static void test_match_save_loads_in_numpy(void **state)
 {
     (void)state;
     scene s;
@@ -677,7 +677,7 @@ static void rot_from_axis_angle(double ax, double ay, double az, double deg, dou
     memcpy(R, M, sizeof M);
 }
 
-static void test_lift_rigid_fit_recovers_motion(void **state)
+static void test_match_rigid_fit_recovers_motion(void **state)
 {
     (void)state;
     sinew_ctx *ctx = sinew_ctx_new();
@@ -746,7 +746,7 @@ static void test_lift_rigid_fit_recovers_motion(void **state)
     sinew_ctx_free(ctx);
 }
 
-static void test_lift_pose_file(void **state)
+static void test_match_pose_file(void **state)
 {
     (void)state;
     sinew_ctx *ctx = sinew_ctx_new();
@@ -893,7 +893,7 @@ static void seven_check(const char *how, int i, const pair_result *res)
 
 /* The whole pipeline on 7-Scenes: flow both ways from the colour frames ("balanced"
  * preset), the forward-backward check's mask and confidence, then lifting. */
-static void test_lift_7scenes_estimated_flow_agrees_with_ground_truth(void **state)
+static void test_match_7scenes_estimated_flow_agrees_with_ground_truth(void **state)
 {
     (void)state;
     char p[1024], rel[128];
@@ -933,7 +933,7 @@ static void test_lift_7scenes_estimated_flow_agrees_with_ground_truth(void **sta
     sinew_ctx_free(ctx);
 }
 
-static void test_lift_7scenes_pose_flow_agrees_with_ground_truth(void **state)
+static void test_match_7scenes_pose_flow_agrees_with_ground_truth(void **state)
 {
     (void)state;
     char p[1024];
@@ -1024,7 +1024,7 @@ static void demo_errors(int noise, double *median, double *p90, size_t *rows)
     sinew_ctx_free(ctx);
 }
 
-static void test_lift_demo_scene_flow_error(void **state)
+static void test_match_demo_scene_flow_error(void **state)
 {
     (void)state;
     for (int noise = 0; noise < 2; noise++) {
@@ -1041,7 +1041,7 @@ static void test_lift_demo_scene_flow_error(void **state)
 
 /* The sidecar's column reader: positions by name, weight optional, one error line
  * naming the file for sidecars that do not fit the table. */
-static void test_lift_sidecar_columns(void **state)
+static void test_match_sidecar_columns(void **state)
 {
     (void)state;
     sinew_ctx *ctx = sinew_ctx_new();
@@ -1086,24 +1086,24 @@ static void test_lift_sidecar_columns(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_lift_sidecar_columns),
-        cmocka_unit_test(test_lift_depth_codes_and_scale),
-        cmocka_unit_test(test_lift_depth_float_ray_disparity),
-        cmocka_unit_test(test_lift_plane_exact),
-        cmocka_unit_test(test_lift_reject_flow_mask_weight_labels),
-        cmocka_unit_test(test_lift_reject_depth_holes_and_edges),
-        cmocka_unit_test(test_lift_reject_straddle_displacement),
-        cmocka_unit_test(test_lift_normals),
-        cmocka_unit_test(test_lift_sampling_stride_topk),
-        cmocka_unit_test(test_lift_threads_bit_identical),
-        cmocka_unit_test(test_lift_bad_inputs),
-        cmocka_unit_test(test_lift_build_alloc_failures),
-        cmocka_unit_test(test_lift_save_loads_in_numpy),
-        cmocka_unit_test(test_lift_rigid_fit_recovers_motion),
-        cmocka_unit_test(test_lift_pose_file),
-        cmocka_unit_test(test_lift_7scenes_pose_flow_agrees_with_ground_truth),
-        cmocka_unit_test(test_lift_7scenes_estimated_flow_agrees_with_ground_truth),
-        cmocka_unit_test(test_lift_demo_scene_flow_error),
+        cmocka_unit_test(test_match_sidecar_columns),
+        cmocka_unit_test(test_match_depth_codes_and_scale),
+        cmocka_unit_test(test_match_depth_float_ray_disparity),
+        cmocka_unit_test(test_match_plane_exact),
+        cmocka_unit_test(test_match_reject_flow_mask_weight_labels),
+        cmocka_unit_test(test_match_reject_depth_holes_and_edges),
+        cmocka_unit_test(test_match_reject_straddle_displacement),
+        cmocka_unit_test(test_match_normals),
+        cmocka_unit_test(test_match_sampling_stride_topk),
+        cmocka_unit_test(test_match_threads_bit_identical),
+        cmocka_unit_test(test_match_bad_inputs),
+        cmocka_unit_test(test_match_build_alloc_failures),
+        cmocka_unit_test(test_match_save_loads_in_numpy),
+        cmocka_unit_test(test_match_rigid_fit_recovers_motion),
+        cmocka_unit_test(test_match_pose_file),
+        cmocka_unit_test(test_match_7scenes_pose_flow_agrees_with_ground_truth),
+        cmocka_unit_test(test_match_7scenes_estimated_flow_agrees_with_ground_truth),
+        cmocka_unit_test(test_match_demo_scene_flow_error),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -1,13 +1,13 @@
 /* SPDX-License-Identifier: MIT */
-/* Lifting to 3-D: rigid transforms, camera poses, and the weighted rigid fit
+/* Rigid transforms, camera poses, and the weighted rigid fit
  * (Kabsch 1976 / Umeyama 1991) that checks lifted matches of a static scene against a
  * known camera motion — or estimates that motion.
  *
  * Lifting itself is done by sinew_matches_build (flow/match.h) when depth maps and
  * intrinsics are given; the rules are documented there and in docs/methods.md
  * "Lifting to 3-D". */
-#ifndef SINEW_LIFT_H
-#define SINEW_LIFT_H
+#ifndef SINEW_RIGID_H
+#define SINEW_RIGID_H
 
 #include "flow/core.h"
 

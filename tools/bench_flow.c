@@ -10,6 +10,13 @@
  *                                                       (PAIR: index in pair_names, default
  *                                                       5 = Urban2, gray; 8 = chairs, colour)
  *   bench_flow --swing PRESET                           print the displacement sweep only
+ *   bench_flow --inproc PRESET F0 F1 RUNS fwd|pair      median ms of the in-process work of
+ *                                                       `sinew flow` (fwd: one forward
+ *                                                       estimate) or of one `sinew run`
+ *                                                       pair (pair: both estimates + check),
+ *                                                       frames decoded once, one warm-up
+ *                                                       (tools/bench_run compares the
+ *                                                       whole commands against it)
  *
  * Displacement sweep: the demo scene's probe swung across the view at 640x480
  * (sinew_synth_params.swing, exact ground truth), mean EPE over the probe's pixels of
@@ -196,8 +203,50 @@ static int rss_probe(const char *preset, const char *data, int w, int h, int whi
     return 0;
 }
 
+/* --inproc: median ms of RUNS repeats of the estimator (and check) work alone. */
+static int inproc(const char *preset, const char *a, const char *b, int runs, int pair_mode)
+{
+    sinew_ctx *ctx = sinew_ctx_new();
+    sinew_image f0, f1, fw, bw, err, mask, conf;
+    if (!ctx || sinew_image_read(ctx, &f0, a) || sinew_image_read(ctx, &f1, b))
+        die(ctx, "load");
+    int w = f0.width, h = f0.height;
+    if (sinew_image_alloc(ctx, &fw, w, h, 2, SINEW_F32) ||
+        sinew_image_alloc(ctx, &bw, w, h, 2, SINEW_F32) ||
+        sinew_image_alloc(ctx, &err, w, h, 1, SINEW_F32) ||
+        sinew_image_alloc(ctx, &mask, w, h, 1, SINEW_U8) ||
+        sinew_image_alloc(ctx, &conf, w, h, 1, SINEW_F32))
+        die(ctx, "alloc");
+    sinew_estimator *e = make_est(ctx, preset);
+    double t[64];
+    runs = runs < 1 ? 1 : runs > 63 ? 63 : runs;
+    for (int r = -1; r < runs; r++) { /* r = -1: warm-up */
+        double t0 = bench_now();
+        if (sinew_estimator_run(e, &fw, pair_mode ? &bw : NULL, &f0, &f1))
+            die(ctx, "run");
+        if (pair_mode) {
+            sinew_check_input in = {&fw, &bw, &f0, &f1, NULL, NULL};
+            sinew_check_output out = {&err, &mask, &conf, {0}};
+            if (sinew_check_run(ctx, &out, &in, NULL))
+                die(ctx, "check");
+        }
+        if (r >= 0)
+            t[r] = bench_now() - t0;
+    }
+    qsort(t, (size_t)runs, sizeof t[0], bench_cmp_double);
+    printf("%.1f\n", 1e3 * (runs % 2 ? t[runs / 2] : 0.5 * (t[runs / 2 - 1] + t[runs / 2])));
+    sinew_image *imgs[] = {&f0, &f1, &fw, &bw, &err, &mask, &conf};
+    for (int i = 0; i < 7; i++)
+        sinew_image_free(imgs[i]);
+    sinew_estimator_free(e);
+    sinew_ctx_free(ctx);
+    return 0;
+}
+
 int main(int argc, char **argv)
 {
+    if (argc == 7 && !strcmp(argv[1], "--inproc"))
+        return inproc(argv[2], argv[3], argv[4], atoi(argv[5]), !strcmp(argv[6], "pair"));
     if ((argc == 6 || argc == 7) && !strcmp(argv[1], "--rss-probe"))
         return rss_probe(argv[2], argv[3], atoi(argv[4]), atoi(argv[5]),
                          argc == 7 ? atoi(argv[6]) : 5);

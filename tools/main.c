@@ -1,9 +1,15 @@
 /* SPDX-License-Identifier: MIT */
 /* sinew: the command-line front end. Dispatches to one function per subcommand
  * (tools/cmd_*.c), listed in tools/commands.def. */
+#define _POSIX_C_SOURCE 200809L
 #include <signal.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
+#if defined(__GLIBC__)
+#include <malloc.h>
+#endif
 
 #include "tools/cli.h"
 
@@ -39,8 +45,45 @@ static void usage(FILE *out)
             cli_notice);
 }
 
+/* Threads that wait at a barrier sleep instead of spinning (OMP_WAIT_POLICY=passive),
+ * unless the user chose a policy (OMP_WAIT_POLICY or GOMP_SPINCOUNT). With the OpenMP
+ * runtime's default spinning, a thread waiting for a descheduled peer burns the core
+ * that peer needs: on this project's 2-core benchmark machine with 2 competing busy
+ * processes, `sinew flow --preset fast` took 0.4-2.5 s spinning against 0.04-0.05 s
+ * passive (docs/benchmarks.md, whole commands). The runtime reads the variable once
+ * when it is loaded, before main, so the process re-executes itself once with it set
+ * (same pid, about a millisecond); if that fails it simply goes on. Only the
+ * OpenMP build has a runtime to tell. */
+static void wait_policy(char **argv)
+{
+#ifdef _OPENMP
+    if (getenv("OMP_WAIT_POLICY") || getenv("GOMP_SPINCOUNT"))
+        return;
+    if (setenv("OMP_WAIT_POLICY", "passive", 1) == 0)
+        execv("/proc/self/exe", argv);
+#else
+    (void)argv;
+#endif
+}
+
+/* Freed planes stay with the process for the next pair instead of going back to the
+ * system and coming back as fresh zero pages: glibc serves blocks of 32 MiB and less
+ * from its heap (not one mmap each) and keeps up to 512 MiB of freed heap (the default
+ * trims above 128 KiB). Peak memory is unchanged (freed blocks are reused, not added);
+ * `sinew run --preset fast` on the 640x480 demo scene, one thread: 71k -> 15k page
+ * faults, 2.75 -> 2.1 s CPU for 12 pairs (docs/benchmarks.md). */
+static void malloc_policy(void)
+{
+#if defined(__GLIBC__)
+    mallopt(M_MMAP_THRESHOLD, 32 << 20);
+    mallopt(M_TRIM_THRESHOLD, 512 << 20);
+#endif
+}
+
 int main(int argc, char **argv)
 {
+    wait_policy(argv);
+    malloc_policy();
     /* A file-size limit (ulimit -f) must surface as a write error with a message, not
      * kill the process with SIGXFSZ halfway through an output. */
     signal(SIGXFSZ, SIG_IGN);

@@ -2,7 +2,13 @@
 /* SHA-256 as specified in FIPS 180-4 (NIST, 2015), sections 4.1.2 (functions),
  * 4.2.2 (constants), 5.1.1 (padding), 5.3.3 (initial value) and 6.2 (computation).
  * Used for content hashes of run inputs and outputs; not for security. Streaming:
- * files are read in 64 KiB blocks, so memory does not depend on the file size. */
+ * files are read in 64 KiB blocks, so memory does not depend on the file size.
+ *
+ * On x86-64 processors with the SHA extensions (checked at run time), whole blocks go
+ * through the SHA-256 instructions instead (Intel, "Intel SHA Extensions", 2013: message
+ * schedule with SHA256MSG1/MSG2, two rounds per SHA256RNDS2, the state held as ABEF and
+ * CDGH); the digest is the same, about 5-8 times faster, which matters because a run
+ * hashes every output it writes (tests/unit/test_run.c compares both with sha256sum). */
 #define _POSIX_C_SOURCE 200809L
 #include <errno.h>
 #include <stdio.h>
@@ -61,6 +67,58 @@ static void compress(uint32_t h[8], const unsigned char *p)
     h[7] += k;
 }
 
+#if defined(__x86_64__) && defined(__GNUC__)
+#include <immintrin.h>
+#define SHA_NI 1
+__attribute__((target("sha,sse4.1,ssse3"))) static void
+compress_ni(uint32_t h[8], const unsigned char *p, size_t nblocks)
+{
+    const __m128i bswap = _mm_set_epi64x(0x0c0d0e0f08090a0bLL, 0x0405060700010203LL);
+    __m128i t = _mm_shuffle_epi32(_mm_loadu_si128((const __m128i *)(const void *)h), 0xB1);
+    __m128i s1 = _mm_shuffle_epi32(_mm_loadu_si128((const __m128i *)(const void *)(h + 4)), 0x1B);
+    __m128i s0 = _mm_alignr_epi8(t, s1, 8); /* ABEF */
+    s1 = _mm_blend_epi16(s1, t, 0xF0);      /* CDGH */
+    for (; nblocks; nblocks--, p += 64) {
+        __m128i abef = s0, cdgh = s1, w[4];
+        for (int i = 0; i < 16; i++) {
+            __m128i m;
+            if (i < 4) {
+                m = _mm_shuffle_epi8(_mm_loadu_si128((const __m128i *)(const void *)(p + 16 * i)),
+                                     bswap);
+            } else { /* w[t] = s1(w[t-2]) + w[t-7] + s0(w[t-15]) + w[t-16], 4 words at once */
+                m = _mm_sha256msg1_epu32(w[i & 3], w[(i + 1) & 3]);
+                m = _mm_add_epi32(m, _mm_alignr_epi8(w[(i + 3) & 3], w[(i + 2) & 3], 4));
+                m = _mm_sha256msg2_epu32(m, w[(i + 3) & 3]);
+            }
+            w[i & 3] = m;
+            __m128i k =
+                _mm_add_epi32(m, _mm_loadu_si128((const __m128i *)(const void *)(K + 4 * i)));
+            s1 = _mm_sha256rnds2_epu32(s1, s0, k);
+            s0 = _mm_sha256rnds2_epu32(s0, s1, _mm_shuffle_epi32(k, 0x0E));
+        }
+        s0 = _mm_add_epi32(s0, abef);
+        s1 = _mm_add_epi32(s1, cdgh);
+    }
+    t = _mm_shuffle_epi32(s0, 0x1B);  /* FEBA */
+    s1 = _mm_shuffle_epi32(s1, 0xB1); /* DCHG */
+    _mm_storeu_si128((__m128i *)(void *)h, _mm_blend_epi16(t, s1, 0xF0));
+    _mm_storeu_si128((__m128i *)(void *)(h + 4), _mm_alignr_epi8(s1, t, 8));
+}
+#endif
+
+/* nblocks whole 64-byte blocks at p. */
+static void compress_blocks(uint32_t h[8], const unsigned char *p, size_t nblocks)
+{
+#ifdef SHA_NI
+    if (__builtin_cpu_supports("sha")) {
+        compress_ni(h, p, nblocks);
+        return;
+    }
+#endif
+    for (; nblocks; nblocks--, p += 64)
+        compress(h, p);
+}
+
 void sinew_sha256_init(sinew_sha256 *s)
 {
     static const uint32_t h0[8] = {0x6a09e667, 0xbb67ae85, 0x3c6ef372, 0xa54ff53a,
@@ -82,11 +140,12 @@ void sinew_sha256_update(sinew_sha256 *s, const void *data, size_t n)
         n -= take;
         if (s->fill < 64)
             return;
-        compress(s->h, s->block);
+        compress_blocks(s->h, s->block, 1);
         s->fill = 0;
     }
-    for (; n >= 64; n -= 64, p += 64)
-        compress(s->h, p);
+    compress_blocks(s->h, p, n / 64);
+    p += n / 64 * 64;
+    n %= 64;
     if (n) {
         memcpy(s->block, p, n);
         s->fill = n;

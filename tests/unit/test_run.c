@@ -64,6 +64,50 @@ static void test_run_sha256_nist_vectors(void **state)
     assert_string_equal(hex, "cdc76e5c9914fb9281a1c7e284d73e67f1809a48a497200e046d39ccc7112cd0");
 }
 
+/* Whole-block paths (the SHA instructions where the processor has them, the portable
+ * rounds elsewhere) against Debian coreutils' sha256sum, on pseudo-random messages of
+ * lengths around the block and read-buffer edges, fed in one piece and in odd pieces. */
+static void test_run_sha256_matches_coreutils(void **state)
+{
+    (void)state;
+    if (system("command -v sha256sum >/dev/null 2>&1") != 0)
+        skip();
+    static const size_t lens[] = {1, 55, 56, 63, 64, 65, 127, 128, 129, 1000, 65537, 300001};
+    size_t nmax = 300001;
+    unsigned char *buf = malloc(nmax);
+    assert_non_null(buf);
+    uint32_t x = 2463534242u; /* xorshift32 (Marsaglia 2003) */
+    for (size_t i = 0; i < nmax; i++) {
+        x ^= x << 13;
+        x ^= x >> 17;
+        x ^= x << 5;
+        buf[i] = (unsigned char)(x >> 24);
+    }
+    char *dir = tu_tmpdir(), p[600], cmd[1400], want[65], hex[65];
+    for (size_t k = 0; k < sizeof lens / sizeof lens[0]; k++) {
+        tu_path(p, sizeof p, dir, "m.bin");
+        tu_write_bytes(p, buf, lens[k]);
+        snprintf(cmd, sizeof cmd, "sha256sum '%s'", p);
+        FILE *f = popen(cmd, "r");
+        assert_non_null(f);
+        assert_int_equal(fscanf(f, "%64s", want), 1);
+        pclose(f);
+        hex_of(buf, lens[k], hex);
+        assert_string_equal(hex, want);
+        sinew_sha256 s;
+        unsigned char d[32];
+        sinew_sha256_init(&s);
+        for (size_t off = 0, step = 3; off < lens[k]; off += step, step = step * 5 % 251 + 1)
+            sinew_sha256_update(&s, buf + off, step < lens[k] - off ? step : lens[k] - off);
+        sinew_sha256_final(&s, d);
+        sinew_sha256_hex(d, hex);
+        assert_string_equal(hex, want);
+    }
+    tu_rmtree(dir);
+    free(dir);
+    free(buf);
+}
+
 static void test_run_sha256_file_matches_memory(void **state)
 {
     (void)state;
@@ -974,6 +1018,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_run_sha256_nist_vectors),
+        cmocka_unit_test(test_run_sha256_matches_coreutils),
         cmocka_unit_test(test_run_sha256_file_matches_memory),
         cmocka_unit_test(test_run_schedule_kinds_and_names),
         cmocka_unit_test(test_run_shards_partition_pairs),

@@ -18,6 +18,7 @@
 #include <dirent.h>
 #include <errno.h>
 #include <fcntl.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <signal.h>
@@ -417,9 +418,8 @@ static int made_by_sinew(const sinew_run_spec *s, const char *nm, const cJSON *l
  * Never follows a link: the folder is opened with O_NOFOLLOW and its entries removed
  * relative to it (a link named like an output is removed itself, not its target). A
  * file sinew did not make stays, and is reported (after everything else is removed). */
-static int empty_dir(sinew_run *run, const char *dir)
+static int empty_dir(sinew_run *run, sinew_ctx *ctx, const char *dir)
 {
-    sinew_ctx *ctx = run->ctx;
     int fd = open(dir, O_RDONLY | O_DIRECTORY | O_NOFOLLOW | O_CLOEXEC);
     if (fd < 0)
         return sinew__fail(ctx, SINEW_EIO, "%s: cannot open folder%s: %s", dir,
@@ -488,27 +488,26 @@ static cJSON *record_head(const sinew_run *run, size_t index, const char *name)
     return o;
 }
 
-static int write_error_record(sinew_run *run, size_t index, const char *name, const char *dir,
-                              const char *message)
+static int write_error_record(sinew_run *run, sinew_ctx *ctx, size_t index, const char *name,
+                              const char *dir, const char *message)
 {
     cJSON *o = record_head(run, index, name);
     if (!o || !cJSON_AddStringToObject(o, "status", "failed") ||
         !cJSON_AddStringToObject(o, "error", message)) {
         cJSON_Delete(o);
-        return sinew__fail(run->ctx, SINEW_ENOMEM, "out of memory");
+        return sinew__fail(ctx, SINEW_ENOMEM, "out of memory");
     }
     char p[SINEW__PATH_MAX];
-    int rc = sinew__path_join(run->ctx, p, sizeof p, dir, SINEW_RUN_ERROR_FILE);
+    int rc = sinew__path_join(ctx, p, sizeof p, dir, SINEW_RUN_ERROR_FILE);
     if (!rc)
-        rc = sinew__json_write(run->ctx, p, o);
+        rc = sinew__json_write(ctx, p, o);
     cJSON_Delete(o);
     return rc;
 }
 
-static int write_done_record(sinew_run *run, size_t index, const char *name, const char *dir,
-                             const char *key, const sinew__input *in, size_t nin)
+static int write_done_record(sinew_run *run, sinew_ctx *ctx, size_t index, const char *name,
+                             const char *dir, const char *key, const sinew__input *in, size_t nin)
 {
-    sinew_ctx *ctx = run->ctx;
     char **names = NULL;
     size_t nn = 0;
     /* sorted by name (byte order) so the done record is deterministic */
@@ -626,104 +625,335 @@ int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, i
 
 /* ---- execution ---- */
 
-int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
-                      sinew_run_progress_fn progress, void *progress_ud, sinew_run_result *result)
+/* One pair on its way through the engine: prepared on the calling thread (folder,
+ * input digests from the run's cache, key, resume check), computed on the calling
+ * thread or a worker (folder emptied, fn, stats.json, done.json; on failure the error
+ * record), committed in schedule order on the calling thread (counts, progress). */
+typedef struct pair_work {
+    size_t q;
+    sinew_pair_status st;
+    int rc;
+    char name[SINEW_PAIR_NAME_MAX], key[65];
+    char dir[SINEW__PATH_MAX], fwd[SINEW__PATH_MAX], bwd[SINEW__PATH_MAX];
+    sinew__input in[SINEW__MAX_INPUTS];
+    size_t nin;
+    char msg[SINEW_MESSAGE_MAX];
+} pair_work;
+
+/* Folder, inputs, key and resume status of pair q (run->ctx: the digest cache is not
+ * shared with workers). st = SKIPPED when it is done and up to date. */
+static int pair_prepare(sinew_run *run, size_t q, pair_work *w)
+{
+    sinew_ctx *ctx = run->ctx;
+    const sinew_run_spec *s = &run->spec;
+    w->q = q;
+    w->st = SINEW_PAIR_COMPUTED;
+    w->nin = 0;
+    w->msg[0] = '\0';
+    sinew_pair_name(w->name, s->pairs[q]);
+    int rc = sinew__run_pair_dir(run, q, w->dir, sizeof w->dir);
+    if (!rc)
+        rc = sinew__mkdirs(ctx, w->dir);
+    if (!rc)
+        rc = sinew__refuse_link(ctx, w->dir);
+    if (!rc)
+        rc = sinew__run_pair_inputs(run, q, w->in, &w->nin, w->fwd, w->bwd, sizeof w->fwd);
+    if (!rc) {
+        sinew__run_pair_key(run, q, w->in, w->nin, w->key);
+        if (s->resume &&
+            sinew__run_record_status(run, w->dir, w->key, 1, NULL) == SINEW_PAIR_SKIPPED)
+            w->st = SINEW_PAIR_SKIPPED;
+        /* a verification cut short by a stop request proves nothing: keep the folder */
+        rc = sinew__check_cancel(ctx, w->dir);
+    }
+    return rc;
+}
+
+/* Empty the folder, run fn, write stats.json and done.json last, on ctx. */
+static int pair_compute(sinew_run *run, sinew_ctx *ctx, sinew_run_pair_fn fn, void *ud,
+                        pair_work *w)
+{
+    const sinew_run_spec *s = &run->spec;
+    int rc = empty_dir(run, ctx, w->dir);
+    if (rc)
+        return rc;
+    sinew_run_job job = {w->q,
+                         s->pairs[w->q],
+                         w->name,
+                         w->dir,
+                         s->flow_from ? w->fwd : NULL,
+                         s->flow_from ? w->bwd : NULL};
+    char *stats = NULL;
+    rc = fn(ud, ctx, &job, &stats);
+    if (!rc && !stats)
+        rc = sinew__fail(ctx, SINEW_EINTERNAL, "%s: pair function gave no stats", w->name);
+    char sp[SINEW__PATH_MAX];
+    if (!rc && !(rc = sinew__path_join(ctx, sp, sizeof sp, w->dir, SINEW_RUN_STATS_FILE)))
+        rc = sinew_write_json_text(ctx, sp, stats); /* valid UTF-8, final newline */
+    sinew_ctx_dealloc(ctx, stats);
+    if (!rc)
+        rc = write_done_record(run, ctx, w->q, w->name, w->dir, w->key, w->in, w->nin);
+    return rc;
+}
+
+/* After pair_prepare or pair_compute returned rc on ctx: a failure (not a stop request)
+ * keeps its message and leaves only the error record in the folder. */
+static void pair_settle(sinew_run *run, sinew_ctx *ctx, pair_work *w, int rc)
+{
+    w->rc = rc;
+    if (!rc || rc == SINEW_EINTERRUPTED)
+        return;
+    w->st = SINEW_PAIR_FAILED;
+    snprintf(w->msg, sizeof w->msg, "%s",
+             sinew_ctx_message(ctx)[0] ? sinew_ctx_message(ctx) : sinew_strerror(rc));
+    /* outputs of a failed pair are not results; never in a linked folder (lstat: a
+     * link is not a folder) */
+    struct stat dst;
+    if (lstat(w->dir, &dst) == 0 && S_ISDIR(dst.st_mode)) {
+        (void)empty_dir(run, ctx, w->dir);
+        (void)write_error_record(run, ctx, w->q, w->name, w->dir, w->msg);
+    }
+}
+
+/* Count a settled pair and report it; 1 when the run must stop after it. */
+static int pair_commit(sinew_run *run, const pair_work *w, sinew_run_progress_fn progress,
+                       void *progress_ud, sinew_run_result *result, char *first_msg)
+{
+    if (w->rc == SINEW_EINTERRUPTED) {
+        /* stopped inside the pair (hashing, estimating): not a failure of the pair;
+         * whatever it left has no done record and is emptied when the pair is next
+         * computed */
+        result->interrupted = 1;
+        return 1;
+    }
+    if (w->st == SINEW_PAIR_FAILED) {
+        if (!result->status) {
+            result->status = w->rc;
+            snprintf(first_msg, SINEW_MESSAGE_MAX, "%s", w->msg);
+        }
+        result->failed++;
+    } else if (w->st == SINEW_PAIR_SKIPPED) {
+        result->skipped++;
+    } else {
+        result->computed++;
+    }
+    if (progress) {
+        sinew_run_progress pr = {result->total,
+                                 result->computed + result->skipped + result->failed,
+                                 result->computed,
+                                 result->skipped,
+                                 result->failed,
+                                 w->q,
+                                 w->name,
+                                 w->st,
+                                 w->msg};
+        progress(progress_ud, &pr);
+    }
+    return w->st == SINEW_PAIR_FAILED && run->spec.on_error == SINEW_RUN_STOP;
+}
+
+static int stop_requested(const sinew_run *run)
+{
+    return (run->spec.cancel && *run->spec.cancel) || sinew_ctx_cancelled(run->ctx);
+}
+
+/* ---- workers: `jobs` pairs at once ---- */
+
+enum { SLOT_FREE = 0, SLOT_GIVEN, SLOT_DONE, SLOT_QUIT };
+
+typedef struct worker worker;
+typedef struct pool {
+    sinew_run *run;
+    sinew_run_pair_fn fn;
+    pthread_mutex_t mu;
+    pthread_cond_t work, done;
+    worker *w;
+    int n;
+} pool;
+
+struct worker {
+    pool *pl;
+    sinew_ctx *ctx;
+    void *ud;
+    pthread_t tid;
+    int started;
+    int state;      /* SLOT_*, under pl->mu */
+    pair_work *job; /* the pair given to this worker */
+};
+
+static void *worker_main(void *arg)
+{
+    worker *w = arg;
+    pool *pl = w->pl;
+    for (;;) {
+        pthread_mutex_lock(&pl->mu);
+        while (w->state != SLOT_GIVEN && w->state != SLOT_QUIT)
+            pthread_cond_wait(&pl->work, &pl->mu);
+        int quit = w->state == SLOT_QUIT;
+        pthread_mutex_unlock(&pl->mu);
+        if (quit)
+            return NULL;
+        sinew_ctx_clear(w->ctx);
+        int rc = pair_compute(pl->run, w->ctx, pl->fn, w->ud, w->job);
+        pair_settle(pl->run, w->ctx, w->job, rc);
+        pthread_mutex_lock(&pl->mu);
+        w->state = SLOT_DONE;
+        pthread_cond_signal(&pl->done);
+        pthread_mutex_unlock(&pl->mu);
+    }
+}
+
+/* The dispatcher: prepares owned pairs in schedule order on this thread, hands each to
+ * a free worker, and commits settled pairs in schedule order, so progress, counts and
+ * the first failure are those of a one-job run (with stop-on-error, pairs already
+ * running when an earlier one fails still finish and are counted). */
+static int execute_jobs(sinew_run *run, int jobs, sinew_ctx *const *ctxs, sinew_run_pair_fn fn,
+                        void *const *uds, sinew_run_progress_fn progress, void *progress_ud,
+                        sinew_run_result *result, char *first_msg)
+{
+    sinew_ctx *ctx = run->ctx;
+    const sinew_run_spec *s = &run->spec;
+    /* ring of prepared, not yet committed pairs in schedule order: at most one per worker
+     * plus the ones that need no worker (skipped, failed while preparing) */
+    size_t cap = (size_t)jobs * 4 + 4;
+    pair_work *ring = sinew__calloc(ctx, cap, sizeof *ring);
+    worker *ws = sinew__calloc(ctx, (size_t)jobs, sizeof *ws);
+    unsigned char *ready = sinew__calloc(ctx, cap, 1);
+    if (!ring || !ws || !ready) {
+        sinew__free(ctx, ring);
+        sinew__free(ctx, ws);
+        sinew__free(ctx, ready);
+        return SINEW_ENOMEM;
+    }
+    pool pl = {
+        run, fn,  PTHREAD_MUTEX_INITIALIZER, PTHREAD_COND_INITIALIZER, PTHREAD_COND_INITIALIZER,
+        ws,  jobs};
+    int rc = SINEW_OK;
+    for (int k = 0; k < jobs; k++) {
+        ws[k] = (worker){&pl, ctxs[k], uds[k], 0, 0, SLOT_FREE, NULL};
+        if (pthread_create(&ws[k].tid, NULL, worker_main, &ws[k]) != 0) {
+            rc = sinew__fail(ctx, SINEW_ENOMEM, "cannot start worker thread %d of %d", k + 1, jobs);
+            break;
+        }
+        ws[k].started = 1;
+    }
+    size_t head = 0, tail = 0; /* ring[head % cap .. tail % cap): uncommitted, in order */
+    size_t next = 0;
+    int stop = rc != SINEW_OK, busy = 0;
+    for (;;) {
+        /* collect settled pairs; find a free worker */
+        int idle = -1;
+        pthread_mutex_lock(&pl.mu);
+        for (int k = 0; k < jobs; k++) {
+            if (ws[k].state == SLOT_DONE) {
+                ready[(size_t)(ws[k].job - ring)] = 1;
+                ws[k].state = SLOT_FREE;
+                busy--;
+            }
+            if (ws[k].state == SLOT_FREE && idle < 0)
+                idle = k;
+        }
+        pthread_mutex_unlock(&pl.mu);
+        /* commit in schedule order (pairs already running when the run stopped are
+         * counted too: their folders are complete) */
+        for (; head < tail && ready[head % cap]; head++)
+            if (pair_commit(run, &ring[head % cap], progress, progress_ud, result, first_msg))
+                stop = 1;
+        while (!stop && next < s->npairs && !sinew_shard_owns(next, s->shard_k, s->shard_n))
+            next++;
+        if (!stop && next < s->npairs && stop_requested(run)) {
+            result->interrupted = 1;
+            stop = 1;
+        }
+        int more = !stop && next < s->npairs;
+        if (!more && busy == 0 && head == tail)
+            break;
+        if (more && idle >= 0 && tail - head < cap) {
+            pair_work *w = &ring[tail % cap];
+            ready[tail % cap] = 0;
+            int prc = pair_prepare(run, next++, w);
+            if (prc || w->st == SINEW_PAIR_SKIPPED) {
+                pair_settle(run, ctx, w, prc);
+                ready[tail % cap] = 1;
+            } else {
+                pthread_mutex_lock(&pl.mu);
+                ws[idle].job = w;
+                ws[idle].state = SLOT_GIVEN;
+                busy++;
+                pthread_cond_broadcast(&pl.work);
+                pthread_mutex_unlock(&pl.mu);
+            }
+            tail++;
+            continue;
+        }
+        /* wait for a worker to finish */
+        pthread_mutex_lock(&pl.mu);
+        int any = 0;
+        for (int k = 0; k < jobs; k++)
+            any |= ws[k].state == SLOT_DONE;
+        if (!any && busy > 0)
+            pthread_cond_wait(&pl.done, &pl.mu);
+        pthread_mutex_unlock(&pl.mu);
+    }
+    pthread_mutex_lock(&pl.mu);
+    for (int k = 0; k < jobs; k++)
+        ws[k].state = SLOT_QUIT;
+    pthread_cond_broadcast(&pl.work);
+    pthread_mutex_unlock(&pl.mu);
+    for (int k = 0; k < jobs; k++)
+        if (ws[k].started)
+            pthread_join(ws[k].tid, NULL);
+    pthread_mutex_destroy(&pl.mu);
+    pthread_cond_destroy(&pl.work);
+    pthread_cond_destroy(&pl.done);
+    sinew__free(ctx, ring);
+    sinew__free(ctx, ws);
+    sinew__free(ctx, ready);
+    return rc;
+}
+
+int sinew_run_execute_jobs(sinew_run *run, int jobs, sinew_ctx *const *ctxs, sinew_run_pair_fn fn,
+                           void *const *fn_uds, sinew_run_progress_fn progress, void *progress_ud,
+                           sinew_run_result *result)
 {
     if (result)
         memset(result, 0, sizeof *result);
-    if (!run || !fn || !result)
+    if (!run || !fn || !result || jobs < 1 || jobs > SINEW_RUN_MAX_JOBS ||
+        (jobs > 1 && (!ctxs || !fn_uds)))
         return SINEW_EINVAL;
+    for (int k = 0; jobs > 1 && k < jobs; k++)
+        if (!ctxs[k] || ctxs[k] == run->ctx)
+            return SINEW_EINVAL;
     sinew_ctx *ctx = run->ctx;
     const sinew_run_spec *s = &run->spec;
     for (size_t q = 0; q < s->npairs; q++)
         if (sinew_shard_owns(q, s->shard_k, s->shard_n))
             result->total++;
-    sinew__input in[SINEW__MAX_INPUTS];
-    char fwd[SINEW__PATH_MAX], bwd[SINEW__PATH_MAX], dir[SINEW__PATH_MAX];
     char first_msg[SINEW_MESSAGE_MAX] = "";
-    for (size_t q = 0; q < s->npairs; q++) {
-        if (!sinew_shard_owns(q, s->shard_k, s->shard_n))
-            continue;
-        if ((s->cancel && *s->cancel) || sinew_ctx_cancelled(ctx)) {
-            result->interrupted = 1;
-            break;
-        }
-        char name[SINEW_PAIR_NAME_MAX], key[65];
-        sinew_pair_name(name, s->pairs[q]);
-        size_t nin = 0;
-        sinew_pair_status st = SINEW_PAIR_COMPUTED;
-        int rc = sinew__run_pair_dir(run, q, dir, sizeof dir);
-        if (!rc)
-            rc = sinew__mkdirs(ctx, dir);
-        if (!rc)
-            rc = sinew__refuse_link(ctx, dir);
-        if (!rc)
-            rc = sinew__run_pair_inputs(run, q, in, &nin, fwd, bwd, sizeof fwd);
-        if (!rc) {
-            sinew__run_pair_key(run, q, in, nin, key);
-            if (s->resume && sinew__run_record_status(run, dir, key, 1, NULL) == SINEW_PAIR_SKIPPED)
-                st = SINEW_PAIR_SKIPPED;
-            /* a verification cut short by a stop request proves nothing: keep the folder */
-            rc = sinew__check_cancel(ctx, dir);
-        }
-        if (!rc && st == SINEW_PAIR_COMPUTED)
-            rc = empty_dir(run, dir);
-        if (!rc && st == SINEW_PAIR_COMPUTED) {
-            sinew_run_job job = {
-                q, s->pairs[q], name, dir, s->flow_from ? fwd : NULL, s->flow_from ? bwd : NULL};
-            char *stats = NULL;
-            rc = fn(fn_ud, ctx, &job, &stats);
-            if (!rc && !stats)
-                rc = sinew__fail(ctx, SINEW_EINTERNAL, "%s: pair function gave no stats", name);
-            char sp[SINEW__PATH_MAX];
-            if (!rc && !(rc = sinew__path_join(ctx, sp, sizeof sp, dir, SINEW_RUN_STATS_FILE)))
-                rc = sinew_write_json_text(ctx, sp, stats); /* valid UTF-8, final newline */
-            sinew_ctx_dealloc(ctx, stats);
-            if (!rc)
-                rc = write_done_record(run, q, name, dir, key, in, nin);
-        }
-        char msg[SINEW_MESSAGE_MAX] = "";
-        if (rc == SINEW_EINTERRUPTED) {
-            /* stopped inside the pair (hashing): not a failure of the pair; whatever it
-             * left has no done record and is emptied when the pair is next computed */
-            result->interrupted = 1;
-            break;
-        }
-        if (rc) {
-            st = SINEW_PAIR_FAILED;
-            snprintf(msg, sizeof msg, "%s",
-                     sinew_ctx_message(ctx)[0] ? sinew_ctx_message(ctx) : sinew_strerror(rc));
-            if (!result->status) {
-                result->status = rc;
-                snprintf(first_msg, sizeof first_msg, "%s", msg);
+    if (jobs > 1) {
+        int rc =
+            execute_jobs(run, jobs, ctxs, fn, fn_uds, progress, progress_ud, result, first_msg);
+        if (rc)
+            return rc;
+    } else {
+        pair_work *w = sinew__alloc(ctx, sizeof *w);
+        if (!w)
+            return SINEW_ENOMEM;
+        for (size_t q = 0; q < s->npairs; q++) {
+            if (!sinew_shard_owns(q, s->shard_k, s->shard_n))
+                continue;
+            if (stop_requested(run)) {
+                result->interrupted = 1;
+                break;
             }
-            /* leave only the error record: outputs of a failed pair are not results; never
-             * in a linked folder (lstat: a link is not a folder) */
-            struct stat dst;
-            if (lstat(dir, &dst) == 0 && S_ISDIR(dst.st_mode)) {
-                (void)empty_dir(run, dir);
-                (void)write_error_record(run, q, name, dir, msg);
-            }
-            result->failed++;
-        } else if (st == SINEW_PAIR_SKIPPED) {
-            result->skipped++;
-        } else {
-            result->computed++;
+            int rc = pair_prepare(run, q, w);
+            if (!rc && w->st == SINEW_PAIR_COMPUTED)
+                rc = pair_compute(run, ctx, fn, fn_uds ? fn_uds[0] : NULL, w);
+            pair_settle(run, ctx, w, rc);
+            if (pair_commit(run, w, progress, progress_ud, result, first_msg))
+                break;
         }
-        if (progress) {
-            sinew_run_progress pr = {result->total,
-                                     result->computed + result->skipped + result->failed,
-                                     result->computed,
-                                     result->skipped,
-                                     result->failed,
-                                     q,
-                                     name,
-                                     st,
-                                     msg};
-            progress(progress_ud, &pr);
-        }
-        if (rc && s->on_error == SINEW_RUN_STOP)
-            break;
+        sinew__free(ctx, w);
     }
     if (result->status) {
         sinew__fail(ctx, result->status, "%s", first_msg);
@@ -733,6 +963,12 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
         return sinew__fail(ctx, SINEW_EINTERRUPTED, "interrupted: %zu of %zu pairs finished",
                            result->computed + result->skipped, result->total);
     return SINEW_OK;
+}
+
+int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
+                      sinew_run_progress_fn progress, void *progress_ud, sinew_run_result *result)
+{
+    return sinew_run_execute_jobs(run, 1, NULL, fn, &fn_ud, progress, progress_ud, result);
 }
 
 int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd, char *bwd,

@@ -187,6 +187,23 @@ const char *sinew_run_lock_path(const sinew_run *run);
 int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
                       sinew_run_progress_fn progress, void *progress_ud, sinew_run_result *result);
 
+/* Most pairs at once in sinew_run_execute_jobs. */
+#define SINEW_RUN_MAX_JOBS 256
+
+/* sinew_run_execute with `jobs` pairs at once (1..SINEW_RUN_MAX_JOBS): worker k runs
+ * fn(fn_uds[k], ctxs[k], ...) on its own thread; ctxs[k] are distinct contexts, none the
+ * run's (each is used by its worker only; give each its share of the threads and the
+ * same stop flag). The calling thread hashes inputs, checks resume and commits pairs in
+ * schedule order, so progress calls, counts, records and outputs are those of one job
+ * (outputs do not depend on which worker made them); with SINEW_RUN_STOP, pairs
+ * already running when an earlier pair fails still finish and are counted. jobs = 1
+ * runs on the calling thread with run's context and fn_uds[0] (ctxs may be NULL).
+ * Memory: `jobs` copies of what fn holds, plus about 20 KB per job. Returns as
+ * sinew_run_execute; EINVAL for bad arguments, ENOMEM when a thread cannot start. */
+int sinew_run_execute_jobs(sinew_run *run, int jobs, sinew_ctx *const *ctxs, sinew_run_pair_fn fn,
+                           void *const *fn_uds, sinew_run_progress_fn progress, void *progress_ud,
+                           sinew_run_result *result);
+
 /* Rebuild OUTDIR/manifest.json from the per-pair records of every pair in the
  * schedule (all shards): inputs with sizes and SHA-256, options, version, and per
  * pair its status ("done" when the done record matches the current key, "failed"

@@ -193,6 +193,8 @@ sinew_ctx *cli_ctx(const char *cmd, int threads)
 static volatile sig_atomic_t stop_flag;
 static volatile sig_atomic_t stop_signal;
 static sinew_ctx *stop_ctx;
+static sinew_ctx *stop_more[CLI_STOP_MAX_CTX];
+static volatile sig_atomic_t stop_nmore;
 static char stop_extra[4200];
 static volatile sig_atomic_t stop_extra_set;
 static char stop_line[200];
@@ -204,6 +206,8 @@ static void on_stop_signal(int sig)
         /* second request: only async-signal-safe calls from here on */
         if (stop_ctx)
             (void)sinew_ctx_remove_temporaries(stop_ctx);
+        for (int k = 0; k < stop_nmore; k++)
+            (void)sinew_ctx_remove_temporaries(stop_more[k]);
         if (stop_extra_set)
             (void)unlink(stop_extra);
         ssize_t w = write(STDERR_FILENO, stop_line, stop_line_len);
@@ -230,6 +234,19 @@ void cli_stop_install(const char *cmd, sinew_ctx *ctx)
     sigaddset(&sa.sa_mask, SIGTERM);
     sigaction(SIGINT, &sa, NULL);
     sigaction(SIGTERM, &sa, NULL);
+}
+
+void cli_stop_also_ctx(sinew_ctx *ctx)
+{
+    if (!ctx) {
+        stop_nmore = 0;
+        return;
+    }
+    sinew_ctx_set_cancel(ctx, &stop_flag);
+    if (stop_nmore < CLI_STOP_MAX_CTX) {
+        stop_more[stop_nmore] = ctx;
+        stop_nmore = stop_nmore + 1;
+    }
 }
 
 void cli_stop_also_remove(const char *path)

@@ -45,6 +45,10 @@ int cli_parse_size(const char *s, int *w, int *h);
  * (130 for SIGINT, 143 for SIGTERM).
  * cli_stop_signal() is the first signal received, 0 if none. */
 void cli_stop_install(const char *cmd, sinew_ctx *ctx);
+/* Another context (a worker's) that reads the same flag and whose temporaries the
+ * second signal also removes; NULL forgets them all. At most CLI_STOP_MAX_CTX. */
+#define CLI_STOP_MAX_CTX 256
+void cli_stop_also_ctx(sinew_ctx *ctx);
 /* A path (copied; NULL to forget it) the second signal also unlinks. */
 void cli_stop_also_remove(const char *path);
 int cli_stop_signal(void);

@@ -70,7 +70,10 @@ static void usage(FILE *out)
         "                         JSON lines\n"
         "  --report               print a per-pair summary table at the end and write\n"
         "                         OUTDIR/report.html (sinew report)\n"
-        "  --threads N            threads per pair (0 = all cores); outputs identical\n"
+        "  --threads N            threads in all (0 = all cores); outputs identical\n"
+        "  --jobs N               pairs at once, the threads split between them (0 =\n"
+        "                         automatic: one per thread while memory allows);\n"
+        "                         outputs identical for every N\n"
         "  -h, --help             this help\n"
         "\n"
         "A run stores the options that shape its outputs (preset, flow format, match\n"
@@ -188,7 +191,7 @@ typedef struct {
      * the first four bits are SINEW_RUN_KEEP_*) */
     unsigned given;
     sinew_run_options stored; /* OUTDIR/options.json when it was applied (owns the strings) */
-    long threads;
+    long threads, jobs;
     double max_dt;
     sinew_run_on_error on_error;
     prog_mode progress;
@@ -211,7 +214,8 @@ enum {
     O_MERGE,
     O_DSCALE,
     O_MSTRIDE,
-    O_FORCE
+    O_FORCE,
+    O_JOBS
 };
 
 static int parse_shard(const char *arg, run_args *a)
@@ -294,6 +298,11 @@ static int parse_option(int c, const char *arg, run_args *a)
         if (cli_parse_int(arg, 0, 4096, &a->threads))
             return cli_usage_error(CMD, "--threads: expected 0..4096, got '%s'", arg);
         break;
+    case O_JOBS:
+        if (cli_parse_int(arg, 0, SINEW_RUN_MAX_JOBS, &a->jobs))
+            return cli_usage_error(CMD, "--jobs: expected 0..%d, got '%s'", SINEW_RUN_MAX_JOBS,
+                                   arg);
+        break;
     case O_MAXDT:
         if (cli_parse_double(arg, &a->max_dt) || !(a->max_dt > 0))
             return cli_usage_error(CMD, "--max-dt: expected seconds > 0, got '%s'", arg);
@@ -330,6 +339,7 @@ static int parse_args(int argc, char **argv, run_args *a)
                                          {"flow-format", required_argument, NULL, O_FMT},
                                          {"flow-from", required_argument, NULL, O_FROM},
                                          {"threads", required_argument, NULL, O_THREADS},
+                                         {"jobs", required_argument, NULL, O_JOBS},
                                          {"report", no_argument, NULL, O_REPORT},
                                          {"schedule", required_argument, NULL, O_SCHED},
                                          {"preset", required_argument, NULL, O_PRESET},
@@ -758,12 +768,98 @@ static int merge(sinew_ctx *ctx, sinew_run *run, const run_args *a, size_t npair
 
 /* The run itself, then the manifest (whole runs only), the summary lines, the --report
  * table and page, and the final one-line error. */
+/* ---- pairs at once (--jobs) ---- */
+
+/* Bytes per pixel one job holds at most while it computes a pair: peak RSS of a whole
+ * `sinew run` on the 640x480 demo scene is 64.8 MB, 211 B/px (docs/benchmarks.md,
+ * whole-sequence runs), rounded up. */
+#define JOB_BYTES_PER_PIXEL 256.0
+
+/* --jobs 0: one job per thread, no more than the owned pairs, and no more than half the
+ * physical memory holds (JOB_BYTES_PER_PIXEL times the first owned pair's frame size). */
+static int auto_jobs(sinew_ctx *ctx, const sinew_run_spec *s, int threads)
+{
+    size_t owned = 0, first = SIZE_MAX;
+    for (size_t q = 0; q < s->npairs; q++)
+        if (sinew_shard_owns(q, s->shard_k, s->shard_n)) {
+            owned++;
+            first = first == SIZE_MAX ? q : first;
+        }
+    int jobs = threads;
+    if ((size_t)jobs > owned)
+        jobs = owned ? (int)owned : 1;
+    if (jobs < 2)
+        return 1;
+    sinew_image img;
+    if (sinew_image_read(ctx, &img, s->frames[s->pairs[first].i].color)) {
+        sinew_ctx_clear(ctx); /* the run itself reports the file */
+        return 1;
+    }
+    double px = (double)img.width * img.height;
+    sinew_image_free(&img);
+    double mem = (double)sysconf(_SC_PHYS_PAGES) * (double)sysconf(_SC_PAGESIZE);
+    double fit = mem > 0 ? 0.5 * mem / (JOB_BYTES_PER_PIXEL * px) : 1;
+    if (fit < jobs)
+        jobs = fit < 1 ? 1 : (int)fit;
+    return jobs;
+}
+
+typedef struct {
+    int n;
+    sinew_ctx *ctx[SINEW_RUN_MAX_JOBS];
+    sinew_run_pipeline *pl[SINEW_RUN_MAX_JOBS];
+} job_set;
+
+static void jobs_free(job_set *js)
+{
+    cli_stop_also_ctx(NULL);
+    for (int k = 0; k < js->n; k++) {
+        sinew_run_pipeline_free(js->pl[k]);
+        sinew_ctx_free(js->ctx[k]);
+    }
+    js->n = 0;
+}
+
+/* One pipeline for one job on ctx itself; for more, a context per job with its share of
+ * the threads (the first ones get one more when they do not divide evenly). Returns
+ * CLI_OK or the exit status after printing the error. */
+static int jobs_new(sinew_ctx *ctx, const run_args *a, const run_plan *p, job_set *js)
+{
+    memset(js, 0, sizeof *js);
+    long cores = sysconf(_SC_NPROCESSORS_ONLN);
+    int threads = a->threads > 0 ? (int)a->threads : cores > 0 ? (int)cores : 1;
+    int jobs = a->jobs > 0 ? (int)a->jobs : auto_jobs(ctx, &p->spec, threads);
+    if (jobs == 1) {
+        js->n = 1;
+        js->ctx[0] = NULL;
+        int rc = sinew_run_pipeline_new(ctx, &js->pl[0], &p->spec, &a->pp);
+        return rc ? cli_status(CMD, ctx, rc) : CLI_OK;
+    }
+    for (int k = 0; k < jobs; k++) {
+        int t = threads / jobs + (k < threads % jobs);
+        js->ctx[k] = sinew_ctx_new();
+        js->n = k + 1;
+        int rc = js->ctx[k] ? sinew_ctx_set_threads(js->ctx[k], t < 1 ? 1 : t) : SINEW_ENOMEM;
+        if (!rc)
+            rc = sinew_run_pipeline_new(js->ctx[k], &js->pl[k], &p->spec, &a->pp);
+        if (rc) {
+            int ret = cli_status(CMD, js->ctx[k] ? js->ctx[k] : ctx, rc);
+            jobs_free(js);
+            return ret;
+        }
+        cli_stop_also_ctx(js->ctx[k]);
+    }
+    return CLI_OK;
+}
+
+/* The run itself, then the manifest (whole runs only), the summary lines, the --report
+ * table and page, and the final one-line error. */
 static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *run)
 {
-    sinew_run_pipeline *pl = NULL;
-    int rc = sinew_run_pipeline_new(ctx, &pl, &p->spec, &a->pp);
-    if (rc)
-        return cli_status(CMD, ctx, rc);
+    job_set js;
+    int rc = jobs_new(ctx, a, p, &js);
+    if (rc != CLI_OK)
+        return rc;
     /* first SIGINT/SIGTERM: stop at the next safe point; second: at once, releasing the
      * output folder's lock (tools/cli.h) */
     cli_stop_install(CMD, ctx);
@@ -771,8 +867,9 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
     progress_state ps = {a->progress, a->progress == PROG_AUTO && isatty(STDOUT_FILENO), now_s(),
                          0};
     sinew_run_result res;
-    rc = sinew_run_execute(run, sinew_run_pipeline_pair, pl, on_progress, &ps, &res);
-    sinew_run_pipeline_free(pl);
+    rc = sinew_run_execute_jobs(run, js.n, js.ctx, sinew_run_pipeline_pair, (void *const *)js.pl,
+                                on_progress, &ps, &res);
+    jobs_free(&js);
     char first[SINEW_MESSAGE_MAX];
     snprintf(first, sizeof first, "%s", sinew_ctx_message(ctx));
     if (ps.live)

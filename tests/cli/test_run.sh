@@ -129,6 +129,25 @@ else
     fail "1 thread and the default give identical bytes" "$(diff -rq "$T/whole" "$T/t1" | head -3)"
 fi
 
+# ---- pairs at once (--jobs): the same bytes for any count, also with one thread each
+"$B" run "$T/seq" -o "$T/j1" $OPT --jobs 1 >"$T/j1.out" 2>&1
+"$B" run "$T/seq" -o "$T/j3" $OPT --jobs 3 --threads 1 >"$T/j3.out" 2>&1
+"$B" run "$T/seq" -o "$T/j2" $OPT --jobs 2 --threads 3 --progress plain >"$T/j2.out" 2>&1
+if diff -r "$T/whole" "$T/j1" >/dev/null && diff -r "$T/whole" "$T/j3" >/dev/null \
+    && diff -r "$T/whole" "$T/j2" >/dev/null; then
+    pass "--jobs 1, 2 and 3 give the bytes of the default run"
+else
+    fail "--jobs 1, 2 and 3 give the bytes of the default run" "$(diff -rq "$T/whole" "$T/j3" | head -3)"
+fi
+if [ "$(sed -n 's/^\([0-9]*\)\/[0-9]* \([0-9-]*\) .*/\1 \2/p' "$T/j2.out" | tr '\n' ' ')" = \
+    "1 000000-000001 2 000001-000002 3 000002-000003 4 000003-000004 5 000004-000005 " ]; then
+    pass "--jobs 2 reports pairs in schedule order"
+else
+    fail "--jobs 2 reports pairs in schedule order" "$(head -5 "$T/j2.out")"
+fi
+expect_error "--jobs out of range" - 'jobs' "$B" run "$T/seq" -o "$T/jx" $OPT --jobs -1
+expect_error "--jobs not a number" - 'jobs' "$B" run "$T/seq" -o "$T/jx" $OPT --jobs two
+
 # ---- three concurrent shards into one folder, then merge
 "$B" run "$T/seq" -o "$T/sh" $OPT --shard 0/3 >"$T/s0" 2>&1 &
 p0=$!

@@ -753,6 +753,73 @@ static int same_tree(const char *a, const char *b)
     return system(cmd) == 0;
 }
 
+typedef struct {
+    size_t order[16];
+    int status[16];
+    size_t n;
+} progress_log;
+
+static void log_progress(void *ud, const sinew_run_progress *p)
+{
+    progress_log *l = ud;
+    if (l->n < 16) {
+        l->order[l->n] = p->index;
+        l->status[l->n++] = (int)p->status;
+    }
+}
+
+/* --jobs: several pairs at once on worker threads give the bytes, the records, the
+ * progress order and the counts of one job, also with a failing pair (skip policy). */
+static void test_run_engine_jobs_match_one_job(void **state)
+{
+    (void)state;
+    fixture fx;
+    fixture_make(&fx);
+    char out1[600], out3[600];
+    sinew_run_spec s1 = spec_for(&fx, "one", out1, sizeof out1);
+    sinew_run_spec s3 = spec_for(&fx, "three", out3, sizeof out3);
+    s1.on_error = s3.on_error = SINEW_RUN_SKIP;
+    fake f1 = {0, 2, NULL, 0};
+    progress_log l1 = {{0}, {0}, 0}, l3 = {{0}, {0}, 0};
+    sinew_run_result r1, r3;
+    sinew_run *run;
+    assert_int_equal(sinew_run_new(fx.ctx, &run, &s1), SINEW_OK);
+    assert_int_equal(sinew_run_execute(run, fake_pair, &f1, log_progress, &l1, &r1), SINEW_EFORMAT);
+    assert_int_equal(sinew_run_write_manifest(run, 0, NULL, NULL, NULL), SINEW_OK);
+    sinew_run_free(run);
+    fake f3[3] = {{0, 2, NULL, 0}, {0, 2, NULL, 0}, {0, 2, NULL, 0}};
+    sinew_ctx *wc[3];
+    void *uds[3];
+    for (int k = 0; k < 3; k++) {
+        wc[k] = sinew_ctx_new();
+        assert_non_null(wc[k]);
+        uds[k] = &f3[k];
+    }
+    assert_int_equal(sinew_run_new(fx.ctx, &run, &s3), SINEW_OK);
+    assert_int_equal(sinew_run_execute_jobs(run, 3, wc, fake_pair, uds, log_progress, &l3, &r3),
+                     SINEW_EFORMAT);
+    assert_int_equal(sinew_run_write_manifest(run, 0, NULL, NULL, NULL), SINEW_OK);
+    /* the run's own context may not be a worker's */
+    sinew_ctx *bad[2] = {wc[0], fx.ctx};
+    sinew_run_result rb;
+    assert_int_equal(sinew_run_execute_jobs(run, 2, bad, fake_pair, uds, NULL, NULL, &rb),
+                     SINEW_EINVAL);
+    sinew_run_free(run);
+    assert_int_equal(f3[0].calls + f3[1].calls + f3[2].calls, f1.calls);
+    assert_int_equal(r3.computed, r1.computed);
+    assert_int_equal(r3.failed, 1);
+    assert_int_equal(r1.failed, 1);
+    assert_int_equal(l3.n, l1.n);
+    for (size_t k = 0; k < l1.n; k++) {
+        assert_int_equal(l3.order[k], l1.order[k]);
+        assert_int_equal(l3.status[k], l1.status[k]);
+    }
+    assert_true(same_tree(out1, out3));
+    for (int k = 0; k < 3; k++)
+        sinew_ctx_free(wc[k]);
+    fixture_free(&fx);
+}
+
 static void test_run_engine_resume_skips_only_up_to_date(void **state)
 {
     (void)state;
@@ -1019,6 +1086,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_run_sha256_nist_vectors),
         cmocka_unit_test(test_run_sha256_matches_coreutils),
+        cmocka_unit_test(test_run_engine_jobs_match_one_job),
         cmocka_unit_test(test_run_sha256_file_matches_memory),
         cmocka_unit_test(test_run_schedule_kinds_and_names),
         cmocka_unit_test(test_run_shards_partition_pairs),

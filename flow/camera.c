@@ -196,6 +196,21 @@ int sinew_camera_roundtrip_error(sinew_ctx *ctx, const sinew_camera *cam, int wi
 
 /* ---- rescaling ---- */
 
+int sinew_camera_centre_check(const sinew_camera *cam, int width, int height, char *msg, size_t n)
+{
+    if (!cam || width < 1 || height < 1)
+        return 0;
+    double dx = cam->cx - 0.5 * (width - 1), dy = cam->cy - 0.5 * (height - 1);
+    if (fabs(dx) <= 0.25 * width && fabs(dy) <= 0.25 * height)
+        return 0;
+    if (msg && n)
+        snprintf(msg, n,
+                 "principal point (%.1f, %.1f) is more than 25%% of the size from the centre "
+                 "of the %dx%d images; are the intrinsics for %.0fx%.0f frames?",
+                 cam->cx, cam->cy, width, height, 2 * (cam->cx + 0.5), 2 * (cam->cy + 0.5));
+    return 1;
+}
+
 int sinew_camera_fit(sinew_ctx *ctx, const sinew_camera *in, int width, int height,
                      sinew_camera *out, const char *what)
 {

@@ -72,6 +72,14 @@ int sinew_camera_save(sinew_ctx *ctx, const sinew_camera *cam, const char *path)
 int sinew_camera_fit(sinew_ctx *ctx, const sinew_camera *in, int width, int height,
                      sinew_camera *out, const char *what);
 
+/* A plausibility check of intrinsics fitted to width x height images: 1 (and a message
+ * into msg, size n, naming both sizes) when the principal point lies more than a quarter
+ * of the image size from the image centre in x or y — e.g. a calibration for 1280x960
+ * frames given without its size and used on 640x480 frames; 0 otherwise. A warning, not
+ * an error: off-centre crops exist. The 25 % margin is our choice (real lenses put the
+ * principal point within a few percent of the centre, common practice). */
+int sinew_camera_centre_check(const sinew_camera *cam, int width, int height, char *msg, size_t n);
+
 /* Apply the distortion model to undistorted normalised coordinates. */
 void sinew_camera_distort(const sinew_camera *cam, double x, double y, double *xd, double *yd);
 

@@ -335,6 +335,11 @@ typedef struct sinew_run_pair_summary {
  * missing or not JSON (e.g. the pair is pending). */
 int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
                                 sinew_run_pair_summary *out);
+/* The warnings of a computed pair (stats.json "warnings": implausible depth, off-centre
+ * intrinsics, no intrinsics for depth, few pixels kept), each passed to fn in order; the
+ * read error naming the file when stats.json is missing or not JSON. */
+int sinew_run_pair_warnings_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
+                                 void (*fn)(void *ud, const char *warning), void *ud);
 
 /* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
  * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).

@@ -107,19 +107,46 @@ int sinew_run_schedule_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, 
     return SINEW_OK;
 }
 
-int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
-                                sinew_run_pair_summary *out)
+/* OUTDIR/pairs/NAME/stats.json parsed into *j. */
+static int stats_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair, cJSON **j)
 {
-    if (!ctx || !outdir || !out)
-        return SINEW_EINVAL;
     char name[SINEW_PAIR_NAME_MAX], path[4200];
     sinew_pair_name(name, pair);
     int len = snprintf(path, sizeof path, "%s/" SINEW_RUN_PAIRS_DIR "/%s/" SINEW_RUN_STATS_FILE,
                        outdir, name);
     if (len < 0 || (size_t)len >= sizeof path)
         return sinew__fail(ctx, SINEW_ELIMIT, "%s: path too long", outdir);
+    return sinew__json_read(ctx, path, (size_t)16 << 20, j);
+}
+
+int sinew_run_pair_warnings_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
+                                 void (*fn)(void *ud, const char *warning), void *ud)
+{
+    if (!ctx || !outdir || !fn)
+        return SINEW_EINVAL;
     cJSON *j;
-    int rc = sinew__json_read(ctx, path, (size_t)16 << 20, &j);
+    int rc = stats_read(ctx, outdir, pair, &j);
+    if (rc)
+        return rc;
+    const cJSON *w, *list = cJSON_GetObjectItemCaseSensitive(j, "warnings");
+    if (!cJSON_IsArray(list))
+        list = NULL;
+    cJSON_ArrayForEach(w, list)
+    {
+        if (cJSON_IsString(w))
+            fn(ud, w->valuestring);
+    }
+    cJSON_Delete(j);
+    return SINEW_OK;
+}
+
+int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
+                                sinew_run_pair_summary *out)
+{
+    if (!ctx || !outdir || !out)
+        return SINEW_EINVAL;
+    cJSON *j;
+    int rc = stats_read(ctx, outdir, pair, &j);
     if (rc)
         return rc;
     const cJSON *check = cJSON_GetObjectItemCaseSensitive(j, "check");
@@ -379,6 +406,40 @@ static double finite_mean(const sinew_image *img)
     return n ? sum / (double)n : NAN;
 }
 
+/* A pair kept by the check on fewer than this share of its pixels gets a warning: the
+ * flow is then mostly unreliable (our choice; the demo scene keeps over 90 %). */
+#define FEW_KEPT_FRACTION 0.10
+
+/* Warnings about the pair's intrinsics and its check result (docs/formats.md stats.json),
+ * appended to warn; `sinew run` prints them as they arise. */
+static void pair_warnings(const sinew_run_pipeline *pl, cJSON *warn, const sinew_check_stats *cs,
+                          const sinew_matches *m, const frame_slot *s0, const frame_slot *s1)
+{
+    char msg[800], why[600];
+    const char *k = pl->spec->intrinsics ? pl->spec->intrinsics : "intrinsics";
+    if (!warn)
+        return;
+    if (pl->have_camera &&
+        sinew_camera_centre_check(&pl->cam, pl->width, pl->height, why, sizeof why)) {
+        snprintf(msg, sizeof msg, "%s: %s", k, why);
+        cJSON_AddItemToArray(warn, cJSON_CreateString(msg));
+    }
+    if (!pl->have_camera && s0->z.data && s1->z.data)
+        cJSON_AddItemToArray(warn, cJSON_CreateString("the frames have depth maps but there are "
+                                                      "no intrinsics: matches are not lifted to "
+                                                      "3-D (docs/formats.md, sequence inputs)"));
+    double kept = cs->pixels ? (double)cs->kept / (double)cs->pixels : 0.0;
+    if (cs->pixels && kept < FEW_KEPT_FRACTION) {
+        snprintf(msg, sizeof msg,
+                 "the check kept %.1f%% of the pixels (under %.0f%%): this pair's flow is "
+                 "mostly unreliable",
+                 100 * kept, 100 * FEW_KEPT_FRACTION);
+        cJSON_AddItemToArray(warn, cJSON_CreateString(msg));
+    } else if (m && m->rows == 0) {
+        cJSON_AddItemToArray(warn, cJSON_CreateString("no matches were kept"));
+    }
+}
+
 static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
                         const sinew_check_stats *cs, const sinew_matches *m, const frame_slot *s0,
                         const frame_slot *s1)
@@ -407,6 +468,7 @@ static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
             cJSON_AddItemToArray(warn, cJSON_CreateString(msg));
         }
     }
+    pair_warnings(pl, warn, cs, m, s0, s1);
     cJSON_AddStringToObject(o, "pair", job->name);
     cJSON *fr = cJSON_AddArrayToObject(o, "frames");
     if (fr) {

@@ -107,6 +107,16 @@ int cli_error(const char *cmd, const char *fmt, ...)
     return CLI_FAIL;
 }
 
+void cli_warning(const char *cmd, const char *fmt, ...)
+{
+    char buf[3 * SINEW_MESSAGE_MAX];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(buf, sizeof buf, fmt, ap);
+    va_end(ap);
+    cli_error(cmd, "warning: %s", buf);
+}
+
 int cli_usage_error(const char *cmd, const char *fmt, ...)
 {
     char buf[3 * SINEW_MESSAGE_MAX];

@@ -18,7 +18,9 @@ extern const char cli_notice[];
 /* Print "sinew: CMD: message" as one line on stderr (newlines in the message are
  * replaced by spaces). Returns CLI_FAIL. */
 int cli_error(const char *cmd, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
-/* Same with exit code CLI_USAGE and a hint to run --help. */
+/* "sinew: CMD: warning: message", one line on stderr, the same way. */
+void cli_warning(const char *cmd, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* Same as cli_error with exit code CLI_USAGE and a hint to run --help. */
 int cli_usage_error(const char *cmd, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 /* Print the context's message for a failed status (or the generic text). Returns CLI_FAIL. */
 int cli_status(const char *cmd, sinew_ctx *ctx, int status);

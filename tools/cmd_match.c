@@ -384,6 +384,7 @@ static int match_main(int argc, char **argv, int lift)
     state s;
     memset(&s, 0, sizeof s);
     sinew_camera cam_file, cam;
+    char why[600];
     double median[2] = {NAN, NAN};
     sinew_match_inputs in;
     memset(&in, 0, sizeof in);
@@ -453,14 +454,16 @@ static int match_main(int argc, char **argv, int lift)
     for (int i = 0; lift && i < 2; i++) {
         const char *p = i ? o.depth1 : o.depth0;
         if (isnan(median[i]))
-            fprintf(stderr, "sinew: %s: warning: %s: no valid depth\n", cmd, p);
+            cli_warning(cmd, "%s: no valid depth", p);
         else if (median[i] < SINEW_DEPTH_PLAUSIBLE_MIN || median[i] > SINEW_DEPTH_PLAUSIBLE_MAX)
-            fprintf(stderr,
-                    "sinew: %s: warning: %s: median valid depth %.4g m is outside %g-%g m; "
-                    "check --depth-scale (now %g)%s\n",
-                    cmd, p, median[i], SINEW_DEPTH_PLAUSIBLE_MIN, SINEW_DEPTH_PLAUSIBLE_MAX,
-                    o.dp.scale, o.dp.kind == SINEW_DEPTH_Z ? "" : " and --depth-kind");
+            cli_warning(cmd,
+                        "%s: median valid depth %.4g m is outside %g-%g m; check --depth-scale "
+                        "(now %g)%s",
+                        p, median[i], SINEW_DEPTH_PLAUSIBLE_MIN, SINEW_DEPTH_PLAUSIBLE_MAX,
+                        o.dp.scale, o.dp.kind == SINEW_DEPTH_Z ? "" : " and --depth-kind");
     }
+    if (lift && sinew_camera_centre_check(&cam, cam.width, cam.height, why, sizeof why))
+        cli_warning(cmd, "%s: %s", o.intrinsics, why);
     sinew_matches_free(ctx, &m);
     state_free(&s);
     sinew_ctx_free(ctx);

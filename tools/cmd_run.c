@@ -6,7 +6,8 @@
  * with the signal flag and progress) and print (summary lines, the --report table, the
  * one-line error and the exit code).
  * Progress goes to stdout (a live line on a terminal, plain or JSON lines otherwise);
- * stderr carries only the final one-line error, if any. */
+ * stderr carries the pairs' warnings as they finish (at most WARN_SHOWN, then a count)
+ * and the final one-line error, if any. */
 #define _GNU_SOURCE
 #include <dirent.h>
 #include <errno.h>
@@ -80,6 +81,11 @@ static void usage(FILE *out)
         "stride, depth scale, max-dt, schedule, flow-from) in OUTDIR/options.json before\n"
         "its first pair. --resume, --merge and --shard runs in that folder take every\n"
         "option not given from there; a given option that differs is refused.\n"
+        "\n"
+        "Warnings (a median depth outside 0.05-20 m, intrinsics whose principal point is\n"
+        "far from the image centre, depth without intrinsics, a pair whose check keeps\n"
+        "under 10%% of the pixels) go to stderr as the pair finishes (the first 8, then\n"
+        "a count) and stay in each pair's stats.json and the report.\n"
         ""
         "\n"
         "examples:\n"
@@ -97,12 +103,41 @@ static void usage(FILE *out)
 
 typedef enum { PROG_AUTO, PROG_PLAIN, PROG_JSON } prog_mode;
 
+/* Warnings printed to stderr as pairs finish: each distinct text once, at most
+ * WARN_SHOWN of them; the rest are counted and named at the end (every pair's
+ * stats.json and the report keep them all). */
+#define WARN_SHOWN 8
+#define WARN_TEXT 640
+
 typedef struct {
     prog_mode mode;
     int live; /* auto mode on a terminal */
     double t0;
     size_t last_len;
+    sinew_ctx *ctx;
+    const sinew_run_spec *spec;
+    char shown[WARN_SHOWN][WARN_TEXT];
+    size_t nshown, nmore;
 } progress_state;
+
+static void on_warning(void *ud, const char *w)
+{
+    progress_state *ps = ud;
+    for (size_t k = 0; k < ps->nshown; k++)
+        if (!strncmp(ps->shown[k], w, WARN_TEXT - 1))
+            return;
+    if (ps->nshown == WARN_SHOWN) {
+        ps->nmore++;
+        return;
+    }
+    snprintf(ps->shown[ps->nshown++], WARN_TEXT, "%s", w);
+    if (ps->live) { /* keep the progress line whole */
+        printf("\n");
+        fflush(stdout);
+        ps->last_len = 0;
+    }
+    cli_warning(CMD, "%s", w);
+}
 
 static double now_s(void)
 {
@@ -141,6 +176,9 @@ static const char *status_word(sinew_pair_status s)
 static void on_progress(void *ud, const sinew_run_progress *p)
 {
     progress_state *ps = ud;
+    if (p->status == SINEW_PAIR_COMPUTED)
+        (void)sinew_run_pair_warnings_read(ps->ctx, ps->spec->outdir, ps->spec->pairs[p->index],
+                                           on_warning, ps);
     double el = now_s() - ps->t0;
     /* rate and ETA from computed pairs only: skipped pairs cost almost nothing */
     double rate = el > 0 ? (double)p->computed / el : 0;
@@ -864,8 +902,11 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
      * output folder's lock (tools/cli.h) */
     cli_stop_install(CMD, ctx);
     cli_stop_also_remove(sinew_run_lock_path(run));
-    progress_state ps = {a->progress, a->progress == PROG_AUTO && isatty(STDOUT_FILENO), now_s(),
-                         0};
+    progress_state ps = {.mode = a->progress,
+                         .live = a->progress == PROG_AUTO && isatty(STDOUT_FILENO),
+                         .t0 = now_s(),
+                         .ctx = ctx,
+                         .spec = &p->spec};
     sinew_run_result res;
     rc = sinew_run_execute_jobs(run, js.n, js.ctx, sinew_run_pipeline_pair, (void *const *)js.pl,
                                 on_progress, &ps, &res);
@@ -874,6 +915,11 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
     snprintf(first, sizeof first, "%s", sinew_ctx_message(ctx));
     if (ps.live)
         printf("\n");
+    if (ps.nmore)
+        cli_warning(CMD,
+                    "%zu more pair warnings not shown (each pair's " SINEW_RUN_STATS_FILE
+                    " and the report list them)",
+                    ps.nmore);
     int whole = a->shard_n == 1, mrc = SINEW_OK;
     size_t nd = 0, nf = 0, np = 0;
     /* the manifest is written even after a stop request (a second one ends it at once) */

@@ -274,6 +274,28 @@ static void test_camera_load_alloc_failures(void **state)
     free(dir);
 }
 
+/* Worked examples: the TUM RGB-D / 7-Scenes style K (fx 525, cx 319.5, cy 239.5 for
+ * 640x480, from memory) is centred; the same K scaled for 1280x960 (cx 639.5, cy 479.5)
+ * but used on 640x480 frames puts the principal point on the image corner. */
+static void test_camera_centre_check(void **state)
+{
+    (void)state;
+    sinew_camera c;
+    char msg[300] = "";
+    sinew_camera_init(&c, 525, 525, 319.5, 239.5, 0, 0);
+    assert_int_equal(sinew_camera_centre_check(&c, 640, 480, msg, sizeof msg), 0);
+    sinew_camera_init(&c, 1050, 1050, 639.5, 479.5, 0, 0);
+    assert_int_equal(sinew_camera_centre_check(&c, 640, 480, msg, sizeof msg), 1);
+    assert_non_null(strstr(msg, "640x480 images"));
+    assert_non_null(strstr(msg, "1280x960 frames"));
+    /* the limit is a quarter of the size in each direction: 160 px of 640, 120 of 480 */
+    sinew_camera_init(&c, 525, 525, 319.5 + 160, 239.5, 0, 0);
+    assert_int_equal(sinew_camera_centre_check(&c, 640, 480, NULL, 0), 0);
+    sinew_camera_init(&c, 525, 525, 319.5, 239.5 - 121, 0, 0);
+    assert_int_equal(sinew_camera_centre_check(&c, 640, 480, NULL, 0), 1);
+    assert_int_equal(sinew_camera_centre_check(NULL, 640, 480, NULL, 0), 0);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -283,6 +305,7 @@ int main(void)
         cmocka_unit_test(test_camera_load_formats),
         cmocka_unit_test(test_camera_hostile_values),
         cmocka_unit_test(test_camera_load_alloc_failures),
+        cmocka_unit_test(test_camera_centre_check),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

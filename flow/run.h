@@ -33,22 +33,38 @@ extern "C" {
  *                        offset 0); frames are the associated colour images in time
  *                        order; colour stamps without a depth partner are dropped
  *                        (counted in `dropped`);
- *   otherwise color/     images (.png .jpg .jpeg .ppm .pgm), sorted by file name
- *                        (byte order); optional depth/ and labels/ with the same
- *                        count, matched by sorted position;
+ *   otherwise color/     images (.png .jpg .jpeg .ppm .pgm .npy .pfm), sorted by file
+ *                        name (byte order); optional depth/ and labels/ matched to
+ *                        them by file stem (the name without its extension), else by
+ *                        the stem's last number when that is unique (frame-000007.color
+ *                        and frame-000007.depth are one frame);
  *   intrinsics.json      optional, used when present.
- * Frame counts are checked against SINEW_RUN_MAX_FRAMES before allocation. */
+ * Frame counts are checked against SINEW_RUN_MAX_FRAMES before allocation.
+ * Everything a user should know about the matching becomes a warning (a line naming the
+ * file): a depth map or label image with no colour frame, a colour frame without labels,
+ * a jump in the frame numbers, numbered names that do not sort in numeric order, a
+ * colour frame left out (no depth partner: a colour stamp with no depth stamp within
+ * max_dt, or with SINEW_RUN_SOURCE_DROP_UNMATCHED a colour image with no depth map). */
 typedef struct sinew_run_source {
     size_t nframes;
     struct sinew_run_frame *frames; /* owned, strings too */
     char *intrinsics;               /* owned path or NULL */
-    size_t dropped;                 /* colour stamps without a depth partner */
+    size_t dropped;                 /* colour frames left out for lack of depth */
+    size_t nwarnings;
+    char **warnings; /* owned */
 } sinew_run_source;
+
+/* Flags of sinew_run_source_from_folder. */
+#define SINEW_RUN_SOURCE_DROP_UNMATCHED                                                            \
+    1u /* leave out colour images without a depth map                                              \
+          (a warning each) instead of failing */
 
 /* Scan a folder (layout above). max_dt: association tolerance in seconds (the
  * published TUM default is 0.02). ECONFIG naming the folder when neither layout is
- * present or counts differ. Free with sinew_run_source_free. */
-int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
+ * present, naming the files when two have the same stem, or the first colour image
+ * without a depth map (unless flags has SINEW_RUN_SOURCE_DROP_UNMATCHED). Free with
+ * sinew_run_source_free. */
+int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt, unsigned flags,
                                  sinew_run_source *out);
 /* The frames of a sequence file (flow/sequence.h), their paths resolved against the
  * file's folder. ELIMIT (message names `where` and the frame) for a path too long to
@@ -85,6 +101,8 @@ typedef struct sinew_run_frame {
     const char *color;  /* image path, required */
     const char *depth;  /* depth map path or NULL */
     const char *labels; /* label image path or NULL */
+    int has_timestamp;  /* 1 when timestamp is known (lists, sequence.json) */
+    double timestamp;   /* capture time in seconds */
 } sinew_run_frame;
 
 typedef enum sinew_run_on_error {

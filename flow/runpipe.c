@@ -406,6 +406,35 @@ static double finite_mean(const sinew_image *img)
     return n ? sum / (double)n : NAN;
 }
 
+/* "sources": the two frames' input files and capture times as the run found them
+ * ({"color": [A, B], "depth": [A, B] | null, "labels": ..., "timestamps": [tA, tB] |
+ * null}), so a pair folder says which frames it is made of. */
+static void add_sources(cJSON *o, const sinew_run_frame *a, const sinew_run_frame *b)
+{
+    cJSON *src = cJSON_AddObjectToObject(o, "sources");
+    if (!src)
+        return;
+    const char *const key[3] = {"color", "depth", "labels"};
+    const char *const pa[3] = {a->color, a->depth, a->labels};
+    const char *const pb[3] = {b->color, b->depth, b->labels};
+    for (int k = 0; k < 3; k++) {
+        if (!pa[k] || !pb[k]) {
+            cJSON_AddNullToObject(src, key[k]);
+            continue;
+        }
+        cJSON *l = cJSON_AddArrayToObject(src, key[k]);
+        cJSON_AddItemToArray(l, cJSON_CreateString(pa[k]));
+        cJSON_AddItemToArray(l, cJSON_CreateString(pb[k]));
+    }
+    if (a->has_timestamp && b->has_timestamp) {
+        cJSON *t = cJSON_AddArrayToObject(src, "timestamps");
+        cJSON_AddItemToArray(t, cJSON_CreateNumber(a->timestamp));
+        cJSON_AddItemToArray(t, cJSON_CreateNumber(b->timestamp));
+    } else {
+        cJSON_AddNullToObject(src, "timestamps");
+    }
+}
+
 /* A pair kept by the check on fewer than this share of its pixels gets a warning: the
  * flow is then mostly unreliable (our choice; the demo scene keeps over 90 %). */
 #define FEW_KEPT_FRACTION 0.10
@@ -475,6 +504,7 @@ static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
         cJSON_AddItemToArray(fr, cJSON_CreateNumber(job->pair.i));
         cJSON_AddItemToArray(fr, cJSON_CreateNumber(job->pair.j));
     }
+    add_sources(o, &pl->spec->frames[job->pair.i], &pl->spec->frames[job->pair.j]);
     cJSON_AddNumberToObject(o, "width", pl->width);
     cJSON_AddNumberToObject(o, "height", pl->height);
     cJSON_AddStringToObject(o, "flow_source", pl->est ? "estimated" : "imported");

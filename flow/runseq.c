@@ -3,6 +3,11 @@
  * intrinsics.json) or timestamped lists (rgb.txt, depth.txt) associated by nearest
  * time within a tolerance. Produces the frame list the run engine takes. */
 #define _POSIX_C_SOURCE 200809L
+#include <ctype.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdint.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
@@ -35,7 +40,33 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src)
     }
     sinew__free(ctx, src->frames);
     sinew__free(ctx, src->intrinsics);
+    sinew__free_names(ctx, src->warnings, src->nwarnings);
     memset(src, 0, sizeof *src);
+}
+
+/* Append a warning line to the source. */
+static int warn(sinew_ctx *ctx, sinew_run_source *src, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
+static int warn(sinew_ctx *ctx, sinew_run_source *src, const char *fmt, ...)
+{
+    char buf[2 * SINEW__PATH_MAX];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(buf, sizeof buf, fmt, ap);
+    va_end(ap);
+    if ((src->nwarnings & (src->nwarnings - 1)) == 0) { /* 0, 1, 2, 4, ...: grow */
+        char **g = sinew__calloc(ctx, src->nwarnings ? 2 * src->nwarnings : 1, sizeof *g);
+        if (!g)
+            return SINEW_ENOMEM;
+        if (src->warnings)
+            memcpy(g, src->warnings, src->nwarnings * sizeof *g);
+        sinew__free(ctx, src->warnings);
+        src->warnings = g;
+    }
+    if (!(src->warnings[src->nwarnings] = sinew__strdup(ctx, buf)))
+        return SINEW_ENOMEM;
+    src->nwarnings++;
+    return SINEW_OK;
 }
 
 /* A copy of sequence path `rel` resolved against the sequence's folder; NULL for NULL. */
@@ -74,6 +105,10 @@ int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, co
             (rc = resolve_dup(ctx, seq, fr->labels, where, f, &o->labels))) {
             sinew_run_source_free(ctx, out);
             return rc;
+        }
+        if (isfinite(fr->timestamp)) {
+            o->has_timestamp = 1;
+            o->timestamp = fr->timestamp;
         }
     }
     return SINEW_OK;
@@ -132,17 +167,22 @@ static int from_lists(sinew_ctx *ctx, const char *dir, double max_dt, sinew_run_
     for (size_t i = 0; i < a.n; i++)
         ord[i] = (sinew__stamp){a.t[i], i};
     qsort(ord, a.n, sizeof *ord, sinew__stamp_cmp);
-    for (size_t q = 0; q < a.n; q++) {
+    for (size_t q = 0; !rc && q < a.n; q++) {
         size_t i = ord[q].idx;
-        if (m[i] < 0)
+        if (m[i] < 0) {
+            rc = warn(ctx, out,
+                      "%s: colour frame %s (t = %.6f s) has no depth stamp within %g s: left "
+                      "out",
+                      pa, a.name[i], a.t[i], max_dt);
             continue;
+        }
         sinew_run_frame *fr = &out->frames[out->nframes++];
         fr->color = sinew__dup_join(ctx, dir, a.name[i]);
         fr->depth = sinew__dup_join(ctx, dir, b.name[m[i]]);
-        if (!fr->color || !fr->depth) {
+        fr->has_timestamp = 1;
+        fr->timestamp = a.t[i];
+        if (!fr->color || !fr->depth)
             rc = SINEW_ENOMEM;
-            break;
-        }
     }
     sinew__free(ctx, ord);
     out->dropped = a.n - nm;
@@ -153,55 +193,230 @@ done:
     return rc;
 }
 
-static int from_layout(sinew_ctx *ctx, const char *dir, sinew_run_source *out)
+/* A file of a layout folder and its match keys. */
+typedef struct {
+    const char *path; /* as listed (DIR/sub/name) */
+    const char *name; /* base name */
+    size_t stem;      /* length of the stem: the name without its extension */
+    int64_t num;      /* the stem's last run of digits; -1 when none (or over 18 digits) */
+    size_t idx;       /* position in the sorted list */
+} frame_key;
+
+static void key_of(const char *path, size_t idx, frame_key *k)
+{
+    const char *b = strrchr(path, '/'), *dot;
+    b = b ? b + 1 : path;
+    dot = strrchr(b, '.');
+    *k = (frame_key){path, b, dot && dot > b ? (size_t)(dot - b) : strlen(b), -1, idx};
+    size_t e = k->stem, st;
+    while (e && !isdigit((unsigned char)b[e - 1]))
+        e--;
+    for (st = e; st && isdigit((unsigned char)b[st - 1]); st--)
+        ;
+    if (e > st && e - st <= 18) {
+        k->num = 0;
+        for (size_t i = st; i < e; i++)
+            k->num = 10 * k->num + (b[i] - '0');
+    }
+}
+
+static int stem_cmp(const frame_key *a, const frame_key *b)
+{
+    size_t n = a->stem < b->stem ? a->stem : b->stem;
+    int c = memcmp(a->name, b->name, n);
+    return c ? c : (a->stem > b->stem) - (a->stem < b->stem);
+}
+
+static int by_stem(const void *pa, const void *pb)
+{
+    const frame_key *a = pa, *b = pb;
+    int c = stem_cmp(a, b);
+    return c ? c : (a->idx > b->idx) - (a->idx < b->idx);
+}
+
+static int by_num(const void *pa, const void *pb)
+{
+    const frame_key *a = pa, *b = pb;
+    if (a->num != b->num)
+        return (a->num > b->num) - (a->num < b->num);
+    return (a->idx > b->idx) - (a->idx < b->idx);
+}
+
+/* A listed folder's files as keys: sorted by stem (k) and by number (num); ECONFIG
+ * naming both files when two share a stem (nothing says which one is the frame). */
+typedef struct {
+    frame_key *k, *num;
+    size_t n;
+    unsigned char *used; /* by list position: matched to a colour frame */
+} key_set;
+
+static void keys_free(sinew_ctx *ctx, key_set *ks)
+{
+    sinew__free(ctx, ks->k);
+    sinew__free(ctx, ks->num);
+    sinew__free(ctx, ks->used);
+}
+
+static int keys_make(sinew_ctx *ctx, const char *sub, char **l, size_t n, key_set *ks)
+{
+    ks->n = n;
+    if (!n)
+        return SINEW_OK;
+    ks->k = sinew__calloc(ctx, n, sizeof *ks->k);
+    ks->num = sinew__calloc(ctx, n, sizeof *ks->num);
+    ks->used = sinew__calloc(ctx, n, 1);
+    if (!ks->k || !ks->num || !ks->used)
+        return SINEW_ENOMEM;
+    for (size_t i = 0; i < n; i++)
+        key_of(l[i], i, &ks->k[i]);
+    memcpy(ks->num, ks->k, n * sizeof *ks->k);
+    qsort(ks->k, n, sizeof *ks->k, by_stem);
+    qsort(ks->num, n, sizeof *ks->num, by_num);
+    for (size_t i = 1; i < n; i++)
+        if (!stem_cmp(&ks->k[i - 1], &ks->k[i]))
+            return sinew__fail(ctx, SINEW_ECONFIG, "%s: %s and %s are the same frame (same stem)",
+                               sub, ks->k[i - 1].name, ks->k[i].name);
+    return SINEW_OK;
+}
+
+/* The file of ks that belongs to colour frame c: the same stem, else the only file
+ * whose stem's last number equals c's; NULL if none. Binary searches. */
+static const frame_key *key_find(const key_set *ks, const frame_key *c)
+{
+    size_t lo = 0, hi = ks->n;
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        int r = stem_cmp(&ks->k[mid], c);
+        if (!r)
+            return &ks->k[mid];
+        if (r < 0)
+            lo = mid + 1;
+        else
+            hi = mid;
+    }
+    if (c->num < 0)
+        return NULL;
+    for (lo = 0, hi = ks->n; lo < hi;) { /* first with num >= c->num */
+        size_t mid = lo + (hi - lo) / 2;
+        if (ks->num[mid].num < c->num)
+            lo = mid + 1;
+        else
+            hi = mid;
+    }
+    if (lo == ks->n || ks->num[lo].num != c->num ||
+        (lo + 1 < ks->n && ks->num[lo + 1].num == c->num))
+        return NULL; /* none, or ambiguous */
+    return &ks->num[lo];
+}
+
+/* Warnings about the colour frames' numbering: names that do not sort in numeric
+ * order (1.png, 10.png, 2.png) and jumps larger than the usual step. */
+static int numbering_warnings(sinew_ctx *ctx, sinew_run_source *out, const char *sub,
+                              const frame_key *c, size_t n)
+{
+    int64_t step = 0;
+    for (size_t i = 1; i < n; i++) {
+        if (c[i - 1].num < 0 || c[i].num < 0)
+            return SINEW_OK;
+        int64_t d = c[i].num - c[i - 1].num;
+        if (d <= 0)
+            return warn(ctx, out,
+                        "%s: %s sorts after %s but has a smaller number; frames are taken in "
+                        "file-name order (pad the numbers with zeros)",
+                        sub, c[i].name, c[i - 1].name);
+        if (!step || d < step)
+            step = d;
+    }
+    int rc = SINEW_OK;
+    for (size_t i = 1; !rc && i < n; i++)
+        if (c[i].num - c[i - 1].num != step)
+            rc =
+                warn(ctx, out, "%s: frame numbers jump from %lld to %lld (%s, %s): frames missing?",
+                     sub, (long long)c[i - 1].num, (long long)c[i].num, c[i - 1].name, c[i].name);
+    return rc;
+}
+
+static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_run_source *out)
 {
     static const char *const sub[3] = {"color", "depth", "labels"};
     char **l[3] = {NULL, NULL, NULL};
     size_t n[3] = {0, 0, 0};
-    char p[SINEW__PATH_MAX];
+    key_set ks[3] = {{0}, {0}, {0}};
+    frame_key *ck = NULL;
+    char p[3][SINEW__PATH_MAX];
+    int have[3] = {0, 0, 0};
     int rc = SINEW_OK;
     for (int k = 0; k < 3 && !rc; k++) {
-        if ((rc = sinew__path_join(ctx, p, sizeof p, dir, sub[k])))
+        if ((rc = sinew__path_join(ctx, p[k], sizeof p[k], dir, sub[k])))
             break;
-        if (!is_dir(p)) {
+        if (!is_dir(p[k])) {
             if (k == 0)
                 rc = sinew__fail(ctx, SINEW_ECONFIG,
                                  "%s: no sequence.json, rgb.txt+depth.txt or color/ folder", dir);
             continue;
         }
-        if ((rc = sinew__list_dir(ctx, p, image_ext, 1, SINEW_RUN_MAX_FRAMES, &l[k], &n[k])))
+        have[k] = 1;
+        if ((rc = sinew__list_dir(ctx, p[k], image_ext, 1, SINEW_RUN_MAX_FRAMES, &l[k], &n[k])))
             break;
         if (k == 0 && n[0] == 0)
-            rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no images", p);
-        else if (k > 0 && n[k] != n[0])
-            rc =
-                sinew__fail(ctx, SINEW_ECONFIG, "%s: %zu images but color/ has %zu", p, n[k], n[0]);
+            rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no images", p[0]);
+        if (!rc)
+            rc = keys_make(ctx, p[k], l[k], n[k], &ks[k]);
     }
-    if (!rc) {
-        out->frames = sinew__calloc(ctx, n[0], sizeof *out->frames);
-        if (!out->frames)
+    /* colour frames in file-name order */
+    if (!rc && !(ck = sinew__calloc(ctx, n[0], sizeof *ck)))
+        rc = SINEW_ENOMEM;
+    for (size_t f = 0; !rc && f < n[0]; f++)
+        key_of(l[0][f], f, &ck[f]);
+    if (!rc && !(out->frames = sinew__calloc(ctx, n[0], sizeof *out->frames)))
+        rc = SINEW_ENOMEM;
+    size_t kept = 0;
+    for (size_t f = 0; !rc && f < n[0]; f++) {
+        const frame_key *d = have[1] ? key_find(&ks[1], &ck[f]) : NULL;
+        const frame_key *lb = have[2] ? key_find(&ks[2], &ck[f]) : NULL;
+        if (have[1] && !d) {
+            if (!(flags & SINEW_RUN_SOURCE_DROP_UNMATCHED))
+                rc = sinew__fail(ctx, SINEW_ECONFIG,
+                                 "%s: no depth map for %s (none named %.*s.*; "
+                                 "--drop-unmatched leaves such frames out)",
+                                 p[1], l[0][f], (int)ck[f].stem, ck[f].name);
+            else
+                rc = warn(ctx, out, "%s: no depth map for %s: frame left out", p[1], l[0][f]);
+            out->dropped++;
+            continue;
+        }
+        if (have[2] && !lb &&
+            (rc = warn(ctx, out, "%s: no label image for %s: no labels there", p[2], l[0][f])))
+            break;
+        sinew_run_frame *fr = &out->frames[out->nframes++];
+        fr->color = sinew__strdup(ctx, l[0][f]);
+        fr->depth = d ? sinew__strdup(ctx, d->path) : NULL;
+        fr->labels = lb ? sinew__strdup(ctx, lb->path) : NULL;
+        if (!fr->color || (d && !fr->depth) || (lb && !fr->labels))
             rc = SINEW_ENOMEM;
+        if (d)
+            ks[1].used[d->idx] = 1;
+        if (lb)
+            ks[2].used[lb->idx] = 1;
+        ck[kept++] = ck[f]; /* the kept frames' keys, for the numbering check */
     }
-    if (!rc) {
-        /* hand the strings over to the frames */
-        for (size_t f = 0; f < n[0]; f++) {
-            out->frames[f].color = l[0][f];
-            out->frames[f].depth = l[1] ? l[1][f] : NULL;
-            out->frames[f].labels = l[2] ? l[2][f] : NULL;
-        }
-        out->nframes = n[0];
-        for (int k = 0; k < 3; k++) {
-            sinew__free(ctx, l[k]);
-            l[k] = NULL;
-            n[k] = 0;
-        }
-    }
-    for (int k = 0; k < 3; k++)
+    for (int k = 1; k < 3; k++) /* unused files, in name order */
+        for (size_t i = 0; !rc && i < n[k]; i++)
+            if (!ks[k].used[i])
+                rc = warn(ctx, out, "%s: no colour frame for %s: not used", p[k], l[k][i]);
+    if (!rc && !out->nframes)
+        rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no colour image has a depth map", p[0]);
+    if (!rc)
+        rc = numbering_warnings(ctx, out, p[0], ck, kept);
+    sinew__free(ctx, ck);
+    for (int k = 0; k < 3; k++) {
+        keys_free(ctx, &ks[k]);
         sinew__free_names(ctx, l[k], n[k]);
+    }
     return rc;
 }
 
-int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
+int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt, unsigned flags,
                                  sinew_run_source *out)
 {
     if (!ctx || !dir || !out)
@@ -217,7 +432,7 @@ int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt,
     if (is_file(pa) && is_file(pb))
         rc = from_lists(ctx, dir, max_dt, out);
     else
-        rc = from_layout(ctx, dir, out);
+        rc = from_layout(ctx, dir, flags, out);
     if (!rc && (rc = sinew__path_join(ctx, pa, sizeof pa, dir, "intrinsics.json")) == 0 &&
         is_file(pa) && !(out->intrinsics = sinew__dup_join(ctx, dir, "intrinsics.json")))
         rc = SINEW_ENOMEM;

@@ -45,7 +45,9 @@ static void usage(FILE *out)
         "input:\n"
         "  SEQUENCE.json          a sequence description (docs/formats.md)\n"
         "  FOLDER                 rgb.txt + depth.txt (timestamp association), or\n"
-        "                         color/ [depth/ labels/] [intrinsics.json]\n"
+        "                         color/ [depth/ labels/] [intrinsics.json], matched\n"
+        "                         by file stem (000007.png <-> 000007.npy) or the stem's\n"
+        "                         number (frame-7.color <-> frame-7.depth)\n"
         "options:\n"
         "  -o, --output DIR       output folder (created if missing)\n"
         "  --schedule S           consecutive (default) | gap:K | keyframe:K:M (every\n"
@@ -56,6 +58,9 @@ static void usage(FILE *out)
         "  --flow-from DIR        import flows DIR/IIIIII-JJJJJJ/{forward,backward}.EXT\n"
         "                         instead of estimating them\n"
         "  --max-dt SECONDS       colour/depth association tolerance (default 0.02)\n"
+        "  --drop-unmatched       folder input: leave out colour images that have no\n"
+        "                         depth map of the same stem (a warning each) instead\n"
+        "                         of failing\n"
         "  --depth-scale S        16-bit depth codes per metre (default 1000; TUM: 5000)\n"
         "  --match-stride S       matches on a grid of step S pixels (default 4; 0 = all)\n"
         "  --resume               skip pairs that are complete and up to date\n"
@@ -103,11 +108,34 @@ static void usage(FILE *out)
 
 typedef enum { PROG_AUTO, PROG_PLAIN, PROG_JSON } prog_mode;
 
-/* Warnings printed to stderr as pairs finish: each distinct text once, at most
- * WARN_SHOWN of them; the rest are counted and named at the end (every pair's
- * stats.json and the report keep them all). */
+/* Warnings go to stderr as they arise (the source's when it is scanned, each pair's
+ * when it finishes): each distinct text once and at most WARN_SHOWN of them, then one
+ * line saying that more are not shown (every pair's stats.json and the report keep
+ * them all). */
 #define WARN_SHOWN 8
 #define WARN_TEXT 640
+
+typedef struct {
+    char shown[WARN_SHOWN][WARN_TEXT];
+    size_t nshown, nmore;
+} warn_sink;
+
+/* 1 when warning w is to be printed now: not seen before and under the cap (the first
+ * one over it prints the "not shown" line). */
+static int warn_take(warn_sink *ws, const char *w)
+{
+    for (size_t k = 0; k < ws->nshown; k++)
+        if (!strncmp(ws->shown[k], w, WARN_TEXT - 1))
+            return 0;
+    if (ws->nshown == WARN_SHOWN) {
+        if (ws->nmore++ == 0)
+            cli_warning(CMD, "further warnings not shown (each pair's " SINEW_RUN_STATS_FILE
+                             " and the report list them)");
+        return 0;
+    }
+    snprintf(ws->shown[ws->nshown++], WARN_TEXT, "%s", w);
+    return 1;
+}
 
 typedef struct {
     prog_mode mode;
@@ -116,21 +144,14 @@ typedef struct {
     size_t last_len;
     sinew_ctx *ctx;
     const sinew_run_spec *spec;
-    char shown[WARN_SHOWN][WARN_TEXT];
-    size_t nshown, nmore;
+    warn_sink *warn;
 } progress_state;
 
-static void on_warning(void *ud, const char *w)
+static void on_pair_warning(void *ud, const char *w)
 {
     progress_state *ps = ud;
-    for (size_t k = 0; k < ps->nshown; k++)
-        if (!strncmp(ps->shown[k], w, WARN_TEXT - 1))
-            return;
-    if (ps->nshown == WARN_SHOWN) {
-        ps->nmore++;
+    if (!warn_take(ps->warn, w))
         return;
-    }
-    snprintf(ps->shown[ps->nshown++], WARN_TEXT, "%s", w);
     if (ps->live) { /* keep the progress line whole */
         printf("\n");
         fflush(stdout);
@@ -178,7 +199,7 @@ static void on_progress(void *ud, const sinew_run_progress *p)
     progress_state *ps = ud;
     if (p->status == SINEW_PAIR_COMPUTED)
         (void)sinew_run_pair_warnings_read(ps->ctx, ps->spec->outdir, ps->spec->pairs[p->index],
-                                           on_warning, ps);
+                                           on_pair_warning, ps);
     double el = now_s() - ps->t0;
     /* rate and ETA from computed pairs only: skipped pairs cost almost nothing */
     double rate = el > 0 ? (double)p->computed / el : 0;
@@ -223,7 +244,7 @@ static void on_progress(void *ud, const sinew_run_progress *p)
 
 typedef struct {
     const char *input, *outdir, *flow_from, *schedule;
-    int resume, dry, report, merge, shard_k, shard_n, force_options;
+    int resume, dry, report, merge, shard_k, shard_n, force_options, drop_unmatched;
     /* SINEW_RUN_OPT_* bits of the options given on the command line; once options.json
      * is applied, also every stored one (the sequence's settings must not override them;
      * the first four bits are SINEW_RUN_KEEP_*) */
@@ -253,7 +274,8 @@ enum {
     O_DSCALE,
     O_MSTRIDE,
     O_FORCE,
-    O_JOBS
+    O_JOBS,
+    O_DROP
 };
 
 static int parse_shard(const char *arg, run_args *a)
@@ -301,6 +323,9 @@ static int parse_option(int c, const char *arg, run_args *a)
         break;
     case O_FORCE:
         a->force_options = 1;
+        break;
+    case O_DROP:
+        a->drop_unmatched = 1;
         break;
     case O_PRESET:
         a->pp.preset = arg;
@@ -386,6 +411,7 @@ static int parse_args(int argc, char **argv, run_args *a)
                                          {"depth-scale", required_argument, NULL, O_DSCALE},
                                          {"match-stride", required_argument, NULL, O_MSTRIDE},
                                          {"force-options", no_argument, NULL, O_FORCE},
+                                         {"drop-unmatched", no_argument, NULL, O_DROP},
                                          {"help", no_argument, NULL, 'h'},
                                          {NULL, 0, NULL, 0}};
     memset(a, 0, sizeof *a);
@@ -432,6 +458,7 @@ typedef struct {
     char options[512];
     const char *outputs[SINEW_RUN_PIPELINE_MAX_OUTPUTS]; /* what each pair folder holds */
     sinew_run_spec spec;
+    warn_sink warn;
 } run_plan;
 
 /* The options of a run as sinew_run_options: from the command line (before planning)
@@ -516,8 +543,13 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
     snprintf(seqpath, sizeof seqpath, "%s/sequence.json", a->input);
     int is_dir = S_ISDIR(st.st_mode), rc;
     if (is_dir && stat(seqpath, &st) != 0) {
-        if ((rc = sinew_run_source_from_folder(ctx, a->input, a->max_dt, &p->src)))
+        if ((rc = sinew_run_source_from_folder(
+                 ctx, a->input, a->max_dt, a->drop_unmatched ? SINEW_RUN_SOURCE_DROP_UNMATCHED : 0,
+                 &p->src)))
             return cli_status(CMD, ctx, rc);
+        for (size_t k = 0; k < p->src.nwarnings; k++)
+            if (warn_take(&p->warn, p->src.warnings[k]))
+                cli_warning(CMD, "%s", p->src.warnings[k]);
         return CLI_OK;
     }
     const char *sp = is_dir ? seqpath : a->input;
@@ -906,7 +938,8 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
                          .live = a->progress == PROG_AUTO && isatty(STDOUT_FILENO),
                          .t0 = now_s(),
                          .ctx = ctx,
-                         .spec = &p->spec};
+                         .spec = &p->spec,
+                         .warn = &p->warn};
     sinew_run_result res;
     rc = sinew_run_execute_jobs(run, js.n, js.ctx, sinew_run_pipeline_pair, (void *const *)js.pl,
                                 on_progress, &ps, &res);
@@ -915,11 +948,6 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
     snprintf(first, sizeof first, "%s", sinew_ctx_message(ctx));
     if (ps.live)
         printf("\n");
-    if (ps.nmore)
-        cli_warning(CMD,
-                    "%zu more pair warnings not shown (each pair's " SINEW_RUN_STATS_FILE
-                    " and the report list them)",
-                    ps.nmore);
     int whole = a->shard_n == 1, mrc = SINEW_OK;
     size_t nd = 0, nf = 0, np = 0;
     /* the manifest is written even after a stop request (a second one ends it at once) */

@@ -2,7 +2,9 @@
 # SPDX-License-Identifier: MIT
 # End-to-end tests of what `sinew run` tells the user about its inputs (issue 17): warnings
 # on stderr as they arise (implausible depth scale, off-centre or missing intrinsics, few
-# kept pixels), each also in the pair's stats.json; the same intrinsics warning in `lift`.
+# kept pixels), each also in the pair's stats.json; the same intrinsics warning in `lift`;
+# folder frames matched by file stem, with every gap, duplicate or unmatched file named,
+# and the source files and times recorded in each pair's stats.json.
 # Inputs are the bundled generator's invented scene (`sinew synth`).
 . "$(dirname "$0")/lib.sh"
 
@@ -70,14 +72,14 @@ else
     fail "depth scale: one warning per frame" "$(head -c 600 "$T/err")"
 fi
 
-# at most 8 warnings are shown; the rest are counted in one closing line
+# at most 8 warnings are shown, then one line says that more are not
 if "$B" synth -o "$T/long" --frames 14 --size 96x72 >/dev/null 2>&1 &&
     "$B" run "$T/long/sequence.json" -o "$T/r4" $OPT --depth-scale 10 >"$T/out" 2>"$T/err" &&
     [ "$(grep -c 'median depth' "$T/err")" -eq 8 ] && [ "$(wc -l <"$T/err")" -eq 9 ] &&
-    tail -1 "$T/err" | grep -q "more pair warnings not shown"; then
-    pass "warnings capped at 8 plus a count"
+    tail -1 "$T/err" | grep -q "further warnings not shown"; then
+    pass "warnings capped at 8 plus one line"
 else
-    fail "warnings capped at 8 plus a count" "$(tail -3 "$T/err")"
+    fail "warnings capped at 8 plus one line" "$(tail -3 "$T/err")"
 fi
 
 # --progress json: stdout stays pure JSON, warnings go to stderr
@@ -90,4 +92,60 @@ for line in open('$T/out'):
     pass "json progress: warnings on stderr only"
 else
     fail "json progress: warnings on stderr only" "$(head -c 300 "$T/out")"
+fi
+
+# ---- folder input: frames matched by file stem (issue 17 item 5)
+"$B" synth -o "$T/s5" --frames 5 --size 96x72 >/dev/null 2>&1
+mkdir -p "$T/gap"
+cp -r "$T/s5/color" "$T/s5/depth" "$T/gap/"
+cp "$T/s5/sequence.json" "$T/gap/ignored.json"
+rm "$T/gap/depth/000003.png"
+expect_error "colour frame without depth: one line naming it" "$T/r6" \
+    "no depth map for .*color/000003.png .*--drop-unmatched" "$B" run "$T/gap" -o "$T/r6" $OPT
+"$B" run "$T/gap" -o "$T/r7" $OPT --drop-unmatched >"$T/out" 2>"$T/err"
+rc=$?
+if [ $rc -eq 0 ] && grep -q "warning: .*no depth map for .*color/000003.png: frame left out" "$T/err" \
+    && grep -q "warning: .*frame numbers jump from 2 to 4" "$T/err" \
+    && [ "$(ls "$T/r7/pairs" | tr '\n' ' ')" = "000000-000001 000001-000002 000002-000003 " ] \
+    && grep -q '"color":\["[^"]*color/000002.png","[^"]*color/000004.png"\]' "$T/r7/pairs/000002-000003/stats.json" \
+    && grep -q '"depth":\["[^"]*depth/000002.png","[^"]*depth/000004.png"\]' "$T/r7/pairs/000002-000003/stats.json"; then
+    pass "--drop-unmatched: frame left out, gap named, sources recorded"
+else
+    fail "--drop-unmatched: frame left out, gap named, sources recorded" "rc $rc: $(head -c 500 "$T/err")"
+fi
+# depth is matched by name, not position: an extra depth map sorting first changes nothing
+mkdir -p "$T/extra"
+cp -r "$T/s5/color" "$T/s5/depth" "$T/extra/"
+cp "$T/s5/depth/000000.png" "$T/extra/depth/0000.png"
+"$B" run "$T/extra" -o "$T/r8" $OPT >"$T/out" 2>"$T/err"
+rc=$?
+mkdir -p "$T/plain" && cp -r "$T/s5/color" "$T/s5/depth" "$T/plain/"
+"$B" run "$T/plain" -o "$T/r9" $OPT >/dev/null 2>&1
+if [ $rc -eq 0 ] && grep -q "warning: .*no colour frame for .*depth/0000.png: not used" "$T/err" \
+    && cmp -s "$T/r8/pairs/000003-000004/matches.npy" "$T/r9/pairs/000003-000004/matches.npy"; then
+    pass "depth matched by stem: extra file named, results unchanged"
+else
+    fail "depth matched by stem: extra file named, results unchanged" "rc $rc: $(head -c 300 "$T/err")"
+fi
+# two files with one stem: refused, naming both
+printf 'P5\n96 72\n255\n' >"$T/extra/depth/000001.pgm"
+expect_error "two depth files with one stem: refused naming both" "$T/r10" \
+    "000001.pgm and 000001.png are the same frame" "$B" run "$T/extra" -o "$T/r10" $OPT
+
+# timestamped lists: a colour stamp with no depth stamp within --max-dt is named, and
+# the pair's stats carry both frames' times
+mkdir -p "$T/tum/rgb" "$T/tum/depth"
+for f in 0 1 2 3; do
+    cp "$T/s5/color/00000$f.png" "$T/tum/rgb/$f.png"
+    cp "$T/s5/depth/00000$f.png" "$T/tum/depth/$f.png"
+done
+printf '# colour\n1.000 rgb/0.png\n1.033 rgb/1.png\n1.067 rgb/2.png\n1.100 rgb/3.png\n' >"$T/tum/rgb.txt"
+printf '# depth\n1.001 depth/0.png\n1.034 depth/1.png\n1.150 depth/2.png\n1.101 depth/3.png\n' >"$T/tum/depth.txt"
+"$B" run "$T/tum" -o "$T/r11" $OPT >"$T/out" 2>"$T/err"
+rc=$?
+if [ $rc -eq 0 ] && grep -q "warning: .*rgb.txt: colour frame rgb/2.png (t = 1.067000 s) has no depth stamp within 0.02 s: left out" "$T/err" \
+    && grep -q '"timestamps":\[1.033,1.1\]' "$T/r11/pairs/000001-000002/stats.json"; then
+    pass "lists: dropped colour stamp named, times in stats"
+else
+    fail "lists: dropped colour stamp named, times in stats" "rc $rc: $(head -c 300 "$T/err")"
 fi

@@ -301,6 +301,36 @@ static void test_run_stamp_list_read(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* DIR/color/ and DIR/depth/ with one-byte files of the given names. */
+static void layout_make(const char *dir, const char *const *color, const char *const *depth, int n)
+{
+    char p[700];
+    snprintf(p, sizeof p, "%s/color", dir);
+    mkdir(p, 0777);
+    snprintf(p, sizeof p, "%s/depth", dir);
+    mkdir(p, 0777);
+    for (int k = 0; k < n; k++) {
+        snprintf(p, sizeof p, "%s/color/%s", dir, color[k]);
+        tu_write_bytes(p, "x", 1);
+        snprintf(p, sizeof p, "%s/depth/%s", dir, depth[k]);
+        tu_write_bytes(p, "x", 1);
+    }
+}
+
+/* DIR reads as 3 frames, frame f's depth path contains `depth`, and there is exactly one
+ * warning, containing `warning`. */
+static void expect_one_warning(sinew_ctx *ctx, const char *dir, size_t f, const char *depth,
+                               const char *warning)
+{
+    sinew_run_source src;
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_OK);
+    assert_int_equal(src.nframes, 3);
+    assert_non_null(strstr(src.frames[f].depth, depth));
+    assert_int_equal(src.nwarnings, 1);
+    assert_non_null(strstr(src.warnings[0], warning));
+    sinew_run_source_free(ctx, &src);
+}
+
 static void test_run_source_folder_layouts(void **state)
 {
     (void)state;
@@ -308,33 +338,71 @@ static void test_run_source_folder_layouts(void **state)
     char *dir = tu_tmpdir();
     char p[700];
     sinew_run_source src;
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_ECONFIG);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_ECONFIG);
     assert_non_null(strstr(sinew_ctx_message(ctx), "color/"));
-    /* plain layout: color/ sorted by name, depth/ matched by position */
-    snprintf(p, sizeof p, "%s/color", dir);
-    mkdir(p, 0777);
-    snprintf(p, sizeof p, "%s/depth", dir);
-    mkdir(p, 0777);
+    /* plain layout: color/ sorted by name, depth/ matched by stem */
     const char *names[] = {"b.png", "a.png", "c.PNG"};
-    for (int k = 0; k < 3; k++) {
-        snprintf(p, sizeof p, "%s/color/%s", dir, names[k]);
-        tu_write_bytes(p, "x", 1);
-        snprintf(p, sizeof p, "%s/depth/%s", dir, names[k]);
-        tu_write_bytes(p, "x", 1);
-    }
+    layout_make(dir, names, names, 3);
     snprintf(p, sizeof p, "%s/color/notes.txt", dir);
     tu_write_bytes(p, "x", 1);
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_OK);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_OK);
     assert_int_equal(src.nframes, 3);
     assert_non_null(strstr(src.frames[0].color, "color/a.png"));
     assert_non_null(strstr(src.frames[2].depth, "depth/c.PNG"));
     assert_null(src.frames[0].labels);
     assert_null(src.intrinsics);
     sinew_run_source_free(ctx, &src);
-    snprintf(p, sizeof p, "%s/depth/d.png", dir);
+    /* matched by stem, not by position: an extra depth map is named in a warning */
+    snprintf(p, sizeof p, "%s/depth/0.png", dir);
     tu_write_bytes(p, "x", 1);
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_ECONFIG);
-    assert_non_null(strstr(sinew_ctx_message(ctx), "4 images but color/ has 3"));
+    expect_one_warning(ctx, dir, 0, "depth/a.png", "depth/0.png: not used");
+    /* a colour image without a depth map fails, naming it; the flag leaves it out */
+    snprintf(p, sizeof p, "%s/color/b2.png", dir);
+    tu_write_bytes(p, "x", 1);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_ECONFIG);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "no depth map for "));
+    assert_non_null(strstr(sinew_ctx_message(ctx), "color/b2.png"));
+    assert_int_equal(
+        sinew_run_source_from_folder(ctx, dir, 0.02, SINEW_RUN_SOURCE_DROP_UNMATCHED, &src),
+        SINEW_OK);
+    assert_int_equal(src.nframes, 3);
+    assert_int_equal(src.dropped, 1);
+    assert_non_null(strstr(src.warnings[0], "color/b2.png: frame left out"));
+    assert_non_null(strstr(src.frames[2].color, "color/c.PNG"));
+    sinew_run_source_free(ctx, &src);
+    /* two files with one stem: nothing says which is the frame */
+    snprintf(p, sizeof p, "%s/depth/b2.png", dir);
+    tu_write_bytes(p, "x", 1);
+    snprintf(p, sizeof p, "%s/depth/b2.npy", dir);
+    tu_write_bytes(p, "x", 1);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_ECONFIG);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "b2.npy and b2.png are the same frame"));
+    tu_rmtree(dir);
+    free(dir);
+    /* numbered names: matched by the stem's number when the stems differ (one folder
+     * per role keeping the dataset's own names, frame-000007.color.png and
+     * frame-000007.depth.png); a jump in the numbers is a warning */
+    dir = tu_tmpdir();
+    const char *cn[] = {"frame-000006.color.png", "frame-000007.color.png",
+                        "frame-000009.color.png"};
+    const char *dn[] = {"frame-000006.depth.png", "frame-000007.depth.png",
+                        "frame-000009.depth.png"};
+    layout_make(dir, cn, dn, 3);
+    expect_one_warning(ctx, dir, 2, "depth/frame-000009.depth.png",
+                       "frame numbers jump from 7 to 9");
+    /* unpadded numbers sort 10 before 9: said, order kept (byte order of names) */
+    snprintf(p, sizeof p, "%s/color/frame-000010.color.png", dir);
+    tu_write_bytes(p, "x", 1);
+    snprintf(p, sizeof p, "%s/depth/frame-10.depth.png", dir);
+    tu_write_bytes(p, "x", 1);
+    snprintf(p, sizeof p, "%s/color/frame-8.color.png", dir);
+    tu_write_bytes(p, "x", 1);
+    snprintf(p, sizeof p, "%s/depth/frame-8.depth.png", dir);
+    tu_write_bytes(p, "x", 1);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_OK);
+    assert_int_equal(src.nframes, 5);
+    assert_non_null(strstr(src.warnings[src.nwarnings - 1], "has a smaller number"));
+    sinew_run_source_free(ctx, &src);
     /* timestamped lists take precedence; frames are the associated colour stamps */
     snprintf(p, sizeof p, "%s/rgb.txt", dir);
     const char *rgb = "# rgb\n2.033 rgb/2.png\n1.000 rgb/1.png\n3.000 rgb/3.png\n";
@@ -344,10 +412,14 @@ static void test_run_source_folder_layouts(void **state)
     tu_write_bytes(p, dep, strlen(dep));
     snprintf(p, sizeof p, "%s/intrinsics.json", dir);
     tu_write_bytes(p, "{}", 2);
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, &src), SINEW_OK);
+    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_OK);
     assert_int_equal(src.nframes, 2);
     assert_int_equal(src.dropped, 1); /* 3.000 vs 2.900: 100 ms */
+    assert_int_equal(src.nwarnings, 1);
+    assert_non_null(strstr(src.warnings[0], "rgb/3.png (t = 3.000000 s) has no depth stamp"));
     assert_non_null(strstr(src.frames[0].color, "rgb/1.png"));
+    assert_int_equal(src.frames[1].has_timestamp, 1);
+    assert_true(src.frames[1].timestamp == 2.033);
     assert_non_null(strstr(src.frames[1].depth, "depth/2.png"));
     assert_non_null(src.intrinsics);
     sinew_run_source_free(ctx, &src);

@@ -4,6 +4,7 @@
 #include "tools/cli.h"
 
 #include <errno.h>
+#include <getopt.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -124,8 +125,97 @@ int cli_usage_error(const char *cmd, const char *fmt, ...)
     va_start(ap, fmt);
     vsnprintf(buf, sizeof buf, fmt, ap);
     va_end(ap);
-    cli_error(cmd, "%s (see 'sinew %s --help')", buf, cmd ? cmd : "");
+    if (cmd && *cmd)
+        cli_error(cmd, "%s (see 'sinew %s --help')", buf, cmd);
+    else
+        cli_error(cmd, "%s (see 'sinew --help')", buf);
     return CLI_USAGE;
+}
+
+/* Optimal-string-alignment distance: insertions, deletions, substitutions and swaps of
+ * two neighbouring characters cost 1 each (Damerau 1964), so "flwo" is 1 from "flow". */
+static size_t edit_distance(const char *a, const char *b)
+{
+    size_t na = strlen(a), nb = strlen(b);
+    if (na > 64 || nb > 64)
+        return (size_t)-1;
+    size_t d[65][65];
+    for (size_t i = 0; i <= na; i++)
+        d[i][0] = i;
+    for (size_t j = 0; j <= nb; j++)
+        d[0][j] = j;
+    for (size_t i = 1; i <= na; i++)
+        for (size_t j = 1; j <= nb; j++) {
+            size_t best = d[i - 1][j - 1] + (a[i - 1] != b[j - 1]);
+            if (d[i - 1][j] + 1 < best)
+                best = d[i - 1][j] + 1;
+            if (d[i][j - 1] + 1 < best)
+                best = d[i][j - 1] + 1;
+            if (i > 1 && j > 1 && a[i - 1] == b[j - 2] && a[i - 2] == b[j - 1] &&
+                d[i - 2][j - 2] + 1 < best)
+                best = d[i - 2][j - 2] + 1;
+            d[i][j] = best;
+        }
+    return d[na][nb];
+}
+
+const char *cli_closest(const char *word, const char *const *names)
+{
+    const char *best = NULL;
+    size_t bd = (size_t)-1, len = strlen(word);
+    for (size_t k = 0; names && names[k]; k++) {
+        size_t d = edit_distance(word, names[k]);
+        if (d < bd) {
+            bd = d;
+            best = names[k];
+        }
+    }
+    return best && bd <= 2 && 2 * bd < len ? best : NULL;
+}
+
+int cli_bad_option(const char *cmd, const struct option *opts, const char *arg)
+{
+    const char *names[128];
+    size_t n = 0;
+    for (size_t k = 0; opts[k].name && n + 1 < sizeof names / sizeof names[0]; k++)
+        names[n++] = opts[k].name;
+    names[n] = NULL;
+    if (!arg)
+        return cli_usage_error(cmd, "bad option");
+    if (!strncmp(arg, "--", 2)) {
+        char word[128];
+        snprintf(word, sizeof word, "%s", arg + 2);
+        char *eq = strchr(word, '=');
+        if (eq)
+            *eq = 0;
+        size_t nprefix = 0, len = strlen(word);
+        char which[256] = "";
+        for (size_t k = 0; opts[k].name; k++) {
+            if (!strcmp(word, opts[k].name))
+                return cli_usage_error(cmd,
+                                       opts[k].has_arg == required_argument
+                                           ? "option '--%s' needs a value"
+                                           : "option '--%s' takes no value",
+                                       word);
+            if (len && !strncmp(word, opts[k].name, len) && nprefix++ < 3) {
+                size_t w = strlen(which);
+                snprintf(which + w, sizeof which - w, "%s--%s", w ? ", " : "", opts[k].name);
+            }
+        }
+        if (nprefix > 1)
+            return cli_usage_error(cmd, "option '--%s' is ambiguous (%s%s)", word, which,
+                                   nprefix > 3 ? ", ..." : "");
+        const char *c = cli_closest(word, names);
+        if (c)
+            return cli_usage_error(cmd, "unknown option '--%s' (did you mean --%s?)", word, c);
+        return cli_usage_error(cmd, "unknown option '--%s'", word);
+    }
+    if (arg[0] == '-' && arg[1] && optopt)
+        for (size_t k = 0; opts[k].name; k++)
+            if (opts[k].val == optopt && opts[k].has_arg == required_argument)
+                return cli_usage_error(cmd, "option '-%c' (--%s) needs a value", optopt,
+                                       opts[k].name);
+    return cli_usage_error(cmd, "unknown option '%s'", arg);
 }
 
 int cli_status(const char *cmd, sinew_ctx *ctx, int status)

@@ -33,6 +33,17 @@ int cli_status(const char *cmd, sinew_ctx *ctx, int status);
 const char *cli_term_text(const char *s, char *buf, size_t n);
 void cli_json_string(FILE *f, const char *s);
 
+/* The closest of names (a NULL-terminated list) to `word` by edit distance (insertions,
+ * deletions, substitutions and neighbour swaps cost 1), when it is close enough to be a
+ * typo: distance <= 2 and under half the word's length; NULL otherwise. */
+const char *cli_closest(const char *word, const char *const *names);
+/* A getopt_long '?' (opterr = 0) as one usage line: a known option missing its value
+ * ("option '--preset' needs a value") or an unknown one with the closest long option
+ * ("unknown option '--presett' (did you mean --preset?)"). arg is argv[optind - 1];
+ * opts the command's table. Returns CLI_USAGE. */
+struct option;
+int cli_bad_option(const char *cmd, const struct option *opts, const char *arg);
+
 /* Strict parsers: the whole string must be a number in range; 0 on success. */
 int cli_parse_int(const char *s, long min, long max, long *out);
 int cli_parse_double(const char *s, double *out);

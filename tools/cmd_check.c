@@ -53,7 +53,7 @@ static void usage(FILE *out)
             "                            (default 0.01, 0.125)\n"
             "  --photo-threshold T       residual limit, intensity in [0,1] (default 0.1)\n"
             "  --saturation-level S      clipped if all channels >= S of full scale (0.98)\n"
-            "  --threads N               worker threads (0 = all cores, default)\n"
+            "  -t, --threads N           worker threads (0 = all cores, default)\n"
             "  -h, --help                this help\n"
             "\n"
             "examples:\n"
@@ -77,8 +77,7 @@ enum {
     OPT_MB_ALPHA,
     OPT_MB_BETA,
     OPT_PHOTO,
-    OPT_SAT,
-    OPT_THREADS
+    OPT_SAT
 };
 
 /* Read a flow field, naming the file in any error. */
@@ -122,7 +121,7 @@ int cmd_check(int argc, char **argv)
         {"boundary-beta", required_argument, NULL, OPT_MB_BETA},
         {"photo-threshold", required_argument, NULL, OPT_PHOTO},
         {"saturation-level", required_argument, NULL, OPT_SAT},
-        {"threads", required_argument, NULL, OPT_THREADS},
+        {"threads", required_argument, NULL, 't'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -133,7 +132,7 @@ int cmd_check(int argc, char **argv)
     int c, bad;
     optind = 0;
     opterr = 0;
-    while ((c = getopt_long(argc, argv, ":ho:", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":ho:t:", opts, NULL)) != -1) {
         bad = 0;
         switch (c) {
         case 'h':
@@ -184,14 +183,12 @@ int cmd_check(int argc, char **argv)
         case OPT_SAT:
             bad = parse_param("--saturation-level", optarg, &p.saturation_level);
             break;
-        case OPT_THREADS:
+        case 't':
             if (cli_parse_int(optarg, 0, 4096, &threads))
                 return cli_usage_error(CMD, "--threads needs an integer 0..4096, got '%s'", optarg);
             break;
-        case ':':
-            return cli_usage_error(CMD, "option %s needs a value", argv[optind - 1]);
         default:
-            return cli_usage_error(CMD, "unknown option '%s'", argv[optind - 1]);
+            return cli_bad_option(CMD, opts, argv[optind - 1]);
         }
         if (bad)
             return bad;

@@ -55,7 +55,7 @@ int cmd_convert(int argc, char **argv)
             usage(stdout);
             return CLI_OK;
         default:
-            return cli_usage_error("convert", "unknown option '%s'", argv[optind - 1]);
+            return cli_bad_option("convert", opts, argv[optind - 1]);
         }
     }
     if (argc - optind != 2)

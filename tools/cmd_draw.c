@@ -57,7 +57,7 @@ static const char *const opt_names[] = {"--flow",  "--truth", "--frame",   "--fr
 
 static void usage(void)
 {
-    printf("usage: sinew draw KIND [OPTIONS] --out PICTURE.png\n"
+    printf("usage: sinew draw KIND [OPTIONS] -o PICTURE.png\n"
            "\n"
            "Write one PNG picture (8-bit RGB). Kinds:\n");
     for (size_t i = 0; i < sizeof kinds / sizeof kinds[0]; i++)
@@ -80,7 +80,8 @@ static void usage(void)
         "                   default: TABLE with .json for .npy, then TABLE.json\n"
         "\n"
         "drawing:\n"
-        "  --out, -o FILE   output PNG (written atomically)\n"
+        "  -o, --output FILE\n"
+        "                   output PNG (written atomically)\n"
         "  --max VALUE      value at the top of the scale (pixels): wheel radius for flow,\n"
         "                   colour-bar end for fb-error/epe; default: the input's maximum.\n"
         "                   Give the same value for every frame of a sequence to compare.\n"
@@ -89,7 +90,7 @@ static void usage(void)
         "  --count N        matches drawn, evenly spaced over the table (default 300)\n"
         "  --size PX        wheel size (default 256)\n"
         "  --no-legend      picture only, no legend strip below\n"
-        "  --threads N      worker threads (0 = all cores, default)\n"
+        "  -t, --threads N  worker threads (0 = all cores, default)\n"
         "\n"
         "examples:\n"
         "  sinew draw flow --flow pair/forward.flo --max 20 -o forward.png\n"
@@ -235,8 +236,7 @@ int cmd_draw(int argc, char **argv)
         OPT_SCALE,
         OPT_COUNT,
         OPT_SIZE,
-        OPT_NOLEGEND,
-        OPT_THREADS
+        OPT_NOLEGEND
     };
     static const struct option longopts[] = {
         {"flow", required_argument, NULL, OPT_FLOW},
@@ -253,8 +253,8 @@ int cmd_draw(int argc, char **argv)
         {"count", required_argument, NULL, OPT_COUNT},
         {"size", required_argument, NULL, OPT_SIZE},
         {"no-legend", no_argument, NULL, OPT_NOLEGEND},
-        {"threads", required_argument, NULL, OPT_THREADS},
-        {"out", required_argument, NULL, 'o'},
+        {"threads", required_argument, NULL, 't'},
+        {"output", required_argument, NULL, 'o'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -267,7 +267,7 @@ int cmd_draw(int argc, char **argv)
     optind = 1;
     opterr = 0;
     int c;
-    while ((c = getopt_long(argc, argv, "o:h", longopts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, "o:ht:", longopts, NULL)) != -1) {
         const char *arg = optarg;
         switch (c) {
         case 'h':
@@ -328,12 +328,12 @@ int cmd_draw(int argc, char **argv)
         case OPT_NOLEGEND:
             o.legend = 0, o.given |= O_LEGEND;
             break;
-        case OPT_THREADS:
+        case 't':
             if (cli_parse_int(arg, 0, 1024, &o.threads))
                 return cli_usage_error(CMD, "--threads wants an integer 0..1024, got '%s'", arg);
             break;
         default:
-            return cli_usage_error(CMD, "unknown or incomplete option '%s'", argv[optind - 1]);
+            return cli_bad_option(CMD, longopts, argv[optind - 1]);
         }
     }
     if (optind >= argc)
@@ -355,7 +355,7 @@ int cmd_draw(int argc, char **argv)
             return cli_usage_error(CMD, "%s does not apply to '%s'", opt_names[b], name);
     }
     if (!o.out)
-        return cli_usage_error(CMD, "missing --out PICTURE.png");
+        return cli_usage_error(CMD, "missing -o PICTURE.png");
     sinew_ctx *ctx = cli_ctx(CMD, (int)o.threads);
     if (!ctx)
         return CLI_FAIL;

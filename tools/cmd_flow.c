@@ -246,8 +246,7 @@ int cmd_flow(int argc, char **argv)
             break;
         case '?':
         case ':':
-            return cli_usage_error("flow", "unknown option or missing value '%s'",
-                                   argv[optind - 1]);
+            return cli_bad_option("flow", opts, argv[optind - 1]);
         default:
             if (nadv == (int)(sizeof adv / sizeof adv[0]))
                 return cli_usage_error("flow", "too many options");

@@ -77,7 +77,7 @@ static void usage(int lift)
            "  -o, --output M.npy     N x C float32 table; sidecar M.json names the columns\n"
            "%s"
            "  --csv FILE             the same table as CSV with a header line\n"
-           "  --threads N            worker threads (default: all cores)\n"
+           "  -t, --threads N        worker threads (default: all cores)\n"
            "  -h, --help             this help\n"
            "\n"
            "examples:\n",
@@ -124,8 +124,7 @@ enum {
     OPT_MIN_WEIGHT,
     OPT_PLY,
     OPT_PLY_ASCII,
-    OPT_CSV,
-    OPT_THREADS
+    OPT_CSV
 };
 
 typedef struct opts {
@@ -174,7 +173,7 @@ static int parse_args(const char *cmd, int lift, int argc, char **argv, opts *o)
         {"ply", required_argument, 0, OPT_PLY},
         {"ply-ascii", no_argument, 0, OPT_PLY_ASCII},
         {"csv", required_argument, 0, OPT_CSV},
-        {"threads", required_argument, 0, OPT_THREADS},
+        {"threads", required_argument, 0, 't'},
         {"output", required_argument, 0, 'o'},
         {"help", no_argument, 0, 'h'},
         {0, 0, 0, 0},
@@ -186,7 +185,7 @@ static int parse_args(const char *cmd, int lift, int argc, char **argv, opts *o)
     opterr = 0;
     int c;
     long l;
-    while ((c = getopt_long(argc, argv, ":ho:", common, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":ho:t:", common, NULL)) != -1) {
         int rc = CLI_OK;
         if (!lift && c >= OPT_DEPTH0 && c <= OPT_NORMALS)
             return cli_usage_error(cmd, "%s is a 'sinew lift' option", argv[optind - 1]);
@@ -295,15 +294,13 @@ static int parse_args(const char *cmd, int lift, int argc, char **argv, opts *o)
         case OPT_CSV:
             o->csv = optarg;
             break;
-        case OPT_THREADS:
+        case 't':
             if (cli_parse_int(optarg, 0, 4096, &l))
                 return cli_usage_error(cmd, "--threads must be 0..4096");
             o->threads = (int)l;
             break;
-        case ':':
-            return cli_usage_error(cmd, "%s needs a value", argv[optind - 1]);
         default:
-            return cli_usage_error(cmd, "unknown option '%s'", argv[optind - 1]);
+            return cli_bad_option(cmd, common, argv[optind - 1]);
         }
         if (rc)
             return rc;

@@ -23,14 +23,14 @@ static void usage(void)
            "RUNDIR/pairs/NAME/ (see docs/formats.md, \"Report input\").\n"
            "\n"
            "options:\n"
-           "  --out, -o FILE     page to write (default RUNDIR/report.html)\n"
+           "  -o, --output FILE  page to write (default RUNDIR/report.html)\n"
            "  --pictures N       pairs shown with pictures, evenly spaced (default 40; 0 = none)\n"
            "  --thumb-width PX   thumbnail width, 32..1024 (default 240)\n"
            "  --max PX           wheel radius of the flow thumbnails (default: the run's\n"
            "                     largest flow_max stat, else the largest magnitude over\n"
            "                     the pictured pairs)\n"
            "  --title TEXT       page title (default \"sinew run report\")\n"
-           "  --threads N        worker threads (0 = all cores, default)\n"
+           "  -t, --threads N    worker threads (0 = all cores, default)\n"
            "\n"
            "examples:\n"
            "  sinew report out/run1\n"
@@ -41,14 +41,14 @@ static void usage(void)
 
 int cmd_report(int argc, char **argv)
 {
-    enum { OPT_PICTURES = 256, OPT_THUMB, OPT_MAX, OPT_TITLE, OPT_THREADS };
+    enum { OPT_PICTURES = 256, OPT_THUMB, OPT_MAX, OPT_TITLE };
     static const struct option longopts[] = {
-        {"out", required_argument, NULL, 'o'},
+        {"output", required_argument, NULL, 'o'},
         {"pictures", required_argument, NULL, OPT_PICTURES},
         {"thumb-width", required_argument, NULL, OPT_THUMB},
         {"max", required_argument, NULL, OPT_MAX},
         {"title", required_argument, NULL, OPT_TITLE},
-        {"threads", required_argument, NULL, OPT_THREADS},
+        {"threads", required_argument, NULL, 't'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -59,7 +59,7 @@ int cmd_report(int argc, char **argv)
     optind = 1;
     opterr = 0;
     int c;
-    while ((c = getopt_long(argc, argv, "o:h", longopts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, "o:ht:", longopts, NULL)) != -1) {
         switch (c) {
         case 'h':
             usage();
@@ -86,12 +86,12 @@ int cmd_report(int argc, char **argv)
         case OPT_TITLE:
             o.title = optarg;
             break;
-        case OPT_THREADS:
+        case 't':
             if (cli_parse_int(optarg, 0, 1024, &threads))
                 return cli_usage_error(CMD, "--threads wants an integer 0..1024, got '%s'", optarg);
             break;
         default:
-            return cli_usage_error(CMD, "unknown or incomplete option '%s'", argv[optind - 1]);
+            return cli_bad_option(CMD, longopts, argv[optind - 1]);
         }
     }
     if (optind >= argc)

@@ -76,7 +76,7 @@ static void usage(FILE *out)
         "                         JSON lines\n"
         "  --report               print a per-pair summary table at the end and write\n"
         "                         OUTDIR/report.html (sinew report)\n"
-        "  --threads N            threads in all (0 = all cores); outputs identical\n"
+        "  -t, --threads N        threads in all (0 = all cores); outputs identical\n"
         "  --jobs N               pairs at once, the threads split between them (0 =\n"
         "                         automatic: one per thread while memory allows);\n"
         "                         outputs identical for every N\n"
@@ -265,7 +265,6 @@ enum {
     O_PROGRESS,
     O_FMT,
     O_FROM,
-    O_THREADS,
     O_REPORT,
     O_SCHED,
     O_PRESET,
@@ -357,7 +356,7 @@ static int parse_option(int c, const char *arg, run_args *a)
             return cli_usage_error(
                 CMD, "--flow-format: expected flo, npy, npy16, pfm or png, got '%s'", arg);
         break;
-    case O_THREADS:
+    case 't':
         if (cli_parse_int(arg, 0, 4096, &a->threads))
             return cli_usage_error(CMD, "--threads: expected 0..4096, got '%s'", arg);
         break;
@@ -401,7 +400,7 @@ static int parse_args(int argc, char **argv, run_args *a)
                                          {"progress", required_argument, NULL, O_PROGRESS},
                                          {"flow-format", required_argument, NULL, O_FMT},
                                          {"flow-from", required_argument, NULL, O_FROM},
-                                         {"threads", required_argument, NULL, O_THREADS},
+                                         {"threads", required_argument, NULL, 't'},
                                          {"jobs", required_argument, NULL, O_JOBS},
                                          {"report", no_argument, NULL, O_REPORT},
                                          {"schedule", required_argument, NULL, O_SCHED},
@@ -423,15 +422,13 @@ static int parse_args(int argc, char **argv, run_args *a)
     optind = 1;
     opterr = 0;
     int c, r;
-    while ((c = getopt_long(argc, argv, ":o:h", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":o:ht:", opts, NULL)) != -1) {
         if (c == 'h') {
             usage(stdout);
             return CLI_OK;
         }
-        if (c == ':')
-            return cli_usage_error(CMD, "option %s needs a value", argv[optind - 1]);
-        if (c == '?')
-            return cli_usage_error(CMD, "unknown option %s", argv[optind - 1]);
+        if (c == ':' || c == '?')
+            return cli_bad_option(CMD, opts, argv[optind - 1]);
         if ((r = parse_option(c, optarg, a)) != CLI_OK)
             return r;
     }

@@ -87,7 +87,7 @@ static void usage(FILE *out)
             "  --json             JSON on stdout instead (keys epe, aae_deg, r05_pct,\n"
             "                     r1_pct, r3_pct, r5_pct, fl_all_pct, n_valid, noc, occ)\n"
             "  --csv F            also write the table as CSV to F\n"
-            "  --threads N        worker threads (0 = all cores)\n"
+            "  -t, --threads N    worker threads (0 = all cores)\n"
             "\n"
             "Averaging is stated in every output: one pair is averaged over its scored\n"
             "pixels; a dataset gets one row per pair plus two summary rows,\n"
@@ -618,8 +618,7 @@ int cmd_score(int argc, char **argv)
         O_CONFS,
         O_PRESET,
         O_SAVE,
-        O_PASS,
-        O_THREADS
+        O_PASS
     };
     static const struct option opts[] = {
         {"occ", required_argument, NULL, O_OCC},
@@ -638,7 +637,7 @@ int cmd_score(int argc, char **argv)
         {"preset", required_argument, NULL, O_PRESET},
         {"save", required_argument, NULL, O_SAVE},
         {"pass", required_argument, NULL, O_PASS},
-        {"threads", required_argument, NULL, O_THREADS},
+        {"threads", required_argument, NULL, 't'},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -648,7 +647,7 @@ int cmd_score(int argc, char **argv)
     optind = 1;
     opterr = 0;
     int c;
-    while ((c = getopt_long(argc, argv, "h", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, "ht:", opts, NULL)) != -1) {
         switch (c) {
         case 'h':
             usage(stdout);
@@ -705,12 +704,12 @@ int cmd_score(int argc, char **argv)
                 return cli_usage_error(CMD, "--pass: expected clean or final, got '%s'", optarg);
             lo.pass = optarg;
             break;
-        case O_THREADS:
+        case 't':
             if (cli_parse_int(optarg, 0, 1024, &threads))
                 return cli_usage_error(CMD, "--threads: expected 0..1024, got '%s'", optarg);
             break;
         default:
-            return cli_usage_error(CMD, "unknown or incomplete option '%s'", argv[optind - 1]);
+            return cli_bad_option(CMD, opts, argv[optind - 1]);
         }
     }
     int npos = argc - optind;

@@ -56,7 +56,7 @@ static void usage(FILE *out)
             "                            divided by --truth-scale (default 256, KITTI; 0 =\n"
             "                            unknown); prints bad-1px, bad-2px, mean abs error, D1\n"
             "  --occ MASK                with --truth: skip pixels where MASK is nonzero\n"
-            "  --threads N               worker threads (0 = all cores, default)\n"
+            "  -t, --threads N           worker threads (0 = all cores, default)\n"
             "  -h, --help                this help\n"
             "\n"
             "examples:\n"
@@ -77,7 +77,6 @@ enum {
     OPT_P1,
     OPT_P2,
     OPT_LRTOL,
-    OPT_THREADS,
     OPT_NORECT,
     OPT_TRUTH,
     OPT_TRUTH_SCALE,
@@ -392,7 +391,7 @@ int cmd_stereo(int argc, char **argv)
         {"p1", required_argument, NULL, OPT_P1},
         {"p2", required_argument, NULL, OPT_P2},
         {"lr-tolerance", required_argument, NULL, OPT_LRTOL},
-        {"threads", required_argument, NULL, OPT_THREADS},
+        {"threads", required_argument, NULL, 't'},
         {"no-rectify-check", no_argument, NULL, OPT_NORECT},
         {"truth", required_argument, NULL, OPT_TRUTH},
         {"truth-scale", required_argument, NULL, OPT_TRUTH_SCALE},
@@ -407,7 +406,7 @@ int cmd_stereo(int argc, char **argv)
     double lrtol = -1;
     optind = 0;
     opterr = 0;
-    while ((c = getopt_long(argc, argv, ":ho:", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":ho:t:", opts, NULL)) != -1) {
         bad = 0;
         switch (c) {
         case 'h':
@@ -449,7 +448,7 @@ int cmd_stereo(int argc, char **argv)
             if (cli_parse_double(optarg, &lrtol) || !(lrtol >= 0) || !isfinite(lrtol))
                 return cli_usage_error(CMD, "--lr-tolerance needs a number >= 0, got '%s'", optarg);
             break;
-        case OPT_THREADS:
+        case 't':
             bad = parse_int("--threads", optarg, 0, 4096, &threads);
             break;
         case OPT_NORECT:
@@ -466,10 +465,8 @@ int cmd_stereo(int argc, char **argv)
         case OPT_OCC:
             j.occ = optarg;
             break;
-        case ':':
-            return cli_usage_error(CMD, "option %s needs a value", argv[optind - 1]);
         default:
-            return cli_usage_error(CMD, "unknown option '%s'", argv[optind - 1]);
+            return cli_bad_option(CMD, opts, argv[optind - 1]);
         }
         if (bad)
             return bad;

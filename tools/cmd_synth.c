@@ -39,7 +39,7 @@ static void usage(FILE *out)
             "                     swung across the view above it at constant speed, PX\n"
             "                     px/frame in the image where it crosses the pad centre\n"
             "                     (between the middle frames); 0 < PX <= 1000\n"
-            "  -j, --threads N    threads (default: all); output is identical for any count\n"
+            "  -t, --threads N    threads (default: all); output is identical for any count\n"
             "  -h, --help         show this help\n"
             "\n"
             "examples:\n"
@@ -68,7 +68,7 @@ int cmd_synth(int argc, char **argv)
     static const struct option opts[] = {
         {"output", required_argument, NULL, 'o'}, {"frames", required_argument, NULL, 'n'},
         {"size", required_argument, NULL, 's'},   {"seed", required_argument, NULL, 'S'},
-        {"noise", no_argument, NULL, 'N'},        {"threads", required_argument, NULL, 'j'},
+        {"noise", no_argument, NULL, 'N'},        {"threads", required_argument, NULL, 't'},
         {"help", no_argument, NULL, 'h'},         {"stereo", required_argument, NULL, 'B'},
         {"swing", required_argument, NULL, 'W'},  {NULL, 0, NULL, 0},
     };
@@ -80,7 +80,7 @@ int cmd_synth(int argc, char **argv)
     int c;
     opterr = 0;
     optind = 1;
-    while ((c = getopt_long(argc, argv, ":o:n:s:j:h", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":o:n:s:j:t:h", opts, NULL)) != -1) {
         switch (c) {
         case 'o':
             dir = optarg;
@@ -103,7 +103,8 @@ int cmd_synth(int argc, char **argv)
         case 'N':
             p.depth_noise = 1;
             break;
-        case 'j':
+        case 'j': /* the option's old short name */
+        case 't':
             if (cli_parse_int(optarg, 0, 4096, &threads))
                 return cli_usage_error(CMD, "--threads: '%s' is not an integer in 0..4096", optarg);
             break;
@@ -121,10 +122,8 @@ int cmd_synth(int argc, char **argv)
         case 'h':
             usage(stdout);
             return CLI_OK;
-        case ':':
-            return cli_usage_error(CMD, "option '%s' needs a value", argv[optind - 1]);
         default:
-            return cli_usage_error(CMD, "unknown option '%s'", argv[optind - 1]);
+            return cli_bad_option(CMD, opts, argv[optind - 1]);
         }
     }
     if (optind < argc)

@@ -103,5 +103,11 @@ int main(int argc, char **argv)
     for (size_t i = 0; commands[i].name; i++)
         if (!strcmp(name, commands[i].name))
             return commands[i].fn(argc - 1, argv + 1);
+    const char *names[sizeof commands / sizeof commands[0]];
+    for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
+        names[i] = commands[i].name;
+    const char *c = cli_closest(name, names);
+    if (c)
+        return cli_usage_error("", "unknown command '%s' (did you mean '%s'?)", name, c);
     return cli_usage_error("", "unknown command '%s'", name);
 }

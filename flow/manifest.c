@@ -204,7 +204,8 @@ int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *
         const sinew_run_frame *fr = &s->frames[f];
         if ((rc = add_entry(ctx, inputs, "color", fr->color)) ||
             (fr->depth && (rc = add_entry(ctx, inputs, "depth", fr->depth))) ||
-            (fr->labels && (rc = add_entry(ctx, inputs, "labels", fr->labels))))
+            (fr->labels && (rc = add_entry(ctx, inputs, "labels", fr->labels))) ||
+            (fr->ignore && (rc = add_entry(ctx, inputs, "ignore", fr->ignore))))
             goto done;
     }
     rc = build_pairs(run, verify, pairs, inputs, cnt);

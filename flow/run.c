@@ -33,8 +33,8 @@
 #include "flow/io.h"
 #include "flow/run.h"
 
-enum { ROLE_COLOR = 0, ROLE_DEPTH, ROLE_LABELS, NROLES };
-static const char *const role_name[NROLES] = {"color", "depth", "labels"};
+enum { ROLE_COLOR = 0, ROLE_DEPTH, ROLE_LABELS, ROLE_IGNORE, NROLES };
+static const char *const role_name[NROLES] = {"color", "depth", "labels", "ignore"};
 
 typedef struct {
     unsigned char digest[32];
@@ -90,10 +90,12 @@ int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_
         for (int end = 0; end < 2; end++) {
             int32_t f = end ? p.j : p.i;
             const sinew_run_frame *fr = &s->frames[f];
-            const char *path = r == ROLE_COLOR   ? fr->color
-                               : r == ROLE_DEPTH ? fr->depth
-                                                 : fr->labels;
-            if (!path)
+            const char *path = r == ROLE_COLOR    ? fr->color
+                               : r == ROLE_DEPTH  ? fr->depth
+                               : r == ROLE_LABELS ? fr->labels
+                                                  : fr->ignore;
+            /* only the first frame's ignore mask shapes the pair (the forward check) */
+            if (!path || (r == ROLE_IGNORE && end == 1))
                 continue;
             digest_entry *e = &run->cache[(size_t)f * NROLES + (size_t)r];
             if ((rc = digest_cached(run, e, path)))

@@ -34,17 +34,16 @@ extern "C" {
  *                        order; colour stamps without a depth partner are dropped
  *                        (counted in `dropped`);
  *   otherwise color/     images (.png .jpg .jpeg .ppm .pgm .npy .pfm), sorted by file
- *                        name (byte order); optional depth/ and labels/ matched to
- *                        them by file stem (the name without its extension), else by
- *                        the stem's last number when that is unique (frame-000007.color
- *                        and frame-000007.depth are one frame);
- *   intrinsics.json      optional, used when present.
- * Frame counts are checked against SINEW_RUN_MAX_FRAMES before allocation.
- * Everything a user should know about the matching becomes a warning (a line naming the
- * file): a depth map or label image with no colour frame, a colour frame without labels,
- * a jump in the frame numbers, numbered names that do not sort in numeric order, a
- * colour frame left out (no depth partner: a colour stamp with no depth stamp within
- * max_dt, or with SINEW_RUN_SOURCE_DROP_UNMATCHED a colour image with no depth map). */
+ *                        name (byte order); optional depth/, labels/ and ignore/
+ *                        (ignore masks) matched to them by file stem (the name without its
+ * extension), else by the stem's last number when that is unique (frame-000007.color and
+ * frame-000007.depth are one frame); intrinsics.json      optional, used when present. Frame counts
+ * are checked against SINEW_RUN_MAX_FRAMES before allocation. Everything a user should know about
+ * the matching becomes a warning (a line naming the file): a depth map or label image with no
+ * colour frame, a colour frame without labels, a jump in the frame numbers, numbered names that do
+ * not sort in numeric order, a colour frame left out (no depth partner: a colour stamp with no
+ * depth stamp within max_dt, or with SINEW_RUN_SOURCE_DROP_UNMATCHED a colour image with no depth
+ * map). */
 typedef struct sinew_run_source {
     size_t nframes;
     struct sinew_run_frame *frames; /* owned, strings too */
@@ -101,6 +100,8 @@ typedef struct sinew_run_frame {
     const char *color;  /* image path, required */
     const char *depth;  /* depth map path or NULL */
     const char *labels; /* label image path or NULL */
+    const char *ignore; /* ignore mask path or NULL: the forward check of a pair that
+                           starts at this frame rejects its pixels (reason "ignored") */
     int has_timestamp;  /* 1 when timestamp is known (lists, sequence.json) */
     double timestamp;   /* capture time in seconds */
 } sinew_run_frame;
@@ -257,6 +258,9 @@ typedef struct sinew_run_pipeline_params {
      * options text, so changing them invalidates done pairs. */
     const struct sinew_camera *camera;
     int depth_ray; /* 1: depth maps store the distance from the camera centre, not z */
+    /* sinew_ignore_polarity (flow/check.h) of the frames' ignore masks: 0 when no frame
+     * has one (a frame with one then makes sinew_run_pipeline_new fail with ECONFIG). */
+    int ignore_polarity;
 } sinew_run_pipeline_params;
 
 typedef struct sinew_run_pipeline sinew_run_pipeline;
@@ -287,10 +291,11 @@ size_t sinew_run_pipeline_outputs(const sinew_run_pipeline_params *p,
 #define SINEW_RUN_KEEP_FLOW_FORMAT 2u
 #define SINEW_RUN_KEEP_MATCH_STRIDE 4u
 #define SINEW_RUN_KEEP_DEPTH_SCALE 8u
+#define SINEW_RUN_KEEP_IGNORE_POLARITY 128u
 /* Apply a sequence's settings to pipeline parameters: its intrinsics (copied into *cam,
  * and p->camera = cam), depth scale (when > 0), depth kind, and the "run" keys preset,
- * flow_format and match_stride (flow/sequence.h), except the fields whose bit is set in
- * keep. p->preset may then borrow the sequence's string. ECONFIG "WHERE:
+ * flow_format and match_stride, and its ignore_polarity (flow/sequence.h), except the
+ * fields whose bit is set in keep. p->preset may then borrow the sequence's string. ECONFIG "WHERE:
  * run.flow_format: unknown format" for a format sinew_flow_format_parse refuses. */
 int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_params *p,
                                              struct sinew_camera *cam, const sinew_sequence *seq,
@@ -314,9 +319,11 @@ typedef struct sinew_run_options {
     double max_dt;        /* colour/depth association tolerance, seconds */
     char schedule[1024];  /* schedule text as given; "" = the sequence's or consecutive */
     char flow_from[4096]; /* folder of imported flows; "" = flows are estimated */
+    int ignore_polarity;  /* sinew_ignore_polarity of the ignore masks; 0 = none */
 } sinew_run_options;
 
-/* Bits naming the keys of sinew_run_options (the first four equal SINEW_RUN_KEEP_*). */
+/* Bits naming the keys of sinew_run_options (the first four and ignore_polarity equal
+ * SINEW_RUN_KEEP_*). */
 #define SINEW_RUN_OPT_PRESET SINEW_RUN_KEEP_PRESET
 #define SINEW_RUN_OPT_FLOW_FORMAT SINEW_RUN_KEEP_FLOW_FORMAT
 #define SINEW_RUN_OPT_MATCH_STRIDE SINEW_RUN_KEEP_MATCH_STRIDE
@@ -324,7 +331,8 @@ typedef struct sinew_run_options {
 #define SINEW_RUN_OPT_SCHEDULE 16u
 #define SINEW_RUN_OPT_MAX_DT 32u
 #define SINEW_RUN_OPT_FLOW_FROM 64u
-#define SINEW_RUN_OPT_ALL 127u
+#define SINEW_RUN_OPT_IGNORE_POLARITY SINEW_RUN_KEEP_IGNORE_POLARITY
+#define SINEW_RUN_OPT_ALL 255u
 
 /* Write *o to OUTDIR/SINEW_RUN_OPTIONS_FILE atomically (OUTDIR must exist). ELIMIT for
  * a string that does not fit its field. */

@@ -16,6 +16,7 @@
 #include "flow/internal/fs.h"
 #include "flow/internal/json.h"
 #include "flow/json.h"
+#include "flow/check.h"
 #include "flow/run.h"
 
 /* Record marker and version: a later layout changes the number. */
@@ -38,6 +39,12 @@ static int copy_field(sinew_ctx *ctx, const char *where, const char *key, char *
     return SINEW_OK;
 }
 
+/* "nonzero" / "zero" for an ignore polarity, NULL for none. */
+static const char *polarity_name(int p)
+{
+    return p == SINEW_IGNORE_NONZERO ? "nonzero" : p == SINEW_IGNORE_ZERO ? "zero" : NULL;
+}
+
 int sinew_run_options_write(sinew_ctx *ctx, const char *outdir, const sinew_run_options *o)
 {
     if (!ctx || !outdir || !o)
@@ -57,7 +64,8 @@ int sinew_run_options_write(sinew_ctx *ctx, const char *outdir, const sinew_run_
              sinew_json_add_number(j, "depth_scale", o->depth_scale) &&
              sinew_json_add_number(j, "max_dt", o->max_dt) &&
              sinew_json_add_string(j, "schedule", o->schedule[0] ? o->schedule : NULL) &&
-             sinew_json_add_string(j, "flow_from", o->flow_from[0] ? o->flow_from : NULL);
+             sinew_json_add_string(j, "flow_from", o->flow_from[0] ? o->flow_from : NULL) &&
+             sinew_json_add_string(j, "ignore_polarity", polarity_name(o->ignore_polarity));
     rc = ok ? sinew__json_write(ctx, path, j) : sinew__fail(ctx, SINEW_ENOMEM, "out of memory");
     cJSON_Delete(j);
     return rc;
@@ -110,6 +118,16 @@ static int parse_options(sinew_ctx *ctx, const char *path, const cJSON *j, sinew
         (rc = read_text(ctx, path, j, "schedule", o->schedule, sizeof o->schedule)) ||
         (rc = read_text(ctx, path, j, "flow_from", o->flow_from, sizeof o->flow_from)))
         return rc;
+    /* absent in records of older versions: no ignore masks */
+    const cJSON *ip = cJSON_GetObjectItemCaseSensitive(j, "ignore_polarity");
+    if (ip && !cJSON_IsNull(ip)) {
+        if (!cJSON_IsString(ip) ||
+            (strcmp(ip->valuestring, "nonzero") && strcmp(ip->valuestring, "zero")))
+            return sinew__fail(ctx, SINEW_EFORMAT,
+                               "%s: ignore_polarity: expected \"nonzero\", \"zero\" or null", path);
+        o->ignore_polarity =
+            strcmp(ip->valuestring, "zero") ? SINEW_IGNORE_NONZERO : SINEW_IGNORE_ZERO;
+    }
     if (stride != floor(stride) || stride > (double)(1 << 20))
         return sinew__fail(ctx, SINEW_EFORMAT,
                            "%s: match_stride: expected a whole number of pixels", path);
@@ -178,6 +196,11 @@ int sinew_run_options_reconcile(sinew_ctx *ctx, const char *where, const sinew_r
     DIFF_NUM(SINEW_RUN_OPT_MAX_DT, "max_dt", max_dt)
     DIFF_TEXT(SINEW_RUN_OPT_SCHEDULE, "schedule", stored->schedule, o->schedule);
     DIFF_TEXT(SINEW_RUN_OPT_FLOW_FROM, "flow_from", stored->flow_from, o->flow_from);
+    if ((check & SINEW_RUN_OPT_IGNORE_POLARITY) && stored->ignore_polarity != o->ignore_polarity) {
+        const char *sa = polarity_name(stored->ignore_polarity);
+        const char *sb = polarity_name(o->ignore_polarity);
+        return conflict(ctx, where, "ignore_polarity", sa ? sa : "none", sb ? sb : "none");
+    }
 #undef DIFF_TEXT
 #undef DIFF_NUM
     sinew_run_options mine = *o;
@@ -196,5 +219,7 @@ int sinew_run_options_reconcile(sinew_ctx *ctx, const char *where, const sinew_r
         memcpy(o->schedule, mine.schedule, sizeof o->schedule);
     if (given & SINEW_RUN_OPT_FLOW_FROM)
         memcpy(o->flow_from, mine.flow_from, sizeof o->flow_from);
+    if (given & SINEW_RUN_OPT_IGNORE_POLARITY)
+        o->ignore_polarity = mine.ignore_polarity;
     return SINEW_OK;
 }

@@ -30,6 +30,7 @@ typedef struct {
     sinew_image img;    /* colour/gray as stored */
     sinew_image z;      /* depth in metres (NaN invalid), when the frame has depth */
     sinew_image labels; /* label ids, when the frame has labels */
+    sinew_image ignore; /* the user's ignore mask, when the frame has one */
     double z_median;
 } frame_slot;
 
@@ -71,6 +72,8 @@ int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_
     if (!(keep & SINEW_RUN_KEEP_DEPTH_SCALE) && seq->depth_scale > 0)
         p->depth_scale = seq->depth_scale;
     p->depth_ray = seq->depth_ray;
+    if (!(keep & SINEW_RUN_KEEP_IGNORE_POLARITY) && seq->ignore_polarity)
+        p->ignore_polarity = seq->ignore_polarity;
     const sinew_seq_run *r = &seq->run;
     if (!(keep & SINEW_RUN_KEEP_PRESET) && r->preset)
         p->preset = r->preset;
@@ -180,6 +183,12 @@ int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *
                      "\"depth_kind\":\"%s\"}",
                      p->preset, fmt, p->matches ? "true" : "false", p->match_stride, p->depth_scale,
                      p->depth_ray ? "ray" : "z");
+    if (w > 0 && (size_t)w < n && p->ignore_polarity) {
+        /* only when set, so the keys of runs without ignore masks stay as they were */
+        int w2 = snprintf(buf + w - 1, n - (size_t)(w - 1), ",\"ignore_polarity\":\"%s\"}",
+                          p->ignore_polarity == SINEW_IGNORE_ZERO ? "zero" : "nonzero");
+        w = w2 < 0 ? w2 : w - 1 + w2;
+    }
     if (w > 0 && (size_t)w < n && p->camera) {
         const sinew_camera *c = p->camera;
         /* replace the closing brace with the camera values */
@@ -209,6 +218,15 @@ int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew
     int rc = sinew_flow_params_preset(&fp, p->preset);
     if (rc)
         return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow preset '%s'", p->preset);
+    if (p->ignore_polarity != SINEW_IGNORE_UNSET && p->ignore_polarity != SINEW_IGNORE_NONZERO &&
+        p->ignore_polarity != SINEW_IGNORE_ZERO)
+        return sinew__fail(ctx, SINEW_ECONFIG, "unknown ignore polarity %d", p->ignore_polarity);
+    for (size_t f = 0; !p->ignore_polarity && f < spec->nframes; f++)
+        if (spec->frames[f].ignore)
+            return sinew__fail(ctx, SINEW_ECONFIG,
+                               "%s: an ignore mask needs its polarity (--ignore-polarity "
+                               "nonzero|zero, or \"ignore_polarity\" in sequence.json)",
+                               spec->frames[f].ignore);
     sinew_run_pipeline *pl = sinew__calloc(ctx, 1, sizeof *pl);
     if (!pl)
         return SINEW_ENOMEM;
@@ -242,16 +260,23 @@ int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew
     return SINEW_OK;
 }
 
+static void slot_clear(frame_slot *s)
+{
+    sinew_image_free(&s->img);
+    sinew_image_free(&s->z);
+    sinew_image_free(&s->labels);
+    sinew_image_free(&s->ignore);
+    s->index = -1;
+    s->z_median = NAN;
+}
+
 void sinew_run_pipeline_free(sinew_run_pipeline *pl)
 {
     if (!pl)
         return;
     sinew_estimator_free(pl->est);
-    for (int k = 0; k < 2; k++) {
-        sinew_image_free(&pl->slot[k].img);
-        sinew_image_free(&pl->slot[k].z);
-        sinew_image_free(&pl->slot[k].labels);
-    }
+    for (int k = 0; k < 2; k++)
+        slot_clear(&pl->slot[k]);
     sinew_image_free(&pl->fwd);
     sinew_image_free(&pl->bwd);
     sinew_image_free(&pl->mask);
@@ -260,16 +285,18 @@ void sinew_run_pipeline_free(sinew_run_pipeline *pl)
     sinew__free(pl->ctx, pl);
 }
 
-static void slot_clear(frame_slot *s)
+/* SINEW_OK when img has the frames' size, else ESIZE naming path and both sizes. */
+static int frame_sized(const sinew_run_pipeline *pl, const sinew_image *img, const char *path,
+                       const char *what)
 {
-    sinew_image_free(&s->img);
-    sinew_image_free(&s->z);
-    sinew_image_free(&s->labels);
-    s->index = -1;
-    s->z_median = NAN;
+    if (img->width == pl->width && img->height == pl->height)
+        return SINEW_OK;
+    return sinew__fail(pl->ctx, SINEW_ESIZE, "%s: %s %dx%d but the frames are %dx%d", path, what,
+                       img->width, img->height, pl->width, pl->height);
 }
 
-/* Depth (metres) and labels of frame f into slot s; sizes must match the frames. */
+/* Depth (metres), labels and ignore mask of frame f into slot s; sizes must match the
+ * frames. */
 static int load_extras(sinew_run_pipeline *pl, frame_slot *s, int32_t f)
 {
     const sinew_run_frame *fr = &pl->spec->frames[f];
@@ -290,14 +317,12 @@ static int load_extras(sinew_run_pipeline *pl, frame_slot *s, int32_t f)
         if (rc || (rc = sinew_depth_median(pl->ctx, &s->z, &s->z_median, NULL)))
             return rc;
     }
-    if (fr->labels) {
-        if ((rc = sinew_labels_read(pl->ctx, &s->labels, fr->labels)))
-            return rc;
-        if (s->labels.width != pl->width || s->labels.height != pl->height)
-            return sinew__fail(pl->ctx, SINEW_ESIZE, "%s: labels are %dx%d, frames %dx%d",
-                               fr->labels, s->labels.width, s->labels.height, pl->width,
-                               pl->height);
-    }
+    if (fr->labels && ((rc = sinew_labels_read(pl->ctx, &s->labels, fr->labels)) ||
+                       (rc = frame_sized(pl, &s->labels, fr->labels, "labels are"))))
+        return rc;
+    if (fr->ignore && ((rc = sinew_image_read(pl->ctx, &s->ignore, fr->ignore)) ||
+                       (rc = frame_sized(pl, &s->ignore, fr->ignore, "ignore mask is"))))
+        return rc;
     return SINEW_OK;
 }
 
@@ -644,7 +669,13 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
         return rc;
     sinew_check_input in = {&pl->fwd, &pl->bwd, f0, f1, NULL, NULL};
     sinew_check_output out = {&pl->fberr, &pl->mask, &pl->conf, {0}};
-    if ((rc = sinew_check_run(ctx, &out, &in, NULL)))
+    sinew_check_params cp;
+    sinew_check_params_default(&cp);
+    if (s0->ignore.data) { /* the forward check rejects frame i's ignored pixels */
+        in.ignore = &s0->ignore;
+        cp.ignore_polarity = (sinew_ignore_polarity)pl->params.ignore_polarity;
+    }
+    if ((rc = sinew_check_run(ctx, &out, &in, &cp)))
         return rc;
     const char *ext = sinew_flow_format_ext(pl->params.flow_format);
     char p[SINEW__PATH_MAX], name[32];

@@ -37,6 +37,7 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src)
         sinew__free(ctx, (void *)src->frames[f].color);
         sinew__free(ctx, (void *)src->frames[f].depth);
         sinew__free(ctx, (void *)src->frames[f].labels);
+        sinew__free(ctx, (void *)src->frames[f].ignore);
     }
     sinew__free(ctx, src->frames);
     sinew__free(ctx, src->intrinsics);
@@ -102,7 +103,8 @@ int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, co
         int rc;
         if ((rc = resolve_dup(ctx, seq, fr->color, where, f, &o->color)) ||
             (rc = resolve_dup(ctx, seq, fr->depth, where, f, &o->depth)) ||
-            (rc = resolve_dup(ctx, seq, fr->labels, where, f, &o->labels))) {
+            (rc = resolve_dup(ctx, seq, fr->labels, where, f, &o->labels)) ||
+            (rc = resolve_dup(ctx, seq, fr->ignore, where, f, &o->ignore))) {
             sinew_run_source_free(ctx, out);
             return rc;
         }
@@ -338,15 +340,16 @@ static int numbering_warnings(sinew_ctx *ctx, sinew_run_source *out, const char 
 
 static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_run_source *out)
 {
-    static const char *const sub[3] = {"color", "depth", "labels"};
-    char **l[3] = {NULL, NULL, NULL};
-    size_t n[3] = {0, 0, 0};
-    key_set ks[3] = {{0}, {0}, {0}};
+    enum { COLOR, DEPTH, LABELS, IGNORE, NSUB };
+    static const char *const sub[NSUB] = {"color", "depth", "labels", "ignore"};
+    char **l[NSUB] = {NULL, NULL, NULL, NULL};
+    size_t n[NSUB] = {0, 0, 0, 0};
+    key_set ks[NSUB] = {{0}, {0}, {0}, {0}};
     frame_key *ck = NULL;
-    char p[3][SINEW__PATH_MAX];
-    int have[3] = {0, 0, 0};
+    char p[NSUB][SINEW__PATH_MAX];
+    int have[NSUB] = {0, 0, 0, 0};
     int rc = SINEW_OK;
-    for (int k = 0; k < 3 && !rc; k++) {
+    for (int k = 0; k < NSUB && !rc; k++) {
         if ((rc = sinew__path_join(ctx, p[k], sizeof p[k], dir, sub[k])))
             break;
         if (!is_dir(p[k])) {
@@ -372,9 +375,10 @@ static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_ru
         rc = SINEW_ENOMEM;
     size_t kept = 0;
     for (size_t f = 0; !rc && f < n[0]; f++) {
-        const frame_key *d = have[1] ? key_find(&ks[1], &ck[f]) : NULL;
-        const frame_key *lb = have[2] ? key_find(&ks[2], &ck[f]) : NULL;
-        if (have[1] && !d) {
+        const frame_key *d = have[DEPTH] ? key_find(&ks[DEPTH], &ck[f]) : NULL;
+        const frame_key *lb = have[LABELS] ? key_find(&ks[LABELS], &ck[f]) : NULL;
+        const frame_key *ig = have[IGNORE] ? key_find(&ks[IGNORE], &ck[f]) : NULL;
+        if (have[DEPTH] && !d) {
             if (!(flags & SINEW_RUN_SOURCE_DROP_UNMATCHED))
                 rc = sinew__fail(ctx, SINEW_ECONFIG,
                                  "%s: no depth map for %s (none named %.*s.*; "
@@ -385,22 +389,29 @@ static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_ru
             out->dropped++;
             continue;
         }
-        if (have[2] && !lb &&
-            (rc = warn(ctx, out, "%s: no label image for %s: no labels there", p[2], l[0][f])))
+        if (have[LABELS] && !lb &&
+            (rc = warn(ctx, out, "%s: no label image for %s: no labels there", p[LABELS], l[0][f])))
+            break;
+        if (have[IGNORE] && !ig &&
+            (rc = warn(ctx, out, "%s: no ignore mask for %s: nothing ignored there", p[IGNORE],
+                       l[0][f])))
             break;
         sinew_run_frame *fr = &out->frames[out->nframes++];
         fr->color = sinew__strdup(ctx, l[0][f]);
         fr->depth = d ? sinew__strdup(ctx, d->path) : NULL;
         fr->labels = lb ? sinew__strdup(ctx, lb->path) : NULL;
-        if (!fr->color || (d && !fr->depth) || (lb && !fr->labels))
+        fr->ignore = ig ? sinew__strdup(ctx, ig->path) : NULL;
+        if (!fr->color || (d && !fr->depth) || (lb && !fr->labels) || (ig && !fr->ignore))
             rc = SINEW_ENOMEM;
         if (d)
-            ks[1].used[d->idx] = 1;
+            ks[DEPTH].used[d->idx] = 1;
         if (lb)
-            ks[2].used[lb->idx] = 1;
+            ks[LABELS].used[lb->idx] = 1;
+        if (ig)
+            ks[IGNORE].used[ig->idx] = 1;
         ck[kept++] = ck[f]; /* the kept frames' keys, for the numbering check */
     }
-    for (int k = 1; k < 3; k++) /* unused files, in name order */
+    for (int k = DEPTH; k < NSUB; k++) /* unused files, in name order */
         for (size_t i = 0; !rc && i < n[k]; i++)
             if (!ks[k].used[i])
                 rc = warn(ctx, out, "%s: no colour frame for %s: not used", p[k], l[k][i]);
@@ -409,7 +420,7 @@ static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_ru
     if (!rc)
         rc = numbering_warnings(ctx, out, p[0], ck, kept);
     sinew__free(ctx, ck);
-    for (int k = 0; k < 3; k++) {
+    for (int k = 0; k < NSUB; k++) {
         keys_free(ctx, &ks[k]);
         sinew__free_names(ctx, l[k], n[k]);
     }

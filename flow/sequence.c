@@ -48,6 +48,7 @@ static void frame_release(sinew_ctx *ctx, sinew_seq_frame *f)
     sinew__free(ctx, f->color);
     sinew__free(ctx, f->depth);
     sinew__free(ctx, f->labels);
+    sinew__free(ctx, f->ignore);
 }
 
 static void pair_release(sinew_ctx *ctx, sinew_seq_pair *p)
@@ -161,9 +162,9 @@ int sinew_sequence_add_frame(sinew_sequence *seq, const sinew_seq_frame *frame)
     if (st)
         return st;
     sinew_seq_frame f = *frame;
-    f.color = f.depth = f.labels = NULL;
+    f.color = f.depth = f.labels = f.ignore = NULL;
     if (set_str(ctx, &f.color, frame->color) || set_str(ctx, &f.depth, frame->depth) ||
-        set_str(ctx, &f.labels, frame->labels)) {
+        set_str(ctx, &f.labels, frame->labels) || set_str(ctx, &f.ignore, frame->ignore)) {
         frame_release(ctx, &f);
         return SINEW_ENOMEM;
     }
@@ -305,6 +306,12 @@ int sinew_sequence_validate(sinew_sequence *seq, const char *where)
         snprintf(key, sizeof key, "frames[%zu].labels", i);
         if ((st = check_path(ctx, where, key, f->labels)))
             return st;
+        snprintf(key, sizeof key, "frames[%zu].ignore", i);
+        if ((st = check_path(ctx, where, key, f->ignore)))
+            return st;
+        if (f->ignore && seq->ignore_polarity != 1 && seq->ignore_polarity != 2)
+            return bad_key(ctx, where, "ignore_polarity",
+                           "required (\"nonzero\" or \"zero\") when frames have ignore masks");
         if (!isnan(f->timestamp) && !isfinite(f->timestamp)) {
             snprintf(key, sizeof key, "frames[%zu].timestamp", i);
             return bad_key(ctx, where, key, "must be a finite number");
@@ -462,7 +469,8 @@ static const cJSON *get_typed(reader *r, const cJSON *obj, const char *path, con
 
 static int read_frame(reader *r, sinew_sequence *seq, const cJSON *o, size_t i)
 {
-    static const char *const keys[] = {"color", "depth", "labels", "timestamp", "pose", NULL};
+    static const char *const keys[] = {"color",     "depth", "labels", "ignore",
+                                       "timestamp", "pose",  NULL};
     char path[64];
     snprintf(path, sizeof path, "frames[%zu]", i);
     if (!cJSON_IsObject(o))
@@ -477,6 +485,7 @@ static int read_frame(reader *r, sinew_sequence *seq, const cJSON *o, size_t i)
     if ((st = get_string(r, o, path, "color", 1, &f.color)) ||
         (st = get_string(r, o, path, "depth", 0, &f.depth)) ||
         (st = get_string(r, o, path, "labels", 0, &f.labels)) ||
+        (st = get_string(r, o, path, "ignore", 0, &f.ignore)) ||
         (st = get_number(r, o, path, "timestamp", 0, &ts, &has_ts)))
         goto done;
     f.timestamp = has_ts ? ts : NAN;
@@ -581,14 +590,15 @@ static int pattern_name(const char *pat, long number, char *buf, size_t n)
  * "count": N, "step": N}: frames first, first + step, ... (count of them). */
 static int read_frame_pattern(reader *r, sinew_sequence *seq, const cJSON *o)
 {
-    static const char *const keys[] = {"color", "depth", "labels", "first", "count", "step", NULL};
+    static const char *const keys[] = {"color", "depth", "labels", "ignore",
+                                       "first", "count", "step",   NULL};
     int st = check_keys(r, o, "frames", keys);
     if (st)
         return st;
-    const char *pat[3] = {NULL, NULL, NULL};
-    static const char *const names[3] = {"color", "depth", "labels"};
+    const char *pat[4] = {NULL, NULL, NULL, NULL};
+    static const char *const names[4] = {"color", "depth", "labels", "ignore"};
     char key[64], probe[4096];
-    for (int k = 0; k < 3; k++) {
+    for (int k = 0; k < 4; k++) {
         const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, names[k]);
         snprintf(key, sizeof key, "frames.%s", names[k]);
         if (!v) {
@@ -614,12 +624,12 @@ static int read_frame_pattern(reader *r, sinew_sequence *seq, const cJSON *o)
         return st;
     if ((double)first + (double)step * (count - 1) > 999999999.0)
         return bad_key(r->ctx, r->where, "frames.count", "frame numbers beyond 999999999");
-    char buf[3][4096];
+    char buf[4][4096];
     for (long i = 0; i < count; i++) {
         long num = first + (long)step * i;
         sinew_seq_frame f;
         sinew_sequence_frame_init(&f);
-        for (int k = 0; k < 3; k++) {
+        for (int k = 0; k < 4; k++) {
             if (!pat[k])
                 continue;
             if (pattern_name(pat[k], num, buf[k], sizeof buf[k]) != 0) {
@@ -630,6 +640,7 @@ static int read_frame_pattern(reader *r, sinew_sequence *seq, const cJSON *o)
         f.color = buf[0];
         f.depth = pat[1] ? buf[1] : NULL;
         f.labels = pat[2] ? buf[2] : NULL;
+        f.ignore = pat[3] ? buf[3] : NULL;
         if ((st = sinew_sequence_add_frame(seq, &f))) /* copies the strings */
             return st;
     }
@@ -705,9 +716,9 @@ static int read_run(reader *r, sinew_sequence *seq, const cJSON *o)
 
 static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
 {
-    static const char *const keys[] = {"version",     "name",   "intrinsics", "depth_scale",
-                                       "label_names", "frames", "pairs",      "depth_kind",
-                                       "run",         NULL};
+    static const char *const keys[] = {
+        "version", "name",       "intrinsics", "depth_scale",     "label_names", "frames",
+        "pairs",   "depth_kind", "run",        "ignore_polarity", NULL};
     if (!cJSON_IsObject(root))
         return sinew__fail(r->ctx, SINEW_ECONFIG, "%s: expected a JSON object at the top level",
                            r->where);
@@ -773,6 +784,13 @@ static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
         if (!cJSON_IsString(dk) || (strcmp(dk->valuestring, "z") && strcmp(dk->valuestring, "ray")))
             return bad_key(r->ctx, r->where, "depth_kind", "expected \"z\" or \"ray\"");
         seq->depth_ray = !strcmp(dk->valuestring, "ray");
+    }
+    const cJSON *ip = cJSON_GetObjectItemCaseSensitive(root, "ignore_polarity");
+    if (ip) {
+        if (!cJSON_IsString(ip) ||
+            (strcmp(ip->valuestring, "nonzero") && strcmp(ip->valuestring, "zero")))
+            return bad_key(r->ctx, r->where, "ignore_polarity", "expected \"nonzero\" or \"zero\"");
+        seq->ignore_polarity = strcmp(ip->valuestring, "nonzero") ? 2 : 1;
     }
     const cJSON *run = get_typed(r, root, "", "run", 0, 0, &st);
     if (st || (run && (st = read_run(r, seq, run))))
@@ -937,6 +955,8 @@ static cJSON *build(const sinew_sequence *seq)
     }
     if (seq->depth_ray)
         bad |= add_str(root, "depth_kind", "ray");
+    if (seq->ignore_polarity)
+        bad |= add_str(root, "ignore_polarity", seq->ignore_polarity == 1 ? "nonzero" : "zero");
     const sinew_seq_run *rs = &seq->run;
     if (rs->has_schedule || rs->preset || rs->flow_format || rs->has_match_stride) {
         cJSON *ro = cJSON_AddObjectToObject(root, "run");
@@ -975,7 +995,7 @@ static cJSON *build(const sinew_sequence *seq)
         if (bad)
             break;
         bad |= add_str(o, "color", f->color) | add_str(o, "depth", f->depth) |
-               add_str(o, "labels", f->labels);
+               add_str(o, "labels", f->labels) | add_str(o, "ignore", f->ignore);
         if (!isnan(f->timestamp))
             bad |= !add_num(o, "timestamp", f->timestamp);
         if (f->has_pose) {

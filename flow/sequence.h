@@ -46,6 +46,8 @@ typedef struct sinew_seq_frame {
     char *color;      /* colour image (required) */
     char *depth;      /* depth image, integer codes (see depth_scale) */
     char *labels;     /* 8-bit label image */
+    char *ignore;     /* ignore mask (8- or 16-bit image): pixels whose matches the user
+                         rejects, e.g. instruments; polarity in ignore_polarity */
     double timestamp; /* seconds; NaN if absent */
     int has_pose;     /* nonzero if pose is given */
     double pose[12];  /* camera-to-world 3x4 row-major [R | t], metres */
@@ -72,6 +74,9 @@ typedef struct sinew_sequence {
     double depth_scale;    /* depth codes per metre (1000 = millimetres); 0 if unset */
     int depth_ray;         /* "depth_kind": 0 "z" (along the optical axis, default),
                               1 "ray" (distance from the camera centre) */
+    int ignore_polarity;   /* "ignore_polarity": 0 absent, 1 "nonzero" (pixels != 0 are
+                              ignored), 2 "zero" (the values of sinew_ignore_polarity,
+                              flow/check.h); required when a frame has an ignore mask */
     sinew_seq_run run;     /* "run" settings */
     char **label_names;    /* label_names[v] names label value v; NULL if absent */
     size_t n_label_names;

@@ -32,56 +32,60 @@ static const char *const CMD = "run";
 
 static void usage(FILE *out)
 {
+    fprintf(out,
+            "usage: sinew run SEQUENCE.json|FOLDER -o OUTDIR [options]\n"
+            "\n"
+            "Process every frame pair of a sequence: forward and backward flow, the\n"
+            "forward-backward check (reason mask, confidence) and per-pair stats, into\n"
+            "OUTDIR/pairs/IIIIII-JJJJJJ/, plus OUTDIR/manifest.json. Killing the run at\n"
+            "any moment loses no finished pair; --resume continues where it stopped and\n"
+            "ends with the same bytes as an uninterrupted run.\n"
+            "\n"
+            "input:\n"
+            "  SEQUENCE.json          a sequence description (docs/formats.md)\n"
+            "  FOLDER                 rgb.txt + depth.txt (timestamp association), or\n"
+            "                         color/ [depth/ labels/ ignore/] [intrinsics.json], matched\n"
+            "                         by file stem (000007.png <-> 000007.npy) or the stem's\n"
+            "                         number (frame-7.color <-> frame-7.depth)\n"
+            "options:\n"
+            "  -o, --output DIR       output folder (created if missing)\n"
+            "  --schedule S           consecutive (default) | gap:K | keyframe:K:M (every\n"
+            "                         K-th frame to the next M frames) | list:FILE (lines\n"
+            "                         'I J', frame numbers from 0)\n"
+            "  --preset NAME          flow preset: fast | balanced (default) | accurate\n"
+            "  --flow-format F        flo (default) | npy | npy16 (float16) | pfm | png\n"
+            "  --flow-from DIR        import flows DIR/IIIIII-JJJJJJ/{forward,backward}.EXT\n"
+            "                         instead of estimating them\n"
+            "  --max-dt SECONDS       colour/depth association tolerance (default 0.02)\n"
+            "  --ignore-polarity P    frames' ignore masks (sequence.json \"ignore\", folder\n"
+            "                         ignore/): nonzero = pixels != 0 are ignored, zero =\n"
+            "                         pixels == 0 are; their matches are rejected\n"
+            "  --drop-unmatched       folder input: leave out colour images that have no\n"
+            "                         depth map of the same stem (a warning each) instead\n"
+            "                         of failing\n"
+            "  --depth-scale S        16-bit depth codes per metre (default 1000; TUM: 5000)\n"
+            "  --match-stride S       matches on a grid of step S pixels (default 4; 0 = all)\n"
+            "  --resume               skip pairs that are complete and up to date\n"
+            "  --force-options        let options given here replace the ones stored in\n"
+            "                         OUTDIR/options.json (finished pairs are then redone)\n"
+            "  --shard K/N            process only pairs whose number %% N == K\n"
+            "  --merge                compute nothing; rebuild manifest.json from all shards\n"
+
+            "  --dry-run              list the pairs, check every input file, estimate disk\n"
+            "                         and time from one probe pair run in $TMPDIR (removed)\n"
+            "  --on-error stop|skip   on a failing pair: stop (default) or record and go on\n"
+            "  --progress auto|plain|json   live line on a terminal (auto), plain lines, or\n"
+            "                         JSON lines\n"
+            "  --report               print a per-pair summary table at the end and write\n"
+            "                         OUTDIR/report.html (sinew report)\n"
+            "  -t, --threads N        threads in all (0 = all cores); outputs identical\n"
+            "  --jobs N               pairs at once, the threads split between them (0 =\n"
+            "                         automatic: one per thread while memory allows);\n"
+            "                         outputs identical for every N\n"
+            "  -h, --help             this help\n"
+            "\n");
     fprintf(
         out,
-        "usage: sinew run SEQUENCE.json|FOLDER -o OUTDIR [options]\n"
-        "\n"
-        "Process every frame pair of a sequence: forward and backward flow, the\n"
-        "forward-backward check (reason mask, confidence) and per-pair stats, into\n"
-        "OUTDIR/pairs/IIIIII-JJJJJJ/, plus OUTDIR/manifest.json. Killing the run at\n"
-        "any moment loses no finished pair; --resume continues where it stopped and\n"
-        "ends with the same bytes as an uninterrupted run.\n"
-        "\n"
-        "input:\n"
-        "  SEQUENCE.json          a sequence description (docs/formats.md)\n"
-        "  FOLDER                 rgb.txt + depth.txt (timestamp association), or\n"
-        "                         color/ [depth/ labels/] [intrinsics.json], matched\n"
-        "                         by file stem (000007.png <-> 000007.npy) or the stem's\n"
-        "                         number (frame-7.color <-> frame-7.depth)\n"
-        "options:\n"
-        "  -o, --output DIR       output folder (created if missing)\n"
-        "  --schedule S           consecutive (default) | gap:K | keyframe:K:M (every\n"
-        "                         K-th frame to the next M frames) | list:FILE (lines\n"
-        "                         'I J', frame numbers from 0)\n"
-        "  --preset NAME          flow preset: fast | balanced (default) | accurate\n"
-        "  --flow-format F        flo (default) | npy | npy16 (float16) | pfm | png\n"
-        "  --flow-from DIR        import flows DIR/IIIIII-JJJJJJ/{forward,backward}.EXT\n"
-        "                         instead of estimating them\n"
-        "  --max-dt SECONDS       colour/depth association tolerance (default 0.02)\n"
-        "  --drop-unmatched       folder input: leave out colour images that have no\n"
-        "                         depth map of the same stem (a warning each) instead\n"
-        "                         of failing\n"
-        "  --depth-scale S        16-bit depth codes per metre (default 1000; TUM: 5000)\n"
-        "  --match-stride S       matches on a grid of step S pixels (default 4; 0 = all)\n"
-        "  --resume               skip pairs that are complete and up to date\n"
-        "  --force-options        let options given here replace the ones stored in\n"
-        "                         OUTDIR/options.json (finished pairs are then redone)\n"
-        "  --shard K/N            process only pairs whose number %% N == K\n"
-        "  --merge                compute nothing; rebuild manifest.json from all shards\n"
-
-        "  --dry-run              list the pairs, check every input file, estimate disk\n"
-        "                         and time from one probe pair run in $TMPDIR (removed)\n"
-        "  --on-error stop|skip   on a failing pair: stop (default) or record and go on\n"
-        "  --progress auto|plain|json   live line on a terminal (auto), plain lines, or\n"
-        "                         JSON lines\n"
-        "  --report               print a per-pair summary table at the end and write\n"
-        "                         OUTDIR/report.html (sinew report)\n"
-        "  -t, --threads N        threads in all (0 = all cores); outputs identical\n"
-        "  --jobs N               pairs at once, the threads split between them (0 =\n"
-        "                         automatic: one per thread while memory allows);\n"
-        "                         outputs identical for every N\n"
-        "  -h, --help             this help\n"
-        "\n"
         "A run stores the options that shape its outputs (preset, flow format, match\n"
         "stride, depth scale, max-dt, schedule, flow-from) in OUTDIR/options.json before\n"
         "its first pair. --resume, --merge and --shard runs in that folder take every\n"
@@ -274,7 +278,8 @@ enum {
     O_MSTRIDE,
     O_FORCE,
     O_JOBS,
-    O_DROP
+    O_DROP,
+    O_POLARITY
 };
 
 static int parse_shard(const char *arg, run_args *a)
@@ -325,6 +330,16 @@ static int parse_option(int c, const char *arg, run_args *a)
         break;
     case O_DROP:
         a->drop_unmatched = 1;
+        break;
+    case O_POLARITY:
+        if (!strcmp(arg, "nonzero"))
+            a->pp.ignore_polarity = SINEW_IGNORE_NONZERO;
+        else if (!strcmp(arg, "zero"))
+            a->pp.ignore_polarity = SINEW_IGNORE_ZERO;
+        else
+            return cli_usage_error(CMD, "--ignore-polarity: expected nonzero or zero, got '%s'",
+                                   arg);
+        a->given |= SINEW_RUN_OPT_IGNORE_POLARITY;
         break;
     case O_PRESET:
         a->pp.preset = arg;
@@ -411,6 +426,7 @@ static int parse_args(int argc, char **argv, run_args *a)
                                          {"match-stride", required_argument, NULL, O_MSTRIDE},
                                          {"force-options", no_argument, NULL, O_FORCE},
                                          {"drop-unmatched", no_argument, NULL, O_DROP},
+                                         {"ignore-polarity", required_argument, NULL, O_POLARITY},
                                          {"help", no_argument, NULL, 'h'},
                                          {NULL, 0, NULL, 0}};
     memset(a, 0, sizeof *a);
@@ -467,6 +483,7 @@ static int options_from_args(const run_args *a, sinew_run_options *o)
     o->match_stride = a->pp.match_stride;
     o->depth_scale = a->pp.depth_scale;
     o->max_dt = a->max_dt;
+    o->ignore_polarity = a->pp.ignore_polarity;
     const char *src[3] = {a->pp.preset, a->schedule ? a->schedule : "",
                           a->flow_from ? a->flow_from : ""};
     char *dst[3] = {o->preset, o->schedule, o->flow_from};
@@ -507,12 +524,13 @@ static int plan_stored_options(sinew_ctx *ctx, run_args *a)
     a->pp.match_stride = a->stored.match_stride;
     a->pp.depth_scale = a->stored.depth_scale;
     a->max_dt = a->stored.max_dt;
+    a->pp.ignore_polarity = a->stored.ignore_polarity;
     a->schedule = a->stored.schedule[0] ? a->stored.schedule : NULL;
     a->flow_from = a->stored.flow_from[0] ? a->stored.flow_from : NULL;
     /* the stored values are the effective ones of the first run: the sequence's
      * settings were already applied to them */
     a->given |= SINEW_RUN_OPT_PRESET | SINEW_RUN_OPT_FLOW_FORMAT | SINEW_RUN_OPT_MATCH_STRIDE |
-                SINEW_RUN_OPT_DEPTH_SCALE;
+                SINEW_RUN_OPT_DEPTH_SCALE | SINEW_RUN_OPT_IGNORE_POLARITY;
     return CLI_OK;
 }
 
@@ -648,15 +666,20 @@ static size_t check_inputs(sinew_ctx *ctx, const sinew_run_spec *spec)
         size_t ij[2] = {spec->pairs[q].i, spec->pairs[q].j};
         for (int e = 0; e < 2; e++) {
             const sinew_run_frame *fr = &spec->frames[ij[e]];
-            if (seen && seen[ij[e]])
-                continue;
+            /* seen: bit 1 the frame's files, bit 2 its ignore mask (read only as the
+             * first frame of a pair) */
+            unsigned char want = e == 0 && fr->ignore ? 3 : 1, had = seen ? seen[ij[e]] : 0;
             if (seen)
-                seen[ij[e]] = 1;
-            bad += (size_t)check_input("color", fr->color);
-            if (fr->depth)
-                bad += (size_t)check_input("depth", fr->depth);
-            if (fr->labels)
-                bad += (size_t)check_input("labels", fr->labels);
+                seen[ij[e]] |= want;
+            if (!(had & 1)) {
+                bad += (size_t)check_input("color", fr->color);
+                if (fr->depth)
+                    bad += (size_t)check_input("depth", fr->depth);
+                if (fr->labels)
+                    bad += (size_t)check_input("labels", fr->labels);
+            }
+            if ((want & 2) && !(had & 2))
+                bad += (size_t)check_input("ignore", fr->ignore);
         }
         char name[SINEW_PAIR_NAME_MAX], fwd[4200], bwd[4200];
         if (spec->flow_from &&

@@ -194,6 +194,27 @@ static void test_sequence_schema_errors_name_the_key(void **state)
     assert_int_equal(sinew_sequence_resolve(seq, "a.png", res, sizeof res), SINEW_OK);
     assert_string_equal(res, "./a.png");
     sinew_sequence_free(seq);
+    /* ignore masks: the polarity is required with them, and written back */
+    expect_error(ctx, "{\"version\":1,\"frames\":[{\"color\":\"a.png\",\"ignore\":\"m.png\"}]}", C,
+                 "ignore_polarity: required");
+    expect_error(ctx,
+                 "{\"version\":1,\"ignore_polarity\":\"odd\",\"frames\":[{\"color\":\"a.png\"}]}",
+                 C, "ignore_polarity: expected");
+    const char *ign = "{\"version\":1,\"ignore_polarity\":\"zero\",\"frames\":{\"color\":"
+                      "\"c/%03d.png\",\"ignore\":\"m/%03d.png\",\"count\":2}}";
+    assert_int_equal(sinew_sequence_parse(ctx, &seq, ign, strlen(ign), "seq.json"), SINEW_OK);
+    assert_int_equal(seq->ignore_polarity, 2);
+    assert_string_equal(seq->frames[1].ignore, "m/001.png");
+    char *dir = tu_tmpdir(), wp[600];
+    tu_path(wp, sizeof wp, dir, "w.json");
+    assert_int_equal(sinew_sequence_write(seq, wp), SINEW_OK);
+    sinew_sequence_free(seq);
+    assert_int_equal(sinew_sequence_read(ctx, &seq, wp), SINEW_OK);
+    assert_int_equal(seq->ignore_polarity, 2);
+    assert_string_equal(seq->frames[0].ignore, "m/000.png");
+    sinew_sequence_free(seq);
+    tu_rmtree(dir);
+    free(dir);
     /* pattern frame lists and run settings; the frame-count limit comes before any
      * allocation */
     expect_error(ctx, "{\"version\":1,\"frames\":{\"color\":\"%d%d.png\",\"count\":2}}", C,

@@ -261,6 +261,10 @@ typedef struct sinew_run_pipeline_params {
     /* sinew_ignore_polarity (flow/check.h) of the frames' ignore masks: 0 when no frame
      * has one (a frame with one then makes sinew_run_pipeline_new fail with ECONFIG). */
     int ignore_polarity;
+    /* A sequence whose ground-truth pairs ("pairs" of sequence.json) score each pair
+     * that has them (stats.json "truth", "epe", "occlusion_f1"); borrowed; NULL = none.
+     * Scores are diagnostics: they are not part of the options text or pair keys. */
+    const sinew_sequence *truth;
 } sinew_run_pipeline_params;
 
 typedef struct sinew_run_pipeline sinew_run_pipeline;
@@ -356,6 +360,9 @@ typedef struct sinew_run_pair_summary {
     double forward_mean_px; /* forward.mean_length_px */
     double match_rows;      /* matches.rows */
     int lifted;             /* matches.lifted is true */
+    double epe;             /* epe (ground truth), NaN without truth */
+    double occlusion_f1;    /* occlusion_f1 (ground truth), NaN without truth */
+    double match_3d_mm;     /* truth.match_3d_error_mm_median, NaN without */
 } sinew_run_pair_summary;
 /* Read a pair's summary; the read or parse error naming the file when stats.json is
  * missing or not JSON (e.g. the pair is pending). */

@@ -161,6 +161,10 @@ int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair p
     out->forward_mean_px = sinew__json_num(fwd, "mean_length_px");
     out->match_rows = sinew__json_num(m, "rows");
     out->lifted = cJSON_IsTrue(cJSON_GetObjectItemCaseSensitive(m, "lifted"));
+    out->epe = sinew__json_num(j, "epe");
+    out->occlusion_f1 = sinew__json_num(j, "occlusion_f1");
+    out->match_3d_mm =
+        sinew__json_num(cJSON_GetObjectItemCaseSensitive(j, "truth"), "match_3d_error_mm_median");
     cJSON_Delete(j);
     return SINEW_OK;
 }
@@ -523,6 +527,11 @@ static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
         }
     }
     pair_warnings(pl, warn, cs, m, s0, s1);
+    if (warn && sinew__run_truth_scores(pl->ctx, pl->params.truth, job->pair, &pl->fwd, &pl->mask,
+                                        m, o, warn) != SINEW_OK) {
+        cJSON_Delete(o);
+        return NULL;
+    }
     cJSON_AddStringToObject(o, "pair", job->name);
     cJSON *fr = cJSON_AddArrayToObject(o, "frames");
     if (fr) {

@@ -91,18 +91,23 @@ static void usage(FILE *out)
         "its first pair. --resume, --merge and --shard runs in that folder take every\n"
         "option not given from there; a given option that differs is refused.\n"
         "\n"
+        "A sequence.json with ground truth (\"pairs\", as sinew synth writes) has each\n"
+        "pair scored: EPE, occlusion F1 and 3-D error of the lifted matches in its\n"
+        "stats.json, the --report table and the report page.\n"
+        "\n"
         "Warnings (a median depth outside 0.05-20 m, intrinsics whose principal point is\n"
         "far from the image centre, depth without intrinsics, a pair whose check keeps\n"
-        "under 10%% of the pixels) go to stderr as the pair finishes (the first 8, then\n"
-        "a count) and stay in each pair's stats.json and the report.\n"
+        "under 10%% of the pixels, unreadable ground truth) go to stderr as the pair\n"
+        "finishes (the first 8, then one line) and stay in each pair's stats.json and\n"
+        "the report.\n"
         ""
         "\n"
         "examples:\n"
-        "  sinew run demo/out/seq -o runs/demo\n"
+        "  sinew run demo/out/scene -o runs/demo --report     (after make demo)\n"
         "  sinew run seq.json -o runs/a --shard 0/3 & sinew run seq.json -o runs/a --shard 1/3 &\n"
         "  sinew run seq.json -o runs/a --shard 2/3; wait; sinew run seq.json -o runs/a --merge\n"
         "  sinew run seq.json -o runs/a --resume --on-error skip\n"
-        "  sinew run seq.json -o runs/b --flow-from runs/gpu-flows\n"
+        "  sinew run seq.json -o runs/b --flow-from runs/other-flows\n"
         "\n"
         "exit status: 0 all pairs done; 1 a pair failed, the run was interrupted or\n"
         "pairs are still pending (--merge); 2 usage error.\n"
@@ -573,6 +578,8 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
         (rc = sinew_run_pipeline_params_apply_sequence(ctx, &a->pp, &p->cam, p->seq, a->input,
                                                        a->given)))
         return cli_status(CMD, ctx, rc);
+    if (p->seq->n_pairs)
+        a->pp.truth = p->seq; /* pairs with ground truth are scored */
     return CLI_OK;
 }
 
@@ -798,8 +805,17 @@ static void json_num(const char *key, double v)
  * with --progress json, so stdout stays pure JSON). */
 static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
 {
+    /* the ground-truth columns only when some pair has them */
+    int truth = 0;
+    for (size_t q = 0; q < spec->npairs && !truth; q++) {
+        sinew_run_pair_summary s;
+        truth = sinew_shard_owns(q, spec->shard_k, spec->shard_n) &&
+                sinew_run_pair_summary_read(ctx, spec->outdir, spec->pairs[q], &s) == SINEW_OK &&
+                (isfinite(s.epe) || isfinite(s.occlusion_f1));
+    }
     if (!json)
-        printf("%-13s %8s %10s %10s %9s\n", "pair", "kept", "|fwd| px", "matches", "lifted");
+        printf("%-13s %8s %10s %10s %9s%s\n", "pair", "kept", "|fwd| px", "matches", "lifted",
+               truth ? "   EPE px  occ F1  3-D err mm" : "");
     double kept = 0, pixels = 0, rows = 0;
     size_t n = 0;
     for (size_t q = 0; q < spec->npairs; q++) {
@@ -816,6 +832,11 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
                 json_num("mean_length_px", s.forward_mean_px);
                 json_num("matches", s.match_rows);
                 printf(",\"lifted\":%s", s.lifted ? "true" : "false");
+                if (truth) {
+                    json_num("epe", s.epe);
+                    json_num("occlusion_f1", s.occlusion_f1);
+                    json_num("match_3d_error_mm_median", s.match_3d_mm);
+                }
             }
             printf("}\n");
         }
@@ -824,9 +845,13 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
                 printf("%-13s %8s\n", name, "-");
             continue;
         }
-        if (!json)
-            printf("%-13s %7.1f%% %10.3f %10.0f %9s\n", name, 100 * s.kept_fraction,
+        if (!json) {
+            printf("%-13s %7.1f%% %10.3f %10.0f %9s", name, 100 * s.kept_fraction,
                    s.forward_mean_px, s.match_rows, s.lifted ? "yes" : "no");
+            if (truth)
+                printf(" %9.3f %7.3f %11.1f", s.epe, s.occlusion_f1, s.match_3d_mm);
+            printf("\n");
+        }
         kept += s.kept;
         pixels += s.pixels;
         rows += isfinite(s.match_rows) ? s.match_rows : 0;

@@ -43,4 +43,14 @@ void sinew__run_pair_key(const sinew_run *run, size_t index, const sinew__input 
 int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, int verify,
                              cJSON **record);
 
+/* runtruth.c: when seq (may be NULL) has ground truth for the pair, add "truth" (EPE
+ * all/noc/occ, occlusion precision/recall/F1 of the mask's occluded and outside bits,
+ * 3-D error of m's lifted matches against the scene flow) and the top-level "epe" and
+ * "occlusion_f1" to stats; a truth file that cannot be read becomes a line in warnings.
+ * Only ENOMEM fails. */
+struct sinew_matches;
+int sinew__run_truth_scores(sinew_ctx *ctx, const sinew_sequence *seq, sinew_pair pair,
+                            const sinew_image *fwd, const sinew_image *mask,
+                            const struct sinew_matches *m, cJSON *stats, cJSON *warnings);
+
 #endif

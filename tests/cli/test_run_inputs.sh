@@ -158,54 +158,18 @@ if ! "$PYTHON" -c 'import numpy' 2>/dev/null; then
     skip "ignore masks" "python3-numpy missing"
     exit 0
 fi
-# a PNG reader for 8-bit gray images (filters undone), so the expectations below do not
-# depend on sinew's own reader (PNG specification, ISO/IEC 15948, section 9)
-cat >"$T/png8.py" <<'PY'
-import struct, zlib
-import numpy as np
-def read(p):
-    data = open(p, 'rb').read()
-    pos, idat = 8, b''
-    while pos < len(data):
-        n, = struct.unpack('>I', data[pos:pos + 4]); typ = data[pos + 4:pos + 8]
-        body = data[pos + 8:pos + 8 + n]
-        if typ == b'IHDR':
-            w, h, bd, ct, _, _, il = struct.unpack('>IIBBBBB', body)
-            assert bd == 8 and ct == 0 and il == 0, 'expected 8-bit gray, not interlaced'
-        if typ == b'IDAT':
-            idat += body
-        pos += 12 + n
-    raw = zlib.decompress(idat)
-    out = np.zeros((h, w), np.uint8)
-    prev = np.zeros(w, np.int32)
-    for y in range(h):
-        f = raw[y * (w + 1)]
-        row = np.frombuffer(raw[y * (w + 1) + 1:(y + 1) * (w + 1)], np.uint8).astype(np.int32)
-        cur = np.zeros(w, np.int32)
-        for x in range(w):
-            a = cur[x - 1] if x else 0; b = prev[x]; c = prev[x - 1] if x else 0
-            if f == 0: v = row[x]
-            elif f == 1: v = row[x] + a
-            elif f == 2: v = row[x] + b
-            elif f == 3: v = row[x] + (a + b) // 2
-            else:
-                pa, pb, pc = abs(b - c), abs(a - c), abs(a + b - 2 * c)
-                v = row[x] + (a if pa <= pb and pa <= pc else b if pb <= pc else c)
-            cur[x] = v & 255
-        out[y] = cur
-        prev = cur
-    return out
-PY
-"$PYTHON" - "$T/sc" "$T" <<'PY'
+# masks and labels are read with an independent PNG reader (tests/cli/png_ref.py)
+REFDIR="$(cd "$(dirname "$0")" && pwd)"
+"$PYTHON" - "$T/sc" "$REFDIR" <<'PY'
 import json, os, sys
 import numpy as np
 sys.path.insert(0, sys.argv[2])
-import png8
+import png_ref
 d = sys.argv[1]
 os.makedirs(os.path.join(d, 'ignore'), exist_ok=True)
 seq = json.load(open(os.path.join(d, 'sequence.json')))
 for i, fr in enumerate(seq['frames']):
-    lab = png8.read(os.path.join(d, fr['labels']))
+    lab = png_ref.read_gray8(os.path.join(d, fr['labels']))
     m = np.where(lab == 4, 255, 0).astype(np.uint8)
     h, w = m.shape
     with open(os.path.join(d, 'ignore', '%06d.pgm' % i), 'wb') as fh:
@@ -221,17 +185,17 @@ expect_error "ignore masks without polarity: one line" "$T/i0/pairs" "ignore_pol
 # ign_check DIR POL: bit 16 of every pair's mask.png == (ignore mask of frame i nonzero)
 # (or == zero for POL zero); no match row starts on an ignored pixel
 ign_check() {
-    "$PYTHON" - "$1" "$T/sc" "$2" "$T" <<'PY'
+    "$PYTHON" - "$1" "$T/sc" "$2" "$REFDIR" <<'PY'
 import json, os, sys
 import numpy as np
 sys.path.insert(0, sys.argv[4])
-import png8
+import png_ref
 run, sc, pol = sys.argv[1:4]
 for p in sorted(os.listdir(os.path.join(run, 'pairs'))):
     i = int(p.split('-')[0])
     ign = np.load(os.path.join(sc, 'ignore', '%06d.npy' % i))
     want = ign != 0 if pol == 'nonzero' else ign == 0
-    mask = png8.read(os.path.join(run, 'pairs', p, 'mask.png'))
+    mask = png_ref.read_gray8(os.path.join(run, 'pairs', p, 'mask.png'))
     got = (mask & 16) != 0
     assert (got == want).all(), (p, int((got != want).sum()))
     m = np.load(os.path.join(run, 'pairs', p, 'matches.npy'))

@@ -45,7 +45,24 @@ struct sinew_estimator {
     size_t work_floats;
     unsigned char *mask;
     float *pu, *pv; /* patch flows */
+    /* large-displacement stage at level lm_level (0 = off for this size): seed flows and
+     * costs forward (0) and backward (1), forward-backward flags */
+    int lm_level, lm_nx, lm_ny;
+    int *lm_f[2][3];
+    unsigned char *lm_ok[2];
 };
+
+/* Large-displacement stage constants (docs/methods.md) */
+#define LM_WIDTH 512           /* working level: the finest at most this wide (and >= level 1) */
+#define LM_MIN 16              /* ... and at least this many pixels on each side */
+#define LM_STEP 3              /* seed grid step at that level (Hu et al. 2016: d = 3) */
+#define LM_ITERS 8             /* PatchMatch iterations */
+#define LM_SAMPLES 8           /* uniform draws over the frame per seed and iteration */
+#define LM_SUPPORT 6           /* a kept seed needs this many agreeing kept neighbours in 5x5 */
+#define LM_NOISE (2.f / 255.f) /* ... and the coarse-to-fine one differs by more */
+#define LM_MARGIN 0.5f         /* the interpolated start wins a region if its cost x 1.5 is lower */
+#define LM_DEPTH 5             /* descriptor pyramid levels (Hu et al. 2016: k = 5) */
+#define LM_RADIUS 4            /* random-search radius below the coarsest level, px */
 
 int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
 {
@@ -76,6 +93,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         .wmedian_levels = SINEW__MAX_LEVELS,
         .wmedian_band = 0.5f,
         .fuse_levels = 0,
+        .large_motion = 0,
         .color = 1,
         .hs_iters = 0,
         .work_mib = 32,
@@ -98,6 +116,7 @@ int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
         d.inner = 15;
         d.median = 2;
         d.fuse_levels = 2;
+        d.large_motion = 1;
     } else if (!strcmp(name, "baseline")) {
         d.method = SINEW_FLOW_HORN_SCHUNCK;
         d.dis_finest = -1;
@@ -149,6 +168,7 @@ int sinew_flow_params_check(sinew_ctx *ctx, const sinew_flow_params *p)
     RANGE_I(wmedian_levels, 1, SINEW__MAX_LEVELS);
     RANGE_F(wmedian_band, 1e-6, 1e6);
     RANGE_I(fuse_levels, 0, SINEW__MAX_LEVELS);
+    RANGE_I(large_motion, 0, 1);
     RANGE_I(color, 0, 1);
     RANGE_I(hs_iters, 0, 10000);
     RANGE_I(work_mib, 1, 65536);
@@ -184,6 +204,15 @@ static void release_buffers(sinew_estimator *e)
         sinew__free(ctx, *planes[i]);
         *planes[i] = NULL;
     }
+    for (int d = 0; d < 2; d++) {
+        for (int k = 0; k < 3; k++) {
+            sinew__free(ctx, e->lm_f[d][k]);
+            e->lm_f[d][k] = NULL;
+        }
+        sinew__free(ctx, e->lm_ok[d]);
+        e->lm_ok[d] = NULL;
+    }
+    e->lm_level = 0;
     sinew__free(ctx, e->mask);
     e->mask = NULL;
     e->w = e->h = e->channels = e->levels = 0;
@@ -235,6 +264,23 @@ static int computed_finest(const sinew_flow_params *p, int levels)
     return p->finest_level < levels - 1 ? p->finest_level : levels - 1;
 }
 
+/* Working level of the large-displacement stage for a frame size, 0 = none. */
+static int pick_lm_level(const sinew_flow_params *p, int w, int h, int levels)
+{
+    if (!p->large_motion || p->method != SINEW_FLOW_VARIATIONAL)
+        return 0;
+    int finest = computed_finest(p, levels);
+    for (int s = finest > 1 ? finest : 1; s < levels; s++) {
+        int lw, lh;
+        sinew__level_size(w, h, s, &lw, &lh);
+        if (lw < LM_MIN || lh < LM_MIN)
+            return 0;
+        if (lw <= LM_WIDTH)
+            return s;
+    }
+    return 0;
+}
+
 static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
 {
     int levels = pick_levels(&e->p, w, h);
@@ -249,7 +295,31 @@ static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
         e->pyr_mem[i] = alloc_floats(ctx, pf, &fail);
     e->u = alloc_floats(ctx, n, &fail);
     e->v = alloc_floats(ctx, n, &fail);
-    e->gp = (n + 15u) & ~(size_t)15u;
+    e->gp = n;
+    int lm = pick_lm_level(&e->p, w, h, levels), lw = 0, lh = 0;
+    if (lm > 0) {
+        /* lm_level keeps three planes of the level in the full-size u (and v) */
+        sinew__level_size(w, h, lm, &lw, &lh);
+        if (3 * (((size_t)lw * (size_t)lh + 15u) & ~(size_t)15u) > n)
+            lm = 0;
+    }
+    if (lm > 0) {
+        /* the stage keeps both frames' descriptors in g (level lm: >= level 1, so at most
+         * a quarter of the pixels, rounded up per side) */
+        sinew__level_size(w, h, lm, &lw, &lh);
+        size_t need = (size_t)lw * (size_t)lh * SINEW__DESC_BYTES / (2 * sizeof(float));
+        if (need > e->gp)
+            e->gp = need;
+        sinew__pm_grid(lw, lh, LM_STEP, &e->lm_nx, &e->lm_ny);
+        size_t ns = (size_t)e->lm_nx * (size_t)e->lm_ny;
+        for (int d = 0; d < 2; d++) {
+            for (int k = 0; k < 3; k++)
+                e->lm_f[d][k] = alloc_floats(ctx, ns, &fail); /* ints, same size */
+            e->lm_ok[d] = fail ? NULL : sinew__alloc(ctx, ns);
+            fail |= !e->lm_ok[d];
+        }
+    }
+    e->gp = (e->gp + 15u) & ~(size_t)15u;
     e->g = alloc_floats(ctx, 4 * e->gp, &fail);
     /* solver work for the finest computed level (coarser levels need less) */
     int fw, fh;
@@ -259,6 +329,8 @@ static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
     size_t wf = sinew__var_work(channels, fw, fh, budget);
     if (e->p.method == SINEW_FLOW_HORN_SCHUNCK)
         wf = (size_t)sinew__hs_planes() * fn;
+    if (lm > 0 && wf < sinew__describe_rows_floats(lw))
+        wf = sinew__describe_rows_floats(lw);
     e->work_floats = wf;
     e->work = alloc_floats(ctx, wf, &fail);
     /* patch grid at the finest level that may run patch search (level 0 worst case) */
@@ -283,6 +355,7 @@ static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
     e->h = h;
     e->channels = channels;
     e->levels = levels;
+    e->lm_level = lm;
     e->cur0 = 0;
     return SINEW_OK;
 }
@@ -364,9 +437,145 @@ static void copy_flow(float *du, float *dv, const float *su, const float *sv, si
     memcpy(dv, sv, n * sizeof(float));
 }
 
-/* Coarse-to-fine estimation from pyramid a to pyramid b into the interleaved image out. */
+_Static_assert(sizeof(int) == sizeof(float), "int planes share float storage");
+
+/* Large-displacement stage, matching part: descriptors of both frames at the working
+ * level (in g), seed matches both ways, forward-backward flags. */
+static void lm_match(sinew_estimator *e, const sinew__pyramid *a, const sinew__pyramid *b)
+{
+    int nt = sinew_ctx_threads(e->ctx), s0 = e->lm_level;
+    int w0 = a->lv[s0].w, h0 = a->lv[s0].h;
+    /* descriptor pyramid: from the coarsest level of at least LM_MIN px a side, at most
+     * LM_DEPTH levels above the working level, down to the working level */
+    int top = s0;
+    while (top + 1 < e->levels && top + 1 < s0 + LM_DEPTH && a->lv[top + 1].w >= LM_MIN &&
+           a->lv[top + 1].h >= LM_MIN)
+        top++;
+    sinew__pm_params pp = {LM_STEP, LM_ITERS, LM_SAMPLES, LM_RADIUS};
+    int **f = e->lm_f[0], **r = e->lm_f[1];
+    for (int s = top; s >= s0; s--) {
+        const sinew__level *la = &a->lv[s], *lb = &b->lv[s];
+        int w = la->w, h = la->h, init = s < top;
+        unsigned char *d0 = (unsigned char *)e->g;
+        unsigned char *d1 = d0 + (size_t)w * (size_t)h * SINEW__DESC_BYTES;
+        sinew__describe(d0, la->lum, w, h, e->work, e->work_floats, nt);
+        sinew__describe(d1, lb->lum, w, h, e->work, e->work_floats, nt);
+        sinew__pm_level(f[0], f[1], f[2], d0, d1, w, h, w0, h0, s - s0, init, &pp, 0x5157u, nt);
+        sinew__pm_level(r[0], r[1], r[2], d1, d0, w, h, w0, h0, s - s0, init, &pp, 0xB157u, nt);
+    }
+    sinew__pm_check(e->lm_ok[0], f[0], f[1], r[0], r[1], w0, h0, LM_STEP);
+    sinew__pm_check(e->lm_ok[1], r[0], r[1], f[0], f[1], w0, h0, LM_STEP);
+    /* the cost planes are free now: scratch for the support test */
+    sinew__pm_support(e->lm_ok[0], (unsigned char *)f[2], f[0], f[1], e->lm_nx, e->lm_ny, LM_STEP,
+                      LM_SUPPORT);
+    sinew__pm_support(e->lm_ok[1], (unsigned char *)r[2], r[0], r[1], e->lm_nx, e->lm_ny, LM_STEP,
+                      LM_SUPPORT);
+}
+
+/* Interpolate direction dir's kept seeds at level l0 into g (planes 0, 1: flow; 2:
+ * geodesic distance; 3: labels). Returns the number of seeds used. */
+static int lm_interpolate(sinew_estimator *e, const sinew__level *l0, int dir)
+{
+    sinew__seeds sd = {e->lm_nx,        e->lm_ny,        LM_STEP,
+                       e->lm_f[dir][0], e->lm_f[dir][1], e->lm_ok[dir]};
+    float *g = e->g;
+    return sinew__interpolate(g, g + e->gp, g + 2 * e->gp, (int *)(g + 3 * e->gp), l0->lum, l0->w,
+                              l0->h, &sd, sinew_ctx_threads(e->ctx));
+}
+
+/* One level of the coarse-to-fine schedule on (u, v), already at this level's size:
+ * patch search, then the warping steps with their filters. */
+static void refine_level(sinew_estimator *e, float *u, float *v, sinew__level *l0, sinew__level *l1,
+                         int s)
+{
+    const sinew_flow_params *p = &e->p;
+    int nt = sinew_ctx_threads(e->ctx);
+    int finest = computed_finest(p, e->levels);
+    float *gu = e->g, *gv = e->g + e->gp;
+    size_t n = (size_t)l0->w * (size_t)l0->h;
+    sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters, 0.f};
+    sinew__var_params vp = {p->alpha, p->gamma, p->delta, p->edge,
+                            p->eps,   p->omega, p->outer, p->inner};
+    /* weighted-median constants: flow/wmedian.c */
+    sinew__wmed_params wp = {p->wmedian, 7.f, 10.f, 0.3f, 10.f, p->wmedian_band};
+    int var = p->method == SINEW_FLOW_VARIATIONAL;
+    int grads = 0; /* g holds this level's gradients */
+    if (p->dis_finest >= 0 && s >= p->dis_finest && l0->w >= p->dis_patch &&
+        l0->h >= p->dis_patch) {
+        level_gradients(e, l0, l1, nt);
+        grads = 1;
+        /* a patch may move up to one patch size from its start, half of that at the
+         * two finest patch levels, where the coarse flow is already close and
+         * repeated texture (facades, stripes) offers wrong minima one period away */
+        dp.max_move = (float)p->dis_patch * (s <= p->dis_finest + 1 ? 0.5f : 1.0f);
+        sinew__dis_level(u, v, l0, l1, &dp, e->pu, e->pv, e->work, e->work_floats, nt);
+    }
+    int nw = p->warps_fine > 0 && s < finest + p->fine_levels ? p->warps_fine : p->warps;
+    for (int k = 0; k < nw; k++) {
+        if (!var) {
+            sinew__hs_level(u, v, l0, l1, p->alpha, p->hs_iters, e->work, e->mask, nt);
+        } else {
+            if (!grads)
+                level_gradients(e, l0, l1, nt);
+            grads = 1;
+            sinew__var_level(u, v, l0, l1, e->channels, &vp, e->work, e->work_floats, e->mask, nt);
+        }
+        /* filters write the new flow to g (the gradients there are recomputed when
+         * needed again), then it is copied back */
+        int wm = p->wmedian > 0 && s < finest + p->wmedian_levels;
+        if (p->median > 0) {
+            sinew__median(gu, u, l0->w, l0->h, p->median, nt);
+            sinew__median(gv, v, l0->w, l0->h, p->median, nt);
+        } else if (wm) {
+            copy_flow(gu, gv, u, v, n);
+        }
+        /* boundary pixels: weighted median of the flow before the plain median */
+        if (wm)
+            sinew__wmedian(gu, gv, u, v, l0, l1, e->channels, &wp, e->work, e->work_floats, nt);
+        if (p->median > 0 || wm) {
+            copy_flow(u, v, gu, gv, n);
+            grads = 0;
+        }
+        /* once per level, so the later warps refine what it chose */
+        if (k == 0 && s < finest + p->fuse_levels) {
+            sinew__fuse(gu, gv, u, v, l0, l1, e->channels, p->wmedian_band, nt);
+            copy_flow(u, v, gu, gv, n);
+            grads = 0;
+        }
+    }
+}
+
+/* The working level of the large-displacement stage: the level is refined twice, from
+ * the coarse-to-fine flow (u, v) and from the interpolated seed matches; per region of
+ * the interpolation (the pixels nearest to one seed) the refined flow that matches frame
+ * 1 better wins. The unused upper parts of the full-size planes u, v hold the copies
+ * (the level has at most a quarter of the pixels; ensure_buffers checks 3 fit). */
+static void lm_level(sinew_estimator *e, float *u, float *v, sinew__level *l0, sinew__level *l1,
+                     int s, int dir)
+{
+    size_t n = (size_t)l0->w * (size_t)l0->h, off = (n + 15u) & ~(size_t)15u;
+    float *cu = u + off, *cv = v + off, *iu = u + 2 * off, *iv = v + 2 * off;
+    if (!lm_interpolate(e, l0, dir)) {
+        refine_level(e, u, v, l0, l1, s);
+        return;
+    }
+    copy_flow(cu, cv, u, v, n);
+    copy_flow(u, v, e->g, e->g + e->gp, n);
+    refine_level(e, u, v, l0, l1, s);
+    copy_flow(iu, iv, u, v, n);
+    copy_flow(u, v, cu, cv, n);
+    refine_level(e, u, v, l0, l1, s);
+    lm_interpolate(e, l0, dir); /* the labels again (g was reused) */
+    float *g = e->g;
+    sinew__fuse_regions(u, v, iu, iv, (const int *)(g + 3 * e->gp), e->lm_nx * e->lm_ny, g,
+                        g + e->gp, (float *)e->lm_f[0][2], (float *)e->lm_f[1][2], LM_MARGIN,
+                        LM_NOISE, l0, l1, e->channels, sinew_ctx_threads(e->ctx));
+}
+
+/* Coarse-to-fine estimation from pyramid a to pyramid b into the interleaved image out;
+ * dir: 0 forward, 1 backward (which seed matches the large-displacement stage uses). */
 static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyramid *a,
-                         const sinew__pyramid *b)
+                         const sinew__pyramid *b, int dir)
 {
     const sinew_flow_params *p = &e->p;
     int nt = sinew_ctx_threads(e->ctx);
@@ -378,67 +587,18 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
         memset(u, 0, n * sizeof(float));
         memset(v, 0, n * sizeof(float));
     }
-    sinew__dis_params dp = {p->dis_patch, p->dis_stride, p->dis_iters, 0.f}; /* move: per level */
-    sinew__var_params vp = {p->alpha, p->gamma, p->delta, p->edge,
-                            p->eps,   p->omega, p->outer, p->inner};
-    /* weighted-median constants: flow/wmedian.c */
-    sinew__wmed_params wp = {p->wmedian, 7.f, 10.f, 0.3f, 10.f, p->wmedian_band};
-    int var = p->method == SINEW_FLOW_VARIATIONAL;
     for (int s = top; s >= finest; s--) {
         sinew__level l0 = a->lv[s], l1 = b->lv[s];
-        size_t n = (size_t)l0.w * (size_t)l0.h;
         if (s < top) {
             /* the coarse flow moves to g, the upsampled one fills (u, v) */
             const sinew__level *up = &a->lv[s + 1];
             copy_flow(gu, gv, u, v, (size_t)up->w * (size_t)up->h);
             sinew__flow_up(u, v, l0.w, l0.h, gu, gv, up->w, up->h, nt);
         }
-        int grads = 0; /* g holds this level's gradients */
-        if (p->dis_finest >= 0 && s >= p->dis_finest && l0.w >= p->dis_patch &&
-            l0.h >= p->dis_patch) {
-            level_gradients(e, &l0, &l1, nt);
-            grads = 1;
-            /* a patch may move up to one patch size from its start, half of that at the
-             * two finest patch levels, where the coarse flow is already close and
-             * repeated texture (facades, stripes) offers wrong minima one period away */
-            dp.max_move = (float)p->dis_patch * (s <= p->dis_finest + 1 ? 0.5f : 1.0f);
-            sinew__dis_level(u, v, &l0, &l1, &dp, e->pu, e->pv, e->work, e->work_floats, nt);
-        }
-        int nw = p->warps_fine > 0 && s < finest + p->fine_levels ? p->warps_fine : p->warps;
-        for (int k = 0; k < nw; k++) {
-            if (!var) {
-                sinew__hs_level(u, v, &l0, &l1, p->alpha, p->hs_iters, e->work, e->mask, nt);
-            } else {
-                if (!grads)
-                    level_gradients(e, &l0, &l1, nt);
-                grads = 1;
-                sinew__var_level(u, v, &l0, &l1, e->channels, &vp, e->work, e->work_floats, e->mask,
-                                 nt);
-            }
-            /* filters write the new flow to g (the gradients there are recomputed when
-             * needed again), then it is copied back */
-            int wm = p->wmedian > 0 && s < finest + p->wmedian_levels;
-            if (p->median > 0) {
-                sinew__median(gu, u, l0.w, l0.h, p->median, nt);
-                sinew__median(gv, v, l0.w, l0.h, p->median, nt);
-            } else if (wm) {
-                copy_flow(gu, gv, u, v, n);
-            }
-            /* boundary pixels: weighted median of the flow before the plain median */
-            if (wm)
-                sinew__wmedian(gu, gv, u, v, &l0, &l1, e->channels, &wp, e->work, e->work_floats,
-                               nt);
-            if (p->median > 0 || wm) {
-                copy_flow(u, v, gu, gv, n);
-                grads = 0;
-            }
-            /* once per level, so the later warps refine what it chose */
-            if (k == 0 && s < finest + p->fuse_levels) {
-                sinew__fuse(gu, gv, u, v, &l0, &l1, e->channels, p->wmedian_band, nt);
-                copy_flow(u, v, gu, gv, n);
-                grads = 0;
-            }
-        }
+        if (s == e->lm_level && e->lm_level > 0)
+            lm_level(e, u, v, &l0, &l1, s, dir);
+        else
+            refine_level(e, u, v, &l0, &l1, s);
     }
     if (finest > 0) {
         /* upsample straight into the output: the full-size planes stay untouched (and
@@ -494,8 +654,10 @@ int sinew_estimator_run(sinew_estimator *est, sinew_image *fwd, sinew_image *bwd
     if ((st = remember_last1(est, frame1)))
         return st;
     const sinew__pyramid *p0 = &est->pyr[est->cur0], *p1 = &est->pyr[1 - est->cur0];
-    estimate_dir(est, fwd, p0, p1);
+    if (est->lm_level > 0)
+        lm_match(est, p0, p1);
+    estimate_dir(est, fwd, p0, p1, 0);
     if (bwd)
-        estimate_dir(est, bwd, p1, p0);
+        estimate_dir(est, bwd, p1, p0, 1);
     return SINEW_OK;
 }

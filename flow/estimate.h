@@ -57,6 +57,13 @@ typedef struct sinew_flow_params {
                            a nearby pixel's flow when that one matches frame 1 clearly
                            better; same boundary test) after the first warp of each of the
                            finest this many computed levels, 0..12; 0 = off */
+    int large_motion;   /* large-displacement stage: 1 = on (accurate), 0 = off (fast,
+                           balanced, baseline; balanced regressed on Middlebury Urban3). Descriptor
+                           matching of seeds by PatchMatch,   forward-backward check, edge-preserving
+                           interpolation at the   finest pyramid level at most 512 px wide (level >=
+                           1);   per   pixel the interpolated or the coarse-to-fine flow, whichever
+                           matches   frame 1 better, then starts that level's refinement
+                           (docs/methods.md) */
     int color;          /* 1: RGB frames use a 3-channel data term; 0: luminance only */
     int hs_iters;       /* Jacobi iterations per warp for SINEW_FLOW_HORN_SCHUNCK */
     int work_mib;       /* solver scratch budget in MiB, 1..65536 (presets: 32). A level whose

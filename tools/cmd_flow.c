@@ -57,6 +57,9 @@ static void usage(FILE *out)
             "                        within 5x5 pixels\n"
             "  --fuse-levels N       candidate selection near motion boundaries at the\n"
             "                        finest N computed levels (0 = off)\n"
+            "  --large-motion N      large-displacement stage: descriptor matching and\n"
+            "                        edge-preserving interpolation at half size or less\n"
+            "                        (1 = on: accurate; 0 = off: the others)\n"
             "  --gray                use luminance only, even for colour frames\n"
             "  --work-mib N          solver scratch budget in MiB (default 32); larger\n"
             "                        images are solved in overlapping bands of rows\n"
@@ -94,6 +97,7 @@ enum {
     O_FINE_LEVELS,
     O_WMEDIAN_BAND,
     O_FUSE_LEVELS,
+    O_LARGE,
     O_GRAY,
     O_WORK_MIB
 };
@@ -168,6 +172,9 @@ static int set_param(sinew_flow_params *p, int opt, const char *arg)
     case O_FUSE_LEVELS:
         p->fuse_levels = (int)iv;
         break;
+    case O_LARGE:
+        p->large_motion = (int)iv;
+        break;
     case O_WORK_MIB:
         p->work_mib = (int)iv;
         break;
@@ -206,6 +213,7 @@ int cmd_flow(int argc, char **argv)
         {"wmedian-levels", required_argument, NULL, O_WMEDIAN_LEVELS},
         {"wmedian-band", required_argument, NULL, O_WMEDIAN_BAND},
         {"fuse-levels", required_argument, NULL, O_FUSE_LEVELS},
+        {"large-motion", required_argument, NULL, O_LARGE},
         {"gray", no_argument, NULL, O_GRAY},
         {"work-mib", required_argument, NULL, O_WORK_MIB},
         {NULL, 0, NULL, 0},

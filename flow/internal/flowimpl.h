@@ -10,6 +10,7 @@
 
 #include <math.h>
 #include <stddef.h>
+#include <stdint.h>
 
 #include "flow/core.h"
 
@@ -179,6 +180,65 @@ void sinew__wmedian(float *uo, float *vo, const float *u, const float *v, const 
  * pixel's 3x3 neighbourhood in frame 1 clearly better. */
 void sinew__fuse(float *uo, float *vo, const float *u, const float *v, const sinew__level *l0,
                  const sinew__level *l1, int channels, float band, int nt);
+
+/* Per region (pixels sharing a label in 0..nlabels-1; -1 = none), take (ua, va) instead
+ * of (u, v) where (1 + margin) times its summed truncated colour difference to frame 1
+ * over the region is below that of (u, v) minus `noise` per pixel (so a region that
+ * (u, v) already explains to within noise keeps it). pa, pc: w*h floats of scratch each; sa,
+ * sc: nlabels floats each. */
+void sinew__fuse_regions(float *u, float *v, const float *ua, const float *va, const int *label,
+                         int nlabels, float *pa, float *pc, float *sa, float *sc, float margin,
+                         float noise, const sinew__level *l0, const sinew__level *l1, int channels,
+                         int nt);
+
+/* ---- large-displacement stage: descriptors, seed matching, interpolation ---- */
+#define SINEW__DESC_BYTES 32
+/* Scratch floats sinew__describe needs at least (one output row) for width w. */
+size_t sinew__describe_rows_floats(int w);
+/* Dense descriptors (flow/descriptor.c) of a w x h luminance plane into desc (w*h*32
+ * bytes, pixel-major). work: work_floats >= sinew__describe_rows_floats(w). */
+void sinew__describe(unsigned char *desc, const float *lum, int w, int h, float *work,
+                     size_t work_floats, int nt);
+
+typedef struct sinew__pm_params {
+    int step;    /* seed grid step, px */
+    int iters;   /* PatchMatch iterations */
+    int samples; /* uniform draws over the whole frame per seed and iteration */
+    int radius;  /* random-search radius at levels started from a coarser one, px */
+} sinew__pm_params;
+/* Seed grid size: seeds at (i * step + step / 2, j * step + step / 2), clamped. */
+void sinew__pm_grid(int w, int h, int step, int *nx, int *ny);
+/* One level of coarse-to-fine PatchMatch (flow/patchmatch.c): integer seed flows (fu, fv)
+ * and descriptor costs from d0 to d1 (w x h). The seed grid belongs to the w0 x h0 level
+ * `shift` levels finer (positions shifted right by shift). init = 0: start from zero
+ * flow and search the whole frame; 1: start from (fu, fv) of the next coarser level,
+ * doubled, and search within p->radius. key seeds the random draws. */
+void sinew__pm_level(int *fu, int *fv, int *cost, const unsigned char *d0, const unsigned char *d1,
+                     int w, int h, int w0, int h0, int shift, int init, const sinew__pm_params *p,
+                     uint64_t key, int nt);
+/* Forward-backward test of forward seeds (fu, fv) against backward seeds (bu, bv): ok[s] = 1
+ * where consistent. Returns the number kept. */
+int sinew__pm_check(unsigned char *ok, const int *fu, const int *fv, const int *bu, const int *bv,
+                    int w, int h, int step);
+
+/* Keep only kept seeds with at least `need` kept neighbours in their 5x5 grid window whose
+ * flow is within `tol` px (tmp: nx*ny bytes). Returns the number kept. */
+int sinew__pm_support(unsigned char *ok, unsigned char *tmp, const int *fu, const int *fv, int nx,
+                      int ny, int tol, int need);
+
+/* Seed matches on a grid (sinew__pm_grid) at one level: flows and a keep flag per seed. */
+typedef struct sinew__seeds {
+    int nx, ny, step;
+    const int *fu, *fv;
+    const unsigned char *ok;
+} sinew__seeds;
+/* Geodesic labelling (flow/interpolate.c): dist, label hold 0 / a seed index at seeds and
+ * FLT_MAX / -1 elsewhere on entry; on return every pixel reachable has its nearest seed. */
+void sinew__geodesic_label(float *dist, int *label, const float *c, int w, int h);
+/* Dense (u, v) at a w x h level from the kept seeds, edge-preserving (flow/interpolate.c).
+ * dist, label: w*h scratch each. Returns the number of seeds used (0: u, v untouched). */
+int sinew__interpolate(float *u, float *v, float *dist, int *label, const float *lum, int w, int h,
+                       const sinew__seeds *sd, int nt);
 
 /* ---- coarse-to-fine Horn-Schunck baseline (Horn and Schunck 1981) ---- */
 int sinew__hs_planes(void);

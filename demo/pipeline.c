@@ -65,7 +65,7 @@ int main(void)
 
     /* 3. Forward-backward check: reason mask and confidence. */
     sinew_check_input ci = {&fwd, &bwd, &c0, &c1, NULL, NULL};
-    sinew_check_output co = {NULL, &mask, &conf, {0}};
+    sinew_check_output co = {NULL, &mask, &conf, {0}, NULL};
     if ((rc = sinew_image_alloc(ctx, &mask, W, H, 1, SINEW_U8)) ||
         (rc = sinew_image_alloc(ctx, &conf, W, H, 1, SINEW_F32)) ||
         (rc = sinew_check_run(ctx, &co, &ci, NULL)))

@@ -44,15 +44,32 @@ void sinew_check_params_default(sinew_check_params *p)
     p->saturation_level = 0.98;
     p->texture_radius = 2;
     p->ignore_polarity = SINEW_IGNORE_UNSET;
-    /* Confidence score: tuned for AUSE (docs/methods.md, "Tuning"). */
+    /* Confidence cue scales (docs/methods.md, "Confidence"). */
     p->conf_fb_alpha = 0.0;
     p->conf_fb_beta = 0.03;
     p->conf_photo_scale = 0.1;
     p->conf_texture_scale = 4e-5;
-    p->conf_texture_weight = 0.1;
     p->conf_boundary_scale = 6.0;
-    p->conf_boundary_weight = 0.1;
-    p->conf_saturated = 0.5;
+    /* Logistic calibration, printed by tools/fit_confidence (docs/methods.md). */
+    p->conf_bias = 7.9317;
+    p->conf_k_fb = 1.0755;
+    p->conf_k_photo = 0.0;
+    p->conf_k_texture = 1.3561;
+    p->conf_k_boundary = 3.7462;
+    p->conf_k_motion = 1.4353;
+    p->conf_k_outside = 2.3138;
+    p->conf_k_saturated = 0.0039;
+}
+
+static const char *const feature_names[SINEW_CHECK_NFEATURES] = {
+    "fb", "photo", "texture", "boundary", "motion", "outside", "saturated",
+};
+
+const char *sinew_check_feature_name(int i)
+{
+    if (i < 0 || i >= SINEW_CHECK_NFEATURES)
+        return NULL;
+    return feature_names[i];
 }
 
 static const char *const bit_names[SINEW_MASK_NBITS] = {
@@ -93,10 +110,15 @@ size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *o
         {"conf_fb_beta", p->conf_fb_beta},
         {"conf_photo_scale", p->conf_photo_scale},
         {"conf_texture_scale", p->conf_texture_scale},
-        {"conf_texture_weight", p->conf_texture_weight},
         {"conf_boundary_scale", p->conf_boundary_scale},
-        {"conf_boundary_weight", p->conf_boundary_weight},
-        {"conf_saturated", p->conf_saturated},
+        {"conf_k_fb", p->conf_k_fb},
+        {"conf_k_photo", p->conf_k_photo},
+        {"conf_k_texture", p->conf_k_texture},
+        {"conf_k_boundary", p->conf_k_boundary},
+        {"conf_k_motion", p->conf_k_motion},
+        {"conf_k_outside", p->conf_k_outside},
+        {"conf_k_saturated", p->conf_k_saturated},
+        {"conf_bias", p->conf_bias}, /* last: the only one that may be negative */
     };
     size_t n = max < SINEW_CHECK_NPARAMS ? max : SINEW_CHECK_NPARAMS;
     for (size_t i = 0; out && i < n; i++)
@@ -108,7 +130,7 @@ static int validate_params(sinew_ctx *ctx, const sinew_check_params *p)
 {
     sinew_check_param list[SINEW_CHECK_NPARAMS];
     sinew_check_params_list(p, list, SINEW_CHECK_NPARAMS);
-    for (size_t i = 0; i < SINEW_CHECK_NPARAMS; i++) {
+    for (size_t i = 0; i + 1 < SINEW_CHECK_NPARAMS; i++) {
         int st = check_param(ctx, list[i].name, list[i].value);
         if (st)
             return st;
@@ -120,8 +142,8 @@ static int validate_params(sinew_ctx *ctx, const sinew_check_params *p)
         return sinew__fail(ctx, SINEW_EINVAL,
                            "check: conf_photo_scale, conf_texture_scale and conf_boundary_scale "
                            "must be > 0");
-    if (p->conf_saturated > 1)
-        return sinew__fail(ctx, SINEW_EINVAL, "check: conf_saturated must be <= 1");
+    if (!isfinite(p->conf_bias))
+        return sinew__fail(ctx, SINEW_EINVAL, "check: parameter conf_bias must be finite");
     if (p->texture_radius < 0 || p->texture_radius > 64)
         return sinew__fail(ctx, SINEW_EINVAL, "check: texture_radius must be in 0..64");
     if (p->ignore_polarity != SINEW_IGNORE_UNSET && p->ignore_polarity != SINEW_IGNORE_NONZERO &&
@@ -729,35 +751,49 @@ static void pass_distance(scratch *s, int w, int h, int nthreads)
 
 /* ---- pass 6: confidence ---- */
 
-static void pass_confidence(const sinew_check_params *p, scratch *s, sinew_image *conf, int w,
-                            int h, int nthreads)
+static void pass_confidence(const sinew_check_input *in, const sinew_check_params *p, scratch *s,
+                            sinew_image *conf, float *features, int nthreads)
 {
     (void)nthreads; /* unused without OpenMP */
+    const sinew_image *F = in->forward;
+    int w = F->width, h = F->height;
+    const double k[SINEW_CHECK_NFEATURES] = {
+        p->conf_k_fb,     p->conf_k_photo,   p->conf_k_texture,  p->conf_k_boundary,
+        p->conf_k_motion, p->conf_k_outside, p->conf_k_saturated};
     SINEW_PARALLEL_FOR(nthreads)
     for (int y = 0; y < h; y++) {
         float *out = sinew_image_row_f32(conf, y);
+        const float *fr = sinew_image_row_f32(F, y);
         for (int x = 0; x < w; x++) {
-            size_t k = (size_t)y * w + x;
-            uint8_t m = s->mask[k];
-            if ((m & (SINEW_MASK_OUTSIDE | SINEW_MASK_IGNORE | SINEW_MASK_UNKNOWN)) ||
-                !isfinite(s->fbratio[k])) {
+            size_t i = (size_t)y * w + x;
+            uint8_t m = s->mask[i];
+            float *fo = features ? features + i * SINEW_CHECK_NFEATURES : NULL;
+            if (m & (SINEW_MASK_IGNORE | SINEW_MASK_UNKNOWN)) {
                 out[x] = 0;
+                for (int c = 0; fo && c < SINEW_CHECK_NFEATURES; c++)
+                    fo[c] = NAN;
                 continue;
             }
-            /* additive unreliability score, each term >= 0 */
-            double sc = sqrt(s->fbratio[k]);
-            if (s->resid && isfinite(s->resid[k]))
-                sc += s->resid[k] / p->conf_photo_scale;
+            double f[SINEW_CHECK_NFEATURES] = {0};
+            int outside = (m & SINEW_MASK_OUTSIDE) != 0;
+            if (!outside && isfinite(s->fbratio[i]))
+                f[0] = log1p(sqrt(s->fbratio[i]));
+            if (!outside && s->resid && isfinite(s->resid[i]))
+                f[1] = s->resid[i] / p->conf_photo_scale;
             if (s->lmin)
-                sc += p->conf_texture_weight * p->conf_texture_scale /
-                      (s->lmin[k] + p->conf_texture_scale);
-            double d2 = s->dist2[k];
-            if (d2 < s->big)
-                sc += p->conf_boundary_weight * exp(-sqrt(d2) / p->conf_boundary_scale);
-            double c = 1 / (1 + sc);
-            if (m & SINEW_MASK_SATURATED)
-                c *= p->conf_saturated;
-            out[x] = (float)c; /* in (0, 1]: every term >= 0, conf_saturated <= 1 */
+                f[2] = p->conf_texture_scale / (s->lmin[i] + p->conf_texture_scale);
+            if (s->dist2[i] < s->big)
+                f[3] = exp(-sqrt(s->dist2[i]) / p->conf_boundary_scale);
+            f[4] = log1p(hypot(fr[2 * x], fr[2 * x + 1]));
+            f[5] = outside;
+            f[6] = (m & SINEW_MASK_SATURATED) != 0;
+            double z = p->conf_bias;
+            for (int c = 0; c < SINEW_CHECK_NFEATURES; c++) {
+                z -= k[c] * f[c];
+                if (fo)
+                    fo[c] = (float)f[c];
+            }
+            out[x] = (float)(1 / (1 + exp(-z))); /* in [0, 1]; exp overflow gives 0 */
         }
     }
 }
@@ -845,7 +881,7 @@ int sinew_check_run(sinew_ctx *ctx, sinew_check_output *out, const sinew_check_i
         pass_texture(&s, w, h, params->texture_radius, nthreads);
     }
     pass_distance(&s, w, h, nthreads);
-    pass_confidence(params, &s, conf, w, h, nthreads);
+    pass_confidence(in, params, &s, conf, out->features, nthreads);
 
     stats.pixels = (int64_t)w * h;
     for (int y = 0; y < h; y++) {

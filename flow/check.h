@@ -76,21 +76,28 @@ typedef struct sinew_check_params {
     int texture_radius;
     /* Polarity of the ignore mask; must be set when an ignore mask is given. */
     sinew_ignore_polarity ignore_polarity;
-    /* Confidence c = c_sat / (1 + S) in [0, 1] (0 for OUTSIDE, IGNORE and UNKNOWN
-     * pixels), S a smooth unreliability score, the sum of
-     *   e / sqrt(conf_fb_alpha (|w|² + |ŵ|²) + conf_fb_beta)   FB error vs tolerance
-     *   r / conf_photo_scale                          photometric residual (frames)
-     *   conf_texture_weight * τ / (λmin + τ),  τ = conf_texture_scale   (frames)
-     *   conf_boundary_weight * exp(-d / conf_boundary_scale)
-     * with λmin the smallest structure-tensor eigenvalue of frame 0 ((intensity/px)²)
-     * and d the distance (px) to the nearest boundary pixel (term 0 without any);
-     * c_sat = conf_saturated for SATURATED pixels, else 1. Defaults were tuned for
-     * ranking (AUSE); see docs/methods.md. */
+    /* Confidence: an estimate of P(EPE <= 1 px), the chance that the forward vector at x
+     * is within 1 px of the truth, from a logistic calibration of the cues below
+     * (docs/methods.md, "Confidence"; constants fitted by tools/fit_confidence):
+     *   c = 1 / (1 + exp(-z)),  z = conf_bias - sum_i conf_k_<cue> f_<cue>,
+     * with the cues (features), each >= 0 and larger = less reliable:
+     *   fb       log(1 + e / sqrt(conf_fb_alpha (|w|² + |ŵ|²) + conf_fb_beta))  (0 if OUTSIDE)
+     *   photo    r / conf_photo_scale, r the photometric residual (0 w/o frames or OUTSIDE)
+     *   texture  τ / (λmin + τ), τ = conf_texture_scale, λmin the smallest structure-tensor
+     *            eigenvalue of frame 0 ((intensity/px)²; 0 without frames)
+     *   boundary exp(-d / conf_boundary_scale), d the distance (px) to the nearest
+     *            motion-boundary pixel (0 without any)
+     *   motion   log(1 + |w|) (|w| in px)
+     *   outside  1 if the target leaves frame 1, else 0
+     *   saturated 1 if SATURATED, else 0
+     * Every conf_k_* must be >= 0, so the confidence never rises with a cue (monotone);
+     * conf_bias may have any sign. c = 0 for IGNORE and UNKNOWN pixels (no vector to
+     * trust). */
     double conf_fb_alpha, conf_fb_beta;
-    double conf_photo_scale;
-    double conf_texture_scale, conf_texture_weight;
-    double conf_boundary_scale, conf_boundary_weight;
-    double conf_saturated;
+    double conf_photo_scale, conf_texture_scale, conf_boundary_scale;
+    double conf_bias;
+    double conf_k_fb, conf_k_photo, conf_k_texture, conf_k_boundary, conf_k_motion, conf_k_outside,
+        conf_k_saturated;
 } sinew_check_params;
 
 /* Fill *p with the defaults listed above. */
@@ -102,7 +109,7 @@ typedef struct sinew_check_param {
     const char *name; /* static storage */
     double value;
 } sinew_check_param;
-#define SINEW_CHECK_NPARAMS 18
+#define SINEW_CHECK_NPARAMS 23
 /* Copy min(max, SINEW_CHECK_NPARAMS) pairs into out (may be NULL when max is 0); returns
  * SINEW_CHECK_NPARAMS. */
 size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *out, size_t max);
@@ -133,17 +140,24 @@ typedef struct sinew_check_stats {
     int64_t fit_pixels;               /* pixels used by the final fit (0 w/o frames) */
 } sinew_check_stats;
 
+/* Number of confidence cues (features), in the order listed above. */
+#define SINEW_CHECK_NFEATURES 7
+
 /* Outputs, allocated by the caller with the flow's width and height; each may be NULL
  * (then it is computed in scratch memory and dropped):
  *   fb_error:   SINEW_F32 1 channel, |w(x) + ŵ(x + w(x))| in px; NaN when the target
  *               is outside frame 1 or a flow value involved is unknown.
  *   mask:       SINEW_U8 1 channel, bits SINEW_MASK_*.
- *   confidence: SINEW_F32 1 channel in [0, 1] (never NaN). */
+ *   confidence: SINEW_F32 1 channel in [0, 1] (never NaN).
+ *   features:   w * h * SINEW_CHECK_NFEATURES floats, pixel-major (row y, column x,
+ *               then cue): the confidence cues f_<cue> above; NaN for IGNORE and UNKNOWN
+ *               pixels. For refitting the calibration (tools/fit_confidence). */
 typedef struct sinew_check_output {
     sinew_image *fb_error;
     sinew_image *mask;
     sinew_image *confidence;
     sinew_check_stats stats; /* filled on success */
+    float *features;
 } sinew_check_output;
 
 /* Run the check. p = NULL uses the defaults. Returns SINEW_OK; EINVAL (NULL flow, bad
@@ -152,6 +166,9 @@ typedef struct sinew_check_output {
  * thread count of ctx. Outputs are undefined on failure. */
 int sinew_check_run(sinew_ctx *ctx, sinew_check_output *out, const sinew_check_input *in,
                     const sinew_check_params *p);
+
+/* Name of confidence cue i (0..SINEW_CHECK_NFEATURES-1), e.g. "fb"; NULL otherwise. */
+const char *sinew_check_feature_name(int i);
 
 /* Short name of mask bit i (0..SINEW_MASK_NBITS-1), e.g. "occluded"; NULL
  * otherwise. Static storage. */

@@ -416,3 +416,49 @@ int sinew_sparsification(sinew_ctx *ctx, const float *uncertainty, const float *
     sinew__free(ctx, tmp);
     return SINEW_OK;
 }
+
+int sinew_calibration_compute(sinew_ctx *ctx, sinew_calibration *out, const float *confidence,
+                              const float *error, size_t n, double threshold, int nbins)
+{
+    if (!ctx)
+        return SINEW_EINVAL;
+    if (!out || !confidence || !error || n < 1 || nbins < 1 || nbins > SINEW_CALIBRATION_MAX_BINS ||
+        !(threshold >= 0))
+        return sinew__fail(ctx, SINEW_EINVAL,
+                           "calibration: need n >= 1 values, 1..%d bins and a threshold >= 0",
+                           SINEW_CALIBRATION_MAX_BINS);
+    for (size_t i = 0; i < n; i++) {
+        if (!(confidence[i] >= 0.0f && confidence[i] <= 1.0f))
+            return sinew__fail(ctx, SINEW_EVALUE, "calibration: confidence %zu is not in [0, 1]",
+                               i);
+        if (!isfinite(error[i]) || error[i] < 0.0f)
+            return sinew__fail(ctx, SINEW_EVALUE,
+                               "calibration: error %zu is not a finite value >= 0", i);
+    }
+    memset(out, 0, sizeof *out);
+    out->nbins = nbins;
+    out->threshold = threshold;
+    out->n = (int64_t)n;
+    double csum[SINEW_CALIBRATION_MAX_BINS] = {0}, hits[SINEW_CALIBRATION_MAX_BINS] = {0};
+    for (size_t i = 0; i < n; i++) {
+        int b = (int)(confidence[i] * nbins);
+        if (b >= nbins)
+            b = nbins - 1;
+        out->count[b]++;
+        csum[b] += confidence[i];
+        hits[b] += error[i] <= threshold;
+    }
+    double ece = 0;
+    for (int b = 0; b < nbins; b++) {
+        if (!out->count[b]) {
+            out->mean_confidence[b] = out->observed[b] = NAN;
+            continue;
+        }
+        double c = (double)out->count[b];
+        out->mean_confidence[b] = csum[b] / c;
+        out->observed[b] = hits[b] / c;
+        ece += c / (double)n * fabs(out->observed[b] - out->mean_confidence[b]);
+    }
+    out->ece = ece;
+    return SINEW_OK;
+}

@@ -155,6 +155,33 @@ void sinew_mask_scores_rates(const sinew_mask_scores *s, double *precision, doub
 int sinew_sparsification(sinew_ctx *ctx, const float *uncertainty, const float *error, size_t n,
                          int steps, double *curve, double *oracle, double *ause);
 
+/* ---- confidence: calibration ------------------------------------------------------
+ * A confidence read as the probability that a pixel is correct, i.e. its error is at
+ * most `threshold` (sinew: P(EPE <= 1 px)). Reliability diagram and expected calibration
+ * error (Naeini, Cooper, Hauskrecht, AAAI 2015), pinned:
+ *   bin b (0..nbins-1) holds the pixels with b/nbins <= c < (b+1)/nbins (c = 1 in the
+ *   last bin); count[b] pixels, mean_confidence[b] their mean c, observed[b] their share
+ *   with error <= threshold (NaN for an empty bin);
+ *   ece = sum over non-empty bins of count[b]/n * |observed[b] - mean_confidence[b]|.
+ * Sums in double in index order (deterministic). */
+#define SINEW_CALIBRATION_MAX_BINS 100
+typedef struct sinew_calibration {
+    int nbins;
+    double threshold;
+    int64_t n;
+    int64_t count[SINEW_CALIBRATION_MAX_BINS];
+    double mean_confidence[SINEW_CALIBRATION_MAX_BINS];
+    double observed[SINEW_CALIBRATION_MAX_BINS];
+    double ece;
+} sinew_calibration;
+
+/* confidence: n values in [0, 1]; error: n finite values >= 0 (e.g. EPE in px);
+ * threshold >= 0; 1 <= nbins <= SINEW_CALIBRATION_MAX_BINS; n >= 1. *out overwritten.
+ * EINVAL (bad sizes or arguments), EVALUE (a value out of range; the message gives its
+ * index). */
+int sinew_calibration_compute(sinew_ctx *ctx, sinew_calibration *out, const float *confidence,
+                              const float *error, size_t n, double threshold, int nbins);
+
 #ifdef __cplusplus
 }
 #endif

@@ -677,7 +677,7 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
         (rc = ensure(ctx, &pl->fberr, w, h, 1, SINEW_F32)))
         return rc;
     sinew_check_input in = {&pl->fwd, &pl->bwd, f0, f1, NULL, NULL};
-    sinew_check_output out = {&pl->fberr, &pl->mask, &pl->conf, {0}};
+    sinew_check_output out = {&pl->fberr, &pl->mask, &pl->conf, {0}, NULL};
     sinew_check_params cp;
     sinew_check_params_default(&cp);
     if (s0->ignore.data) { /* the forward check rejects frame i's ignored pixels */

@@ -35,7 +35,10 @@ int cli_check_compute(const char *cmd, sinew_ctx *ctx, cli_check_result *r,
         (st = sinew_image_alloc(ctx, &r->mask, w, h, 1, SINEW_U8)) ||
         (st = sinew_image_alloc(ctx, &r->confidence, w, h, 1, SINEW_F32)))
         return cli_status(cmd, ctx, st);
-    sinew_check_output out = {&r->fb_error, &r->mask, &r->confidence, {0}};
+    if (paths->features &&
+        !(r->features = calloc((size_t)w * h * SINEW_CHECK_NFEATURES, sizeof *r->features)))
+        return cli_error(cmd, "out of memory");
+    sinew_check_output out = {&r->fb_error, &r->mask, &r->confidence, {0}, r->features};
     if ((st = sinew_check_run(ctx, &out, in, p)))
         return cli_status(cmd, ctx, st);
     r->stats = out.stats;
@@ -47,6 +50,8 @@ void cli_check_result_free(cli_check_result *r)
     sinew_image_free(&r->fb_error);
     sinew_image_free(&r->mask);
     sinew_image_free(&r->confidence);
+    free(r->features);
+    r->features = NULL;
 }
 
 cJSON *cli_check_json(const cli_check_result *r, const sinew_check_params *p,

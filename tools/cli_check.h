@@ -14,11 +14,13 @@
 /* Input and output paths as given on the command line (NULL = not given). */
 typedef struct cli_check_paths {
     const char *forward, *backward, *frame0, *frame1, *ignore, *dir;
+    const char *features; /* confidence cues table (.npy), or NULL */
 } cli_check_paths;
 
 /* Owned outputs of one check. */
 typedef struct cli_check_result {
     sinew_image fb_error, mask, confidence;
+    float *features; /* w * h * SINEW_CHECK_NFEATURES when paths->features, else NULL */
     sinew_check_stats stats;
 } cli_check_result;
 

@@ -53,6 +53,10 @@ static void usage(FILE *out)
             "                            (default 0.01, 0.125)\n"
             "  --photo-threshold T       residual limit, intensity in [0,1] (default 0.1)\n"
             "  --saturation-level S      clipped if all channels >= S of full scale (0.98)\n"
+            "  --features FILE           also write the confidence cues, a float32\n"
+            "                            (H*W) x %d .npy table (columns fb photo texture\n"
+            "                            boundary motion outside saturated), for\n"
+            "                            tools/fit_confidence\n"
             "  -t, --threads N           worker threads (0 = all cores, default)\n"
             "  -h, --help                this help\n"
             "\n"
@@ -63,7 +67,7 @@ static void usage(FILE *out)
             "  sinew score f01.flo gt.flo --confidence out/check/confidence.npy \\\n"
             "      --occ occ.png --mask out/check/mask.png     # rank and mask quality\n"
             "\n%s",
-            cli_notice);
+            SINEW_CHECK_NFEATURES, cli_notice);
 }
 
 enum {
@@ -77,7 +81,8 @@ enum {
     OPT_MB_ALPHA,
     OPT_MB_BETA,
     OPT_PHOTO,
-    OPT_SAT
+    OPT_SAT,
+    OPT_FEATURES
 };
 
 /* Read a flow field, naming the file in any error. */
@@ -122,6 +127,7 @@ int cmd_check(int argc, char **argv)
         {"photo-threshold", required_argument, NULL, OPT_PHOTO},
         {"saturation-level", required_argument, NULL, OPT_SAT},
         {"threads", required_argument, NULL, 't'},
+        {"features", required_argument, NULL, OPT_FEATURES},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -183,6 +189,9 @@ int cmd_check(int argc, char **argv)
         case OPT_SAT:
             bad = parse_param("--saturation-level", optarg, &p.saturation_level);
             break;
+        case OPT_FEATURES:
+            paths.features = optarg;
+            break;
         case 't':
             if (cli_parse_int(optarg, 0, 4096, &threads))
                 return cli_usage_error(CMD, "--threads needs an integer 0..4096, got '%s'", optarg);
@@ -232,6 +241,15 @@ int cmd_check(int argc, char **argv)
     }
     if (cli_check_write(CMD, ctx, &r, root, paths.dir))
         goto done;
+    if (paths.features) {
+        int st =
+            sinew_npy_write_table(ctx, paths.features, r.features,
+                                  (size_t)fwd.width * (size_t)fwd.height, SINEW_CHECK_NFEATURES);
+        if (st) {
+            cli_status(CMD, ctx, st);
+            goto done;
+        }
+    }
     cli_check_print_summary(stdout, &r);
     rc = CLI_OK;
 done:

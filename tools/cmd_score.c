@@ -117,7 +117,12 @@ typedef struct {
     size_t n;
     double ause;
     double curve[SPARSE_STEPS], oracle[SPARSE_STEPS];
+    sinew_calibration cal; /* confidence as P(EPE <= 1 px), valid when have */
 } sparse_result;
+
+/* The reliability diagram of a confidence (docs/methods.md): 10 bins, EPE <= 1 px. */
+#define CALIB_BINS 10
+#define CALIB_THRESHOLD_PX 1.0
 
 /* Sparsification over pixels where gt, estimate, confidence and the mask are known. */
 static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image *est,
@@ -126,7 +131,7 @@ static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image 
 {
     memset(out, 0, sizeof *out);
     sinew_image conf = {0}, epe = {0};
-    float *unc = NULL, *err = NULL;
+    float *unc = NULL, *err = NULL, *cf = NULL;
     const char *ext = strrchr(path, '.');
     int st = ext && !strcmp(ext, ".pfm") ? sinew_pfm_read_image(ctx, &conf, path)
                                          : sinew_npy_read_image(ctx, &conf, path);
@@ -150,7 +155,8 @@ static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image 
     size_t total = (size_t)gt->width * (size_t)gt->height;
     unc = malloc(total * sizeof *unc);
     err = malloc(total * sizeof *err);
-    if (!unc || !err) {
+    cf = malloc(total * sizeof *cf);
+    if (!unc || !err || !cf) {
         rc = cli_error(CMD, "out of memory");
         goto done;
     }
@@ -162,6 +168,7 @@ static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image 
             if (!isfinite(e[x]) || !isfinite(c[x]) || (m && !m[x]))
                 continue;
             unc[n] = 1.0f - c[x];
+            cf[n] = c[x] < 0 ? 0.0f : c[x] > 1 ? 1.0f : c[x];
             err[n] = e[x];
             n++;
         }
@@ -170,6 +177,9 @@ static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image 
     if (n > 0) {
         st = sinew_sparsification(ctx, unc, err, n, SPARSE_STEPS, out->curve, out->oracle,
                                   &out->ause);
+        if (!st)
+            st = sinew_calibration_compute(ctx, &out->cal, cf, err, n, CALIB_THRESHOLD_PX,
+                                           CALIB_BINS);
         if (st) {
             rc = cli_status(CMD, ctx, st);
             goto done;
@@ -179,6 +189,7 @@ static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image 
 done:
     free(unc);
     free(err);
+    free(cf);
     sinew_image_free(&conf);
     sinew_image_free(&epe);
     return rc;
@@ -293,6 +304,7 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
                                           cJSON_CreateDoubleArray(sp.curve, SPARSE_STEPS));
                     cJSON_AddItemToObject(s, "oracle",
                                           cJSON_CreateDoubleArray(sp.oracle, SPARSE_STEPS));
+                    score_json_calibration(root, &sp.cal);
                 } else {
                     cJSON_AddNullToObject(s, "ause");
                 }
@@ -330,6 +342,8 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
         score_fmt_val(a, sizeof a, sp.have ? sp.ause : NAN, "%.5f");
         printf("\nconfidence: AUSE %s (sparsification, %d steps, %zu pixels)\n", a, SPARSE_STEPS,
                sp.n);
+        if (sp.have)
+            score_text_calibration(stdout, &sp.cal);
     }
     rc = fflush(stdout) == 0 ? CLI_OK : cli_error(CMD, "stdout: write failed");
 done:

@@ -237,3 +237,41 @@ int score_write_csv(sinew_ctx *ctx, const char *path, const char *layout, const 
     st = sinew_outfile_commit(ctx, of);
     return st ? cli_status(CMD, ctx, st) : CLI_OK;
 }
+
+void score_json_calibration(cJSON *parent, const sinew_calibration *c)
+{
+    cJSON *o = cJSON_AddObjectToObject(parent, "calibration");
+    if (!o)
+        return;
+    cJSON_AddNumberToObject(o, "threshold_px", c->threshold);
+    cJSON_AddNumberToObject(o, "bins", c->nbins);
+    cJSON_AddNumberToObject(o, "n", (double)c->n);
+    sinew_json_add_number(o, "ece", c->ece);
+    cJSON *rel = cJSON_AddArrayToObject(o, "reliability");
+    for (int b = 0; rel && b < c->nbins; b++) {
+        cJSON *r = cJSON_CreateObject();
+        if (!r)
+            return;
+        cJSON_AddNumberToObject(r, "lo", (double)b / c->nbins);
+        cJSON_AddNumberToObject(r, "hi", (double)(b + 1) / c->nbins);
+        cJSON_AddNumberToObject(r, "n", (double)c->count[b]);
+        sinew_json_add_number(r, "confidence", c->mean_confidence[b]);
+        sinew_json_add_number(r, "observed", c->observed[b]);
+        cJSON_AddItemToArray(rel, r);
+    }
+}
+
+void score_text_calibration(FILE *f, const sinew_calibration *c)
+{
+    fprintf(f, "calibration: ECE %.4f (confidence as P(EPE <= %g px), %d bins, %lld pixels)\n",
+            c->ece, c->threshold, c->nbins, (long long)c->n);
+    fprintf(f, "  %-11s %9s %11s %9s\n", "bin", "pixels", "confidence", "observed");
+    for (int b = 0; b < c->nbins; b++) {
+        char m[32], ob[32];
+        score_fmt_val(m, sizeof m, c->mean_confidence[b], "%.4f");
+        score_fmt_val(ob, sizeof ob, c->observed[b], "%.4f");
+        fprintf(f, "  [%.2f, %.2f%c %9lld %11s %9s\n", (double)b / c->nbins,
+                (double)(b + 1) / c->nbins, b + 1 == c->nbins ? ']' : ')', (long long)c->count[b],
+                m, ob);
+    }
+}

@@ -50,6 +50,11 @@ void score_fmt_val(char *buf, size_t n, double v, const char *fmt);
 void score_text_header(FILE *f, const char *first, score_cols c);
 void score_text_row(FILE *f, const char *label, const sinew_flow_summary *s, double t, double ause,
                     score_cols c);
+/* Confidence calibration: "calibration" object (threshold_px, bins, n, ece, reliability
+ * rows {lo, hi, n, confidence, observed}) added to parent. */
+void score_json_calibration(cJSON *parent, const sinew_calibration *c);
+/* The reliability table and ECE as text. */
+void score_text_calibration(FILE *f, const sinew_calibration *c);
 /* Mean-of-pairs and pooled-pixels summaries of n rows. */
 int score_summarize_all(const score_row *rows, size_t n, score_summary *out);
 /* The CSV file (atomically): one line per row, then the summary lines when sum. */

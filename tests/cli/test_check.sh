@@ -83,7 +83,11 @@ assert fb.dtype == np.float32 and fb.shape == (8, 12), (fb.dtype, fb.shape)
 out = np.zeros((8, 12), bool); out[:, 11] = True; out[7, :] = True
 assert (m[out] == 2).all() and (m[~out] == 0).all(), m
 assert np.isnan(fb[out]).all() and (fb[~out] == 0).all()
-assert (c[out] == 0).all() and (c[~out] == 1).all()
+# confidence by hand: logistic calibration with the cues fb 0, motion log(1 + |w|),
+# outside 0 or 1 (docs/methods.md, Confidence)
+p = j['params']; z = p['conf_bias'] - p['conf_k_motion'] * np.log1p(np.hypot(1, 0.5))
+assert np.allclose(c[~out], 1 / (1 + np.exp(-z)), atol=1e-6), c
+assert np.allclose(c[out], 1 / (1 + np.exp(-(z - p['conf_k_outside']))), atol=1e-6), c
 assert (c16 == np.round(c * 65535)).all()
 assert j['counts']['outside'] == 19 and j['counts']['kept'] == 77, j['counts']
 # Sundaram, Brox, Keutzer ECCV 2010 defaults

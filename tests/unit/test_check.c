@@ -93,6 +93,19 @@ static void texture_u8(sinew_ctx *ctx, sinew_image *img, int w, int h, unsigned 
         }
 }
 
+/* The confidence by hand from the cues f (order of flow/check.h): the logistic
+ * calibration 1 / (1 + exp(-(bias - sum k_i f_i))). */
+static double conf_of(const sinew_check_params *p, const double f[SINEW_CHECK_NFEATURES])
+{
+    const double k[SINEW_CHECK_NFEATURES] = {
+        p->conf_k_fb,     p->conf_k_photo,   p->conf_k_texture,  p->conf_k_boundary,
+        p->conf_k_motion, p->conf_k_outside, p->conf_k_saturated};
+    double z = p->conf_bias;
+    for (int i = 0; i < SINEW_CHECK_NFEATURES; i++)
+        z -= k[i] * f[i];
+    return 1 / (1 + exp(-z));
+}
+
 static void assert_conf_range(const sinew_image *c)
 {
     for (int y = 0; y < c->height; y++)
@@ -144,16 +157,22 @@ static void test_check_constant_consistent(void **state)
     outs r;
     outs_alloc(ctx, &r, 8, 6);
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, NULL), SINEW_OK);
+    sinew_check_params p;
+    sinew_check_params_default(&p);
+    /* cues: fb log(1 + 0) = 0, motion log(1 + |w|), outside 0 or 1, the rest 0 */
+    const double m = log1p(sqrt(1.25));
+    const double fin[SINEW_CHECK_NFEATURES] = {0, 0, 0, 0, m, 0, 0};
+    const double fout[SINEW_CHECK_NFEATURES] = {0, 0, 0, 0, m, 1, 0};
     for (int y = 0; y < 6; y++)
         for (int x = 0; x < 8; x++) {
             int out = x == 7 || y == 5;
             assert_int_equal(mk(&r.mask, x, y), out ? SINEW_MASK_OUTSIDE : 0);
             if (out) {
                 assert_true(isnan(*fl(&r.fb, x, y)));
-                assert_true(*fl(&r.conf, x, y) == 0.0f);
+                assert_float_equal(*fl(&r.conf, x, y), conf_of(&p, fout), 1e-6);
             } else {
                 assert_true(*fl(&r.fb, x, y) == 0.0f);
-                assert_true(*fl(&r.conf, x, y) == 1.0f);
+                assert_float_equal(*fl(&r.conf, x, y), conf_of(&p, fin), 1e-6);
             }
         }
     assert_int_equal(r.o.stats.pixels, 48);
@@ -190,14 +209,16 @@ static void test_check_fb_hand_computed(void **state)
     assert_int_equal(mk(&r.mask, 7, 1), SINEW_MASK_OUTSIDE);
     assert_conf_range(&r.conf);
     /* Confidence by hand at x = 2 (no frames, no boundary) with the FB tolerance of the
-     * score set to Sundaram's: 1 / (1 + e / sqrt(0.01 (|w|² + |ŵ|²) + 0.5)). */
+     * cue set to Sundaram's: fb cue log(1 + e / sqrt(0.01 (|w|² + |ŵ|²) + 0.5)), motion
+     * cue log(1 + 0.5). */
     sinew_check_params p;
     sinew_check_params_default(&p);
     p.conf_fb_alpha = 0.01;
     p.conf_fb_beta = 0.5;
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, &p), SINEW_OK);
     double tol = sqrt(0.01 * (0.25 + 1.5625) + 0.5);
-    assert_float_equal(*fl(&r.conf, 2, 1), 1 / (1 + 0.75 / tol), 1e-6);
+    const double cue[SINEW_CHECK_NFEATURES] = {log1p(0.75 / tol), 0, 0, 0, log1p(0.5), 0, 0};
+    assert_float_equal(*fl(&r.conf, 2, 1), conf_of(&p, cue), 1e-6);
     /* The constants are tunable: a looser beta makes x = 2 consistent. */
     p.fb_beta = 0.6;
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, &p), SINEW_OK);
@@ -400,7 +421,13 @@ static void test_check_photometric_brightness_gain(void **state)
                 assert_int_equal(mk(&r.mask, x, y) & SINEW_MASK_PHOTO, SINEW_MASK_PHOTO);
         }
     assert_conf_range(&r.conf);
-    /* the corrupted pixels rank below the clean ones */
+    /* with the photometric cue alone in the calibration, the corrupted pixels rank
+     * below the clean ones (the default weight is fitted and may be 0) */
+    sinew_check_params p;
+    sinew_check_params_default(&p);
+    p.conf_k_fb = p.conf_k_texture = p.conf_k_boundary = p.conf_k_motion = 0;
+    p.conf_k_photo = 1;
+    assert_int_equal(run(ctx, &r, &f, &b, &f0, &f1, NULL, &p), SINEW_OK);
     assert_true(*fl(&r.conf, 21, 12) < *fl(&r.conf, 5, 5));
     outs_free(&r);
     free_imgs(&f0, &f1, &f, &b);
@@ -471,7 +498,8 @@ static void test_check_ignore_polarity(void **state)
                 int nz = (x == 2 && y == 1) || (x == 0 && y == 0);
                 int ig = pol ? !nz : nz;
                 assert_int_equal(mk(&r.mask, x, y), ig ? SINEW_MASK_IGNORE : 0);
-                assert_true(*fl(&r.conf, x, y) == (ig ? 0.0f : 1.0f));
+                const double none[SINEW_CHECK_NFEATURES] = {0};
+                assert_float_equal(*fl(&r.conf, x, y), ig ? 0.0 : conf_of(&p, none), 1e-6);
             }
         assert_int_equal(r.o.stats.reason[4], pol ? 10 : 2);
     }
@@ -512,7 +540,9 @@ static void test_check_boundary_distance_exact(void **state)
                 if (dx * dx + dy * dy < d2)
                     d2 = dx * dx + dy * dy;
             }
-            double want = 1 / (1 + p.conf_boundary_weight * exp(-sqrt(d2) / p.conf_boundary_scale));
+            const double cue[SINEW_CHECK_NFEATURES] = {
+                0, 0, 0, exp(-sqrt(d2) / p.conf_boundary_scale), 0, 0, 0};
+            double want = conf_of(&p, cue);
             assert_float_equal(*fl(&r.conf, x, y), want, 1e-6);
         }
     outs_free(&r);

@@ -300,7 +300,7 @@ static int stage_op(sinew_ctx *ctx, void *ud)
             p.ignore_polarity = SINEW_IGNORE_NONZERO;
             sinew_check_input ci = {&s->in.flow,  &s->bwd,    &s->in.frame,
                                     &s->in.frame, &s->ignore, NULL};
-            sinew_check_output co = {&fb, &mask, &conf, {0}};
+            sinew_check_output co = {&fb, &mask, &conf, {0}, NULL};
             rc = sinew_check_run(ctx, &co, &ci, &p);
         }
         sinew_image_free(&fb);
@@ -310,7 +310,7 @@ static int stage_op(sinew_ctx *ctx, void *ud)
     }
     case 1: { /* check with scratch-only outputs */
         sinew_check_input ci = {&s->in.flow, &s->bwd, NULL, NULL, NULL, NULL};
-        sinew_check_output co = {NULL, NULL, NULL, {0}};
+        sinew_check_output co = {NULL, NULL, NULL, {0}, NULL};
         rc = sinew_check_run(ctx, &co, &ci, NULL);
         break;
     }

@@ -159,7 +159,7 @@ static void run_stages(sinew_ctx *ctx, const char *dir, int w, int h, int with_n
     sinew_check_params_default(&cp);
     cp.ignore_polarity = SINEW_IGNORE_ZERO;
     sinew_check_input in = {&s.fwd, &s.bwd, &s.f0, &s.f1, &s.ign, NULL};
-    sinew_check_output out = {&s.fb, &s.mask, &s.conf, {0}};
+    sinew_check_output out = {&s.fb, &s.mask, &s.conf, {0}, NULL};
     snprintf(what, sizeof what, "%s check", tag);
     must_ok(ctx, sinew_check_run(ctx, &out, &in, &cp), what);
     int64_t kept = 0;
@@ -348,7 +348,7 @@ static void test_hostile_uniform_nasty_flow(void **state)
         fill_f32(&fw, nasty[i]);
         fill_f32(&bw, -nasty[i]);
         sinew_check_input in = {&fw, &bw, NULL, NULL, NULL, NULL};
-        sinew_check_output out = {&fb, &mask, &conf, {0}};
+        sinew_check_output out = {&fb, &mask, &conf, {0}, NULL};
         must_ok(ctx, sinew_check_run(ctx, &out, &in, NULL), what);
         for (int y = 0; y < 4; y++)
             for (int x = 0; x < 5; x++) {
@@ -424,29 +424,40 @@ static void test_hostile_check_parameters(void **state)
     sinew_image fw, bw, f0small;
     make_flow(ctx, &fw, 4, 3, 0, 0);
     make_flow(ctx, &bw, 4, 3, 0, 1);
-    sinew_check_output out = {NULL, NULL, NULL, {0}};
+    sinew_check_output out = {NULL, NULL, NULL, {0}, NULL};
     sinew_check_input in = {&fw, &bw, NULL, NULL, NULL, NULL};
     const double bad[] = {NAN, INFINITY, -INFINITY, -1, -1e-300};
     for (int b = 0; b < 5; b++)
-        for (int field = 0; field < 14; field++) {
+        for (int field = 0; field < 22; field++) {
             sinew_check_params p;
             sinew_check_params_default(&p);
-            /* every floating-point parameter of flow/check.h */
+            /* every floating-point parameter of flow/check.h (conf_bias may be negative:
+             * only its non-finite values are hostile) */
             double *fields[] = {&p.fb_alpha,
                                 &p.fb_beta,
                                 &p.boundary_alpha,
                                 &p.boundary_beta,
+                                &p.occ_range,
+                                &p.occ_crowd,
+                                &p.occ_depth_tolerance,
                                 &p.photo_threshold,
                                 &p.saturation_level,
                                 &p.conf_fb_alpha,
                                 &p.conf_fb_beta,
                                 &p.conf_photo_scale,
                                 &p.conf_texture_scale,
-                                &p.conf_texture_weight,
                                 &p.conf_boundary_scale,
-                                &p.conf_boundary_weight,
-                                &p.conf_saturated};
-            assert_int_equal(sizeof fields / sizeof fields[0], 14);
+                                &p.conf_k_fb,
+                                &p.conf_k_photo,
+                                &p.conf_k_texture,
+                                &p.conf_k_boundary,
+                                &p.conf_k_motion,
+                                &p.conf_k_outside,
+                                &p.conf_k_saturated,
+                                &p.conf_bias};
+            assert_int_equal(sizeof fields / sizeof fields[0], 22);
+            if (field == 21 && b >= 3)
+                continue; /* a negative bias is valid */
             *fields[field] = bad[b];
             must_fail(ctx, sinew_check_run(ctx, &out, &in, &p), "hostile check parameter");
         }
@@ -851,7 +862,7 @@ static void test_hostile_mismatched_sizes(void **state)
     make_frame(ctx, &fr2, 5, 3, 3, SINEW_U8);
     assert_int_equal(sinew_image_alloc(ctx, &m1, 4, 5, 1, SINEW_U8), SINEW_OK);
     /* check: forward/backward sizes, frames of different sizes, frame vs flow */
-    sinew_check_output out = {NULL, NULL, NULL, {0}};
+    sinew_check_output out = {NULL, NULL, NULL, {0}, NULL};
     sinew_check_input in = {&a, &b, NULL, NULL, NULL, NULL};
     must_fail(ctx, sinew_check_run(ctx, &out, &in, NULL), "fwd 5x4 bwd 4x5");
     in = (sinew_check_input){&a, &t, &fr, &fr2, NULL, NULL};
@@ -947,7 +958,7 @@ static void test_hostile_null_arguments(void **state)
     sinew_ctx *ctx = f->ctx;
     sinew_image img, pic;
     make_flow(ctx, &img, 2, 2, 0, 0);
-    sinew_check_output out = {NULL, NULL, NULL, {0}};
+    sinew_check_output out = {NULL, NULL, NULL, {0}, NULL};
     sinew_check_input in = {&img, NULL, NULL, NULL, NULL, NULL};
     null_fails(ctx, sinew_check_run(ctx, &out, &in, NULL), "check without backward");
     null_fails(ctx, sinew_check_run(ctx, &out, NULL, NULL), "check NULL input");

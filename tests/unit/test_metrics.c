@@ -482,6 +482,35 @@ static void test_metrics_allocation_failure(void **state)
     sinew_ctx_free(plain);
 }
 
+/* Reliability bins and ECE by hand (Naeini, Cooper, Hauskrecht, AAAI 2015, equal-width
+ * bins): 4 bins, threshold 1 px.
+ *   bin 0 [0, .25): c 0.1, 0.2 (errors 0.5, 3)   -> mean 0.15, observed 0.5
+ *   bin 2 [.5, .75): c 0.5 (error 2)             -> mean 0.5, observed 0
+ *   bin 3 [.75, 1]: c 0.8, 1.0 (errors 1, 0)     -> mean 0.9, observed 1 (error 1 <= 1)
+ *   ECE = 2/5 |0.5 - 0.15| + 1/5 |0 - 0.5| + 2/5 |1 - 0.9| = 0.14 + 0.1 + 0.04 = 0.28 */
+static void test_metrics_calibration_hand_case(void **state)
+{
+    (void)state;
+    sinew_ctx *ctx = sinew_ctx_new();
+    const float c[5] = {0.1f, 0.2f, 0.5f, 0.8f, 1.0f}, e[5] = {0.5f, 3.0f, 2.0f, 1.0f, 0.0f};
+    sinew_calibration cal;
+    assert_int_equal(sinew_calibration_compute(ctx, &cal, c, e, 5, 1.0, 4), SINEW_OK);
+    assert_int_equal(cal.n, 5);
+    assert_int_equal(cal.count[0], 2);
+    assert_int_equal(cal.count[1], 0);
+    assert_true(isnan(cal.observed[1]) && isnan(cal.mean_confidence[1]));
+    assert_float_equal(cal.mean_confidence[0], 0.15, 1e-7);
+    assert_float_equal(cal.observed[0], 0.5, 1e-12);
+    assert_float_equal(cal.observed[3], 1.0, 1e-12);
+    assert_float_equal(cal.ece, 0.28, 1e-7);
+    /* bad input: confidence out of [0, 1], negative error, no bins */
+    const float cb[1] = {1.5f}, eb[1] = {-1.0f};
+    assert_int_equal(sinew_calibration_compute(ctx, &cal, cb, e, 1, 1.0, 4), SINEW_EVALUE);
+    assert_int_equal(sinew_calibration_compute(ctx, &cal, c, eb, 1, 1.0, 4), SINEW_EVALUE);
+    assert_int_equal(sinew_calibration_compute(ctx, &cal, c, e, 5, 1.0, 0), SINEW_EINVAL);
+    sinew_ctx_free(ctx);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -497,6 +526,7 @@ int main(void)
         cmocka_unit_test(test_metrics_sparsification_properties),
         cmocka_unit_test(test_metrics_thread_count_invariant),
         cmocka_unit_test(test_metrics_epe_map),
+        cmocka_unit_test(test_metrics_calibration_hand_case),
         cmocka_unit_test(test_metrics_allocation_failure),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

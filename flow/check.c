@@ -51,13 +51,13 @@ void sinew_check_params_default(sinew_check_params *p)
     p->conf_texture_scale = 4e-5;
     p->conf_boundary_scale = 6.0;
     /* Logistic calibration, printed by tools/fit_confidence (docs/methods.md). */
-    p->conf_bias = 7.9317;
-    p->conf_k_fb = 1.0755;
-    p->conf_k_photo = 0.0;
-    p->conf_k_texture = 1.3561;
-    p->conf_k_boundary = 3.7462;
-    p->conf_k_motion = 1.4353;
-    p->conf_k_outside = 2.3138;
+    p->conf_bias = 5.7866;
+    p->conf_k_fb = 1.0613;
+    p->conf_k_photo = 0.9868;
+    p->conf_k_texture = 0.2467;
+    p->conf_k_boundary = 1.8484;
+    p->conf_k_motion = 0.7082;
+    p->conf_k_outside = 4.5665;
     p->conf_k_saturated = 0.0039;
 }
 

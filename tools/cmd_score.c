@@ -39,7 +39,8 @@ static void usage(FILE *out)
             "                   [--invalid INV.png] [--confidence C.npy] [--mask M.png]\n"
             "                   [--mask-bits N] [--csv F] [--json]\n"
             "       sinew score --layout %s --root DIR\n"
-            "                   (--estimates DIR [--confidences DIR] | --preset P [--save DIR])\n"
+            "                   (--estimates DIR [--confidences DIR | --checks DIR] |\n"
+            "                    --preset P [--save DIR] [--check])\n"
             "                   [--pass clean|final] [--csv F] [--json]\n"
             "\n"
             "Score optical flow against ground truth: endpoint error (EPE, px), angular\n"
@@ -65,7 +66,9 @@ static void usage(FILE *out)
             "  --mask M.png       our occlusion mask, scored against --occ (precision,\n"
             "                     recall, F1); a pixel is predicted occluded when\n"
             "                     (value & N) != 0, N = --mask-bits (default 3: the\n"
-            "                     forward-backward and outside bits; 0 = any nonzero)\n"
+            "                     forward-backward and outside bits; 0 = any nonzero)\n",
+            score_layout_names);
+    fprintf(out,
             "dataset folder:\n"
             "  --layout L --root DIR   a training folder (list: a file of 'frame1 frame2 gt'\n"
             "                     lines, paths relative to the file)\n"
@@ -81,6 +84,15 @@ static void usage(FILE *out)
             "                     only; adds time_s = wall-clock seconds of the estimator\n"
             "                     run (no file I/O)\n"
             "  --save DIR         with --preset: also write the estimates as DIR/ID.flo\n"
+            "  --check            with --preset: also estimate the backward flow and run\n"
+            "                     sinew check (defaults, with the frames); adds per pair\n"
+            "                     our occlusion mask's precision, recall and F1 against\n"
+            "                     the layout's occlusion truth (Sintel; occluded = mask &\n"
+            "                     3: occluded or outside), AUSE and the ECE of the\n"
+            "                     confidence read as P(EPE <= 1 px) (10 bins)\n"
+            "  --checks DIR       with --estimates: the same from check folders\n"
+            "                     DIR/ID/mask.png and DIR/ID/confidence.npy (as written\n"
+            "                     by sinew check -o DIR/ID)\n"
             "  --pass P           Sintel pass for the frames (default clean)\n"
             "outputs:\n"
             "  (default)          a text table on stdout\n"
@@ -101,7 +113,7 @@ static void usage(FILE *out)
             "      --csv scores.csv\n"
             "  sinew score --layout kitti --root kitti/training --preset balanced --threads 2\n"
             "\n%s",
-            score_layout_names, cli_notice);
+            cli_notice);
 }
 
 /* ---- one pair ---- */
@@ -124,29 +136,16 @@ typedef struct {
 #define CALIB_BINS 10
 #define CALIB_THRESHOLD_PX 1.0
 
-/* Sparsification over pixels where gt, estimate, confidence and the mask are known. */
-static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image *est,
-                            const sinew_image *gt, const char *gt_path, const sinew_image *eval,
-                            sparse_result *out)
+/* Sparsification and calibration of conf (F32, 1 channel, the size of gt) over pixels
+ * where gt, estimate, confidence and the mask are known. */
+static int score_confidence_image(sinew_ctx *ctx, const sinew_image *conf, const sinew_image *est,
+                                  const sinew_image *gt, const sinew_image *eval,
+                                  sparse_result *out)
 {
     memset(out, 0, sizeof *out);
-    sinew_image conf = {0}, epe = {0};
+    sinew_image epe = {0};
     float *unc = NULL, *err = NULL, *cf = NULL;
-    const char *ext = strrchr(path, '.');
-    int st = ext && !strcmp(ext, ".pfm") ? sinew_pfm_read_image(ctx, &conf, path)
-                                         : sinew_npy_read_image(ctx, &conf, path);
-    int rc = CLI_OK;
-    if (st) {
-        rc = cli_status(CMD, ctx, st);
-        goto done;
-    }
-    if (conf.type != SINEW_F32 || conf.channels != 1) {
-        rc = cli_error(CMD, "%s: confidence must be one channel per pixel (found %d)", path,
-                       conf.channels);
-        goto done;
-    }
-    if ((rc = score_same_size(&conf, path, gt, gt_path)))
-        goto done;
+    int st, rc = CLI_OK;
     if ((st = sinew_image_alloc(ctx, &epe, gt->width, gt->height, 1, SINEW_F32)) ||
         (st = sinew_flow_epe_map(ctx, &epe, est, gt))) {
         rc = cli_status(CMD, ctx, st);
@@ -162,7 +161,7 @@ static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image 
     }
     size_t n = 0;
     for (int y = 0; y < gt->height; y++) {
-        const float *e = sinew_image_row_f32(&epe, y), *c = sinew_image_row_f32(&conf, y);
+        const float *e = sinew_image_row_f32(&epe, y), *c = sinew_image_row_f32(conf, y);
         const uint8_t *m = eval && eval->data ? sinew_image_row_u8(eval, y) : NULL;
         for (int x = 0; x < gt->width; x++) {
             if (!isfinite(e[x]) || !isfinite(c[x]) || (m && !m[x]))
@@ -190,8 +189,29 @@ done:
     free(unc);
     free(err);
     free(cf);
-    sinew_image_free(&conf);
     sinew_image_free(&epe);
+    return rc;
+}
+
+/* The same for a confidence file (.npy or .pfm). */
+static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image *est,
+                            const sinew_image *gt, const char *gt_path, const sinew_image *eval,
+                            sparse_result *out)
+{
+    memset(out, 0, sizeof *out);
+    sinew_image conf = {0};
+    const char *ext = strrchr(path, '.');
+    int st = ext && !strcmp(ext, ".pfm") ? sinew_pfm_read_image(ctx, &conf, path)
+                                         : sinew_npy_read_image(ctx, &conf, path);
+    int rc = CLI_OK;
+    if (st)
+        rc = cli_status(CMD, ctx, st);
+    else if (conf.type != SINEW_F32 || conf.channels != 1)
+        rc = cli_error(CMD, "%s: confidence must be one channel per pixel (found %d)", path,
+                       conf.channels);
+    else if (!(rc = score_same_size(&conf, path, gt, gt_path)))
+        rc = score_confidence_image(ctx, &conf, est, gt, eval, out);
+    sinew_image_free(&conf);
     return rc;
 }
 
@@ -202,6 +222,7 @@ static void row_init(score_row *row, const char *id)
     row->id = (char *)id;
     row->time_s = NAN;
     row->ause = NAN;
+    row->ece = NAN;
 }
 
 /* Score est against gt into row: the occlusion split from occ_path (nonzero = occluded)
@@ -278,21 +299,8 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
         cJSON_AddStringToObject(root, "missing_estimate", score_density_note);
         cJSON_AddStringToObject(root, "estimate", est_path);
         cJSON_AddStringToObject(root, "ground_truth", gt_path);
-        if (have_ms) {
-            double p, r, f1;
-            sinew_mask_scores_rates(&ms, &p, &r, &f1);
-            cJSON *m = cJSON_AddObjectToObject(root, "occlusion_mask");
-            if (m) {
-                sinew_json_add_number(m, "precision", p);
-                sinew_json_add_number(m, "recall", r);
-                sinew_json_add_number(m, "f1", f1);
-                cJSON_AddNumberToObject(m, "tp", (double)ms.tp);
-                cJSON_AddNumberToObject(m, "fp", (double)ms.fp);
-                cJSON_AddNumberToObject(m, "fn", (double)ms.fn);
-                cJSON_AddNumberToObject(m, "tn", (double)ms.tn);
-                cJSON_AddNumberToObject(m, "bits", (double)o->mask_bits);
-            }
-        }
+        if (have_ms)
+            score_json_mask(root, &ms, o->mask_bits);
         if (o->confidence) {
             cJSON *s = cJSON_AddObjectToObject(root, "sparsification");
             if (s) {
@@ -359,6 +367,8 @@ done:
 
 typedef struct {
     const char *layout, *root, *estimates, *preset, *save, *confidences, *pass, *csv;
+    const char *checks; /* --checks DIR: DIR/ID/mask.png and DIR/ID/confidence.npy */
+    int check;          /* --check with --preset: backward flow and sinew's check too */
     int json, threads;
     sinew_estimator *est; /* --preset: one estimator reused for every pair */
 } layout_opts;
@@ -373,9 +383,10 @@ static double now_s(void)
 /* --preset: read the pair's frames and run sinew's estimator (forward only) into *flow;
  * *seconds = wall-clock time of the estimator run alone (no file I/O). */
 static int estimate_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts *o,
-                         const sinew_image *gt, sinew_image *flow, double *seconds)
+                         const sinew_image *gt, sinew_image *flow, double *seconds,
+                         sinew_image *mask, sinew_image *conf)
 {
-    sinew_image f0 = {0}, f1 = {0};
+    sinew_image f0 = {0}, f1 = {0}, bwd = {0};
     int rc = CLI_OK, st;
     if ((st = sinew_image_read(ctx, &f0, p->frame0)) ||
         (st = sinew_image_read(ctx, &f1, p->frame1))) {
@@ -393,13 +404,28 @@ static int estimate_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts 
         rc = cli_status(CMD, ctx, st);
         goto done;
     }
+    if (o->check && ((st = sinew_image_alloc(ctx, &bwd, gt->width, gt->height, 2, SINEW_F32)) ||
+                     (st = sinew_image_alloc(ctx, mask, gt->width, gt->height, 1, SINEW_U8)) ||
+                     (st = sinew_image_alloc(ctx, conf, gt->width, gt->height, 1, SINEW_F32)))) {
+        rc = cli_status(CMD, ctx, st);
+        goto done;
+    }
     double t0 = now_s();
-    st = sinew_estimator_run(o->est, flow, NULL, &f0, &f1);
+    st = sinew_estimator_run(o->est, flow, o->check ? &bwd : NULL, &f0, &f1);
     *seconds = now_s() - t0;
     if (st) {
         rc = cli_error(CMD, "%s: estimator failed: %s", p->frame0,
                        *sinew_ctx_message(ctx) ? sinew_ctx_message(ctx) : sinew_strerror(st));
         goto done;
+    }
+    if (o->check) { /* sinew check with its defaults, frames given */
+        sinew_check_input in = {flow, &bwd, &f0, &f1, NULL, NULL};
+        sinew_check_output out = {NULL, mask, conf, {0}, NULL};
+        if ((st = sinew_check_run(ctx, &out, &in, NULL))) {
+            rc = cli_error(CMD, "%s: check failed: %s", p->frame0,
+                           *sinew_ctx_message(ctx) ? sinew_ctx_message(ctx) : sinew_strerror(st));
+            goto done;
+        }
     }
     if (o->save) {
         char *out = score_printf("%s/%s.flo", o->save, p->id);
@@ -420,19 +446,63 @@ static int estimate_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts 
 done:
     sinew_image_free(&f0);
     sinew_image_free(&f1);
+    sinew_image_free(&bwd);
     return rc;
+}
+
+/* --check / --checks: our occlusion mask against the true occlusion (where the layout
+ * has one) and the confidence (AUSE, ECE) into row. mask and conf: the check's outputs
+ * of --preset --check, or empty; --checks reads them from DIR/ID/. */
+static int score_pair_check(sinew_ctx *ctx, const score_pair *p, const layout_opts *o,
+                            const sinew_image *est, const sinew_image *gt, const sinew_image *occ,
+                            const sinew_image *eval, sinew_image *mask, sinew_image *conf,
+                            score_row *row)
+{
+    int rc = CLI_OK, st;
+    if (!o->check && !o->checks)
+        return CLI_OK;
+    if (o->checks) {
+        char *mp = score_printf("%s/%s/mask.png", o->checks, p->id);
+        char *cp = score_printf("%s/%s/confidence.npy", o->checks, p->id);
+        if (!mp || !cp)
+            rc = cli_error(CMD, "out of memory");
+        else if (!(rc = score_read_mask(ctx, mp, 1, 0, mask)) &&
+                 !(rc = score_same_size(mask, mp, gt, p->gt))) {
+            sparse_result sp;
+            rc = score_confidence(ctx, cp, est, gt, p->gt, eval, &sp);
+            row->ause = sp.have ? sp.ause : NAN;
+            row->ece = sp.have ? sp.cal.ece : NAN;
+        }
+        free(mp);
+        free(cp);
+        if (rc)
+            return rc;
+    } else {
+        sparse_result sp;
+        if ((rc = score_confidence_image(ctx, conf, est, gt, eval, &sp)))
+            return rc;
+        row->ause = sp.have ? sp.ause : NAN;
+        row->ece = sp.have ? sp.cal.ece : NAN;
+    }
+    if (!occ->data)
+        return CLI_OK; /* no occlusion truth in this layout */
+    if ((st = sinew_mask_scores_compute(ctx, &row->ms, mask, occ, eval->data ? eval : NULL,
+                                        DEFAULT_MASK_BITS)))
+        return cli_status(CMD, ctx, st);
+    row->have_mask = 1;
+    return CLI_OK;
 }
 
 /* Score one dataset pair into *row (row->id borrowed from the pair). */
 static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts *o, score_row *row)
 {
-    sinew_image est = {0}, gt = {0}, occ = {0}, eval = {0};
+    sinew_image est = {0}, gt = {0}, occ = {0}, eval = {0}, mask = {0}, conf = {0};
     char *est_path = NULL, *conf_path = NULL, *tried = NULL;
     int rc;
     row_init(row, p->id);
     if (o->preset) {
         if ((rc = score_read_flow(ctx, p->gt, &gt)) ||
-            (rc = estimate_pair(ctx, p, o, &gt, &est, &row->time_s)))
+            (rc = estimate_pair(ctx, p, o, &gt, &est, &row->time_s, &mask, &conf)))
             goto done;
     } else {
         est_path = score_find_file(o->estimates, p->id, "flo|png|pfm|npy", &tried);
@@ -462,7 +532,11 @@ static int score_one_pair(sinew_ctx *ctx, const score_pair *p, const layout_opts
             goto done;
         row->ause = sp.have ? sp.ause : NAN;
     }
+    if ((rc = score_pair_check(ctx, p, o, &est, &gt, &occ, &eval, &mask, &conf, row)))
+        goto done;
 done:
+    sinew_image_free(&mask);
+    sinew_image_free(&conf);
     free(conf_path);
     free(est_path);
     free(tried);
@@ -481,7 +555,8 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
         return rc;
     if (o->csv && (rc = score_write_csv(ctx, o->csv, o->layout, rows, n, &sum)))
         return rc;
-    score_cols cols = {isfinite(sum.mean_time_s) ? 1 : 0, o->confidences != NULL};
+    score_cols cols = {isfinite(sum.mean_time_s) ? 1 : 0,
+                       o->confidences != NULL || o->check || o->checks};
     if (o->json) {
         cJSON *root = cJSON_CreateObject(), *pairs = NULL, *s = NULL;
         if (root) {
@@ -514,6 +589,10 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
                 sinew_json_add_number(r, "runtime_s", rows[i].time_s);
             if (cols.ause)
                 sinew_json_add_number(r, "ause", rows[i].ause);
+            if (o->check || o->checks)
+                sinew_json_add_number(r, "ece", rows[i].ece);
+            if (rows[i].have_mask)
+                score_json_mask(r, &rows[i].ms, DEFAULT_MASK_BITS);
             cJSON_AddItemToArray(pairs, r);
         }
         cJSON *m =
@@ -534,6 +613,18 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
             sinew_json_add_number(s, "mean_runtime_s", sum.mean_time_s);
         if (cols.ause && m)
             sinew_json_add_number(m, "ause", sum.mean_ause);
+        if ((o->check || o->checks) && m)
+            sinew_json_add_number(m, "ece", sum.mean_ece);
+        if (sum.n_mask && m && p) {
+            cJSON *mm = cJSON_AddObjectToObject(m, "occlusion_mask");
+            if (mm) {
+                sinew_json_add_number(mm, "precision", sum.mean_mask[0]);
+                sinew_json_add_number(mm, "recall", sum.mean_mask[1]);
+                sinew_json_add_number(mm, "f1", sum.mean_mask[2]);
+                cJSON_AddNumberToObject(mm, "n_pairs", (double)sum.n_mask);
+            }
+            score_json_mask(p, &sum.pooled_mask, DEFAULT_MASK_BITS);
+        }
         rc = score_print_json(root);
         cJSON_Delete(root);
         return rc;
@@ -566,6 +657,8 @@ static int output_layout(sinew_ctx *ctx, const layout_opts *o, const score_row *
         score_text_row(stdout, sinew_averaging_name(SINEW_AVG_POOLED), &sum.pooled[k],
                        sum.mean_time_s, NAN, cols);
     }
+    if (o->check || o->checks)
+        score_text_check(stdout, rows, n, &sum, DEFAULT_MASK_BITS);
     return fflush(stdout) == 0 ? CLI_OK : cli_error(CMD, "stdout: write failed");
 }
 
@@ -632,7 +725,9 @@ int cmd_score(int argc, char **argv)
         O_CONFS,
         O_PRESET,
         O_SAVE,
-        O_PASS
+        O_PASS,
+        O_CHECK,
+        O_CHECKS
     };
     static const struct option opts[] = {
         {"occ", required_argument, NULL, O_OCC},
@@ -652,11 +747,13 @@ int cmd_score(int argc, char **argv)
         {"save", required_argument, NULL, O_SAVE},
         {"pass", required_argument, NULL, O_PASS},
         {"threads", required_argument, NULL, 't'},
+        {"check", no_argument, NULL, O_CHECK},
+        {"checks", required_argument, NULL, O_CHECKS},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
     single_opts so = {NULL, NULL, NULL, NULL, NULL, NULL, NULL, DEFAULT_MASK_BITS, 0};
-    layout_opts lo = {NULL, NULL, NULL, NULL, NULL, NULL, "clean", NULL, 0, 0, NULL};
+    layout_opts lo = {NULL, NULL, NULL, NULL, NULL, NULL, "clean", NULL, NULL, 0, 0, 0, NULL};
     long threads = 0, bits;
     optind = 1;
     opterr = 0;
@@ -718,6 +815,12 @@ int cmd_score(int argc, char **argv)
                 return cli_usage_error(CMD, "--pass: expected clean or final, got '%s'", optarg);
             lo.pass = optarg;
             break;
+        case O_CHECK:
+            lo.check = 1;
+            break;
+        case O_CHECKS:
+            lo.checks = optarg;
+            break;
         case 't':
             if (cli_parse_int(optarg, 0, 1024, &threads))
                 return cli_usage_error(CMD, "--threads: expected 0..1024, got '%s'", optarg);
@@ -728,7 +831,8 @@ int cmd_score(int argc, char **argv)
     }
     int npos = argc - optind;
     lo.threads = (int)threads;
-    if (lo.layout || lo.root || lo.estimates || lo.confidences || lo.preset || lo.save) {
+    if (lo.layout || lo.root || lo.estimates || lo.confidences || lo.preset || lo.save ||
+        lo.check || lo.checks) {
         if (npos != 0)
             return cli_usage_error(CMD, "--layout takes no EST GT arguments");
         if (!lo.layout || !lo.root)
@@ -738,6 +842,14 @@ int cmd_score(int argc, char **argv)
                                         "--preset P");
         if (lo.save && !lo.preset)
             return cli_usage_error(CMD, "--save writes the estimates of --preset");
+        if (lo.check && !lo.preset)
+            return cli_usage_error(CMD, "--check runs sinew's check on the flows of --preset; "
+                                        "with --estimates use --checks DIR");
+        if (lo.checks && !lo.estimates)
+            return cli_usage_error(CMD, "--checks DIR goes with --estimates (with --preset use "
+                                        "--check)");
+        if (lo.checks && lo.confidences)
+            return cli_usage_error(CMD, "give --confidences or --checks, not both");
         if (so.occ || so.noc || so.valid || so.invalid || so.confidence || so.mask)
             return cli_usage_error(CMD, "--occ/--noc/--valid/--invalid/--confidence/--mask are "
                                         "for one pair; a layout brings its own masks");

@@ -187,10 +187,30 @@ int score_summarize_all(const score_row *rows, size_t n, score_summary *out)
     sinew_flow_summary *tmp = malloc((n ? n : 1) * sizeof *tmp);
     if (!tmp)
         return cli_error(CMD, "out of memory");
-    double tsum = 0, asum = 0;
-    size_t tn = 0, an = 0;
+    double tsum = 0, asum = 0, esum = 0, msum[3] = {0, 0, 0};
+    size_t tn = 0, an = 0, en = 0, mn[3] = {0, 0, 0};
+    memset(&out->pooled_mask, 0, sizeof out->pooled_mask);
+    out->n_mask = 0;
     for (size_t i = 0; i < n; i++) {
         sinew_flow_errors_add(&pool, &rows[i].err);
+        if (isfinite(rows[i].ece)) {
+            esum += rows[i].ece;
+            en++;
+        }
+        if (rows[i].have_mask) {
+            double r[3];
+            sinew_mask_scores_rates(&rows[i].ms, &r[0], &r[1], &r[2]);
+            for (int j = 0; j < 3; j++)
+                if (isfinite(r[j])) {
+                    msum[j] += r[j];
+                    mn[j]++;
+                }
+            out->pooled_mask.tp += rows[i].ms.tp;
+            out->pooled_mask.fp += rows[i].ms.fp;
+            out->pooled_mask.fn += rows[i].ms.fn;
+            out->pooled_mask.tn += rows[i].ms.tn;
+            out->n_mask++;
+        }
         if (isfinite(rows[i].time_s)) {
             tsum += rows[i].time_s;
             tn++;
@@ -211,8 +231,59 @@ int score_summarize_all(const score_row *rows, size_t n, score_summary *out)
     }
     out->mean_time_s = tn ? tsum / (double)tn : NAN;
     out->mean_ause = an ? asum / (double)an : NAN;
+    out->mean_ece = en ? esum / (double)en : NAN;
+    for (int j = 0; j < 3; j++)
+        out->mean_mask[j] = mn[j] ? msum[j] / (double)mn[j] : NAN;
     free(tmp);
     return CLI_OK;
+}
+
+void score_json_mask(cJSON *parent, const sinew_mask_scores *ms, unsigned bits)
+{
+    double p, r, f1;
+    sinew_mask_scores_rates(ms, &p, &r, &f1);
+    cJSON *m = cJSON_AddObjectToObject(parent, "occlusion_mask");
+    if (!m)
+        return;
+    sinew_json_add_number(m, "precision", p);
+    sinew_json_add_number(m, "recall", r);
+    sinew_json_add_number(m, "f1", f1);
+    cJSON_AddNumberToObject(m, "tp", (double)ms->tp);
+    cJSON_AddNumberToObject(m, "fp", (double)ms->fp);
+    cJSON_AddNumberToObject(m, "fn", (double)ms->fn);
+    cJSON_AddNumberToObject(m, "tn", (double)ms->tn);
+    cJSON_AddNumberToObject(m, "bits", (double)bits);
+}
+
+static void check_line(FILE *f, const char *label, const double v[5])
+{
+    char a[5][32];
+    for (int j = 0; j < 5; j++)
+        score_fmt_val(a[j], sizeof a[j], v[j], j < 3 ? "%.4f" : "%.5f");
+    fprintf(f, "  %-28s %9s %9s %9s %9s %9s\n", label, a[0], a[1], a[2], a[3], a[4]);
+}
+
+void score_text_check(FILE *f, const score_row *rows, size_t n, const score_summary *sum,
+                      unsigned bits)
+{
+    fprintf(f,
+            "\nour occlusion mask (occluded when mask & %u) against the true occlusion, and\n"
+            "the confidence: AUSE (sparsification, 100 steps) and ECE (P(EPE <= 1 px), 10 bins)\n",
+            bits);
+    fprintf(f, "  %-28s %9s %9s %9s %9s %9s\n", "pair", "occ P", "occ R", "occ F1", "AUSE", "ECE");
+    for (size_t i = 0; i < n; i++) {
+        double v[5] = {NAN, NAN, NAN, rows[i].ause, rows[i].ece};
+        if (rows[i].have_mask)
+            sinew_mask_scores_rates(&rows[i].ms, &v[0], &v[1], &v[2]);
+        check_line(f, rows[i].id, v);
+    }
+    double m[5] = {sum->mean_mask[0], sum->mean_mask[1], sum->mean_mask[2], sum->mean_ause,
+                   sum->mean_ece};
+    check_line(f, sinew_averaging_name(SINEW_AVG_PAIR_MEAN), m);
+    double p[5] = {NAN, NAN, NAN, NAN, NAN};
+    if (sum->n_mask)
+        sinew_mask_scores_rates(&sum->pooled_mask, &p[0], &p[1], &p[2]);
+    check_line(f, sinew_averaging_name(SINEW_AVG_POOLED), p);
 }
 
 int score_write_csv(sinew_ctx *ctx, const char *path, const char *layout, const score_row *rows,

@@ -16,6 +16,9 @@ typedef struct {
     sinew_flow_summary s[SINEW_REGION_COUNT];
     double time_s; /* estimator wall-clock seconds; NaN = not run */
     double ause;   /* AUSE of the pair's confidence; NaN = none */
+    double ece;    /* ECE of the confidence read as P(EPE <= 1 px); NaN = none */
+    int have_mask; /* our occlusion mask scored against the truth: ms valid */
+    sinew_mask_scores ms;
 } score_row;
 
 /* Optional columns of the text table. */
@@ -28,8 +31,12 @@ typedef struct {
     sinew_flow_summary mean[SINEW_REGION_COUNT];
     sinew_flow_summary pooled[SINEW_REGION_COUNT];
     int has_occ;
-    double mean_time_s; /* mean over pairs with a time; NaN if none */
-    double mean_ause;   /* mean of per-pair AUSE (AUSE is not pooled); NaN if none */
+    double mean_time_s;  /* mean over pairs with a time; NaN if none */
+    double mean_ause;    /* mean of per-pair AUSE (AUSE is not pooled); NaN if none */
+    double mean_ece;     /* mean of per-pair ECE; NaN if none */
+    int n_mask;          /* pairs with a scored occlusion mask */
+    double mean_mask[3]; /* mean over those pairs of precision, recall, F1 (NaN skipped) */
+    sinew_mask_scores pooled_mask; /* their counts summed */
 } score_summary;
 
 /* Region names for JSON/CSV keys and for the text table; the density footnote. */
@@ -57,6 +64,12 @@ void score_json_calibration(cJSON *parent, const sinew_calibration *c);
 void score_text_calibration(FILE *f, const sinew_calibration *c);
 /* Mean-of-pairs and pooled-pixels summaries of n rows. */
 int score_summarize_all(const score_row *rows, size_t n, score_summary *out);
+/* "occlusion_mask" object {precision, recall, f1, tp, fp, fn, tn, bits} added to parent. */
+void score_json_mask(cJSON *parent, const sinew_mask_scores *ms, unsigned bits);
+/* The occlusion-mask and confidence table of a dataset (pairs with a mask or an AUSE):
+ * precision, recall, F1, AUSE, ECE per pair, then mean-of-pairs and pooled rows. */
+void score_text_check(FILE *f, const score_row *rows, size_t n, const score_summary *sum,
+                      unsigned bits);
 /* The CSV file (atomically): one line per row, then the summary lines when sum. */
 int score_write_csv(sinew_ctx *ctx, const char *path, const char *layout, const score_row *rows,
                     size_t n, const score_summary *sum);

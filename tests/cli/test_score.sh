@@ -219,3 +219,74 @@ expect_error "--estimates and --preset together" - "exactly one" \
     "$SINEW_BIN" score --layout list --root "$P/pairs.txt" --estimates "$P" --preset fast
 expect_error "--preset with a missing frame names it" - "b\.png" \
     sh -c "rm -f '$P/p1/b.png' && '$SINEW_BIN' score --layout list --root '$P/pairs.txt' --preset fast"
+
+# ---- our masks and confidence in dataset mode (--check, --checks) ----------------------
+# A Sintel-layout folder made from the demo scene (its exact flow and occlusion truth):
+# the dataset rows must carry the numbers `sinew score` gives for one pair with --mask and
+# --confidence on the same check outputs (the reference for those is above).
+Q="$T/qs"
+"$SINEW_BIN" synth -o "$T/qscene" --frames 3 --size 96x72 >/dev/null 2>&1 ||
+    fail "synth for --check" "exit $?"
+mkdir -p "$Q/clean/demo" "$Q/flow/demo" "$Q/occlusions/demo" "$T/qest/demo" "$T/qchk/demo"
+for i in 0 1 2; do
+    cp "$T/qscene/color/00000$i.png" "$Q/clean/demo/frame_000$((i + 1)).png"
+done
+for i in 0 1; do
+    cp "$T/qscene/truth/flow_forward/00000$i.flo" "$Q/flow/demo/frame_000$((i + 1)).flo"
+    cp "$T/qscene/truth/occlusion_forward/00000$i.png" "$Q/occlusions/demo/frame_000$((i + 1)).png"
+done
+if "$SINEW_BIN" score --layout sintel --root "$Q" --preset fast --check --save "$T/qsave" --json \
+    >"$T/qcheck.json" 2>"$T/err"; then
+    pass "--preset --check runs"
+else
+    fail "--preset --check" "exit $? ($(head -c 300 "$T/err"))"
+fi
+ok=1
+for n in 1 2; do
+    id=demo/frame_000$n
+    f0="$Q/clean/demo/frame_000$n.png" f1="$Q/clean/demo/frame_000$((n + 1)).png"
+    "$SINEW_BIN" flow "$f0" "$f1" -o "$T/qest/$id.flo" --backward "$T/qb$n.flo" --preset fast \
+        >/dev/null 2>&1 &&
+        "$SINEW_BIN" check --forward "$T/qest/$id.flo" --backward "$T/qb$n.flo" \
+            --frames "$f0" "$f1" -o "$T/qchk/$id" >/dev/null 2>&1 &&
+        "$SINEW_BIN" score "$T/qest/$id.flo" "$Q/flow/$id.flo" --occ "$Q/occlusions/$id.png" \
+            --mask "$T/qchk/$id/mask.png" --confidence "$T/qchk/$id/confidence.npy" --json \
+            >"$T/qone$n.json" 2>"$T/err" || ok=0
+done
+[ $ok -eq 1 ] || fail "flow, check and score of the --check pairs" "$(head -c 300 "$T/err")"
+"$SINEW_BIN" score --layout sintel --root "$Q" --estimates "$T/qest" --checks "$T/qchk" --json \
+    >"$T/qchecks.json" 2>"$T/err" || fail "--estimates --checks" "$(head -c 300 "$T/err")"
+if "$PYTHON" - "$T/qcheck.json" "$T/qchecks.json" "$T/qone1.json" "$T/qone2.json" <<'PY'; then
+import json, math, sys
+a, b = json.load(open(sys.argv[1])), json.load(open(sys.argv[2]))
+ones = [json.load(open(p)) for p in sys.argv[3:]]
+for run in (a, b):
+    assert len(run["pairs"]) == 2
+    for row, one in zip(run["pairs"], ones):
+        for k in ("precision", "recall", "f1", "tp", "fp", "fn", "tn"):
+            assert row["occlusion_mask"][k] == one["occlusion_mask"][k], (k, row, one)
+        assert row["ause"] == one["sparsification"]["ause"], (row["ause"], one)
+        assert row["ece"] == one["calibration"]["ece"], (row["ece"], one)
+    m = run["summary"]["mean-of-pairs"]
+    f1 = [o["occlusion_mask"]["f1"] for o in ones]
+    assert abs(m["occlusion_mask"]["f1"] - sum(f1) / 2) < 1e-12, m
+    assert abs(m["ece"] - sum(o["calibration"]["ece"] for o in ones) / 2) < 1e-12, m
+    p = run["summary"]["pooled-pixels"]["occlusion_mask"]
+    assert p["tp"] == sum(o["occlusion_mask"]["tp"] for o in ones), p
+PY
+    pass "--check and --checks give the one-pair mask and confidence scores"
+else
+    fail "--check / --checks numbers" "$(head -c 600 "$T/qcheck.json")"
+fi
+"$SINEW_BIN" score --layout sintel --root "$Q" --preset fast --check >"$T/qcheck.txt" 2>&1
+if grep -q "occ F1" "$T/qcheck.txt" && grep -q "^  mean-of-pairs" "$T/qcheck.txt"; then
+    pass "--check text table"
+else
+    fail "--check text table" "$(tail -5 "$T/qcheck.txt")"
+fi
+expect_error "--check needs --preset" - "--check" \
+    "$SINEW_BIN" score --layout sintel --root "$Q" --estimates "$T/qest" --check
+expect_error "--checks needs --estimates" - "--checks" \
+    "$SINEW_BIN" score --layout sintel --root "$Q" --preset fast --checks "$T/qchk"
+expect_error "--checks: a missing mask names its path" - "qchk/demo/frame_0002/mask\.png" \
+    sh -c "rm -f '$T/qchk/demo/frame_0002/mask.png' && '$SINEW_BIN' score --layout sintel --root '$Q' --estimates '$T/qest' --checks '$T/qchk'"

@@ -676,7 +676,8 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
         (rc = ensure(ctx, &pl->conf, w, h, 1, SINEW_F32)) ||
         (rc = ensure(ctx, &pl->fberr, w, h, 1, SINEW_F32)))
         return rc;
-    sinew_check_input in = {&pl->fwd, &pl->bwd, f0, f1, NULL, NULL};
+    /* frame 0's depth, when it has one, decides who loses a target (z-buffer) */
+    sinew_check_input in = {&pl->fwd, &pl->bwd, f0, f1, NULL, s0->z.data ? &s0->z : NULL};
     sinew_check_output out = {&pl->fberr, &pl->mask, &pl->conf, {0}, NULL};
     sinew_check_params cp;
     sinew_check_params_default(&cp);

@@ -9,7 +9,6 @@
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
-#include <string.h>
 
 #include <cJSON.h>
 
@@ -57,15 +56,12 @@ static int cmp_double(const void *a, const void *b)
  * mean into o ("match_3d_error_mm_median", "match_3d_error_mm_mean", "match_3d_rows"). */
 static int match_3d_error(sinew_ctx *ctx, const sinew_matches *m, const sinew_image *sf, cJSON *o)
 {
-    int c[8], want = 0;
+    int c[8];
     static const char *const name[8] = {"u0", "v0", "X0", "Y0", "Z0", "X1", "Y1", "Z1"};
     for (int k = 0; k < 8; k++)
-        for (int j = 0; j < m->cols; j++)
-            if (!strcmp(m->columns[j], name[k])) {
-                c[k] = j;
-                want |= 1 << k;
-            }
-    if (want != 255 || !m->rows)
+        if ((c[k] = sinew_matches_column(m, name[k])) < 0)
+            return SINEW_OK;
+    if (!m->rows)
         return SINEW_OK;
     double *err = sinew__calloc(ctx, m->rows, sizeof *err);
     if (!err)

@@ -805,13 +805,22 @@ static void json_num(const char *key, double v)
  * with --progress json, so stdout stays pure JSON). */
 static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
 {
-    /* the ground-truth columns only when some pair has them */
+    /* each owned pair's stats.json read once; the ground-truth columns only when some
+     * pair has them */
+    sinew_run_pair_summary *sum = calloc(spec->npairs ? spec->npairs : 1, sizeof *sum);
+    unsigned char *have = calloc(spec->npairs ? spec->npairs : 1, 1);
+    if (!sum || !have) {
+        free(sum);
+        free(have);
+        cli_error(CMD, "out of memory for the report table");
+        return;
+    }
     int truth = 0;
-    for (size_t q = 0; q < spec->npairs && !truth; q++) {
-        sinew_run_pair_summary s;
-        truth = sinew_shard_owns(q, spec->shard_k, spec->shard_n) &&
-                sinew_run_pair_summary_read(ctx, spec->outdir, spec->pairs[q], &s) == SINEW_OK &&
-                (isfinite(s.epe) || isfinite(s.occlusion_f1));
+    for (size_t q = 0; q < spec->npairs; q++) {
+        have[q] =
+            sinew_shard_owns(q, spec->shard_k, spec->shard_n) &&
+            sinew_run_pair_summary_read(ctx, spec->outdir, spec->pairs[q], &sum[q]) == SINEW_OK;
+        truth |= have[q] && (isfinite(sum[q].epe) || isfinite(sum[q].occlusion_f1));
     }
     if (!json)
         printf("%-13s %8s %10s %10s %9s%s\n", "pair", "kept", "|fwd| px", "matches", "lifted",
@@ -823,11 +832,10 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
             continue;
         char name[SINEW_PAIR_NAME_MAX];
         sinew_pair_name(name, spec->pairs[q]);
-        sinew_run_pair_summary s;
-        int have = sinew_run_pair_summary_read(ctx, spec->outdir, spec->pairs[q], &s) == SINEW_OK;
+        const sinew_run_pair_summary s = sum[q];
         if (json) {
             printf("{\"event\":\"summary\",\"pair\":\"%s\"", name);
-            if (have) {
+            if (have[q]) {
                 json_num("kept_fraction", s.kept_fraction);
                 json_num("mean_length_px", s.forward_mean_px);
                 json_num("matches", s.match_rows);
@@ -840,7 +848,7 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
             }
             printf("}\n");
         }
-        if (!have) {
+        if (!have[q]) {
             if (!json)
                 printf("%-13s %8s\n", name, "-");
             continue;
@@ -860,6 +868,8 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
     if (n && !json)
         printf("%-13s %7.1f%% %10s %10.0f\n", "all", pixels > 0 ? 100 * kept / pixels : 0.0, "",
                rows);
+    free(sum);
+    free(have);
 }
 
 /* --merge: rebuild the manifest from every shard's records. */

@@ -158,18 +158,19 @@ if ! "$PYTHON" -c 'import numpy' 2>/dev/null; then
     skip "ignore masks" "python3-numpy missing"
     exit 0
 fi
-# masks and labels are read with an independent PNG reader (tests/cli/png_ref.py)
-REFDIR="$(cd "$(dirname "$0")" && pwd)"
+# masks and labels are read with the project's numpy PNG reader (demo/truth.py read_png),
+# independent of sinew's own decoder
+REFDIR="$(cd "$(dirname "$0")/../../demo" && pwd)"
 "$PYTHON" - "$T/sc" "$REFDIR" <<'PY'
 import json, os, sys
 import numpy as np
 sys.path.insert(0, sys.argv[2])
-import png_ref
+import truth
 d = sys.argv[1]
 os.makedirs(os.path.join(d, 'ignore'), exist_ok=True)
 seq = json.load(open(os.path.join(d, 'sequence.json')))
 for i, fr in enumerate(seq['frames']):
-    lab = png_ref.read_gray8(os.path.join(d, fr['labels']))
+    lab = truth.read_png(os.path.join(d, fr['labels']))[..., 0].astype(np.uint8)
     m = np.where(lab == 4, 255, 0).astype(np.uint8)
     h, w = m.shape
     with open(os.path.join(d, 'ignore', '%06d.pgm' % i), 'wb') as fh:
@@ -189,13 +190,13 @@ ign_check() {
 import json, os, sys
 import numpy as np
 sys.path.insert(0, sys.argv[4])
-import png_ref
+import truth
 run, sc, pol = sys.argv[1:4]
 for p in sorted(os.listdir(os.path.join(run, 'pairs'))):
     i = int(p.split('-')[0])
     ign = np.load(os.path.join(sc, 'ignore', '%06d.npy' % i))
     want = ign != 0 if pol == 'nonzero' else ign == 0
-    mask = png_ref.read_gray8(os.path.join(run, 'pairs', p, 'mask.png'))
+    mask = truth.read_png(os.path.join(run, 'pairs', p, 'mask.png'))[..., 0].astype(np.uint8)
     got = (mask & 16) != 0
     assert (got == want).all(), (p, int((got != want).sum()))
     m = np.load(os.path.join(run, 'pairs', p, 'matches.npy'))

@@ -6,13 +6,13 @@
 # table. Expected values are recomputed with numpy from the run's own output files and
 # the truth files: EE = |est - gt| (Baker et al., IJCV 2011), F1 = 2PR / (P + R),
 # 3-D error = |(X1 - X0) - scene flow| at the match's source pixel; files are read with
-# tests/cli/score_ref.py (.flo) and tests/cli/png_ref.py (PNG). The scene is the invented
+# demo/truth.py (.flo and PNG, numpy only). The scene is the invented
 # one of `sinew synth`.
 . "$(dirname "$0")/lib.sh"
 
 B="$SINEW_BIN"
 OPT="--preset fast --progress plain"
-REFDIR="$(cd "$(dirname "$0")" && pwd)"
+REFDIR="$(cd "$(dirname "$0")/../../demo" && pwd)"
 
 if ! "$PYTHON" -c 'import numpy' 2>/dev/null; then
     skip "run truth scores" "python3-numpy missing"
@@ -32,7 +32,7 @@ import json, os, sys
 import numpy as np
 run, sc, ref = sys.argv[1:4]
 sys.path.insert(0, ref)
-import png_ref, score_ref
+import truth
 seq = json.load(open(os.path.join(sc, 'sequence.json')))
 def close(a, b, what):
     assert abs(a - b) <= 1e-6 * max(1.0, abs(b)), (what, a, b)
@@ -41,15 +41,15 @@ for t in seq['pairs']:
     name = '%06d-%06d' % (t['from'], t['to'])
     d = os.path.join(run, 'pairs', name)
     st = json.load(open(os.path.join(d, 'stats.json')))['truth']
-    est = score_ref.read_flo(os.path.join(d, 'forward.flo'))
-    gt = score_ref.read_flo(os.path.join(sc, t['flow_forward']))
-    occ = png_ref.read_gray8(os.path.join(sc, t['occlusion_forward'])) != 0
+    est = truth.read_flo(os.path.join(d, 'forward.flo'))
+    gt = truth.read_flo(os.path.join(sc, t['flow_forward']))
+    occ = truth.read_png(os.path.join(sc, t['occlusion_forward']))[..., 0].astype(np.uint8) != 0
     known = np.isfinite(gt).all(-1) & np.isfinite(est).all(-1)
     ee = np.hypot(est[..., 0] - gt[..., 0], est[..., 1] - gt[..., 1])
     close(st['epe_all'], ee[known].mean(), name + ' epe_all')
     close(st['epe_noc'], ee[known & ~occ].mean(), name + ' epe_noc')
     close(st['epe_occ'], ee[known & occ].mean(), name + ' epe_occ')
-    pred = (png_ref.read_gray8(os.path.join(d, 'mask.png')) & 3) != 0
+    pred = (truth.read_png(os.path.join(d, 'mask.png'))[..., 0].astype(np.uint8) & 3) != 0
     tp = float((pred & occ).sum()); p = tp / pred.sum(); r = tp / occ.sum()
     close(st['occlusion_precision'], p, name + ' precision')
     close(st['occlusion_recall'], r, name + ' recall')

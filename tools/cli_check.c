@@ -21,11 +21,12 @@ int cli_check_compute(const char *cmd, sinew_ctx *ctx, cli_check_result *r,
     const struct {
         const sinew_image *img;
         const char *path;
-    } chk[4] = {{in->backward, paths->backward},
+    } chk[5] = {{in->backward, paths->backward},
                 {in->frame0, paths->frame0},
                 {in->frame1, paths->frame1},
-                {in->ignore, paths->ignore}};
-    for (int i = 0; i < 4; i++)
+                {in->ignore, paths->ignore},
+                {in->depth0, paths->depth0}};
+    for (int i = 0; i < 5; i++)
         if (chk[i].img && (chk[i].img->width != w || chk[i].img->height != h))
             return cli_error(cmd, "%s: size %dx%d differs from the forward flow %s (%dx%d)",
                              chk[i].path ? chk[i].path : "input", chk[i].img->width,
@@ -74,6 +75,7 @@ cJSON *cli_check_json(const cli_check_result *r, const sinew_check_params *p,
                           !paths->ignore                            ? NULL
                           : p->ignore_polarity == SINEW_IGNORE_ZERO ? "zero"
                                                                     : "nonzero");
+    sinew_json_add_string(in, "depth0", paths->depth0);
     cJSON *pj = cJSON_AddObjectToObject(root, "params");
     sinew_check_param list[SINEW_CHECK_NPARAMS];
     sinew_check_params_list(p, list, SINEW_CHECK_NPARAMS);

@@ -14,6 +14,7 @@
 /* Input and output paths as given on the command line (NULL = not given). */
 typedef struct cli_check_paths {
     const char *forward, *backward, *frame0, *frame1, *ignore, *dir;
+    const char *depth0;   /* frame 0's depth for the occlusion z-buffer, or NULL */
     const char *features; /* confidence cues table (.npy), or NULL */
 } cli_check_paths;
 

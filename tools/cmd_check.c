@@ -22,7 +22,8 @@ static void usage(FILE *out)
 {
     fprintf(out,
             "usage: sinew check --forward FWD --backward BWD [--frames FRAME0 FRAME1]\n"
-            "                   [--ignore MASK --ignore-polarity nonzero|zero] -o DIR [options]\n"
+            "                   [--ignore MASK --ignore-polarity nonzero|zero] [--depth0 D0]\n"
+            "                   -o DIR [options]\n"
             "\n"
             "Forward-backward consistency, occlusion/reliability mask and per-pixel\n"
             "confidence of a flow pair. FWD maps frame 0 to frame 1, BWD frame 1 to frame 0\n"
@@ -42,6 +43,11 @@ static void usage(FILE *out)
             "  --ignore FILE             user mask of pixels to reject (first channel)\n"
             "  --ignore-polarity P       nonzero: ignore pixels != 0; zero: ignore pixels == 0\n"
             "                            (required with --ignore)\n"
+            "  --depth0 FILE             depth of frame 0 (16-bit PNG codes, or float .npy /\n"
+            "                            .pfm; 0, 65535, NaN, <= 0 invalid): among the\n"
+            "                            frame-0 pixels that reach one target, the farther\n"
+            "                            ones lose it (occlusion z-buffer), as in sinew run\n"
+            "  --depth-scale S           16-bit codes per metre (default 1000), as in run\n"
             "  -o, --output DIR          output folder (required)\n"
             "  --fb-alpha A --fb-beta B  inconsistent if |w+w_b|^2 > A(|w|^2+|w_b|^2) + B\n"
             "                            (default 0.01, 0.5: Sundaram et al. ECCV 2010);\n"
@@ -82,7 +88,9 @@ enum {
     OPT_MB_BETA,
     OPT_PHOTO,
     OPT_SAT,
-    OPT_FEATURES
+    OPT_FEATURES,
+    OPT_DEPTH0,
+    OPT_DEPTH_SCALE
 };
 
 /* Read a flow field, naming the file in any error. */
@@ -97,6 +105,19 @@ static int read_flow(sinew_ctx *ctx, sinew_image *img, const char *path)
 static int read_image(sinew_ctx *ctx, sinew_image *img, const char *path)
 {
     int st = sinew_image_read(ctx, img, path);
+    if (st)
+        cli_status(CMD, ctx, st);
+    return st;
+}
+
+/* Read a depth map and convert it to z in metres (NaN = invalid), as `sinew run` does
+ * for the check's z-buffer. */
+static int read_depth(sinew_ctx *ctx, const sinew_depth_params *dp, sinew_image *raw,
+                      sinew_image *z, const char *path)
+{
+    int st = sinew_depth_read(ctx, raw, path);
+    if (!st)
+        st = sinew_depth_convert(ctx, dp, NULL, raw, z, path, NULL);
     if (st)
         cli_status(CMD, ctx, st);
     return st;
@@ -128,6 +149,8 @@ int cmd_check(int argc, char **argv)
         {"saturation-level", required_argument, NULL, OPT_SAT},
         {"threads", required_argument, NULL, 't'},
         {"features", required_argument, NULL, OPT_FEATURES},
+        {"depth0", required_argument, NULL, OPT_DEPTH0},
+        {"depth-scale", required_argument, NULL, OPT_DEPTH_SCALE},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -135,6 +158,8 @@ int cmd_check(int argc, char **argv)
     long threads = 0;
     sinew_check_params p;
     sinew_check_params_default(&p);
+    sinew_depth_params dp;
+    sinew_depth_params_default(&dp);
     int c, bad;
     optind = 0;
     opterr = 0;
@@ -192,6 +217,14 @@ int cmd_check(int argc, char **argv)
         case OPT_FEATURES:
             paths.features = optarg;
             break;
+        case OPT_DEPTH0:
+            paths.depth0 = optarg;
+            break;
+        case OPT_DEPTH_SCALE:
+            bad = parse_param("--depth-scale", optarg, &dp.scale);
+            if (!bad && !(dp.scale > 0))
+                bad = cli_usage_error(CMD, "--depth-scale needs a number > 0, got '%s'", optarg);
+            break;
         case 't':
             if (cli_parse_int(optarg, 0, 4096, &threads))
                 return cli_usage_error(CMD, "--threads needs an integer 0..4096, got '%s'", optarg);
@@ -217,7 +250,7 @@ int cmd_check(int argc, char **argv)
     if (!ctx)
         return CLI_FAIL;
     int rc = CLI_FAIL;
-    sinew_image fwd = {0}, bwd = {0}, f0 = {0}, f1 = {0}, ign = {0};
+    sinew_image fwd = {0}, bwd = {0}, f0 = {0}, f1 = {0}, ign = {0}, draw = {0}, z0 = {0};
     cli_check_result r;
     memset(&r, 0, sizeof r);
     cJSON *root = NULL;
@@ -227,12 +260,14 @@ int cmd_check(int argc, char **argv)
         goto done;
     if (paths.ignore && read_image(ctx, &ign, paths.ignore))
         goto done;
+    if (paths.depth0 && read_depth(ctx, &dp, &draw, &z0, paths.depth0))
+        goto done;
     sinew_check_input in = {&fwd,
                             &bwd,
                             paths.frame0 ? &f0 : NULL,
                             paths.frame1 ? &f1 : NULL,
                             paths.ignore ? &ign : NULL,
-                            NULL};
+                            paths.depth0 ? &z0 : NULL};
     if (cli_check_compute(CMD, ctx, &r, &in, &p, &paths))
         goto done;
     if (!(root = cli_check_json(&r, &p, &paths))) {
@@ -260,6 +295,8 @@ done:
     sinew_image_free(&f0);
     sinew_image_free(&f1);
     sinew_image_free(&ign);
+    sinew_image_free(&draw);
+    sinew_image_free(&z0);
     sinew_ctx_free(ctx);
     return rc;
 }

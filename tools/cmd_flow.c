@@ -318,7 +318,7 @@ int cmd_flow(int argc, char **argv)
     cli_check_result chk;
     memset(&chk, 0, sizeof chk);
     cJSON *chk_json = NULL;
-    cli_check_paths chk_paths = {out, bout, f0, f1, NULL, check_dir, NULL};
+    cli_check_paths chk_paths = {out, bout, f0, f1, NULL, check_dir, NULL, NULL};
     if (!rc && !reported && check_dir) {
         sinew_check_params cp;
         sinew_check_params_default(&cp);

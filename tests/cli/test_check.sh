@@ -245,3 +245,41 @@ if "$SINEW_BIN" synth -o "$T/occdemo" --frames 4 >/dev/null 2>"$T/err"; then
 else
     fail "demo occlusion F1" "sinew synth failed: $(head -c 200 "$T/err")"
 fi
+
+# 7. --depth0: a standalone check on a run's flows with frame 0's depth gives the run's
+# own mask and confidence byte for byte (the run passes frame 0's depth to the occlusion
+# z-buffer, docs/methods.md "Occlusion"); without the depth the mask differs on this
+# scene (so the comparison is not vacuous: the depth decides who loses a target).
+if "$SINEW_BIN" synth -o "$T/dscene" --frames 2 --size 160x120 >/dev/null 2>"$T/err" &&
+    "$SINEW_BIN" run "$T/dscene" -o "$T/drun" --preset fast >/dev/null 2>>"$T/err"; then
+    P="$T/drun/pairs/000000-000001"
+    set -- "$SINEW_BIN" check --forward "$P/forward.flo" --backward "$P/backward.flo" \
+        --frames "$T/dscene/color/000000.png" "$T/dscene/color/000001.png"
+    expect_ok "check --depth0 on a run's flows" "$@" --depth0 "$T/dscene/depth/000000.png" \
+        --depth-scale 1000 -o "$T/dchk"
+    if cmp -s "$T/dchk/mask.png" "$P/mask.png" && cmp -s "$T/dchk/confidence.npy" "$P/confidence.npy"; then
+        pass "check --depth0 equals the check inside run (mask.png, confidence.npy)"
+    else
+        fail "check --depth0 equals run" "mask.png or confidence.npy differ"
+    fi
+    "$@" -o "$T/dchk0" >/dev/null 2>&1
+    if cmp -s "$T/dchk0/mask.png" "$P/mask.png"; then
+        fail "check without depth differs from run" "same mask: the comparison above is vacuous"
+    else
+        pass "check without depth differs from run (the depth is used)"
+    fi
+    if grep -q '"depth0":.*000000.png' "$T/dchk/check.json"; then
+        pass "check.json names depth0"
+    else
+        fail "check.json names depth0" "$(grep depth0 "$T/dchk/check.json")"
+    fi
+    expect_error "missing depth names the file" "$T/dchk1/check.json" "nodepth.png" \
+        "$@" --depth0 "$T/nodepth.png" -o "$T/dchk1"
+    expect_error "depth of another size names the file" "$T/dchk2/check.json" "000000.png.*160x120|size" \
+        "$SINEW_BIN" check --forward "$T/fwd.flo" --backward "$T/bwd.npy" \
+        --depth0 "$T/dscene/depth/000000.png" -o "$T/dchk2"
+    expect_error "bad depth scale" - "depth-scale" "$@" --depth0 "$T/dscene/depth/000000.png" \
+        --depth-scale 0 -o "$T/dchk3"
+else
+    fail "check --depth0" "sinew synth/run failed: $(head -c 200 "$T/err")"
+fi

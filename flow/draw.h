@@ -45,7 +45,8 @@ void sinew_draw_colourmap(double t, uint8_t rgb[3]);
 
 /* ---- rejection reasons (mask bits, see flow/check.h) ---- */
 #define SINEW_DRAW_REASONS 8
-/* Overlay colour and short legend name of mask bit `bit` (0..6). SINEW_EINVAL otherwise.
+/* Overlay colour and legend name of mask bit `bit` (0..SINEW_DRAW_REASONS-1): the name
+ * of sinew_check_bit_name in upper case, '_' shown as a space. SINEW_EINVAL otherwise.
  * name may be NULL; *name is static storage. */
 int sinew_draw_reason_style(int bit, uint8_t rgb[3], const char **name);
 /* Blend of a reason colour c over the dimmed frame value f, per channel (integer
@@ -91,7 +92,7 @@ int sinew_draw_epe(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow, co
                    double max_epe, int legend);
 
 /* Rejection reasons over the frame: mask is SINEW_U8 1-channel (bits as in
- * flow/check.h; bit 7 is ignored). A pixel with reasons takes the colour of its
+ * flow/check.h). A pixel with reasons takes the colour of its
  * lowest set bit blended over the dimmed frame as described above.
  * frame may be NULL (black); otherwise its size must match the mask. */
 int sinew_draw_reasons(sinew_ctx *ctx, sinew_image *out, const sinew_image *frame,

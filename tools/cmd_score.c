@@ -281,10 +281,16 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
             goto done;
         }
         have_ms = 1;
+        row.have_mask = 1;
+        row.ms = ms;
     }
     if (o->confidence &&
         (rc = score_confidence(ctx, o->confidence, &est, &gt, gt_path, &eval, &sp)))
         goto done;
+    if (sp.have) {
+        row.ause = sp.ause;
+        row.ece = sp.cal.ece;
+    }
 
     if (o->csv && (rc = score_write_csv(ctx, o->csv, "pair", &row, 1, NULL)))
         goto done;

@@ -141,12 +141,20 @@ static void csv_header(FILE *f)
         for (size_t j = 0; j < CSV_NFIELDS; j++)
             fprintf(f, ",%s%s%s", k == 0 ? "" : score_region_key[k], k == 0 ? "" : "_",
                     csv_fields[j]);
-    fputs(",runtime_s,ause\n", f);
+    fputs(",runtime_s,ause,ece,occ_precision,occ_recall,occ_f1,occ_tp,occ_fp,occ_fn,occ_tn\n", f);
 }
+
+/* Our mask and confidence columns of a CSV line: ause, ece, then precision, recall, F1
+ * (prf, NULL = empty) and the counts (ms, NULL = empty). */
+typedef struct {
+    double ause, ece;
+    const double *prf;
+    const sinew_mask_scores *ms;
+} csv_check;
 
 static void csv_row(FILE *f, const char *layout, const char *label, const char *averaging,
                     const sinew_flow_summary s[SINEW_REGION_COUNT], int has_occ, double t,
-                    double ause)
+                    const csv_check *ck)
 {
     /* ids come from file names; quote them if they could break the CSV */
     if (strpbrk(label, ",\"\n")) {
@@ -175,7 +183,15 @@ static void csv_row(FILE *f, const char *layout, const char *label, const char *
         csv_val(f, r->density_pct);
     }
     csv_val(f, t); /* empty when not measured */
-    csv_val(f, ause);
+    csv_val(f, ck->ause);
+    csv_val(f, ck->ece);
+    for (int j = 0; j < 3; j++)
+        csv_val(f, ck->prf ? ck->prf[j] : NAN);
+    if (ck->ms)
+        fprintf(f, ",%lld,%lld,%lld,%lld", (long long)ck->ms->tp, (long long)ck->ms->fp,
+                (long long)ck->ms->fn, (long long)ck->ms->tn);
+    else
+        fputs(",,,,", f);
     fputc('\n', f);
 }
 
@@ -296,14 +312,24 @@ int score_write_csv(sinew_ctx *ctx, const char *path, const char *layout, const 
     FILE *f = sinew_outfile_stream(of);
     csv_header(f);
     const char *single = n == 1 && !sum ? sinew_averaging_name(SINEW_AVG_POOLED) : "per-pair";
-    for (size_t i = 0; i < n; i++)
-        csv_row(f, layout, rows[i].id, single, rows[i].s, rows[i].err.has_occ, rows[i].time_s,
-                rows[i].ause);
+    for (size_t i = 0; i < n; i++) {
+        double prf[3];
+        const sinew_mask_scores *ms = rows[i].have_mask ? &rows[i].ms : NULL;
+        if (ms)
+            sinew_mask_scores_rates(ms, &prf[0], &prf[1], &prf[2]);
+        csv_check c = {rows[i].ause, rows[i].ece, ms ? prf : NULL, ms};
+        csv_row(f, layout, rows[i].id, single, rows[i].s, rows[i].err.has_occ, rows[i].time_s, &c);
+    }
     if (sum) {
+        csv_check m = {sum->mean_ause, sum->mean_ece, sum->n_mask ? sum->mean_mask : NULL, NULL};
         csv_row(f, layout, "summary", sinew_averaging_name(SINEW_AVG_PAIR_MEAN), sum->mean,
-                sum->has_occ, sum->mean_time_s, sum->mean_ause);
+                sum->has_occ, sum->mean_time_s, &m);
+        double prf[3];
+        if (sum->n_mask)
+            sinew_mask_scores_rates(&sum->pooled_mask, &prf[0], &prf[1], &prf[2]);
+        csv_check p = {NAN, NAN, sum->n_mask ? prf : NULL, sum->n_mask ? &sum->pooled_mask : NULL};
         csv_row(f, layout, "summary", sinew_averaging_name(SINEW_AVG_POOLED), sum->pooled,
-                sum->has_occ, sum->mean_time_s, NAN);
+                sum->has_occ, sum->mean_time_s, &p);
     }
     st = sinew_outfile_commit(ctx, of);
     return st ? cli_status(CMD, ctx, st) : CLI_OK;

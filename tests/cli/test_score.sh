@@ -278,6 +278,40 @@ PY
 else
     fail "--check / --checks numbers" "$(head -c 600 "$T/qcheck.json")"
 fi
+# --csv carries the same mask and confidence numbers (dataset rows, both summaries, and
+# one pair with --mask --confidence)
+"$SINEW_BIN" score --layout sintel --root "$Q" --estimates "$T/qest" --checks "$T/qchk" \
+    --csv "$T/qchecks.csv" >/dev/null 2>"$T/err" || fail "--checks --csv" "$(head -c 300 "$T/err")"
+"$SINEW_BIN" score "$T/qest/demo/frame_0001.flo" "$Q/flow/demo/frame_0001.flo" \
+    --occ "$Q/occlusions/demo/frame_0001.png" --mask "$T/qchk/demo/frame_0001/mask.png" \
+    --confidence "$T/qchk/demo/frame_0001/confidence.npy" --csv "$T/qone1.csv" >/dev/null 2>&1 ||
+    fail "one pair --csv" "exit $?"
+if "$PYTHON" - "$T/qchecks.json" "$T/qchecks.csv" "$T/qone1.json" "$T/qone1.csv" <<'PY'; then
+import csv, json, math, sys
+js, one = json.load(open(sys.argv[1])), json.load(open(sys.argv[3]))
+rows = {(r["pair"], r["averaging"]): r for r in csv.DictReader(open(sys.argv[2]))}
+def same(c, v):  # the CSV prints %.10g
+    assert c != "" and math.isclose(float(c), v, rel_tol=1e-9, abs_tol=1e-12), (c, v)
+def mask(r, m, counts=True):
+    for k in ("precision", "recall", "f1"):
+        same(r["occ_" + k], m[k])
+    for k in ("tp", "fp", "fn", "tn"):
+        assert (r["occ_" + k] == str(m[k])) if counts else r["occ_" + k] == "", (k, r)
+for p in js["pairs"]:
+    r = rows[(p["id"], "per-pair")]
+    mask(r, p["occlusion_mask"]); same(r["ause"], p["ause"]); same(r["ece"], p["ece"])
+m = js["summary"]["mean-of-pairs"]; r = rows[("summary", "mean-of-pairs")]
+mask(r, m["occlusion_mask"], counts=False); same(r["ause"], m["ause"]); same(r["ece"], m["ece"])
+p = js["summary"]["pooled-pixels"]; r = rows[("summary", "pooled-pixels")]
+mask(r, p["occlusion_mask"]); assert r["ause"] == "" and r["ece"] == "", r
+r = next(csv.DictReader(open(sys.argv[4])))
+mask(r, one["occlusion_mask"]); same(r["ause"], one["sparsification"]["ause"])
+same(r["ece"], one["calibration"]["ece"])
+PY
+    pass "--csv carries the occlusion mask P/R/F1/counts, AUSE and ECE of the JSON"
+else
+    fail "--csv mask and confidence columns" "$(head -3 "$T/qchecks.csv")"
+fi
 "$SINEW_BIN" score --layout sintel --root "$Q" --preset fast --check >"$T/qcheck.txt" 2>&1
 if grep -q "occ F1" "$T/qcheck.txt" && grep -q "^  mean-of-pairs" "$T/qcheck.txt"; then
     pass "--check text table"

@@ -54,17 +54,18 @@ struct sinew_estimator {
 };
 
 /* Large-displacement stage constants (docs/methods.md) */
-#define LM_WIDTH 512           /* working level: the finest at most this wide (and >= level 1) */
-#define LM_MIN 16              /* ... and at least this many pixels on each side */
-#define LM_STEP 3              /* seed grid step at that level (Hu et al. 2016: d = 3) */
-#define LM_ITERS 8             /* PatchMatch iterations */
-#define LM_SAMPLES 8           /* uniform draws over the frame per seed and iteration */
-#define LM_SUPPORT 6           /* a kept seed needs this many agreeing kept neighbours in 5x5 */
-#define LM_NOISE (2.f / 255.f) /* ... and the coarse-to-fine one differs by more */
-#define LM_MARGIN 0.5f         /* the interpolated start wins a region if its cost x 1.5 is lower */
-#define LM_DEPTH 5             /* descriptor pyramid levels (Hu et al. 2016: k = 5) */
-#define LM_RADIUS 4            /* random-search radius below the coarsest level, px */
-#define LM_KEEP 0.25f          /* matches are used only if this share of seeds survives both ways */
+#define LM_WIDTH 512 /* working level: the finest at most this wide (and >= level 1) */
+#define LM_MIN 16    /* ... and at least this many pixels on each side */
+#define LM_STEP 3    /* seed grid step at that level (Hu et al. 2016: d = 3) */
+#define LM_ITERS 8   /* PatchMatch iterations */
+#define LM_SAMPLES 8 /* uniform draws over the frame per seed and iteration */
+#define LM_SUPPORT 6 /* a kept seed needs this many agreeing kept neighbours in 5x5 */
+#define LM_EVIDENCE                                                                                \
+    600.f             /* the interpolated start wins a region if its descriptor cost is            \
+                       * lower by this much per pixel (L1 of 32 bytes; docs/methods.md) */
+#define LM_DEPTH 5    /* descriptor pyramid levels (Hu et al. 2016: k = 5) */
+#define LM_RADIUS 4   /* random-search radius below the coarsest level, px */
+#define LM_KEEP 0.25f /* matches are used only if this share of seeds survives both ways */
 
 int sinew_flow_params_preset(sinew_flow_params *p, const char *name)
 {
@@ -560,33 +561,35 @@ static void refine_level(sinew_estimator *e, float *u, float *v, sinew__level *l
     }
 }
 
-/* The working level of the large-displacement stage: the level is refined twice, from
- * the interpolated seed matches (with the coarse levels' warp count, p->warps: half the
- * cost of the full schedule there) and from the coarse-to-fine flow (u, v); per region of
- * the interpolation (the pixels nearest to one seed) the refined flow that matches frame
- * 1 better wins. The unused upper parts of the full-size planes u, v hold the copies
- * (the level has at most a quarter of the pixels; ensure_buffers checks 3 fit). */
+/* The working level of the large-displacement stage: per region of the interpolation
+ * (the pixels nearest to one seed) the start of the refinement is either the upsampled
+ * coarse-to-fine flow (u, v) or the interpolated seed matches, whichever maps the
+ * region's pixels to frame 1 descriptors that are closer (L1), the interpolated one only
+ * by LM_EVIDENCE per pixel: both starts are judged before any refinement at this level
+ * (a refined field always explains the colours it was fitted to, so the colour cost
+ * after refinement favours it whether or not it is right), then the level is refined
+ * once. The unused upper parts of the full-size planes u, v hold the interpolated flow,
+ * the labels and the per-pixel cost differences (the level has at most a quarter of the
+ * pixels; ensure_buffers checks 3 fit); both frames' descriptors fill g. */
 static void lm_level(sinew_estimator *e, float *u, float *v, sinew__level *l0, sinew__level *l1,
                      int s, int dir)
 {
     size_t n = (size_t)l0->w * (size_t)l0->h, off = (n + 15u) & ~(size_t)15u;
-    float *cu = u + off, *cv = v + off, *iu = u + 2 * off, *iv = v + 2 * off;
-    if (!lm_interpolate(e, l0, dir)) {
-        refine_level(e, u, v, l0, l1, s, 0);
-        return;
+    float *iu = u + off, *iv = v + off, *cost = v + 2 * off;
+    int *lab = (int *)(void *)(u + 2 * off);
+    int nt = sinew_ctx_threads(e->ctx);
+    if (lm_interpolate(e, l0, dir)) {
+        copy_flow(iu, iv, e->g, e->g + e->gp, n);
+        memcpy(lab, lm_labels(e), n * sizeof(int));
+        unsigned char *d0 = (unsigned char *)e->g, *d1 = d0 + n * SINEW__DESC_BYTES;
+        sinew__describe(d0, l0->lum, l0->w, l0->h, e->work, e->work_floats, nt);
+        sinew__describe(d1, l1->lum, l0->w, l0->h, e->work, e->work_floats, nt);
+        sinew__desc_margin(cost, d0, d1, iu, iv, u, v, l0->w, l0->h, LM_EVIDENCE, nt);
+        /* the seed cost array (ints, free after lm_match) holds the per-region float sums */
+        sinew__choose_regions(u, v, iu, iv, lab, e->lm_nx * e->lm_ny, cost,
+                              (float *)(void *)e->lm_f[0][2], l0->w, l0->h, nt);
     }
-    copy_flow(cu, cv, u, v, n);
-    copy_flow(u, v, e->g, e->g + e->gp, n);
-    refine_level(e, u, v, l0, l1, s, e->p.warps); /* the coarse levels' warps: cheaper */
-    copy_flow(iu, iv, u, v, n);
-    copy_flow(u, v, cu, cv, n);
     refine_level(e, u, v, l0, l1, s, 0);
-    lm_interpolate(e, l0, dir); /* the labels again (g was reused) */
-    float *g = e->g;
-    /* the seed cost arrays (ints, free after lm_match) hold the per-region float sums */
-    sinew__fuse_regions(u, v, iu, iv, lm_labels(e), e->lm_nx * e->lm_ny, g, g + e->gp,
-                        (float *)(void *)e->lm_f[0][2], (float *)(void *)e->lm_f[1][2], LM_MARGIN,
-                        LM_NOISE, l0, l1, e->channels, sinew_ctx_threads(e->ctx));
 }
 
 /* Coarse-to-fine estimation from pyramid a to pyramid b into the interleaved image out;

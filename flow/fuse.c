@@ -147,57 +147,21 @@ void sinew__fuse(float *uo, float *vo, const float *u, const float *v, const sin
     }
 }
 
-/* Truncated colour difference of pixel (x, y) under flow (cu, cv): the per-pixel term of
- * cand_cost; -1 when the point falls outside frame 1. */
-static float pixel_cost(const sinew__level *l0, const sinew__level *l1, int channels, int x, int y,
-                        float cu, float cv)
-{
-    int w = l0->w, h = l0->h;
-    float px = (float)x + cu, py = (float)y + cv;
-    if (!(px >= -0.5f && py >= -0.5f && px <= (float)w - 0.5f && py <= (float)h - 0.5f))
-        return -1.f;
-    size_t j = (size_t)y * (size_t)w + (size_t)x;
-    float d = 0.f;
-    for (int c = 0; c < channels; c++)
-        d += fabsf(sinew__sample(l1->ch[c], w, h, px, py) - l0->ch[c][j]);
-    d /= (float)channels;
-    return d < FU_TAU ? d : FU_TAU;
-}
-
-void sinew__fuse_regions(float *u, float *v, const float *ua, const float *va, const int *label,
-                         int nlabels, float *pa, float *pc, float *sa, float *sc, float margin,
-                         float noise, const sinew__level *l0, const sinew__level *l1, int channels,
-                         int nt)
+void sinew__choose_regions(float *u, float *v, const float *ua, const float *va, const int *label,
+                           int nlabels, const float *d, float *sum, int w, int h, int nt)
 {
     (void)nt; /* unused without OpenMP */
-    int w = l0->w, h = l0->h;
-    SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < h; y++) {
-        for (int x = 0; x < w; x++) {
-            size_t i = (size_t)y * (size_t)w + (size_t)x;
-            /* only pixels that both flows keep inside frame 1 are evidence */
-            float a = pixel_cost(l0, l1, channels, x, y, ua[i], va[i]);
-            float c = pixel_cost(l0, l1, channels, x, y, u[i], v[i]);
-            int both = a >= 0.f && c >= 0.f;
-            pa[i] = both ? a : 0.f;
-            pc[i] = both ? c - noise : 0.f;
-        }
-    }
     for (int k = 0; k < nlabels; k++)
-        sa[k] = sc[k] = 0.f;
+        sum[k] = 0.f;
     size_t n = (size_t)w * (size_t)h;
-    for (size_t i = 0; i < n; i++) { /* serial: the sums do not depend on the threads */
-        if (label[i] >= 0) {
-            sa[label[i]] += pa[i];
-            sc[label[i]] += pc[i];
-        }
-    }
+    for (size_t i = 0; i < n; i++) /* serial: the sums do not depend on the threads */
+        if (label[i] >= 0)
+            sum[label[i]] += d[i];
     SINEW_PARALLEL_FOR(nt)
     for (int y = 0; y < h; y++) {
         for (int x = 0; x < w; x++) {
             size_t i = (size_t)y * (size_t)w + (size_t)x;
-            int k = label[i];
-            if (k >= 0 && sa[k] * (1.f + margin) < sc[k]) {
+            if (label[i] >= 0 && sum[label[i]] < 0.f) {
                 u[i] = ua[i];
                 v[i] = va[i];
             }

@@ -206,3 +206,27 @@ int sinew__pm_support(unsigned char *ok, unsigned char *tmp, const int *fu, cons
         ok[s] = tmp[s];
     return kept;
 }
+
+void sinew__desc_margin(float *d, const unsigned char *d0, const unsigned char *d1, const float *ua,
+                        const float *va, const float *uc, const float *vc, int w, int h,
+                        float evidence, int nt)
+{
+    (void)nt; /* unused without OpenMP */
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        for (int x = 0; x < w; x++) {
+            size_t i = (size_t)y * (size_t)w + (size_t)x;
+            int ax = (int)floorf((float)x + ua[i] + 0.5f),
+                ay = (int)floorf((float)y + va[i] + 0.5f);
+            int cx = (int)floorf((float)x + uc[i] + 0.5f),
+                cy = (int)floorf((float)y + vc[i] + 0.5f);
+            d[i] = 0.f;
+            if (ax < 0 || ay < 0 || ax >= w || ay >= h || cx < 0 || cy < 0 || cx >= w || cy >= h)
+                continue;
+            const unsigned char *p = d0 + i * SINEW__DESC_BYTES;
+            int ca = desc_cost(p, d1 + ((size_t)ay * (size_t)w + (size_t)ax) * SINEW__DESC_BYTES);
+            int cc = desc_cost(p, d1 + ((size_t)cy * (size_t)w + (size_t)cx) * SINEW__DESC_BYTES);
+            d[i] = (float)(ca - cc) + evidence;
+        }
+    }
+}

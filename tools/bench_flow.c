@@ -226,7 +226,7 @@ static int inproc(const char *preset, const char *a, const char *b, int runs, in
             die(ctx, "run");
         if (pair_mode) {
             sinew_check_input in = {&fw, &bw, &f0, &f1, NULL, NULL};
-            sinew_check_output out = {&err, &mask, &conf, {0}};
+            sinew_check_output out = {&err, &mask, &conf, {0}, NULL};
             if (sinew_check_run(ctx, &out, &in, NULL))
                 die(ctx, "check");
         }

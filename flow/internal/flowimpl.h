@@ -181,16 +181,6 @@ void sinew__wmedian(float *uo, float *vo, const float *u, const float *v, const 
 void sinew__fuse(float *uo, float *vo, const float *u, const float *v, const sinew__level *l0,
                  const sinew__level *l1, int channels, float band, int nt);
 
-/* Per region (pixels sharing a label in 0..nlabels-1; -1 = none), take (ua, va) instead
- * of (u, v) where (1 + margin) times its summed truncated colour difference to frame 1
- * over the region is below that of (u, v) minus `noise` per pixel (so a region that
- * (u, v) already explains to within noise keeps it). pa, pc: w*h floats of scratch each; sa,
- * sc: nlabels floats each. */
-void sinew__fuse_regions(float *u, float *v, const float *ua, const float *va, const int *label,
-                         int nlabels, float *pa, float *pc, float *sa, float *sc, float margin,
-                         float noise, const sinew__level *l0, const sinew__level *l1, int channels,
-                         int nt);
-
 /* ---- large-displacement stage: descriptors, seed matching, interpolation ---- */
 #define SINEW__DESC_BYTES 32
 /* Scratch floats sinew__describe needs at least (one output row) for width w. */
@@ -239,6 +229,17 @@ void sinew__geodesic_label(float *dist, int *label, const float *c, int w, int h
  * dist, label: w*h scratch each. Returns the number of seeds used (0: u, v untouched). */
 int sinew__interpolate(float *u, float *v, float *dist, int *label, const float *lum, int w, int h,
                        const sinew__seeds *sd, int nt);
+
+/* Per pixel, d = C(ua, va) - C(uc, vc) + evidence, C the L1 distance between the
+ * descriptor d0 at the pixel and d1 at its target rounded to the nearest pixel; 0 where
+ * either target falls outside frame 1 (flow/patchmatch.c). */
+void sinew__desc_margin(float *d, const unsigned char *d0, const unsigned char *d1, const float *ua,
+                        const float *va, const float *uc, const float *vc, int w, int h,
+                        float evidence, int nt);
+/* Per region (pixels sharing a label in 0..nlabels-1; -1 = none) take (ua, va) where the
+ * region's sum of d is negative (flow/fuse.c). sum: nlabels floats of scratch. */
+void sinew__choose_regions(float *u, float *v, const float *ua, const float *va, const int *label,
+                           int nlabels, const float *d, float *sum, int w, int h, int nt);
 
 /* ---- coarse-to-fine Horn-Schunck baseline (Horn and Schunck 1981) ---- */
 int sinew__hs_planes(void);

@@ -174,6 +174,26 @@ const char *sinew_check_feature_name(int i);
  * otherwise. Static storage. */
 const char *sinew_check_bit_name(int bit);
 
+/* ---- the check folder on disk (docs/formats.md "Check output"; flow/check_io.c) ---- */
+
+/* Read DIR/mask.png (8-bit gray, 0 = kept) into *mask and DIR/confidence.npy (H x W
+ * float in [0, 1]) into *confidence. The two paths are written to mask_path /
+ * confidence_path (buffers of path_size bytes) for messages and provenance. Errors name
+ * the file: EIO (missing), EFORMAT, ESIZE (sizes differ), EVALUE (confidence NaN or
+ * outside [0, 1]). On failure both images are freed. */
+int sinew_check_folder_read(sinew_ctx *ctx, const char *dir, sinew_image *mask,
+                            sinew_image *confidence, char *mask_path, char *confidence_path,
+                            size_t path_size);
+
+/* Write the folder DIR (created if missing; its parent must exist): fb_error.npy,
+ * mask.png, confidence.npy, confidence.png (16-bit, 65535 = 1), then check.json from
+ * json_text (last, so its presence marks a complete set). Each file is atomic. ESIZE
+ * when the images differ in size, EIO naming DIR when it cannot be created or is not a
+ * folder; the writers' errors otherwise. */
+int sinew_check_folder_write(sinew_ctx *ctx, const char *dir, const sinew_image *fb_error,
+                             const sinew_image *mask, const sinew_image *confidence,
+                             const char *json_text);
+
 #ifdef __cplusplus
 }
 #endif

@@ -171,15 +171,6 @@ int sinew_matches_save_csv(sinew_ctx *ctx, const sinew_matches *m, const char *p
 
 /* ---- the check folder, as match and lift read it (needs flow/io.h) ---- */
 
-/* Read the check stage's folder: DIR/mask.png (8-bit gray, 0 = kept) into *mask and
- * DIR/confidence.npy (H x W float in [0, 1]) into *confidence. The two paths are
- * written to mask_path / confidence_path (buffers of path_size bytes) for messages and
- * provenance. Errors name the file: EIO (missing), EFORMAT, ESIZE (sizes differ),
- * EVALUE (confidence NaN or outside [0, 1]). On failure both images are freed. */
-int sinew_match_read_check(sinew_ctx *ctx, const char *dir, sinew_image *mask,
-                           sinew_image *confidence, char *mask_path, char *confidence_path,
-                           size_t path_size);
-
 #ifdef __cplusplus
 }
 #endif

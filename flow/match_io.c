@@ -1,7 +1,6 @@
 /* SPDX-License-Identifier: MIT */
 /* Match files: the npy table with its JSON sidecar, PLY (points + segments) and CSV
- * writers, the sidecar's column reader, and the check folder reader the match/lift
- * commands need. Formats: docs/formats.md "Matches". */
+ * writers and the sidecar's column reader. Formats: docs/formats.md "Matches". */
 #define _POSIX_C_SOURCE 200809L
 #include <cJSON.h>
 #include <math.h>
@@ -17,55 +16,6 @@
 #include "flow/io.h"
 #include "flow/json.h"
 #include "flow/match.h"
-
-/* ---- readers ---- */
-
-int sinew_match_read_check(sinew_ctx *ctx, const char *dir, sinew_image *mask,
-                           sinew_image *confidence, char *mask_path, char *confidence_path,
-                           size_t path_size)
-{
-    if (!ctx || !dir || !mask || !confidence || !mask_path || !confidence_path)
-        return SINEW_EINVAL;
-    memset(mask, 0, sizeof *mask);
-    memset(confidence, 0, sizeof *confidence);
-    int n1 = snprintf(mask_path, path_size, "%s/mask.png", dir);
-    int n2 = snprintf(confidence_path, path_size, "%s/confidence.npy", dir);
-    if (n1 < 0 || n2 < 0 || (size_t)n1 >= path_size || (size_t)n2 >= path_size)
-        return sinew__fail(ctx, SINEW_EINVAL, "%s: path too long", dir);
-    int rc = sinew_image_read(ctx, mask, mask_path);
-    if (rc)
-        return rc;
-    if (mask->channels != 1 || mask->type != SINEW_U8) {
-        sinew_image_free(mask);
-        return sinew__fail(ctx, SINEW_EFORMAT, "%s: a check mask is an 8-bit gray PNG", mask_path);
-    }
-    rc = sinew_npy_read_image(ctx, confidence, confidence_path);
-    if (rc) {
-        sinew_image_free(mask);
-        return rc;
-    }
-    const char *bad = NULL;
-    int code = SINEW_ESIZE; /* for the shape problems; values: SINEW_EVALUE */
-    if (confidence->channels != 1)
-        bad = "must be an H x W array";
-    else if (confidence->width != mask->width || confidence->height != mask->height)
-        bad = "size differs from mask.png";
-    for (int y = 0; !bad && y < confidence->height; y++) {
-        const float *r = sinew_image_row_f32(confidence, y);
-        for (int x = 0; x < confidence->width; x++)
-            if (!(r[x] >= 0 && r[x] <= 1)) {
-                bad = "values must lie in [0, 1] (NaN or out of range found)";
-                code = SINEW_EVALUE;
-                break;
-            }
-    }
-    if (bad) {
-        sinew_image_free(mask);
-        sinew_image_free(confidence);
-        return sinew__fail(ctx, code, "%s: %s", confidence_path, bad);
-    }
-    return SINEW_OK;
-}
 
 /* ---- sidecar ---- */
 

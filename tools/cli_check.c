@@ -3,11 +3,8 @@
 #define _POSIX_C_SOURCE 200809L
 #include "tools/cli_check.h"
 
-#include <errno.h>
-#include <math.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 #include "tools/cli.h"
 
@@ -107,68 +104,15 @@ cJSON *cli_check_json(const cli_check_result *r, const sinew_check_params *p,
     return root;
 }
 
-/* Create dir (one level) unless it exists as a folder. */
-static int make_dir(const char *cmd, const char *dir)
-{
-    struct stat st;
-    if (stat(dir, &st) == 0) {
-        if (S_ISDIR(st.st_mode))
-            return 0;
-        return cli_error(cmd, "%s: exists and is not a folder", dir);
-    }
-    if (mkdir(dir, 0777) != 0 && errno != EEXIST)
-        return cli_error(cmd, "%s: cannot create folder: %s", dir, strerror(errno));
-    return 0;
-}
-
 int cli_check_write(const char *cmd, sinew_ctx *ctx, const cli_check_result *r, cJSON *root,
                     const char *dir)
 {
-    if (make_dir(cmd, dir))
-        return 1;
-    size_t n = strlen(dir) + 32;
-    char *path = malloc(n);
-    sinew_image c16 = {0};
-    char *text = NULL;
-    int st = SINEW_ENOMEM;
-    if (!path)
-        goto fail;
-    if ((st =
-             sinew_image_alloc(ctx, &c16, r->confidence.width, r->confidence.height, 1, SINEW_U16)))
-        goto fail;
-    for (int y = 0; y < c16.height; y++)
-        for (int x = 0; x < c16.width; x++) {
-            double c = sinew_image_row_f32(&r->confidence, y)[x];
-            sinew_image_row_u16(&c16, y)[x] = (uint16_t)lround(65535.0 * c);
-        }
-    snprintf(path, n, "%s/fb_error.npy", dir);
-    if ((st = sinew_npy_write_image(ctx, path, &r->fb_error, 0)))
-        goto fail;
-    snprintf(path, n, "%s/mask.png", dir);
-    if ((st = sinew_image_write_png(ctx, path, &r->mask)))
-        goto fail;
-    snprintf(path, n, "%s/confidence.npy", dir);
-    if ((st = sinew_npy_write_image(ctx, path, &r->confidence, 0)))
-        goto fail;
-    snprintf(path, n, "%s/confidence.png", dir);
-    if ((st = sinew_image_write_png(ctx, path, &c16)))
-        goto fail;
-    st = SINEW_ENOMEM;
-    if (!(text = cJSON_Print(root)))
-        goto fail;
-    snprintf(path, n, "%s/check.json", dir);
-    if ((st = sinew_write_json_text(ctx, path, text))) /* valid UTF-8, final newline */
-        goto fail;
+    char *text = cJSON_Print(root);
+    if (!text)
+        return cli_error(cmd, "out of memory");
+    int st = sinew_check_folder_write(ctx, dir, &r->fb_error, &r->mask, &r->confidence, text);
     free(text);
-    free(path);
-    sinew_image_free(&c16);
-    return 0;
-fail:
-    cli_status(cmd, ctx, st);
-    free(text);
-    free(path);
-    sinew_image_free(&c16);
-    return 1;
+    return st ? cli_status(cmd, ctx, st) : 0;
 }
 
 void cli_check_print_summary(FILE *out, const cli_check_result *r)

@@ -36,9 +36,8 @@ void cli_check_result_free(cli_check_result *r);
 cJSON *cli_check_json(const cli_check_result *r, const sinew_check_params *p,
                       const cli_check_paths *paths);
 
-/* Create DIR if missing and write fb_error.npy, mask.png, confidence.npy,
- * confidence.png, then check.json (last, so its presence marks a complete set). Each
- * file is atomic. Prints one error line and returns nonzero on failure. */
+/* Write the check folder DIR with sinew_check_folder_write (flow/check.h) and root as
+ * check.json. Prints one error line and returns nonzero on failure. */
 int cli_check_write(const char *cmd, sinew_ctx *ctx, const cli_check_result *r, cJSON *root,
                     const char *dir);
 

@@ -393,8 +393,8 @@ static int match_main(int argc, char **argv, int lift)
     in.flow_name = o.flow;
     const int w = s.flow.width, h = s.flow.height;
     if (o.check) {
-        if ((rc = sinew_match_read_check(ctx, o.check, &s.mask, &s.conf, s.mask_path, s.conf_path,
-                                         sizeof s.mask_path)))
+        if ((rc = sinew_check_folder_read(ctx, o.check, &s.mask, &s.conf, s.mask_path, s.conf_path,
+                                          sizeof s.mask_path)))
             goto fail;
         in.mask = &s.mask;
         in.confidence = &s.conf;

@@ -200,15 +200,9 @@ static int score_confidence(sinew_ctx *ctx, const char *path, const sinew_image 
 {
     memset(out, 0, sizeof *out);
     sinew_image conf = {0};
-    const char *ext = strrchr(path, '.');
-    int st = ext && !strcmp(ext, ".pfm") ? sinew_pfm_read_image(ctx, &conf, path)
-                                         : sinew_npy_read_image(ctx, &conf, path);
-    int rc = CLI_OK;
+    int rc = CLI_OK, st = sinew_map_read(ctx, &conf, path);
     if (st)
         rc = cli_status(CMD, ctx, st);
-    else if (conf.type != SINEW_F32 || conf.channels != 1)
-        rc = cli_error(CMD, "%s: confidence must be one channel per pixel (found %d)", path,
-                       conf.channels);
     else if (!(rc = score_same_size(&conf, path, gt, gt_path)))
         rc = score_confidence_image(ctx, &conf, est, gt, eval, out);
     sinew_image_free(&conf);
@@ -235,7 +229,7 @@ static int score_vs_truth(sinew_ctx *ctx, const sinew_image *est, const sinew_im
 {
     int rc;
     if (occ_path) {
-        if ((rc = score_read_mask(ctx, occ_path, 0, 0, occ)) ||
+        if ((rc = score_read_binary(ctx, occ_path, 0, occ)) ||
             (rc = score_same_size(occ, occ_path, gt, gt_path)))
             return rc;
     } else if (noc_path && (rc = score_kitti_occ_from_noc(ctx, noc_path, gt, gt_path, occ))) {
@@ -270,12 +264,16 @@ static int run_single(sinew_ctx *ctx, const char *est_path, const char *gt_path,
                              &eval, &row)))
         goto done;
     if (o->mask) {
-        if ((rc = score_read_mask(ctx, o->mask, 1, 0, &pred)) ||
-            (rc = score_same_size(&pred, o->mask, &gt, gt_path)))
+        int st = sinew_mask_read(ctx, &pred, o->mask);
+        if (st) {
+            rc = cli_status(CMD, ctx, st);
+            goto done;
+        }
+        if ((rc = score_same_size(&pred, o->mask, &gt, gt_path)))
             goto done;
         /* Score the mask where the truth is defined: inside the evaluation mask. */
-        int st = sinew_mask_scores_compute(ctx, &ms, &pred, &occ, eval.data ? &eval : NULL,
-                                           o->mask_bits);
+        st = sinew_mask_scores_compute(ctx, &ms, &pred, &occ, eval.data ? &eval : NULL,
+                                       o->mask_bits);
         if (st) {
             rc = cli_status(CMD, ctx, st);
             goto done;
@@ -468,21 +466,20 @@ static int score_pair_check(sinew_ctx *ctx, const score_pair *p, const layout_op
     if (!o->check && !o->checks)
         return CLI_OK;
     if (o->checks) {
-        char *mp = score_printf("%s/%s/mask.png", o->checks, p->id);
-        char *cp = score_printf("%s/%s/confidence.npy", o->checks, p->id);
-        if (!mp || !cp)
-            rc = cli_error(CMD, "out of memory");
-        else if (!(rc = score_read_mask(ctx, mp, 1, 0, mask)) &&
-                 !(rc = score_same_size(mask, mp, gt, p->gt))) {
-            sparse_result sp;
-            rc = score_confidence(ctx, cp, est, gt, p->gt, eval, &sp);
-            row->ause = sp.have ? sp.ause : NAN;
-            row->ece = sp.have ? sp.cal.ece : NAN;
-        }
-        free(mp);
-        free(cp);
-        if (rc)
+        char *dir = score_printf("%s/%s", o->checks, p->id);
+        char mp[4096], cp[4096];
+        sparse_result sp;
+        if (!dir)
+            return cli_error(CMD, "out of memory");
+        st = sinew_check_folder_read(ctx, dir, mask, conf, mp, cp, sizeof mp);
+        free(dir);
+        if (st)
+            return cli_status(CMD, ctx, st);
+        if ((rc = score_same_size(mask, mp, gt, p->gt)) ||
+            (rc = score_confidence_image(ctx, conf, est, gt, eval, &sp)))
             return rc;
+        row->ause = sp.have ? sp.ause : NAN;
+        row->ece = sp.have ? sp.cal.ece : NAN;
     } else {
         sparse_result sp;
         if ((rc = score_confidence_image(ctx, conf, est, gt, eval, &sp)))

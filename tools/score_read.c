@@ -12,20 +12,16 @@
 
 #define CMD "score"
 
-/* Read an image and reduce it to SINEW_U8 1 channel: raw = 0 gives 1 where any colour
- * channel (alpha ignored) is nonzero; raw = 1 keeps the value of the first channel
- * (8-bit images only, for bit masks). */
-int score_read_mask(sinew_ctx *ctx, const char *path, int raw, int invert, sinew_image *out)
+/* Read an image as a yes/no mask (SINEW_U8, 1 channel): 1 where any colour channel
+ * (alpha ignored) is nonzero, the other way round with invert. Dataset masks come as
+ * gray, RGB or palette PNGs of either depth. Bit masks of our own use sinew_mask_read. */
+int score_read_binary(sinew_ctx *ctx, const char *path, int invert, sinew_image *out)
 {
     sinew_image img;
     int st = sinew_image_read(ctx, &img, path);
     if (st)
         return cli_status(CMD, ctx, st);
     int colour = img.channels == 2 ? 1 : img.channels == 4 ? 3 : img.channels;
-    if (raw && img.type != SINEW_U8) {
-        sinew_image_free(&img);
-        return cli_error(CMD, "%s: a bit mask must be an 8-bit image", path);
-    }
     st = sinew_image_alloc(ctx, out, img.width, img.height, 1, SINEW_U8);
     if (st) {
         sinew_image_free(&img);
@@ -34,20 +30,17 @@ int score_read_mask(sinew_ctx *ctx, const char *path, int raw, int invert, sinew
     for (int y = 0; y < img.height; y++) {
         uint8_t *o = sinew_image_row_u8(out, y);
         for (int x = 0; x < img.width; x++) {
-            unsigned any = 0, first;
+            unsigned any = 0;
             if (img.type == SINEW_U8) {
                 const uint8_t *p = sinew_image_row_u8(&img, y) + (size_t)x * img.channels;
-                first = p[0];
                 for (int c = 0; c < colour; c++)
                     any |= p[c];
             } else {
                 const uint16_t *p = sinew_image_row_u16(&img, y) + (size_t)x * img.channels;
-                first = p[0];
                 for (int c = 0; c < colour; c++)
                     any |= p[c];
             }
-            uint8_t v = raw ? (uint8_t)first : (uint8_t)(any != 0);
-            o[x] = invert ? (uint8_t)!v : v;
+            o[x] = (uint8_t)((any != 0) != (invert != 0));
         }
     }
     sinew_image_free(&img);
@@ -84,7 +77,7 @@ int score_add_eval_mask(sinew_ctx *ctx, const char *path, int invert, const sine
                         const char *gt_path, sinew_image *eval)
 {
     sinew_image m;
-    int rc = score_read_mask(ctx, path, 0, invert, &m);
+    int rc = score_read_binary(ctx, path, invert, &m);
     if (rc)
         return rc;
     if ((rc = score_same_size(&m, path, gt, gt_path))) {

@@ -7,10 +7,10 @@
 
 #include "flow/sinew.h"
 
-/* Read an image and reduce it to SINEW_U8 1 channel: raw = 0 gives 1 where any colour
- * channel (alpha ignored) is nonzero; raw = 1 keeps the value of the first channel
- * (8-bit images only, for bit masks). */
-int score_read_mask(sinew_ctx *ctx, const char *path, int raw, int invert, sinew_image *out);
+/* Read a dataset's yes/no mask into SINEW_U8 1 channel: 1 where any colour channel
+ * (alpha ignored) is nonzero (0 there with invert). Gray, RGB, palette, 8 or 16 bits.
+ * Our own bit masks are read with sinew_mask_read (flow/io.h). */
+int score_read_binary(sinew_ctx *ctx, const char *path, int invert, sinew_image *out);
 int score_read_flow(sinew_ctx *ctx, const char *path, sinew_image *out);
 int score_same_size(const sinew_image *a, const char *pa, const sinew_image *b, const char *pb);
 /* Add a validity mask read from `path` (invert: nonzero = excluded) into *eval. */

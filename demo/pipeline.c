@@ -79,7 +79,7 @@ int main(void)
     sinew_match_inputs mi = {0};
     mi.flow = &fwd, mi.mask = &mask, mi.confidence = &conf;
     mi.depth0 = &z0, mi.depth1 = &z1, mi.camera = &cam;
-    if ((rc = sinew_matches_build(ctx, &mi, NULL, &m)))
+    if ((rc = sinew_matches_build(ctx, &m, &mi, NULL)))
         return fail(ctx, rc);
 
     /* 5. Compare each match's 3-D motion with the exact scene flow at its source pixel. */

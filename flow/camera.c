@@ -153,8 +153,8 @@ int sinew_camera_project(const sinew_camera *cam, const double X[3], double *u, 
     return 1;
 }
 
-int sinew_camera_roundtrip_error(sinew_ctx *ctx, const sinew_camera *cam, int width, int height,
-                                 int step, double *max_px, long *failures)
+int sinew_camera_roundtrip_error(sinew_ctx *ctx, double *max_px, long *failures,
+                                 const sinew_camera *cam, int width, int height, int step)
 {
     if (!ctx || !cam || !max_px)
         return SINEW_EINVAL;
@@ -211,8 +211,8 @@ int sinew_camera_centre_check(const sinew_camera *cam, int width, int height, ch
     return 1;
 }
 
-int sinew_camera_fit(sinew_ctx *ctx, const sinew_camera *in, int width, int height,
-                     sinew_camera *out, const char *what)
+int sinew_camera_fit(sinew_ctx *ctx, sinew_camera *out, const sinew_camera *in, int width,
+                     int height, const char *what)
 {
     if (!ctx || !in || !out)
         return SINEW_EINVAL;
@@ -424,7 +424,7 @@ int sinew_camera_load(sinew_ctx *ctx, sinew_camera *cam, const char *path)
         return SINEW_EINVAL;
     unsigned char *buf;
     size_t len;
-    int rc = sinew_read_file(ctx, path, CAMERA_MAX_FILE, &buf, &len);
+    int rc = sinew_read_file(ctx, &buf, &len, path, CAMERA_MAX_FILE);
     if (rc)
         return rc;
     if (memchr(buf, 0, len)) {
@@ -472,7 +472,7 @@ int sinew_camera_parse(sinew_ctx *ctx, sinew_camera *cam, const char *text, cons
     return rc;
 }
 
-int sinew_camera_save(sinew_ctx *ctx, const sinew_camera *cam, const char *path)
+int sinew_camera_save(sinew_ctx *ctx, const char *path, const sinew_camera *cam)
 {
     if (!ctx || !cam || !path)
         return SINEW_EINVAL;

@@ -59,7 +59,7 @@ int sinew_camera_load(sinew_ctx *ctx, sinew_camera *cam, const char *path);
 int sinew_camera_parse(sinew_ctx *ctx, sinew_camera *cam, const char *text, const char *what);
 
 /* Write intrinsics as a JSON object file (the format sinew_camera_load reads); atomic. */
-int sinew_camera_save(sinew_ctx *ctx, const sinew_camera *cam, const char *path);
+int sinew_camera_save(sinew_ctx *ctx, const char *path, const sinew_camera *cam);
 
 /* Intrinsics for images of width x height. If the calibration size is unknown (0) or
  * equal, *out = *in with width/height set. Otherwise the camera is rescaled with
@@ -69,8 +69,8 @@ int sinew_camera_save(sinew_ctx *ctx, const sinew_camera *cam, const char *path)
  * Distortion coefficients act on normalised coordinates and are unchanged. Refuses
  * (SINEW_ESIZE, naming `what`) when the aspect ratios differ by more than 1 % — that
  * is a crop, not a resize, and cannot be corrected by scaling. */
-int sinew_camera_fit(sinew_ctx *ctx, const sinew_camera *in, int width, int height,
-                     sinew_camera *out, const char *what);
+int sinew_camera_fit(sinew_ctx *ctx, sinew_camera *out, const sinew_camera *in, int width,
+                     int height, const char *what);
 
 /* A plausibility check of intrinsics fitted to width x height images: 1 (and a message
  * into msg, size n, naming both sizes) when the principal point lies more than a quarter
@@ -107,8 +107,8 @@ int sinew_camera_project(const sinew_camera *cam, const double X[3], double *u, 
  * reproject; *max_px receives the largest pixel distance to (u, v) (0 without
  * distortion), *failures the number of non-converged inversions (may be NULL). Needs
  * width/height > 0 (the camera's own size if the arguments are 0). */
-int sinew_camera_roundtrip_error(sinew_ctx *ctx, const sinew_camera *cam, int width, int height,
-                                 int step, double *max_px, long *failures);
+int sinew_camera_roundtrip_error(sinew_ctx *ctx, double *max_px, long *failures,
+                                 const sinew_camera *cam, int width, int height, int step);
 
 #ifdef __cplusplus
 }

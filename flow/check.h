@@ -181,9 +181,9 @@ const char *sinew_check_bit_name(int bit);
  * confidence_path (buffers of path_size bytes) for messages and provenance. Errors name
  * the file: EIO (missing), EFORMAT, ESIZE (sizes differ), EVALUE (confidence NaN or
  * outside [0, 1]). On failure both images are freed. */
-int sinew_check_folder_read(sinew_ctx *ctx, const char *dir, sinew_image *mask,
-                            sinew_image *confidence, char *mask_path, char *confidence_path,
-                            size_t path_size);
+int sinew_check_folder_read(sinew_ctx *ctx, sinew_image *mask, sinew_image *confidence,
+                            char *mask_path, char *confidence_path, size_t path_size,
+                            const char *dir);
 
 /* Write the folder DIR (created if missing; its parent must exist): fb_error.npy,
  * mask.png, confidence.npy, confidence.png (16-bit, 65535 = 1), then check.json from

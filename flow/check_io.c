@@ -13,9 +13,9 @@
 #include "flow/internal/base.h"
 #include "flow/io.h"
 
-int sinew_check_folder_read(sinew_ctx *ctx, const char *dir, sinew_image *mask,
-                            sinew_image *confidence, char *mask_path, char *confidence_path,
-                            size_t path_size)
+int sinew_check_folder_read(sinew_ctx *ctx, sinew_image *mask, sinew_image *confidence,
+                            char *mask_path, char *confidence_path, size_t path_size,
+                            const char *dir)
 {
     if (!ctx || !dir || !mask || !confidence || !mask_path || !confidence_path)
         return SINEW_EINVAL;

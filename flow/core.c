@@ -558,8 +558,8 @@ int sinew__open_regular(sinew_ctx *ctx, const char *path, FILE **fp)
     return SINEW_OK;
 }
 
-int sinew_read_file(sinew_ctx *ctx, const char *path, size_t max_bytes, unsigned char **buf,
-                    size_t *len)
+int sinew_read_file(sinew_ctx *ctx, unsigned char **buf, size_t *len, const char *path,
+                    size_t max_bytes)
 {
     if (!ctx || !path || !buf || !len)
         return SINEW_EINVAL;
@@ -633,7 +633,7 @@ size_t sinew_utf8_len(const unsigned char *s, size_t n)
     return len;
 }
 
-int sinew_json_utf8(sinew_ctx *ctx, const char *text, size_t n, char **out, size_t *outn)
+int sinew_json_utf8(sinew_ctx *ctx, char **out, size_t *outn, const char *text, size_t n)
 {
     if (!ctx || (!text && n) || !out)
         return SINEW_EINVAL;
@@ -680,7 +680,7 @@ int sinew_write_json_text(sinew_ctx *ctx, const char *path, const char *text)
         return SINEW_EINVAL;
     char *u;
     size_t n;
-    int rc = sinew_json_utf8(ctx, text, strlen(text), &u, &n);
+    int rc = sinew_json_utf8(ctx, &u, &n, text, strlen(text));
     if (rc)
         return rc;
     u[n] = '\n'; /* the terminator becomes the final newline */

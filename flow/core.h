@@ -184,8 +184,8 @@ void sinew_outfile_abort(sinew_outfile *f);
 int sinew_write_file(sinew_ctx *ctx, const char *path, const void *buf, size_t len);
 /* Read a whole file, refusing files larger than max_bytes (ELIMIT). *buf is allocated
  * with sinew_ctx_alloc (plus one NUL byte past the end); free with sinew_ctx_dealloc. */
-int sinew_read_file(sinew_ctx *ctx, const char *path, size_t max_bytes, unsigned char **buf,
-                    size_t *len);
+int sinew_read_file(sinew_ctx *ctx, unsigned char **buf, size_t *len, const char *path,
+                    size_t max_bytes);
 
 /* ---- text from file names ---------------------------------------------------------
  * File names are bytes; JSON must be UTF-8 (RFC 8259). Rule used by every JSON file
@@ -200,7 +200,7 @@ size_t sinew_utf8_len(const unsigned char *s, size_t n);
  * with sinew_ctx_dealloc) with every byte outside valid UTF-8 replaced by \u00XX.
  * Such bytes can only occur inside JSON strings, so the result is valid JSON. *outn
  * (may be NULL) receives the length. ENOMEM / EOVERFLOW. */
-int sinew_json_utf8(sinew_ctx *ctx, const char *text, size_t n, char **out, size_t *outn);
+int sinew_json_utf8(sinew_ctx *ctx, char **out, size_t *outn, const char *text, size_t n);
 /* Write JSON text (NUL-terminated, e.g. from cJSON_Print) to path atomically, made valid
  * UTF-8 as above, with a final newline. */
 int sinew_write_json_text(sinew_ctx *ctx, const char *path, const char *text);

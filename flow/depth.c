@@ -34,9 +34,9 @@ static int classify(const sinew_depth_params *p, double z)
     return 0;
 }
 
-int sinew_depth_convert(sinew_ctx *ctx, const sinew_depth_params *p, const sinew_camera *cam,
-                        const sinew_image *raw, sinew_image *z, const char *what,
-                        sinew_depth_stats *stats)
+int sinew_depth_convert(sinew_ctx *ctx, sinew_image *z, sinew_depth_stats *stats,
+                        const sinew_image *raw, const sinew_camera *cam,
+                        const sinew_depth_params *p, const char *what)
 {
     if (!ctx)
         return SINEW_EINVAL;
@@ -156,7 +156,7 @@ static float select_kth(float *a, size_t n, size_t kk)
     return a[k];
 }
 
-int sinew_depth_median(sinew_ctx *ctx, const sinew_image *z, double *median, size_t *count)
+int sinew_depth_median(sinew_ctx *ctx, double *median, size_t *count, const sinew_image *z)
 {
     if (!ctx || !z || !z->data || !median || z->type != SINEW_F32 || z->channels != 1)
         return SINEW_EINVAL;

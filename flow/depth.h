@@ -52,14 +52,14 @@ typedef struct sinew_depth_stats {
  * allocated SINEW_F32 map of the same size with NaN where invalid or out of range.
  * `what` names the file for messages; stats may be NULL. Threads: rows in parallel,
  * deterministic. */
-int sinew_depth_convert(sinew_ctx *ctx, const sinew_depth_params *p, const sinew_camera *cam,
-                        const sinew_image *raw, sinew_image *z, const char *what,
-                        sinew_depth_stats *stats);
+int sinew_depth_convert(sinew_ctx *ctx, sinew_image *z, sinew_depth_stats *stats,
+                        const sinew_image *raw, const sinew_camera *cam,
+                        const sinew_depth_params *p, const char *what);
 
 /* Median of the finite values of a SINEW_F32 1-channel map (exact: the lower middle
  * element for even counts). *count receives the number of finite values (may be NULL);
  * with none, *median = NaN and SINEW_OK. */
-int sinew_depth_median(sinew_ctx *ctx, const sinew_image *z, double *median, size_t *count);
+int sinew_depth_median(sinew_ctx *ctx, double *median, size_t *count, const sinew_image *z);
 
 /* The plausible range for a median scene depth, metres (common practice for hand-held
  * RGB-D: outside it the scale is almost certainly wrong). */

@@ -152,7 +152,7 @@ static int image_max(sinew_ctx *ctx, const sinew_image *img, double *out)
     return SINEW_OK;
 }
 
-int sinew_draw_max_magnitude(sinew_ctx *ctx, const sinew_image *flow, double *max_mag)
+int sinew_draw_max_magnitude(sinew_ctx *ctx, double *max_mag, const sinew_image *flow)
 {
     if (!ctx || !max_mag)
         return SINEW_EINVAL;
@@ -444,7 +444,7 @@ int sinew_draw_flow(sinew_ctx *ctx, sinew_image *out, const sinew_image *flow, d
     if (st)
         return st;
     if (!isfinite(max_mag) || max_mag <= 0) {
-        st = sinew_draw_max_magnitude(ctx, flow, &max_mag);
+        st = sinew_draw_max_magnitude(ctx, &max_mag, flow);
         if (st)
             return st;
         if (max_mag <= 0)

@@ -32,7 +32,7 @@ void sinew_draw_wheel_colour(double fx, double fy, uint8_t rgb[3]);
 
 /* Largest |(u, v)| over known pixels (both components finite) of a SINEW_F32
  * 2-channel flow; 0 if no pixel is known. SINEW_EINVAL for a wrong image type. */
-int sinew_draw_max_magnitude(sinew_ctx *ctx, const sinew_image *flow, double *max_mag);
+int sinew_draw_max_magnitude(sinew_ctx *ctx, double *max_mag, const sinew_image *flow);
 
 /* ---- scalar colour map ("dusk", our own) ----
  * Perceptually ordered: CIE L* rises monotonically from a dark slate blue (t = 0)

@@ -44,7 +44,7 @@ int sinew_image_write_png(sinew_ctx *ctx, const char *path, const sinew_image *i
 /* Encode an 8-bit image (SINEW_U8, 1..4 channels: gray, gray+alpha, RGB, RGBA) as PNG
  * in memory. *png is allocated on ctx (sinew_ctx_dealloc), *len its size. EINVAL for
  * other images, EFORMAT with libpng's message if encoding fails. */
-int sinew_png_encode(sinew_ctx *ctx, const sinew_image *img, unsigned char **png, size_t *len);
+int sinew_png_encode(sinew_ctx *ctx, unsigned char **png, size_t *len, const sinew_image *img);
 
 /* ---- flow fields ----
  * In memory a flow field is a SINEW_F32 image with 2 channels (u, v) in pixels;
@@ -73,7 +73,7 @@ int sinew_flow_find(const char *stem, char *buf, size_t n);
 
 /* Format from the extension (.flo .png .pfm .npy, case-insensitive); EUNSUPPORTED with a
  * message naming the path if unknown. .npy maps to SINEW_FLOW_NPY (float32). */
-int sinew_flow_format_from_path(sinew_ctx *ctx, const char *path, sinew_flow_format *fmt);
+int sinew_flow_format_from_path(sinew_ctx *ctx, sinew_flow_format *fmt, const char *path);
 
 /* Read a flow field; fmt = SINEW_FLOW_AUTO picks by extension. PFM accepts "PF" (the
  * third channel is ignored) and both byte orders; .npy accepts float32/float16/float64
@@ -105,8 +105,8 @@ int sinew_npy_write_table(sinew_ctx *ctx, const char *path, const float *data, s
  * checked from the header before the data is read: 2 dimensions, a float dtype,
  * cols >= 1 and, when expect_cols > 0, cols == expect_cols; rows x cols within the
  * pixel limit and within the file. EFORMAT / EUNSUPPORTED / ELIMIT naming the file. */
-int sinew_npy_read_table(sinew_ctx *ctx, const char *path, size_t expect_cols, float **data,
-                         size_t *rows, size_t *cols);
+int sinew_npy_read_table(sinew_ctx *ctx, float **data, size_t *rows, size_t *cols, const char *path,
+                         size_t expect_cols);
 /* PFM scalar ("Pf") or 3-channel ("PF") maps, e.g. float depth in metres. */
 int sinew_pfm_read_image(sinew_ctx *ctx, sinew_image *out, const char *path);
 int sinew_pfm_write_image(sinew_ctx *ctx, const char *path, const sinew_image *img);

@@ -82,7 +82,7 @@ int sinew_flow_find(const char *stem, char *buf, size_t n)
     return 0;
 }
 
-int sinew_flow_format_from_path(sinew_ctx *ctx, const char *path, sinew_flow_format *fmt)
+int sinew_flow_format_from_path(sinew_ctx *ctx, sinew_flow_format *fmt, const char *path)
 {
     if (!ctx || !path || !fmt)
         return ctx ? sinew__fail(ctx, SINEW_EINVAL, "flow format: missing argument") : SINEW_EINVAL;
@@ -260,7 +260,7 @@ int sinew_flow_read(sinew_ctx *ctx, sinew_image *flow, const char *path, sinew_f
         return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read flow: missing argument") : SINEW_EINVAL;
     int rc = SINEW_OK;
     if (fmt == SINEW_FLOW_AUTO)
-        rc = sinew_flow_format_from_path(ctx, path, &fmt);
+        rc = sinew_flow_format_from_path(ctx, &fmt, path);
     if (rc)
         return rc;
     switch (fmt) {
@@ -298,7 +298,7 @@ int sinew_flow_write(sinew_ctx *ctx, const char *path, const sinew_image *flow,
         return sinew__fail(ctx, SINEW_EINVAL, "%s: a flow field is a 2-channel float image", path);
     int rc = SINEW_OK;
     if (fmt == SINEW_FLOW_AUTO)
-        rc = sinew_flow_format_from_path(ctx, path, &fmt);
+        rc = sinew_flow_format_from_path(ctx, &fmt, path);
     if (rc)
         return rc;
     /* NaN is unknown; infinity (or, for float16, beyond its range) is refused. */

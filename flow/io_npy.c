@@ -278,8 +278,8 @@ int sinew_npy_read_image(sinew_ctx *ctx, sinew_image *out, const char *path)
     return sinew__npy_read(ctx, path, out, 0);
 }
 
-int sinew_npy_read_table(sinew_ctx *ctx, const char *path, size_t expect_cols, float **data,
-                         size_t *rows, size_t *cols)
+int sinew_npy_read_table(sinew_ctx *ctx, float **data, size_t *rows, size_t *cols, const char *path,
+                         size_t expect_cols)
 {
     if (!ctx || !path || !data || !rows || !cols)
         return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read .npy table: missing argument")

@@ -246,7 +246,7 @@ static int encode_pass(sinew_ctx *ctx, const sinew_image *img, void *buf, png_al
     return st;
 }
 
-int sinew_png_encode(sinew_ctx *ctx, const sinew_image *img, unsigned char **png, size_t *len)
+int sinew_png_encode(sinew_ctx *ctx, unsigned char **png, size_t *len, const sinew_image *img)
 {
     if (!ctx || !img || !png || !len || !img->data || img->type != SINEW_U8 || img->channels < 1 ||
         img->channels > 4)

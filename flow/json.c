@@ -37,7 +37,7 @@ int sinew__json_read(sinew_ctx *ctx, const char *path, size_t max_bytes, cJSON *
     *out = NULL;
     unsigned char *buf;
     size_t len;
-    int rc = sinew_read_file(ctx, path, max_bytes, &buf, &len);
+    int rc = sinew_read_file(ctx, &buf, &len, path, max_bytes);
     if (rc)
         return rc;
     rc = sinew__json_parse(ctx, path, (const char *)buf, len, out);

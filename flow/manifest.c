@@ -32,7 +32,7 @@ static int add_entry(sinew_ctx *ctx, cJSON *arr, const char *role, const char *p
         return SINEW_ENOMEM;
     unsigned char d[32];
     uint64_t bytes;
-    int rc = sinew_sha256_file(ctx, path, d, &bytes);
+    int rc = sinew_sha256_file(ctx, d, &bytes, path);
     if (rc == SINEW_EINTERRUPTED)
         return rc;
     if (rc) {

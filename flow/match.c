@@ -308,8 +308,8 @@ static int label_stats(sinew_ctx *ctx, sinew_matches *m)
     return SINEW_OK;
 }
 
-int sinew_matches_build(sinew_ctx *ctx, const sinew_match_inputs *in, const sinew_match_params *p,
-                        sinew_matches *out)
+int sinew_matches_build(sinew_ctx *ctx, sinew_matches *out, const sinew_match_inputs *in,
+                        const sinew_match_params *p)
 {
     if (!ctx)
         return SINEW_EINVAL;

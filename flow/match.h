@@ -122,8 +122,8 @@ typedef struct sinew_matches {
  * arguments or parameters), SINEW_ESIZE (an input's size differs from the flow's; the
  * message names it), SINEW_EUNSUPPORTED (wrong image type/channels), SINEW_ENOMEM.
  * Threads: rows in parallel; the result is bit-identical for any thread count. */
-int sinew_matches_build(sinew_ctx *ctx, const sinew_match_inputs *in, const sinew_match_params *p,
-                        sinew_matches *out);
+int sinew_matches_build(sinew_ctx *ctx, sinew_matches *out, const sinew_match_inputs *in,
+                        const sinew_match_params *p);
 
 /* Release the table's buffers and zero the struct (NULL is fine). */
 void sinew_matches_free(sinew_ctx *ctx, sinew_matches *m);
@@ -147,9 +147,9 @@ typedef struct sinew_match_sources {
  * intrinsics, depth convention, thresholds, input files, counts per rejection reason,
  * sinew version. Both files are written atomically; if the second cannot be written,
  * the first is not left behind. `in` supplies the input names (may be NULL). */
-int sinew_matches_save(sinew_ctx *ctx, const sinew_matches *m, const sinew_match_params *p,
-                       const sinew_match_inputs *in, const sinew_match_sources *src,
-                       const char *npy_path);
+int sinew_matches_save(sinew_ctx *ctx, const char *npy_path, const sinew_matches *m,
+                       const sinew_match_params *p, const sinew_match_inputs *in,
+                       const sinew_match_sources *src);
 
 /* The sidecar path for an npy path, into buf (returns SINEW_EINVAL if it does not fit). */
 int sinew_matches_sidecar_path(const char *npy_path, char *buf, size_t n);
@@ -158,16 +158,16 @@ int sinew_matches_sidecar_path(const char *npy_path, char *buf, size_t n);
  * the sidecar must name exactly that many columns; when zero it receives the sidecar's count
  * (so a table can be checked against it from its header before any data is read). EFORMAT
  * naming the file for a sidecar that does not fit. */
-int sinew_matches_read_columns(sinew_ctx *ctx, const char *path, size_t *ncols, int idx[5]);
+int sinew_matches_read_columns(sinew_ctx *ctx, int idx[5], size_t *ncols, const char *path);
 
 /* PLY for a 3-D viewer (needs depth): 2 * rows vertices (x y z float, red green blue
  * uchar; source points X0 orange, target points X1 blue) and rows edges joining X0 to X1
  * (vertex1 vertex2 int). binary = 1 writes binary_little_endian, 0 ascii. Atomic. */
-int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *path, int binary);
+int sinew_matches_save_ply(sinew_ctx *ctx, const char *path, const sinew_matches *m, int binary);
 
 /* CSV: a header line with the column names, then one line per row (%.9g, enough to
  * round-trip float32). Atomic. */
-int sinew_matches_save_csv(sinew_ctx *ctx, const sinew_matches *m, const char *path);
+int sinew_matches_save_csv(sinew_ctx *ctx, const char *path, const sinew_matches *m);
 
 /* ---- the check folder, as match and lift read it (needs flow/io.h) ---- */
 

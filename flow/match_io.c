@@ -32,7 +32,7 @@ int sinew_matches_sidecar_path(const char *npy_path, char *buf, size_t n)
     return SINEW_OK;
 }
 
-int sinew_matches_read_columns(sinew_ctx *ctx, const char *path, size_t *ncols, int idx[5])
+int sinew_matches_read_columns(sinew_ctx *ctx, int idx[5], size_t *ncols, const char *path)
 {
     if (!ctx || !path || !ncols || !idx)
         return SINEW_EINVAL;
@@ -222,9 +222,9 @@ static char *sidecar_text(const sinew_matches *m, const sinew_match_params *p,
     return text;
 }
 
-int sinew_matches_save(sinew_ctx *ctx, const sinew_matches *m, const sinew_match_params *p,
-                       const sinew_match_inputs *in, const sinew_match_sources *src,
-                       const char *npy_path)
+int sinew_matches_save(sinew_ctx *ctx, const char *npy_path, const sinew_matches *m,
+                       const sinew_match_params *p, const sinew_match_inputs *in,
+                       const sinew_match_sources *src)
 {
     if (!ctx || !m || !p || !npy_path || (m->rows && !m->data) || m->cols < 1)
         return SINEW_EINVAL;
@@ -242,7 +242,7 @@ int sinew_matches_save(sinew_ctx *ctx, const sinew_matches *m, const sinew_match
     }
     FILE *fp = sinew_outfile_stream(f);
     char *u = NULL;
-    rc = sinew_json_utf8(ctx, text, strlen(text), &u, NULL); /* source paths: any bytes */
+    rc = sinew_json_utf8(ctx, &u, NULL, text, strlen(text)); /* source paths: any bytes */
     cJSON_free(text);
     if (rc) {
         sinew_outfile_abort(f);
@@ -264,7 +264,7 @@ int sinew_matches_save(sinew_ctx *ctx, const sinew_matches *m, const sinew_match
 
 /* ---- PLY and CSV ---- */
 
-int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *path, int binary)
+int sinew_matches_save_ply(sinew_ctx *ctx, const char *path, const sinew_matches *m, int binary)
 {
     if (!ctx || !m || !path)
         return SINEW_EINVAL;
@@ -316,7 +316,7 @@ int sinew_matches_save_ply(sinew_ctx *ctx, const sinew_matches *m, const char *p
     return sinew_outfile_commit(ctx, f);
 }
 
-int sinew_matches_save_csv(sinew_ctx *ctx, const sinew_matches *m, const char *path)
+int sinew_matches_save_csv(sinew_ctx *ctx, const char *path, const sinew_matches *m)
 {
     if (!ctx || !m || !path)
         return SINEW_EINVAL;

@@ -369,8 +369,8 @@ static void remainder_curve(const keyed *buf, const float *error, size_t n, int 
         curve[k] = full > 0.0 ? curve[k] / full : 0.0;
 }
 
-int sinew_sparsification(sinew_ctx *ctx, const float *uncertainty, const float *error, size_t n,
-                         int steps, double *curve, double *oracle, double *ause)
+int sinew_sparsification(sinew_ctx *ctx, double *curve, double *oracle, double *ause,
+                         const float *uncertainty, const float *error, size_t n, int steps)
 {
     if (!ctx)
         return SINEW_EINVAL;

@@ -152,8 +152,8 @@ void sinew_mask_scores_rates(const sinew_mask_scores *s, double *precision, doub
  * 1 - confidence or the forward-backward error). curve and oracle: NULL or arrays of
  * `steps` doubles (steps >= 1); ause: NULL or one double. Returns EINVAL (bad sizes),
  * EVALUE (a non-finite input, message gives its index) or ENOMEM. */
-int sinew_sparsification(sinew_ctx *ctx, const float *uncertainty, const float *error, size_t n,
-                         int steps, double *curve, double *oracle, double *ause);
+int sinew_sparsification(sinew_ctx *ctx, double *curve, double *oracle, double *ause,
+                         const float *uncertainty, const float *error, size_t n, int steps);
 
 /* ---- confidence: calibration ------------------------------------------------------
  * A confidence read as the probability that a pixel is correct, i.e. its error is at

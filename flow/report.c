@@ -273,7 +273,7 @@ static int build(sinew__report *r, sinew__sbuf *page)
             if (!sinew__report_find_flow(r, q, path, sizeof path))
                 continue;
             if (!sinew_flow_read(ctx, &f, path, SINEW_FLOW_AUTO)) {
-                if (!sinew_draw_max_magnitude(ctx, &f, &m) && m > fmax)
+                if (!sinew_draw_max_magnitude(ctx, &m, &f) && m > fmax)
                     fmax = m;
                 sinew_image_free(&f);
             }
@@ -385,7 +385,7 @@ static int build(sinew__report *r, sinew__sbuf *page)
     return page->err;
 }
 
-int sinew_report_write(sinew_ctx *ctx, const char *rundir, const char *html_path,
+int sinew_report_write(sinew_ctx *ctx, const char *html_path, const char *rundir,
                        const sinew_report_options *o)
 {
     if (!ctx || !rundir || !html_path)

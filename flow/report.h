@@ -34,7 +34,7 @@ void sinew_report_options_default(sinew_report_options *o);
  * clock, no host names). Errors: EIO/EFORMAT naming manifest.json when it is missing,
  * not JSON or has no "pairs" array; EINVAL for bad options; EIO for the output;
  * EINTERRUPTED when the context's stop flag is set (checked per pair). */
-int sinew_report_write(sinew_ctx *ctx, const char *rundir, const char *html_path,
+int sinew_report_write(sinew_ctx *ctx, const char *html_path, const char *rundir,
                        const sinew_report_options *o);
 
 #ifdef __cplusplus

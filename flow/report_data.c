@@ -62,7 +62,7 @@ int sinew__report_load(sinew__report *r)
         return sinew__fail(ctx, SINEW_EINVAL, "%s: path too long", r->rundir);
     unsigned char *buf = NULL;
     size_t len = 0;
-    int st = sinew_read_file(ctx, path, MANIFEST_MAX_BYTES, &buf, &len);
+    int st = sinew_read_file(ctx, &buf, &len, path, MANIFEST_MAX_BYTES);
     if (st)
         return st;
     if ((st = sinew__json_parse(ctx, path, (const char *)buf, len, &r->root))) {

@@ -79,7 +79,7 @@ static int emit_picture(sinew__report *r, sinew__sbuf *b, const sinew_image *pic
         return st;
     unsigned char *png = NULL;
     size_t len = 0;
-    st = sinew_png_encode(r->ctx, &t, &png, &len);
+    st = sinew_png_encode(r->ctx, &png, &len, &t);
     if (!st) {
         /* Shown at the thumbnail width; small pictures are enlarged with crisp pixels. */
         int tw = r->o.thumb_width;
@@ -212,7 +212,7 @@ void sinew__report_legend(sinew__sbuf *b, const sinew__report *r, double fmax)
     if (!sinew_draw_wheel(r->ctx, &wheel, 48)) {
         unsigned char *png = NULL;
         size_t len = 0;
-        if (!sinew_png_encode(r->ctx, &wheel, &png, &len)) {
+        if (!sinew_png_encode(r->ctx, &png, &len, &wheel)) {
             sinew__sb_puts(b, "<span><img width=\"24\" height=\"24\" alt=\"colour wheel\" "
                               "style=\"vertical-align:middle;margin-right:6px\" "
                               "src=\"data:image/png;base64,");

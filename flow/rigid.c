@@ -85,7 +85,7 @@ int sinew_rigid_load(sinew_ctx *ctx, sinew_rigid *T, const char *path)
         return SINEW_EINVAL;
     unsigned char *buf;
     size_t len;
-    int rc = sinew_read_file(ctx, path, (size_t)1 << 16, &buf, &len);
+    int rc = sinew_read_file(ctx, &buf, &len, path, (size_t)1 << 16);
     if (rc)
         return rc;
     double m[16];
@@ -213,8 +213,8 @@ static double det3(const double M[9])
            M[2] * (M[3] * M[7] - M[4] * M[6]);
 }
 
-int sinew_rigid_fit(sinew_ctx *ctx, const float *src, const float *dst, const float *weight,
-                    size_t n, size_t stride, sinew_rigid *T, double *rms)
+int sinew_rigid_fit(sinew_ctx *ctx, sinew_rigid *T, double *rms, const float *src, const float *dst,
+                    const float *weight, size_t n, size_t stride)
 {
     if (!ctx || !src || !dst || !T || stride < 1)
         return SINEW_EINVAL;

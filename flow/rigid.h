@@ -50,8 +50,8 @@ void sinew_rigid_relative(const sinew_rigid *pose0, const sinew_rigid *pose1, si
  * a match table can be passed directly. Sums in double, serial (deterministic).
  * *rms (may be NULL) receives the weighted RMS residual in metres. Returns SINEW_EVALUE
  * if fewer than 3 points have positive weight or the points are (nearly) collinear. */
-int sinew_rigid_fit(sinew_ctx *ctx, const float *src, const float *dst, const float *weight,
-                    size_t n, size_t stride, sinew_rigid *T, double *rms);
+int sinew_rigid_fit(sinew_ctx *ctx, sinew_rigid *T, double *rms, const float *src, const float *dst,
+                    const float *weight, size_t n, size_t stride);
 
 #ifdef __cplusplus
 }

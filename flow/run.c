@@ -71,7 +71,7 @@ static int digest_cached(sinew_run *run, digest_entry *e, const char *path)
 {
     if (e->state)
         return SINEW_OK;
-    int rc = sinew_sha256_file(run->ctx, path, e->digest, &e->bytes);
+    int rc = sinew_sha256_file(run->ctx, e->digest, &e->bytes, path);
     if (rc)
         return rc;
     e->state = 1;
@@ -118,12 +118,12 @@ int sinew__run_pair_inputs(sinew_run *run, size_t index, sinew__input *in, size_
     if (s->flow_from) {
         char name[SINEW_PAIR_NAME_MAX];
         sinew_pair_name(name, p);
-        if ((rc = sinew_run_find_import(run->ctx, s->flow_from, name, fwd, bwd, pathn)))
+        if ((rc = sinew_run_find_import(run->ctx, fwd, bwd, pathn, s->flow_from, name)))
             return rc;
         const char *paths[2] = {fwd, bwd};
         const char *roles[2] = {"flow_forward", "flow_backward"};
         for (int k = 0; k < 2; k++) {
-            if ((rc = sinew_sha256_file(run->ctx, paths[k], in[n].digest, &in[n].bytes)))
+            if ((rc = sinew_sha256_file(run->ctx, in[n].digest, &in[n].bytes, paths[k])))
                 return rc;
             in[n].path = paths[k];
             snprintf(in[n].role, sizeof in[n].role, "%s", roles[k]);
@@ -203,7 +203,7 @@ static int lock_read(sinew_ctx *ctx, const char *dir, const char *name, lock_inf
     unsigned char *buf = NULL;
     size_t len;
     if (!sinew__path_join(ctx, p, sizeof p, dir, name) &&
-        !sinew_read_file(ctx, p, 4096, &buf, &len) &&
+        !sinew_read_file(ctx, &buf, &len, p, 4096) &&
         sscanf((const char *)buf, "pid %ld host %255s", &li->pid, li->host) != 2)
         li->pid = 0;
     sinew_ctx_dealloc(ctx, buf);
@@ -543,7 +543,7 @@ static int write_done_record(sinew_run *run, sinew_ctx *ctx, size_t index, const
         unsigned char d[32];
         uint64_t bytes;
         if ((rc = sinew__path_join(ctx, p, sizeof p, dir, names[k])) ||
-            (rc = sinew_sha256_file(ctx, p, d, &bytes)))
+            (rc = sinew_sha256_file(ctx, d, &bytes, p)))
             goto done;
         cJSON *e = json_digest_entry("file", names[k], bytes, d);
         if (!e) {
@@ -611,7 +611,7 @@ int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, i
         ok = cJSON_IsString(f) && cJSON_IsNumber(b) && cJSON_IsString(h) &&
              !strchr(f->valuestring, '/') &&
              !sinew__path_join(ctx, fp, sizeof fp, dir, f->valuestring) && stat(fp, &st) == 0 &&
-             (double)st.st_size == b->valuedouble && !sinew_sha256_file(ctx, fp, d, &bytes);
+             (double)st.st_size == b->valuedouble && !sinew_sha256_file(ctx, d, &bytes, fp);
         if (ok) {
             sinew_sha256_hex(d, hex);
             ok = !strcmp(hex, h->valuestring);
@@ -973,8 +973,8 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
     return sinew_run_execute_jobs(run, 1, NULL, fn, &fn_ud, progress, progress_ud, result);
 }
 
-int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd, char *bwd,
-                          size_t n)
+int sinew_run_find_import(sinew_ctx *ctx, char *fwd, char *bwd, size_t n, const char *dir,
+                          const char *name)
 {
     if (!ctx || !dir || !name || !fwd || !bwd)
         return SINEW_EINVAL;

@@ -63,14 +63,14 @@ typedef struct sinew_run_source {
  * present, naming the files when two have the same stem, or the first colour image
  * without a depth map (unless flags has SINEW_RUN_SOURCE_DROP_UNMATCHED). Free with
  * sinew_run_source_free. */
-int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt, unsigned flags,
-                                 sinew_run_source *out);
+int sinew_run_source_from_folder(sinew_ctx *ctx, sinew_run_source *out, const char *dir,
+                                 double max_dt, unsigned flags);
 /* The frames of a sequence file (flow/sequence.h), their paths resolved against the
  * file's folder. ELIMIT (message names `where` and the frame) for a path too long to
  * resolve. intrinsics stays NULL: a sequence carries its intrinsics as values. Free with
  * sinew_run_source_free. */
-int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, const char *where,
-                                   sinew_run_source *out);
+int sinew_run_source_from_sequence(sinew_ctx *ctx, sinew_run_source *out, const sinew_sequence *seq,
+                                   const char *where);
 void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src);
 
 /* ---- the run folder (docs/formats.md) -------------------------------------------
@@ -273,8 +273,8 @@ typedef struct sinew_run_pipeline sinew_run_pipeline;
 void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p);
 /* The canonical options text of these parameters (compact JSON, fixed key order), to
  * be used as sinew_run_spec.options. ELIMIT if buf (size n) is too small. */
-int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *p, char *buf,
-                               size_t n);
+int sinew_run_pipeline_options(sinew_ctx *ctx, char *buf, size_t n,
+                               const sinew_run_pipeline_params *p);
 /* Create the pipeline for a spec (borrowed for the pipeline's life). ECONFIG for an
  * unknown preset or format. */
 int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew_run_spec *spec,
@@ -307,8 +307,8 @@ int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_
 /* The sequence's "run.schedule" as a schedule: when the sequence has one, *out is set and
  * a list schedule's pairs are allocated on ctx into *list (free with sinew_ctx_dealloc);
  * otherwise *out is left as it is. *list is NULL unless pairs were allocated. */
-int sinew_run_schedule_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, sinew_schedule *out,
-                                     sinew_pair **list);
+int sinew_run_schedule_from_sequence(sinew_ctx *ctx, sinew_schedule *out, sinew_pair **list,
+                                     const sinew_sequence *seq);
 
 /* ---- stored options (OUTDIR/SINEW_RUN_OPTIONS_FILE, docs/formats.md) -------------
  * The settings that shape a run's outputs, written before its first pair, so that
@@ -344,13 +344,14 @@ int sinew_run_options_write(sinew_ctx *ctx, const char *outdir, const sinew_run_
 /* Read OUTDIR/SINEW_RUN_OPTIONS_FILE into *o. *found = 0 and SINEW_OK when the file does
  * not exist (a folder from an older sinew, or a new run); EFORMAT naming the file and
  * the key for a file that is not a complete options record. */
-int sinew_run_options_read(sinew_ctx *ctx, const char *outdir, sinew_run_options *o, int *found);
+int sinew_run_options_read(sinew_ctx *ctx, sinew_run_options *o, int *found, const char *outdir);
 /* Unless force is set, compare the keys in `given` of *o with *stored: the first that
  * differs gives ECONFIG "WHERE: KEY is 'STORED' there but 'GIVEN' was given". Then every
  * key not in `given` is copied from *stored into *o, so *o holds the run's options (with
  * force, the given keys replace the stored ones). */
-int sinew_run_options_reconcile(sinew_ctx *ctx, const char *where, const sinew_run_options *stored,
-                                sinew_run_options *o, unsigned given, int force);
+int sinew_run_options_reconcile(sinew_ctx *ctx, sinew_run_options *o,
+                                const sinew_run_options *stored, unsigned given, int force,
+                                const char *where);
 
 /* The summary numbers of a computed pair, from OUTDIR/pairs/NAME/stats.json as the
  * pipeline writes it; NaN for a number that is missing. */
@@ -366,8 +367,8 @@ typedef struct sinew_run_pair_summary {
 } sinew_run_pair_summary;
 /* Read a pair's summary; the read or parse error naming the file when stats.json is
  * missing or not JSON (e.g. the pair is pending). */
-int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
-                                sinew_run_pair_summary *out);
+int sinew_run_pair_summary_read(sinew_ctx *ctx, sinew_run_pair_summary *out, const char *outdir,
+                                sinew_pair pair);
 /* The warnings of a computed pair (stats.json "warnings": implausible depth, off-centre
  * intrinsics, no intrinsics for depth, few pixels kept), each passed to fn in order; the
  * read error naming the file when stats.json is missing or not JSON. */
@@ -377,8 +378,8 @@ int sinew_run_pair_warnings_read(sinew_ctx *ctx, const char *outdir, sinew_pair 
 /* Imported flows: DIR/NAME/forward.EXT and DIR/NAME/backward.EXT, EXT the first of
  * flo, npy, pfm, png that exists (so a previous run's pairs/ folder can be imported).
  * Paths are written into fwd/bwd (size n); EIO naming the missing file. */
-int sinew_run_find_import(sinew_ctx *ctx, const char *dir, const char *name, char *fwd, char *bwd,
-                          size_t n);
+int sinew_run_find_import(sinew_ctx *ctx, char *fwd, char *bwd, size_t n, const char *dir,
+                          const char *name);
 
 #ifdef __cplusplus
 }

@@ -135,7 +135,7 @@ static int parse_options(sinew_ctx *ctx, const char *path, const cJSON *j, sinew
     return SINEW_OK;
 }
 
-int sinew_run_options_read(sinew_ctx *ctx, const char *outdir, sinew_run_options *o, int *found)
+int sinew_run_options_read(sinew_ctx *ctx, sinew_run_options *o, int *found, const char *outdir)
 {
     if (!ctx || !outdir || !o || !found)
         return SINEW_EINVAL;
@@ -169,8 +169,9 @@ static int conflict(sinew_ctx *ctx, const char *where, const char *key, const ch
                        stored, given);
 }
 
-int sinew_run_options_reconcile(sinew_ctx *ctx, const char *where, const sinew_run_options *stored,
-                                sinew_run_options *o, unsigned given, int force)
+int sinew_run_options_reconcile(sinew_ctx *ctx, sinew_run_options *o,
+                                const sinew_run_options *stored, unsigned given, int force,
+                                const char *where)
 {
     if (!ctx || !where || !stored || !o)
         return SINEW_EINVAL;

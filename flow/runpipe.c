@@ -85,8 +85,8 @@ int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_
     return SINEW_OK;
 }
 
-int sinew_run_schedule_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, sinew_schedule *out,
-                                     sinew_pair **list)
+int sinew_run_schedule_from_sequence(sinew_ctx *ctx, sinew_schedule *out, sinew_pair **list,
+                                     const sinew_sequence *seq)
 {
     if (!ctx || !seq || !out || !list)
         return SINEW_EINVAL;
@@ -143,8 +143,8 @@ int sinew_run_pair_warnings_read(sinew_ctx *ctx, const char *outdir, sinew_pair 
     return SINEW_OK;
 }
 
-int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair pair,
-                                sinew_run_pair_summary *out)
+int sinew_run_pair_summary_read(sinew_ctx *ctx, sinew_run_pair_summary *out, const char *outdir,
+                                sinew_pair pair)
 {
     if (!ctx || !outdir || !out)
         return SINEW_EINVAL;
@@ -169,8 +169,8 @@ int sinew_run_pair_summary_read(sinew_ctx *ctx, const char *outdir, sinew_pair p
     return SINEW_OK;
 }
 
-int sinew_run_pipeline_options(sinew_ctx *ctx, const sinew_run_pipeline_params *p, char *buf,
-                               size_t n)
+int sinew_run_pipeline_options(sinew_ctx *ctx, char *buf, size_t n,
+                               const sinew_run_pipeline_params *p)
 {
     if (!ctx || !p || !buf || !p->preset)
         return SINEW_EINVAL;
@@ -315,10 +315,10 @@ static int load_extras(sinew_run_pipeline *pl, frame_slot *s, int32_t f)
             return sinew__fail(pl->ctx, SINEW_ESIZE, "%s: depth is %dx%d but the frames are %dx%d",
                                fr->depth, w, h, pl->width, pl->height);
         }
-        rc = sinew_depth_convert(pl->ctx, &pl->depth, pl->have_camera ? &pl->cam : NULL, &raw,
-                                 &s->z, fr->depth, NULL);
+        rc = sinew_depth_convert(pl->ctx, &s->z, NULL, &raw, pl->have_camera ? &pl->cam : NULL,
+                                 &pl->depth, fr->depth);
         sinew_image_free(&raw);
-        if (rc || (rc = sinew_depth_median(pl->ctx, &s->z, &s->z_median, NULL)))
+        if (rc || (rc = sinew_depth_median(pl->ctx, &s->z_median, NULL, &s->z)))
             return rc;
     }
     if (fr->labels && ((rc = sinew_labels_read(pl->ctx, &s->labels, fr->labels)) ||
@@ -347,7 +347,7 @@ static int get_frame(sinew_run_pipeline *pl, int32_t f, int32_t keep, const fram
         return rc;
     if (pl->width == 0) {
         if (pl->have_camera &&
-            (rc = sinew_camera_fit(pl->ctx, &pl->cam_file, s->img.width, s->img.height, &pl->cam,
+            (rc = sinew_camera_fit(pl->ctx, &pl->cam, &pl->cam_file, s->img.width, s->img.height,
                                    pl->spec->intrinsics ? pl->spec->intrinsics : "intrinsics"))) {
             slot_clear(s);
             return rc;
@@ -628,7 +628,7 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
                              labels ? fr1->labels : NULL,
                              lift ? fr0->depth : NULL,
                              lift ? fr1->depth : NULL};
-    int rc = sinew_matches_build(ctx, &in, &mp, m);
+    int rc = sinew_matches_build(ctx, m, &in, &mp);
     if (rc)
         return rc;
     sinew_match_sources src = {"sinew run",
@@ -640,7 +640,7 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
                                {lift ? s0->z_median : NAN, lift ? s1->z_median : NAN}};
     char p[SINEW__PATH_MAX];
     if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, SINEW_RUN_MATCHES_FILE)) ||
-        (rc = sinew_matches_save(ctx, m, &mp, &in, &src, p)))
+        (rc = sinew_matches_save(ctx, p, m, &mp, &in, &src)))
         return rc;
     return SINEW_OK;
 }

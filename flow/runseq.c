@@ -84,8 +84,8 @@ static int resolve_dup(sinew_ctx *ctx, const sinew_sequence *seq, const char *re
     return *out ? SINEW_OK : SINEW_ENOMEM;
 }
 
-int sinew_run_source_from_sequence(sinew_ctx *ctx, const sinew_sequence *seq, const char *where,
-                                   sinew_run_source *out)
+int sinew_run_source_from_sequence(sinew_ctx *ctx, sinew_run_source *out, const sinew_sequence *seq,
+                                   const char *where)
 {
     if (!ctx || !seq || !out)
         return SINEW_EINVAL;
@@ -139,7 +139,7 @@ static int from_lists(sinew_ctx *ctx, const char *dir, double max_dt, sinew_run_
     int rc;
     if ((rc = sinew__path_join(ctx, pa, sizeof pa, dir, "rgb.txt")) ||
         (rc = sinew__path_join(ctx, pb, sizeof pb, dir, "depth.txt")) ||
-        (rc = sinew_stamp_list_read(ctx, pa, &a)) || (rc = sinew_stamp_list_read(ctx, pb, &b)))
+        (rc = sinew_stamp_list_read(ctx, &a, pa)) || (rc = sinew_stamp_list_read(ctx, &b, pb)))
         goto done;
     m = a.n ? sinew__calloc(ctx, a.n, sizeof *m) : NULL;
     if (a.n && !m) {
@@ -147,7 +147,7 @@ static int from_lists(sinew_ctx *ctx, const char *dir, double max_dt, sinew_run_
         goto done;
     }
     size_t nm = 0;
-    if ((rc = sinew_associate(ctx, a.t, a.n, b.t, b.n, max_dt, 0.0, m, &nm)))
+    if ((rc = sinew_associate(ctx, m, &nm, a.t, a.n, b.t, b.n, max_dt, 0.0)))
         goto done;
     if (nm == 0) {
         rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no colour stamp has a depth stamp within %g s",
@@ -427,8 +427,8 @@ static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_ru
     return rc;
 }
 
-int sinew_run_source_from_folder(sinew_ctx *ctx, const char *dir, double max_dt, unsigned flags,
-                                 sinew_run_source *out)
+int sinew_run_source_from_folder(sinew_ctx *ctx, sinew_run_source *out, const char *dir,
+                                 double max_dt, unsigned flags)
 {
     if (!ctx || !dir || !out)
         return SINEW_EINVAL;

@@ -60,8 +60,8 @@ static int cmp_pair(const void *a, const void *b)
     return 0;
 }
 
-int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes,
-                         sinew_pair **pairs, size_t *npairs)
+int sinew_schedule_pairs(sinew_ctx *ctx, sinew_pair **pairs, size_t *npairs,
+                         const sinew_schedule *s, size_t nframes)
 {
     if (!ctx || !s || !pairs || !npairs)
         return SINEW_EINVAL;
@@ -199,7 +199,7 @@ static int parse_list(sinew_ctx *ctx, const char *path, sinew_schedule *out, sin
 {
     unsigned char *buf;
     size_t len, bad = 0;
-    int rc = sinew_read_file(ctx, path, (size_t)64 << 20, &buf, &len);
+    int rc = sinew_read_file(ctx, &buf, &len, path, (size_t)64 << 20);
     if (rc)
         return rc;
     int64_t n = list_scan((char *)buf, len, NULL, &bad);
@@ -226,7 +226,7 @@ static int parse_list(sinew_ctx *ctx, const char *path, sinew_schedule *out, sin
     return SINEW_OK;
 }
 
-int sinew_schedule_parse(sinew_ctx *ctx, const char *text, sinew_schedule *out, sinew_pair **list)
+int sinew_schedule_parse(sinew_ctx *ctx, sinew_schedule *out, sinew_pair **list, const char *text)
 {
     if (!ctx || !text || !out || !list)
         return SINEW_EINVAL;
@@ -306,8 +306,8 @@ static size_t scan_candidates(const sinew__stamp *sa, size_t na, const sinew__st
     return count;
 }
 
-int sinew_associate(sinew_ctx *ctx, const double *ta, size_t na, const double *tb, size_t nb,
-                    double max_diff, double offset, int32_t *match, size_t *nmatched)
+int sinew_associate(sinew_ctx *ctx, int32_t *match, size_t *nmatched, const double *ta, size_t na,
+                    const double *tb, size_t nb, double max_diff, double offset)
 {
     if (!ctx || (na && (!ta || !match)) || (nb && !tb) || !nmatched)
         return SINEW_EINVAL;
@@ -389,14 +389,14 @@ void sinew_stamp_list_free(sinew_ctx *ctx, sinew_stamp_list *l)
 
 #define STAMP_LIST_MAX_BYTES ((size_t)256 << 20)
 
-int sinew_stamp_list_read(sinew_ctx *ctx, const char *path, sinew_stamp_list *out)
+int sinew_stamp_list_read(sinew_ctx *ctx, sinew_stamp_list *out, const char *path)
 {
     if (!ctx || !path || !out)
         return SINEW_EINVAL;
     memset(out, 0, sizeof *out);
     unsigned char *buf;
     size_t len;
-    int rc = sinew_read_file(ctx, path, STAMP_LIST_MAX_BYTES, &buf, &len);
+    int rc = sinew_read_file(ctx, &buf, &len, path, STAMP_LIST_MAX_BYTES);
     if (rc)
         return rc;
     /* first pass: count entry lines (limit before allocation) */

@@ -46,8 +46,8 @@ typedef struct sinew_schedule {
  * last frame are dropped. ECONFIG for a bad parameter, an empty LIST, a LIST pair out of range,
  * i == j, or a pair listed twice (it would share an output folder); ELIMIT beyond the
  * limits above. Order: increasing i then j, except LIST which keeps its order. */
-int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes,
-                         sinew_pair **pairs, size_t *npairs);
+int sinew_schedule_pairs(sinew_ctx *ctx, sinew_pair **pairs, size_t *npairs,
+                         const sinew_schedule *s, size_t nframes);
 
 /* Parse a schedule as `sinew run --schedule` takes it: "consecutive", "gap:K",
  * "keyframe:K:M" (every K-th frame to the next M frames) or "list:FILE". K and M are
@@ -60,7 +60,7 @@ int sinew_schedule_pairs(sinew_ctx *ctx, const sinew_schedule *s, size_t nframes
  * (frame numbers)", ECONFIG for a list of no pairs, or ELIMIT beyond
  * SINEW_RUN_MAX_PAIRS pairs. Ranges against the frame count are checked later by
  * sinew_schedule_pairs. */
-int sinew_schedule_parse(sinew_ctx *ctx, const char *text, sinew_schedule *out, sinew_pair **list);
+int sinew_schedule_parse(sinew_ctx *ctx, sinew_schedule *out, sinew_pair **list, const char *text);
 
 /* Stable output name of a pair: "%06d-%06d" of (i, j), e.g. "000012-000013". buf needs
  * at least SINEW_PAIR_NAME_MAX bytes. Returns buf. */
@@ -84,8 +84,8 @@ static inline int sinew_shard_owns(size_t index, int k, int n)
  * offset 0; the greedy smallest-difference-first rule is from memory of that script.
  * match[a] receives the index into tb, or -1 if a has no partner. Returns the number
  * of matches through *nmatched. ECONFIG if max_diff <= 0 or any stamp is not finite. */
-int sinew_associate(sinew_ctx *ctx, const double *ta, size_t na, const double *tb, size_t nb,
-                    double max_diff, double offset, int32_t *match, size_t *nmatched);
+int sinew_associate(sinew_ctx *ctx, int32_t *match, size_t *nmatched, const double *ta, size_t na,
+                    const double *tb, size_t nb, double max_diff, double offset);
 
 /* A "timestamp filename" list (rgb.txt / depth.txt style): one entry per line, '#'
  * lines and blank lines ignored, extra columns refused. Strings and arrays are
@@ -95,7 +95,7 @@ typedef struct sinew_stamp_list {
     double *t;
     char **name;
 } sinew_stamp_list;
-int sinew_stamp_list_read(sinew_ctx *ctx, const char *path, sinew_stamp_list *out);
+int sinew_stamp_list_read(sinew_ctx *ctx, sinew_stamp_list *out, const char *path);
 void sinew_stamp_list_free(sinew_ctx *ctx, sinew_stamp_list *l);
 
 #ifdef __cplusplus

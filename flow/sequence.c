@@ -896,7 +896,7 @@ int sinew_sequence_read(sinew_ctx *ctx, sinew_sequence **out, const char *path)
     *out = NULL;
     unsigned char *buf = NULL;
     size_t len = 0;
-    int st = sinew_read_file(ctx, path, MAX_JSON_BYTES, &buf, &len);
+    int st = sinew_read_file(ctx, &buf, &len, path, MAX_JSON_BYTES);
     if (st)
         return st;
     st = sinew_sequence_parse(ctx, out, (const char *)buf, len, path);

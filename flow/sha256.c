@@ -184,7 +184,7 @@ void sinew_sha256_hex(const unsigned char digest[32], char hex[65])
     hex[64] = '\0';
 }
 
-int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32], uint64_t *bytes)
+int sinew_sha256_file(sinew_ctx *ctx, unsigned char digest[32], uint64_t *bytes, const char *path)
 {
     if (!ctx || !path || !digest)
         return SINEW_EINVAL;

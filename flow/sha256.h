@@ -33,7 +33,7 @@ void sinew_sha256_hex(const unsigned char digest[32], char hex[65]);
  * bytes (may be NULL) receives the file size. EIO naming the path if it cannot be
  * opened or read; EINTERRUPTED when the context's stop flag is set (checked per 64 KiB
  * block, sinew_ctx_set_cancel). */
-int sinew_sha256_file(sinew_ctx *ctx, const char *path, unsigned char digest[32], uint64_t *bytes);
+int sinew_sha256_file(sinew_ctx *ctx, unsigned char digest[32], uint64_t *bytes, const char *path);
 
 #ifdef __cplusplus
 }

@@ -668,9 +668,9 @@ static int cmp_float(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-int sinew_stereo_vertical_offset(sinew_ctx *ctx, const sinew_image *left, const sinew_image *right,
-                                 int min_disparity, int num_disparities, int search_y, double *dy,
-                                 int *matched)
+int sinew_stereo_vertical_offset(sinew_ctx *ctx, double *dy, int *matched, const sinew_image *left,
+                                 const sinew_image *right, int min_disparity, int num_disparities,
+                                 int search_y)
 {
     if (!ctx || !dy || !matched)
         return SINEW_EINVAL;

@@ -121,9 +121,9 @@ int sinew_stereo_score(sinew_ctx *ctx, sinew_stereo_scores *out, const sinew_ima
  * test. *dy receives the median offset of the reliable matches (0 with none) and
  * *matched their number; a rectified pair gives |dy| well below 1 px. Returns SINEW_OK,
  * EINVAL, ESIZE, ENOMEM. Deterministic for any thread count. */
-int sinew_stereo_vertical_offset(sinew_ctx *ctx, const sinew_image *left, const sinew_image *right,
-                                 int min_disparity, int num_disparities, int search_y, double *dy,
-                                 int *matched);
+int sinew_stereo_vertical_offset(sinew_ctx *ctx, double *dy, int *matched, const sinew_image *left,
+                                 const sinew_image *right, int min_disparity, int num_disparities,
+                                 int search_y);
 
 /* Rectified stereo geometry for disparity -> depth: Z = fx * baseline / (d + doffs). */
 typedef struct sinew_stereo_calib {

@@ -245,7 +245,7 @@ int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const cha
         return SINEW_EINVAL;
     unsigned char *buf;
     size_t len;
-    int st = sinew_read_file(ctx, path, CALIB_MAX_FILE, &buf, &len);
+    int st = sinew_read_file(ctx, &buf, &len, path, CALIB_MAX_FILE);
     if (st)
         return st;
     if (memchr(buf, 0, len)) {

@@ -117,7 +117,7 @@ static int read_depth(sinew_ctx *ctx, const sinew_depth_params *dp, sinew_image 
 {
     int st = sinew_depth_read(ctx, raw, path);
     if (!st)
-        st = sinew_depth_convert(ctx, dp, NULL, raw, z, path, NULL);
+        st = sinew_depth_convert(ctx, z, NULL, raw, NULL, dp, path);
     if (st)
         cli_status(CMD, ctx, st);
     return st;

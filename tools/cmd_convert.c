@@ -65,7 +65,7 @@ int cmd_convert(int argc, char **argv)
     if (!ctx)
         return CLI_FAIL;
     sinew_flow_format ofmt;
-    int rc = sinew_flow_format_from_path(ctx, out, &ofmt);
+    int rc = sinew_flow_format_from_path(ctx, &ofmt, out);
     if (!rc && half && ofmt != SINEW_FLOW_NPY) {
         sinew_ctx_free(ctx);
         return cli_usage_error("convert", "%s: --half needs a .npy output", out);

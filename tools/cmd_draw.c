@@ -156,9 +156,9 @@ static int draw_matches(sinew_ctx *ctx, sinew_image *out, const opts *o)
     sinew_match_table t = {0};
     size_t ncols = 0;
     int idx[5];
-    if ((rc = got(ctx, sinew_matches_read_columns(ctx, cols, &ncols, idx))))
+    if ((rc = got(ctx, sinew_matches_read_columns(ctx, idx, &ncols, cols))))
         return rc;
-    int st = sinew_npy_read_table(ctx, o->table, ncols, &data, &t.rows, &t.cols);
+    int st = sinew_npy_read_table(ctx, &data, &t.rows, &t.cols, o->table, ncols);
     if (st)
         return cli_status(CMD, ctx, st);
     t.u0 = idx[0], t.v0 = idx[1], t.u1 = idx[2], t.v1 = idx[3], t.weight = idx[4];

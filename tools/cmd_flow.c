@@ -291,9 +291,9 @@ int cmd_flow(int argc, char **argv)
     sinew_flow_format ffmt, bfmt;
     sinew_image a = {0}, b = {0}, fwd = {0}, bwd = {0};
     sinew_estimator *est = NULL;
-    rc = sinew_flow_format_from_path(ctx, out, &ffmt);
+    rc = sinew_flow_format_from_path(ctx, &ffmt, out);
     if (!rc && bout)
-        rc = sinew_flow_format_from_path(ctx, bout, &bfmt);
+        rc = sinew_flow_format_from_path(ctx, &bfmt, bout);
     if (!rc)
         rc = sinew_image_read(ctx, &a, f0); /* messages name the file */
     if (!rc)

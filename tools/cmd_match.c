@@ -360,10 +360,10 @@ static int load_depth(sinew_ctx *ctx, const opts *o, const sinew_camera *cam, co
     int rc = sinew_depth_read(ctx, raw, path);
     if (rc)
         return rc;
-    rc = sinew_depth_convert(ctx, &o->dp, cam, raw, z, path, NULL);
+    rc = sinew_depth_convert(ctx, z, NULL, raw, cam, &o->dp, path);
     if (rc)
         return rc;
-    return sinew_depth_median(ctx, z, median, NULL);
+    return sinew_depth_median(ctx, median, NULL, z);
 }
 
 static int match_main(int argc, char **argv, int lift)
@@ -393,8 +393,8 @@ static int match_main(int argc, char **argv, int lift)
     in.flow_name = o.flow;
     const int w = s.flow.width, h = s.flow.height;
     if (o.check) {
-        if ((rc = sinew_check_folder_read(ctx, o.check, &s.mask, &s.conf, s.mask_path, s.conf_path,
-                                          sizeof s.mask_path)))
+        if ((rc = sinew_check_folder_read(ctx, &s.mask, &s.conf, s.mask_path, s.conf_path,
+                                          sizeof s.mask_path, o.check)))
             goto fail;
         in.mask = &s.mask;
         in.confidence = &s.conf;
@@ -412,7 +412,7 @@ static int match_main(int argc, char **argv, int lift)
     }
     if (lift) {
         if ((rc = load_intrinsics(ctx, &cam_file, o.intrinsics)) ||
-            (rc = sinew_camera_fit(ctx, &cam_file, w, h, &cam, o.intrinsics)))
+            (rc = sinew_camera_fit(ctx, &cam, &cam_file, w, h, o.intrinsics)))
             goto fail;
         if ((rc = load_depth(ctx, &o, &cam, o.depth0, &s.raw0, &s.d0, &median[0])) ||
             (rc = load_depth(ctx, &o, &cam, o.depth1, &s.raw1, &s.d1, &median[1])))
@@ -423,7 +423,7 @@ static int match_main(int argc, char **argv, int lift)
         in.depth1_name = o.depth1;
         in.camera = &cam;
     }
-    if ((rc = sinew_matches_build(ctx, &in, &o.mp, &m)))
+    if ((rc = sinew_matches_build(ctx, &m, &in, &o.mp)))
         goto fail;
     char command[16];
     snprintf(command, sizeof command, "sinew %s", cmd);
@@ -434,11 +434,11 @@ static int match_main(int argc, char **argv, int lift)
                                lift ? &cam_file : NULL,
                                lift ? &o.dp : NULL,
                                {median[0], median[1]}};
-    if ((rc = sinew_matches_save(ctx, &m, &o.mp, &in, &src, o.out)))
+    if ((rc = sinew_matches_save(ctx, o.out, &m, &o.mp, &in, &src)))
         goto fail;
-    if (o.ply && (rc = sinew_matches_save_ply(ctx, &m, o.ply, !o.ply_ascii)))
+    if (o.ply && (rc = sinew_matches_save_ply(ctx, o.ply, &m, !o.ply_ascii)))
         goto fail;
-    if (o.csv && (rc = sinew_matches_save_csv(ctx, &m, o.csv)))
+    if (o.csv && (rc = sinew_matches_save_csv(ctx, o.csv, &m)))
         goto fail;
     char sidecar[4096];
     sinew_matches_sidecar_path(o.out, sidecar, sizeof sidecar);

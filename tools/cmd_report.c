@@ -108,7 +108,7 @@ int cmd_report(int argc, char **argv)
     sinew_ctx *ctx = cli_ctx(CMD, (int)threads);
     if (!ctx)
         return CLI_FAIL;
-    int st = sinew_report_write(ctx, dir, out, &o);
+    int st = sinew_report_write(ctx, out, dir, &o);
     int rc = st ? cli_status(CMD, ctx, st) : CLI_OK;
     char safe[4200];
     if (!rc)

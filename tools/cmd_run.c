@@ -509,7 +509,7 @@ static int plan_stored_options(sinew_ctx *ctx, run_args *a)
 {
     if (!a->resume && !a->merge && a->shard_n == 1)
         return CLI_OK;
-    int found = 0, rc = sinew_run_options_read(ctx, a->outdir, &a->stored, &found);
+    int found = 0, rc = sinew_run_options_read(ctx, &a->stored, &found, a->outdir);
     if (rc)
         return cli_status(CMD, ctx, rc);
     if (!found)
@@ -519,8 +519,8 @@ static int plan_stored_options(sinew_ctx *ctx, run_args *a)
         return rc;
     char where[4200];
     snprintf(where, sizeof where, "%s/" SINEW_RUN_OPTIONS_FILE, a->outdir);
-    if ((rc = sinew_run_options_reconcile(ctx, where, &a->stored, &given, a->given,
-                                          a->force_options)))
+    if ((rc = sinew_run_options_reconcile(ctx, &given, &a->stored, a->given, a->force_options,
+                                          where)))
         return cli_error(CMD, "%s (--force-options lets the given value replace it)",
                          sinew_ctx_message(ctx));
     a->stored = given;
@@ -563,9 +563,9 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
     snprintf(seqpath, sizeof seqpath, "%s/sequence.json", a->input);
     int is_dir = S_ISDIR(st.st_mode), rc;
     if (is_dir && stat(seqpath, &st) != 0) {
-        if ((rc = sinew_run_source_from_folder(
-                 ctx, a->input, a->max_dt, a->drop_unmatched ? SINEW_RUN_SOURCE_DROP_UNMATCHED : 0,
-                 &p->src)))
+        if ((rc = sinew_run_source_from_folder(ctx, &p->src, a->input, a->max_dt,
+                                               a->drop_unmatched ? SINEW_RUN_SOURCE_DROP_UNMATCHED
+                                                                 : 0)))
             return cli_status(CMD, ctx, rc);
         for (size_t k = 0; k < p->src.nwarnings; k++)
             if (warn_take(&p->warn, p->src.warnings[k]))
@@ -574,7 +574,7 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
     }
     const char *sp = is_dir ? seqpath : a->input;
     if ((rc = sinew_sequence_read(ctx, &p->seq, sp)) ||
-        (rc = sinew_run_source_from_sequence(ctx, p->seq, sp, &p->src)) ||
+        (rc = sinew_run_source_from_sequence(ctx, &p->src, p->seq, sp)) ||
         (rc = sinew_run_pipeline_params_apply_sequence(ctx, &a->pp, &p->cam, p->seq, a->input,
                                                        a->given)))
         return cli_status(CMD, ctx, rc);
@@ -587,16 +587,16 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
 static int plan_pairs(sinew_ctx *ctx, const run_args *a, run_plan *p)
 {
     sinew_schedule sched = {SINEW_SCHEDULE_CONSECUTIVE, 0, 0, 0, NULL, 0};
-    int rc = a->schedule ? sinew_schedule_parse(ctx, a->schedule, &sched, &p->list)
-             : p->seq    ? sinew_run_schedule_from_sequence(ctx, p->seq, &sched, &p->list)
+    int rc = a->schedule ? sinew_schedule_parse(ctx, &sched, &p->list, a->schedule)
+             : p->seq    ? sinew_run_schedule_from_sequence(ctx, &sched, &p->list, p->seq)
                          : SINEW_OK;
     if (rc == SINEW_EINVAL && a->schedule)
         return cli_usage_error(CMD,
                                "--schedule: expected consecutive, gap:K, keyframe:K:M or "
                                "list:FILE, got '%s'",
                                a->schedule);
-    if (rc || (rc = sinew_schedule_pairs(ctx, &sched, p->src.nframes, &p->pairs, &p->npairs)) ||
-        (rc = sinew_run_pipeline_options(ctx, &a->pp, p->options, sizeof p->options)))
+    if (rc || (rc = sinew_schedule_pairs(ctx, &p->pairs, &p->npairs, &sched, p->src.nframes)) ||
+        (rc = sinew_run_pipeline_options(ctx, p->options, sizeof p->options, &a->pp)))
         return cli_status(CMD, ctx, rc);
     return CLI_OK;
 }
@@ -690,8 +690,8 @@ static size_t check_inputs(sinew_ctx *ctx, const sinew_run_spec *spec)
         }
         char name[SINEW_PAIR_NAME_MAX], fwd[4200], bwd[4200];
         if (spec->flow_from &&
-            sinew_run_find_import(ctx, spec->flow_from, sinew_pair_name(name, spec->pairs[q]), fwd,
-                                  bwd, sizeof fwd) != SINEW_OK) {
+            sinew_run_find_import(ctx, fwd, bwd, sizeof fwd, spec->flow_from,
+                                  sinew_pair_name(name, spec->pairs[q])) != SINEW_OK) {
             printf("input flow: %s\n", sinew_ctx_message(ctx));
             bad++;
         }
@@ -819,7 +819,7 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
     for (size_t q = 0; q < spec->npairs; q++) {
         have[q] =
             sinew_shard_owns(q, spec->shard_k, spec->shard_n) &&
-            sinew_run_pair_summary_read(ctx, spec->outdir, spec->pairs[q], &sum[q]) == SINEW_OK;
+            sinew_run_pair_summary_read(ctx, &sum[q], spec->outdir, spec->pairs[q]) == SINEW_OK;
         truth |= have[q] && (isfinite(sum[q].epe) || isfinite(sum[q].occlusion_f1));
     }
     if (!json)
@@ -1027,7 +1027,7 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
         char html[4200];
         snprintf(html, sizeof html, "%s/" SINEW_RUN_REPORT_FILE, a->outdir);
         if (whole && mrc == SINEW_OK && !res.interrupted) {
-            hrc = sinew_report_write(ctx, a->outdir, html, NULL);
+            hrc = sinew_report_write(ctx, html, a->outdir, NULL);
             if (hrc) {
                 snprintf(hmsg, sizeof hmsg, "%s", sinew_ctx_message(ctx));
             } else if (json) {

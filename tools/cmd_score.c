@@ -174,8 +174,8 @@ static int score_confidence_image(sinew_ctx *ctx, const sinew_image *conf, const
     }
     out->n = n;
     if (n > 0) {
-        st = sinew_sparsification(ctx, unc, err, n, SPARSE_STEPS, out->curve, out->oracle,
-                                  &out->ause);
+        st = sinew_sparsification(ctx, out->curve, out->oracle, &out->ause, unc, err, n,
+                                  SPARSE_STEPS);
         if (!st)
             st = sinew_calibration_compute(ctx, &out->cal, cf, err, n, CALIB_THRESHOLD_PX,
                                            CALIB_BINS);
@@ -471,7 +471,7 @@ static int score_pair_check(sinew_ctx *ctx, const score_pair *p, const layout_op
         sparse_result sp;
         if (!dir)
             return cli_error(CMD, "out of memory");
-        st = sinew_check_folder_read(ctx, dir, mask, conf, mp, cp, sizeof mp);
+        st = sinew_check_folder_read(ctx, mask, conf, mp, cp, sizeof mp, dir);
         free(dir);
         if (st)
             return cli_status(CMD, ctx, st);

@@ -181,7 +181,7 @@ static int write_check(sinew_ctx *ctx, const job *j, const sinew_stereo_output *
             return CLI_FAIL;
         /* 0 to twice the median depth: a few far pixels (d near 0) would flatten the rest */
         double med = NAN;
-        if ((st = sinew_depth_median(ctx, z, &med, NULL)))
+        if ((st = sinew_depth_median(ctx, &med, NULL, z)))
             return cli_status(CMD, ctx, st);
         if ((st = picture(ctx, path, z, 0, isfinite(med) ? 2 * med : 0, "DEPTH (M)")))
             return cli_status(CMD, ctx, st);
@@ -300,9 +300,9 @@ static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
            SGM searches rows only) */
         double dy;
         int matched;
-        if ((st = sinew_stereo_vertical_offset(ctx, &l, &r, p->min_disparity,
+        if ((st = sinew_stereo_vertical_offset(ctx, &dy, &matched, &l, &r, p->min_disparity,
                                                sinew_stereo_num_disparities(p, l.width),
-                                               RECTIFY_SEARCH, &dy, &matched))) {
+                                               RECTIFY_SEARCH))) {
             cli_status(CMD, ctx, st);
             goto done;
         }

@@ -68,7 +68,7 @@ int score_print_json(cJSON *root)
     if (!txt)
         return cli_error(CMD, "out of memory");
     sinew_ctx *ctx = sinew_ctx_new();
-    int rc = ctx ? sinew_json_utf8(ctx, txt, strlen(txt), &u, NULL) : SINEW_ENOMEM;
+    int rc = ctx ? sinew_json_utf8(ctx, &u, NULL, txt, strlen(txt)) : SINEW_ENOMEM;
     cJSON_free(txt);
     if (rc) { /* ids and paths come from file names: valid UTF-8 only (flow/core.h) */
         sinew_ctx_free(ctx);

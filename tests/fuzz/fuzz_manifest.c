@@ -27,7 +27,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
                 sinew_report_options o;
                 sinew_report_options_default(&o);
                 o.max_thumb_pairs = 0;
-                sinew_report_write(ctx, dir, html, &o);
+                sinew_report_write(ctx, html, dir, &o);
                 unlink(man);
                 unlink(html);
             }

@@ -53,7 +53,7 @@ static void test_check_io_roundtrip(void **state)
                      SINEW_OK);
 
     sinew_image m, c, fb, c16;
-    assert_int_equal(sinew_check_folder_read(f->ctx, dir, &m, &c, mp, cp, sizeof mp), SINEW_OK);
+    assert_int_equal(sinew_check_folder_read(f->ctx, &m, &c, mp, cp, sizeof mp, dir), SINEW_OK);
     assert_string_equal(mp, tu_path(p, sizeof p, dir, "mask.png"));
     assert_string_equal(cp, tu_path(p, sizeof p, dir, "confidence.npy"));
     assert_int_equal(sinew_map_read(f->ctx, &fb, tu_path(p, sizeof p, dir, "fb_error.npy")),
@@ -118,7 +118,7 @@ static void test_check_io_bad_folders(void **state)
     tu_path(p, sizeof p, f->dir, "empty");
     assert_int_equal(sinew_check_folder_write(f->ctx, p, &a.fb, &a.mask, &a.conf, "{}"), SINEW_OK);
     remove(tu_path(mp, sizeof mp, p, "mask.png"));
-    assert_int_not_equal(sinew_check_folder_read(f->ctx, p, &m, &c, mp, cp, sizeof mp), SINEW_OK);
+    assert_int_not_equal(sinew_check_folder_read(f->ctx, &m, &c, mp, cp, sizeof mp, p), SINEW_OK);
     expect_message(f->ctx, "mask.png");
     assert_null(m.data);
     assert_null(c.data);
@@ -127,20 +127,20 @@ static void test_check_io_bad_folders(void **state)
     sinew_image_row_f32(&a.conf, 1)[2] = NAN;
     assert_int_equal(sinew_check_folder_write(f->ctx, dir, &a.fb, &a.mask, &a.conf, "{}"),
                      SINEW_OK);
-    assert_int_equal(sinew_check_folder_read(f->ctx, dir, &m, &c, mp, cp, sizeof mp), SINEW_EVALUE);
+    assert_int_equal(sinew_check_folder_read(f->ctx, &m, &c, mp, cp, sizeof mp, dir), SINEW_EVALUE);
     expect_message(f->ctx, "confidence.npy: values must lie in [0, 1]");
     sinew_image big;
     assert_int_equal(sinew_image_alloc(f->ctx, &big, W + 1, H, 1, SINEW_F32), SINEW_OK);
     memset(big.data, 0, (size_t)big.stride * H);
     assert_int_equal(sinew_npy_write_image(f->ctx, cp, &big, 0), SINEW_OK);
-    assert_int_equal(sinew_check_folder_read(f->ctx, dir, &m, &c, mp, cp, sizeof mp), SINEW_ESIZE);
+    assert_int_equal(sinew_check_folder_read(f->ctx, &m, &c, mp, cp, sizeof mp, dir), SINEW_ESIZE);
     expect_message(f->ctx, "confidence.npy: size differs from mask.png");
 
     /* images of different sizes; a path that does not fit the caller's buffers */
     assert_int_equal(sinew_check_folder_write(f->ctx, dir, &a.fb, &a.mask, &big, "{}"),
                      SINEW_ESIZE);
     expect_message(f->ctx, "chk: the check's images differ in size");
-    assert_int_equal(sinew_check_folder_read(f->ctx, dir, &m, &c, mp, cp, 8), SINEW_EINVAL);
+    assert_int_equal(sinew_check_folder_read(f->ctx, &m, &c, mp, cp, 8, dir), SINEW_EINVAL);
     sinew_image_free(&big);
     folder_free(&a);
 }
@@ -167,7 +167,7 @@ static int write_and_read(sinew_ctx *ctx, void *ud)
         st = sinew_check_folder_write(ctx, ac->dir, &a.fb, &a.mask, &a.conf, "{}");
     }
     if (!st)
-        st = sinew_check_folder_read(ctx, ac->dir, &m, &c, mp, cp, sizeof mp);
+        st = sinew_check_folder_read(ctx, &m, &c, mp, cp, sizeof mp, ac->dir);
     if (!st) {
         sinew_image_free(&m);
         sinew_image_free(&c);

@@ -77,17 +77,17 @@ static void test_core_outfile_atomic(void **state)
     assert_int_equal(sinew_write_file(ctx, p, "hello", 5), SINEW_OK);
     unsigned char *buf;
     size_t len;
-    assert_int_equal(sinew_read_file(ctx, p, 100, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(ctx, &buf, &len, p, 100), SINEW_OK);
     assert_int_equal(len, 5);
     assert_memory_equal(buf, "hello", 5);
     sinew_ctx_dealloc(ctx, buf);
-    assert_int_equal(sinew_read_file(ctx, p, 4, &buf, &len), SINEW_ELIMIT);
+    assert_int_equal(sinew_read_file(ctx, &buf, &len, p, 4), SINEW_ELIMIT);
     /* abort leaves the old content */
     sinew_outfile *f;
     assert_int_equal(sinew_outfile_open(ctx, &f, p), SINEW_OK);
     fputs("partial", (FILE *)sinew_outfile_stream(f));
     sinew_outfile_abort(f);
-    assert_int_equal(sinew_read_file(ctx, p, 100, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(ctx, &buf, &len, p, 100), SINEW_OK);
     assert_int_equal(len, 5);
     sinew_ctx_dealloc(ctx, buf);
     /* a directory as output path is an error naming it */
@@ -117,10 +117,10 @@ static void test_core_stop_flag_and_temporaries(void **state)
     assert_int_equal(sinew_ctx_set_cancel(ctx, &flag), SINEW_OK);
     assert_true(sinew_ctx_cancelled(ctx));
     unsigned char d[32];
-    assert_int_equal(sinew_sha256_file(ctx, p, d, NULL), SINEW_EINTERRUPTED);
+    assert_int_equal(sinew_sha256_file(ctx, d, NULL, p), SINEW_EINTERRUPTED);
     assert_non_null(strstr(sinew_ctx_message(ctx), "in.bin: interrupted"));
     flag = 0;
-    assert_int_equal(sinew_sha256_file(ctx, p, d, NULL), SINEW_OK);
+    assert_int_equal(sinew_sha256_file(ctx, d, NULL, p), SINEW_OK);
     /* two outputs being written: both temporaries go, the finished file stays */
     sinew_outfile *f1, *f2;
     tu_path(q, sizeof q, dir, "out1.bin");
@@ -174,7 +174,7 @@ static void test_core_utf8_rules(void **state)
     char *out;
     size_t n;
     const char in[] = "{\"p\": \"caf\xE9 \xC3\xA9\x1B\"}";
-    assert_int_equal(sinew_json_utf8(ctx, in, strlen(in), &out, &n), SINEW_OK);
+    assert_int_equal(sinew_json_utf8(ctx, &out, &n, in, strlen(in)), SINEW_OK);
     /* the Latin-1 byte E9 becomes the escape; valid UTF-8 and other bytes stay */
     assert_string_equal(out, "{\"p\": \"caf\\u00e9 \xC3\xA9\x1B\"}");
     assert_int_equal(n, strlen(out));
@@ -202,7 +202,7 @@ static void test_core_text_fit(void **state)
     path[sizeof path - 1] = '\0';
     unsigned char *buf;
     size_t len;
-    assert_int_equal(sinew_read_file(ctx, path, 10, &buf, &len), SINEW_EIO);
+    assert_int_equal(sinew_read_file(ctx, &buf, &len, path, 10), SINEW_EIO);
     const char *m = sinew_ctx_message(ctx);
     assert_true(strlen(m) < SINEW_MESSAGE_MAX);
     assert_non_null(strstr(m, "cannot open: File name too long"));

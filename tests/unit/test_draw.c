@@ -167,7 +167,7 @@ static void test_draw_flow_pixels_and_max(void **state)
     set_uv(&f, 2, 0, NAN, 1);
     set_uv(&f, 3, 2, 0, -4);
     double m;
-    assert_int_equal(sinew_draw_max_magnitude(ctx, &f, &m), SINEW_OK);
+    assert_int_equal(sinew_draw_max_magnitude(ctx, &m, &f), SINEW_OK);
     assert_true(m == 6.0);
     sinew_image out;
     /* Fixed maximum 3: (3,0) at radius 1 is pure red, (6,0) out of range 0.75 red. */

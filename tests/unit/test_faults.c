@@ -184,7 +184,7 @@ static int write_now(sinew_ctx *ctx, const write_job *j)
         sinew_camera cam;
         sinew_camera_init(&cam, 525, 525, 319.5, 239.5, 640, 480);
         cam.k1 = 0.1;
-        return sinew_camera_save(ctx, &cam, j->path);
+        return sinew_camera_save(ctx, j->path, &cam);
     }
     case W_BYTES:
         return sinew_write_file(ctx, j->path, j->flow->data,
@@ -327,7 +327,7 @@ static int stage_op(sinew_ctx *ctx, void *ud)
                                  &s->in.depth, &s->in.depth, &s->cam,  "flow",     "mask",
                                  "conf",       "l0",         "l1",     "d0",       "d1"};
         sinew_matches m;
-        rc = sinew_matches_build(ctx, &mi, &p, &m);
+        rc = sinew_matches_build(ctx, &m, &mi, &p);
         if (rc == SINEW_OK)
             sinew_matches_free(ctx, &m);
         break;
@@ -369,19 +369,19 @@ static int stage_op(sinew_ctx *ctx, void *ud)
     case 13: {
         float u[6] = {0.1f, 0.5f, 0.2f, 0.9f, 0.3f, 0.3f}, e[6] = {1, 5, 2, 9, 3, 2};
         double curve[4], oracle[4], ause;
-        rc = sinew_sparsification(ctx, u, e, 6, 4, curve, oracle, &ause);
+        rc = sinew_sparsification(ctx, curve, oracle, &ause, u, e, 6, 4);
         break;
     }
     case 14: {
         sinew_depth_params p;
         sinew_depth_params_default(&p);
         p.kind = SINEW_DEPTH_RAY;
-        rc = sinew_depth_convert(ctx, &p, &s->cam, &s->in.depth, &tmp, "d", NULL);
+        rc = sinew_depth_convert(ctx, &tmp, NULL, &s->in.depth, &s->cam, &p, "d");
         break;
     }
     case 15: {
         double med;
-        rc = sinew_depth_median(ctx, &s->in.depth, &med, NULL);
+        rc = sinew_depth_median(ctx, &med, NULL, &s->in.depth);
         break;
     }
     case 16:

@@ -195,17 +195,17 @@ static void run_stages(sinew_ctx *ctx, const char *dir, int w, int h, int with_n
     sinew_depth_params_default(&dp);
     sinew_depth_stats ds;
     snprintf(what, sizeof what, "%s depth", tag);
-    must_ok(ctx, sinew_depth_convert(ctx, &dp, &cam, &raw, &s.d0, "d0", &ds), what);
+    must_ok(ctx, sinew_depth_convert(ctx, &s.d0, &ds, &raw, &cam, &dp, "d0"), what);
     assert_int_equal(ds.total, (size_t)w * h);
     assert_int_equal(ds.valid + ds.invalid_code + ds.out_of_range, ds.total);
     dp.kind = SINEW_DEPTH_RAY;
-    must_ok(ctx, sinew_depth_convert(ctx, &dp, &cam, &raw, &s.d1, "d1", &ds), what);
+    must_ok(ctx, sinew_depth_convert(ctx, &s.d1, &ds, &raw, &cam, &dp, "d1"), what);
     sinew_image_free(&raw);
     if (with_nasty) /* float depth with every nasty value */
         for (int i = 0; i < NNASTY && i < w * h; i++)
             sinew_image_row_f32(&s.d1, i / w)[i % w] = nasty[(i + seed + 3) % NNASTY];
     double med;
-    must_ok(ctx, sinew_depth_median(ctx, &s.d1, &med, NULL), what);
+    must_ok(ctx, sinew_depth_median(ctx, &med, NULL, &s.d1), what);
     assert_true(isnan(med) || isfinite(med));
     make_frame(ctx, &s.l0, w, h, 1, SINEW_U16);
     make_frame(ctx, &s.l1, w, h, 1, SINEW_U16);
@@ -229,7 +229,7 @@ static void run_stages(sinew_ctx *ctx, const char *dir, int w, int h, int with_n
             sinew_matches m;
             snprintf(what, sizeof what, "%s matches mode %d normals %d", tag, mode, normals);
             mi.mask = mode == 0 ? NULL : &s.mask; /* also unmasked, so nasty flow gets in */
-            must_ok(ctx, sinew_matches_build(ctx, &mi, &mp, &m), what);
+            must_ok(ctx, sinew_matches_build(ctx, &m, &mi, &mp), what);
             size_t sum = m.rows;
             for (int r = 0; r < SINEW_REJECT_COUNT; r++)
                 sum += m.rejected[r];
@@ -253,7 +253,7 @@ static void run_stages(sinew_ctx *ctx, const char *dir, int w, int h, int with_n
     sinew_match_params_default(&mp2);
     mi.mask = NULL;
     snprintf(what, sizeof what, "%s matches 2-D", tag);
-    must_ok(ctx, sinew_matches_build(ctx, &mi, &mp2, &m2), what);
+    must_ok(ctx, sinew_matches_build(ctx, &m2, &mi, &mp2), what);
     for (size_t r = 0; r < m2.rows * (size_t)m2.cols; r++)
         assert_true(isfinite(m2.data[r]));
     sinew_matches_free(ctx, &m2);
@@ -358,7 +358,7 @@ static void test_hostile_uniform_nasty_flow(void **state)
                     assert_true(sinew_image_row_u8(&mask, y)[x] & SINEW_MASK_UNKNOWN);
             }
         double mx;
-        must_ok(ctx, sinew_draw_max_magnitude(ctx, &fw, &mx), what);
+        must_ok(ctx, sinew_draw_max_magnitude(ctx, &mx, &fw), what);
         assert_true(!isnan(mx));
         if (!isfinite(nasty[i])) /* documented: 0 when no pixel is known */
             assert_true(mx == 0);
@@ -372,7 +372,7 @@ static void test_hostile_uniform_nasty_flow(void **state)
             assert_int_equal(fe.region[0].n_gt, 0);
         sinew_match_inputs mi = {.flow = &fw, .confidence = &conf};
         sinew_matches m;
-        must_ok(ctx, sinew_matches_build(ctx, &mi, NULL, &m), what);
+        must_ok(ctx, sinew_matches_build(ctx, &m, &mi, NULL), what);
         for (size_t r = 0; r < m.rows * (size_t)m.cols; r++)
             assert_true(isfinite(m.data[r]));
         sinew_matches_free(ctx, &m);
@@ -522,7 +522,7 @@ static void test_hostile_match_parameters(void **state)
         }
         char what[40];
         snprintf(what, sizeof what, "match parameter case %d", k);
-        must_fail(ctx, sinew_matches_build(ctx, &mi, &p, &m), what);
+        must_fail(ctx, sinew_matches_build(ctx, &m, &mi, &p), what);
     }
     /* huge but valid ones are fine */
     sinew_match_params p;
@@ -532,14 +532,14 @@ static void test_hostile_match_parameters(void **state)
     p.cell = 1 << 30;
     p.edge_radius = 16; /* documented limit 0..16 */
     sinew_matches all;
-    must_ok(ctx, sinew_matches_build(ctx, &mi, NULL, &all), "defaults");
-    must_ok(ctx, sinew_matches_build(ctx, &mi, &p, &m), "top_k SIZE_MAX");
+    must_ok(ctx, sinew_matches_build(ctx, &all, &mi, NULL), "defaults");
+    must_ok(ctx, sinew_matches_build(ctx, &m, &mi, &p), "top_k SIZE_MAX");
     assert_int_equal(m.rows, all.rows);
     sinew_matches_free(ctx, &m);
     sinew_matches_free(ctx, &all);
     p.sampling = SINEW_SAMPLE_STRIDE;
     p.stride = 1 << 30;
-    must_ok(ctx, sinew_matches_build(ctx, &mi, &p, &m), "stride 2^30");
+    must_ok(ctx, sinew_matches_build(ctx, &m, &mi, &p), "stride 2^30");
     assert_true(m.rows <= 1); /* only pixel (0, 0) is on the grid */
     sinew_matches_free(ctx, &m);
     sinew_image_free(&fw);
@@ -611,7 +611,7 @@ static void test_hostile_sparsification(void **state)
     double curve[4], oracle[4], ause;
     for (int i = 0; i < NNASTY; i++) {
         u[1] = nasty[i];
-        int rc = sinew_sparsification(f->ctx, u, e, 3, 4, curve, oracle, &ause);
+        int rc = sinew_sparsification(f->ctx, curve, oracle, &ause, u, e, 3, 4);
         if (isfinite(nasty[i])) {
             must_ok(f->ctx, rc, "finite uncertainty");
             assert_true(isfinite(ause));
@@ -621,18 +621,18 @@ static void test_hostile_sparsification(void **state)
         }
         u[1] = 0.2f;
         e[2] = nasty[i];
-        rc = sinew_sparsification(f->ctx, u, e, 3, 4, curve, oracle, &ause);
+        rc = sinew_sparsification(f->ctx, curve, oracle, &ause, u, e, 3, 4);
         if (!isfinite(nasty[i]))
             must_fail(f->ctx, rc, "non-finite error");
         else if (rc)
             must_fail(f->ctx, rc, "finite error");
         e[2] = 3;
     }
-    must_ok(f->ctx, sinew_sparsification(f->ctx, u, e, 1, 1, curve, oracle, &ause), "n = 1");
-    must_fail(f->ctx, sinew_sparsification(f->ctx, u, e, 0, 4, curve, oracle, &ause), "n = 0");
-    must_fail(f->ctx, sinew_sparsification(f->ctx, u, e, 3, 0, curve, oracle, &ause), "steps 0");
-    must_fail(f->ctx, sinew_sparsification(f->ctx, u, e, 3, -1, curve, oracle, &ause), "steps -1");
-    must_ok(f->ctx, sinew_sparsification(f->ctx, u, e, 3, 1000, NULL, NULL, &ause), "steps > n");
+    must_ok(f->ctx, sinew_sparsification(f->ctx, curve, oracle, &ause, u, e, 1, 1), "n = 1");
+    must_fail(f->ctx, sinew_sparsification(f->ctx, curve, oracle, &ause, u, e, 0, 4), "n = 0");
+    must_fail(f->ctx, sinew_sparsification(f->ctx, curve, oracle, &ause, u, e, 3, 0), "steps 0");
+    must_fail(f->ctx, sinew_sparsification(f->ctx, curve, oracle, &ause, u, e, 3, -1), "steps -1");
+    must_ok(f->ctx, sinew_sparsification(f->ctx, NULL, NULL, &ause, u, e, 3, 1000), "steps > n");
 }
 
 /* ---- depth and intrinsics ---- */
@@ -655,7 +655,7 @@ static void test_hostile_depth_scale_and_range(void **state)
         p.scale = bad[i];
         char what[60];
         snprintf(what, sizeof what, "depth scale %g", bad[i]);
-        int rc = sinew_depth_convert(ctx, &p, &cam, &raw, &z, "d.png", NULL);
+        int rc = sinew_depth_convert(ctx, &z, NULL, &raw, &cam, &p, "d.png");
         must_fail_naming(ctx, rc, what, "d.png");
         assert_null(z.data);
     }
@@ -681,13 +681,13 @@ static void test_hostile_depth_scale_and_range(void **state)
         }
         char what[60];
         snprintf(what, sizeof what, "depth params case %d", k);
-        must_fail(ctx, sinew_depth_convert(ctx, &p, &cam, &raw, &z, "d.png", NULL), what);
+        must_fail(ctx, sinew_depth_convert(ctx, &z, NULL, &raw, &cam, &p, "d.png"), what);
     }
     /* documented: codes 0 and 65535 are invalid (NaN), the rest scale by 1/1000 */
     sinew_depth_params p;
     sinew_depth_params_default(&p);
     sinew_depth_stats st;
-    must_ok(ctx, sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", &st), "depth codes");
+    must_ok(ctx, sinew_depth_convert(ctx, &z, &st, &raw, NULL, &p, "d.png"), "depth codes");
     assert_true(isnan(sinew_image_row_f32(&z, 0)[0]));
     assert_true(isnan(sinew_image_row_f32(&z, 0)[1]));
     assert_near(sinew_image_row_f32(&z, 1)[1], 65.534, 1e-5);
@@ -697,10 +697,10 @@ static void test_hostile_depth_scale_and_range(void **state)
     sinew_camera badcam = cam;
     badcam.fx = 0;
     p.kind = SINEW_DEPTH_RAY;
-    must_fail(ctx, sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), "ray, no camera");
-    must_fail(ctx, sinew_depth_convert(ctx, &p, &badcam, &raw, &z, "d.png", NULL), "ray, fx 0");
+    must_fail(ctx, sinew_depth_convert(ctx, &z, NULL, &raw, NULL, &p, "d.png"), "ray, no camera");
+    must_fail(ctx, sinew_depth_convert(ctx, &z, NULL, &raw, &badcam, &p, "d.png"), "ray, fx 0");
     badcam.fx = NAN;
-    must_fail(ctx, sinew_depth_convert(ctx, &p, &badcam, &raw, &z, "d.png", NULL), "ray, fx NaN");
+    must_fail(ctx, sinew_depth_convert(ctx, &z, NULL, &raw, &badcam, &p, "d.png"), "ray, fx NaN");
     sinew_image_free(&raw);
     /* float depth: NaN, Inf, negative, zero, denormal -> invalid or documented */
     sinew_image fz;
@@ -708,7 +708,7 @@ static void test_hostile_depth_scale_and_range(void **state)
     for (int i = 0; i < NNASTY; i++)
         sinew_image_row_f32(&fz, 0)[i] = nasty[i];
     p.kind = SINEW_DEPTH_Z;
-    must_ok(ctx, sinew_depth_convert(ctx, &p, NULL, &fz, &z, "d.pfm", &st), "float depth");
+    must_ok(ctx, sinew_depth_convert(ctx, &z, &st, &fz, NULL, &p, "d.pfm"), "float depth");
     for (int i = 0; i < NNASTY; i++) {
         float v = sinew_image_row_f32(&z, 0)[i];
         if (!(nasty[i] > 0) || !isfinite(nasty[i]))
@@ -720,7 +720,7 @@ static void test_hostile_depth_scale_and_range(void **state)
     p.kind = SINEW_DEPTH_DISPARITY;
     p.baseline = 0.1;
     sinew_camera_init(&cam, 500, 500, 6, 0, NNASTY, 1);
-    must_ok(ctx, sinew_depth_convert(ctx, &p, &cam, &fz, &z, "d.pfm", &st), "float disparity");
+    must_ok(ctx, sinew_depth_convert(ctx, &z, &st, &fz, &cam, &p, "d.pfm"), "float disparity");
     for (int i = 0; i < NNASTY; i++) {
         float v = sinew_image_row_f32(&z, 0)[i];
         assert_true(isnan(v) || (v > 0 && isfinite(v)));
@@ -731,7 +731,7 @@ static void test_hostile_depth_scale_and_range(void **state)
     sinew_image u8;
     make_frame(ctx, &u8, 2, 2, 1, SINEW_U8);
     sinew_depth_params_default(&p);
-    must_fail(ctx, sinew_depth_convert(ctx, &p, NULL, &u8, &z, "d8.png", NULL), "8-bit depth");
+    must_fail(ctx, sinew_depth_convert(ctx, &z, NULL, &u8, NULL, &p, "d8.png"), "8-bit depth");
     sinew_image_free(&u8);
 }
 
@@ -810,16 +810,16 @@ static void test_hostile_intrinsics(void **state)
     /* rescaling: a zero or negative target size, and an unknown calibration size */
     sinew_camera out;
     sinew_camera_init(&cam, 500, 500, 320, 240, 640, 480);
-    must_fail(ctx, sinew_camera_fit(ctx, &cam, 0, 0, &out, "K"), "fit to 0x0");
-    must_fail(ctx, sinew_camera_fit(ctx, &cam, -640, -480, &out, "K"), "fit to negative");
-    must_fail(ctx, sinew_camera_fit(ctx, &cam, 1, 1, &out, "K"), "fit 4:3 to 1:1");
-    must_ok(ctx, sinew_camera_fit(ctx, &cam, 4, 3, &out, "K"), "fit to 4x3");
+    must_fail(ctx, sinew_camera_fit(ctx, &out, &cam, 0, 0, "K"), "fit to 0x0");
+    must_fail(ctx, sinew_camera_fit(ctx, &out, &cam, -640, -480, "K"), "fit to negative");
+    must_fail(ctx, sinew_camera_fit(ctx, &out, &cam, 1, 1, "K"), "fit 4:3 to 1:1");
+    must_ok(ctx, sinew_camera_fit(ctx, &out, &cam, 4, 3, "K"), "fit to 4x3");
     sinew_camera_init(&cam, 500, 500, 320, 240, 0, 0);
-    must_ok(ctx, sinew_camera_fit(ctx, &cam, 1, 1, &out, "K"), "unknown size fits anything");
+    must_ok(ctx, sinew_camera_fit(ctx, &out, &cam, 1, 1, "K"), "unknown size fits anything");
     double px;
     long fails;
-    must_ok(ctx, sinew_camera_roundtrip_error(ctx, &out, 1, 1, 1, &px, &fails), "roundtrip 1x1");
-    must_fail(ctx, sinew_camera_roundtrip_error(ctx, &out, 1, 1, 0, &px, &fails), "step 0");
+    must_ok(ctx, sinew_camera_roundtrip_error(ctx, &px, &fails, &out, 1, 1, 1), "roundtrip 1x1");
+    must_fail(ctx, sinew_camera_roundtrip_error(ctx, &px, &fails, &out, 1, 1, 0), "step 0");
     /* projection and unprojection of hostile points */
     double X[3], u = 7, v = 7;
     for (int i = 0; i < NNASTY; i++) {
@@ -839,11 +839,11 @@ static void test_hostile_intrinsics(void **state)
     sinew_camera_init(&cam, 0, 500, 1, 1, 3, 3);
     sinew_match_inputs mi = {.flow = &fw, .depth0 = &d, .depth1 = &d, .camera = &cam};
     sinew_matches m;
-    must_fail(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "matches with fx 0");
+    must_fail(ctx, sinew_matches_build(ctx, &m, &mi, NULL), "matches with fx 0");
     cam.fx = NAN;
-    must_fail(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "matches with fx NaN");
+    must_fail(ctx, sinew_matches_build(ctx, &m, &mi, NULL), "matches with fx NaN");
     mi.camera = NULL;
-    must_fail(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "depth without camera");
+    must_fail(ctx, sinew_matches_build(ctx, &m, &mi, NULL), "depth without camera");
     sinew_image_free(&fw);
     sinew_image_free(&d);
 }
@@ -885,7 +885,7 @@ static void test_hostile_mismatched_sizes(void **state)
     /* matches */
     sinew_match_inputs mi = {.flow = &a, .mask = &m1};
     sinew_matches m;
-    must_fail(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "mask of another size");
+    must_fail(ctx, sinew_matches_build(ctx, &m, &mi, NULL), "mask of another size");
     /* metrics */
     sinew_flow_errors fe;
     must_fail(ctx, sinew_flow_errors_compute(ctx, &fe, &a, &b, NULL, NULL), "est 5x4 gt 4x5");
@@ -965,13 +965,13 @@ static void test_hostile_null_arguments(void **state)
     null_fails(ctx, sinew_check_run(ctx, NULL, &in, NULL), "check NULL output");
     sinew_matches m;
     sinew_match_inputs mi = {0};
-    null_fails(ctx, sinew_matches_build(ctx, &mi, NULL, &m), "matches without flow");
-    null_fails(ctx, sinew_matches_build(ctx, NULL, NULL, &m), "matches NULL inputs");
+    null_fails(ctx, sinew_matches_build(ctx, &m, &mi, NULL), "matches without flow");
+    null_fails(ctx, sinew_matches_build(ctx, &m, NULL, NULL), "matches NULL inputs");
     null_fails(ctx, sinew_draw_flow(ctx, &pic, NULL, 0, 0), "draw NULL flow");
     null_fails(ctx, sinew_draw_heatmap(ctx, &pic, NULL, 0, 0, NULL, 0), "heatmap NULL");
     sinew_flow_errors fe;
     null_fails(ctx, sinew_flow_errors_compute(ctx, &fe, &img, NULL, NULL, NULL), "metrics NULL gt");
-    null_fails(ctx, sinew_sparsification(ctx, NULL, NULL, 3, 2, NULL, NULL, NULL), "spars NULL");
+    null_fails(ctx, sinew_sparsification(ctx, NULL, NULL, NULL, NULL, NULL, 3, 2), "spars NULL");
     sinew_camera cam;
     null_fails(ctx, sinew_camera_parse(ctx, &cam, NULL, "K"), "camera parse NULL");
     null_fails(ctx, sinew_camera_load(ctx, &cam, NULL), "camera load NULL");

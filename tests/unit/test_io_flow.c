@@ -73,7 +73,7 @@ static void test_io_flow_flo_layout(void **state)
     assert_int_equal(sinew_flow_write(f->ctx, p, &a, SINEW_FLOW_FLO), SINEW_OK);
     unsigned char *buf;
     size_t len;
-    assert_int_equal(sinew_read_file(f->ctx, p, 1000, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(f->ctx, &buf, &len, p, 1000), SINEW_OK);
     /* Middlebury flow-code README (Baker et al., IJCV 2011): "PIEH", int32 w, h, then
      * (u, v) float32 pairs row-major, little-endian; unknown written as 1e10. */
     assert_int_equal(len, 12 + 3 * 2 * 8);
@@ -136,16 +136,16 @@ static void test_io_flow_extension_dispatch(void **state)
 {
     tu_fixture *f = *state;
     sinew_flow_format fmt;
-    assert_int_equal(sinew_flow_format_from_path(f->ctx, "a/b.c/x.FLO", &fmt), SINEW_OK);
+    assert_int_equal(sinew_flow_format_from_path(f->ctx, &fmt, "a/b.c/x.FLO"), SINEW_OK);
     assert_int_equal(fmt, SINEW_FLOW_FLO);
-    assert_int_equal(sinew_flow_format_from_path(f->ctx, "x.Png", &fmt), SINEW_OK);
+    assert_int_equal(sinew_flow_format_from_path(f->ctx, &fmt, "x.Png"), SINEW_OK);
     assert_int_equal(fmt, SINEW_FLOW_KITTI);
-    assert_int_equal(sinew_flow_format_from_path(f->ctx, "x.pfm", &fmt), SINEW_OK);
+    assert_int_equal(sinew_flow_format_from_path(f->ctx, &fmt, "x.pfm"), SINEW_OK);
     assert_int_equal(fmt, SINEW_FLOW_PFM);
-    assert_int_equal(sinew_flow_format_from_path(f->ctx, "x.npy", &fmt), SINEW_OK);
+    assert_int_equal(sinew_flow_format_from_path(f->ctx, &fmt, "x.npy"), SINEW_OK);
     assert_int_equal(fmt, SINEW_FLOW_NPY);
-    assert_int_equal(sinew_flow_format_from_path(f->ctx, "dir.flo/x", &fmt), SINEW_EUNSUPPORTED);
-    assert_int_equal(sinew_flow_format_from_path(f->ctx, "x.txt", &fmt), SINEW_EUNSUPPORTED);
+    assert_int_equal(sinew_flow_format_from_path(f->ctx, &fmt, "dir.flo/x"), SINEW_EUNSUPPORTED);
+    assert_int_equal(sinew_flow_format_from_path(f->ctx, &fmt, "x.txt"), SINEW_EUNSUPPORTED);
     assert_non_null(strstr(sinew_ctx_message(f->ctx), "x.txt"));
     sinew_image a;
     make_flow(f->ctx, &a, 2, 2);
@@ -245,7 +245,7 @@ static void test_io_flow_pfm_layout(void **state)
     assert_int_equal(sinew_flow_write(f->ctx, p, &a, SINEW_FLOW_AUTO), SINEW_OK);
     unsigned char *buf;
     size_t len;
-    assert_int_equal(sinew_read_file(f->ctx, p, 1000, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(f->ctx, &buf, &len, p, 1000), SINEW_OK);
     /* PFM: "PF", "w h", negative scale = little-endian, rows bottom to top, 3 channels. */
     const char *hdr = "PF\n1 2\n-1\n";
     size_t hl = strlen(hdr);
@@ -301,7 +301,7 @@ static int read_table_op(sinew_ctx *ctx, void *ud)
 {
     float *d;
     size_t r, c;
-    int rc = sinew_npy_read_table(ctx, ud, 0, &d, &r, &c);
+    int rc = sinew_npy_read_table(ctx, &d, &r, &c, ud, 0);
     sinew_ctx_dealloc(ctx, d);
     return rc;
 }
@@ -316,7 +316,7 @@ static void test_io_flow_npy_image_and_table(void **state)
     assert_int_equal(sinew_npy_write_image(f->ctx, p, &d, 0), SINEW_OK);
     unsigned char *buf;
     size_t len;
-    assert_int_equal(sinew_read_file(f->ctx, p, 1000, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(f->ctx, &buf, &len, p, 1000), SINEW_OK);
     /* NumPy format spec (NEP 1): magic, version 1.0, uint16 LE header length, dict
      * literal padded with spaces to a 64-byte boundary and ended by '\n'. */
     assert_memory_equal(buf, "\x93NUMPY\x01\x00", 8);
@@ -342,25 +342,25 @@ static void test_io_flow_npy_image_and_table(void **state)
     sinew_image_free(&b);
     float *td;
     size_t rows, cols;
-    assert_int_equal(sinew_npy_read_table(f->ctx, p, 2, &td, &rows, &cols), SINEW_OK);
+    assert_int_equal(sinew_npy_read_table(f->ctx, &td, &rows, &cols, p, 2), SINEW_OK);
     assert_true(rows == 3 && cols == 2 && td[5] == 6.0f);
     sinew_ctx_dealloc(f->ctx, td);
     /* the column count is checked from the header */
-    assert_int_equal(sinew_npy_read_table(f->ctx, p, 5, &td, &rows, &cols), SINEW_EFORMAT);
+    assert_int_equal(sinew_npy_read_table(f->ctx, &td, &rows, &cols, p, 5), SINEW_EFORMAT);
     assert_non_null(strstr(sinew_ctx_message(f->ctx), "table has 2 columns, expected 5"));
     assert_null(td);
     tu_fail_each_allocation(p, read_table_op, (void *)p);
     assert_int_equal(sinew_npy_write_table(f->ctx, p, NULL, 0, 7), SINEW_OK);
-    assert_int_equal(sinew_read_file(f->ctx, p, 1000, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(f->ctx, &buf, &len, p, 1000), SINEW_OK);
     assert_non_null(strstr((char *)buf + 10, "'shape': (0, 7), }"));
     sinew_ctx_dealloc(f->ctx, buf);
     /* an empty table reads as 0 rows (matches writes one when nothing is kept) */
-    assert_int_equal(sinew_npy_read_table(f->ctx, p, 0, &td, &rows, &cols), SINEW_OK);
+    assert_int_equal(sinew_npy_read_table(f->ctx, &td, &rows, &cols, p, 0), SINEW_OK);
     assert_true(rows == 0 && cols == 7 && td == NULL);
     /* an image is not a table */
     tu_write_npy(p, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 1, 2), }",
                  "\0\0\0\0\0\0\0\0", 8);
-    assert_int_equal(sinew_npy_read_table(f->ctx, p, 0, &td, &rows, &cols), SINEW_EFORMAT);
+    assert_int_equal(sinew_npy_read_table(f->ctx, &td, &rows, &cols, p, 0), SINEW_EFORMAT);
     /* float16 image round trip of values exactly representable in half */
     assert_int_equal(sinew_image_alloc(f->ctx, &d, 4, 1, 4, SINEW_F32), SINEW_OK);
     float *r = sinew_image_row_f32(&d, 0);

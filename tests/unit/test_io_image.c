@@ -211,7 +211,7 @@ static void test_io_image_malformed_png(void **state)
     sinew_image_free(&a);
     unsigned char *buf;
     size_t len;
-    assert_int_equal(sinew_read_file(f->ctx, p, 1 << 20, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(f->ctx, &buf, &len, p, 1 << 20), SINEW_OK);
     expect_image_error(f, "half.png", buf, len / 2, SINEW_EFORMAT, "truncated");
     expect_image_error(f, "noend.png", buf, len - 12, SINEW_EFORMAT, "truncated");
     buf[len - 20] ^= 0x55; /* inside the last IDAT (or its CRC) */
@@ -271,7 +271,7 @@ static void test_io_image_jpeg(void **state)
     write_jpeg(p, rgb, W, H, TJPF_RGB, TJSAMP_444);
     unsigned char *buf;
     size_t len;
-    assert_int_equal(sinew_read_file(f->ctx, p, 1 << 20, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(f->ctx, &buf, &len, p, 1 << 20), SINEW_OK);
     expect_image_error(f, "cut.jpg", buf, len * 2 / 3, SINEW_EFORMAT, "JPEG");
     expect_image_error(f, "head.jpg", buf, 40, SINEW_EFORMAT, "JPEG");
     sinew_ctx_dealloc(f->ctx, buf);
@@ -439,7 +439,7 @@ static void test_io_image_published_frames(void **state)
         assert_true(b.width == 512 && b.height == 384 && b.channels == 3 && b.type == SINEW_U8);
         unsigned char *buf;
         size_t len;
-        assert_int_equal(sinew_read_file(f->ctx, p, 1 << 21, &buf, &len), SINEW_OK);
+        assert_int_equal(sinew_read_file(f->ctx, &buf, &len, p, 1 << 21), SINEW_OK);
         size_t off = len - (size_t)512 * 384 * 3;
         for (int y = 0; y < 384; y++)
             assert_memory_equal(sinew_image_row(&b, y), buf + off + (size_t)y * 512 * 3, 512 * 3);

@@ -35,7 +35,7 @@ static void test_match_depth_codes_and_scale(void **state)
     p.near = 0.1;
     p.far = 10;
     sinew_depth_stats st;
-    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", &st), SINEW_OK);
+    assert_int_equal(sinew_depth_convert(ctx, &z, &st, &raw, NULL, &p, "d.png"), SINEW_OK);
     const float *z0 = sinew_image_row_f32(&z, 0), *z1 = sinew_image_row_f32(&z, 1);
     assert_near(z0[0], 1.0, 0);
     assert_near(z0[1], 2.0, 0);
@@ -47,7 +47,7 @@ static void test_match_depth_codes_and_scale(void **state)
     assert_int_equal(st.out_of_range, 3);
     double med;
     size_t n;
-    assert_int_equal(sinew_depth_median(ctx, &z, &med, &n), SINEW_OK);
+    assert_int_equal(sinew_depth_median(ctx, &med, &n, &z), SINEW_OK);
     assert_int_equal(n, 3);
     assert_near(med, 1.0, 0);
     sinew_image_free(&z);
@@ -55,25 +55,25 @@ static void test_match_depth_codes_and_scale(void **state)
     p.scale = 1000;
     p.near = 0;
     p.far = INFINITY;
-    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), SINEW_OK);
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, NULL, &p, "d.png"), SINEW_OK);
     assert_near(sinew_image_row_f32(&z, 0)[1], 10.0, 0);
     assert_near(sinew_image_row_f32(&z, 1)[3], 0.001, 1e-9);
     sinew_image_free(&z);
     /* Bad settings name the file. */
     p.scale = 0;
-    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), SINEW_EVALUE);
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, NULL, &p, "d.png"), SINEW_EVALUE);
     assert_non_null(strstr(sinew_ctx_message(ctx), "d.png"));
     p.scale = NAN;
-    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), SINEW_EVALUE);
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, NULL, &p, "d.png"), SINEW_EVALUE);
     sinew_depth_params_default(&p);
     p.near = 3;
     p.far = 2;
-    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.png", NULL), SINEW_EVALUE);
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, NULL, &p, "d.png"), SINEW_EVALUE);
     sinew_image_free(&raw);
     /* 8-bit depth is refused. */
     assert_int_equal(sinew_image_alloc(ctx, &raw, 4, 2, 1, SINEW_U8), SINEW_OK);
     sinew_depth_params_default(&p);
-    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d8.png", NULL),
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, NULL, &p, "d8.png"),
                      SINEW_EUNSUPPORTED);
     assert_non_null(strstr(sinew_ctx_message(ctx), "d8.png"));
     sinew_image_free(&raw);
@@ -98,25 +98,25 @@ static void test_match_depth_float_ray_disparity(void **state)
     sinew_depth_params p;
     sinew_depth_params_default(&p);
     sinew_depth_stats st;
-    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.npy", &st), SINEW_OK);
+    assert_int_equal(sinew_depth_convert(ctx, &z, &st, &raw, NULL, &p, "d.npy"), SINEW_OK);
     assert_int_equal(st.invalid_code, 4);
     assert_near(sinew_image_row_f32(&z, 0)[0], 2.0, 0);
     sinew_image_free(&z);
     /* Ray distance: pixel (10, 0) with fx = 10, cx = 0 has ray (1, 0, 1), length sqrt 2:
      * a ray distance of 2 is z = 2 / sqrt(2). */
     p.kind = SINEW_DEPTH_RAY;
-    assert_int_equal(sinew_depth_convert(ctx, &p, NULL, &raw, &z, "d.npy", NULL), SINEW_EINVAL);
-    assert_int_equal(sinew_depth_convert(ctx, &p, &cam, &raw, &z, "d.npy", NULL), SINEW_OK);
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, NULL, &p, "d.npy"), SINEW_EINVAL);
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, &cam, &p, "d.npy"), SINEW_OK);
     assert_near(sinew_image_row_f32(&z, 0)[10], 2.0 / sqrt(2.0), 1e-6);
     assert_near(sinew_image_row_f32(&z, 0)[0], 2.0, 0);
     sinew_image_free(&z);
     /* Disparity: z = fx * baseline / d; fx = 10, b = 0.1 m, d = 2 px -> 0.5 m. */
     p.kind = SINEW_DEPTH_DISPARITY;
-    assert_int_equal(sinew_depth_convert(ctx, &p, &cam, &raw, &z, "disp.pfm", NULL),
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, &cam, &p, "disp.pfm"),
                      SINEW_EVALUE); /* no baseline */
     assert_non_null(strstr(sinew_ctx_message(ctx), "disp.pfm"));
     p.baseline = 0.1;
-    assert_int_equal(sinew_depth_convert(ctx, &p, &cam, &raw, &z, "disp.pfm", NULL), SINEW_OK);
+    assert_int_equal(sinew_depth_convert(ctx, &z, NULL, &raw, &cam, &p, "disp.pfm"), SINEW_OK);
     assert_near(sinew_image_row_f32(&z, 0)[5], 0.5, 1e-7);
     assert_true(isnan(sinew_image_row_f32(&z, 0)[4])); /* zero disparity: invalid */
     sinew_image_free(&z);
@@ -172,7 +172,7 @@ static void scene_free(scene *s)
 
 static void build(scene *s, sinew_matches *m)
 {
-    int rc = sinew_matches_build(s->ctx, &s->in, &s->p, m);
+    int rc = sinew_matches_build(s->ctx, m, &s->in, &s->p);
     if (rc)
         fail_msg("build: %s", sinew_ctx_message(s->ctx));
     /* Every pixel is either kept or counted under exactly one reason. */
@@ -524,21 +524,21 @@ static void test_match_bad_inputs(void **state)
     assert_int_equal(sinew_image_alloc(s.ctx, &small, W - 1, H, 1, SINEW_F32), SINEW_OK);
     s.in.depth1 = &small;
     s.in.depth1_name = "d1.png";
-    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_ESIZE);
+    assert_int_equal(sinew_matches_build(s.ctx, &m, &s.in, &s.p), SINEW_ESIZE);
     assert_non_null(strstr(sinew_ctx_message(s.ctx), "d1.png"));
     assert_null(m.data);
     s.in.depth1 = NULL;
-    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_EINVAL);
+    assert_int_equal(sinew_matches_build(s.ctx, &m, &s.in, &s.p), SINEW_EINVAL);
     s.in.depth1 = &s.d1;
     s.in.confidence = &s.flow; /* 2 channels */
-    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_EUNSUPPORTED);
+    assert_int_equal(sinew_matches_build(s.ctx, &m, &s.in, &s.p), SINEW_EUNSUPPORTED);
     s.in.confidence = NULL;
     s.p.edge_rel = NAN;
-    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_EINVAL);
+    assert_int_equal(sinew_matches_build(s.ctx, &m, &s.in, &s.p), SINEW_EINVAL);
     sinew_match_params_default(&s.p);
     s.p.sampling = SINEW_SAMPLE_STRIDE;
     s.p.stride = 0;
-    assert_int_equal(sinew_matches_build(s.ctx, &s.in, &s.p, &m), SINEW_EINVAL);
+    assert_int_equal(sinew_matches_build(s.ctx, &m, &s.in, &s.p), SINEW_EINVAL);
     sinew_image_free(&small);
     scene_free(&s);
 }
@@ -559,7 +559,7 @@ static void test_match_build_alloc_failures(void **state)
         tu_failalloc fa = {n, 0, 0};
         sinew_ctx *ctx = tu_ctx_failing(&fa);
         sinew_matches m;
-        int rc = sinew_matches_build(ctx, &s.in, &s.p, &m);
+        int rc = sinew_matches_build(ctx, &m, &s.in, &s.p);
         assert_true(rc == SINEW_OK || rc == SINEW_ENOMEM);
         if (rc == SINEW_OK) {
             ok = 1;
@@ -604,10 +604,10 @@ static void test_match_save_loads_in_numpy(void **state)
     sinew_depth_params dp;
     sinew_depth_params_default(&dp);
     sinew_match_sources src = {"test", NULL, "k.json", &s.cam, &s.cam, &dp, {2.0, 2.0}};
-    assert_int_equal(sinew_matches_save(s.ctx, &m, &s.p, &s.in, &src, npy), SINEW_OK);
-    assert_int_equal(sinew_matches_save_ply(s.ctx, &m, ply, 1), SINEW_OK);
-    assert_int_equal(sinew_matches_save_ply(s.ctx, &m, plya, 0), SINEW_OK);
-    assert_int_equal(sinew_matches_save_csv(s.ctx, &m, csv), SINEW_OK);
+    assert_int_equal(sinew_matches_save(s.ctx, npy, &m, &s.p, &s.in, &src), SINEW_OK);
+    assert_int_equal(sinew_matches_save_ply(s.ctx, ply, &m, 1), SINEW_OK);
+    assert_int_equal(sinew_matches_save_ply(s.ctx, plya, &m, 0), SINEW_OK);
+    assert_int_equal(sinew_matches_save_csv(s.ctx, csv, &m), SINEW_OK);
     /* Plain numpy + json, no custom code: the sidecar's columns name the array's columns;
      * the CSV and both PLY encodings hold the same numbers. */
     snprintf(cmd, sizeof cmd,
@@ -651,10 +651,10 @@ static void test_match_save_loads_in_numpy(void **state)
     build(&s, &m2);
     char nope[600];
     tu_path(nope, sizeof nope, dir, "x.ply");
-    assert_int_equal(sinew_matches_save_ply(s.ctx, &m2, nope, 1), SINEW_EINVAL);
+    assert_int_equal(sinew_matches_save_ply(s.ctx, nope, &m2, 1), SINEW_EINVAL);
     assert_false(tu_file_exists(nope));
     tu_path(nope, sizeof nope, dir, "missing/x.npy");
-    assert_int_equal(sinew_matches_save(s.ctx, &m2, &s.p, &s.in, NULL, nope), SINEW_EIO);
+    assert_int_equal(sinew_matches_save(s.ctx, nope, &m2, &s.p, &s.in, NULL), SINEW_EIO);
     assert_non_null(strstr(sinew_ctx_message(s.ctx), "missing/x.json"));
     sinew_matches_free(s.ctx, &m2);
     sinew_matches_free(s.ctx, &m);
@@ -695,7 +695,7 @@ static void seven_pair_ex(sinew_ctx *ctx, int i, const sinew_image *flow_in,
         snprintf(rel, sizeof rel, SEVEN "frame-%06d.depth.png", 150 + i + k);
         assert_non_null(tu_data_file(p, sizeof p, rel));
         assert_int_equal(sinew_depth_read(ctx, &raw[k], p), SINEW_OK);
-        assert_int_equal(sinew_depth_convert(ctx, &dp, NULL, &raw[k], &z[k], p, NULL), SINEW_OK);
+        assert_int_equal(sinew_depth_convert(ctx, &z[k], NULL, &raw[k], NULL, &dp, p), SINEW_OK);
         snprintf(rel, sizeof rel, SEVEN "frame-%06d.pose.txt", 150 + i + k);
         assert_non_null(tu_data_file(p, sizeof p, rel));
         assert_int_equal(sinew_rigid_load(ctx, &pose[k], p), SINEW_OK);
@@ -704,7 +704,7 @@ static void seven_pair_ex(sinew_ctx *ctx, int i, const sinew_image *flow_in,
     sinew_camera cam;
     assert_non_null(tu_data_file(p, sizeof p, SEVEN "camera-intrinsics.txt"));
     assert_int_equal(sinew_camera_load(ctx, &cam, p), SINEW_OK);
-    assert_int_equal(sinew_camera_fit(ctx, &cam, 640, 480, &cam, p), SINEW_OK);
+    assert_int_equal(sinew_camera_fit(ctx, &cam, &cam, 640, 480, p), SINEW_OK);
     sinew_image gt;
     memset(&gt, 0, sizeof gt);
     if (!flow_in) {
@@ -737,7 +737,7 @@ static void seven_pair_ex(sinew_ctx *ctx, int i, const sinew_image *flow_in,
     sinew_match_params mp;
     sinew_match_params_default(&mp);
     sinew_matches m;
-    assert_int_equal(sinew_matches_build(ctx, &in, &mp, &m), SINEW_OK);
+    assert_int_equal(sinew_matches_build(ctx, &m, &in, &mp), SINEW_OK);
     assert_true(m.rows > 10000);
     double *r = malloc(m.rows * sizeof *r);
     for (size_t k = 0; k < m.rows; k++) {
@@ -753,7 +753,7 @@ static void seven_pair_ex(sinew_ctx *ctx, int i, const sinew_image *flow_in,
     free(r);
     sinew_rigid F;
     assert_int_equal(
-        sinew_rigid_fit(ctx, m.data + 5, m.data + 8, m.data + 4, m.rows, (size_t)m.cols, &F, NULL),
+        sinew_rigid_fit(ctx, &F, NULL, m.data + 5, m.data + 8, m.data + 4, m.rows, (size_t)m.cols),
         SINEW_OK);
     sinew_rigid_distance(&F, &T, &res->fit_dt, &res->fit_deg);
     sinew_matches_free(ctx, &m);
@@ -860,7 +860,7 @@ static void demo_errors(int noise, double *median, double *p90, size_t *rows)
         assert_int_equal(sinew_image_alloc(ctx, &lab[k], w, h, 1, SINEW_U8), SINEW_OK);
         assert_int_equal(sinew_synth_render(syn, k, NULL, &depth[k], &lab[k]), SINEW_OK);
         assert_int_equal(sinew_synth_depth_mm(syn, k, &depth[k], &mm[k]), SINEW_OK);
-        assert_int_equal(sinew_depth_convert(ctx, &dp, NULL, &mm[k], &z[k], "demo", NULL),
+        assert_int_equal(sinew_depth_convert(ctx, &z[k], NULL, &mm[k], NULL, &dp, "demo"),
                          SINEW_OK);
     }
     assert_int_equal(sinew_image_alloc(ctx, &flow, w, h, 2, SINEW_F32), SINEW_OK);
@@ -887,7 +887,7 @@ static void demo_errors(int noise, double *median, double *p90, size_t *rows)
     sinew_match_params mp;
     sinew_match_params_default(&mp);
     sinew_matches m;
-    assert_int_equal(sinew_matches_build(ctx, &in, &mp, &m), SINEW_OK);
+    assert_int_equal(sinew_matches_build(ctx, &m, &in, &mp), SINEW_OK);
     assert_true(m.rows > (size_t)(w * h / 2));
     double *e = malloc(m.rows * sizeof *e);
     for (size_t i = 0; i < m.rows; i++) {
@@ -938,22 +938,22 @@ static void test_match_sidecar_columns(void **state)
     tu_write_bytes(p, ok, strlen(ok));
     int idx[5];
     size_t n = 6;
-    assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_OK);
+    assert_int_equal(sinew_matches_read_columns(ctx, idx, &n, p), SINEW_OK);
     assert_int_equal(idx[0], 3);
     assert_int_equal(idx[1], 4);
     assert_int_equal(idx[2], 1);
     assert_int_equal(idx[3], 2);
     assert_int_equal(idx[4], 0);
     n = 5;
-    assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_EFORMAT);
+    assert_int_equal(sinew_matches_read_columns(ctx, idx, &n, p), SINEW_EFORMAT);
     assert_non_null(strstr(sinew_ctx_message(ctx), "names 6 columns but the table has 5"));
     n = 0; /* 0: take the sidecar's count */
-    assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_OK);
+    assert_int_equal(sinew_matches_read_columns(ctx, idx, &n, p), SINEW_OK);
     assert_int_equal(n, 6);
     const char *no_w = "{\"columns\": [\"u0\", \"v0\", \"u1\", \"v1\"]}";
     tu_write_bytes(p, no_w, strlen(no_w));
     n = 4;
-    assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_OK);
+    assert_int_equal(sinew_matches_read_columns(ctx, idx, &n, p), SINEW_OK);
     assert_int_equal(idx[4], -1);
     const char *bad[] = {"{\"columns\": [\"u0\", \"v0\", \"u1\", 3]}", "{\"cols\": []}",
                          "{\"columns\": [\"u0\", \"v0\", \"u1\", \"w\"]}", "[1,",
@@ -961,7 +961,7 @@ static void test_match_sidecar_columns(void **state)
     for (int k = 0; k < 5; k++) {
         tu_write_bytes(p, bad[k], strlen(bad[k]));
         n = k < 4 ? 4 : 0;
-        assert_int_equal(sinew_matches_read_columns(ctx, p, &n, idx), SINEW_EFORMAT);
+        assert_int_equal(sinew_matches_read_columns(ctx, idx, &n, p), SINEW_EFORMAT);
         assert_non_null(strstr(sinew_ctx_message(ctx), "m.json: "));
     }
     tu_rmtree(dir);

@@ -268,9 +268,9 @@ static void test_metrics_rejects_bad_arguments(void **state)
     assert_int_equal(sinew_flow_errors_compute(ctx, &e, &est, &gt, &gt, NULL), SINEW_EINVAL);
     float unc[2] = {0, 1}, err[2] = {1, NAN};
     double c[4];
-    assert_int_equal(sinew_sparsification(ctx, unc, err, 2, 4, c, NULL, NULL), SINEW_EVALUE);
-    assert_int_equal(sinew_sparsification(ctx, unc, err, 0, 4, c, NULL, NULL), SINEW_EINVAL);
-    assert_int_equal(sinew_sparsification(ctx, unc, err, 1, 0, c, NULL, NULL), SINEW_EINVAL);
+    assert_int_equal(sinew_sparsification(ctx, c, NULL, NULL, unc, err, 2, 4), SINEW_EVALUE);
+    assert_int_equal(sinew_sparsification(ctx, c, NULL, NULL, unc, err, 0, 4), SINEW_EINVAL);
+    assert_int_equal(sinew_sparsification(ctx, c, NULL, NULL, unc, err, 1, 0), SINEW_EINVAL);
     sinew_image_free(&est);
     sinew_image_free(&gt);
     sinew_image_free(&small);
@@ -338,7 +338,7 @@ static void test_metrics_sparsification_hand_case(void **state)
     sinew_ctx *ctx = sinew_ctx_new();
     const float err[4] = {1, 2, 3, 4}, unc[4] = {0.9f, 0.1f, 0.5f, 0.3f};
     double c[4], o[4], ause;
-    assert_int_equal(sinew_sparsification(ctx, unc, err, 4, 4, c, o, &ause), SINEW_OK);
+    assert_int_equal(sinew_sparsification(ctx, c, o, &ause, unc, err, 4, 4), SINEW_OK);
     const double ce[4] = {1, 1.2, 1.2, 0.8}, oe[4] = {1, 0.8, 0.6, 0.4};
     for (int k = 0; k < 4; k++) {
         assert_close(c[k], ce[k], 1e-12);
@@ -349,7 +349,7 @@ static void test_metrics_sparsification_hand_case(void **state)
      * curve = [1, 3/2.5, 3.5/2.5, 4/2.5] = [1, 1.2, 1.4, 1.6]; d = [0, .4, .8, 1.2];
      * AUSE = 0.25 * (0.2 + 0.6 + 1.0) = 0.45. */
     const float flat[4] = {0.5f, 0.5f, 0.5f, 0.5f};
-    assert_int_equal(sinew_sparsification(ctx, flat, err, 4, 4, c, NULL, &ause), SINEW_OK);
+    assert_int_equal(sinew_sparsification(ctx, c, NULL, &ause, flat, err, 4, 4), SINEW_OK);
     assert_close(c[3], 1.6, 1e-12);
     assert_close(ause, 0.45, 1e-12);
     /* steps not dividing n: n = 3, steps = 2 -> r = [0, floor(3/2) = 1];
@@ -357,13 +357,13 @@ static void test_metrics_sparsification_hand_case(void **state)
      * full mean 1 -> curve [1, 1.5]; oracle removes idx 0 -> 0 -> [1, 0];
      * AUSE = 0.5 * (0 + 1.5) / 2 = 0.375. */
     const float e3[3] = {3, 0, 0}, u3[3] = {0, 2, 1};
-    assert_int_equal(sinew_sparsification(ctx, u3, e3, 3, 2, c, o, &ause), SINEW_OK);
+    assert_int_equal(sinew_sparsification(ctx, c, o, &ause, u3, e3, 3, 2), SINEW_OK);
     assert_close(c[1], 1.5, 1e-12);
     assert_close(o[1], 0.0, 1e-12);
     assert_close(ause, 0.375, 1e-12);
     /* All errors zero: defined as 0 everywhere. */
     const float z[3] = {0, 0, 0};
-    assert_int_equal(sinew_sparsification(ctx, u3, z, 3, 2, c, o, &ause), SINEW_OK);
+    assert_int_equal(sinew_sparsification(ctx, c, o, &ause, u3, z, 3, 2), SINEW_OK);
     assert_close(c[0], 0.0, 0);
     assert_close(ause, 0.0, 0);
     sinew_ctx_free(ctx);
@@ -389,11 +389,11 @@ static void test_metrics_sparsification_properties(void **state)
         unc[i] = (float)(lcg(&seed) % 100000);
     }
     double c[STEPS], o[STEPS], ause;
-    assert_int_equal(sinew_sparsification(ctx, err, err, N, STEPS, c, o, &ause), SINEW_OK);
+    assert_int_equal(sinew_sparsification(ctx, c, o, &ause, err, err, N, STEPS), SINEW_OK);
     assert_true(ause == 0.0);
     for (int k = 1; k < STEPS; k++)
         assert_true(o[k] <= o[k - 1]);
-    assert_int_equal(sinew_sparsification(ctx, unc, err, N, STEPS, c, o, &ause), SINEW_OK);
+    assert_int_equal(sinew_sparsification(ctx, c, o, &ause, unc, err, N, STEPS), SINEW_OK);
     assert_true(ause > 0.05);
     assert_close(c[0], 1.0, 0);
     free(err);
@@ -472,7 +472,7 @@ static void test_metrics_allocation_failure(void **state)
         double ause;
         fa.calls = 0;
         fa.fail_at = k - 1; /* first or second allocation of the sparsification */
-        assert_int_equal(sinew_sparsification(ctx, u, r, 2, 10, NULL, NULL, &ause), SINEW_ENOMEM);
+        assert_int_equal(sinew_sparsification(ctx, NULL, NULL, &ause, u, r, 2, 10), SINEW_ENOMEM);
         assert_int_equal(fa.live, 1); /* only the context */
         sinew_ctx_free(ctx);
         assert_int_equal(fa.live, 0);

@@ -23,7 +23,7 @@ static void test_report_png_roundtrip(void **state)
                 sinew_image_row_u8(&img, y)[x] = (uint8_t)(x * 17 + y * 31);
         unsigned char *png = NULL;
         size_t len = 0;
-        assert_int_equal(sinew_png_encode(ctx, &img, &png, &len), SINEW_OK);
+        assert_int_equal(sinew_png_encode(ctx, &png, &len, &img), SINEW_OK);
         assert_true(len > 8 && !memcmp(png, "\x89PNG\r\n\x1a\n", 8));
         /* Reference decoder: libpng's simplified reader. */
         png_image im;
@@ -44,7 +44,7 @@ static void test_report_png_roundtrip(void **state)
     unsigned char *png;
     size_t len;
     assert_int_equal(sinew_image_alloc(ctx, &f, 2, 2, 1, SINEW_F32), SINEW_OK);
-    assert_int_equal(sinew_png_encode(ctx, &f, &png, &len), SINEW_EINVAL);
+    assert_int_equal(sinew_png_encode(ctx, &png, &len, &f), SINEW_EINVAL);
     sinew_image_free(&f);
     sinew_ctx_free(ctx);
 }
@@ -112,7 +112,7 @@ static void make_run(const char *dir)
             sinew_image_row_u8(&m, y)[x] = 1;
     unsigned char *png;
     size_t len;
-    assert_int_equal(sinew_png_encode(ctx, &m, &png, &len), SINEW_OK);
+    assert_int_equal(sinew_png_encode(ctx, &png, &len, &m), SINEW_OK);
     snprintf(p, sizeof p, "%s/pairs/000000-000001/mask.png", dir);
     tu_write_bytes(p, png, len);
     sinew_ctx_dealloc(ctx, png);
@@ -139,7 +139,7 @@ static void test_report_small_run(void **state)
     char out[512];
     tu_path(out, sizeof out, dir, "report.html");
     sinew_ctx *ctx = sinew_ctx_new();
-    assert_int_equal(sinew_report_write(ctx, dir, out, NULL), SINEW_OK);
+    assert_int_equal(sinew_report_write(ctx, out, dir, NULL), SINEW_OK);
     char *s = read_text(out);
     assert_non_null(s);
     assert_true(strstr(s, "<!DOCTYPE html>") == s);
@@ -170,7 +170,7 @@ static void test_report_small_run(void **state)
     const char *m2 = "{\"pairs\": [{\"pair\": \"000000-000001\", \"status\": \"done\", "
                      "\"stats\": {\"flow_max\": 7.25}}]}";
     tu_write_bytes(man, m2, strlen(m2));
-    assert_int_equal(sinew_report_write(ctx, dir, out, NULL), SINEW_OK);
+    assert_int_equal(sinew_report_write(ctx, out, dir, NULL), SINEW_OK);
     s = read_text(out);
     assert_non_null(strstr(s, "wheel radius 7.25 px"));
     free(s);
@@ -187,23 +187,23 @@ static void test_report_manifest_errors(void **state)
     tu_path(out, sizeof out, dir, "report.html");
     tu_path(man, sizeof man, dir, "manifest.json");
     sinew_ctx *ctx = sinew_ctx_new();
-    assert_int_not_equal(sinew_report_write(ctx, dir, out, NULL), SINEW_OK);
+    assert_int_not_equal(sinew_report_write(ctx, out, dir, NULL), SINEW_OK);
     assert_non_null(strstr(sinew_ctx_message(ctx), "manifest.json"));
     tu_write_bytes(man, "{\"pairs\": [", 11);
-    assert_int_equal(sinew_report_write(ctx, dir, out, NULL), SINEW_EFORMAT);
+    assert_int_equal(sinew_report_write(ctx, out, dir, NULL), SINEW_EFORMAT);
     assert_non_null(strstr(sinew_ctx_message(ctx), "manifest.json"));
     tu_write_bytes(man, "[1, 2]", 6);
-    assert_int_equal(sinew_report_write(ctx, dir, out, NULL), SINEW_EFORMAT);
+    assert_int_equal(sinew_report_write(ctx, out, dir, NULL), SINEW_EFORMAT);
     assert_false(tu_file_exists(out));
     /* Tolerated: pairs without names, hostile names, no folders at all. */
     const char *odd = "{\"pairs\": [{}, {\"pair\": \"../../etc\"}, {\"pair\": 5, \"stats\": 3}]}";
     tu_write_bytes(man, odd, strlen(odd));
-    assert_int_equal(sinew_report_write(ctx, dir, out, NULL), SINEW_OK);
+    assert_int_equal(sinew_report_write(ctx, out, dir, NULL), SINEW_OK);
     assert_true(tu_file_exists(out));
     sinew_report_options o;
     sinew_report_options_default(&o);
     o.thumb_width = 8;
-    assert_int_equal(sinew_report_write(ctx, dir, out, &o), SINEW_EINVAL);
+    assert_int_equal(sinew_report_write(ctx, out, dir, &o), SINEW_EINVAL);
     sinew_ctx_free(ctx);
     tu_rmtree(dir);
     free(dir);
@@ -225,7 +225,7 @@ static void test_report_alloc_failure_is_clean(void **state)
         assert_non_null(ctx);
         long base = fa.calls;
         fa.fail_at = base + n;
-        int st = sinew_report_write(ctx, dir, out, NULL);
+        int st = sinew_report_write(ctx, out, dir, NULL);
         int reached = fa.calls >= base + n;
         if (st != SINEW_OK)
             assert_false(tu_file_exists(out));

@@ -54,7 +54,7 @@ static void test_rigid_fit_recovers_motion(void **state)
     rows[7 * 10 + 4] += 5;
     sinew_rigid F;
     double rms, dt, deg;
-    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, rows, N, 7, &F, &rms), SINEW_OK);
+    assert_int_equal(sinew_rigid_fit(ctx, &F, &rms, rows + 1, rows + 4, rows, N, 7), SINEW_OK);
     sinew_rigid_distance(&F, &T, &dt, &deg);
     assert_true(dt < 1e-6);
     assert_true(deg < 1e-4);
@@ -62,7 +62,7 @@ static void test_rigid_fit_recovers_motion(void **state)
     /* A mirror image is not a rotation: the fit stays proper (det R = +1). */
     for (int i = 0; i < N; i++)
         rows[i * 7 + 4] = -rows[i * 7 + 1];
-    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, rows, N, 7, &F, NULL), SINEW_OK);
+    assert_int_equal(sinew_rigid_fit(ctx, &F, NULL, rows + 1, rows + 4, rows, N, 7), SINEW_OK);
     double det = F.R[0] * (F.R[4] * F.R[8] - F.R[5] * F.R[7]) -
                  F.R[1] * (F.R[3] * F.R[8] - F.R[5] * F.R[6]) +
                  F.R[2] * (F.R[3] * F.R[7] - F.R[4] * F.R[6]);
@@ -71,10 +71,10 @@ static void test_rigid_fit_recovers_motion(void **state)
     for (int i = 0; i < N; i++)
         for (int k = 0; k < 3; k++)
             rows[i * 7 + 1 + k] = rows[i * 7 + 4 + k] = (float)(i * 0.01);
-    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, NULL, N, 7, &F, NULL), SINEW_EVALUE);
-    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, NULL, 2, 7, &F, NULL), SINEW_EVALUE);
+    assert_int_equal(sinew_rigid_fit(ctx, &F, NULL, rows + 1, rows + 4, NULL, N, 7), SINEW_EVALUE);
+    assert_int_equal(sinew_rigid_fit(ctx, &F, NULL, rows + 1, rows + 4, NULL, 2, 7), SINEW_EVALUE);
     rows[0] = -1;
-    assert_int_equal(sinew_rigid_fit(ctx, rows + 1, rows + 4, rows, N, 7, &F, NULL), SINEW_EVALUE);
+    assert_int_equal(sinew_rigid_fit(ctx, &F, NULL, rows + 1, rows + 4, rows, N, 7), SINEW_EVALUE);
     free(rows);
     /* Composition, inverse and relative pose. */
     sinew_rigid I, Ti, P0, P1, rel;

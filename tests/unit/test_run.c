@@ -124,12 +124,12 @@ static void test_run_sha256_file_matches_memory(void **state)
     hex_of(buf, n, h1);
     unsigned char d[32];
     uint64_t bytes = 0;
-    assert_int_equal(sinew_sha256_file(ctx, p, d, &bytes), SINEW_OK);
+    assert_int_equal(sinew_sha256_file(ctx, d, &bytes, p), SINEW_OK);
     sinew_sha256_hex(d, h2);
     assert_string_equal(h1, h2);
     assert_int_equal(bytes, n);
     tu_path(p, sizeof p, dir, "missing.bin");
-    assert_int_equal(sinew_sha256_file(ctx, p, d, NULL), SINEW_EIO);
+    assert_int_equal(sinew_sha256_file(ctx, d, NULL, p), SINEW_EIO);
     assert_non_null(strstr(sinew_ctx_message(ctx), "missing.bin"));
     free(buf);
     tu_rmtree(dir);
@@ -140,7 +140,7 @@ static void test_run_sha256_file_matches_memory(void **state)
 static size_t expand(sinew_ctx *ctx, sinew_schedule s, size_t n, sinew_pair **p)
 {
     size_t np = 0;
-    assert_int_equal(sinew_schedule_pairs(ctx, &s, n, p, &np), SINEW_OK);
+    assert_int_equal(sinew_schedule_pairs(ctx, p, &np, &s, n), SINEW_OK);
     return np;
 }
 
@@ -179,7 +179,7 @@ static void test_run_schedule_kinds_and_names(void **state)
     sinew_ctx_dealloc(ctx, p);
     s.every = 0;
     size_t np;
-    assert_int_equal(sinew_schedule_pairs(ctx, &s, 7, &p, &np), SINEW_ECONFIG);
+    assert_int_equal(sinew_schedule_pairs(ctx, &p, &np, &s, 7), SINEW_ECONFIG);
 
     const sinew_pair list[] = {{4, 1}, {0, 2}};
     s = (sinew_schedule){SINEW_SCHEDULE_LIST, 0, 0, 0, list, 2};
@@ -189,18 +189,18 @@ static void test_run_schedule_kinds_and_names(void **state)
     const sinew_pair dup[] = {{0, 1}, {2, 3}, {0, 1}};
     s.list = dup;
     s.list_len = 3;
-    assert_int_equal(sinew_schedule_pairs(ctx, &s, 5, &p, &np), SINEW_ECONFIG);
+    assert_int_equal(sinew_schedule_pairs(ctx, &p, &np, &s, 5), SINEW_ECONFIG);
     assert_non_null(strstr(sinew_ctx_message(ctx), "listed twice"));
     const sinew_pair bad[] = {{0, 5}};
     s.list = bad;
     s.list_len = 1;
-    assert_int_equal(sinew_schedule_pairs(ctx, &s, 5, &p, &np), SINEW_ECONFIG);
+    assert_int_equal(sinew_schedule_pairs(ctx, &p, &np, &s, 5), SINEW_ECONFIG);
     s = (sinew_schedule){SINEW_SCHEDULE_CONSECUTIVE, 0, 0, 0, NULL, 0};
-    assert_int_equal(sinew_schedule_pairs(ctx, &s, SINEW_RUN_MAX_FRAMES + 1, &p, &np),
+    assert_int_equal(sinew_schedule_pairs(ctx, &p, &np, &s, SINEW_RUN_MAX_FRAMES + 1),
                      SINEW_ELIMIT);
     /* keyframe windows can multiply pairs: refused before allocation */
     s = (sinew_schedule){SINEW_SCHEDULE_KEYFRAME, 0, 1, 100000, NULL, 0};
-    assert_int_equal(sinew_schedule_pairs(ctx, &s, 500000, &p, &np), SINEW_ELIMIT);
+    assert_int_equal(sinew_schedule_pairs(ctx, &p, &np, &s, 500000), SINEW_ELIMIT);
 
     char name[SINEW_PAIR_NAME_MAX];
     assert_string_equal(sinew_pair_name(name, (sinew_pair){12, 13}), "000012-000013");
@@ -233,7 +233,7 @@ static void test_run_associate_greedy_within_tolerance(void **state)
     const double tb[] = {100.004, 100.030, 100.045, 100.104, 100.160};
     int32_t m[5];
     size_t nm;
-    assert_int_equal(sinew_associate(ctx, ta, 5, tb, 5, 0.02, 0.0, m, &nm), SINEW_OK);
+    assert_int_equal(sinew_associate(ctx, m, &nm, ta, 5, tb, 5, 0.02, 0.0), SINEW_OK);
     /* 100.000-100.004 (4 ms), 100.033-100.030 (3 ms); 100.066 -> 100.045 is 21 ms: none;
      * 100.100-100.104 (4 ms); 100.133 -> 100.160 is 27 ms: none. 100.045 is unused:
      * its nearest colour stamp 100.033 already took the closer 100.030. */
@@ -247,7 +247,7 @@ static void test_run_associate_greedy_within_tolerance(void **state)
      * a=0's nearest (10 ms); a=0 then takes b=1 (15 ms < 20 ms) */
     const double ta2[] = {10.000, 10.009};
     const double tb2[] = {10.010, 10.015};
-    assert_int_equal(sinew_associate(ctx, ta2, 2, tb2, 2, 0.02, 0.0, m, &nm), SINEW_OK);
+    assert_int_equal(sinew_associate(ctx, m, &nm, ta2, 2, tb2, 2, 0.02, 0.0), SINEW_OK);
     assert_int_equal(nm, 2);
     assert_int_equal(m[1], 0);
     assert_int_equal(m[0], 1);
@@ -262,13 +262,13 @@ static void test_run_associate_offset_and_errors(void **state)
     const double tb[] = {0.5, 1.5};
     int32_t m[2];
     size_t nm;
-    assert_int_equal(sinew_associate(ctx, ta, 2, tb, 2, 0.02, 0.0, m, &nm), SINEW_OK);
+    assert_int_equal(sinew_associate(ctx, m, &nm, ta, 2, tb, 2, 0.02, 0.0), SINEW_OK);
     assert_int_equal(nm, 0);
-    assert_int_equal(sinew_associate(ctx, ta, 2, tb, 2, 0.02, 0.5, m, &nm), SINEW_OK);
+    assert_int_equal(sinew_associate(ctx, m, &nm, ta, 2, tb, 2, 0.02, 0.5), SINEW_OK);
     assert_int_equal(nm, 2);
     assert_int_equal(m[0], 0);
     assert_int_equal(m[1], 1);
-    assert_int_equal(sinew_associate(ctx, ta, 2, tb, 2, 0.0, 0.0, m, &nm), SINEW_ECONFIG);
+    assert_int_equal(sinew_associate(ctx, m, &nm, ta, 2, tb, 2, 0.0, 0.0), SINEW_ECONFIG);
     sinew_ctx_free(ctx);
 }
 
@@ -284,18 +284,18 @@ static void test_run_stamp_list_read(void **state)
                       "1305031102.211214 rgb/1305031102.211214.png\r\n";
     tu_write_bytes(p, txt, strlen(txt));
     sinew_stamp_list l;
-    assert_int_equal(sinew_stamp_list_read(ctx, p, &l), SINEW_OK);
+    assert_int_equal(sinew_stamp_list_read(ctx, &l, p), SINEW_OK);
     assert_int_equal(l.n, 2);
     assert_true(l.t[1] > 1305031102.2112 && l.t[1] < 1305031102.2113);
     assert_string_equal(l.name[1], "rgb/1305031102.211214.png");
     sinew_stamp_list_free(ctx, &l);
     const char *bad = "1.0 a.png extra\n";
     tu_write_bytes(p, bad, strlen(bad));
-    assert_int_equal(sinew_stamp_list_read(ctx, p, &l), SINEW_EFORMAT);
+    assert_int_equal(sinew_stamp_list_read(ctx, &l, p), SINEW_EFORMAT);
     assert_non_null(strstr(sinew_ctx_message(ctx), "line 1"));
     const char *bad2 = "x a.png\n";
     tu_write_bytes(p, bad2, strlen(bad2));
-    assert_int_equal(sinew_stamp_list_read(ctx, p, &l), SINEW_EFORMAT);
+    assert_int_equal(sinew_stamp_list_read(ctx, &l, p), SINEW_EFORMAT);
     tu_rmtree(dir);
     free(dir);
     sinew_ctx_free(ctx);
@@ -323,7 +323,7 @@ static void expect_one_warning(sinew_ctx *ctx, const char *dir, size_t f, const 
                                const char *warning)
 {
     sinew_run_source src;
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_OK);
+    assert_int_equal(sinew_run_source_from_folder(ctx, &src, dir, 0.02, 0), SINEW_OK);
     assert_int_equal(src.nframes, 3);
     assert_non_null(strstr(src.frames[f].depth, depth));
     assert_int_equal(src.nwarnings, 1);
@@ -338,14 +338,14 @@ static void test_run_source_folder_layouts(void **state)
     char *dir = tu_tmpdir();
     char p[700];
     sinew_run_source src;
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_ECONFIG);
+    assert_int_equal(sinew_run_source_from_folder(ctx, &src, dir, 0.02, 0), SINEW_ECONFIG);
     assert_non_null(strstr(sinew_ctx_message(ctx), "color/"));
     /* plain layout: color/ sorted by name, depth/ matched by stem */
     const char *names[] = {"b.png", "a.png", "c.PNG"};
     layout_make(dir, names, names, 3);
     snprintf(p, sizeof p, "%s/color/notes.txt", dir);
     tu_write_bytes(p, "x", 1);
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_OK);
+    assert_int_equal(sinew_run_source_from_folder(ctx, &src, dir, 0.02, 0), SINEW_OK);
     assert_int_equal(src.nframes, 3);
     assert_non_null(strstr(src.frames[0].color, "color/a.png"));
     assert_non_null(strstr(src.frames[2].depth, "depth/c.PNG"));
@@ -359,11 +359,11 @@ static void test_run_source_folder_layouts(void **state)
     /* a colour image without a depth map fails, naming it; the flag leaves it out */
     snprintf(p, sizeof p, "%s/color/b2.png", dir);
     tu_write_bytes(p, "x", 1);
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_ECONFIG);
+    assert_int_equal(sinew_run_source_from_folder(ctx, &src, dir, 0.02, 0), SINEW_ECONFIG);
     assert_non_null(strstr(sinew_ctx_message(ctx), "no depth map for "));
     assert_non_null(strstr(sinew_ctx_message(ctx), "color/b2.png"));
     assert_int_equal(
-        sinew_run_source_from_folder(ctx, dir, 0.02, SINEW_RUN_SOURCE_DROP_UNMATCHED, &src),
+        sinew_run_source_from_folder(ctx, &src, dir, 0.02, SINEW_RUN_SOURCE_DROP_UNMATCHED),
         SINEW_OK);
     assert_int_equal(src.nframes, 3);
     assert_int_equal(src.dropped, 1);
@@ -375,7 +375,7 @@ static void test_run_source_folder_layouts(void **state)
     tu_write_bytes(p, "x", 1);
     snprintf(p, sizeof p, "%s/depth/b2.npy", dir);
     tu_write_bytes(p, "x", 1);
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_ECONFIG);
+    assert_int_equal(sinew_run_source_from_folder(ctx, &src, dir, 0.02, 0), SINEW_ECONFIG);
     assert_non_null(strstr(sinew_ctx_message(ctx), "b2.npy and b2.png are the same frame"));
     tu_rmtree(dir);
     free(dir);
@@ -399,7 +399,7 @@ static void test_run_source_folder_layouts(void **state)
     tu_write_bytes(p, "x", 1);
     snprintf(p, sizeof p, "%s/depth/frame-8.depth.png", dir);
     tu_write_bytes(p, "x", 1);
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_OK);
+    assert_int_equal(sinew_run_source_from_folder(ctx, &src, dir, 0.02, 0), SINEW_OK);
     assert_int_equal(src.nframes, 5);
     assert_non_null(strstr(src.warnings[src.nwarnings - 1], "has a smaller number"));
     sinew_run_source_free(ctx, &src);
@@ -412,7 +412,7 @@ static void test_run_source_folder_layouts(void **state)
     tu_write_bytes(p, dep, strlen(dep));
     snprintf(p, sizeof p, "%s/intrinsics.json", dir);
     tu_write_bytes(p, "{}", 2);
-    assert_int_equal(sinew_run_source_from_folder(ctx, dir, 0.02, 0, &src), SINEW_OK);
+    assert_int_equal(sinew_run_source_from_folder(ctx, &src, dir, 0.02, 0), SINEW_OK);
     assert_int_equal(src.nframes, 2);
     assert_int_equal(src.dropped, 1); /* 3.000 vs 2.900: 100 ms */
     assert_int_equal(src.nwarnings, 1);
@@ -431,7 +431,7 @@ static void test_run_source_folder_layouts(void **state)
 static int source_from_sequence_op(sinew_ctx *ctx, void *ud)
 {
     sinew_run_source src;
-    int rc = sinew_run_source_from_sequence(ctx, ud, "seq.json", &src);
+    int rc = sinew_run_source_from_sequence(ctx, &src, ud, "seq.json");
     if (!rc)
         sinew_run_source_free(ctx, &src);
     return rc;
@@ -463,7 +463,7 @@ static void test_run_sequence_run_settings_and_patterns(void **state)
     assert_int_equal(seq->run.match_stride, 0);
     /* the engine's frame list: paths resolved against the file's folder */
     sinew_run_source src;
-    assert_int_equal(sinew_run_source_from_sequence(ctx, seq, "dir/seq.json", &src), SINEW_OK);
+    assert_int_equal(sinew_run_source_from_sequence(ctx, &src, seq, "dir/seq.json"), SINEW_OK);
     assert_int_equal(src.nframes, 3);
     assert_string_equal(src.frames[0].color, "dir/rgb/img_0008.png");
     assert_string_equal(src.frames[2].depth, "dir/d/12.png");
@@ -496,7 +496,7 @@ static int parse_list_op(sinew_ctx *ctx, void *ud)
 {
     sinew_schedule s;
     sinew_pair *list;
-    int rc = sinew_schedule_parse(ctx, ud, &s, &list);
+    int rc = sinew_schedule_parse(ctx, &s, &list, ud);
     sinew_ctx_dealloc(ctx, list);
     return rc;
 }
@@ -507,13 +507,13 @@ static void test_run_schedule_parse(void **state)
     sinew_ctx *ctx = sinew_ctx_new();
     sinew_schedule s;
     sinew_pair *list = NULL;
-    assert_int_equal(sinew_schedule_parse(ctx, "consecutive", &s, &list), SINEW_OK);
+    assert_int_equal(sinew_schedule_parse(ctx, &s, &list, "consecutive"), SINEW_OK);
     assert_int_equal(s.kind, SINEW_SCHEDULE_CONSECUTIVE);
     assert_null(list);
-    assert_int_equal(sinew_schedule_parse(ctx, "gap:3", &s, &list), SINEW_OK);
+    assert_int_equal(sinew_schedule_parse(ctx, &s, &list, "gap:3"), SINEW_OK);
     assert_int_equal(s.kind, SINEW_SCHEDULE_GAP);
     assert_int_equal(s.gap, 3);
-    assert_int_equal(sinew_schedule_parse(ctx, "keyframe:5:2", &s, &list), SINEW_OK);
+    assert_int_equal(sinew_schedule_parse(ctx, &s, &list, "keyframe:5:2"), SINEW_OK);
     assert_int_equal(s.kind, SINEW_SCHEDULE_KEYFRAME);
     assert_int_equal(s.every, 5);
     assert_int_equal(s.window, 2);
@@ -523,7 +523,7 @@ static void test_run_schedule_parse(void **state)
         "keyframe:3", "keyframe::2", "keyframe:3:", "keyframe:3:0", "keyframe:1:2:3", "Consecutive",
         "list",       "every:2"};
     for (size_t k = 0; k < sizeof bad / sizeof bad[0]; k++)
-        assert_int_equal(sinew_schedule_parse(ctx, bad[k], &s, &list), SINEW_EINVAL);
+        assert_int_equal(sinew_schedule_parse(ctx, &s, &list, bad[k]), SINEW_EINVAL);
 
     char *dir = tu_tmpdir();
     char p[600], arg[700];
@@ -531,7 +531,7 @@ static void test_run_schedule_parse(void **state)
     const char *txt = "# pairs\n0 2\n\n  3\t1\r\n# end\n5 4";
     tu_write_bytes(p, txt, strlen(txt));
     snprintf(arg, sizeof arg, "list:%s", p);
-    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_OK);
+    assert_int_equal(sinew_schedule_parse(ctx, &s, &list, arg), SINEW_OK);
     assert_int_equal(s.kind, SINEW_SCHEDULE_LIST);
     assert_int_equal(s.list_len, 3);
     assert_ptr_equal(s.list, list);
@@ -544,23 +544,23 @@ static void test_run_schedule_parse(void **state)
     /* the line number counts blank lines too */
     const char *bad_txt = "0 1\n\n# x\n2 3 4\n";
     tu_write_bytes(p, bad_txt, strlen(bad_txt));
-    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_EFORMAT);
+    assert_int_equal(sinew_schedule_parse(ctx, &s, &list, arg), SINEW_EFORMAT);
     assert_null(list);
     char want[800];
     snprintf(want, sizeof want, "%s: line 4: expected 'I J' (frame numbers)", p);
     assert_string_equal(sinew_ctx_message(ctx), want);
     tu_write_bytes(p, "1 -2\n", 5);
-    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_EFORMAT);
+    assert_int_equal(sinew_schedule_parse(ctx, &s, &list, arg), SINEW_EFORMAT);
     tu_write_bytes(p, "1 1000000\n", 10);
-    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_EFORMAT);
+    assert_int_equal(sinew_schedule_parse(ctx, &s, &list, arg), SINEW_EFORMAT);
     /* an empty list is refused: the run would succeed having done nothing (issue 21) */
     tu_write_bytes(p, "# none\n", 7);
-    assert_int_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_ECONFIG);
+    assert_int_equal(sinew_schedule_parse(ctx, &s, &list, arg), SINEW_ECONFIG);
     assert_non_null(strstr(sinew_ctx_message(ctx), "the schedule is empty"));
     assert_null(list);
     tu_path(p, sizeof p, dir, "missing.txt");
     snprintf(arg, sizeof arg, "list:%s", p);
-    assert_int_not_equal(sinew_schedule_parse(ctx, arg, &s, &list), SINEW_OK);
+    assert_int_not_equal(sinew_schedule_parse(ctx, &s, &list, arg), SINEW_OK);
     assert_non_null(strstr(sinew_ctx_message(ctx), "missing.txt"));
     tu_rmtree(dir);
     free(dir);
@@ -607,7 +607,7 @@ static void test_run_sequence_settings_apply_under_given_ones(void **state)
     /* the schedule, and a sequence without one leaves the caller's */
     sinew_schedule s = {SINEW_SCHEDULE_GAP, 2, 0, 0, NULL, 0};
     sinew_pair *list = NULL;
-    assert_int_equal(sinew_run_schedule_from_sequence(ctx, seq, &s, &list), SINEW_OK);
+    assert_int_equal(sinew_run_schedule_from_sequence(ctx, &s, &list, seq), SINEW_OK);
     assert_int_equal(s.kind, SINEW_SCHEDULE_LIST);
     assert_int_equal(s.list_len, 2);
     assert_int_equal(list[1].i, 3);
@@ -621,7 +621,7 @@ static void test_run_sequence_settings_apply_under_given_ones(void **state)
     char *owned = seq->run.flow_format, tiff[] = "tiff";
     seq->run.flow_format = tiff;
     s = (sinew_schedule){SINEW_SCHEDULE_GAP, 2, 0, 0, NULL, 0};
-    assert_int_equal(sinew_run_schedule_from_sequence(ctx, seq, &s, &list), SINEW_OK);
+    assert_int_equal(sinew_run_schedule_from_sequence(ctx, &s, &list, seq), SINEW_OK);
     assert_int_equal(s.kind, SINEW_SCHEDULE_GAP);
     assert_null(list);
     sinew_run_pipeline_params_default(&pp);
@@ -644,7 +644,7 @@ static void test_run_pipeline_options_text(void **state)
     sinew_run_pipeline_params p;
     sinew_run_pipeline_params_default(&p);
     char buf[512];
-    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_OK);
+    assert_int_equal(sinew_run_pipeline_options(ctx, buf, sizeof buf, &p), SINEW_OK);
     assert_string_equal(buf, "{\"flow_preset\":\"balanced\",\"flow_format\":\"flo\","
                              "\"check\":\"default\",\"matches\":true,\"match_stride\":4,"
                              "\"depth_scale\":1000,\"depth_kind\":\"z\"}");
@@ -652,12 +652,12 @@ static void test_run_pipeline_options_text(void **state)
     sinew_camera_init(&cam, 525, 525, 319.5, 239.5, 640, 480);
     p.camera = &cam;
     p.flow_format = SINEW_FLOW_NPY16;
-    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_OK);
+    assert_int_equal(sinew_run_pipeline_options(ctx, buf, sizeof buf, &p), SINEW_OK);
     assert_non_null(strstr(buf, "\"flow_format\":\"npy16\""));
     assert_non_null(strstr(buf, "\"camera\":[525,525,319.5,239.5,640,480,0,0,0,0,0]}"));
-    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, 40), SINEW_ELIMIT);
+    assert_int_equal(sinew_run_pipeline_options(ctx, buf, 40, &p), SINEW_ELIMIT);
     p.preset = "fast\",\"x";
-    assert_int_equal(sinew_run_pipeline_options(ctx, &p, buf, sizeof buf), SINEW_ECONFIG);
+    assert_int_equal(sinew_run_pipeline_options(ctx, buf, sizeof buf, &p), SINEW_ECONFIG);
     assert_string_equal(sinew_flow_format_ext(SINEW_FLOW_NPY16), "npy");
     assert_string_equal(sinew_flow_format_ext(SINEW_FLOW_KITTI), "png");
     assert_null(sinew_flow_format_ext(99));
@@ -681,27 +681,27 @@ static void test_run_options_store_and_reconcile(void **state)
     w.max_dt = 0.03;
     snprintf(w.schedule, sizeof w.schedule, "gap:2");
     int found = 1;
-    assert_int_equal(sinew_run_options_read(ctx, dir, &r, &found), SINEW_OK);
+    assert_int_equal(sinew_run_options_read(ctx, &r, &found, dir), SINEW_OK);
     assert_int_equal(found, 0);
     assert_int_equal(sinew_run_options_write(ctx, dir, &w), SINEW_OK);
     memset(&r, 0, sizeof r);
-    assert_int_equal(sinew_run_options_read(ctx, dir, &r, &found), SINEW_OK);
+    assert_int_equal(sinew_run_options_read(ctx, &r, &found, dir), SINEW_OK);
     assert_int_equal(found, 1);
     assert_memory_equal(&r, &w, sizeof w);
 
     memset(&g, 0, sizeof g);
     snprintf(g.preset, sizeof g.preset, "balanced");
     g.match_stride = 2;
-    assert_int_equal(sinew_run_options_reconcile(ctx, "X", &r, &g, SINEW_RUN_OPT_PRESET, 0),
+    assert_int_equal(sinew_run_options_reconcile(ctx, &g, &r, SINEW_RUN_OPT_PRESET, 0, "X"),
                      SINEW_ECONFIG);
     assert_string_equal(sinew_ctx_message(ctx),
                         "X: preset is 'accurate' there but 'balanced' was given");
-    assert_int_equal(sinew_run_options_reconcile(ctx, "X", &r, &g, SINEW_RUN_OPT_MATCH_STRIDE, 0),
+    assert_int_equal(sinew_run_options_reconcile(ctx, &g, &r, SINEW_RUN_OPT_MATCH_STRIDE, 0, "X"),
                      SINEW_OK);
     assert_memory_equal(&g, &w, sizeof w);
     snprintf(g.preset, sizeof g.preset, "fast");
     g.max_dt = 0.5;
-    assert_int_equal(sinew_run_options_reconcile(ctx, "X", &r, &g, SINEW_RUN_OPT_PRESET, 1),
+    assert_int_equal(sinew_run_options_reconcile(ctx, &g, &r, SINEW_RUN_OPT_PRESET, 1, "X"),
                      SINEW_OK);
     assert_string_equal(g.preset, "fast");
     assert_true(g.max_dt == 0.03);
@@ -715,7 +715,7 @@ static void test_run_options_store_and_reconcile(void **state)
           "\"flow_from\": null}\n",
           f);
     fclose(f);
-    assert_int_equal(sinew_run_options_read(ctx, dir, &r, &found), SINEW_EFORMAT);
+    assert_int_equal(sinew_run_options_read(ctx, &r, &found, dir), SINEW_EFORMAT);
     assert_non_null(strstr(sinew_ctx_message(ctx), "options.json: depth_scale"));
     tu_rmtree(dir);
     free(dir);
@@ -777,7 +777,7 @@ static void fixture_make(fixture *fx)
         fx->frames[f].color = fx->in[f];
     }
     sinew_schedule s = {SINEW_SCHEDULE_CONSECUTIVE, 0, 0, 0, NULL, 0};
-    assert_int_equal(sinew_schedule_pairs(fx->ctx, &s, 6, &fx->pairs, &fx->npairs), SINEW_OK);
+    assert_int_equal(sinew_schedule_pairs(fx->ctx, &fx->pairs, &fx->npairs, &s, 6), SINEW_OK);
 }
 
 static void fixture_free(fixture *fx)
@@ -1015,7 +1015,7 @@ static void test_run_engine_error_policies(void **state)
     snprintf(p, sizeof p, "%s/manifest.json", out);
     unsigned char *buf;
     size_t len;
-    assert_int_equal(sinew_read_file(fx.ctx, p, 1 << 20, &buf, &len), SINEW_OK);
+    assert_int_equal(sinew_read_file(fx.ctx, &buf, &len, p, 1 << 20), SINEW_OK);
     assert_non_null(strstr((char *)buf, "\"status\":\t\"failed\""));
     assert_non_null(strstr((char *)buf, "frame4.png: cannot open"));
     sinew_ctx_dealloc(fx.ctx, buf);

@@ -97,8 +97,8 @@ static void test_sequence_round_trip(void **state)
     assert_int_equal(sinew_sequence_write(b, path2), SINEW_OK);
     unsigned char *x, *y;
     size_t nx, ny;
-    assert_int_equal(sinew_read_file(ctx, path, 1 << 20, &x, &nx), SINEW_OK);
-    assert_int_equal(sinew_read_file(ctx, path2, 1 << 20, &y, &ny), SINEW_OK);
+    assert_int_equal(sinew_read_file(ctx, &x, &nx, path, 1 << 20), SINEW_OK);
+    assert_int_equal(sinew_read_file(ctx, &y, &ny, path2, 1 << 20), SINEW_OK);
     assert_int_equal(nx, ny);
     assert_memory_equal(x, y, nx);
     sinew_ctx_dealloc(ctx, x);

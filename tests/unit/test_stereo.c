@@ -399,7 +399,7 @@ static void test_stereo_vertical_offset_synthetic(void **state)
             }
         double off = 99;
         int n = 0;
-        assert_int_equal(sinew_stereo_vertical_offset(ctx, &l, &r, 0, 16, 8, &off, &n), SINEW_OK);
+        assert_int_equal(sinew_stereo_vertical_offset(ctx, &off, &n, &l, &r, 0, 16, 8), SINEW_OK);
         assert_true(n >= 10);
         assert_near(off, dy, 0.3);
         sinew_image_free(&l);
@@ -543,7 +543,7 @@ static void test_stereo_published_pairs(void **state)
         /* the published pairs are rectified: measured |dy| <= 0.054 px on all five */
         double dy = 99;
         int matched = 0;
-        assert_int_equal(sinew_stereo_vertical_offset(ctx, &l, &r, 0, e->ndisp, 16, &dy, &matched),
+        assert_int_equal(sinew_stereo_vertical_offset(ctx, &dy, &matched, &l, &r, 0, e->ndisp, 16),
                          SINEW_OK);
         assert_true(matched >= 100);
         assert_true(fabs(dy) <= 0.1);

@@ -505,8 +505,8 @@ static int same_file(sinew_ctx *ctx, const char *a, const char *b)
 {
     unsigned char *x, *y;
     size_t nx, ny;
-    assert_int_equal(sinew_read_file(ctx, a, 1 << 26, &x, &nx), SINEW_OK);
-    assert_int_equal(sinew_read_file(ctx, b, 1 << 26, &y, &ny), SINEW_OK);
+    assert_int_equal(sinew_read_file(ctx, &x, &nx, a, 1 << 26), SINEW_OK);
+    assert_int_equal(sinew_read_file(ctx, &y, &ny, b, 1 << 26), SINEW_OK);
     int same = nx == ny && memcmp(x, y, nx) == 0;
     sinew_ctx_dealloc(ctx, x);
     sinew_ctx_dealloc(ctx, y);

@@ -756,7 +756,7 @@ static int pair_commit(sinew_run *run, const pair_work *w, sinew_run_progress_fn
 
 static int stop_requested(const sinew_run *run)
 {
-    return (run->spec.cancel && *run->spec.cancel) || sinew_ctx_cancelled(run->ctx);
+    return sinew_ctx_cancelled(run->ctx);
 }
 
 /* ---- workers: `jobs` pairs at once ---- */

@@ -13,7 +13,6 @@
 #ifndef SINEW_RUN_H
 #define SINEW_RUN_H
 
-#include <signal.h>
 #include <stddef.h>
 #include <stdint.h>
 
@@ -125,7 +124,6 @@ typedef struct sinew_run_spec {
     int shard_k, shard_n;  /* this process owns pairs with index % n == k; n = 1: all */
     int resume;            /* skip pairs whose done record matches */
     sinew_run_on_error on_error;
-    const volatile sig_atomic_t *cancel; /* nonzero: stop before the next pair; may be NULL */
     /* Names of the files the pair function writes into a pair folder (besides the
      * engine's stats.json), e.g. from sinew_run_pipeline_outputs; may be NULL (0).
      * A done record must list each of them (and stats.json) for the pair to count as
@@ -191,8 +189,8 @@ void sinew_run_free(sinew_run *run);
 /* The lock file this run holds (for a signal handler to remove), or NULL. */
 const char *sinew_run_lock_path(const sinew_run *run);
 
-/* Process every owned pair in schedule order. For each: stop if *cancel or the
- * context's stop flag (sinew_ctx_set_cancel) is set;
+/* Process every owned pair in schedule order. For each: stop if the context's stop
+ * flag (sinew_ctx_set_cancel) is set;
  * hash the inputs (each file once per run) and form the pair key
  * SHA-256(version, options, pair, input digests); with resume, skip the pair when
  * its done record carries that key and every listed output has the recorded size

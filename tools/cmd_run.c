@@ -623,7 +623,6 @@ static int plan(sinew_ctx *ctx, run_args *a, run_plan *p)
     s->shard_n = a->shard_n;
     s->resume = a->resume;
     s->on_error = a->on_error;
-    s->cancel = cli_stop_flag();
     s->noutputs = sinew_run_pipeline_outputs(&a->pp, p->outputs);
     s->outputs = p->outputs;
     return CLI_OK;

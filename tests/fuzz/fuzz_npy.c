@@ -1,5 +1,7 @@
 /* SPDX-License-Identifier: MIT */
-/* Fuzz target: NumPy .npy arrays, as flow and as images. */
+/* Fuzz target: NumPy .npy arrays as flow, as images, as tables (match tables: any
+ * column count, and exactly 12), and through the readers by role (depth, mask bits,
+ * float maps). */
 #include "tests/fuzz/fuzz.h"
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
@@ -12,6 +14,18 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
             sinew_image_free(&img);
         if (sinew_npy_read_image(ctx, &img, path) == SINEW_OK)
             sinew_image_free(&img);
+        if (sinew_depth_read(ctx, &img, path) == SINEW_OK)
+            sinew_image_free(&img);
+        if (sinew_mask_read(ctx, &img, path) == SINEW_OK)
+            sinew_image_free(&img);
+        if (sinew_map_read(ctx, &img, path) == SINEW_OK)
+            sinew_image_free(&img);
+        for (size_t expect = 0; expect <= 12; expect += 12) {
+            float *table = NULL;
+            size_t rows = 0, cols = 0;
+            if (sinew_npy_read_table(ctx, &table, &rows, &cols, path, expect) == SINEW_OK)
+                sinew_ctx_dealloc(ctx, table);
+        }
     }
     sinew_ctx_free(ctx);
     return 0;

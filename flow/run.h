@@ -245,6 +245,49 @@ int sinew_run_write_manifest(sinew_run *run, int verify, size_t *ndone, size_t *
  * Frames are read as they are needed; the decoded frames (colour, depth in metres,
  * labels) of the previous pair are kept, so consecutive schedules decode each frame
  * once and memory stays at a few frames whatever the sequence length. */
+/* ---- stage settings a run may change from their defaults ----------------------
+ * The check's thresholds and the lift's rules, named as the options of `sinew check`
+ * and `sinew lift` (docs/formats.md, options.json): */
+typedef enum sinew_run_tune {
+    SINEW_TUNE_FB_ALPHA,         /* "fb-alpha": sinew_check_params.fb_alpha */
+    SINEW_TUNE_FB_BETA,          /* "fb-beta" */
+    SINEW_TUNE_BOUNDARY_ALPHA,   /* "boundary-alpha" */
+    SINEW_TUNE_BOUNDARY_BETA,    /* "boundary-beta" */
+    SINEW_TUNE_PHOTO_THRESHOLD,  /* "photo-threshold" */
+    SINEW_TUNE_SATURATION_LEVEL, /* "saturation-level" */
+    SINEW_TUNE_NEAR,             /* "near": sinew_depth_params.near, metres */
+    SINEW_TUNE_FAR,              /* "far" */
+    SINEW_TUNE_EDGE,             /* "edge": sinew_match_params.edge_rel */
+    SINEW_TUNE_EDGE_RADIUS,      /* "edge-radius" */
+    SINEW_TUNE_MAX_DISPLACEMENT, /* "max-displacement", metres */
+    SINEW_TUNE_NORMALS,          /* "normals": 1 adds normals */
+    SINEW_TUNE_TOP_K,            /* "top-k": sampling by weight instead of the stride */
+    SINEW_TUNE_CELL,             /* "cell" */
+    SINEW_TUNE_PER_CELL,         /* "per-cell" */
+    SINEW_TUNE_MIN_WEIGHT,       /* "min-weight" */
+    SINEW_RUN_NTUNE
+} sinew_run_tune;
+
+/* The settings that differ from the stages' defaults: bit k of `set` for key k, with
+ * its value. All zero = every default. */
+typedef struct sinew_run_tuning {
+    unsigned set;
+    double value[SINEW_RUN_NTUNE];
+} sinew_run_tuning;
+
+/* Option name of key k (e.g. "fb-alpha"), NULL outside 0..SINEW_RUN_NTUNE-1. */
+const char *sinew_run_tune_name(int key);
+/* The key named `name`, or -1. */
+int sinew_run_tune_find(const char *name);
+/* What key k accepts, for messages (e.g. "a number >= 0", "a whole number 0..16"). */
+const char *sinew_run_tune_range(int key);
+/* Check value v for key k: 0 when accepted (finite, in range, whole where it must be),
+ * -1 otherwise. */
+int sinew_run_tune_valid(int key, double v);
+/* Compact JSON object of the set keys in key order, %.17g values, e.g.
+ * {"fb-alpha":0.02,"near":0.3}; "{}" when none. ELIMIT when buf (size n) is too small. */
+int sinew_run_tuning_text(sinew_ctx *ctx, char *buf, size_t n, const sinew_run_tuning *t);
+
 typedef struct sinew_run_pipeline_params {
     const char *preset; /* flow preset (flow/estimate.h), e.g. "balanced" */
     int flow_format;    /* sinew_flow_format of the flow outputs (io.h) */
@@ -263,6 +306,9 @@ typedef struct sinew_run_pipeline_params {
      * that has them (stats.json "truth", "epe", "occlusion_f1"); borrowed; NULL = none.
      * Scores are diagnostics: they are not part of the options text or pair keys. */
     const sinew_sequence *truth;
+    /* Check thresholds and lift rules that differ from their defaults; part of the
+     * options text (key "tuning", only when something is set). */
+    sinew_run_tuning tuning;
 } sinew_run_pipeline_params;
 
 typedef struct sinew_run_pipeline sinew_run_pipeline;
@@ -274,7 +320,7 @@ void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p);
 int sinew_run_pipeline_options(sinew_ctx *ctx, char *buf, size_t n,
                                const sinew_run_pipeline_params *p);
 /* Create the pipeline for a spec (borrowed for the pipeline's life). ECONFIG for an
- * unknown preset or format. */
+ * unknown preset or format, a tuning value out of range, or near >= far. */
 int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew_run_spec *spec,
                            const sinew_run_pipeline_params *p);
 void sinew_run_pipeline_free(sinew_run_pipeline *pl);
@@ -294,11 +340,12 @@ size_t sinew_run_pipeline_outputs(const sinew_run_pipeline_params *p,
 #define SINEW_RUN_KEEP_MATCH_STRIDE 4u
 #define SINEW_RUN_KEEP_DEPTH_SCALE 8u
 #define SINEW_RUN_KEEP_IGNORE_POLARITY 128u
+#define SINEW_RUN_KEEP_CAMERA 256u
 /* Apply a sequence's settings to pipeline parameters: its intrinsics (copied into *cam,
- * and p->camera = cam), depth scale (when > 0), depth kind, and the "run" keys preset,
- * flow_format and match_stride, and its ignore_polarity (flow/sequence.h), except the
- * fields whose bit is set in keep. p->preset may then borrow the sequence's string. ECONFIG "WHERE:
- * run.flow_format: unknown format" for a format sinew_flow_format_parse refuses. */
+ * and p->camera = cam; not with SINEW_RUN_KEEP_CAMERA), depth scale (when > 0), depth kind, and the
+ * "run" keys preset, flow_format and match_stride, and its ignore_polarity (flow/sequence.h),
+ * except the fields whose bit is set in keep. p->preset may then borrow the sequence's string.
+ * ECONFIG "WHERE: run.flow_format: unknown format" for a format sinew_flow_format_parse refuses. */
 int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_params *p,
                                              struct sinew_camera *cam, const sinew_sequence *seq,
                                              const char *where, unsigned keep);
@@ -314,14 +361,16 @@ int sinew_run_schedule_from_sequence(sinew_ctx *ctx, sinew_schedule *out, sinew_
  * finished pairs with other settings. A key a caller gives again must agree with the
  * stored value; a key it leaves out is taken from the file. */
 typedef struct sinew_run_options {
-    char preset[32];      /* flow preset name */
-    int flow_format;      /* sinew_flow_format */
-    int match_stride;     /* pixels; 0 = every kept pixel */
-    double depth_scale;   /* 16-bit depth codes per metre */
-    double max_dt;        /* colour/depth association tolerance, seconds */
-    char schedule[1024];  /* schedule text as given; "" = the sequence's or consecutive */
-    char flow_from[4096]; /* folder of imported flows; "" = flows are estimated */
-    int ignore_polarity;  /* sinew_ignore_polarity of the ignore masks; 0 = none */
+    char preset[32];         /* flow preset name */
+    int flow_format;         /* sinew_flow_format */
+    int match_stride;        /* pixels; 0 = every kept pixel */
+    double depth_scale;      /* 16-bit depth codes per metre */
+    double max_dt;           /* colour/depth association tolerance, seconds */
+    char schedule[1024];     /* schedule text as given; "" = the sequence's or consecutive */
+    char flow_from[4096];    /* folder of imported flows; "" = flows are estimated */
+    int ignore_polarity;     /* sinew_ignore_polarity of the ignore masks; 0 = none */
+    char intrinsics[4096];   /* --intrinsics as given (a file or fx,fy,cx,cy); "" = none */
+    sinew_run_tuning tuning; /* check thresholds and lift rules set away from defaults */
 } sinew_run_options;
 
 /* Bits naming the keys of sinew_run_options (the first four and ignore_polarity equal
@@ -334,7 +383,10 @@ typedef struct sinew_run_options {
 #define SINEW_RUN_OPT_MAX_DT 32u
 #define SINEW_RUN_OPT_FLOW_FROM 64u
 #define SINEW_RUN_OPT_IGNORE_POLARITY SINEW_RUN_KEEP_IGNORE_POLARITY
-#define SINEW_RUN_OPT_ALL 255u
+#define SINEW_RUN_OPT_INTRINSICS SINEW_RUN_KEEP_CAMERA
+/* Tuning key k (sinew_run_tune) */
+#define SINEW_RUN_OPT_TUNE(k) (512u << (k))
+#define SINEW_RUN_OPT_ALL 0x1ffffffu
 
 /* Write *o to OUTDIR/SINEW_RUN_OPTIONS_FILE atomically (OUTDIR must exist). ELIMIT for
  * a string that does not fit its field. */

@@ -8,6 +8,7 @@
 #include <errno.h>
 #include <math.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
 
@@ -17,11 +18,131 @@
 #include "flow/internal/json.h"
 #include "flow/json.h"
 #include "flow/check.h"
+#include "flow/depth.h"
+#include "flow/match.h"
 #include "flow/run.h"
+#include "flow/internal/run.h"
 
 /* Record marker and version: a later layout changes the number. */
 static const char *const OPTIONS_KEY = "sinew_run_options";
 static const int OPTIONS_VERSION = 1;
+
+/* ---- tuning: check thresholds and lift rules by the single-pair commands' names ---- */
+
+/* Accepted values: [lo, hi] (lo excluded when open), whole numbers when integer. The
+ * ranges are those of `sinew check` and `sinew lift`. */
+static const struct tune_def {
+    const char *name, *range;
+    double lo, hi;
+    int open, integer;
+} TUNE[SINEW_RUN_NTUNE] = {
+    {"fb-alpha", "a number >= 0", 0, INFINITY, 0, 0},
+    {"fb-beta", "a number >= 0", 0, INFINITY, 0, 0},
+    {"boundary-alpha", "a number >= 0", 0, INFINITY, 0, 0},
+    {"boundary-beta", "a number >= 0", 0, INFINITY, 0, 0},
+    {"photo-threshold", "a number >= 0", 0, INFINITY, 0, 0},
+    {"saturation-level", "a number >= 0", 0, INFINITY, 0, 0},
+    {"near", "metres >= 0", 0, INFINITY, 0, 0},
+    {"far", "metres > 0", 0, INFINITY, 1, 0},
+    {"edge", "a number > 0", 0, INFINITY, 1, 0},
+    {"edge-radius", "a whole number 0..16", 0, 16, 0, 1},
+    {"max-displacement", "metres > 0", 0, INFINITY, 1, 0},
+    {"normals", "1", 1, 1, 0, 1},
+    {"top-k", "a whole number >= 1", 1, 1073741824.0, 0, 1},
+    {"cell", "a whole number >= 1", 1, 1048576.0, 0, 1},
+    {"per-cell", "a whole number >= 1", 1, 1073741824.0, 0, 1},
+    {"min-weight", "a number", -INFINITY, INFINITY, 0, 0},
+};
+
+const char *sinew_run_tune_name(int key)
+{
+    return key >= 0 && key < SINEW_RUN_NTUNE ? TUNE[key].name : NULL;
+}
+
+int sinew_run_tune_find(const char *name)
+{
+    for (int k = 0; name && k < SINEW_RUN_NTUNE; k++)
+        if (!strcmp(name, TUNE[k].name))
+            return k;
+    return -1;
+}
+
+const char *sinew_run_tune_range(int key)
+{
+    return key >= 0 && key < SINEW_RUN_NTUNE ? TUNE[key].range : NULL;
+}
+
+int sinew_run_tune_valid(int key, double v)
+{
+    if (key < 0 || key >= SINEW_RUN_NTUNE || !isfinite(v))
+        return -1;
+    const struct tune_def *d = &TUNE[key];
+    if (v < d->lo || v > d->hi || (d->open && v == d->lo) || (d->integer && v != floor(v)))
+        return -1;
+    return 0;
+}
+
+int sinew_run_tuning_text(sinew_ctx *ctx, char *buf, size_t n, const sinew_run_tuning *t)
+{
+    if (!ctx || !buf || !t || n < 3)
+        return SINEW_EINVAL;
+    size_t w = 0;
+    buf[w++] = '{';
+    for (int k = 0; k < SINEW_RUN_NTUNE; k++) {
+        if (!(t->set & (1u << k)))
+            continue;
+        /* %.17g round-trips a double, so equal text means equal settings */
+        int m =
+            snprintf(buf + w, n - w, "%s\"%s\":%.17g", w > 1 ? "," : "", TUNE[k].name, t->value[k]);
+        if (m < 0 || (size_t)m >= n - w)
+            return sinew__fail(ctx, SINEW_ELIMIT, "tuning text too long");
+        w += (size_t)m;
+    }
+    if (w + 2 > n)
+        return sinew__fail(ctx, SINEW_ELIMIT, "tuning text too long");
+    buf[w++] = '}';
+    buf[w] = 0;
+    return SINEW_OK;
+}
+
+/* The value of key k when set, else def. */
+static double tuned(const sinew_run_tuning *t, int k, double def)
+{
+    return t->set & (1u << k) ? t->value[k] : def;
+}
+
+void sinew__run_tuning_check(const sinew_run_tuning *t, sinew_check_params *p)
+{
+    p->fb_alpha = tuned(t, SINEW_TUNE_FB_ALPHA, p->fb_alpha);
+    p->fb_beta = tuned(t, SINEW_TUNE_FB_BETA, p->fb_beta);
+    p->boundary_alpha = tuned(t, SINEW_TUNE_BOUNDARY_ALPHA, p->boundary_alpha);
+    p->boundary_beta = tuned(t, SINEW_TUNE_BOUNDARY_BETA, p->boundary_beta);
+    p->photo_threshold = tuned(t, SINEW_TUNE_PHOTO_THRESHOLD, p->photo_threshold);
+    p->saturation_level = tuned(t, SINEW_TUNE_SATURATION_LEVEL, p->saturation_level);
+}
+
+void sinew__run_tuning_depth(const sinew_run_tuning *t, sinew_depth_params *p)
+{
+    p->near = tuned(t, SINEW_TUNE_NEAR, p->near);
+    p->far = tuned(t, SINEW_TUNE_FAR, p->far);
+}
+
+void sinew__run_tuning_match(const sinew_run_tuning *t, sinew_match_params *p)
+{
+    p->edge_rel = tuned(t, SINEW_TUNE_EDGE, p->edge_rel);
+    p->edge_radius = (int)tuned(t, SINEW_TUNE_EDGE_RADIUS, p->edge_radius);
+    p->max_displacement = tuned(t, SINEW_TUNE_MAX_DISPLACEMENT, p->max_displacement);
+    p->normals = (int)tuned(t, SINEW_TUNE_NORMALS, p->normals);
+    if (t->set & (1u << SINEW_TUNE_TOP_K)) {
+        p->sampling = SINEW_SAMPLE_TOP_K;
+        p->top_k = (size_t)t->value[SINEW_TUNE_TOP_K];
+    }
+    p->cell = (int)tuned(t, SINEW_TUNE_CELL, p->cell);
+    p->per_cell = (int)tuned(t, SINEW_TUNE_PER_CELL, p->per_cell);
+    p->min_weight = tuned(t, SINEW_TUNE_MIN_WEIGHT, p->min_weight);
+}
+
+/* ---- options.json ---- */
 
 static int options_path(sinew_ctx *ctx, const char *outdir, char *buf, size_t n)
 {
@@ -65,7 +186,13 @@ int sinew_run_options_write(sinew_ctx *ctx, const char *outdir, const sinew_run_
              sinew_json_add_number(j, "max_dt", o->max_dt) &&
              sinew_json_add_string(j, "schedule", o->schedule[0] ? o->schedule : NULL) &&
              sinew_json_add_string(j, "flow_from", o->flow_from[0] ? o->flow_from : NULL) &&
-             sinew_json_add_string(j, "ignore_polarity", polarity_name(o->ignore_polarity));
+             sinew_json_add_string(j, "ignore_polarity", polarity_name(o->ignore_polarity)) &&
+             sinew_json_add_string(j, "intrinsics", o->intrinsics[0] ? o->intrinsics : NULL);
+    cJSON *tj = ok ? cJSON_AddObjectToObject(j, "tuning") : NULL;
+    ok = ok && tj;
+    for (int k = 0; ok && k < SINEW_RUN_NTUNE; k++)
+        if (o->tuning.set & (1u << k))
+            ok = sinew_json_add_number(tj, TUNE[k].name, o->tuning.value[k]) != NULL;
     rc = ok ? sinew__json_write(ctx, path, j) : sinew__fail(ctx, SINEW_ENOMEM, "out of memory");
     cJSON_Delete(j);
     return rc;
@@ -128,6 +255,25 @@ static int parse_options(sinew_ctx *ctx, const char *path, const cJSON *j, sinew
         o->ignore_polarity =
             strcmp(ip->valuestring, "zero") ? SINEW_IGNORE_NONZERO : SINEW_IGNORE_ZERO;
     }
+    /* absent in records of older versions: no --intrinsics, no tuning */
+    if (cJSON_GetObjectItemCaseSensitive(j, "intrinsics") &&
+        (rc = read_text(ctx, path, j, "intrinsics", o->intrinsics, sizeof o->intrinsics)))
+        return rc;
+    const cJSON *tj = cJSON_GetObjectItemCaseSensitive(j, "tuning"), *e;
+    if (tj && !cJSON_IsObject(tj))
+        return sinew__fail(ctx, SINEW_EFORMAT, "%s: tuning: expected an object", path);
+    cJSON_ArrayForEach(e, tj)
+    {
+        int k = sinew_run_tune_find(e->string);
+        if (k < 0)
+            return sinew__fail(ctx, SINEW_EFORMAT, "%s: tuning: unknown key '%s'", path,
+                               e->string ? e->string : "");
+        if (!cJSON_IsNumber(e) || sinew_run_tune_valid(k, e->valuedouble))
+            return sinew__fail(ctx, SINEW_EFORMAT, "%s: tuning: %s: expected %s", path,
+                               TUNE[k].name, TUNE[k].range);
+        o->tuning.set |= 1u << k;
+        o->tuning.value[k] = e->valuedouble;
+    }
     if (stride != floor(stride) || stride > (double)(1 << 20))
         return sinew__fail(ctx, SINEW_EFORMAT,
                            "%s: match_stride: expected a whole number of pixels", path);
@@ -161,6 +307,14 @@ int sinew_run_options_read(sinew_ctx *ctx, sinew_run_options *o, int *found, con
     return SINEW_OK;
 }
 
+/* v as short as it reads back exactly (0.03, not 0.029999999999999999). */
+static void number_text(char *buf, size_t n, double v)
+{
+    snprintf(buf, n, "%.15g", v);
+    if (strtod(buf, NULL) != v)
+        snprintf(buf, n, "%.17g", v);
+}
+
 /* Key `key` differs: the one-line refusal. */
 static int conflict(sinew_ctx *ctx, const char *where, const char *key, const char *stored,
                     const char *given)
@@ -182,8 +336,8 @@ int sinew_run_options_reconcile(sinew_ctx *ctx, sinew_run_options *o,
     return conflict(ctx, where, key, fa, fb)
 #define DIFF_NUM(bit, key, field)                                                                  \
     if ((check & (bit)) && stored->field != o->field) {                                            \
-        snprintf(a, sizeof a, "%.17g", (double)stored->field);                                     \
-        snprintf(b, sizeof b, "%.17g", (double)o->field);                                          \
+        number_text(a, sizeof a, (double)stored->field);                                           \
+        number_text(b, sizeof b, (double)o->field);                                                \
         return conflict(ctx, where, key, a, b);                                                    \
     }
     DIFF_TEXT(SINEW_RUN_OPT_PRESET, "preset", stored->preset, o->preset);
@@ -201,6 +355,23 @@ int sinew_run_options_reconcile(sinew_ctx *ctx, sinew_run_options *o,
         const char *sa = polarity_name(stored->ignore_polarity);
         const char *sb = polarity_name(o->ignore_polarity);
         return conflict(ctx, where, "ignore_polarity", sa ? sa : "none", sb ? sb : "none");
+    }
+    DIFF_TEXT(SINEW_RUN_OPT_INTRINSICS, "intrinsics", stored->intrinsics, o->intrinsics);
+    for (int k = 0; k < SINEW_RUN_NTUNE; k++) {
+        unsigned bit = 1u << k;
+        int ss = (stored->tuning.set & bit) != 0, os = (o->tuning.set & bit) != 0;
+        if (!(check & SINEW_RUN_OPT_TUNE(k)) ||
+            (ss == os && (!ss || stored->tuning.value[k] == o->tuning.value[k])))
+            continue;
+        if (ss)
+            number_text(a, sizeof a, stored->tuning.value[k]);
+        else
+            snprintf(a, sizeof a, "default");
+        if (os)
+            number_text(b, sizeof b, o->tuning.value[k]);
+        else
+            snprintf(b, sizeof b, "default");
+        return conflict(ctx, where, TUNE[k].name, a, b);
     }
 #undef DIFF_TEXT
 #undef DIFF_NUM
@@ -222,5 +393,14 @@ int sinew_run_options_reconcile(sinew_ctx *ctx, sinew_run_options *o,
         memcpy(o->flow_from, mine.flow_from, sizeof o->flow_from);
     if (given & SINEW_RUN_OPT_IGNORE_POLARITY)
         o->ignore_polarity = mine.ignore_polarity;
+    if (given & SINEW_RUN_OPT_INTRINSICS)
+        memcpy(o->intrinsics, mine.intrinsics, sizeof o->intrinsics);
+    for (int k = 0; k < SINEW_RUN_NTUNE; k++) {
+        unsigned bit = 1u << k;
+        if (!(given & SINEW_RUN_OPT_TUNE(k)))
+            continue;
+        o->tuning.set = (o->tuning.set & ~bit) | (mine.tuning.set & bit);
+        o->tuning.value[k] = mine.tuning.value[k];
+    }
     return SINEW_OK;
 }

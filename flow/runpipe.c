@@ -65,7 +65,7 @@ int sinew_run_pipeline_params_apply_sequence(sinew_ctx *ctx, sinew_run_pipeline_
 {
     if (!ctx || !p || !cam || !seq || !where)
         return SINEW_EINVAL;
-    if (seq->has_intrinsics) {
+    if (seq->has_intrinsics && !(keep & SINEW_RUN_KEEP_CAMERA)) {
         sinew_camera_init(cam, seq->fx, seq->fy, seq->cx, seq->cy, seq->width, seq->height);
         p->camera = cam;
     }
@@ -203,6 +203,15 @@ int sinew_run_pipeline_options(sinew_ctx *ctx, char *buf, size_t n,
                           c->p2, c->k3);
         w = w2 < 0 ? w2 : w - 1 + w2;
     }
+    if (w > 0 && (size_t)w < n && p->tuning.set) {
+        /* only when set, so the keys of runs with default stages stay as they were */
+        char t[1024];
+        int rc = sinew_run_tuning_text(ctx, t, sizeof t, &p->tuning);
+        if (rc)
+            return rc;
+        int w2 = snprintf(buf + w - 1, n - (size_t)(w - 1), ",\"tuning\":%s}", t);
+        w = w2 < 0 ? w2 : w - 1 + w2;
+    }
     if (w < 0 || (size_t)w >= n)
         return sinew__fail(ctx, SINEW_ELIMIT, "options text too long");
     return SINEW_OK;
@@ -231,6 +240,18 @@ int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew
                                "%s: an ignore mask needs its polarity (--ignore-polarity "
                                "nonzero|zero, or \"ignore_polarity\" in sequence.json)",
                                spec->frames[f].ignore);
+    for (int k = 0; k < SINEW_RUN_NTUNE; k++)
+        if ((p->tuning.set & (1u << k)) && sinew_run_tune_valid(k, p->tuning.value[k]))
+            return sinew__fail(ctx, SINEW_ECONFIG, "%s: expected %s, got %.17g",
+                               sinew_run_tune_name(k), sinew_run_tune_range(k), p->tuning.value[k]);
+    {
+        sinew_depth_params dp;
+        sinew_depth_params_default(&dp);
+        sinew__run_tuning_depth(&p->tuning, &dp);
+        if (!(dp.near < dp.far))
+            return sinew__fail(ctx, SINEW_ECONFIG, "near (%g m) must be below far (%g m)", dp.near,
+                               dp.far);
+    }
     sinew_run_pipeline *pl = sinew__calloc(ctx, 1, sizeof *pl);
     if (!pl)
         return SINEW_ENOMEM;
@@ -242,6 +263,7 @@ int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew
     pl->depth.scale = p->depth_scale;
     if (p->depth_ray)
         pl->depth.kind = SINEW_DEPTH_RAY;
+    sinew__run_tuning_depth(&p->tuning, &pl->depth);
     if (p->camera) {
         if ((rc = sinew_camera_check(ctx, p->camera, "intrinsics"))) {
             sinew__free(ctx, pl);
@@ -606,6 +628,7 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
         mp.sampling = SINEW_SAMPLE_STRIDE;
         mp.stride = pl->params.match_stride;
     }
+    sinew__run_tuning_match(&pl->params.tuning, &mp);
     const sinew_run_frame *fr0 = &pl->spec->frames[job->pair.i];
     const sinew_run_frame *fr1 = &pl->spec->frames[job->pair.j];
     int lift = pl->have_camera && s0->z.data && s1->z.data;
@@ -681,6 +704,7 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
     sinew_check_output out = {&pl->fberr, &pl->mask, &pl->conf, {0}, NULL};
     sinew_check_params cp;
     sinew_check_params_default(&cp);
+    sinew__run_tuning_check(&pl->params.tuning, &cp);
     if (s0->ignore.data) { /* the forward check rejects frame i's ignored pixels */
         in.ignore = &s0->ignore;
         cp.ignore_polarity = (sinew_ignore_polarity)pl->params.ignore_polarity;

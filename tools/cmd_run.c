@@ -65,6 +65,16 @@ static void usage(FILE *out)
             "                         of failing\n"
             "  --depth-scale S        16-bit depth codes per metre (default 1000; TUM: 5000)\n"
             "  --match-stride S       matches on a grid of step S pixels (default 4; 0 = all)\n"
+            "  --intrinsics K         fx,fy,cx,cy[,width,height] or a file as for sinew lift;\n"
+            "                         replaces a folder's intrinsics.json and a sequence's\n"
+            "                         intrinsics\n"
+            "check and lift settings (meaning and defaults as in sinew check / sinew lift):\n"
+            "  --fb-alpha A  --fb-beta B  --boundary-alpha A  --boundary-beta B\n"
+            "  --photo-threshold T  --saturation-level S\n"
+            "  --near M  --far M  --edge R  --edge-radius N  --max-displacement M  --normals\n"
+            "  --top-k K  --cell N  --per-cell N  --min-weight W   (--top-k replaces the\n"
+            "                         stride sampling)\n"
+            "other:\n"
             "  --resume               skip pairs that are complete and up to date\n"
             "  --force-options        let options given here replace the ones stored in\n"
             "                         OUTDIR/options.json (finished pairs are then redone)\n"
@@ -87,9 +97,10 @@ static void usage(FILE *out)
     fprintf(
         out,
         "A run stores the options that shape its outputs (preset, flow format, match\n"
-        "stride, depth scale, max-dt, schedule, flow-from) in OUTDIR/options.json before\n"
-        "its first pair. --resume, --merge and --shard runs in that folder take every\n"
-        "option not given from there; a given option that differs is refused.\n"
+        "stride, depth scale, max-dt, schedule, flow-from, intrinsics, check and lift\n"
+        "settings) in OUTDIR/options.json before its first pair. --resume, --merge and\n"
+        "--shard runs in that folder take every option not given from there; a given\n"
+        "option that differs is refused.\n"
         "\n"
         "A sequence.json with ground truth (\"pairs\", as sinew synth writes) has each\n"
         "pair scored: EPE, occlusion F1 and 3-D error of the lifted matches in its\n"
@@ -252,7 +263,7 @@ static void on_progress(void *ud, const sinew_run_progress *p)
 /* ---- parse ---- */
 
 typedef struct {
-    const char *input, *outdir, *flow_from, *schedule;
+    const char *input, *outdir, *flow_from, *schedule, *intrinsics;
     int resume, dry, report, merge, shard_k, shard_n, force_options, drop_unmatched;
     /* SINEW_RUN_OPT_* bits of the options given on the command line; once options.json
      * is applied, also every stored one (the sequence's settings must not override them;
@@ -284,7 +295,9 @@ enum {
     O_FORCE,
     O_JOBS,
     O_DROP,
-    O_POLARITY
+    O_POLARITY,
+    O_INTRINSICS,
+    O_TUNE /* O_TUNE + k: tuning key k (sinew_run_tune) */
 };
 
 static int parse_shard(const char *arg, run_args *a)
@@ -396,6 +409,10 @@ static int parse_option(int c, const char *arg, run_args *a)
                                    arg);
         a->given |= SINEW_RUN_OPT_DEPTH_SCALE;
         break;
+    case O_INTRINSICS:
+        a->intrinsics = arg;
+        a->given |= SINEW_RUN_OPT_INTRINSICS;
+        break;
     case O_MSTRIDE: {
         long v;
         if (cli_parse_int(arg, 0, 1 << 20, &v))
@@ -404,6 +421,18 @@ static int parse_option(int c, const char *arg, run_args *a)
         a->given |= SINEW_RUN_OPT_MATCH_STRIDE;
         break;
     }
+    default:
+        if (c >= O_TUNE && c < O_TUNE + SINEW_RUN_NTUNE) {
+            int k = c - O_TUNE;
+            double v = 1; /* --normals takes no value */
+            if (arg && (cli_parse_double(arg, &v) || sinew_run_tune_valid(k, v)))
+                return cli_usage_error(CMD, "--%s: expected %s, got '%s'", sinew_run_tune_name(k),
+                                       sinew_run_tune_range(k), arg);
+            a->pp.tuning.set |= 1u << k;
+            a->pp.tuning.value[k] = v;
+            a->given |= SINEW_RUN_OPT_TUNE(k);
+        }
+        break;
     }
     return CLI_OK;
 }
@@ -432,6 +461,24 @@ static int parse_args(int argc, char **argv, run_args *a)
                                          {"force-options", no_argument, NULL, O_FORCE},
                                          {"drop-unmatched", no_argument, NULL, O_DROP},
                                          {"ignore-polarity", required_argument, NULL, O_POLARITY},
+                                         {"intrinsics", required_argument, NULL, O_INTRINSICS},
+                                         /* the check's and the lift's options (sinew_run_tune) */
+                                         {"fb-alpha", required_argument, NULL, O_TUNE + 0},
+                                         {"fb-beta", required_argument, NULL, O_TUNE + 1},
+                                         {"boundary-alpha", required_argument, NULL, O_TUNE + 2},
+                                         {"boundary-beta", required_argument, NULL, O_TUNE + 3},
+                                         {"photo-threshold", required_argument, NULL, O_TUNE + 4},
+                                         {"saturation-level", required_argument, NULL, O_TUNE + 5},
+                                         {"near", required_argument, NULL, O_TUNE + 6},
+                                         {"far", required_argument, NULL, O_TUNE + 7},
+                                         {"edge", required_argument, NULL, O_TUNE + 8},
+                                         {"edge-radius", required_argument, NULL, O_TUNE + 9},
+                                         {"max-displacement", required_argument, NULL, O_TUNE + 10},
+                                         {"normals", no_argument, NULL, O_TUNE + 11},
+                                         {"top-k", required_argument, NULL, O_TUNE + 12},
+                                         {"cell", required_argument, NULL, O_TUNE + 13},
+                                         {"per-cell", required_argument, NULL, O_TUNE + 14},
+                                         {"min-weight", required_argument, NULL, O_TUNE + 15},
                                          {"help", no_argument, NULL, 'h'},
                                          {NULL, 0, NULL, 0}};
     memset(a, 0, sizeof *a);
@@ -453,6 +500,9 @@ static int parse_args(int argc, char **argv, run_args *a)
         if ((r = parse_option(c, optarg, a)) != CLI_OK)
             return r;
     }
+    if ((a->given & SINEW_RUN_OPT_MATCH_STRIDE) &&
+        (a->given & SINEW_RUN_OPT_TUNE(SINEW_TUNE_TOP_K)))
+        return cli_usage_error(CMD, "--match-stride and --top-k choose the sampling: give one");
     if (optind != argc - 1)
         return cli_usage_error(CMD, optind >= argc ? "missing SEQUENCE.json or FOLDER"
                                                    : "expected one SEQUENCE.json or FOLDER");
@@ -470,10 +520,11 @@ typedef struct {
     sinew_run_source src;
     sinew_sequence *seq;
     sinew_camera cam;
-    sinew_pair *list;  /* the schedule's explicit pairs (on ctx) or NULL */
-    sinew_pair *pairs; /* the expanded schedule (on ctx) */
+    sinew_camera given_cam; /* --intrinsics */
+    sinew_pair *list;       /* the schedule's explicit pairs (on ctx) or NULL */
+    sinew_pair *pairs;      /* the expanded schedule (on ctx) */
     size_t npairs;
-    char options[512];
+    char options[2048];
     const char *outputs[SINEW_RUN_PIPELINE_MAX_OUTPUTS]; /* what each pair folder holds */
     sinew_run_spec spec;
     warn_sink warn;
@@ -489,11 +540,13 @@ static int options_from_args(const run_args *a, sinew_run_options *o)
     o->depth_scale = a->pp.depth_scale;
     o->max_dt = a->max_dt;
     o->ignore_polarity = a->pp.ignore_polarity;
-    const char *src[3] = {a->pp.preset, a->schedule ? a->schedule : "",
-                          a->flow_from ? a->flow_from : ""};
-    char *dst[3] = {o->preset, o->schedule, o->flow_from};
-    size_t cap[3] = {sizeof o->preset, sizeof o->schedule, sizeof o->flow_from};
-    for (int k = 0; k < 3; k++) {
+    o->tuning = a->pp.tuning;
+    const char *src[4] = {a->pp.preset, a->schedule ? a->schedule : "",
+                          a->flow_from ? a->flow_from : "", a->intrinsics ? a->intrinsics : ""};
+    char *dst[4] = {o->preset, o->schedule, o->flow_from, o->intrinsics};
+    size_t cap[4] = {sizeof o->preset, sizeof o->schedule, sizeof o->flow_from,
+                     sizeof o->intrinsics};
+    for (int k = 0; k < 4; k++) {
         if (strlen(src[k]) >= cap[k])
             return cli_error(CMD, "%s: longer than %zu bytes", src[k], cap[k] - 1);
         memcpy(dst[k], src[k], strlen(src[k]) + 1);
@@ -532,6 +585,10 @@ static int plan_stored_options(sinew_ctx *ctx, run_args *a)
     a->pp.ignore_polarity = a->stored.ignore_polarity;
     a->schedule = a->stored.schedule[0] ? a->stored.schedule : NULL;
     a->flow_from = a->stored.flow_from[0] ? a->stored.flow_from : NULL;
+    a->intrinsics = a->stored.intrinsics[0] ? a->stored.intrinsics : NULL;
+    a->pp.tuning = a->stored.tuning;
+    if (a->intrinsics)
+        a->given |= SINEW_RUN_OPT_INTRINSICS;
     /* the stored values are the effective ones of the first run: the sequence's
      * settings were already applied to them */
     a->given |= SINEW_RUN_OPT_PRESET | SINEW_RUN_OPT_FLOW_FORMAT | SINEW_RUN_OPT_MATCH_STRIDE |
@@ -562,6 +619,15 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
     char seqpath[4200];
     snprintf(seqpath, sizeof seqpath, "%s/sequence.json", a->input);
     int is_dir = S_ISDIR(st.st_mode), rc;
+    if (a->intrinsics) { /* a file, or values fx,fy,cx,cy[,width,height] */
+        struct stat ks;
+        rc = stat(a->intrinsics, &ks) == 0
+                 ? sinew_camera_load(ctx, &p->given_cam, a->intrinsics)
+                 : sinew_camera_parse(ctx, &p->given_cam, a->intrinsics, "--intrinsics");
+        if (rc)
+            return cli_status(CMD, ctx, rc);
+        a->pp.camera = &p->given_cam;
+    }
     if (is_dir && stat(seqpath, &st) != 0) {
         if ((rc = sinew_run_source_from_folder(ctx, &p->src, a->input, a->max_dt,
                                                a->drop_unmatched ? SINEW_RUN_SOURCE_DROP_UNMATCHED

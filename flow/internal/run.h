@@ -17,6 +17,15 @@
 
 #define SINEW__MAX_INPUTS 10
 
+/* Apply a run's tuning over stage parameters (flow/runopts.c): only the set keys
+ * change; top-k switches the sampling to SINEW_SAMPLE_TOP_K. */
+struct sinew_check_params;
+struct sinew_match_params;
+struct sinew_depth_params;
+void sinew__run_tuning_check(const sinew_run_tuning *t, struct sinew_check_params *p);
+void sinew__run_tuning_match(const sinew_run_tuning *t, struct sinew_match_params *p);
+void sinew__run_tuning_depth(const sinew_run_tuning *t, struct sinew_depth_params *p);
+
 /* One hashed input of a pair: role ("color0", "depth1", "intrinsics", ...), path
  * (borrowed), digest and size. */
 typedef struct sinew__input {

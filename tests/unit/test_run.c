@@ -717,6 +717,45 @@ static void test_run_options_store_and_reconcile(void **state)
     fclose(f);
     assert_int_equal(sinew_run_options_read(ctx, &r, &found, dir), SINEW_EFORMAT);
     assert_non_null(strstr(sinew_ctx_message(ctx), "options.json: depth_scale"));
+
+    /* tuning: written and read back, reconciled per setting, bad keys refused */
+    w.tuning.set = 1u << SINEW_TUNE_FB_ALPHA | 1u << SINEW_TUNE_TOP_K;
+    w.tuning.value[SINEW_TUNE_FB_ALPHA] = 0.02;
+    w.tuning.value[SINEW_TUNE_TOP_K] = 500;
+    snprintf(w.intrinsics, sizeof w.intrinsics, "585,585,320,240");
+    assert_int_equal(sinew_run_options_write(ctx, dir, &w), SINEW_OK);
+    memset(&r, 0, sizeof r);
+    assert_int_equal(sinew_run_options_read(ctx, &r, &found, dir), SINEW_OK);
+    assert_memory_equal(&r, &w, sizeof w);
+    char text[256];
+    assert_int_equal(sinew_run_tuning_text(ctx, text, sizeof text, &r.tuning), SINEW_OK);
+    assert_string_equal(text, "{\"fb-alpha\":0.02,\"top-k\":500}");
+    assert_int_equal(sinew_run_tuning_text(ctx, text, 12, &r.tuning), SINEW_ELIMIT);
+    g = r;
+    g.tuning.value[SINEW_TUNE_TOP_K] = 600;
+    assert_int_equal(
+        sinew_run_options_reconcile(ctx, &g, &r, SINEW_RUN_OPT_TUNE(SINEW_TUNE_TOP_K), 0, "X"),
+        SINEW_ECONFIG);
+    assert_string_equal(sinew_ctx_message(ctx), "X: top-k is '500' there but '600' was given");
+    g = r;
+    g.tuning.set = 0; /* given nothing: the stored settings are taken */
+    assert_int_equal(sinew_run_options_reconcile(ctx, &g, &r, 0, 0, "X"), SINEW_OK);
+    assert_memory_equal(&g.tuning, &w.tuning, sizeof w.tuning);
+    assert_int_equal(sinew_run_tune_find("per-cell"), SINEW_TUNE_PER_CELL);
+    assert_int_equal(sinew_run_tune_find("perr-cell"), -1);
+    assert_int_equal(sinew_run_tune_valid(SINEW_TUNE_EDGE_RADIUS, 17), -1);
+    assert_int_equal(sinew_run_tune_valid(SINEW_TUNE_EDGE_RADIUS, 1.5), -1);
+    assert_int_equal(sinew_run_tune_valid(SINEW_TUNE_FAR, 0), -1);
+    assert_int_equal(sinew_run_tune_valid(SINEW_TUNE_NEAR, 0), 0);
+    f = fopen(path, "w");
+    assert_non_null(f);
+    fputs("{\"sinew_run_options\": 1, \"preset\": \"fast\", \"flow_format\": \"flo\", "
+          "\"match_stride\": 4, \"depth_scale\": 1000, \"max_dt\": 0.02, \"schedule\": null, "
+          "\"flow_from\": null, \"tuning\": {\"fb-alfa\": 1}}\n",
+          f);
+    fclose(f);
+    assert_int_equal(sinew_run_options_read(ctx, &r, &found, dir), SINEW_EFORMAT);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "options.json: tuning: unknown key 'fb-alfa'"));
     tu_rmtree(dir);
     free(dir);
     sinew_ctx_free(ctx);

@@ -68,8 +68,25 @@ static void compress(uint32_t h[8], const unsigned char *p)
 }
 
 #if defined(__x86_64__) && defined(__GNUC__)
+#include <cpuid.h>
 #include <immintrin.h>
 #define SHA_NI 1
+
+/* The CPU has the SHA extensions and the SSSE3/SSE4.1 the rounds use: CPUID leaf 1 ECX
+ * bits 9 and 19, leaf 7 sub-leaf 0 EBX bit 29 (Intel 64 and IA-32 Architectures
+ * Software Developer's Manual, vol. 2A, CPUID). Asked once per digest (sinew_sha256_init)
+ * and kept in the digest's state, so the library has no global state; CPUID works the
+ * same under GCC and clang, unlike __builtin_cpu_supports("sha"). */
+static int have_sha_ni(void)
+{
+    unsigned a, b, c, d;
+    if (!__get_cpuid(1, &a, &b, &c, &d) || !(c & (1u << 9)) || !(c & (1u << 19)))
+        return 0;
+    if (!__get_cpuid_count(7, 0, &a, &b, &c, &d))
+        return 0;
+    return (int)((b >> 29) & 1u);
+}
+
 __attribute__((target("sha,sse4.1,ssse3"))) static void
 compress_ni(uint32_t h[8], const unsigned char *p, size_t nblocks)
 {
@@ -107,16 +124,16 @@ compress_ni(uint32_t h[8], const unsigned char *p, size_t nblocks)
 #endif
 
 /* nblocks whole 64-byte blocks at p. */
-static void compress_blocks(uint32_t h[8], const unsigned char *p, size_t nblocks)
+static void compress_blocks(sinew_sha256 *s, const unsigned char *p, size_t nblocks)
 {
 #ifdef SHA_NI
-    if (__builtin_cpu_supports("sha")) {
-        compress_ni(h, p, nblocks);
+    if (s->ni) {
+        compress_ni(s->h, p, nblocks);
         return;
     }
 #endif
     for (; nblocks; nblocks--, p += 64)
-        compress(h, p);
+        compress(s->h, p);
 }
 
 void sinew_sha256_init(sinew_sha256 *s)
@@ -126,6 +143,11 @@ void sinew_sha256_init(sinew_sha256 *s)
     memcpy(s->h, h0, sizeof h0);
     s->bytes = 0;
     s->fill = 0;
+#ifdef SHA_NI
+    s->ni = have_sha_ni();
+#else
+    s->ni = 0;
+#endif
 }
 
 void sinew_sha256_update(sinew_sha256 *s, const void *data, size_t n)
@@ -140,10 +162,11 @@ void sinew_sha256_update(sinew_sha256 *s, const void *data, size_t n)
         n -= take;
         if (s->fill < 64)
             return;
-        compress_blocks(s->h, s->block, 1);
+        compress_blocks(s, s->block, 1);
         s->fill = 0;
     }
-    compress_blocks(s->h, p, n / 64);
+    if (n >= 64)
+        compress_blocks(s, p, n / 64);
     p += n / 64 * 64;
     n %= 64;
     if (n) {

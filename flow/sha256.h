@@ -19,6 +19,8 @@ typedef struct sinew_sha256 {
     uint64_t bytes;          /* message length so far */
     unsigned char block[64]; /* pending partial block */
     size_t fill;             /* bytes pending in block */
+    int ni;                  /* 1: the CPU's SHA instructions do the rounds (set by init;
+                                0 forces the portable rounds, same digests) */
 } sinew_sha256;
 
 /* Start a digest. Never fails. */

@@ -51,18 +51,19 @@ void sinew_check_params_default(sinew_check_params *p)
     p->conf_texture_scale = 4e-5;
     p->conf_boundary_scale = 6.0;
     /* Logistic calibration, printed by tools/fit_confidence (docs/methods.md). */
-    p->conf_bias = 5.7866;
-    p->conf_k_fb = 1.0613;
-    p->conf_k_photo = 0.9868;
-    p->conf_k_texture = 0.2467;
-    p->conf_k_boundary = 1.8484;
-    p->conf_k_motion = 0.7082;
-    p->conf_k_outside = 4.5665;
-    p->conf_k_saturated = 0.0039;
+    p->conf_bias = 5.9261;
+    p->conf_k_fb = 0.9974;
+    p->conf_k_photo = 0.9274;
+    p->conf_k_texture = 0.2319;
+    p->conf_k_boundary = 1.7372;
+    p->conf_k_motion = 0.6656;
+    p->conf_k_outside = 4.2917;
+    p->conf_k_saturated = 0.0037;
+    p->conf_k_fb_share = 5.7561;
 }
 
 static const char *const feature_names[SINEW_CHECK_NFEATURES] = {
-    "fb", "photo", "texture", "boundary", "motion", "outside", "saturated",
+    "fb", "photo", "texture", "boundary", "motion", "outside", "saturated", "fb_share",
 };
 
 const char *sinew_check_feature_name(int i)
@@ -118,6 +119,7 @@ size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *o
         {"conf_k_motion", p->conf_k_motion},
         {"conf_k_outside", p->conf_k_outside},
         {"conf_k_saturated", p->conf_k_saturated},
+        {"conf_k_fb_share", p->conf_k_fb_share},
         {"conf_bias", p->conf_bias}, /* last: the only one that may be negative */
     };
     size_t n = max < SINEW_CHECK_NPARAMS ? max : SINEW_CHECK_NPARAMS;
@@ -757,9 +759,14 @@ static void pass_confidence(const sinew_check_input *in, const sinew_check_param
     (void)nthreads; /* unused without OpenMP */
     const sinew_image *F = in->forward;
     int w = F->width, h = F->height;
+    /* cue fb_share: an integer count, so the same for any thread count */
+    size_t n = (size_t)w * h, incons = 0;
+    for (size_t i = 0; i < n; i++)
+        incons += (s->mask[i] & SINEW_MASK_FB_ANY) != 0;
+    const double share = (double)incons / (double)n;
     const double k[SINEW_CHECK_NFEATURES] = {
-        p->conf_k_fb,     p->conf_k_photo,   p->conf_k_texture,  p->conf_k_boundary,
-        p->conf_k_motion, p->conf_k_outside, p->conf_k_saturated};
+        p->conf_k_fb,     p->conf_k_photo,   p->conf_k_texture,   p->conf_k_boundary,
+        p->conf_k_motion, p->conf_k_outside, p->conf_k_saturated, p->conf_k_fb_share};
     SINEW_PARALLEL_FOR(nthreads)
     for (int y = 0; y < h; y++) {
         float *out = sinew_image_row_f32(conf, y);
@@ -787,6 +794,7 @@ static void pass_confidence(const sinew_check_input *in, const sinew_check_param
             f[4] = log1p(hypot(fr[2 * x], fr[2 * x + 1]));
             f[5] = outside;
             f[6] = (m & SINEW_MASK_SATURATED) != 0;
+            f[7] = share;
             double z = p->conf_bias;
             for (int c = 0; c < SINEW_CHECK_NFEATURES; c++) {
                 z -= k[c] * f[c];

@@ -61,7 +61,7 @@ static void usage(FILE *out)
             "  --saturation-level S      clipped if all channels >= S of full scale (0.98)\n"
             "  --features FILE           also write the confidence cues, a float32\n"
             "                            (H*W) x %d .npy table (columns fb photo texture\n"
-            "                            boundary motion outside saturated), for\n"
+            "                            boundary motion outside saturated fb_share), for\n"
             "                            tools/fit_confidence\n"
             "  -t, --threads N           worker threads (0 = all cores, default)\n"
             "  -h, --help                this help\n"

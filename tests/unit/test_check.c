@@ -98,8 +98,8 @@ static void texture_u8(sinew_ctx *ctx, sinew_image *img, int w, int h, unsigned 
 static double conf_of(const sinew_check_params *p, const double f[SINEW_CHECK_NFEATURES])
 {
     const double k[SINEW_CHECK_NFEATURES] = {
-        p->conf_k_fb,     p->conf_k_photo,   p->conf_k_texture,  p->conf_k_boundary,
-        p->conf_k_motion, p->conf_k_outside, p->conf_k_saturated};
+        p->conf_k_fb,     p->conf_k_photo,   p->conf_k_texture,   p->conf_k_boundary,
+        p->conf_k_motion, p->conf_k_outside, p->conf_k_saturated, p->conf_k_fb_share};
     double z = p->conf_bias;
     for (int i = 0; i < SINEW_CHECK_NFEATURES; i++)
         z -= k[i] * f[i];
@@ -217,7 +217,10 @@ static void test_check_fb_hand_computed(void **state)
     p.conf_fb_beta = 0.5;
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, &p), SINEW_OK);
     double tol = sqrt(0.01 * (0.25 + 1.5625) + 0.5);
-    const double cue[SINEW_CHECK_NFEATURES] = {log1p(0.75 / tol), 0, 0, 0, log1p(0.5), 0, 0};
+    /* fb_share: x = 2..6 inconsistent in each of the 3 rows, 15 of 24 pixels */
+    assert_int_equal(r.o.stats.reason[0] + r.o.stats.reason[7], 15);
+    const double cue[SINEW_CHECK_NFEATURES] = {log1p(0.75 / tol), 0, 0, 0,
+                                               log1p(0.5),        0, 0, 15.0 / 24};
     assert_float_equal(*fl(&r.conf, 2, 1), conf_of(&p, cue), 1e-6);
     /* The constants are tunable: a looser beta makes x = 2 consistent. */
     p.fb_beta = 0.6;
@@ -526,6 +529,7 @@ static void test_check_boundary_distance_exact(void **state)
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, NULL), SINEW_OK);
     const int bx[4] = {9, 11, 10, 10}, by[4] = {10, 10, 9, 11};
     assert_int_equal(r.o.stats.reason[2], 4);
+    assert_int_equal(r.o.stats.reason[0] + r.o.stats.reason[7], 1);
     sinew_check_params p;
     sinew_check_params_default(&p);
     for (int k = 0; k < 4; k++)
@@ -540,8 +544,9 @@ static void test_check_boundary_distance_exact(void **state)
                 if (dx * dx + dy * dy < d2)
                     d2 = dx * dx + dy * dy;
             }
+            /* fb_share: the bump itself is inconsistent (e = 1), 1 of w h pixels */
             const double cue[SINEW_CHECK_NFEATURES] = {
-                0, 0, 0, exp(-sqrt(d2) / p.conf_boundary_scale), 0, 0, 0};
+                0, 0, 0, exp(-sqrt(d2) / p.conf_boundary_scale), 0, 0, 0, 1.0 / (w * h)};
             double want = conf_of(&p, cue);
             assert_float_equal(*fl(&r.conf, x, y), want, 1e-6);
         }

@@ -15,6 +15,7 @@
 #include <stdint.h>
 
 #include "flow/check.h"
+#include "flow/camera.h"
 #include "flow/core.h"
 #include "flow/synth.h"
 
@@ -141,6 +142,86 @@ typedef struct sinew_stereo_calib {
  * (0, 100] m, focal lengths of the two cameras differing by more than 1 %, or
  * cy differing by more than 1 px (not a rectified pair) (EVALUE). */
 int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const char *path);
+
+/* ---- calibration form 2: a raw rig, rectified by sinew (flow/stereo_rectify.c) ----
+ * Camera coordinates are x right, y down, z forward, metres; a point X_left in the left
+ * camera's coordinates is X_right = R X_left + T in the right camera's (the usual
+ * convention of stereo calibration). The baseline is |T|. */
+typedef struct sinew_stereo_rig {
+    int raw;                  /* 0: the file was form 1 (rectified; only calib is set);
+                                 1: form 2 (left, right, R, T set) */
+    sinew_stereo_calib calib; /* form 1 as loaded */
+    sinew_camera left, right; /* intrinsics with Brown-Conrady distortion (flow/camera.h);
+                                 width/height = the file's image size or 0 */
+    double R[9];              /* rotation, row-major, orthonormalised on loading */
+    double T[3];              /* metres */
+} sinew_stereo_rig;
+
+/* Load either calibration form (docs/formats.md): form 1 as sinew_stereo_calib_load;
+ * form 2 {"left": {"fx","fy","cx","cy", optional "k1","k2","p1","p2","k3"}, "right":
+ * {...}, "R": 9 numbers row-major or 3 rows of 3, "T": 3 numbers in metres, optional
+ * "width", "height", "comment"}. Form 2 is refused with one message naming the file
+ * (EVALUE) for a focal length outside (0, 1e6) px, implausible distortion (flow/camera.h
+ * sinew_camera_check), an R that is not a rotation (|R R^T - I| > 1e-3 in any element or
+ * det R < 0), |T| below 1 um or above 100 m, a baseline more than 45 degrees from the
+ * x axis of the half-rotated cameras (not a horizontal rig), or a right camera left of
+ * the left one (frames swapped, or R, T inverted). */
+int sinew_stereo_rig_load(sinew_ctx *ctx, sinew_stereo_rig *rig, const char *path);
+
+/* Rectification of a raw rig for width x height frames (Bouguet's method as described in
+ * Bradski & Kaehler, "Learning OpenCV", 2008): each camera turns by half of R toward the
+ * other, then both by the rotation that lays the baseline along x; both rectified views
+ * share one pinhole camera without distortion, f = the smallest of the four focal
+ * lengths, cy = the mean of the rows where the two original image centres land, and one
+ * cx likewise (so doffs = 0 and every disparity of a point in front is positive). */
+typedef struct sinew_stereo_rectification {
+    sinew_stereo_calib calib; /* the rectified pair: fx = fy = f, cx, cy, doffs 0, baseline
+                                 |T|, width, height */
+    double rot[2][9];         /* rectifying rotations, row-major: X_rect = rot[v] X_camera,
+                                 v = 0 left, 1 right */
+    sinew_camera cam[2];      /* the original cameras (distortion included) */
+} sinew_stereo_rectification;
+
+/* Fill *rect from a form-2 rig for frames of width x height (the rig's size, if it has
+ * one, must match: ESIZE). EINVAL for a form-1 rig or bad arguments. */
+int sinew_stereo_rectify_init(sinew_ctx *ctx, sinew_stereo_rectification *rect,
+                              const sinew_stereo_rig *rig, int width, int height);
+
+/* Original (distorted) pixel (u, v) of view v (0 left, 1 right) -> rectified pixel
+ * (*ur, *vr). Returns 1, or 0 when the distortion cannot be inverted or the ray turns
+ * behind the rectified camera. */
+int sinew_stereo_rectify_point(const sinew_stereo_rectification *rect, int view, double u, double v,
+                               double *ur, double *vr);
+
+/* Resample frame `in` (SINEW_U8, U16 or F32, any channels, rect's size) of view `view`
+ * into the rectified view: for each rectified pixel the ray is turned back into the
+ * original camera, distorted and projected, and the frame is sampled bilinearly
+ * (integer types rounded). *out receives a new image of in's type and channels; inside
+ * (may be NULL) a new SINEW_U8 map, 255 where the source point lies inside the original
+ * frame, 0 elsewhere (there out is 0). Deterministic for any thread count. */
+int sinew_stereo_rectify_image(sinew_ctx *ctx, sinew_image *out, sinew_image *inside,
+                               const sinew_image *in, const sinew_stereo_rectification *rect,
+                               int view);
+
+/* After sinew_stereo_run on a rectified pair: mark SINEW_MASK_OUTSIDE in out->mask where
+ * the rectified left pixel came from outside the original left frame (inside_left == 0)
+ * or its match x - d lands where the rectified right frame has no source
+ * (inside_right == 0), set out->confidence (if any) to 0 there, and update out->stats
+ * (kept, reason). inside_* are the SINEW_U8
+ * maps of sinew_stereo_rectify_image (either may be NULL); out->disparity and out->mask
+ * are required. Returns SINEW_OK or SINEW_EINVAL / SINEW_ESIZE. */
+int sinew_stereo_mark_outside(sinew_ctx *ctx, sinew_stereo_output *out,
+                              const sinew_image *inside_left, const sinew_image *inside_right);
+
+/* Depth of the rectified left view (SINEW_F32, metres, NaN = none; rect's size) back to
+ * the left camera's original pixels: each original pixel's ray is located in the
+ * rectified view and the depth there is read bilinearly when the four neighbours are all
+ * valid and within 5 % of each other (one surface), otherwise from the nearest neighbour;
+ * a hole there (or a ray leaving the rectified frame) stays a hole (NaN). The value is
+ * converted to the original camera's z (the rectified camera is rotated). *out receives
+ * a new SINEW_F32 map; valid (may be NULL) the number of finite depths. */
+int sinew_stereo_unrectify_depth(sinew_ctx *ctx, sinew_image *out, const sinew_image *z,
+                                 const sinew_stereo_rectification *rect, int64_t *valid);
 
 /* Depth z = fx * baseline / (d + doffs) in metres for every pixel of a SINEW_F32
  * 1-channel disparity; NaN where mask (optional SINEW_U8, same size) is non-zero,

@@ -16,6 +16,7 @@
 #include "flow/internal/base.h"
 #include "flow/internal/io.h"
 #include "flow/internal/parallel.h"
+#include "flow/internal/stereo.h"
 #include "flow/io.h"
 
 /* ---- true disparity and scores ---- */
@@ -145,20 +146,24 @@ static int number(sinew_ctx *ctx, const cJSON *it, const char *path, const char 
     return SINEW_OK;
 }
 
-/* One camera object {"fx","fy","cx","cy"} into v[0..3]. */
+/* One camera object {"fx","fy","cx","cy", optional "k1","k2","p1","p2","k3"} into
+ * v[0..8] (fx fy cx cy k1 k2 p1 p2 k3; absent coefficients 0); *dist = 1 when a
+ * distortion key was present. */
 static int camera_obj(sinew_ctx *ctx, const cJSON *o, const char *path, const char *name,
-                      double v[4])
+                      double v[9], int *dist)
 {
-    static const char *const keys[4] = {"fx", "fy", "cx", "cy"};
+    static const char *const keys[9] = {"fx", "fy", "cx", "cy", "k1", "k2", "p1", "p2", "k3"};
     if (!cJSON_IsObject(o))
         return sinew__fail(ctx, SINEW_ECONFIG, "%s: \"%s\" must be an object with fx, fy, cx, cy",
                            path, name);
     int have = 0;
+    for (int k = 0; k < 9; k++)
+        v[k] = 0;
     for (const cJSON *it = o->child; it; it = it->next) {
         int k = 0;
-        while (k < 4 && strcmp(it->string, keys[k]) != 0)
+        while (k < 9 && strcmp(it->string, keys[k]) != 0)
             k++;
-        if (k == 4 || (have & (1 << k)))
+        if (k == 9 || (have & (1 << k)))
             return sinew__fail(ctx, SINEW_ECONFIG, "%s: unknown or repeated key \"%s.%s\"", path,
                                name, it->string);
         int st = number(ctx, it, path, it->string, &v[k]);
@@ -166,53 +171,124 @@ static int camera_obj(sinew_ctx *ctx, const cJSON *o, const char *path, const ch
             return st;
         have |= 1 << k;
     }
-    if (have != 15)
+    if ((have & 15) != 15)
         return sinew__fail(ctx, SINEW_ECONFIG, "%s: \"%s\" needs fx, fy, cx and cy", path, name);
     for (int k = 0; k < 2; k++)
         if (!(v[k] > 0) || v[k] >= CALIB_MAX_FOCAL)
             return sinew__fail(ctx, SINEW_EVALUE,
                                "%s: impossible focal length %s.%s = %g px (need 0 < f < 1e6)", path,
                                name, keys[k], v[k]);
+    *dist = have > 15;
     return SINEW_OK;
 }
 
-static int calib_parse(sinew_ctx *ctx, sinew_stereo_calib *out, const cJSON *root, const char *path)
+/* n numbers from a flat array of n, or (n = 9) from 3 rows of 3. */
+static int numbers(sinew_ctx *ctx, const cJSON *it, const char *path, const char *key, double *v,
+                   int n)
 {
+    int k = 0;
+    for (const cJSON *a = cJSON_IsArray(it) ? it->child : NULL; a; a = a->next) {
+        if (n == 9 && cJSON_IsArray(a) && cJSON_GetArraySize(a) == 3 && k % 3 == 0) {
+            for (const cJSON *b = a->child; b; b = b->next)
+                if (number(ctx, b, path, key, &v[k++]))
+                    return SINEW_EVALUE;
+        } else if (k >= n || number(ctx, a, path, key, &v[k++]))
+            return sinew__fail(ctx, SINEW_EVALUE, "%s: \"%s\" must be %s", path, key,
+                               n == 9 ? "9 numbers (row-major) or 3 rows of 3" : "3 numbers");
+        if (k > n)
+            break;
+    }
+    if (k != n)
+        return sinew__fail(ctx, SINEW_EVALUE, "%s: \"%s\" must be %s", path, key,
+                           n == 9 ? "9 numbers (row-major) or 3 rows of 3" : "3 numbers");
+    return SINEW_OK;
+}
+
+enum {
+    K_LEFT = 1,
+    K_RIGHT = 2,
+    K_BASE = 4,
+    K_W = 8,
+    K_H = 16,
+    K_COMMENT = 32,
+    K_R = 64,
+    K_T = 128
+};
+
+/* Both forms: form 1 (baseline) fills rig->calib, form 2 (R, T) the cameras and R, T
+ * (validated by sinew__stereo_rig_check in flow/stereo_rectify.c). */
+static int calib_parse(sinew_ctx *ctx, sinew_stereo_rig *rig, const cJSON *root, const char *path)
+{
+    static const char *const names[8] = {"left",   "right",   "baseline", "width",
+                                         "height", "comment", "R",        "T"};
     if (!cJSON_IsObject(root))
         return sinew__fail(ctx, SINEW_EFORMAT, "%s: expected a JSON object", path);
-    double l[4], r[4], base = NAN, size[2] = {0, 0};
-    int have = 0, st;
+    double l[9] = {0}, r[9] = {0}, base = NAN, size[2] = {0, 0}, R[9] = {0}, T[3] = {0};
+    int have = 0, st, dl = 0, dr = 0;
     for (const cJSON *it = root->child; it; it = it->next) {
         const char *k = it->string;
-        int bit;
-        if (!strcmp(k, "left"))
-            bit = 1, st = camera_obj(ctx, it, path, k, l);
-        else if (!strcmp(k, "right"))
-            bit = 2, st = camera_obj(ctx, it, path, k, r);
-        else if (!strcmp(k, "baseline"))
-            bit = 4, st = number(ctx, it, path, k, &base);
-        else if (!strcmp(k, "width") || !strcmp(k, "height")) {
-            bit = k[0] == 'w' ? 8 : 16;
-            st = number(ctx, it, path, k, &size[bit == 16]);
-            if (!st && (size[bit == 16] < 1 || size[bit == 16] > 1e6 ||
-                        size[bit == 16] != floor(size[bit == 16])))
-                st = sinew__fail(ctx, SINEW_EVALUE, "%s: \"%s\" must be a positive integer", path,
-                                 k);
-        } else if (!strcmp(k, "comment"))
-            bit = 32, st = SINEW_OK;
-        else
+        int i = 0;
+        while (i < 8 && strcmp(k, names[i]) != 0)
+            i++;
+        if (i == 8)
             return sinew__fail(ctx, SINEW_ECONFIG, "%s: unknown key \"%s\"", path, k);
-        if (st)
-            return st;
+        const int bit = 1 << i;
         if (have & bit)
             return sinew__fail(ctx, SINEW_ECONFIG, "%s: key \"%s\" appears twice", path, k);
+        if (bit == K_LEFT || bit == K_RIGHT)
+            st = camera_obj(ctx, it, path, k, bit == K_LEFT ? l : r, bit == K_LEFT ? &dl : &dr);
+        else if (bit == K_BASE)
+            st = number(ctx, it, path, k, &base);
+        else if (bit == K_R || bit == K_T)
+            st = numbers(ctx, it, path, k, bit == K_R ? R : T, bit == K_R ? 9 : 3);
+        else if (bit == K_W || bit == K_H) {
+            double *v = &size[bit == K_H];
+            st = number(ctx, it, path, k, v);
+            if (!st && (*v < 1 || *v > 1e6 || *v != floor(*v)))
+                st = sinew__fail(ctx, SINEW_EVALUE, "%s: \"%s\" must be a positive integer", path,
+                                 k);
+        } else
+            st = SINEW_OK;
+        if (st)
+            return st;
         have |= bit;
     }
-    if ((have & 7) != 7)
-        return sinew__fail(ctx, SINEW_ECONFIG,
-                           "%s: \"left\", \"right\" and \"baseline\" are required", path);
-    if (!!(have & 8) != !!(have & 16))
+    if (!!(have & K_W) != !!(have & K_H))
         return sinew__fail(ctx, SINEW_ECONFIG, "%s: give both width and height, or neither", path);
+    if ((have & (K_LEFT | K_RIGHT)) != (K_LEFT | K_RIGHT))
+        return sinew__fail(ctx, SINEW_ECONFIG, "%s: \"left\" and \"right\" are required", path);
+    memset(rig, 0, sizeof *rig);
+    if (have & (K_R | K_T)) {
+        if ((have & (K_R | K_T)) != (K_R | K_T) || (have & K_BASE))
+            return sinew__fail(ctx, SINEW_ECONFIG,
+                               "%s: a raw rig needs both \"R\" and \"T\" (and no \"baseline\": "
+                               "it is |T|)",
+                               path);
+        rig->raw = 1;
+        sinew_camera *cam[2] = {&rig->left, &rig->right};
+        const double *v[2] = {l, r};
+        for (int c = 0; c < 2; c++) {
+            sinew_camera_init(cam[c], v[c][0], v[c][1], v[c][2], v[c][3], (int)size[0],
+                              (int)size[1]);
+            cam[c]->k1 = v[c][4];
+            cam[c]->k2 = v[c][5];
+            cam[c]->p1 = v[c][6];
+            cam[c]->p2 = v[c][7];
+            cam[c]->k3 = v[c][8];
+        }
+        memcpy(rig->R, R, sizeof R);
+        memcpy(rig->T, T, sizeof T);
+        return sinew__stereo_rig_check(ctx, rig, path);
+    }
+    if (!(have & K_BASE))
+        return sinew__fail(
+            ctx, SINEW_ECONFIG,
+            "%s: give \"baseline\" (a rectified pair) or \"R\" and \"T\" (a raw rig)", path);
+    if (dl || dr)
+        return sinew__fail(ctx, SINEW_ECONFIG,
+                           "%s: distortion coefficients need \"R\" and \"T\" (a rectified pair "
+                           "has none)",
+                           path);
     if (!(base > 0) || base > CALIB_MAX_BASELINE)
         return sinew__fail(
             ctx, SINEW_EVALUE,
@@ -227,7 +303,7 @@ static int calib_parse(sinew_ctx *ctx, sinew_stereo_calib *out, const cJSON *roo
         return sinew__fail(ctx, SINEW_EVALUE,
                            "%s: cy differs by %g px between the cameras (not a rectified pair)",
                            path, fabs(l[3] - r[3]));
-    memset(out, 0, sizeof *out);
+    sinew_stereo_calib *out = &rig->calib;
     out->fx = l[0];
     out->fy = l[1];
     out->cx = l[2];
@@ -239,9 +315,9 @@ static int calib_parse(sinew_ctx *ctx, sinew_stereo_calib *out, const cJSON *roo
     return SINEW_OK;
 }
 
-int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const char *path)
+int sinew_stereo_rig_load(sinew_ctx *ctx, sinew_stereo_rig *rig, const char *path)
 {
-    if (!ctx || !calib || !path)
+    if (!ctx || !rig || !path)
         return SINEW_EINVAL;
     unsigned char *buf;
     size_t len;
@@ -257,9 +333,25 @@ int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const cha
     if (!root)
         return sinew__fail(ctx, SINEW_EFORMAT, "%s: malformed JSON (NaN/Infinity are not JSON)",
                            path);
-    st = calib_parse(ctx, calib, root, path);
+    st = calib_parse(ctx, rig, root, path);
     cJSON_Delete(root);
     return st;
+}
+
+int sinew_stereo_calib_load(sinew_ctx *ctx, sinew_stereo_calib *calib, const char *path)
+{
+    if (!ctx || !calib || !path)
+        return SINEW_EINVAL;
+    sinew_stereo_rig rig;
+    int st = sinew_stereo_rig_load(ctx, &rig, path);
+    if (st)
+        return st;
+    if (rig.raw)
+        return sinew__fail(ctx, SINEW_ECONFIG,
+                           "%s: a raw rig (R, T) must be rectified first (sinew_stereo_rig_load)",
+                           path);
+    *calib = rig.calib;
+    return SINEW_OK;
 }
 
 /* ---- writing maps ---- */

@@ -38,10 +38,17 @@ static void usage(FILE *out)
             "                            2 match outside the right frame, 64 unknown),\n"
             "                            confidence.npy, disparity.png and reasons.png\n"
             "                            (pictures), depth.png with --calib, stereo.json\n"
-            "  --calib FILE              rectified calibration JSON (docs/formats.md)\n"
+            "  --calib FILE              calibration JSON (docs/formats.md): a rectified pair\n"
+            "                            (fx fy cx cy per camera and baseline), or a raw rig\n"
+            "                            (intrinsics + distortion per camera, R and T): then\n"
+            "                            the frames are rectified first and DISP, RDISP and\n"
+            "                            the check folder are in the rectified views\n"
             "  --depth DEPTH             depth z = fx B / (d + doffs): .npy/.pfm in metres\n"
             "                            (NaN invalid) or .png 16-bit millimetres (0 invalid);\n"
-            "                            invalid where the check rejects or d <= 0\n"
+            "                            invalid where the check rejects or d <= 0; with a raw\n"
+            "                            rig taken back to the left frame's own pixels (holes\n"
+            "                            stay holes)\n"
+            "  --depth-rectified         with a raw rig: write DEPTH in the rectified left view\n"
             "  --preset P                fast (4 paths) or balanced (8 paths, default)\n"
             "  --disparities N           number of disparities searched (default: width/6\n"
             "                            rounded up to a multiple of 16, at most 256)\n"
@@ -62,6 +69,7 @@ static void usage(FILE *out)
             "examples:\n"
             "  sinew stereo left.png right.png -o disp.pfm --check out/stereo\n"
             "  sinew stereo l.png r.png -o disp.png --calib rig.json --depth depth.png\n"
+            "  sinew stereo raw_l.png raw_r.png -o disp.pfm --calib raw_rig.json --depth z.npy\n"
             "\n%s",
             cli_notice);
 }
@@ -80,7 +88,8 @@ enum {
     OPT_NORECT,
     OPT_TRUTH,
     OPT_TRUTH_SCALE,
-    OPT_OCC
+    OPT_OCC,
+    OPT_DEPTH_RECT
 };
 
 static int make_dir(const char *dir)
@@ -102,7 +111,8 @@ static int join(char *buf, size_t n, const char *dir, const char *name)
 
 /* stereo.json: parameters and counts. */
 static int write_json(sinew_ctx *ctx, const char *path, const sinew_stereo_params *p,
-                      const sinew_stereo_stats *s, const char *preset)
+                      const sinew_stereo_stats *s, const char *preset,
+                      const sinew_stereo_rectification *rect)
 {
     sinew_outfile *f;
     int st = sinew_outfile_open(ctx, &f, path);
@@ -120,7 +130,15 @@ static int write_json(sinew_ctx *ctx, const char *path, const sinew_stereo_param
     for (int b = 0; b < SINEW_MASK_NBITS; b++)
         fprintf(o, "%s\"%s\": %lld", b ? ", " : "", sinew_check_bit_name(b),
                 (long long)s->reason[b]);
-    fprintf(o, "}\n}\n");
+    fprintf(o, "}");
+    if (rect) { /* the rectified camera, for lifting the rectified views */
+        const sinew_stereo_calib *c = &rect->calib;
+        fprintf(o,
+                ",\n  \"rectified\": {\"fx\": %.17g, \"fy\": %.17g, \"cx\": %.17g, \"cy\": "
+                "%.17g, \"baseline\": %.17g, \"doffs\": %.17g}",
+                c->fx, c->fy, c->cx, c->cy, c->baseline, c->doffs);
+    }
+    fprintf(o, "\n}\n");
     return sinew_outfile_commit(ctx, f);
 }
 
@@ -140,7 +158,7 @@ typedef struct job {
     const char *left, *right, *out, *rout, *check, *calib, *depth, *preset;
     const char *truth, *occ; /* --truth, --occ */
     double truth_scale;
-    int no_rectify_check;
+    int no_rectify_check, depth_rectified;
 } job;
 
 #define RECTIFY_SEARCH 16      /* rows searched above and below (our choice) */
@@ -148,7 +166,8 @@ typedef struct job {
 #define RECTIFY_MAX_DY 1.0     /* px; rectified Middlebury/KITTI pairs give < 0.06 */
 
 static int write_check(sinew_ctx *ctx, const job *j, const sinew_stereo_output *o,
-                       const sinew_image *frame, const sinew_image *z, const sinew_stereo_params *p)
+                       const sinew_image *frame, const sinew_image *z, const sinew_stereo_params *p,
+                       const sinew_stereo_rectification *rect, const sinew_image *rframe)
 {
     char path[4096];
     int st;
@@ -188,8 +207,18 @@ static int write_check(sinew_ctx *ctx, const job *j, const sinew_stereo_output *
     }
     if (join(path, sizeof path, j->check, "stereo.json"))
         return CLI_FAIL;
-    if ((st = write_json(ctx, path, p, &o->stats, j->preset)))
+    if ((st = write_json(ctx, path, p, &o->stats, j->preset, rect)))
         return cli_status(CMD, ctx, st);
+    if (rect) { /* the rectified frames the disparities refer to */
+        if (join(path, sizeof path, j->check, "rectified_left.png"))
+            return CLI_FAIL;
+        if ((st = sinew_image_write_png(ctx, path, frame)))
+            return cli_status(CMD, ctx, st);
+        if (join(path, sizeof path, j->check, "rectified_right.png"))
+            return CLI_FAIL;
+        if ((st = sinew_image_write_png(ctx, path, rframe)))
+            return cli_status(CMD, ctx, st);
+    }
     return CLI_OK;
 }
 
@@ -272,12 +301,54 @@ done:
     return rc;
 }
 
+/* The frames' size against a calibration's (0 = unknown); 1 when they agree. */
+static int size_ok(const job *j, int cw, int ch, const sinew_image *l)
+{
+    if (!cw || (cw == l->width && ch == l->height))
+        return 1;
+    cli_error(CMD, "%s: calibrated for %dx%d, frames are %dx%d", j->calib, cw, ch, l->width,
+              l->height);
+    return 0;
+}
+
+/* A pair off by more than a pixel vertically is not rectified (our threshold; SGM
+ * searches rows only). After rectifying a raw rig the same test checks the calibration. */
+static int rectified_ok(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p,
+                        const sinew_image *l, const sinew_image *r, int raw)
+{
+    double dy;
+    int matched, st;
+    if ((st = sinew_stereo_vertical_offset(ctx, &dy, &matched, l, r, p->min_disparity,
+                                           sinew_stereo_num_disparities(p, l->width),
+                                           RECTIFY_SEARCH))) {
+        cli_status(CMD, ctx, st);
+        return 0;
+    }
+    if (matched < RECTIFY_MIN_MATCHES || fabs(dy) <= RECTIFY_MAX_DY)
+        return 1;
+    if (raw)
+        cli_error(CMD,
+                  "%s: does not fit %s and %s: after rectification matching features are %.1f "
+                  "px apart vertically (median of %d); check the calibration or pass "
+                  "--no-rectify-check",
+                  j->calib, j->left, j->right, dy, matched);
+    else
+        cli_error(CMD,
+                  "%s: not rectified with %s: matching features are %.1f px apart "
+                  "vertically (median of %d); rectify the pair or pass --no-rectify-check",
+                  j->right, j->left, dy, matched);
+    return 0;
+}
+
 static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
 {
     int rc = CLI_FAIL, st;
-    sinew_image l = {0}, r = {0}, d = {0}, rd = {0}, m = {0}, c = {0}, z = {0};
-    sinew_stereo_calib calib;
-    if (j->calib && (st = sinew_stereo_calib_load(ctx, &calib, j->calib))) {
+    sinew_image l = {0}, r = {0}, d = {0}, rd = {0}, m = {0}, c = {0}, z = {0}, zl = {0};
+    sinew_image lr = {0}, rr = {0}, il = {0}, ir = {0};
+    sinew_stereo_rig rig;
+    sinew_stereo_rectification rect;
+    memset(&rig, 0, sizeof rig);
+    if (j->calib && (st = sinew_stereo_rig_load(ctx, &rig, j->calib))) {
         cli_status(CMD, ctx, st);
         goto done;
     }
@@ -290,30 +361,22 @@ static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
                   l.height);
         goto done;
     }
-    if (j->calib && calib.width && (calib.width != l.width || calib.height != l.height)) {
-        cli_error(CMD, "%s: calibrated for %dx%d, frames are %dx%d", j->calib, calib.width,
-                  calib.height, l.width, l.height);
+    sinew_stereo_calib calib = rig.calib;
+    if (j->calib && !size_ok(j, rig.raw ? rig.left.width : calib.width,
+                             rig.raw ? rig.left.height : calib.height, &l))
         goto done;
-    }
-    if (!j->no_rectify_check) {
-        /* a pair off by more than a pixel vertically is not rectified (our threshold;
-           SGM searches rows only) */
-        double dy;
-        int matched;
-        if ((st = sinew_stereo_vertical_offset(ctx, &dy, &matched, &l, &r, p->min_disparity,
-                                               sinew_stereo_num_disparities(p, l.width),
-                                               RECTIFY_SEARCH))) {
+    if (rig.raw) {
+        if ((st = sinew_stereo_rectify_init(ctx, &rect, &rig, l.width, l.height)) ||
+            (st = sinew_stereo_rectify_image(ctx, &lr, &il, &l, &rect, 0)) ||
+            (st = sinew_stereo_rectify_image(ctx, &rr, &ir, &r, &rect, 1))) {
             cli_status(CMD, ctx, st);
             goto done;
         }
-        if (matched >= RECTIFY_MIN_MATCHES && fabs(dy) > RECTIFY_MAX_DY) {
-            cli_error(CMD,
-                      "%s: not rectified with %s: matching features are %.1f px apart "
-                      "vertically (median of %d); rectify the pair or pass --no-rectify-check",
-                      j->right, j->left, dy, matched);
-            goto done;
-        }
+        calib = rect.calib;
     }
+    const sinew_image *L = rig.raw ? &lr : &l, *R = rig.raw ? &rr : &r;
+    if (!j->no_rectify_check && !rectified_ok(ctx, j, p, L, R, rig.raw))
+        goto done;
     if ((st = sinew_image_alloc(ctx, &d, l.width, l.height, 1, SINEW_F32)) ||
         (st = sinew_image_alloc(ctx, &rd, l.width, l.height, 1, SINEW_F32)) ||
         (st = sinew_image_alloc(ctx, &m, l.width, l.height, 1, SINEW_U8)) ||
@@ -322,7 +385,8 @@ static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
         goto done;
     }
     sinew_stereo_output o = {.disparity = &d, .right = &rd, .mask = &m, .confidence = &c};
-    if ((st = sinew_stereo_run(ctx, &o, &l, &r, p))) {
+    if ((st = sinew_stereo_run(ctx, &o, L, R, p)) ||
+        (rig.raw && (st = sinew_stereo_mark_outside(ctx, &o, &il, &ir)))) {
         cli_status(CMD, ctx, st);
         goto done;
     }
@@ -331,28 +395,36 @@ static int run(sinew_ctx *ctx, const job *j, const sinew_stereo_params *p)
         cli_status(CMD, ctx, st);
         goto done;
     }
-    if ((st = sinew_stereo_write_map(ctx, j->out, &d, 256.0)) ||
-        (j->rout && (st = sinew_stereo_write_map(ctx, j->rout, &rd, 256.0))) ||
-        (j->depth && (st = sinew_stereo_write_map(ctx, j->depth, &z, 1000.0)))) {
+    const int back = rig.raw && !j->depth_rectified; /* depth in the left frame's pixels */
+    if (back && (st = sinew_stereo_unrectify_depth(ctx, &zl, &z, &rect, &valid))) {
         cli_status(CMD, ctx, st);
         goto done;
     }
-    if (j->check && write_check(ctx, j, &o, &l, j->calib ? &z : NULL, p))
+    const sinew_image *zout = back ? &zl : &z;
+    if ((st = sinew_stereo_write_map(ctx, j->out, &d, 256.0)) ||
+        (j->rout && (st = sinew_stereo_write_map(ctx, j->rout, &rd, 256.0))) ||
+        (j->depth && (st = sinew_stereo_write_map(ctx, j->depth, zout, 1000.0)))) {
+        cli_status(CMD, ctx, st);
         goto done;
-    printf("%s: %dx%d, disparities %d..%d, kept %.1f%% (left-right inconsistent %.1f%%, "
+    }
+    if (j->check &&
+        write_check(ctx, j, &o, L, j->calib ? zout : NULL, p, rig.raw ? &rect : NULL, R))
+        goto done;
+    printf("%s: %dx%d%s, disparities %d..%d, kept %.1f%% (left-right inconsistent %.1f%%, "
            "outside %.1f%%)%s",
-           j->out, l.width, l.height, o.stats.min_disparity,
+           j->out, l.width, l.height, rig.raw ? " rectified" : "", o.stats.min_disparity,
            o.stats.min_disparity + o.stats.num_disparities - 1,
            100.0 * (double)o.stats.kept / (double)o.stats.pixels,
            100.0 * (double)o.stats.reason[0] / (double)o.stats.pixels,
            100.0 * (double)o.stats.reason[1] / (double)o.stats.pixels, j->calib ? "" : "\n");
     if (j->calib)
-        printf(", depth valid %.1f%%\n", 100.0 * (double)valid / (double)o.stats.pixels);
+        printf(", depth valid %.1f%%%s\n", 100.0 * (double)valid / (double)o.stats.pixels,
+               back ? " (left frame pixels)" : "");
     if (j->truth && score(ctx, j, &d))
         goto done;
     rc = CLI_OK;
 done:;
-    sinew_image *all[] = {&l, &r, &d, &rd, &m, &c, &z};
+    sinew_image *all[] = {&l, &r, &d, &rd, &m, &c, &z, &zl, &lr, &rr, &il, &ir};
     for (size_t i = 0; i < sizeof all / sizeof all[0]; i++)
         sinew_image_free(all[i]);
     return rc;
@@ -396,6 +468,7 @@ int cmd_stereo(int argc, char **argv)
         {"truth", required_argument, NULL, OPT_TRUTH},
         {"truth-scale", required_argument, NULL, OPT_TRUTH_SCALE},
         {"occ", required_argument, NULL, OPT_OCC},
+        {"depth-rectified", no_argument, NULL, OPT_DEPTH_RECT},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0},
     };
@@ -465,6 +538,9 @@ int cmd_stereo(int argc, char **argv)
         case OPT_OCC:
             j.occ = optarg;
             break;
+        case OPT_DEPTH_RECT:
+            j.depth_rectified = 1;
+            break;
         default:
             return cli_bad_option(CMD, opts, argv[optind - 1]);
         }
@@ -479,6 +555,8 @@ int cmd_stereo(int argc, char **argv)
         return cli_usage_error(CMD, "-o DISP is required");
     if (j.depth && !j.calib)
         return cli_usage_error(CMD, "--depth needs --calib FILE");
+    if (j.depth_rectified && !j.depth)
+        return cli_usage_error(CMD, "--depth-rectified needs --depth DEPTH");
     /* refuse an output format before spending the matching time on it */
     const char *outs[3] = {j.out, j.rout, j.depth};
     for (int i = 0; i < 3; i++)

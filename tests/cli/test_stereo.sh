@@ -166,3 +166,63 @@ expect_error "synth --stereo refuses a zero baseline" - "baseline in \(0, 1\]" \
     "$SINEW_BIN" synth -o "$T/syn2" --frames 2 --size 64x48 --stereo 0
 expect_error "--occ without --truth" "$T/e9.pfm" "needs --truth" \
     "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e9.pfm" --occ "$T/l.pgm"
+
+# Calibration form 2 (a raw rig: intrinsics per camera, R and T). The identity rig
+# (principal points at the image centre, R = I, T along -x) rectifies nothing: the
+# disparity is byte-identical to the rectified calibration's, depth 500 * 0.2 / 5 = 20 m.
+cat >"$T/id_rect.json" <<'EOF2'
+{"left": {"fx": 500, "fy": 500, "cx": 79.5, "cy": 29.5},
+ "right": {"fx": 500, "fy": 500, "cx": 79.5, "cy": 29.5}, "baseline": 0.2}
+EOF2
+cat >"$T/id_raw.json" <<'EOF2'
+{"left": {"fx": 500, "fy": 500, "cx": 79.5, "cy": 29.5, "k1": 0},
+ "right": {"fx": 500, "fy": 500, "cx": 79.5, "cy": 29.5},
+ "R": [[1, 0, 0], [0, 1, 0], [0, 0, 1]], "T": [-0.2, 0, 0], "width": 160, "height": 60}
+EOF2
+if "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/id1.pfm" --disparities 16 --calib "$T/id_rect.json" \
+    --depth "$T/id1.npy" >"$T/out" 2>"$T/err" &&
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/id2.pfm" --disparities 16 --calib "$T/id_raw.json" \
+        --depth "$T/id2.npy" --check "$T/idchk" >"$T/out" 2>"$T/err" &&
+    cmp -s "$T/id1.pfm" "$T/id2.pfm" && cmp -s "$T/id1.npy" "$T/id2.npy" &&
+    [ -s "$T/idchk/rectified_left.png" ] && [ -s "$T/idchk/rectified_right.png" ] &&
+    grep -q "rectified" "$T/out"; then
+    pass "raw identity rig: same disparity and depth bytes as the rectified calibration"
+else fail "raw identity rig: same disparity and depth bytes as the rectified calibration" "$(cat "$T/out" "$T/err" | head -c 300)"; fi
+
+# The pair that is not rectified (right = left moved 5 px left and 4 px down) becomes a
+# rectified one with the rig that pitches the right camera by atan(4 / 500) = 0.458
+# degrees: refused without it, matched with it; depth 500 * 0.2 / 5 = 20 m (median), in
+# the left frame's pixels. The opposite pitch doubles the offset and is named.
+"$PYTHON" - "$T" <<'EOF2'
+import math, sys
+t = sys.argv[1]
+for name, s in (('pitch', -1), ('wrong', 1)):
+    a = s * math.atan(4 / 500)
+    c, si = math.cos(a), math.sin(a)
+    open('%s/%s.json' % (t, name), 'w').write(
+        '{"left": {"fx": 500, "fy": 500, "cx": 99.5, "cy": 69.5}, '
+        '"right": {"fx": 500, "fy": 500, "cx": 99.5, "cy": 69.5}, '
+        '"R": [[1, 0, 0], [0, %.9f, %.9f], [0, %.9f, %.9f]], "T": [-0.2, 0, 0]}' % (c, -si, si, c))
+EOF2
+if "$SINEW_BIN" stereo "$T/vl.pgm" "$T/vr.pgm" -o "$T/p.pfm" --disparities 16 --calib "$T/pitch.json" \
+    --depth "$T/p.npy" >"$T/out" 2>"$T/err" && "$PYTHON" - "$T" <<'EOF2'
+import sys; sys.path.insert(0, sys.argv[1]); from read import npy
+w, h, z = npy(sys.argv[1] + '/p.npy')
+v = sorted(x for row in z for x in row if x == x)
+assert len(v) > 0.9 * w * h, len(v)
+assert abs(v[len(v) // 2] - 20) < 0.1, v[len(v) // 2]
+EOF2
+then pass "raw rig with the pair's pitch: rectified, depth 20 m"
+else fail "raw rig with the pair's pitch: rectified, depth 20 m" "$(cat "$T/out" "$T/err" | head -c 300)"; fi
+expect_error "raw rig that does not fit the frames: named" "$T/w.pfm" "wrong.json: does not fit .*vl.pgm and .*vr.pgm: after rectification .* 8.0 px apart" \
+    "$SINEW_BIN" stereo "$T/vl.pgm" "$T/vr.pgm" -o "$T/w.pfm" --disparities 16 --calib "$T/wrong.json"
+printf '{"left": {"fx": 500, "fy": 500, "cx": 80, "cy": 30}, "right": {"fx": 500, "fy": 500, "cx": 80, "cy": 30}, "R": [2, 0, 0, 0, 1, 0, 0, 0, 1], "T": [-0.1, 0, 0]}' >"$T/bad3.json"
+expect_error "R that is not a rotation" "$T/e10.pfm" "bad3.json: R is not a rotation" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e10.pfm" --calib "$T/bad3.json" --depth "$T/e10.npy"
+printf '{"left": {"fx": 500, "fy": 500, "cx": 80, "cy": 30}, "right": {"fx": 500, "fy": 500, "cx": 80, "cy": 30}, "R": [1, 0, 0, 0, 1, 0, 0, 0, 1], "T": [0, 0, 0]}' >"$T/bad4.json"
+expect_error "zero baseline" "$T/e11.pfm" "bad4.json: impossible baseline" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e11.pfm" --calib "$T/bad4.json"
+expect_error "raw rig for another frame size" "$T/e12.pfm" "id_raw.json: calibrated for 160x60, frames are 200x140" \
+    "$SINEW_BIN" stereo "$T/vl.pgm" "$T/vr.pgm" -o "$T/e12.pfm" --calib "$T/id_raw.json"
+expect_error "--depth-rectified without --depth" "$T/e13.pfm" "needs --depth" \
+    "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/e13.pfm" --depth-rectified

@@ -1,6 +1,7 @@
 /* SPDX-License-Identifier: MIT */
 /* The run report's pictures: per pair the frame, the flow in wheel colours, the
- * confidence and the rejection reasons (drawn with flow/draw.h), shrunk to the
+ * confidence and the rejection reasons (drawn with flow/draw.h), for stereo runs the
+ * first frame's disparity and depth with labelled colour bars, shrunk to the
  * thumbnail width by area averaging, encoded as PNG in memory (sinew_png_encode) and
  * inlined as base64 data URIs; and the legend above them. */
 #include <math.h>
@@ -12,7 +13,9 @@
 #include "flow/internal/base.h"
 #include "flow/internal/report.h"
 #include "flow/io.h"
+#include "flow/depth.h"
 #include "flow/run.h"
+#include "flow/runstereo.h"
 
 /* Frame as RGB U8 at full brightness. */
 static int frame_rgb(sinew_ctx *ctx, sinew_image *out, const sinew_image *f)
@@ -68,6 +71,41 @@ static int shrink(sinew_ctx *ctx, sinew_image *out, const sinew_image *in, int t
         }
     }
     return SINEW_OK;
+}
+
+/* A float map (1 channel) shrunk to width tw by averaging each block's finite values (NaN
+ * where it has none); copied when not wider. */
+static int shrink_map(sinew_ctx *ctx, sinew_image *out, const sinew_image *in, int tw)
+{
+    if (in->width <= tw)
+        return sinew_image_copy(ctx, out, in);
+    int th = (int)((int64_t)in->height * tw / in->width);
+    th = th < 1 ? 1 : th;
+    int st = sinew_image_alloc(ctx, out, tw, th, 1, SINEW_F32);
+    for (int y = 0; !st && y < th; y++) {
+        const int y0 = (int)((int64_t)y * in->height / th);
+        const int y1 = (int)((int64_t)(y + 1) * in->height / th) > y0
+                           ? (int)((int64_t)(y + 1) * in->height / th)
+                           : y0 + 1;
+        for (int x = 0; x < tw; x++) {
+            const int x0 = (int)((int64_t)x * in->width / tw);
+            const int x1 = (int)((int64_t)(x + 1) * in->width / tw) > x0
+                               ? (int)((int64_t)(x + 1) * in->width / tw)
+                               : x0 + 1;
+            double sum = 0;
+            long cnt = 0;
+            for (int yy = y0; yy < y1; yy++)
+                for (int xx = x0; xx < x1; xx++) {
+                    const float v = sinew_image_row_f32(in, yy)[xx];
+                    if (isfinite(v)) {
+                        sum += v;
+                        cnt++;
+                    }
+                }
+            sinew_image_row_f32(out, y)[x] = cnt ? (float)(sum / (double)cnt) : NAN;
+        }
+    }
+    return st;
 }
 
 /* Emit an <img> with the shrunk picture, or return the failing status. */
@@ -134,6 +172,47 @@ static const char *frame_path(const sinew__report *r, int k)
     return k >= 0 && (size_t)k < r->ncolour ? r->colour[k] : NULL;
 }
 
+/* Stereo runs (flow/runstereo.h): the disparity and depth of the pair's first frame,
+ * each with a labelled colour bar (disparity 0 to its largest value, depth 0 to twice its
+ * median, as `sinew stereo --check` draws them); nothing for other runs. */
+static int stereo_figures(sinew__report *r, sinew__sbuf *b, const sinew__report_pair *q)
+{
+    static const char *const file[2] = {SINEW_RUN_STEREO_DISPARITY, SINEW_RUN_STEREO_DEPTH};
+    static const char *const caption[2] = {"disparity", "depth"};
+    static const char *const label[2] = {"DISPARITY (PX)", "DEPTH (M)"};
+    sinew_ctx *ctx = r->ctx;
+    const char *fp = frame_path(r, q->fi);
+    char dir[4096], path[4200];
+    if (!fp || sinew_run_stereo_frame_dir(ctx, r->rundir, fp, dir, sizeof dir)) {
+        sinew_ctx_clear(ctx);
+        return SINEW_OK;
+    }
+    snprintf(path, sizeof path, "%s/%s", dir, file[0]);
+    if (!sinew__report_exists(path))
+        return SINEW_OK;
+    int rc = SINEW_OK;
+    for (int k = 0; k < 2 && !rc; k++) {
+        sinew_image img = {0}, small = {0}, pic = {0};
+        snprintf(path, sizeof path, "%s/%s", dir, file[k]);
+        int st = sinew__report_read_checked(ctx, &img, path, 1, 1, SINEW_F32);
+        if (!st)
+            st = shrink_map(ctx, &small, &img, r->o.thumb_width);
+        double hi = 0, med = NAN;
+        for (int y = 0; !st && k == 0 && y < small.height; y++)
+            for (int x = 0; x < small.width; x++)
+                hi = fmax(hi, sinew_image_row_f32(&small, y)[x]); /* fmax skips NaN */
+        if (!st && k == 1 && !(st = sinew_depth_median(ctx, &med, NULL, &small)))
+            hi = isfinite(med) ? 2 * med : 0;
+        if (!st)
+            st = sinew_draw_heatmap(ctx, &pic, &small, 0, hi, label[k], 1);
+        rc = figure(r, b, q, caption[k], st, &pic, "no stereo map");
+        sinew_image_free(&img);
+        sinew_image_free(&small);
+        sinew_image_free(&pic);
+    }
+    return rc;
+}
+
 int sinew__report_pictures(sinew__report *r, sinew__sbuf *b, const sinew__report_pair *q,
                            double fmax)
 {
@@ -196,6 +275,8 @@ int sinew__report_pictures(sinew__report *r, sinew__sbuf *b, const sinew__report
         }
     }
     rc = figure(r, b, q, "rejection reasons", st, &pic, "no " SINEW_RUN_MASK_FILE);
+    if (!rc)
+        rc = stereo_figures(r, b, q);
 done:
     sinew__sb_puts(b, "</div></article>\n");
     sinew_image_free(&frame);

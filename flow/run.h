@@ -56,6 +56,9 @@ typedef struct sinew_run_source {
 #define SINEW_RUN_SOURCE_DROP_UNMATCHED                                                            \
     1u /* leave out colour images without a depth map                                              \
           (a warning each) instead of failing */
+/* Stereo layout: left/ (or color/) and right/ matched by stem like depth/ (right frames in
+ * sinew_run_frame.right; depth/ is not read); depth comes from flow/runstereo.h. */
+#define SINEW_RUN_SOURCE_STEREO 2u
 
 /* Scan a folder (layout above). max_dt: association tolerance in seconds (the
  * published TUM default is 0.02). ECONFIG naming the folder when neither layout is
@@ -101,6 +104,8 @@ typedef struct sinew_run_frame {
     const char *labels; /* label image path or NULL */
     const char *ignore; /* ignore mask path or NULL: the forward check of a pair that
                            starts at this frame rejects its pixels (reason "ignored") */
+    const char *right;  /* stereo: the right frame of a stereo pair (SINEW_RUN_SOURCE_STEREO,
+                           flow/runstereo.h) or NULL */
     int has_timestamp;  /* 1 when timestamp is known (lists, sequence.json) */
     double timestamp;   /* capture time in seconds */
 } sinew_run_frame;

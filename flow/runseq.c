@@ -29,6 +29,13 @@ static int is_dir(const char *p)
     return stat(p, &st) == 0 && S_ISDIR(st.st_mode);
 }
 
+/* dir/name is a folder (paths too long count as absent). */
+static int is_dir_in(const char *dir, const char *name)
+{
+    char p[SINEW__PATH_MAX];
+    return (size_t)snprintf(p, sizeof p, "%s/%s", dir, name) < sizeof p && is_dir(p);
+}
+
 void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src)
 {
     if (!ctx || !src)
@@ -38,6 +45,7 @@ void sinew_run_source_free(sinew_ctx *ctx, sinew_run_source *src)
         sinew__free(ctx, (void *)src->frames[f].depth);
         sinew__free(ctx, (void *)src->frames[f].labels);
         sinew__free(ctx, (void *)src->frames[f].ignore);
+        sinew__free(ctx, (void *)src->frames[f].right);
     }
     sinew__free(ctx, src->frames);
     sinew__free(ctx, src->intrinsics);
@@ -341,7 +349,11 @@ static int numbering_warnings(sinew_ctx *ctx, sinew_run_source *out, const char 
 static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_run_source *out)
 {
     enum { COLOR, DEPTH, LABELS, IGNORE, NSUB };
-    static const char *const sub[NSUB] = {"color", "depth", "labels", "ignore"};
+    /* stereo: DEPTH is the right frame's slot, COLOR the left frame's */
+    const int stereo = (flags & SINEW_RUN_SOURCE_STEREO) != 0;
+    const char *const sub[NSUB] = {stereo && is_dir_in(dir, "left") ? "left" : "color",
+                                   stereo ? "right" : "depth", "labels", "ignore"};
+    const char *const what = stereo ? "right frame" : "depth map";
     char **l[NSUB] = {NULL, NULL, NULL, NULL};
     size_t n[NSUB] = {0, 0, 0, 0};
     key_set ks[NSUB] = {{0}, {0}, {0}, {0}};
@@ -381,11 +393,11 @@ static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_ru
         if (have[DEPTH] && !d) {
             if (!(flags & SINEW_RUN_SOURCE_DROP_UNMATCHED))
                 rc = sinew__fail(ctx, SINEW_ECONFIG,
-                                 "%s: no depth map for %s (none named %.*s.*; "
+                                 "%s: no %s for %s (none named %.*s.*; "
                                  "--drop-unmatched leaves such frames out)",
-                                 p[1], l[0][f], (int)ck[f].stem, ck[f].name);
+                                 p[1], what, l[0][f], (int)ck[f].stem, ck[f].name);
             else
-                rc = warn(ctx, out, "%s: no depth map for %s: frame left out", p[1], l[0][f]);
+                rc = warn(ctx, out, "%s: no %s for %s: frame left out", p[1], what, l[0][f]);
             out->dropped++;
             continue;
         }
@@ -398,10 +410,11 @@ static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_ru
             break;
         sinew_run_frame *fr = &out->frames[out->nframes++];
         fr->color = sinew__strdup(ctx, l[0][f]);
-        fr->depth = d ? sinew__strdup(ctx, d->path) : NULL;
+        const char **slot = stereo ? &fr->right : &fr->depth;
+        *slot = d ? sinew__strdup(ctx, d->path) : NULL;
         fr->labels = lb ? sinew__strdup(ctx, lb->path) : NULL;
         fr->ignore = ig ? sinew__strdup(ctx, ig->path) : NULL;
-        if (!fr->color || (d && !fr->depth) || (lb && !fr->labels) || (ig && !fr->ignore))
+        if (!fr->color || (d && !*slot) || (lb && !fr->labels) || (ig && !fr->ignore))
             rc = SINEW_ENOMEM;
         if (d)
             ks[DEPTH].used[d->idx] = 1;
@@ -416,7 +429,7 @@ static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_ru
             if (!ks[k].used[i])
                 rc = warn(ctx, out, "%s: no colour frame for %s: not used", p[k], l[k][i]);
     if (!rc && !out->nframes)
-        rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no colour image has a depth map", p[0]);
+        rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no colour image has a %s", p[0], what);
     if (!rc)
         rc = numbering_warnings(ctx, out, p[0], ck, kept);
     sinew__free(ctx, ck);
@@ -440,7 +453,7 @@ int sinew_run_source_from_folder(sinew_ctx *ctx, sinew_run_source *out, const ch
     if ((rc = sinew__path_join(ctx, pa, sizeof pa, dir, "rgb.txt")) ||
         (rc = sinew__path_join(ctx, pb, sizeof pb, dir, "depth.txt")))
         return rc;
-    if (is_file(pa) && is_file(pb))
+    if (is_file(pa) && is_file(pb) && !(flags & SINEW_RUN_SOURCE_STEREO))
         rc = from_lists(ctx, dir, max_dt, out);
     else
         rc = from_layout(ctx, dir, flags, out);

@@ -15,6 +15,7 @@
 #include "flow/report.h"
 #include "flow/rigid.h"
 #include "flow/run.h"
+#include "flow/runstereo.h"
 #include "flow/schedule.h"
 #include "flow/sha256.h"
 #include "flow/sequence.h"

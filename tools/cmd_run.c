@@ -25,6 +25,7 @@
 #include "flow/camera.h"
 #include "flow/io.h"
 #include "flow/report.h"
+#include "flow/runstereo.h"
 #include "flow/sequence.h"
 #include "tools/cli.h"
 
@@ -47,6 +48,13 @@ static void usage(FILE *out)
             "                         color/ [depth/ labels/ ignore/] [intrinsics.json], matched\n"
             "                         by file stem (000007.png <-> 000007.npy) or the stem's\n"
             "                         number (frame-7.color <-> frame-7.depth)\n"
+            "  stereo FOLDER          left/ (or color/) + right/ matched by stem and a\n"
+            "                         calibration stereo_calib.json (docs/formats.md):\n"
+            "                         each frame's depth is computed by the stereo engine\n"
+            "                         into OUTDIR/stereo/ (reused by --resume), then\n"
+            "                         flow, check and lift run as for RGB-D; chosen when\n"
+            "                         right/ and stereo_calib.json exist without depth/,\n"
+            "                         or with --stereo\n"
             "options:\n"
             "  -o, --output DIR       output folder (created if missing)\n"
             "  --schedule S           consecutive (default) | gap:K | keyframe:K:M (every\n"
@@ -63,7 +71,11 @@ static void usage(FILE *out)
             "  --drop-unmatched       folder input: leave out colour images that have no\n"
             "                         depth map of the same stem (a warning each) instead\n"
             "                         of failing\n"
-            "  --depth-scale S        16-bit depth codes per metre (default 1000; TUM: 5000)\n"
+            "  --depth-scale S        16-bit depth codes per metre (default 1000; TUM: 5000)\n");
+    fprintf(out,
+            "  --stereo               folder input is a stereo sequence (above)\n"
+            "  --stereo-calib FILE    its calibration (default FOLDER/stereo_calib.json)\n"
+            "  --stereo-preset P      stereo matching: fast | balanced (default)\n"
             "  --match-stride S       matches on a grid of step S pixels (default 4; 0 = all)\n"
             "  --intrinsics K         fx,fy,cx,cy[,width,height] or a file as for sinew lift;\n"
             "                         replaces a folder's intrinsics.json and a sequence's\n"
@@ -265,6 +277,8 @@ static void on_progress(void *ud, const sinew_run_progress *p)
 typedef struct {
     const char *input, *outdir, *flow_from, *schedule, *intrinsics;
     int resume, dry, report, merge, shard_k, shard_n, force_options, drop_unmatched;
+    int stereo;                               /* --stereo given */
+    const char *stereo_calib, *stereo_preset; /* --stereo-calib, --stereo-preset */
     /* SINEW_RUN_OPT_* bits of the options given on the command line; once options.json
      * is applied, also every stored one (the sequence's settings must not override them;
      * the first four bits are SINEW_RUN_KEEP_*) */
@@ -297,7 +311,10 @@ enum {
     O_DROP,
     O_POLARITY,
     O_INTRINSICS,
-    O_TUNE /* O_TUNE + k: tuning key k (sinew_run_tune) */
+    O_STEREO,
+    O_STEREO_CALIB,
+    O_STEREO_PRESET,
+    O_TUNE /* O_TUNE + k: tuning key k (sinew_run_tune); last */
 };
 
 static int parse_shard(const char *arg, run_args *a)
@@ -348,6 +365,19 @@ static int parse_option(int c, const char *arg, run_args *a)
         break;
     case O_DROP:
         a->drop_unmatched = 1;
+        break;
+    case O_STEREO:
+        a->stereo = 1;
+        break;
+    case O_STEREO_CALIB:
+        a->stereo_calib = arg;
+        a->stereo = 1;
+        break;
+    case O_STEREO_PRESET:
+        if (strcmp(arg, "fast") && strcmp(arg, "balanced"))
+            return cli_usage_error(CMD, "--stereo-preset: expected fast or balanced, got '%s'",
+                                   arg);
+        a->stereo_preset = arg;
         break;
     case O_POLARITY:
         if (!strcmp(arg, "nonzero"))
@@ -441,46 +471,50 @@ static int parse_option(int c, const char *arg, run_args *a)
  * or a usage error). */
 static int parse_args(int argc, char **argv, run_args *a)
 {
-    static const struct option opts[] = {{"output", required_argument, NULL, 'o'},
-                                         {"resume", no_argument, NULL, O_RESUME},
-                                         {"shard", required_argument, NULL, O_SHARD},
-                                         {"dry-run", no_argument, NULL, O_DRY},
-                                         {"on-error", required_argument, NULL, O_ONERR},
-                                         {"progress", required_argument, NULL, O_PROGRESS},
-                                         {"flow-format", required_argument, NULL, O_FMT},
-                                         {"flow-from", required_argument, NULL, O_FROM},
-                                         {"threads", required_argument, NULL, 't'},
-                                         {"jobs", required_argument, NULL, O_JOBS},
-                                         {"report", no_argument, NULL, O_REPORT},
-                                         {"schedule", required_argument, NULL, O_SCHED},
-                                         {"preset", required_argument, NULL, O_PRESET},
-                                         {"max-dt", required_argument, NULL, O_MAXDT},
-                                         {"merge", no_argument, NULL, O_MERGE},
-                                         {"depth-scale", required_argument, NULL, O_DSCALE},
-                                         {"match-stride", required_argument, NULL, O_MSTRIDE},
-                                         {"force-options", no_argument, NULL, O_FORCE},
-                                         {"drop-unmatched", no_argument, NULL, O_DROP},
-                                         {"ignore-polarity", required_argument, NULL, O_POLARITY},
-                                         {"intrinsics", required_argument, NULL, O_INTRINSICS},
-                                         /* the check's and the lift's options (sinew_run_tune) */
-                                         {"fb-alpha", required_argument, NULL, O_TUNE + 0},
-                                         {"fb-beta", required_argument, NULL, O_TUNE + 1},
-                                         {"boundary-alpha", required_argument, NULL, O_TUNE + 2},
-                                         {"boundary-beta", required_argument, NULL, O_TUNE + 3},
-                                         {"photo-threshold", required_argument, NULL, O_TUNE + 4},
-                                         {"saturation-level", required_argument, NULL, O_TUNE + 5},
-                                         {"near", required_argument, NULL, O_TUNE + 6},
-                                         {"far", required_argument, NULL, O_TUNE + 7},
-                                         {"edge", required_argument, NULL, O_TUNE + 8},
-                                         {"edge-radius", required_argument, NULL, O_TUNE + 9},
-                                         {"max-displacement", required_argument, NULL, O_TUNE + 10},
-                                         {"normals", no_argument, NULL, O_TUNE + 11},
-                                         {"top-k", required_argument, NULL, O_TUNE + 12},
-                                         {"cell", required_argument, NULL, O_TUNE + 13},
-                                         {"per-cell", required_argument, NULL, O_TUNE + 14},
-                                         {"min-weight", required_argument, NULL, O_TUNE + 15},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {NULL, 0, NULL, 0}};
+    static const struct option opts[] = {
+        {"output", required_argument, NULL, 'o'},
+        {"resume", no_argument, NULL, O_RESUME},
+        {"shard", required_argument, NULL, O_SHARD},
+        {"dry-run", no_argument, NULL, O_DRY},
+        {"on-error", required_argument, NULL, O_ONERR},
+        {"progress", required_argument, NULL, O_PROGRESS},
+        {"flow-format", required_argument, NULL, O_FMT},
+        {"flow-from", required_argument, NULL, O_FROM},
+        {"threads", required_argument, NULL, 't'},
+        {"jobs", required_argument, NULL, O_JOBS},
+        {"report", no_argument, NULL, O_REPORT},
+        {"schedule", required_argument, NULL, O_SCHED},
+        {"preset", required_argument, NULL, O_PRESET},
+        {"max-dt", required_argument, NULL, O_MAXDT},
+        {"merge", no_argument, NULL, O_MERGE},
+        {"depth-scale", required_argument, NULL, O_DSCALE},
+        {"match-stride", required_argument, NULL, O_MSTRIDE},
+        {"force-options", no_argument, NULL, O_FORCE},
+        {"drop-unmatched", no_argument, NULL, O_DROP},
+        {"ignore-polarity", required_argument, NULL, O_POLARITY},
+        {"stereo", no_argument, NULL, O_STEREO},
+        {"stereo-calib", required_argument, NULL, O_STEREO_CALIB},
+        {"stereo-preset", required_argument, NULL, O_STEREO_PRESET},
+        {"intrinsics", required_argument, NULL, O_INTRINSICS},
+        /* the check's and the lift's options (sinew_run_tune) */
+        {"fb-alpha", required_argument, NULL, O_TUNE + 0},
+        {"fb-beta", required_argument, NULL, O_TUNE + 1},
+        {"boundary-alpha", required_argument, NULL, O_TUNE + 2},
+        {"boundary-beta", required_argument, NULL, O_TUNE + 3},
+        {"photo-threshold", required_argument, NULL, O_TUNE + 4},
+        {"saturation-level", required_argument, NULL, O_TUNE + 5},
+        {"near", required_argument, NULL, O_TUNE + 6},
+        {"far", required_argument, NULL, O_TUNE + 7},
+        {"edge", required_argument, NULL, O_TUNE + 8},
+        {"edge-radius", required_argument, NULL, O_TUNE + 9},
+        {"max-displacement", required_argument, NULL, O_TUNE + 10},
+        {"normals", no_argument, NULL, O_TUNE + 11},
+        {"top-k", required_argument, NULL, O_TUNE + 12},
+        {"cell", required_argument, NULL, O_TUNE + 13},
+        {"per-cell", required_argument, NULL, O_TUNE + 14},
+        {"min-weight", required_argument, NULL, O_TUNE + 15},
+        {"help", no_argument, NULL, 'h'},
+        {NULL, 0, NULL, 0}};
     memset(a, 0, sizeof *a);
     a->shard_n = 1;
     a->max_dt = 0.02;
@@ -520,9 +554,10 @@ typedef struct {
     sinew_run_source src;
     sinew_sequence *seq;
     sinew_camera cam;
-    sinew_camera given_cam; /* --intrinsics */
-    sinew_pair *list;       /* the schedule's explicit pairs (on ctx) or NULL */
-    sinew_pair *pairs;      /* the expanded schedule (on ctx) */
+    sinew_camera given_cam;  /* --intrinsics */
+    char stereo_calib[4200]; /* a stereo folder's calibration, "" otherwise */
+    sinew_pair *list;        /* the schedule's explicit pairs (on ctx) or NULL */
+    sinew_pair *pairs;       /* the expanded schedule (on ctx) */
     size_t npairs;
     char options[2048];
     const char *outputs[SINEW_RUN_PIPELINE_MAX_OUTPUTS]; /* what each pair folder holds */
@@ -609,6 +644,30 @@ static int store_options(sinew_ctx *ctx, const run_args *a)
     return CLI_OK;
 }
 
+/* A stereo folder (--stereo, or right/ and stereo_calib.json without depth/): its
+ * calibration path into p->stereo_calib ("" for an RGB-D folder). */
+static void stereo_folder(const run_args *a, run_plan *p)
+{
+    char path[4200];
+    struct stat st;
+    p->stereo_calib[0] = 0;
+    if (!a->stereo) {
+        snprintf(path, sizeof path, "%s/depth", a->input);
+        if (stat(path, &st) == 0)
+            return;
+        snprintf(path, sizeof path, "%s/right", a->input);
+        if (stat(path, &st) != 0 || !S_ISDIR(st.st_mode))
+            return;
+        snprintf(path, sizeof path, "%s/" SINEW_RUN_STEREO_CALIB, a->input);
+        if (stat(path, &st) != 0)
+            return;
+    }
+    if (a->stereo_calib)
+        snprintf(p->stereo_calib, sizeof p->stereo_calib, "%s", a->stereo_calib);
+    else
+        snprintf(p->stereo_calib, sizeof p->stereo_calib, "%s/" SINEW_RUN_STEREO_CALIB, a->input);
+}
+
 /* Frames: a folder without sequence.json is scanned (flow/run.h), anything else is read
  * as a sequence whose settings apply under the command line's. */
 static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
@@ -629,15 +688,27 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
         a->pp.camera = &p->given_cam;
     }
     if (is_dir && stat(seqpath, &st) != 0) {
-        if ((rc = sinew_run_source_from_folder(ctx, &p->src, a->input, a->max_dt,
-                                               a->drop_unmatched ? SINEW_RUN_SOURCE_DROP_UNMATCHED
-                                                                 : 0)))
+        unsigned flags = a->drop_unmatched ? SINEW_RUN_SOURCE_DROP_UNMATCHED : 0;
+        stereo_folder(a, p);
+        if (p->stereo_calib[0] && a->intrinsics)
+            return cli_usage_error(CMD, "--intrinsics does not apply to a stereo folder (the "
+                                        "calibration's left camera lifts its matches)");
+        if (p->stereo_calib[0]) {
+            flags |= SINEW_RUN_SOURCE_STEREO;
+            /* the depth maps are in the left camera: its intrinsics lift the matches */
+            if ((rc = sinew_run_stereo_camera(ctx, p->stereo_calib, &p->cam)))
+                return cli_status(CMD, ctx, rc);
+            a->pp.camera = &p->cam;
+        }
+        if ((rc = sinew_run_source_from_folder(ctx, &p->src, a->input, a->max_dt, flags)))
             return cli_status(CMD, ctx, rc);
         for (size_t k = 0; k < p->src.nwarnings; k++)
             if (warn_take(&p->warn, p->src.warnings[k]))
                 cli_warning(CMD, "%s", p->src.warnings[k]);
         return CLI_OK;
     }
+    if (a->stereo)
+        return cli_usage_error(CMD, "--stereo needs a folder without sequence.json");
     const char *sp = is_dir ? seqpath : a->input;
     if ((rc = sinew_sequence_read(ctx, &p->seq, sp)) ||
         (rc = sinew_run_source_from_sequence(ctx, &p->src, p->seq, sp)) ||
@@ -956,6 +1027,38 @@ static int merge(sinew_ctx *ctx, sinew_run *run, const run_args *a, size_t npair
     return CLI_OK;
 }
 
+/* A stereo folder: each needed frame's depth into OUTDIR/stereo (reused with --resume)
+ * and into the frames, before the pairs are hashed; one line (or JSON event) of counts. */
+static int stereo_depths(sinew_ctx *ctx, const run_args *a, run_plan *p)
+{
+    sinew_run_stereo_params sp = {
+        .calib = p->stereo_calib, .preset = a->stereo_preset, .resume = a->resume};
+    sinew_run_stereo_result res;
+    double t0 = now_s();
+    int rc = sinew_run_stereo_depths(ctx, p->src.frames, &p->spec, &sp, &res);
+    if (rc)
+        return cli_status(CMD, ctx, rc);
+    if (a->progress == PROG_JSON)
+        printf("{\"event\":\"stereo\",\"computed\":%zu,\"reused\":%zu,\"elapsed_s\":%.3f}\n",
+               res.computed, res.reused, now_s() - t0);
+    else
+        printf("stereo: %zu depth maps computed, %zu reused in %.1f s (%s/" SINEW_RUN_STEREO_DIR
+               ")\n",
+               res.computed, res.reused, now_s() - t0, a->outdir);
+    fflush(stdout);
+    return CLI_OK;
+}
+
+/* --merge of a stereo run: the frames' cached depth paths, so the pairs' keys match. */
+static int stereo_paths(sinew_ctx *ctx, const run_args *a, run_plan *p)
+{
+    sinew_run_stereo_params sp = {
+        .calib = p->stereo_calib, .preset = a->stereo_preset, .paths_only = 1};
+    sinew_run_stereo_result res;
+    int rc = sinew_run_stereo_depths(ctx, p->src.frames, &p->spec, &sp, &res);
+    return rc ? cli_status(CMD, ctx, rc) : CLI_OK;
+}
+
 /* The run itself, then the manifest (whole runs only), the summary lines, the --report
  * table and page, and the final one-line error. */
 /* ---- pairs at once (--jobs) ---- */
@@ -1054,6 +1157,10 @@ static int execute(sinew_ctx *ctx, const run_args *a, run_plan *p, sinew_run *ru
      * output folder's lock (tools/cli.h) */
     cli_stop_install(CMD, ctx);
     cli_stop_also_remove(sinew_run_lock_path(run));
+    if (p->stereo_calib[0] && (rc = stereo_depths(ctx, a, p)) != CLI_OK) {
+        jobs_free(&js);
+        return rc;
+    }
     progress_state ps = {.mode = a->progress,
                          .live = a->progress == PROG_AUTO && isatty(STDOUT_FILENO),
                          .t0 = now_s(),
@@ -1146,6 +1253,9 @@ int cmd_run(int argc, char **argv)
         ret = dry_run(ctx, &p.spec, &a.pp);
     else if (ret == CLI_OK && (rc = sinew_run_new(ctx, &run, &p.spec)))
         ret = cli_status(CMD, ctx, rc);
+    else if (ret == CLI_OK && a.merge && p.stereo_calib[0] &&
+             (rc = stereo_paths(ctx, &a, &p)) != CLI_OK)
+        ret = rc;
     else if (ret == CLI_OK && a.merge)
         ret = merge(ctx, run, &a, p.npairs);
     else if (ret == CLI_OK && (ret = store_options(ctx, &a)) == CLI_OK)

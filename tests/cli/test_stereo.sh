@@ -40,22 +40,8 @@ for y in range(H):
 open(t + '/r.pgm', 'wb').write(hdr + bytes(out))
 EOF
 
-cat >"$T/read.py" <<'EOF'
-import struct, sys
-def pfm(path):
-    f = open(path, 'rb')
-    kind = f.readline().strip(); w, h = map(int, f.readline().split()); s = float(f.readline())
-    n = w * h
-    v = struct.unpack(('<' if s < 0 else '>') + 'f' * n, f.read(4 * n))
-    return w, h, [v[(h - 1 - y) * w:(h - y) * w] for y in range(h)]  # PFM rows bottom-up
-def npy(path):
-    b = open(path, 'rb').read()
-    n = struct.unpack('<H', b[8:10])[0]; hdr = b[10:10 + n].decode()
-    assert "'<f4'" in hdr, hdr
-    shape = eval(hdr)['shape']; h, w = shape
-    v = struct.unpack('<' + 'f' * (w * h), b[10 + n:10 + n + 4 * w * h])
-    return w, h, [v[y * w:(y + 1) * w] for y in range(h)]
-EOF
+# the float map readers (standard library only)
+cp "$(dirname "$0")/maps.py" "$T/read.py"
 
 if "$SINEW_BIN" stereo "$T/l.pgm" "$T/r.pgm" -o "$T/d.pfm" --right "$T/rd.npy" \
     --check "$T/chk" --disparities 16 >"$T/out" 2>"$T/err"; then

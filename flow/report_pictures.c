@@ -183,7 +183,7 @@ static int stereo_figures(sinew__report *r, sinew__sbuf *b, const sinew__report_
     sinew_ctx *ctx = r->ctx;
     const char *fp = frame_path(r, q->fi);
     char dir[4096], path[4200];
-    if (!fp || sinew_run_stereo_frame_dir(ctx, r->rundir, fp, dir, sizeof dir)) {
+    if (!fp || sinew_run_stereo_frame_dir(ctx, dir, sizeof dir, r->rundir, fp)) {
         sinew_ctx_clear(ctx);
         return SINEW_OK;
     }

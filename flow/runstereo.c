@@ -30,7 +30,7 @@ static const char *const OUTPUTS[] = {SINEW_RUN_STEREO_DEPTH, SINEW_RUN_STEREO_D
 #define RECT_MIN_MATCHES 10
 #define RECT_MAX_DY 1.0
 
-int sinew_run_stereo_camera(sinew_ctx *ctx, const char *calib, sinew_camera *cam)
+int sinew_run_stereo_camera(sinew_ctx *ctx, sinew_camera *cam, const char *calib)
 {
     if (!ctx || !calib || !cam)
         return SINEW_EINVAL;
@@ -70,8 +70,8 @@ static int stem_of(sinew_ctx *ctx, const char *path, char *out, size_t n)
     return SINEW_OK;
 }
 
-int sinew_run_stereo_frame_dir(sinew_ctx *ctx, const char *outdir, const char *left, char *buf,
-                               size_t n)
+int sinew_run_stereo_frame_dir(sinew_ctx *ctx, char *buf, size_t n, const char *outdir,
+                               const char *left)
 {
     if (!ctx || !outdir || !left || !buf)
         return SINEW_EINVAL;
@@ -245,7 +245,7 @@ static int one_frame(sinew_ctx *ctx, state *s, sinew_run_frame *fr, sinew_run_st
         return sinew__fail(ctx, SINEW_ECONFIG, "%s: no right frame for this left frame", fr->color);
     char dir[SINEW__PATH_MAX], npy[SINEW__PATH_MAX];
     char lhex[65], rhex[65], key[65];
-    int st = sinew_run_stereo_frame_dir(ctx, s->outdir, fr->color, dir, sizeof dir);
+    int st = sinew_run_stereo_frame_dir(ctx, dir, sizeof dir, s->outdir, fr->color);
     if (!st)
         st = sinew__path_join(ctx, npy, sizeof npy, dir, SINEW_RUN_STEREO_DEPTH);
     if (st)
@@ -286,8 +286,8 @@ path:
     return fr->depth ? SINEW_OK : SINEW_ENOMEM;
 }
 
-int sinew_run_stereo_depths(sinew_ctx *ctx, sinew_run_frame *frames, const sinew_run_spec *spec,
-                            const sinew_run_stereo_params *p, sinew_run_stereo_result *res)
+int sinew_run_stereo_depths(sinew_ctx *ctx, sinew_run_frame *frames, sinew_run_stereo_result *res,
+                            const sinew_run_spec *spec, const sinew_run_stereo_params *p)
 {
     if (!ctx || !frames || !spec || !p || !p->calib || !res || !spec->outdir)
         return SINEW_EINVAL;

@@ -44,24 +44,24 @@ typedef struct sinew_run_stereo_result {
 /* The left camera the depth maps are in, from a calibration file (either form): a
  * rectified pair's left camera, or a raw rig's left camera with its distortion. Errors
  * of sinew_stereo_rig_load, naming the file. */
-int sinew_run_stereo_camera(sinew_ctx *ctx, const char *calib, sinew_camera *cam);
+int sinew_run_stereo_camera(sinew_ctx *ctx, sinew_camera *cam, const char *calib);
 
 /* OUTDIR/stereo/STEM of the left frame at path `left` into buf (n bytes); ELIMIT naming
  * the path when it does not fit. */
-int sinew_run_stereo_frame_dir(sinew_ctx *ctx, const char *outdir, const char *left, char *buf,
-                               size_t n);
+int sinew_run_stereo_frame_dir(sinew_ctx *ctx, char *buf, size_t n, const char *outdir,
+                               const char *left);
 
-/* For every frame of the pairs this shard owns (spec: frames, pairs, shard, outdir,
- * cancel), compute or reuse its depth (above) and set frames[i].depth to its path
+/* For every frame of the pairs this shard owns (spec: frames, pairs, shard, outdir),
+ * compute or reuse its depth (above) and set frames[i].depth to its path
  * (allocated on ctx, freed by sinew_run_source_free). frames is spec->frames' array,
  * writable; every used frame needs a right frame (ECONFIG naming the left frame
  * otherwise). Frames are processed in order with ctx's threads; the stereo search uses
  * the preset and its automatic disparity range. Errors name the file (unreadable frame,
  * sizes that differ, a pair that is not rectified after the calibration is applied:
- * median vertical offset of matched features above 1 px). EINTERRUPTED when the cancel
- * flag or the context's stop flag is set between frames. */
-int sinew_run_stereo_depths(sinew_ctx *ctx, sinew_run_frame *frames, const sinew_run_spec *spec,
-                            const sinew_run_stereo_params *p, sinew_run_stereo_result *res);
+ * median vertical offset of matched features above 1 px). EINTERRUPTED when the
+ * context's stop flag is set between frames. */
+int sinew_run_stereo_depths(sinew_ctx *ctx, sinew_run_frame *frames, sinew_run_stereo_result *res,
+                            const sinew_run_spec *spec, const sinew_run_stereo_params *p);
 
 #ifdef __cplusplus
 }

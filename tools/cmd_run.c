@@ -696,7 +696,7 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
         if (p->stereo_calib[0]) {
             flags |= SINEW_RUN_SOURCE_STEREO;
             /* the depth maps are in the left camera: its intrinsics lift the matches */
-            if ((rc = sinew_run_stereo_camera(ctx, p->stereo_calib, &p->cam)))
+            if ((rc = sinew_run_stereo_camera(ctx, &p->cam, p->stereo_calib)))
                 return cli_status(CMD, ctx, rc);
             a->pp.camera = &p->cam;
         }
@@ -1035,7 +1035,7 @@ static int stereo_depths(sinew_ctx *ctx, const run_args *a, run_plan *p)
         .calib = p->stereo_calib, .preset = a->stereo_preset, .resume = a->resume};
     sinew_run_stereo_result res;
     double t0 = now_s();
-    int rc = sinew_run_stereo_depths(ctx, p->src.frames, &p->spec, &sp, &res);
+    int rc = sinew_run_stereo_depths(ctx, p->src.frames, &res, &p->spec, &sp);
     if (rc)
         return cli_status(CMD, ctx, rc);
     if (a->progress == PROG_JSON)
@@ -1055,7 +1055,7 @@ static int stereo_paths(sinew_ctx *ctx, const run_args *a, run_plan *p)
     sinew_run_stereo_params sp = {
         .calib = p->stereo_calib, .preset = a->stereo_preset, .paths_only = 1};
     sinew_run_stereo_result res;
-    int rc = sinew_run_stereo_depths(ctx, p->src.frames, &p->spec, &sp, &res);
+    int rc = sinew_run_stereo_depths(ctx, p->src.frames, &res, &p->spec, &sp);
     return rc ? cli_status(CMD, ctx, rc) : CLI_OK;
 }
 

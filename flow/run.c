@@ -225,6 +225,41 @@ static int lock_conflict(sinew_ctx *ctx, const char *dir, const char *name, cons
                        li->n > 1 ? "a shard" : "a whole run or merge");
 }
 
+/* Create the lock file p (named `name` in dir) holding text, so that it is never seen
+ * half-written: the text goes into ".NAME.PID" beside it, which is then hard-linked
+ * under the lock's name (link fails with EEXIST when the lock exists) and removed. A
+ * process killed in between leaves only ".NAME.PID", which lock_acquire removes once
+ * that process is gone. Returns 0 or an errno value. */
+static int lock_create(const char *dir, const char *name, const char *p, const char *text,
+                       size_t tlen)
+{
+    char tmp[SINEW__PATH_MAX];
+    int w = snprintf(tmp, sizeof tmp, "%s/.%s.%ld", dir, name, (long)getpid());
+    if (w < 0 || (size_t)w >= sizeof tmp)
+        return ENAMETOOLONG;
+    (void)unlink(tmp); /* our own pid: a leftover of an earlier process with it */
+    int fd = open(tmp, O_WRONLY | O_CREAT | O_EXCL | O_NOFOLLOW | O_CLOEXEC, 0666);
+    if (fd < 0)
+        return errno;
+    int ok = write(fd, text, tlen) == (ssize_t)tlen;
+    ok = close(fd) == 0 && ok;
+    int err = !ok ? EIO : link(tmp, p) != 0 ? errno : 0;
+    (void)unlink(tmp);
+    return err;
+}
+
+/* A lock's temporary ".NAMEPREFIX....PID" (see lock_create) whose process no longer
+ * exists on this host. */
+static int lock_temp_stale(const char *entry)
+{
+    if (entry[0] != '.' || strncmp(entry + 1, LOCK_PREFIX, sizeof LOCK_PREFIX - 1))
+        return 0;
+    const char *dot = strrchr(entry, '.');
+    char *end;
+    long pid = dot && dot > entry ? strtol(dot + 1, &end, 10) : 0;
+    return pid > 0 && *end == '\0' && kill((pid_t)pid, 0) != 0 && errno == ESRCH;
+}
+
 static int lock_acquire(sinew_run *run)
 {
     sinew_ctx *ctx = run->ctx;
@@ -240,18 +275,11 @@ static int lock_acquire(sinew_run *run)
         return sinew__fail(ctx, SINEW_ELIMIT, "%s: path too long", s->outdir);
     int tlen = snprintf(text, sizeof text, "pid %ld\nhost %s\n", (long)getpid(), host);
     for (int attempt = 0;; attempt++) {
-        int fd = open(p, O_WRONLY | O_CREAT | O_EXCL | O_NOFOLLOW | O_CLOEXEC, 0666);
-        if (fd >= 0) {
-            int ok = write(fd, text, (size_t)tlen) == tlen;
-            ok = close(fd) == 0 && ok;
-            if (!ok) {
-                unlink(p);
-                return sinew__fail(ctx, SINEW_EIO, "%s: cannot write the lock", p);
-            }
+        int err = lock_create(s->outdir, mine, p, text, (size_t)tlen);
+        if (!err)
             break;
-        }
-        if (errno != EEXIST)
-            return sinew__fail(ctx, SINEW_EIO, "%s: cannot create: %s", p, strerror(errno));
+        if (err != EEXIST)
+            return sinew__fail(ctx, SINEW_EIO, "%s: cannot create: %s", p, strerror(err));
         lock_info li;
         (void)lock_read(ctx, s->outdir, mine, &li);
         if (attempt > 0 || !lock_stale(&li, host))
@@ -265,9 +293,14 @@ static int lock_acquire(sinew_run *run)
     int rc = SINEW_OK;
     while (d && !rc && (e = readdir(d)) != NULL) {
         lock_info li;
+        char q[SINEW__PATH_MAX];
+        if (lock_temp_stale(e->d_name)) { /* left by a process killed taking its lock */
+            if (!sinew__path_join(ctx, q, sizeof q, s->outdir, e->d_name))
+                unlink(q);
+            continue;
+        }
         if (!strcmp(e->d_name, mine) || !lock_read(ctx, s->outdir, e->d_name, &li))
             continue;
-        char q[SINEW__PATH_MAX];
         if (lock_stale(&li, host)) {
             if (!sinew__path_join(ctx, q, sizeof q, s->outdir, e->d_name))
                 unlink(q);

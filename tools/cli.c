@@ -10,6 +10,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 const char cli_notice[] =
@@ -71,7 +72,9 @@ void cli_json_string(FILE *f, const char *s)
     fputc('"', f);
 }
 
-static void vprint_line(const char *cmd, const char *fmt, va_list ap)
+/* "sinew: CMD: PRE<message>POST" on stderr; pre and post are our own text. */
+static void vprint_line(const char *cmd, const char *pre, const char *post, const char *fmt,
+                        va_list ap)
 {
     /* whole, never cut: the cause is at the end of the line */
     va_list aq;
@@ -92,9 +95,9 @@ static void vprint_line(const char *cmd, const char *fmt, va_list ap)
             *p = ' ';
     cli_term_text(buf, safe, 4 * n); /* file names may carry ESC and friends */
     if (cmd && *cmd)
-        fprintf(stderr, "sinew: %s: %s\n", cmd, safe);
+        fprintf(stderr, "sinew: %s: %s%s%s\n", cmd, pre, safe, post);
     else
-        fprintf(stderr, "sinew: %s\n", safe);
+        fprintf(stderr, "sinew: %s%s%s\n", pre, safe, post);
     free(buf);
     free(safe);
 }
@@ -103,32 +106,28 @@ int cli_error(const char *cmd, const char *fmt, ...)
 {
     va_list ap;
     va_start(ap, fmt);
-    vprint_line(cmd, fmt, ap);
+    vprint_line(cmd, "", "", fmt, ap);
     va_end(ap);
     return CLI_FAIL;
 }
 
 void cli_warning(const char *cmd, const char *fmt, ...)
 {
-    char buf[3 * SINEW_MESSAGE_MAX];
     va_list ap;
     va_start(ap, fmt);
-    vsnprintf(buf, sizeof buf, fmt, ap);
+    vprint_line(cmd, "warning: ", "", fmt, ap);
     va_end(ap);
-    cli_error(cmd, "warning: %s", buf);
 }
 
 int cli_usage_error(const char *cmd, const char *fmt, ...)
 {
-    char buf[3 * SINEW_MESSAGE_MAX];
+    char hint[96];
+    snprintf(hint, sizeof hint, " (see 'sinew %s%s--help')", cmd ? cmd : "",
+             cmd && *cmd ? " " : "");
     va_list ap;
     va_start(ap, fmt);
-    vsnprintf(buf, sizeof buf, fmt, ap);
+    vprint_line(cmd, "", hint, fmt, ap);
     va_end(ap);
-    if (cmd && *cmd)
-        cli_error(cmd, "%s (see 'sinew %s --help')", buf, cmd);
-    else
-        cli_error(cmd, "%s (see 'sinew --help')", buf);
     return CLI_USAGE;
 }
 
@@ -216,6 +215,14 @@ int cli_bad_option(const char *cmd, const struct option *opts, const char *arg)
                 return cli_usage_error(cmd, "option '-%c' (--%s) needs a value", optopt,
                                        opts[k].name);
     return cli_usage_error(cmd, "unknown option '%s'", arg);
+}
+
+int cli_intrinsics_read(sinew_ctx *ctx, sinew_camera *cam, const char *arg)
+{
+    struct stat st;
+    if (stat(arg, &st) != 0 && strchr(arg, ','))
+        return sinew_camera_parse(ctx, cam, arg, "--intrinsics");
+    return sinew_camera_load(ctx, cam, arg);
 }
 
 int cli_status(const char *cmd, sinew_ctx *ctx, int status)

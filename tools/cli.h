@@ -22,6 +22,10 @@ int cli_error(const char *cmd, const char *fmt, ...) __attribute__((format(print
 void cli_warning(const char *cmd, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
 /* Same as cli_error with exit code CLI_USAGE and a hint to run --help. */
 int cli_usage_error(const char *cmd, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* Intrinsics as --intrinsics gives them: the file `arg`, or values "fx,fy,cx,cy[,w,h]"
+ * when no such file exists and arg has a comma (sinew_camera_load / sinew_camera_parse);
+ * a sinew status. */
+int cli_intrinsics_read(sinew_ctx *ctx, sinew_camera *cam, const char *arg);
 /* Print the context's message for a failed status (or the generic text). Returns CLI_FAIL. */
 int cli_status(const char *cmd, sinew_ctx *ctx, int status);
 

@@ -10,7 +10,6 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 #include "flow/io.h"
 #include "tools/cli.h"
@@ -331,15 +330,6 @@ static int parse_args(const char *cmd, int lift, int argc, char **argv, opts *o)
     return CLI_OK;
 }
 
-/* Intrinsics from a file, or from "fx,fy,cx,cy[,w,h]" when no such file exists. */
-static int load_intrinsics(sinew_ctx *ctx, sinew_camera *cam, const char *arg)
-{
-    struct stat st;
-    if (stat(arg, &st) != 0 && strchr(arg, ','))
-        return sinew_camera_parse(ctx, cam, arg, "--intrinsics");
-    return sinew_camera_load(ctx, cam, arg);
-}
-
 typedef struct state {
     sinew_image flow, mask, conf, l0, l1, raw0, raw1, d0, d1;
     char mask_path[4096], conf_path[4096];
@@ -411,7 +401,7 @@ static int match_main(int argc, char **argv, int lift)
         in.labels1_name = o.labels1;
     }
     if (lift) {
-        if ((rc = load_intrinsics(ctx, &cam_file, o.intrinsics)) ||
+        if ((rc = cli_intrinsics_read(ctx, &cam_file, o.intrinsics)) ||
             (rc = sinew_camera_fit(ctx, &cam, &cam_file, w, h, o.intrinsics)))
             goto fail;
         if ((rc = load_depth(ctx, &o, &cam, o.depth0, &s.raw0, &s.d0, &median[0])) ||

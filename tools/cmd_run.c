@@ -679,11 +679,7 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
     snprintf(seqpath, sizeof seqpath, "%s/sequence.json", a->input);
     int is_dir = S_ISDIR(st.st_mode), rc;
     if (a->intrinsics) { /* a file, or values fx,fy,cx,cy[,width,height] */
-        struct stat ks;
-        rc = stat(a->intrinsics, &ks) == 0
-                 ? sinew_camera_load(ctx, &p->given_cam, a->intrinsics)
-                 : sinew_camera_parse(ctx, &p->given_cam, a->intrinsics, "--intrinsics");
-        if (rc)
+        if ((rc = cli_intrinsics_read(ctx, &p->given_cam, a->intrinsics)))
             return cli_status(CMD, ctx, rc);
         a->pp.camera = &p->given_cam;
     }

@@ -45,25 +45,45 @@ static void usage(FILE *out)
             cli_notice);
 }
 
-/* Threads that wait at a barrier sleep instead of spinning (OMP_WAIT_POLICY=passive),
- * unless the user chose a policy (OMP_WAIT_POLICY or GOMP_SPINCOUNT). With the OpenMP
- * runtime's default spinning, a thread waiting for a descheduled peer burns the core
- * that peer needs: on this project's 2-core benchmark machine with 2 competing busy
- * processes, `sinew flow --preset fast` took 0.4-2.5 s spinning against 0.04-0.05 s
- * passive (docs/benchmarks.md, whole commands). The runtime reads the variable once
- * when it is loaded, before main, so the process re-executes itself once with it set
- * (same pid, about a millisecond); if that fails it simply goes on. Only the
- * OpenMP build has a runtime to tell. */
-static void wait_policy(char **argv)
+/* Settings that the OpenMP runtime and the C library read only when the process
+ * starts (before main), so the process re-executes itself once with them set in its
+ * environment (same pid; about 5 ms on the project's 2-core benchmark VM); if that
+ * fails it simply goes on. Each is left alone when the user chose it.
+ *
+ * - Threads that wait at a barrier sleep instead of spinning (OMP_WAIT_POLICY=passive,
+ *   unless OMP_WAIT_POLICY or GOMP_SPINCOUNT is set). With the OpenMP runtime's default
+ *   spinning, a thread waiting for a descheduled peer burns the core that peer needs:
+ *   with 2 competing busy processes on 2 cores, `sinew flow --preset fast` took
+ *   0.4-2.5 s spinning against 0.04-0.05 s passive (docs/benchmarks.md, wait policy).
+ * - The heap is backed by 2 MiB pages where the kernel offers them on request
+ *   (transparent huge pages in "madvise" mode; glibc's glibc.malloc.hugetlb=1 tunable,
+ *   unless GLIBC_TUNABLES already names it). A fresh process touches every plane for
+ *   the first time, and each 4 KiB page fault costs about 6 us on that VM: `sinew flow
+ *   --preset fast` on a 640x480 pair took 4050 faults, 700 with the tunable, and 25 ms
+ *   less (docs/benchmarks.md, start-up). Older C libraries ignore the name. */
+static void start_settings(char **argv)
 {
+    int again = 0;
 #ifdef _OPENMP
-    if (getenv("OMP_WAIT_POLICY") || getenv("GOMP_SPINCOUNT"))
-        return;
-    if (setenv("OMP_WAIT_POLICY", "passive", 1) == 0)
-        execv("/proc/self/exe", argv);
-#else
-    (void)argv;
+    if (!getenv("OMP_WAIT_POLICY") && !getenv("GOMP_SPINCOUNT")) {
+        if (setenv("OMP_WAIT_POLICY", "passive", 1) != 0)
+            return;
+        again = 1;
+    }
 #endif
+#if defined(__GLIBC__)
+    const char *tun = getenv("GLIBC_TUNABLES");
+    if (!tun || !strstr(tun, "glibc.malloc.hugetlb")) {
+        static const char thp[] = "glibc.malloc.hugetlb=1";
+        char buf[1024];
+        int n = tun && *tun ? snprintf(buf, sizeof buf, "%s:%s", tun, thp)
+                            : snprintf(buf, sizeof buf, "%s", thp);
+        if (n > 0 && (size_t)n < sizeof buf && setenv("GLIBC_TUNABLES", buf, 1) == 0)
+            again = 1;
+    }
+#endif
+    if (again)
+        execv("/proc/self/exe", argv);
 }
 
 /* Freed planes stay with the process for the next pair instead of going back to the
@@ -82,7 +102,7 @@ static void malloc_policy(void)
 
 int main(int argc, char **argv)
 {
-    wait_policy(argv);
+    start_settings(argv);
     malloc_policy();
     /* A file-size limit (ulimit -f) must surface as a write error with a message, not
      * kill the process with SIGXFSZ halfway through an output. */

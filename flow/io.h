@@ -39,6 +39,30 @@ int sinew_mask_read(sinew_ctx *ctx, sinew_image *mask, const char *path);
  * EUNSUPPORTED for other extensions, EFORMAT for other shapes. */
 int sinew_map_read(sinew_ctx *ctx, sinew_image *map, const char *path);
 
+/* ---- headers only ----
+ * What the reader of a role would give, without decoding any pixel: width, height,
+ * channels and sample type, and the role's checks on them (e.g. one channel and not
+ * 8-bit for depth). Beyond the header the file's structure is checked cheaply: raw
+ * formats (PGM/PPM, .npy, PFM) must have exactly the raster's size; a PNG's chunks are
+ * walked to IEND (IHDR first, PLTE for palette images, at least one IDAT, every chunk
+ * inside the file); a JPEG's markers are walked to the end-of-image marker. Compressed
+ * data is not decoded, so a PNG or JPEG whose compressed data is corrupt passes here
+ * and fails when read. Errors name the file, as the readers' do. */
+typedef enum sinew_read_role {
+    SINEW_ROLE_IMAGE = 0, /* sinew_image_read */
+    SINEW_ROLE_DEPTH,     /* sinew_depth_read */
+    SINEW_ROLE_LABELS,    /* sinew_labels_read */
+    SINEW_ROLE_MASK,      /* sinew_mask_read (values of a float .npy are not checked) */
+    SINEW_ROLE_MAP        /* sinew_map_read */
+} sinew_read_role;
+
+typedef struct sinew_image_info {
+    int width, height, channels;
+    sinew_type type;
+} sinew_image_info;
+
+int sinew_image_info_read(sinew_ctx *ctx, sinew_image_info *info, const char *path, int role);
+
 /* Write a PNG: SINEW_U8 or SINEW_U16, 1..4 channels (gray, gray+alpha, RGB, RGBA). */
 int sinew_image_write_png(sinew_ctx *ctx, const char *path, const sinew_image *img);
 /* Encode an 8-bit image (SINEW_U8, 1..4 channels: gray, gray+alpha, RGB, RGBA) as PNG

@@ -271,11 +271,11 @@ int sinew_flow_read(sinew_ctx *ctx, sinew_image *flow, const char *path, sinew_f
         rc = kitti_read(ctx, path, flow);
         break;
     case SINEW_FLOW_PFM:
-        rc = sinew__pfm_read(ctx, path, flow, 1);
+        rc = sinew__pfm_read(ctx, path, flow, SINEW__READ_FLOW);
         break;
     case SINEW_FLOW_NPY:
     case SINEW_FLOW_NPY16:
-        rc = sinew__npy_read(ctx, path, flow, 1);
+        rc = sinew__npy_read(ctx, path, flow, SINEW__READ_FLOW);
         break;
     default:
         return sinew__fail(ctx, SINEW_EINVAL, "%s: unknown flow format %d", path, (int)fmt);

@@ -13,12 +13,10 @@
 #include "flow/internal/io.h"
 #include "flow/io.h"
 
-int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path)
+/* Open PATH and read the image in it, detected from the content; with
+ * SINEW__READ_HEADER only its header and structure (no pixels). */
+static int image_read(sinew_ctx *ctx, sinew_image *out, const char *path, int flags)
 {
-    if (out)
-        memset(out, 0, sizeof *out);
-    if (!ctx || !out || !path)
-        return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read image: missing argument") : SINEW_EINVAL;
     FILE *fp;
     int rc = sinew__open_regular(ctx, path, &fp);
     if (rc)
@@ -31,14 +29,17 @@ int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path)
     }
     rewind(fp);
     static const unsigned char png_sig[8] = {0x89, 'P', 'N', 'G', '\r', '\n', 0x1a, '\n'};
+    int header = flags & SINEW__READ_HEADER;
     if (got == 0)
         rc = sinew__fail(ctx, SINEW_EFORMAT, "%s: empty file", path);
     else if (got == 8 && !memcmp(sig, png_sig, 8))
-        rc = sinew__png_read_fp(ctx, path, fp, out);
+        rc = header ? sinew__png_info_fp(ctx, path, fp, out)
+                    : sinew__png_read_fp(ctx, path, fp, out);
     else if (got >= 3 && sig[0] == 0xff && sig[1] == 0xd8 && sig[2] == 0xff)
-        rc = sinew__jpeg_read_fp(ctx, path, fp, out);
+        rc = header ? sinew__jpeg_info_fp(ctx, path, fp, out)
+                    : sinew__jpeg_read_fp(ctx, path, fp, out);
     else if (got >= 2 && sig[0] == 'P' && sig[1] >= '1' && sig[1] <= '7')
-        rc = sinew__pnm_read_fp(ctx, path, fp, out);
+        rc = sinew__pnm_read_fp(ctx, path, fp, out, flags);
     else
         rc =
             sinew__fail(ctx, SINEW_EFORMAT,
@@ -47,54 +48,103 @@ int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path)
     return rc;
 }
 
+int sinew_image_read(sinew_ctx *ctx, sinew_image *out, const char *path)
+{
+    if (out)
+        memset(out, 0, sizeof *out);
+    if (!ctx || !out || !path)
+        return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read image: missing argument") : SINEW_EINVAL;
+    return image_read(ctx, out, path, 0);
+}
+
+/* What a role accepts, checked on the image just read (pixels or header only). */
+static int role_check(sinew_ctx *ctx, const sinew_image *im, const char *path, int role)
+{
+    switch (role) {
+    case SINEW_ROLE_DEPTH:
+        if (im->channels != 1)
+            return sinew__fail(ctx, SINEW_EUNSUPPORTED,
+                               "%s: depth must have one channel (got %d; colour-coded depth is "
+                               "not depth)",
+                               path, im->channels);
+        if (im->type == SINEW_U8)
+            return sinew__fail(ctx, SINEW_EUNSUPPORTED,
+                               "%s: 8-bit images cannot hold depth (expected 16-bit PNG codes or "
+                               "float metres in .npy/.pfm)",
+                               path);
+        return SINEW_OK;
+    case SINEW_ROLE_LABELS:
+        if (im->channels != 1 || im->type == SINEW_F32)
+            return sinew__fail(ctx, SINEW_EUNSUPPORTED,
+                               "%s: labels must be a one-channel 8- or 16-bit image (got %d "
+                               "channels)",
+                               path, im->channels);
+        return SINEW_OK;
+    case SINEW_ROLE_MASK:
+        if (im->channels != 1 || im->type == SINEW_U16)
+            return sinew__fail(ctx, SINEW_EFORMAT, "%s: a mask must be 8-bit with one channel",
+                               path);
+        return SINEW_OK;
+    case SINEW_ROLE_MAP:
+        if (im->type != SINEW_F32 || im->channels != 1)
+            return sinew__fail(ctx, SINEW_EFORMAT, "%s: expected a 1-channel map, got %d channels",
+                               path, im->channels);
+        return SINEW_OK;
+    default:
+        return SINEW_OK;
+    }
+}
+
+/* Read PATH as ROLE (flags as image_read): the file kind by extension where the role
+ * allows arrays, then the role's check. On failure *out is zeroed. */
+static int role_read(sinew_ctx *ctx, sinew_image *out, const char *path, int role, int flags)
+{
+    memset(out, 0, sizeof *out);
+    int npy = sinew__has_ext(path, ".npy"), pfm = sinew__has_ext(path, ".pfm");
+    int rc;
+    if (npy && (role == SINEW_ROLE_DEPTH || role == SINEW_ROLE_MASK || role == SINEW_ROLE_MAP))
+        rc = sinew__npy_read(ctx, path, out, flags);
+    else if (pfm && (role == SINEW_ROLE_DEPTH || role == SINEW_ROLE_MAP))
+        rc = sinew__pfm_read(ctx, path, out, flags);
+    else if (role == SINEW_ROLE_MAP)
+        return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: maps are read from .npy or .pfm", path);
+    else
+        rc = image_read(ctx, out, path, flags);
+    if (!rc && (rc = role_check(ctx, out, path, role)))
+        sinew_image_free(out);
+    return rc;
+}
+
+int sinew_image_info_read(sinew_ctx *ctx, sinew_image_info *info, const char *path, int role)
+{
+    if (info)
+        memset(info, 0, sizeof *info);
+    if (!ctx || !info || !path || role < SINEW_ROLE_IMAGE || role > SINEW_ROLE_MAP)
+        return ctx ? sinew__fail(ctx, SINEW_EINVAL, "read image header: bad argument")
+                   : SINEW_EINVAL;
+    sinew_image h;
+    int rc = role_read(ctx, &h, path, role, SINEW__READ_HEADER);
+    if (rc)
+        return rc;
+    info->width = h.width;
+    info->height = h.height;
+    info->channels = h.channels;
+    info->type = h.type;
+    return SINEW_OK;
+}
+
 int sinew_depth_read(sinew_ctx *ctx, sinew_image *raw, const char *path)
 {
     if (!ctx || !raw || !path)
         return SINEW_EINVAL;
-    memset(raw, 0, sizeof *raw);
-    int rc;
-    if (sinew__has_ext(path, ".npy"))
-        rc = sinew_npy_read_image(ctx, raw, path);
-    else if (sinew__has_ext(path, ".pfm"))
-        rc = sinew_pfm_read_image(ctx, raw, path);
-    else
-        rc = sinew_image_read(ctx, raw, path);
-    if (rc)
-        return rc;
-    if (raw->channels != 1) {
-        int ch = raw->channels;
-        sinew_image_free(raw);
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: depth must have one channel (got %d; colour-coded depth is "
-                           "not depth)",
-                           path, ch);
-    }
-    if (raw->type == SINEW_U8) {
-        sinew_image_free(raw);
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: 8-bit images cannot hold depth (expected 16-bit PNG codes or "
-                           "float metres in .npy/.pfm)",
-                           path);
-    }
-    return SINEW_OK;
+    return role_read(ctx, raw, path, SINEW_ROLE_DEPTH, 0);
 }
 
 int sinew_labels_read(sinew_ctx *ctx, sinew_image *labels, const char *path)
 {
     if (!ctx || !labels || !path)
         return SINEW_EINVAL;
-    int rc = sinew_image_read(ctx, labels, path);
-    if (rc)
-        return rc;
-    if (labels->channels != 1 || labels->type == SINEW_F32) {
-        int ch = labels->channels;
-        sinew_image_free(labels);
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED,
-                           "%s: labels must be a one-channel 8- or 16-bit image (got %d "
-                           "channels)",
-                           path, ch);
-    }
-    return SINEW_OK;
+    return role_read(ctx, labels, path, SINEW_ROLE_LABELS, 0);
 }
 
 int sinew_mask_read(sinew_ctx *ctx, sinew_image *mask, const char *path)
@@ -103,14 +153,9 @@ int sinew_mask_read(sinew_ctx *ctx, sinew_image *mask, const char *path)
         return SINEW_EINVAL;
     memset(mask, 0, sizeof *mask);
     sinew_image raw;
-    int st = sinew__has_ext(path, ".npy") ? sinew_npy_read_image(ctx, &raw, path)
-                                          : sinew_image_read(ctx, &raw, path);
+    int st = role_read(ctx, &raw, path, SINEW_ROLE_MASK, 0);
     if (st)
         return st;
-    if (raw.channels != 1 || raw.type == SINEW_U16) {
-        sinew_image_free(&raw);
-        return sinew__fail(ctx, SINEW_EFORMAT, "%s: a mask must be 8-bit with one channel", path);
-    }
     if (raw.type == SINEW_U8) {
         *mask = raw;
         return SINEW_OK;
@@ -137,21 +182,5 @@ int sinew_map_read(sinew_ctx *ctx, sinew_image *map, const char *path)
 {
     if (!ctx || !map || !path)
         return SINEW_EINVAL;
-    memset(map, 0, sizeof *map);
-    int st;
-    if (sinew__has_ext(path, ".npy"))
-        st = sinew_npy_read_image(ctx, map, path);
-    else if (sinew__has_ext(path, ".pfm"))
-        st = sinew_pfm_read_image(ctx, map, path);
-    else
-        return sinew__fail(ctx, SINEW_EUNSUPPORTED, "%s: maps are read from .npy or .pfm", path);
-    if (st)
-        return st;
-    if (map->type != SINEW_F32 || map->channels != 1) {
-        int ch = map->channels;
-        sinew_image_free(map);
-        return sinew__fail(ctx, SINEW_EFORMAT, "%s: expected a 1-channel map, got %d channels",
-                           path, ch);
-    }
-    return SINEW_OK;
+    return role_read(ctx, map, path, SINEW_ROLE_MAP, 0);
 }

@@ -226,9 +226,10 @@ static int open_float_npy(sinew_ctx *ctx, const char *path, FILE **fp, npy_heade
     return rc;
 }
 
-int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow)
+int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flags)
 {
     memset(out, 0, sizeof *out);
+    int flow = flags & SINEW__READ_FLOW;
     FILE *fp;
     npy_header h;
     int big = 0;
@@ -249,6 +250,14 @@ int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow
         rc = sinew__io_bytes(ctx, path, h.shape[1], 1, c, elem, &rowbytes);
     if (!rc)
         rc = sinew__io_check_remaining(ctx, path, fp, (size_t)h.shape[0], rowbytes, "NPY data");
+    if (!rc && (flags & SINEW__READ_HEADER)) {
+        fclose(fp);
+        out->width = (int)h.shape[1];
+        out->height = (int)h.shape[0];
+        out->channels = (int)c;
+        out->type = SINEW_F32;
+        return SINEW_OK;
+    }
     if (!rc)
         rc = sinew_image_alloc(ctx, out, (int)h.shape[1], (int)h.shape[0], (int)c, SINEW_F32);
     unsigned char *scratch = rc ? NULL : sinew__alloc(ctx, rowbytes);

@@ -15,9 +15,10 @@
 #include "flow/internal/io.h"
 #include "flow/io.h"
 
-int sinew__pfm_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow)
+int sinew__pfm_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flags)
 {
     memset(out, 0, sizeof *out);
+    int flow = flags & SINEW__READ_FLOW;
     FILE *fp;
     int rc = sinew__open_regular(ctx, path, &fp);
     if (rc)
@@ -59,6 +60,14 @@ int sinew__pfm_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow
         rc = sinew__io_bytes(ctx, path, w, 1, fc, 4, &rowbytes);
     if (!rc)
         rc = sinew__io_check_remaining(ctx, path, fp, (size_t)h, rowbytes, "PFM data");
+    if (!rc && (flags & SINEW__READ_HEADER)) {
+        fclose(fp);
+        out->width = (int)w;
+        out->height = (int)h;
+        out->channels = oc;
+        out->type = SINEW_F32;
+        return SINEW_OK;
+    }
     if (!rc)
         rc = sinew_image_alloc(ctx, out, (int)w, (int)h, oc, SINEW_F32);
     unsigned char *raw = rc ? NULL : sinew__alloc(ctx, rowbytes);

@@ -13,7 +13,7 @@
 #include "flow/internal/io.h"
 #include "flow/io.h"
 
-int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out)
+int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out, int flags)
 {
     memset(out, 0, sizeof *out);
     char tok[32];
@@ -44,6 +44,13 @@ int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *
     rc = sinew__io_check_remaining(ctx, path, fp, (size_t)v[1], rowbytes, "PNM raster");
     if (rc)
         return rc;
+    if (flags & SINEW__READ_HEADER) {
+        out->width = (int)v[0];
+        out->height = (int)v[1];
+        out->channels = channels;
+        out->type = wide ? SINEW_U16 : SINEW_U8;
+        return SINEW_OK;
+    }
     rc = sinew_image_alloc(ctx, out, (int)v[0], (int)v[1], channels, wide ? SINEW_U16 : SINEW_U8);
     if (rc)
         return rc;

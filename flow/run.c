@@ -325,12 +325,9 @@ const char *sinew_run_lock_path(const sinew_run *run)
 
 /* ---- setup ---- */
 
-int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
+/* The spec's own consistency (limits, shard numbers, pairs in range, colour frames). */
+static int spec_check(sinew_ctx *ctx, const sinew_run_spec *spec)
 {
-    if (!ctx || !out || !spec || !spec->outdir || !*spec->outdir ||
-        (spec->nframes && !spec->frames) || (spec->npairs && !spec->pairs))
-        return SINEW_EINVAL;
-    *out = NULL;
     if (spec->nframes > SINEW_RUN_MAX_FRAMES)
         return sinew__fail(ctx, SINEW_ELIMIT, "sequence has %zu frames, limit %d", spec->nframes,
                            SINEW_RUN_MAX_FRAMES);
@@ -350,7 +347,37 @@ int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
             return sinew__fail(ctx, SINEW_ECONFIG, "pair %zu (%d, %d) is out of range", q, (int)p.i,
                                (int)p.j);
     }
-    int rc = sinew__mkdirs(ctx, spec->outdir);
+    return SINEW_OK;
+}
+
+/* A run object without folder or lock: the spec copied, the digest cache allocated. */
+static int run_alloc(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
+{
+    sinew_run *run = sinew__calloc(ctx, 1, sizeof *run);
+    if (!run)
+        return SINEW_ENOMEM;
+    run->ctx = ctx;
+    run->spec = *spec;
+    if (spec->nframes) {
+        run->cache = sinew__calloc(ctx, spec->nframes, NROLES * sizeof *run->cache);
+        if (!run->cache) {
+            sinew__free(ctx, run);
+            return SINEW_ENOMEM;
+        }
+    }
+    *out = run;
+    return SINEW_OK;
+}
+
+int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
+{
+    if (!ctx || !out || !spec || !spec->outdir || !*spec->outdir ||
+        (spec->nframes && !spec->frames) || (spec->npairs && !spec->pairs))
+        return SINEW_EINVAL;
+    *out = NULL;
+    int rc = spec_check(ctx, spec);
+    if (!rc)
+        rc = sinew__mkdirs(ctx, spec->outdir);
     char pairs[SINEW__PATH_MAX];
     if (!rc)
         rc = sinew__path_join(ctx, pairs, sizeof pairs, spec->outdir, SINEW_RUN_PAIRS_DIR);
@@ -366,20 +393,9 @@ int sinew_run_new(sinew_ctx *ctx, sinew_run **out, const sinew_run_spec *spec)
                          "%s: the imported flows and the output folder %s overlap (outputs never "
                          "go onto or into an input); import from another folder",
                          spec->flow_from, spec->outdir);
-    if (rc)
+    sinew_run *run = NULL;
+    if (rc || (rc = run_alloc(ctx, &run, spec)))
         return rc;
-    sinew_run *run = sinew__calloc(ctx, 1, sizeof *run);
-    if (!run)
-        return SINEW_ENOMEM;
-    run->ctx = ctx;
-    run->spec = *spec;
-    if (spec->nframes) {
-        run->cache = sinew__calloc(ctx, spec->nframes, NROLES * sizeof *run->cache);
-        if (!run->cache) {
-            sinew__free(ctx, run);
-            return SINEW_ENOMEM;
-        }
-    }
     if ((rc = lock_acquire(run))) {
         sinew_run_free(run);
         return rc;
@@ -1004,6 +1020,42 @@ int sinew_run_execute(sinew_run *run, sinew_run_pair_fn fn, void *fn_ud,
                       sinew_run_progress_fn progress, void *progress_ud, sinew_run_result *result)
 {
     return sinew_run_execute_jobs(run, 1, NULL, fn, &fn_ud, progress, progress_ud, result);
+}
+
+int sinew_run_peek(sinew_ctx *ctx, sinew_pair_status *status, size_t *ndone,
+                   const sinew_run_spec *spec)
+{
+    if (!ctx || !status || !spec || !spec->outdir || !*spec->outdir ||
+        (spec->nframes && !spec->frames) || (spec->npairs && !spec->pairs))
+        return SINEW_EINVAL;
+    if (ndone)
+        *ndone = 0;
+    for (size_t q = 0; q < spec->npairs; q++)
+        status[q] = SINEW_PAIR_PENDING;
+    sinew_run *run = NULL;
+    int rc = spec_check(ctx, spec);
+    if (rc || (rc = run_alloc(ctx, &run, spec)))
+        return rc;
+    for (size_t q = 0; !rc && q < spec->npairs; q++) {
+        if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
+            continue;
+        char dir[SINEW__PATH_MAX], fwd[SINEW__PATH_MAX], bwd[SINEW__PATH_MAX], key[65];
+        sinew__input in[SINEW__MAX_INPUTS];
+        size_t nin = 0;
+        /* an input that cannot be hashed leaves the pair pending (the run fails there) */
+        if (!sinew__run_pair_dir(run, q, dir, sizeof dir) &&
+            !sinew__run_pair_inputs(run, q, in, &nin, fwd, bwd, sizeof fwd)) {
+            sinew__run_pair_key(run, q, in, nin, key);
+            status[q] = (sinew_pair_status)sinew__run_record_status(run, dir, key, 1, NULL);
+        }
+        rc = sinew__check_cancel(ctx, spec->outdir);
+        if (!rc)
+            sinew_ctx_clear(ctx);
+        if (!rc && ndone && status[q] == SINEW_PAIR_SKIPPED)
+            (*ndone)++;
+    }
+    sinew_run_free(run);
+    return rc;
 }
 
 int sinew_run_find_import(sinew_ctx *ctx, char *fwd, char *bwd, size_t n, const char *dir,

@@ -226,6 +226,17 @@ int sinew_run_execute_jobs(sinew_run *run, int jobs, sinew_ctx *const *ctxs, sin
                            void *const *fn_uds, sinew_run_progress_fn progress, void *progress_ud,
                            sinew_run_result *result);
 
+/* What a resumed run would skip, without touching OUTDIR (no folder made, no lock,
+ * nothing written): status[q] (spec->npairs entries) is SINEW_PAIR_SKIPPED for each
+ * owned pair whose done record carries its current key and whose listed outputs have
+ * their recorded sizes and SHA-256, as sinew_run_execute checks with resume; every
+ * other pair, of this shard or not, and any pair whose inputs cannot be hashed, is
+ * SINEW_PAIR_PENDING. *ndone (optional) counts the skipped ones. Reads every input of
+ * the owned pairs once and the outputs of done pairs. EINTERRUPTED when the context's
+ * stop flag is set; ECONFIG for a spec sinew_run_new would refuse. */
+int sinew_run_peek(sinew_ctx *ctx, sinew_pair_status *status, size_t *ndone,
+                   const sinew_run_spec *spec);
+
 /* Rebuild OUTDIR/manifest.json from the per-pair records of every pair in the
  * schedule (all shards): inputs with sizes and SHA-256, options, version, and per
  * pair its status ("done" when the done record matches the current key, "failed"

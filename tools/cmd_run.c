@@ -93,8 +93,9 @@ static void usage(FILE *out)
             "  --shard K/N            process only pairs whose number %% N == K\n"
             "  --merge                compute nothing; rebuild manifest.json from all shards\n"
 
-            "  --dry-run              list the pairs, check every input file, estimate disk\n"
-            "                         and time from one probe pair run in $TMPDIR (removed)\n"
+            "  --dry-run              list the pairs (with --resume: which are done), check\n"
+            "                         every input file's header and size, estimate disk and\n"
+            "                         time from one probe pair run in $TMPDIR (removed)\n"
             "  --on-error stop|skip   on a failing pair: stop (default) or record and go on\n"
             "  --progress auto|plain|json   live line on a terminal (auto), plain lines, or\n"
             "                         JSON lines\n"
@@ -791,12 +792,38 @@ static int check_input(const char *role, const char *path)
     return 1;
 }
 
-/* Every input file of the owned pairs (frames once each, imported flows per pair):
- * the number of missing or unreadable ones, each listed by name. */
+/* One frame file's header read for its role: 0 when it reads and (size != NULL) has
+ * the size *size, or sets *size when that is still 0x0; otherwise prints the problem. */
+static int check_header(sinew_ctx *ctx, const char *role, const char *path, int rrole,
+                        sinew_image_info *size, const char *sized_by)
+{
+    if (check_input(role, path))
+        return 1;
+    sinew_image_info in;
+    if (sinew_image_info_read(ctx, &in, path, rrole) != SINEW_OK) {
+        printf("input %s: %s\n", role, sinew_ctx_message(ctx));
+        return 1;
+    }
+    if (!size->width) {
+        *size = in;
+        return 0;
+    }
+    if (in.width == size->width && in.height == size->height)
+        return 0;
+    printf("input %s: %s: %dx%d but %s is %dx%d\n", role, path, in.width, in.height, sized_by,
+           size->width, size->height);
+    return 1;
+}
+
+/* Every input file of the owned pairs (frames once each, imported flows per pair): the
+ * header of each image read for its role (not the pixels) and its size compared with
+ * the first colour frame's, as the run would; the number of bad files, each listed. */
 static size_t check_inputs(sinew_ctx *ctx, const sinew_run_spec *spec)
 {
     unsigned char *seen = calloc(spec->nframes ? spec->nframes : 1, 1);
     size_t bad = 0;
+    sinew_image_info size = {0, 0, 0, SINEW_U8};
+    char first[4200] = "the first frame";
     if (spec->intrinsics)
         bad += (size_t)check_input("intrinsics", spec->intrinsics);
     for (size_t q = 0; q < spec->npairs; q++) {
@@ -811,14 +838,21 @@ static size_t check_inputs(sinew_ctx *ctx, const sinew_run_spec *spec)
             if (seen)
                 seen[ij[e]] |= want;
             if (!(had & 1)) {
-                bad += (size_t)check_input("color", fr->color);
+                int was = size.width != 0;
+                bad +=
+                    (size_t)check_header(ctx, "color", fr->color, SINEW_ROLE_IMAGE, &size, first);
+                if (!was && size.width)
+                    snprintf(first, sizeof first, "%s", fr->color);
                 if (fr->depth)
-                    bad += (size_t)check_input("depth", fr->depth);
+                    bad += (size_t)check_header(ctx, "depth", fr->depth, SINEW_ROLE_DEPTH, &size,
+                                                first);
                 if (fr->labels)
-                    bad += (size_t)check_input("labels", fr->labels);
+                    bad += (size_t)check_header(ctx, "labels", fr->labels, SINEW_ROLE_LABELS, &size,
+                                                first);
             }
             if ((want & 2) && !(had & 2))
-                bad += (size_t)check_input("ignore", fr->ignore);
+                bad +=
+                    (size_t)check_header(ctx, "ignore", fr->ignore, SINEW_ROLE_IMAGE, &size, first);
         }
         char name[SINEW_PAIR_NAME_MAX], fwd[4200], bwd[4200];
         if (spec->flow_from &&
@@ -888,37 +922,55 @@ static int probe_pair(sinew_ctx *ctx, const sinew_run_spec *spec,
     return rc ? cli_status(CMD, ctx, rc) : CLI_OK;
 }
 
-/* --dry-run: the owned pairs, every input file checked (missing or unreadable ones
- * listed by name, then exit 1), and disk and time from a probe: the first owned pair
- * run for real in a temporary folder. The run folder itself is not touched. */
+/* --dry-run: the owned pairs, every input file's header checked (missing, unreadable,
+ * damaged or wrongly sized ones listed by name, then exit 1); with --resume the pairs a
+ * resumed run would skip (their inputs and outputs hashed, as the run does); disk and
+ * time of the rest from a probe: the first pair to compute, run for real in a temporary
+ * folder. The run folder itself is not touched. */
 static int dry_run(sinew_ctx *ctx, const sinew_run_spec *spec, const sinew_run_pipeline_params *pp)
 {
-    size_t owned = 0, first = 0;
+    sinew_pair_status *st = calloc(spec->npairs ? spec->npairs : 1, sizeof *st);
+    if (!st)
+        return cli_error(CMD, "out of memory for the pair list");
+    size_t bad = check_inputs(ctx, spec), done = 0;
+    if (bad) {
+        free(st);
+        return cli_error(CMD,
+                         "%zu input file%s missing, unreadable or wrongly sized (listed above)",
+                         bad, bad == 1 ? "" : "s");
+    }
+    int rc = spec->resume ? sinew_run_peek(ctx, st, &done, spec) : SINEW_OK;
+    if (rc) {
+        free(st);
+        return cli_status(CMD, ctx, rc);
+    }
+    size_t owned = 0, todo = 0, first = 0;
     for (size_t q = 0; q < spec->npairs; q++) {
         if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
             continue;
         char name[SINEW_PAIR_NAME_MAX];
-        printf("%s\n", sinew_pair_name(name, spec->pairs[q]));
-        if (!owned++)
+        int skip = st[q] == SINEW_PAIR_SKIPPED;
+        printf("%s%s\n", sinew_pair_name(name, spec->pairs[q]), skip ? " done" : "");
+        owned++;
+        if (!skip && !todo++)
             first = q;
     }
-    size_t bad = check_inputs(ctx, spec);
-    if (bad)
-        return cli_error(CMD, "%zu input file%s missing or unreadable (listed above)", bad,
-                         bad == 1 ? "" : "s");
-    if (!owned) {
-        printf("0 pairs\n");
+    free(st);
+    if (!todo) {
+        printf("%zu pairs, %zu done, 0 to compute\n", owned, done);
         return CLI_OK;
     }
     double secs = 0, bytes = 0;
     int r = probe_pair(ctx, spec, pp, first, &secs, &bytes);
     if (r != CLI_OK)
         return r;
-    char eta[32];
-    fmt_eta(eta, sizeof eta, secs * (double)owned);
-    printf("%zu pairs; disk about %.1f MB; time about %s (probe: pair %zu took %.2f s, "
+    char eta[32], head[64] = "";
+    fmt_eta(eta, sizeof eta, secs * (double)todo);
+    if (spec->resume)
+        snprintf(head, sizeof head, " (%zu done, %zu to compute)", done, todo);
+    printf("%zu pairs%s; disk about %.1f MB; time about %s (probe: pair %zu took %.2f s, "
            "%.2f MB)\n",
-           owned, bytes * (double)owned / 1e6, eta, first, secs, bytes / 1e6);
+           owned, head, bytes * (double)todo / 1e6, eta, first, secs, bytes / 1e6);
     return CLI_OK;
 }
 

@@ -67,16 +67,27 @@ void sinew__io_encode_floats(unsigned char *dst, const float *src, size_t n, siz
 /* 1 if path ends with ext (e.g. ".npy"), compared without case. */
 int sinew__has_ext(const char *path, const char *ext);
 
+/* Flags of the raw readers below. SINEW__READ_FLOW: the result must be (and is
+ * returned as) a 2-channel flow field. SINEW__READ_HEADER: stop after the header and
+ * the file-size check; *out gets width, height, channels and type but no pixels
+ * (data NULL), as sinew_image_info_read wants. */
+#define SINEW__READ_FLOW 1
+#define SINEW__READ_HEADER 2
+
 /* Image decoders behind sinew_image_read; fp is open at the start of the file, which
  * the caller closes. On failure *out is left zeroed. */
 int sinew__png_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out);
 int sinew__jpeg_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out);
-int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out);
+int sinew__pnm_read_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out, int flags);
+/* Structure walks of PNG and JPEG files for sinew_image_info_read (io_info.c): no
+ * pixel is decoded. */
+int sinew__png_info_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out);
+int sinew__jpeg_info_fp(sinew_ctx *ctx, const char *path, FILE *fp, sinew_image *out);
 
-/* Array and float-map readers/writers shared by the image and flow entry points.
- * flow != 0: the result must be (and is returned as) a 2-channel flow field. */
-int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow);
-int sinew__pfm_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flow);
+/* Array and float-map readers/writers shared by the image and flow entry points;
+ * flags as above. */
+int sinew__npy_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flags);
+int sinew__pfm_read(sinew_ctx *ctx, const char *path, sinew_image *out, int flags);
 int sinew__pfm_write(sinew_ctx *ctx, const char *path, const sinew_image *img, int flow);
 
 /* True on a little-endian host (used to ask libpng for native 16-bit samples). */

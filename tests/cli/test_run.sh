@@ -379,6 +379,31 @@ if "$B" synth -o "$T/demo" --frames 6 --size 160x120 >/dev/null 2>"$T/err"; then
         pass "dry run lists the missing frame by name"
     else fail "dry run lists the missing frame by name" "$(cat "$T/out")"; fi
     mv "$T/demo/depth/000003.keep" "$T/demo/depth/000003.png"
+    # headers, not only names: a truncated frame and a depth map of another size are
+    # named before any pair runs (the real run would fail on them midway)
+    cp "$T/demo/color/000004.png" "$T/demo/color/000004.keep"
+    head -c 300 "$T/demo/color/000004.keep" >"$T/demo/color/000004.png"
+    "$B" synth -o "$T/demosmall" --frames 2 --size 80x60 >/dev/null 2>&1
+    cp "$T/demo/depth/000002.png" "$T/demo/depth/000002.keep"
+    cp "$T/demosmall/depth/000000.png" "$T/demo/depth/000002.png"
+    expect_error "dry run reads headers: damaged and wrongly sized inputs fail it" - \
+        "2 input files missing, unreadable or wrongly sized" "$B" run "$T/demo" -o "$T/dry" $OPT --dry-run
+    if grep -q "input color: .*color/000004.png: truncated PNG data" "$T/out" \
+        && grep -q "input depth: .*depth/000002.png: 80x60 but .*color/000000.png is 160x120" "$T/out" \
+        && [ ! -e "$T/dry" ]; then
+        pass "dry run names the truncated frame and the depth map of another size"
+    else fail "dry run names the truncated frame and the depth map of another size" "$(cat "$T/out")"; fi
+    mv "$T/demo/color/000004.keep" "$T/demo/color/000004.png"
+    mv "$T/demo/depth/000002.keep" "$T/demo/depth/000002.png"
+    # --dry-run --resume counts what a resumed run would skip and probes only the rest
+    cp -r "$T/demorun" "$T/dryres"
+    rm "$T/dryres/pairs/000002-000003/done.json"
+    if "$B" run "$T/demo" -o "$T/dryres" $OPT --dry-run --resume >"$T/out" 2>&1 \
+        && [ "$(grep -c '^0000.* done$' "$T/out")" -eq 4 ] && grep -q "^000002-000003$" "$T/out" \
+        && grep -q "5 pairs (4 done, 1 to compute); disk about" "$T/out" \
+        && [ ! -e "$T/dryres/pairs/000002-000003/done.json" ]; then
+        pass "dry run with --resume counts the done pairs, probes the rest, writes nothing"
+    else fail "dry run with --resume counts the done pairs, probes the rest, writes nothing" "$(cat "$T/out")"; fi
 
     # schema: run settings, numbered frame pattern, errors naming the key
     cd "$T/demo" || exit 1

@@ -21,4 +21,9 @@ const char *fuzz_file(const uint8_t *data, size_t size, const char *suffix);
  * allocate gigabytes (the limit itself is what is being tested). */
 sinew_ctx *fuzz_ctx(void);
 
+/* Read PATH in full with the reader of `role` and by its header only
+ * (sinew_image_info_read); abort when the full reader accepts what the header reader
+ * refuses, or when they disagree on size, channels or type. */
+void fuzz_read_both(sinew_ctx *ctx, const char *path, int role);
+
 #endif

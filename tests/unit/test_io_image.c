@@ -371,6 +371,22 @@ static void test_io_image_allocation_failures(void **state)
 
 /* ---- damaged files ---- */
 
+/* A w x h PNG of c channels and `bits` bits per sample with the sample() pattern. */
+static void write_sample_png(sinew_ctx *ctx, const char *path, int w, int h, int c, int bits)
+{
+    sinew_image a;
+    assert_int_equal(sinew_image_alloc(ctx, &a, w, h, c, bits == 16 ? SINEW_U16 : SINEW_U8),
+                     SINEW_OK);
+    for (int y = 0; y < h; y++)
+        for (int x = 0; x < w * c; x++)
+            if (bits == 16)
+                sinew_image_row_u16(&a, y)[x] = (uint16_t)sample(x, y, 0, 16);
+            else
+                sinew_image_row_u8(&a, y)[x] = (uint8_t)sample(x, y, 0, 8);
+    assert_int_equal(sinew_image_write_png(ctx, path, &a), SINEW_OK);
+    sinew_image_free(&a);
+}
+
 static int read_image(sinew_ctx *ctx, const char *path)
 {
     sinew_image b;
@@ -385,19 +401,9 @@ static void test_io_image_damaged_files(void **state)
     char ok[700], bad[700];
     tu_path(bad, sizeof bad, f->dir, "bad.img");
     for (int bits = 8; bits <= 16; bits += 8) {
-        sinew_image a;
-        assert_int_equal(sinew_image_alloc(f->ctx, &a, 6, 5, 3, bits == 16 ? SINEW_U16 : SINEW_U8),
-                         SINEW_OK);
-        for (int y = 0; y < 5; y++)
-            for (int x = 0; x < 18; x++)
-                if (bits == 16)
-                    sinew_image_row_u16(&a, y)[x] = (uint16_t)sample(x, y, 0, 16);
-                else
-                    sinew_image_row_u8(&a, y)[x] = (uint8_t)sample(x, y, 0, 8);
         tu_path(ok, sizeof ok, f->dir, "ok.png");
-        assert_int_equal(sinew_image_write_png(f->ctx, ok, &a), SINEW_OK);
+        write_sample_png(f->ctx, ok, 6, 5, 3, bits);
         tu_damage_sweep(ok, bad, read_image, 400);
-        sinew_image_free(&a);
     }
     unsigned char rgb[16 * 8 * 3];
     for (size_t i = 0; i < sizeof rgb; i++)
@@ -566,6 +572,134 @@ static void test_io_image_mask_and_map_readers(void **state)
     sinew_ctx_free(ctx);
 }
 
+/* ---- headers only (sinew_image_info_read) ---- */
+
+/* The header reader and the full reader agree: whatever the full reader accepts, the
+ * header reader accepts with the same size, channels and type. Returns the header
+ * reader's status, so tu_damage_sweep also requires every prefix to be refused by it. */
+static int info_agrees(sinew_ctx *ctx, const char *path)
+{
+    sinew_image b;
+    int fr = sinew_image_read(ctx, &b, path);
+    sinew_image_info in;
+    int hr = sinew_image_info_read(ctx, &in, path, SINEW_ROLE_IMAGE);
+    if (fr == SINEW_OK) {
+        if (hr != SINEW_OK)
+            fail_msg("%s: read in full, but the header reader said '%s'", path,
+                     sinew_ctx_message(ctx));
+        assert_true(in.width == b.width && in.height == b.height && in.channels == b.channels &&
+                    in.type == b.type);
+    }
+    sinew_image_free(&b);
+    return hr;
+}
+
+static void test_io_image_info_matches_reader(void **state)
+{
+    tu_fixture *f = *state;
+    char ok[700], bad[700];
+    tu_path(bad, sizeof bad, f->dir, "bad.img");
+    /* PNG: every channel count, both depths; prefixes are all refused (chunk walk) */
+    for (int c = 1; c <= 4; c++)
+        for (int bits = 8; bits <= 16; bits += 8) {
+            tu_path(ok, sizeof ok, f->dir, "ok.png");
+            write_sample_png(f->ctx, ok, 7, 5, c, bits);
+            sinew_image_info in;
+            assert_int_equal(sinew_image_info_read(f->ctx, &in, ok, SINEW_ROLE_IMAGE), SINEW_OK);
+            assert_true(in.width == 7 && in.height == 5 && in.channels == c &&
+                        in.type == (bits == 16 ? SINEW_U16 : SINEW_U8));
+            if (c == 1 || bits == 16)
+                tu_damage_sweep(ok, bad, info_agrees, 200);
+        }
+    /* JPEG (TurboJPEG writes it): gray and colour, marker walk to EOI */
+    unsigned char rgb[16 * 8 * 3];
+    for (size_t i = 0; i < sizeof rgb; i++)
+        rgb[i] = (unsigned char)(i * 37);
+    tu_path(ok, sizeof ok, f->dir, "ok.jpg");
+    write_jpeg(ok, rgb, 16, 8, TJPF_RGB, TJSAMP_420);
+    tu_damage_sweep(ok, bad, info_agrees, 300);
+    write_jpeg(ok, rgb, 16, 8, TJPF_GRAY, TJSAMP_GRAY);
+    sinew_image_info in;
+    assert_int_equal(sinew_image_info_read(f->ctx, &in, ok, SINEW_ROLE_IMAGE), SINEW_OK);
+    assert_true(in.width == 16 && in.height == 8 && in.channels == 1 && in.type == SINEW_U8);
+    /* PGM/PPM */
+    tu_path(ok, sizeof ok, f->dir, "ok.ppm");
+    static const char ppm[] = "P6\n# c\n2 2\n65535\n0123456789abcdefghijklmn";
+    tu_write_bytes(ok, ppm, sizeof ppm - 1);
+    tu_damage_sweep(ok, bad, info_agrees, 200);
+    assert_int_equal(sinew_image_info_read(f->ctx, &in, ok, SINEW_ROLE_IMAGE), SINEW_OK);
+    assert_true(in.width == 2 && in.height == 2 && in.channels == 3 && in.type == SINEW_U16);
+}
+
+/* Each role's rule is applied to the header as the role's reader applies it. */
+static void test_io_image_info_roles(void **state)
+{
+    tu_fixture *f = *state;
+    sinew_ctx *ctx = f->ctx;
+    char p8[700], p16[700], npy[700], npy3[700];
+    tu_path(p8, sizeof p8, f->dir, "g8.png");
+    tu_path(p16, sizeof p16, f->dir, "g16.png");
+    tu_path(npy, sizeof npy, f->dir, "d.npy");
+    tu_path(npy3, sizeof npy3, f->dir, "c.npy");
+    sinew_image a;
+    assert_int_equal(sinew_image_alloc(ctx, &a, 4, 3, 1, SINEW_U8), SINEW_OK);
+    memset(a.data, 7, a.stride * 3);
+    assert_int_equal(sinew_image_write_png(ctx, p8, &a), SINEW_OK);
+    sinew_image_free(&a);
+    assert_int_equal(sinew_image_alloc(ctx, &a, 4, 3, 1, SINEW_U16), SINEW_OK);
+    memset(a.data, 1, a.stride * 3);
+    assert_int_equal(sinew_image_write_png(ctx, p16, &a), SINEW_OK);
+    sinew_image_free(&a);
+    const float v[12] = {0};
+    tu_write_npy(npy, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (3, 4), }", v,
+                 sizeof v);
+    tu_write_npy(npy3, 1, "{'descr': '<f4', 'fortran_order': False, 'shape': (1, 4, 3), }", v,
+                 sizeof v);
+    const char *paths[4] = {p8, p16, npy, npy3};
+    for (int role = SINEW_ROLE_IMAGE; role <= SINEW_ROLE_MAP; role++)
+        for (int k = 0; k < 4; k++) {
+            sinew_image full;
+            int fr = role == SINEW_ROLE_IMAGE    ? sinew_image_read(ctx, &full, paths[k])
+                     : role == SINEW_ROLE_DEPTH  ? sinew_depth_read(ctx, &full, paths[k])
+                     : role == SINEW_ROLE_LABELS ? sinew_labels_read(ctx, &full, paths[k])
+                     : role == SINEW_ROLE_MASK   ? sinew_mask_read(ctx, &full, paths[k])
+                                                 : sinew_map_read(ctx, &full, paths[k]);
+            sinew_image_free(&full);
+            sinew_image_info in;
+            int hr = sinew_image_info_read(ctx, &in, paths[k], role);
+            if (fr != hr)
+                fail_msg("role %d, %s: reader %d, header reader %d", role, paths[k], fr, hr);
+        }
+    sinew_image_info in;
+    assert_int_equal(sinew_image_info_read(ctx, &in, p8, SINEW_ROLE_DEPTH), SINEW_EUNSUPPORTED);
+    assert_non_null(strstr(sinew_ctx_message(ctx), "g8.png: 8-bit images cannot hold depth"));
+    assert_int_equal(sinew_image_info_read(ctx, &in, npy, SINEW_ROLE_DEPTH), SINEW_OK);
+    assert_true(in.width == 4 && in.height == 3 && in.type == SINEW_F32);
+    assert_int_equal(sinew_image_info_read(ctx, &in, p8, 99), SINEW_EINVAL);
+}
+
+/* Published files: header and full read agree (sizes as documented by each dataset, see
+ * test_io_image_published_frames and the 7-Scenes test). */
+static void test_io_image_info_published(void **state)
+{
+    tu_fixture *f = *state;
+    if (!tu_data_dir())
+        skip();
+    static const char *const files[] = {"middlebury/Dimetrodon/frame10.png",
+                                        "middlebury/Venus/color/frame11.png",
+                                        "flyingchairs/examples/0000000-img0.ppm"};
+    int seen = 0;
+    char p[700];
+    for (size_t k = 0; k < sizeof files / sizeof files[0]; k++) {
+        if (!tu_data_file(p, sizeof p, files[k]))
+            continue;
+        assert_int_equal(info_agrees(f->ctx, p), SINEW_OK);
+        seen++;
+    }
+    if (!seen)
+        skip();
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -582,6 +716,12 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_io_image_mask_and_map_readers, tu_fixture_setup,
                                         tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_damaged_files, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_info_matches_reader, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_info_roles, tu_fixture_setup,
+                                        tu_fixture_teardown),
+        cmocka_unit_test_setup_teardown(test_io_image_info_published, tu_fixture_setup,
                                         tu_fixture_teardown),
         cmocka_unit_test_setup_teardown(test_io_image_published_frames, tu_fixture_setup,
                                         tu_fixture_teardown),

@@ -956,8 +956,30 @@ static void test_run_engine_resume_skips_only_up_to_date(void **state)
     assert_int_equal(r.skipped, 5);
     assert_int_equal(f.calls, 0);
 
-    /* a changed input frame invalidates exactly the two pairs that use it */
+    /* a changed input frame invalidates exactly the two pairs that use it; peeking
+     * (what --dry-run --resume shows) sees that before the run and changes nothing */
     tu_write_bytes(fx.in[3], "new pixels", 10);
+    sinew_pair_status st[5];
+    size_t ndone = 9;
+    assert_int_equal(sinew_run_peek(fx.ctx, st, &ndone, &s), SINEW_OK);
+    assert_int_equal(ndone, 3);
+    for (int q = 0; q < 5; q++)
+        assert_int_equal(st[q], q == 2 || q == 3 ? SINEW_PAIR_PENDING : SINEW_PAIR_SKIPPED);
+    s.shard_k = 1;
+    s.shard_n = 2; /* shard 1 of 2 owns pairs 1 and 3 */
+    assert_int_equal(sinew_run_peek(fx.ctx, st, &ndone, &s), SINEW_OK);
+    assert_int_equal(ndone, 1);
+    assert_int_equal(st[0], SINEW_PAIR_PENDING);
+    assert_int_equal(st[1], SINEW_PAIR_SKIPPED);
+    s.shard_k = 0;
+    s.shard_n = 1;
+    char none[700];
+    tu_path(none, sizeof none, fx.dir, "never-made");
+    sinew_run_spec sn = s;
+    sn.outdir = none;
+    assert_int_equal(sinew_run_peek(fx.ctx, st, &ndone, &sn), SINEW_OK);
+    assert_int_equal(ndone, 0);
+    assert_false(tu_file_exists(none));
     assert_int_equal(run_once(fx.ctx, &s, &f, &r, 1), SINEW_OK);
     assert_int_equal(r.computed, 2);
     assert_int_equal(r.skipped, 3);

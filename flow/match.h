@@ -140,6 +140,8 @@ typedef struct sinew_match_sources {
     const sinew_camera *camera_file; /* as loaded, before rescaling */
     const sinew_depth_params *depth;
     double depth_median[2]; /* median valid z of depth0/depth1, metres */
+    int world; /* 1: X0, X1 (and normals) were mapped to world coordinates by the frames'
+                  camera-to-world poses (sinew run --world-frame) */
 } sinew_match_sources;
 
 /* Write the table to `npy_path` (.npy, float32, rows x cols) and the JSON sidecar beside

@@ -121,12 +121,21 @@ static char *sidecar_text(const sinew_matches *m, const sinew_match_params *p,
         cJSON_AddStringToObject(units, m->columns[i], unit_of(m->columns[i]));
     }
     cJSON_AddStringToObject(root, "dtype", "float32");
+    int world = src && src->world;
     cJSON_AddStringToObject(
         root, "conventions",
-        "(u0, v0) source pixel in frame 0, (u1, v1) = (u0, v0) + flow in frame 1; pixel "
-        "centres at integers, x right, y down; observed (distorted) pixel coordinates. "
-        "X0 in camera-0 coordinates, X1 in camera-1 coordinates (x right, y down, z forward, "
-        "metres). Rows in raster order of the source pixel.");
+        world ? "(u0, v0) source pixel in frame 0, (u1, v1) = (u0, v0) + flow in frame 1; "
+                "pixel centres at integers, x right, y down; observed (distorted) pixel "
+                "coordinates. X0 and X1 (and normals) in world coordinates: camera-0 and "
+                "camera-1 points mapped by each frame's camera-to-world pose (metres). Rows "
+                "in raster order of the source pixel."
+              : "(u0, v0) source pixel in frame 0, (u1, v1) = (u0, v0) + flow in frame 1; "
+                "pixel centres at integers, x right, y down; observed (distorted) pixel "
+                "coordinates. X0 in camera-0 coordinates, X1 in camera-1 coordinates (x "
+                "right, y down, z forward, metres). Rows in raster order of the source "
+                "pixel.");
+    if (m->has_depth)
+        cJSON_AddStringToObject(root, "points_frame", world ? "world" : "camera");
     cJSON_AddNumberToObject(root, "width", m->width);
     cJSON_AddNumberToObject(root, "height", m->height);
     if (m->has_depth && src && src->camera) {

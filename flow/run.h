@@ -108,6 +108,8 @@ typedef struct sinew_run_frame {
                            flow/runstereo.h) or NULL */
     int has_timestamp;  /* 1 when timestamp is known (lists, sequence.json) */
     double timestamp;   /* capture time in seconds */
+    int has_pose;       /* 1 when pose is known (sequence.json frames[].pose) */
+    double pose[12];    /* camera-to-world 3x4 row-major [R | t], metres */
 } sinew_run_frame;
 
 typedef enum sinew_run_on_error {
@@ -281,6 +283,8 @@ typedef enum sinew_run_tune {
     SINEW_TUNE_CELL,             /* "cell" */
     SINEW_TUNE_PER_CELL,         /* "per-cell" */
     SINEW_TUNE_MIN_WEIGHT,       /* "min-weight" */
+    SINEW_TUNE_WORLD_FRAME,      /* "world-frame": 1 writes the matches' points in world
+                                    coordinates (every frame needs a pose) */
     SINEW_RUN_NTUNE
 } sinew_run_tune;
 
@@ -335,8 +339,15 @@ void sinew_run_pipeline_params_default(sinew_run_pipeline_params *p);
  * be used as sinew_run_spec.options. ELIMIT if buf (size n) is too small. */
 int sinew_run_pipeline_options(sinew_ctx *ctx, char *buf, size_t n,
                                const sinew_run_pipeline_params *p);
-/* Create the pipeline for a spec (borrowed for the pipeline's life). ECONFIG for an
- * unknown preset or format, a tuning value out of range, or near >= far. */
+/* What sinew_run_pipeline_new refuses, checked without creating anything (a front
+ * end calls it before making the output folder): ECONFIG naming the problem for an
+ * unknown preset or format, a tuning value out of range, near >= far, ignore masks
+ * without a polarity, or world-frame without intrinsics or with a frame lacking a
+ * pose or depth map. */
+int sinew_run_pipeline_check(sinew_ctx *ctx, const sinew_run_spec *spec,
+                             const sinew_run_pipeline_params *p);
+/* Create the pipeline for a spec (borrowed for the pipeline's life). ECONFIG as
+ * sinew_run_pipeline_check. */
 int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew_run_spec *spec,
                            const sinew_run_pipeline_params *p);
 void sinew_run_pipeline_free(sinew_run_pipeline *pl);
@@ -402,7 +413,7 @@ typedef struct sinew_run_options {
 #define SINEW_RUN_OPT_INTRINSICS SINEW_RUN_KEEP_CAMERA
 /* Tuning key k (sinew_run_tune) */
 #define SINEW_RUN_OPT_TUNE(k) (512u << (k))
-#define SINEW_RUN_OPT_ALL 0x1ffffffu
+#define SINEW_RUN_OPT_ALL 0x3ffffffu
 
 /* Write *o to OUTDIR/SINEW_RUN_OPTIONS_FILE atomically (OUTDIR must exist). ELIMIT for
  * a string that does not fit its field. */
@@ -430,6 +441,8 @@ typedef struct sinew_run_pair_summary {
     double epe;             /* epe (ground truth), NaN without truth */
     double occlusion_f1;    /* occlusion_f1 (ground truth), NaN without truth */
     double match_3d_mm;     /* truth.match_3d_error_mm_median, NaN without */
+    double pose_dt_mm;      /* pose_check.translation_error_m in mm, NaN without poses */
+    double pose_deg;        /* pose_check.rotation_error_deg, NaN without poses */
 } sinew_run_pair_summary;
 /* Read a pair's summary; the read or parse error naming the file when stats.json is
  * missing or not JSON (e.g. the pair is pending). */

@@ -52,6 +52,7 @@ static const struct tune_def {
     {"cell", "a whole number >= 1", 1, 1048576.0, 0, 1},
     {"per-cell", "a whole number >= 1", 1, 1073741824.0, 0, 1},
     {"min-weight", "a number", -INFINITY, INFINITY, 0, 0},
+    {"world-frame", "1", 1, 1, 0, 1},
 };
 
 const char *sinew_run_tune_name(int key)

@@ -165,6 +165,9 @@ int sinew_run_pair_summary_read(sinew_ctx *ctx, sinew_run_pair_summary *out, con
     out->occlusion_f1 = sinew__json_num(j, "occlusion_f1");
     out->match_3d_mm =
         sinew__json_num(cJSON_GetObjectItemCaseSensitive(j, "truth"), "match_3d_error_mm_median");
+    const cJSON *pc = cJSON_GetObjectItemCaseSensitive(j, "pose_check");
+    out->pose_dt_mm = 1000 * sinew__json_num(pc, "translation_error_m");
+    out->pose_deg = sinew__json_num(pc, "rotation_error_deg");
     cJSON_Delete(j);
     return SINEW_OK;
 }
@@ -217,12 +220,11 @@ int sinew_run_pipeline_options(sinew_ctx *ctx, char *buf, size_t n,
     return SINEW_OK;
 }
 
-int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew_run_spec *spec,
-                           const sinew_run_pipeline_params *p)
+int sinew_run_pipeline_check(sinew_ctx *ctx, const sinew_run_spec *spec,
+                             const sinew_run_pipeline_params *p)
 {
-    if (!ctx || !out || !spec || !p || !p->preset)
+    if (!ctx || !spec || !p || !p->preset)
         return SINEW_EINVAL;
-    *out = NULL;
     if (!sinew_flow_format_ext(p->flow_format))
         return sinew__fail(ctx, SINEW_ECONFIG, "unknown flow format %d", p->flow_format);
     if (!(p->depth_scale > 0) || !isfinite(p->depth_scale) || p->match_stride < 0)
@@ -244,6 +246,18 @@ int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew
         if ((p->tuning.set & (1u << k)) && sinew_run_tune_valid(k, p->tuning.value[k]))
             return sinew__fail(ctx, SINEW_ECONFIG, "%s: expected %s, got %.17g",
                                sinew_run_tune_name(k), sinew_run_tune_range(k), p->tuning.value[k]);
+    if (p->tuning.set & (1u << SINEW_TUNE_WORLD_FRAME)) {
+        if (!p->camera && !spec->intrinsics)
+            return sinew__fail(ctx, SINEW_ECONFIG,
+                               "world-frame: the matches are not lifted (no intrinsics)");
+        for (size_t f = 0; f < spec->nframes; f++)
+            if (!spec->frames[f].has_pose || !spec->frames[f].depth)
+                return sinew__fail(ctx, SINEW_ECONFIG,
+                                   "world-frame: frame %zu (%s) has no %s; every frame needs a "
+                                   "depth map and a pose (sequence.json frames[].pose)",
+                                   f, spec->frames[f].color,
+                                   spec->frames[f].has_pose ? "depth map" : "pose");
+    }
     {
         sinew_depth_params dp;
         sinew_depth_params_default(&dp);
@@ -252,6 +266,20 @@ int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew
             return sinew__fail(ctx, SINEW_ECONFIG, "near (%g m) must be below far (%g m)", dp.near,
                                dp.far);
     }
+    return SINEW_OK;
+}
+
+int sinew_run_pipeline_new(sinew_ctx *ctx, sinew_run_pipeline **out, const sinew_run_spec *spec,
+                           const sinew_run_pipeline_params *p)
+{
+    if (!ctx || !out || !spec || !p || !p->preset)
+        return SINEW_EINVAL;
+    *out = NULL;
+    int rc = sinew_run_pipeline_check(ctx, spec, p);
+    if (rc)
+        return rc;
+    sinew_flow_params fp;
+    sinew_flow_params_preset(&fp, p->preset);
     sinew_run_pipeline *pl = sinew__calloc(ctx, 1, sizeof *pl);
     if (!pl)
         return SINEW_ENOMEM;
@@ -520,13 +548,17 @@ static void pair_warnings(const sinew_run_pipeline *pl, cJSON *warn, const sinew
     }
 }
 
+/* stats.json of a pair; the keys of `extra` (made while writing the matches) move
+ * into it. */
 static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
                         const sinew_check_stats *cs, const sinew_matches *m, const frame_slot *s0,
-                        const frame_slot *s1)
+                        const frame_slot *s1, cJSON *extra)
 {
     cJSON *o = cJSON_CreateObject();
     if (!o)
         return NULL;
+    for (cJSON *e; extra && (e = extra->child);)
+        cJSON_AddItemToObject(o, e->string, cJSON_DetachItemViaPointer(extra, e));
     /* summary numbers at the top level (read by the run report, docs/formats.md) */
     cJSON_AddNumberToObject(o, "kept_fraction",
                             cs->pixels ? (double)cs->kept / (double)cs->pixels : 0.0);
@@ -619,7 +651,7 @@ static char *stats_text(sinew_run_pipeline *pl, const sinew_run_job *job,
 /* matches.npy + matches.json: 2-D rows, lifted when both frames have depth and
  * intrinsics are known, labels when both frames have them. */
 static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const frame_slot *s0,
-                         const frame_slot *s1, sinew_matches *m)
+                         const frame_slot *s1, sinew_matches *m, cJSON *extra)
 {
     sinew_ctx *ctx = pl->ctx;
     sinew_match_params mp;
@@ -654,13 +686,21 @@ static int write_matches(sinew_run_pipeline *pl, const sinew_run_job *job, const
     int rc = sinew_matches_build(ctx, m, &in, &mp);
     if (rc)
         return rc;
+    /* the pose check sees the points in their cameras, before any change of frame */
+    int world = (pl->params.tuning.set & (1u << SINEW_TUNE_WORLD_FRAME)) && m->has_depth;
+    if (fr0->has_pose && fr1->has_pose &&
+        (rc = sinew__run_pose_check(ctx, extra, m, fr0->pose, fr1->pose)))
+        return rc;
+    if (world)
+        sinew__run_to_world(m, fr0->pose, fr1->pose);
     sinew_match_sources src = {"sinew run",
                                ".",
                                pl->have_camera ? pl->spec->intrinsics : NULL,
                                pl->have_camera ? &pl->cam : NULL,
                                pl->have_camera ? &pl->cam_file : NULL,
                                lift ? &pl->depth : NULL,
-                               {lift ? s0->z_median : NAN, lift ? s1->z_median : NAN}};
+                               {lift ? s0->z_median : NAN, lift ? s1->z_median : NAN},
+                               world};
     char p[SINEW__PATH_MAX];
     if ((rc = sinew__path_join(ctx, p, sizeof p, job->dir, SINEW_RUN_MATCHES_FILE)) ||
         (rc = sinew_matches_save(ctx, p, m, &mp, &in, &src)))
@@ -729,9 +769,16 @@ int sinew_run_pipeline_pair(void *pipeline, sinew_ctx *ctx, const sinew_run_job 
         return rc;
     sinew_matches m;
     memset(&m, 0, sizeof m);
-    if (pl->params.matches && (rc = write_matches(pl, job, s0, s1, &m)))
+    cJSON *extra = cJSON_CreateObject();
+    if (!extra)
+        return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory writing stats", job->name);
+    if (pl->params.matches && (rc = write_matches(pl, job, s0, s1, &m, extra))) {
+        cJSON_Delete(extra);
+        sinew_matches_free(ctx, &m);
         return rc;
-    *stats = stats_text(pl, job, &out.stats, pl->params.matches ? &m : NULL, s0, s1);
+    }
+    *stats = stats_text(pl, job, &out.stats, pl->params.matches ? &m : NULL, s0, s1, extra);
+    cJSON_Delete(extra);
     sinew_matches_free(ctx, &m);
     if (!*stats)
         return sinew__fail(ctx, SINEW_ENOMEM, "%s: out of memory writing stats", job->name);

@@ -120,6 +120,10 @@ int sinew_run_source_from_sequence(sinew_ctx *ctx, sinew_run_source *out, const 
             o->has_timestamp = 1;
             o->timestamp = fr->timestamp;
         }
+        if (fr->has_pose) {
+            o->has_pose = 1;
+            memcpy(o->pose, fr->pose, sizeof o->pose);
+        }
     }
     return SINEW_OK;
 }

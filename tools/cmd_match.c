@@ -423,7 +423,8 @@ static int match_main(int argc, char **argv, int lift)
                                lift ? &cam : NULL,
                                lift ? &cam_file : NULL,
                                lift ? &o.dp : NULL,
-                               {median[0], median[1]}};
+                               {median[0], median[1]},
+                               0};
     if ((rc = sinew_matches_save(ctx, o.out, &m, &o.mp, &in, &src)))
         goto fail;
     if (o.ply && (rc = sinew_matches_save_ply(ctx, o.ply, &m, !o.ply_ascii)))

@@ -86,6 +86,8 @@ static void usage(FILE *out)
             "  --near M  --far M  --edge R  --edge-radius N  --max-displacement M  --normals\n"
             "  --top-k K  --cell N  --per-cell N  --min-weight W   (--top-k replaces the\n"
             "                         stride sampling)\n"
+            "  --world-frame          matches' 3-D points in world coordinates, by each\n"
+            "                         frame's camera-to-world pose (sequence.json \"pose\")\n"
             "other:\n"
             "  --resume               skip pairs that are complete and up to date\n"
             "  --force-options        let options given here replace the ones stored in\n"
@@ -118,6 +120,11 @@ static void usage(FILE *out)
         "A sequence.json with ground truth (\"pairs\", as sinew synth writes) has each\n"
         "pair scored: EPE, occlusion F1 and 3-D error of the lifted matches in its\n"
         "stats.json, the --report table and the report page.\n"
+        "\n"
+        "Frames with camera poses (sequence.json \"pose\") get a pose check: the rigid\n"
+        "motion fitted to the pair's lifted matches (robustly, so moving parts count\n"
+        "little) against the poses' relative motion, in stats.json and the --report\n"
+        "table: a cheap sign of a wrong depth scale or wrong intrinsics.\n"
         "\n"
         "Warnings (a median depth outside 0.05-20 m, intrinsics whose principal point is\n"
         "far from the image centre, depth without intrinsics, a pair whose check keeps\n"
@@ -455,7 +462,7 @@ static int parse_option(int c, const char *arg, run_args *a)
     default:
         if (c >= O_TUNE && c < O_TUNE + SINEW_RUN_NTUNE) {
             int k = c - O_TUNE;
-            double v = 1; /* --normals takes no value */
+            double v = 1; /* --normals and --world-frame take no value */
             if (arg && (cli_parse_double(arg, &v) || sinew_run_tune_valid(k, v)))
                 return cli_usage_error(CMD, "--%s: expected %s, got '%s'", sinew_run_tune_name(k),
                                        sinew_run_tune_range(k), arg);
@@ -514,6 +521,7 @@ static int parse_args(int argc, char **argv, run_args *a)
         {"cell", required_argument, NULL, O_TUNE + 13},
         {"per-cell", required_argument, NULL, O_TUNE + 14},
         {"min-weight", required_argument, NULL, O_TUNE + 15},
+        {"world-frame", no_argument, NULL, O_TUNE + 16},
         {"help", no_argument, NULL, 'h'},
         {NULL, 0, NULL, 0}};
     memset(a, 0, sizeof *a);
@@ -999,16 +1007,17 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
         cli_error(CMD, "out of memory for the report table");
         return;
     }
-    int truth = 0;
+    int truth = 0, pose = 0;
     for (size_t q = 0; q < spec->npairs; q++) {
         have[q] =
             sinew_shard_owns(q, spec->shard_k, spec->shard_n) &&
             sinew_run_pair_summary_read(ctx, &sum[q], spec->outdir, spec->pairs[q]) == SINEW_OK;
         truth |= have[q] && (isfinite(sum[q].epe) || isfinite(sum[q].occlusion_f1));
+        pose |= have[q] && isfinite(sum[q].pose_dt_mm);
     }
     if (!json)
-        printf("%-13s %8s %10s %10s %9s%s\n", "pair", "kept", "|fwd| px", "matches", "lifted",
-               truth ? "   EPE px  occ F1  3-D err mm" : "");
+        printf("%-13s %8s %10s %10s %9s%s%s\n", "pair", "kept", "|fwd| px", "matches", "lifted",
+               truth ? "   EPE px  occ F1  3-D err mm" : "", pose ? "  pose dt mm  pose deg" : "");
     double kept = 0, pixels = 0, rows = 0;
     size_t n = 0;
     for (size_t q = 0; q < spec->npairs; q++) {
@@ -1029,6 +1038,10 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
                     json_num("occlusion_f1", s.occlusion_f1);
                     json_num("match_3d_error_mm_median", s.match_3d_mm);
                 }
+                if (pose) {
+                    json_num("pose_translation_error_mm", s.pose_dt_mm);
+                    json_num("pose_rotation_error_deg", s.pose_deg);
+                }
             }
             printf("}\n");
         }
@@ -1042,6 +1055,8 @@ static void print_report(sinew_ctx *ctx, const sinew_run_spec *spec, int json)
                    s.forward_mean_px, s.match_rows, s.lifted ? "yes" : "no");
             if (truth)
                 printf(" %9.3f %7.3f %11.1f", s.epe, s.occlusion_f1, s.match_3d_mm);
+            if (pose)
+                printf(" %11.1f %9.2f", s.pose_dt_mm, s.pose_deg);
             printf("\n");
         }
         kept += s.kept;
@@ -1297,7 +1312,10 @@ int cmd_run(int argc, char **argv)
     sinew_run *run = NULL;
     int rc;
     ret = plan(ctx, &a, &p);
-    if (ret == CLI_OK && a.dry)
+    /* settings the pipeline refuses are refused before the output folder is made */
+    if (ret == CLI_OK && !a.merge && (rc = sinew_run_pipeline_check(ctx, &p.spec, &a.pp)))
+        ret = cli_status(CMD, ctx, rc);
+    else if (ret == CLI_OK && a.dry)
         ret = dry_run(ctx, &p.spec, &a.pp);
     else if (ret == CLI_OK && (rc = sinew_run_new(ctx, &run, &p.spec)))
         ret = cli_status(CMD, ctx, rc);

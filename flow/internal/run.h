@@ -58,6 +58,17 @@ int sinew__run_record_status(sinew_run *run, const char *dir, const char *key, i
  * "occlusion_f1" to stats; a truth file that cannot be read becomes a line in warnings.
  * Only ENOMEM fails. */
 struct sinew_matches;
+/* Camera poses in a run (flow/runpose.c). The pose check of a lifted match table
+ * against the frames' camera-to-world poses into stats "pose_check" (nothing when the
+ * table is not lifted or too small); ENOMEM is the only failure. */
+struct sinew_rigid;
+void sinew__run_pose_rigid(struct sinew_rigid *T, const double pose[12]);
+int sinew__run_pose_check(sinew_ctx *ctx, cJSON *stats, const struct sinew_matches *m,
+                          const double pose0[12], const double pose1[12]);
+/* Map a lifted table's points and normals to world coordinates (X0 by pose0, X1 by
+ * pose1). */
+void sinew__run_to_world(struct sinew_matches *m, const double pose0[12], const double pose1[12]);
+
 int sinew__run_truth_scores(sinew_ctx *ctx, const sinew_sequence *seq, sinew_pair pair,
                             const sinew_image *fwd, const sinew_image *mask,
                             const struct sinew_matches *m, cJSON *stats, cJSON *warnings);

@@ -603,7 +603,7 @@ static void test_match_save_loads_in_numpy(void **state)
     assert_string_equal(json + strlen(json) - 7, "/M.json");
     sinew_depth_params dp;
     sinew_depth_params_default(&dp);
-    sinew_match_sources src = {"test", NULL, "k.json", &s.cam, &s.cam, &dp, {2.0, 2.0}};
+    sinew_match_sources src = {"test", NULL, "k.json", &s.cam, &s.cam, &dp, {2.0, 2.0}, 0};
     assert_int_equal(sinew_matches_save(s.ctx, npy, &m, &s.p, &s.in, &src), SINEW_OK);
     assert_int_equal(sinew_matches_save_ply(s.ctx, ply, &m, 1), SINEW_OK);
     assert_int_equal(sinew_matches_save_ply(s.ctx, plya, &m, 0), SINEW_OK);

@@ -112,7 +112,8 @@ int sinew_run_source_from_sequence(sinew_ctx *ctx, sinew_run_source *out, const 
         if ((rc = resolve_dup(ctx, seq, fr->color, where, f, &o->color)) ||
             (rc = resolve_dup(ctx, seq, fr->depth, where, f, &o->depth)) ||
             (rc = resolve_dup(ctx, seq, fr->labels, where, f, &o->labels)) ||
-            (rc = resolve_dup(ctx, seq, fr->ignore, where, f, &o->ignore))) {
+            (rc = resolve_dup(ctx, seq, fr->ignore, where, f, &o->ignore)) ||
+            (rc = resolve_dup(ctx, seq, fr->right, where, f, &o->right))) {
             sinew_run_source_free(ctx, out);
             return rc;
         }

@@ -49,6 +49,7 @@ static void frame_release(sinew_ctx *ctx, sinew_seq_frame *f)
     sinew__free(ctx, f->depth);
     sinew__free(ctx, f->labels);
     sinew__free(ctx, f->ignore);
+    sinew__free(ctx, f->right);
 }
 
 static void pair_release(sinew_ctx *ctx, sinew_seq_pair *p)
@@ -92,6 +93,7 @@ void sinew_sequence_free(sinew_sequence *seq)
     sinew__free(ctx, seq->frames);
     sinew__free(ctx, seq->pairs);
     sinew__free(ctx, seq->name);
+    sinew__free(ctx, seq->stereo_calib);
     sinew__free(ctx, seq->dir_);
     sinew__free(ctx, seq);
 }
@@ -101,6 +103,13 @@ int sinew_sequence_set_name(sinew_sequence *seq, const char *name)
     if (!seq)
         return SINEW_EINVAL;
     return set_str(seq->ctx_, &seq->name, name);
+}
+
+int sinew_sequence_set_stereo_calib(sinew_sequence *seq, const char *path)
+{
+    if (!seq)
+        return SINEW_EINVAL;
+    return set_str(seq->ctx_, &seq->stereo_calib, path);
 }
 
 int sinew_sequence_set_label_names(sinew_sequence *seq, const char *const *names, size_t n)
@@ -162,9 +171,10 @@ int sinew_sequence_add_frame(sinew_sequence *seq, const sinew_seq_frame *frame)
     if (st)
         return st;
     sinew_seq_frame f = *frame;
-    f.color = f.depth = f.labels = f.ignore = NULL;
+    f.color = f.depth = f.labels = f.ignore = f.right = NULL;
     if (set_str(ctx, &f.color, frame->color) || set_str(ctx, &f.depth, frame->depth) ||
-        set_str(ctx, &f.labels, frame->labels) || set_str(ctx, &f.ignore, frame->ignore)) {
+        set_str(ctx, &f.labels, frame->labels) || set_str(ctx, &f.ignore, frame->ignore) ||
+        set_str(ctx, &f.right, frame->right)) {
         frame_release(ctx, &f);
         return SINEW_ENOMEM;
     }
@@ -283,6 +293,9 @@ int sinew_sequence_validate(sinew_sequence *seq, const char *where)
             snprintf(key, sizeof key, "label_names[%zu]", i);
             return bad_key(ctx, where, key, "missing");
         }
+    int pst = check_path(ctx, where, "stereo_calib", seq->stereo_calib);
+    if (pst)
+        return pst;
     if (seq->n_frames < 1)
         return bad_key(ctx, where, "frames", "must list at least one frame");
     if (seq->n_frames > SINEW_SEQUENCE_MAX_FRAMES)
@@ -308,6 +321,9 @@ int sinew_sequence_validate(sinew_sequence *seq, const char *where)
             return st;
         snprintf(key, sizeof key, "frames[%zu].ignore", i);
         if ((st = check_path(ctx, where, key, f->ignore)))
+            return st;
+        snprintf(key, sizeof key, "frames[%zu].right", i);
+        if ((st = check_path(ctx, where, key, f->right)))
             return st;
         if (f->ignore && seq->ignore_polarity != 1 && seq->ignore_polarity != 2)
             return bad_key(ctx, where, "ignore_polarity",
@@ -470,7 +486,7 @@ static const cJSON *get_typed(reader *r, const cJSON *obj, const char *path, con
 static int read_frame(reader *r, sinew_sequence *seq, const cJSON *o, size_t i)
 {
     static const char *const keys[] = {"color",     "depth", "labels", "ignore",
-                                       "timestamp", "pose",  NULL};
+                                       "timestamp", "pose",  "right",  NULL};
     char path[64];
     snprintf(path, sizeof path, "frames[%zu]", i);
     if (!cJSON_IsObject(o))
@@ -486,6 +502,7 @@ static int read_frame(reader *r, sinew_sequence *seq, const cJSON *o, size_t i)
         (st = get_string(r, o, path, "depth", 0, &f.depth)) ||
         (st = get_string(r, o, path, "labels", 0, &f.labels)) ||
         (st = get_string(r, o, path, "ignore", 0, &f.ignore)) ||
+        (st = get_string(r, o, path, "right", 0, &f.right)) ||
         (st = get_number(r, o, path, "timestamp", 0, &ts, &has_ts)))
         goto done;
     f.timestamp = has_ts ? ts : NAN;
@@ -590,15 +607,15 @@ static int pattern_name(const char *pat, long number, char *buf, size_t n)
  * "count": N, "step": N}: frames first, first + step, ... (count of them). */
 static int read_frame_pattern(reader *r, sinew_sequence *seq, const cJSON *o)
 {
-    static const char *const keys[] = {"color", "depth", "labels", "ignore",
+    static const char *const keys[] = {"color", "depth", "labels", "ignore", "right",
                                        "first", "count", "step",   NULL};
     int st = check_keys(r, o, "frames", keys);
     if (st)
         return st;
-    const char *pat[4] = {NULL, NULL, NULL, NULL};
-    static const char *const names[4] = {"color", "depth", "labels", "ignore"};
+    const char *pat[5] = {NULL, NULL, NULL, NULL, NULL};
+    static const char *const names[5] = {"color", "depth", "labels", "ignore", "right"};
     char key[64], probe[4096];
-    for (int k = 0; k < 4; k++) {
+    for (int k = 0; k < 5; k++) {
         const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, names[k]);
         snprintf(key, sizeof key, "frames.%s", names[k]);
         if (!v) {
@@ -624,12 +641,12 @@ static int read_frame_pattern(reader *r, sinew_sequence *seq, const cJSON *o)
         return st;
     if ((double)first + (double)step * (count - 1) > 999999999.0)
         return bad_key(r->ctx, r->where, "frames.count", "frame numbers beyond 999999999");
-    char buf[4][4096];
+    char buf[5][4096];
     for (long i = 0; i < count; i++) {
         long num = first + (long)step * i;
         sinew_seq_frame f;
         sinew_sequence_frame_init(&f);
-        for (int k = 0; k < 4; k++) {
+        for (int k = 0; k < 5; k++) {
             if (!pat[k])
                 continue;
             if (pattern_name(pat[k], num, buf[k], sizeof buf[k]) != 0) {
@@ -641,6 +658,7 @@ static int read_frame_pattern(reader *r, sinew_sequence *seq, const cJSON *o)
         f.depth = pat[1] ? buf[1] : NULL;
         f.labels = pat[2] ? buf[2] : NULL;
         f.ignore = pat[3] ? buf[3] : NULL;
+        f.right = pat[4] ? buf[4] : NULL;
         if ((st = sinew_sequence_add_frame(seq, &f))) /* copies the strings */
             return st;
     }
@@ -717,8 +735,8 @@ static int read_run(reader *r, sinew_sequence *seq, const cJSON *o)
 static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
 {
     static const char *const keys[] = {
-        "version", "name",       "intrinsics", "depth_scale",     "label_names", "frames",
-        "pairs",   "depth_kind", "run",        "ignore_polarity", NULL};
+        "version", "name",       "intrinsics", "depth_scale",     "label_names",  "frames",
+        "pairs",   "depth_kind", "run",        "ignore_polarity", "stereo_calib", NULL};
     if (!cJSON_IsObject(root))
         return sinew__fail(r->ctx, SINEW_ECONFIG, "%s: expected a JSON object at the top level",
                            r->where);
@@ -736,7 +754,8 @@ static int read_root(reader *r, sinew_sequence *seq, const cJSON *root)
                            "%s: version: %.0f is newer than this build reads (%d)", r->where, v,
                            SINEW_SEQUENCE_VERSION);
     seq->version = (int)v;
-    if ((st = get_string(r, root, "", "name", 0, &seq->name)))
+    if ((st = get_string(r, root, "", "name", 0, &seq->name)) ||
+        (st = get_string(r, root, "", "stereo_calib", 0, &seq->stereo_calib)))
         return st;
     const cJSON *in = get_typed(r, root, "", "intrinsics", 0, 0, &st);
     if (st)
@@ -937,6 +956,7 @@ static cJSON *build(const sinew_sequence *seq)
         return NULL;
     int bad = !add_num(root, "version", seq->version);
     bad |= add_str(root, "name", seq->name);
+    bad |= add_str(root, "stereo_calib", seq->stereo_calib);
     if (seq->has_intrinsics) {
         cJSON *in = cJSON_AddObjectToObject(root, "intrinsics");
         bad |= !in || !add_num(in, "fx", seq->fx) || !add_num(in, "fy", seq->fy) ||
@@ -995,7 +1015,8 @@ static cJSON *build(const sinew_sequence *seq)
         if (bad)
             break;
         bad |= add_str(o, "color", f->color) | add_str(o, "depth", f->depth) |
-               add_str(o, "labels", f->labels) | add_str(o, "ignore", f->ignore);
+               add_str(o, "labels", f->labels) | add_str(o, "ignore", f->ignore) |
+               add_str(o, "right", f->right);
         if (!isnan(f->timestamp))
             bad |= !add_num(o, "timestamp", f->timestamp);
         if (f->has_pose) {

@@ -51,6 +51,7 @@ typedef struct sinew_seq_frame {
     double timestamp; /* seconds; NaN if absent */
     int has_pose;     /* nonzero if pose is given */
     double pose[12];  /* camera-to-world 3x4 row-major [R | t], metres */
+    char *right;      /* stereo: the right camera's frame (colour is the left one) */
 } sinew_seq_frame;
 
 /* Ground truth for an ordered pair of frames (indices into frames[]). */
@@ -78,6 +79,8 @@ typedef struct sinew_sequence {
                               ignored), 2 "zero" (the values of sinew_ignore_polarity,
                               flow/check.h); required when a frame has an ignore mask */
     sinew_seq_run run;     /* "run" settings */
+    char *stereo_calib;    /* "stereo_calib": the left/right calibration (flow/stereo.h,
+                              either form) of frames with "right"; NULL if absent */
     char **label_names;    /* label_names[v] names label value v; NULL if absent */
     size_t n_label_names;
     sinew_seq_frame *frames;
@@ -97,6 +100,7 @@ void sinew_sequence_free(sinew_sequence *seq);
 
 /* Setters and appenders deep-copy the strings they are given. */
 int sinew_sequence_set_name(sinew_sequence *seq, const char *name);
+int sinew_sequence_set_stereo_calib(sinew_sequence *seq, const char *path);
 int sinew_sequence_set_label_names(sinew_sequence *seq, const char *const *names, size_t n);
 int sinew_sequence_add_frame(sinew_sequence *seq, const sinew_seq_frame *frame);
 int sinew_sequence_add_pair(sinew_sequence *seq, const sinew_seq_pair *pair);

@@ -251,7 +251,8 @@ int sinew_stereo_synth_render(sinew_synth *s, int frame, double baseline, sinew_
 /* Write the stereo files of every frame into the sequence folder dir (beside the files
  * of sinew_synth_write): right/NNNNNN.png, truth/disparity/NNNNNN.pfm,
  * truth/occlusion_stereo/NNNNNN.png, and stereo_calib.json (the calibration format of
- * sinew_stereo_calib_load). Atomic per file. */
+ * sinew_stereo_calib_load); then the folder's sequence.json gains each frame's "right"
+ * and "stereo_calib" (flow/sequence.h). Atomic per file. */
 int sinew_stereo_synth_write(sinew_synth *s, const char *dir, double baseline);
 
 #ifdef __cplusplus

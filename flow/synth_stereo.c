@@ -16,6 +16,7 @@
 #include "flow/internal/fs.h"
 #include "flow/internal/synth.h"
 #include "flow/io.h"
+#include "flow/sequence.h"
 #include "flow/stereo.h"
 
 #define STEREO_OCC_TOL 1e-6 /* m, as OCC_TOL in flow/synth.c */
@@ -150,7 +151,25 @@ int sinew_stereo_synth_write(sinew_synth *s, const char *dir, double baseline)
             "  \"baseline\": %.17g,\n  \"width\": %d, \"height\": %d,\n"
             "  \"comment\": \"sinew synth --stereo: invented demo scene\"\n}\n",
             fx, fy, cx, cy, fx, fy, cx, cy, baseline, p->width, p->height);
-    st = sinew_outfile_commit(ctx, f);
+    if ((st = sinew_outfile_commit(ctx, f)))
+        goto done;
+    /* sequence.json (written before) names each frame's right frame and the calibration,
+     * so `sinew run --stereo` takes the sequence as a stereo one */
+    sinew_sequence *seq = NULL;
+    if ((st = sinew__path_join(ctx, path, sizeof path, dir, "sequence.json")) ||
+        (st = sinew_sequence_read(ctx, &seq, path)))
+        goto done;
+    st = sinew_sequence_set_stereo_calib(seq, "stereo_calib.json");
+    for (size_t t = 0; !st && t < seq->n_frames; t++) {
+        char name[64];
+        snprintf(name, sizeof name, "right/%06zu.png", t);
+        sinew__free(ctx, seq->frames[t].right);
+        if (!(seq->frames[t].right = sinew__strdup(ctx, name)))
+            st = SINEW_ENOMEM;
+    }
+    if (!st)
+        st = sinew_sequence_write(seq, path);
+    sinew_sequence_free(seq);
 done:
     sinew_image_free(&r);
     sinew_image_free(&d);

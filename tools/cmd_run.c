@@ -73,8 +73,11 @@ static void usage(FILE *out)
             "                         of failing\n"
             "  --depth-scale S        16-bit depth codes per metre (default 1000; TUM: 5000)\n");
     fprintf(out,
-            "  --stereo               folder input is a stereo sequence (above)\n"
-            "  --stereo-calib FILE    its calibration (default FOLDER/stereo_calib.json)\n"
+            "  --stereo               the input is a stereo sequence (above; a sequence.json\n"
+            "                         with \"right\" frames and \"stereo_calib\" is one\n"
+            "                         without --stereo when its frames have no depth)\n"
+            "  --stereo-calib FILE    its calibration (default FOLDER/stereo_calib.json or\n"
+            "                         the sequence's \"stereo_calib\")\n"
             "  --stereo-preset P      stereo matching: fast | balanced (default)\n"
             "  --match-stride S       matches on a grid of step S pixels (default 4; 0 = all)\n"
             "  --intrinsics K         fx,fy,cx,cy[,width,height] or a file as for sinew lift;\n"
@@ -677,6 +680,42 @@ static void stereo_folder(const run_args *a, run_plan *p)
         snprintf(p->stereo_calib, sizeof p->stereo_calib, "%s/" SINEW_RUN_STEREO_CALIB, a->input);
 }
 
+/* A stereo sequence (--stereo, or frames with "right", a "stereo_calib" and no depth):
+ * the calibration into p->stereo_calib, its left camera for lifting, and no depth paths
+ * (the stereo engine gives each frame's depth, as for a stereo folder). */
+static int stereo_sequence(sinew_ctx *ctx, run_args *a, run_plan *p, const char *sp)
+{
+    int right = 0, depth = 0;
+    for (size_t f = 0; f < p->src.nframes; f++) {
+        right |= p->src.frames[f].right != NULL;
+        depth |= p->src.frames[f].depth != NULL;
+    }
+    if (!a->stereo && !(right && p->seq->stereo_calib && !depth))
+        return CLI_OK;
+    if (!right)
+        return cli_error(CMD, "%s: --stereo: no frame has a \"right\" frame", sp);
+    if (a->intrinsics)
+        return cli_usage_error(CMD, "--intrinsics does not apply to a stereo sequence (the "
+                                    "calibration's left camera lifts its matches)");
+    if (a->stereo_calib)
+        snprintf(p->stereo_calib, sizeof p->stereo_calib, "%s", a->stereo_calib);
+    else if (!p->seq->stereo_calib)
+        return cli_error(CMD, "%s: --stereo: no calibration (\"stereo_calib\" or --stereo-calib)",
+                         sp);
+    else if (sinew_sequence_resolve(p->seq, p->seq->stereo_calib, p->stereo_calib,
+                                    sizeof p->stereo_calib))
+        return cli_error(CMD, "%s: stereo_calib: path too long", sp);
+    for (size_t f = 0; f < p->src.nframes; f++) {
+        sinew_ctx_dealloc(ctx, (void *)p->src.frames[f].depth);
+        p->src.frames[f].depth = NULL;
+    }
+    int rc = sinew_run_stereo_camera(ctx, &p->cam, p->stereo_calib);
+    if (rc)
+        return cli_status(CMD, ctx, rc);
+    a->pp.camera = &p->cam;
+    return CLI_OK;
+}
+
 /* Frames: a folder without sequence.json is scanned (flow/run.h), anything else is read
  * as a sequence whose settings apply under the command line's. */
 static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
@@ -712,8 +751,6 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
                 cli_warning(CMD, "%s", p->src.warnings[k]);
         return CLI_OK;
     }
-    if (a->stereo)
-        return cli_usage_error(CMD, "--stereo needs a folder without sequence.json");
     const char *sp = is_dir ? seqpath : a->input;
     if ((rc = sinew_sequence_read(ctx, &p->seq, sp)) ||
         (rc = sinew_run_source_from_sequence(ctx, &p->src, p->seq, sp)) ||
@@ -722,7 +759,7 @@ static int plan_source(sinew_ctx *ctx, run_args *a, run_plan *p)
         return cli_status(CMD, ctx, rc);
     if (p->seq->n_pairs)
         a->pp.truth = p->seq; /* pairs with ground truth are scored */
-    return CLI_OK;
+    return stereo_sequence(ctx, a, p, sp);
 }
 
 /* The pairs: --schedule, else the sequence's schedule, else consecutive. */
@@ -856,6 +893,9 @@ static size_t check_inputs(sinew_ctx *ctx, const sinew_run_spec *spec)
                                                 first);
                 if (fr->labels)
                     bad += (size_t)check_header(ctx, "labels", fr->labels, SINEW_ROLE_LABELS, &size,
+                                                first);
+                if (fr->right)
+                    bad += (size_t)check_header(ctx, "right", fr->right, SINEW_ROLE_IMAGE, &size,
                                                 first);
             }
             if ((want & 2) && !(had & 2))

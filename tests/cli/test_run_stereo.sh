@@ -105,3 +105,33 @@ cp "$T"/sc/color/*.png "$T/st2/left/"
 cp "$T"/sc/right/*.png "$T/st2/right/"
 expect_error "--stereo without a calibration names the file" - "st2/stereo_calib.json" \
     "$B" run "$T/st2" -o "$T/r3" $OPT --stereo
+
+# a stereo sequence (issue 20): synth --stereo names each frame's right frame and
+# stereo_calib in sequence.json; --stereo (its frames also have depth) takes the depth
+# from the stereo engine, byte for byte the stereo folder's (same frames, same options)
+if "$B" run "$T/sc" -o "$T/sq" $OPT --stereo >"$T/out" 2>"$T/err" &&
+    grep -q "stereo: 3 depth maps computed, 0 reused" "$T/out" &&
+    cmp -s "$T/sq/stereo/000000/depth.npy" "$T/r/stereo/000000/depth.npy" &&
+    cmp -s "$T/sq/stereo/000001/depth.npy" "$T/r/stereo/000001/depth.npy"; then
+    pass "stereo sequence (--stereo): the stereo folder's depth maps"
+else fail "stereo sequence (--stereo): the stereo folder's depth maps" "$(cat "$T/out" "$T/err" | head -c 400)"; fi
+# a sequence whose frames have right frames but no depth is a stereo one without --stereo;
+# without right frames --stereo is refused in one line
+"$PYTHON" - "$T/sc/sequence.json" "$T/sc/nodepth.json" "$T/sc/noright.json" <<'PY'
+import json, sys
+s = json.load(open(sys.argv[1]))
+a = json.loads(json.dumps(s)); b = json.loads(json.dumps(s))
+for f in a['frames']:
+    f.pop('depth')
+for f in b['frames']:
+    f.pop('right')
+json.dump(a, open(sys.argv[2], 'w')); json.dump(b, open(sys.argv[3], 'w'))
+PY
+if "$B" run "$T/sc/nodepth.json" -o "$T/sq2" $OPT >"$T/out" 2>"$T/err" &&
+    grep -q "stereo: 3 depth maps computed" "$T/out" &&
+    cmp -s "$T/sq2/stereo/000000/depth.npy" "$T/sq/stereo/000000/depth.npy" &&
+    grep -q '"lifted":true' "$T/sq2/pairs/000000-000001/stats.json"; then
+    pass "a sequence with right frames and no depth is a stereo sequence"
+else fail "a sequence with right frames and no depth is a stereo sequence" "$(cat "$T/out" "$T/err" | head -c 400)"; fi
+expect_error "--stereo on a sequence without right frames" - 'noright.json: --stereo: no frame has a "right" frame' \
+    "$B" run "$T/sc/noright.json" -o "$T/sq3" $OPT --stereo

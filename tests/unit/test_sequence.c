@@ -23,14 +23,17 @@ static sinew_sequence *build_example(sinew_ctx *ctx)
     seq->width = 640;
     seq->height = 480;
     seq->depth_scale = 1000.0;
+    assert_int_equal(sinew_sequence_set_stereo_calib(seq, "stereo_calib.json"), SINEW_OK);
     for (int t = 0; t < 3; t++) {
-        char c[32], d[32];
+        char c[32], d[32], r[32];
         snprintf(c, sizeof c, "color/%06d.png", t);
         snprintf(d, sizeof d, "depth/%06d.png", t);
+        snprintf(r, sizeof r, "right/%06d.png", t);
         sinew_seq_frame f;
         sinew_sequence_frame_init(&f);
         f.color = c;
         f.depth = t == 1 ? NULL : d;
+        f.right = t == 0 ? r : NULL;
         f.timestamp = t / 30.0;
         if (t == 2) {
             f.has_pose = 1;
@@ -71,6 +74,9 @@ static void test_sequence_round_trip(void **state)
     assert_string_equal(b->frames[0].depth, "depth/000000.png");
     assert_null(b->frames[1].depth);
     assert_null(b->frames[1].labels);
+    assert_string_equal(b->frames[0].right, "right/000000.png");
+    assert_null(b->frames[1].right);
+    assert_string_equal(b->stereo_calib, "stereo_calib.json");
     assert_true(b->frames[1].timestamp == 1 / 30.0); /* doubles survive exactly */
     assert_false(b->frames[0].has_pose);
     assert_true(b->frames[2].has_pose);

@@ -815,213 +815,6 @@ static void plan_free(sinew_ctx *ctx, run_plan *p)
     sinew_sequence_free(p->seq);
 }
 
-/* ---- dry run ---- */
-
-/* 0 when PATH is a readable regular file; otherwise prints it with the reason. */
-static int check_input(const char *role, const char *path)
-{
-    struct stat st;
-    FILE *f = NULL;
-    const char *why = NULL;
-    if (stat(path, &st) != 0)
-        why = errno == ENOENT ? "missing" : strerror(errno);
-    else if (!S_ISREG(st.st_mode))
-        why = "not a regular file";
-    else if (!(f = fopen(path, "rb")))
-        why = strerror(errno);
-    if (f)
-        fclose(f);
-    if (!why)
-        return 0;
-    printf("input %s: %s: %s\n", role, path, why);
-    return 1;
-}
-
-/* One frame file's header read for its role: 0 when it reads and (size != NULL) has
- * the size *size, or sets *size when that is still 0x0; otherwise prints the problem. */
-static int check_header(sinew_ctx *ctx, const char *role, const char *path, int rrole,
-                        sinew_image_info *size, const char *sized_by)
-{
-    if (check_input(role, path))
-        return 1;
-    sinew_image_info in;
-    if (sinew_image_info_read(ctx, &in, path, rrole) != SINEW_OK) {
-        printf("input %s: %s\n", role, sinew_ctx_message(ctx));
-        return 1;
-    }
-    if (!size->width) {
-        *size = in;
-        return 0;
-    }
-    if (in.width == size->width && in.height == size->height)
-        return 0;
-    printf("input %s: %s: %dx%d but %s is %dx%d\n", role, path, in.width, in.height, sized_by,
-           size->width, size->height);
-    return 1;
-}
-
-/* Every input file of the owned pairs (frames once each, imported flows per pair): the
- * header of each image read for its role (not the pixels) and its size compared with
- * the first colour frame's, as the run would; the number of bad files, each listed. */
-static size_t check_inputs(sinew_ctx *ctx, const sinew_run_spec *spec)
-{
-    unsigned char *seen = calloc(spec->nframes ? spec->nframes : 1, 1);
-    size_t bad = 0;
-    sinew_image_info size = {0, 0, 0, SINEW_U8};
-    char first[4200] = "the first frame";
-    if (spec->intrinsics)
-        bad += (size_t)check_input("intrinsics", spec->intrinsics);
-    for (size_t q = 0; q < spec->npairs; q++) {
-        if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
-            continue;
-        size_t ij[2] = {spec->pairs[q].i, spec->pairs[q].j};
-        for (int e = 0; e < 2; e++) {
-            const sinew_run_frame *fr = &spec->frames[ij[e]];
-            /* seen: bit 1 the frame's files, bit 2 its ignore mask (read only as the
-             * first frame of a pair) */
-            unsigned char want = e == 0 && fr->ignore ? 3 : 1, had = seen ? seen[ij[e]] : 0;
-            if (seen)
-                seen[ij[e]] |= want;
-            if (!(had & 1)) {
-                int was = size.width != 0;
-                bad +=
-                    (size_t)check_header(ctx, "color", fr->color, SINEW_ROLE_IMAGE, &size, first);
-                if (!was && size.width)
-                    snprintf(first, sizeof first, "%s", fr->color);
-                if (fr->depth)
-                    bad += (size_t)check_header(ctx, "depth", fr->depth, SINEW_ROLE_DEPTH, &size,
-                                                first);
-                if (fr->labels)
-                    bad += (size_t)check_header(ctx, "labels", fr->labels, SINEW_ROLE_LABELS, &size,
-                                                first);
-                if (fr->right)
-                    bad += (size_t)check_header(ctx, "right", fr->right, SINEW_ROLE_IMAGE, &size,
-                                                first);
-            }
-            if ((want & 2) && !(had & 2))
-                bad +=
-                    (size_t)check_header(ctx, "ignore", fr->ignore, SINEW_ROLE_IMAGE, &size, first);
-        }
-        char name[SINEW_PAIR_NAME_MAX], fwd[4200], bwd[4200];
-        if (spec->flow_from &&
-            sinew_run_find_import(ctx, fwd, bwd, sizeof fwd, spec->flow_from,
-                                  sinew_pair_name(name, spec->pairs[q])) != SINEW_OK) {
-            printf("input flow: %s\n", sinew_ctx_message(ctx));
-            bad++;
-        }
-    }
-    free(seen);
-    return bad;
-}
-
-static int remove_entry(const char *path, const struct stat *st, int flag, struct FTW *ftw)
-{
-    (void)st;
-    (void)flag;
-    (void)ftw;
-    return remove(path);
-}
-
-/* The probe: the first owned pair run for real into a fresh temporary folder (removed
- * afterwards), timed as a whole and its output bytes counted. */
-static int probe_pair(sinew_ctx *ctx, const sinew_run_spec *spec,
-                      const sinew_run_pipeline_params *pp, size_t q, double *secs, double *bytes)
-{
-    const char *tmp = getenv("TMPDIR");
-    char dir[4200];
-    snprintf(dir, sizeof dir, "%s/sinew-probe.XXXXXX", tmp && *tmp ? tmp : "/tmp");
-    if (!mkdtemp(dir))
-        return cli_error(CMD, "%s: cannot create the probe folder: %s", dir, strerror(errno));
-    sinew_run_spec one = *spec;
-    one.pairs = &spec->pairs[q];
-    one.npairs = 1;
-    one.shard_k = 0;
-    one.shard_n = 1;
-    one.resume = 0;
-    one.on_error = SINEW_RUN_STOP;
-    one.outdir = dir;
-    sinew_run *run = NULL;
-    sinew_run_pipeline *pl = NULL;
-    sinew_run_result res;
-    double t0 = now_s();
-    int rc = sinew_run_new(ctx, &run, &one);
-    if (!rc)
-        rc = sinew_run_pipeline_new(ctx, &pl, &one, pp);
-    if (!rc)
-        rc = sinew_run_execute(run, sinew_run_pipeline_pair, pl, NULL, NULL, &res);
-    *secs = now_s() - t0;
-    sinew_run_pipeline_free(pl);
-    sinew_run_free(run);
-    *bytes = 0;
-    char name[SINEW_PAIR_NAME_MAX], pdir[4300];
-    snprintf(pdir, sizeof pdir, "%s/" SINEW_RUN_PAIRS_DIR "/%s", dir,
-             sinew_pair_name(name, spec->pairs[q]));
-    DIR *d = opendir(pdir);
-    for (struct dirent *e; d && (e = readdir(d));) {
-        char f[4600];
-        struct stat st;
-        snprintf(f, sizeof f, "%s/%s", pdir, e->d_name);
-        if (lstat(f, &st) == 0 && S_ISREG(st.st_mode))
-            *bytes += (double)st.st_size;
-    }
-    if (d)
-        closedir(d);
-    nftw(dir, remove_entry, 8, FTW_DEPTH | FTW_PHYS);
-    return rc ? cli_status(CMD, ctx, rc) : CLI_OK;
-}
-
-/* --dry-run: the owned pairs, every input file's header checked (missing, unreadable,
- * damaged or wrongly sized ones listed by name, then exit 1); with --resume the pairs a
- * resumed run would skip (their inputs and outputs hashed, as the run does); disk and
- * time of the rest from a probe: the first pair to compute, run for real in a temporary
- * folder. The run folder itself is not touched. */
-static int dry_run(sinew_ctx *ctx, const sinew_run_spec *spec, const sinew_run_pipeline_params *pp)
-{
-    sinew_pair_status *st = calloc(spec->npairs ? spec->npairs : 1, sizeof *st);
-    if (!st)
-        return cli_error(CMD, "out of memory for the pair list");
-    size_t bad = check_inputs(ctx, spec), done = 0;
-    if (bad) {
-        free(st);
-        return cli_error(CMD,
-                         "%zu input file%s missing, unreadable or wrongly sized (listed above)",
-                         bad, bad == 1 ? "" : "s");
-    }
-    int rc = spec->resume ? sinew_run_peek(ctx, st, &done, spec) : SINEW_OK;
-    if (rc) {
-        free(st);
-        return cli_status(CMD, ctx, rc);
-    }
-    size_t owned = 0, todo = 0, first = 0;
-    for (size_t q = 0; q < spec->npairs; q++) {
-        if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
-            continue;
-        char name[SINEW_PAIR_NAME_MAX];
-        int skip = st[q] == SINEW_PAIR_SKIPPED;
-        printf("%s%s\n", sinew_pair_name(name, spec->pairs[q]), skip ? " done" : "");
-        owned++;
-        if (!skip && !todo++)
-            first = q;
-    }
-    free(st);
-    if (!todo) {
-        printf("%zu pairs, %zu done, 0 to compute\n", owned, done);
-        return CLI_OK;
-    }
-    double secs = 0, bytes = 0;
-    int r = probe_pair(ctx, spec, pp, first, &secs, &bytes);
-    if (r != CLI_OK)
-        return r;
-    char eta[32], head[64] = "";
-    fmt_eta(eta, sizeof eta, secs * (double)todo);
-    if (spec->resume)
-        snprintf(head, sizeof head, " (%zu done, %zu to compute)", done, todo);
-    printf("%zu pairs%s; disk about %.1f MB; time about %s (probe: pair %zu took %.2f s, "
-           "%.2f MB)\n",
-           owned, head, bytes * (double)todo / 1e6, eta, first, secs, bytes / 1e6);
-    return CLI_OK;
-}
-
 /* ---- execute and print ---- */
 
 /* A JSON number, or null when not finite. */
@@ -1162,8 +955,6 @@ static int stereo_paths(sinew_ctx *ctx, const run_args *a, run_plan *p)
     return rc ? cli_status(CMD, ctx, rc) : CLI_OK;
 }
 
-/* The run itself, then the manifest (whole runs only), the summary lines, the --report
- * table and page, and the final one-line error. */
 /* ---- pairs at once (--jobs) ---- */
 
 /* Bytes per pixel one job holds at most while it computes a pair: peak RSS of a whole
@@ -1245,6 +1036,243 @@ static int jobs_new(sinew_ctx *ctx, const run_args *a, const run_plan *p, job_se
         }
         cli_stop_also_ctx(js->ctx[k]);
     }
+    return CLI_OK;
+}
+
+/* ---- dry run ---- */
+
+/* 0 when PATH is a readable regular file; otherwise prints it with the reason. */
+static int check_input(const char *role, const char *path)
+{
+    struct stat st;
+    FILE *f = NULL;
+    const char *why = NULL;
+    if (stat(path, &st) != 0)
+        why = errno == ENOENT ? "missing" : strerror(errno);
+    else if (!S_ISREG(st.st_mode))
+        why = "not a regular file";
+    else if (!(f = fopen(path, "rb")))
+        why = strerror(errno);
+    if (f)
+        fclose(f);
+    if (!why)
+        return 0;
+    printf("input %s: %s: %s\n", role, path, why);
+    return 1;
+}
+
+/* One frame file's header read for its role: 0 when it reads and (size != NULL) has
+ * the size *size, or sets *size when that is still 0x0; otherwise prints the problem. */
+static int check_header(sinew_ctx *ctx, const char *role, const char *path, int rrole,
+                        sinew_image_info *size, const char *sized_by)
+{
+    if (check_input(role, path))
+        return 1;
+    sinew_image_info in;
+    if (sinew_image_info_read(ctx, &in, path, rrole) != SINEW_OK) {
+        printf("input %s: %s\n", role, sinew_ctx_message(ctx));
+        return 1;
+    }
+    if (!size->width) {
+        *size = in;
+        return 0;
+    }
+    if (in.width == size->width && in.height == size->height)
+        return 0;
+    printf("input %s: %s: %dx%d but %s is %dx%d\n", role, path, in.width, in.height, sized_by,
+           size->width, size->height);
+    return 1;
+}
+
+/* Every input file of the owned pairs (frames once each, imported flows per pair): the
+ * header of each image read for its role (not the pixels) and its size compared with
+ * the first colour frame's, as the run would; the number of bad files, each listed. */
+static size_t check_inputs(sinew_ctx *ctx, const sinew_run_spec *spec)
+{
+    unsigned char *seen = calloc(spec->nframes ? spec->nframes : 1, 1);
+    size_t bad = 0;
+    sinew_image_info size = {0, 0, 0, SINEW_U8};
+    char first[4200] = "the first frame";
+    if (spec->intrinsics)
+        bad += (size_t)check_input("intrinsics", spec->intrinsics);
+    for (size_t q = 0; q < spec->npairs; q++) {
+        if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
+            continue;
+        size_t ij[2] = {spec->pairs[q].i, spec->pairs[q].j};
+        for (int e = 0; e < 2; e++) {
+            const sinew_run_frame *fr = &spec->frames[ij[e]];
+            /* seen: bit 1 the frame's files, bit 2 its ignore mask (read only as the
+             * first frame of a pair) */
+            unsigned char want = e == 0 && fr->ignore ? 3 : 1, had = seen ? seen[ij[e]] : 0;
+            if (seen)
+                seen[ij[e]] |= want;
+            if (!(had & 1)) {
+                int was = size.width != 0;
+                bad +=
+                    (size_t)check_header(ctx, "color", fr->color, SINEW_ROLE_IMAGE, &size, first);
+                if (!was && size.width)
+                    snprintf(first, sizeof first, "%s", fr->color);
+                if (fr->depth)
+                    bad += (size_t)check_header(ctx, "depth", fr->depth, SINEW_ROLE_DEPTH, &size,
+                                                first);
+                if (fr->labels)
+                    bad += (size_t)check_header(ctx, "labels", fr->labels, SINEW_ROLE_LABELS, &size,
+                                                first);
+                if (fr->right)
+                    bad += (size_t)check_header(ctx, "right", fr->right, SINEW_ROLE_IMAGE, &size,
+                                                first);
+            }
+            if ((want & 2) && !(had & 2))
+                bad +=
+                    (size_t)check_header(ctx, "ignore", fr->ignore, SINEW_ROLE_IMAGE, &size, first);
+        }
+        char name[SINEW_PAIR_NAME_MAX], fwd[4200], bwd[4200];
+        if (spec->flow_from &&
+            sinew_run_find_import(ctx, fwd, bwd, sizeof fwd, spec->flow_from,
+                                  sinew_pair_name(name, spec->pairs[q])) != SINEW_OK) {
+            printf("input flow: %s\n", sinew_ctx_message(ctx));
+            bad++;
+        }
+    }
+    free(seen);
+    return bad;
+}
+
+static int remove_entry(const char *path, const struct stat *st, int flag, struct FTW *ftw)
+{
+    (void)st;
+    (void)flag;
+    (void)ftw;
+    return remove(path);
+}
+
+/* The probe: the first pairs still to compute, as many as the run would do at once,
+ * run for real with the run's jobs and threads in a fresh temporary folder (removed
+ * afterwards); *secs = its whole time (pipelines made, pairs computed and written),
+ * *bytes = the output bytes of its pair folders, *nprobe = how many pairs it ran. */
+static int probe_pairs(sinew_ctx *ctx, const run_args *a, const run_plan *p,
+                       const sinew_pair_status *st, size_t *nprobe, double *secs, double *bytes)
+{
+    const sinew_run_spec *spec = &p->spec;
+    run_plan *pp = malloc(sizeof *pp);
+    sinew_pair *todo = malloc((spec->npairs ? spec->npairs : 1) * sizeof *todo);
+    if (!pp || !todo) {
+        free(pp);
+        free(todo);
+        return cli_error(CMD, "out of memory for the probe");
+    }
+    size_t n = 0;
+    for (size_t q = 0; q < spec->npairs; q++)
+        if (sinew_shard_owns(q, spec->shard_k, spec->shard_n) && st[q] != SINEW_PAIR_SKIPPED)
+            todo[n++] = spec->pairs[q];
+    const char *tmp = getenv("TMPDIR");
+    char dir[4200];
+    snprintf(dir, sizeof dir, "%s/sinew-probe.XXXXXX", tmp && *tmp ? tmp : "/tmp");
+    if (!mkdtemp(dir)) {
+        free(pp);
+        free(todo);
+        return cli_error(CMD, "%s: cannot create the probe folder: %s", dir, strerror(errno));
+    }
+    *pp = *p;
+    pp->spec.pairs = todo;
+    pp->spec.npairs = n;
+    pp->spec.shard_k = 0;
+    pp->spec.shard_n = 1;
+    pp->spec.resume = 0;
+    pp->spec.on_error = SINEW_RUN_STOP;
+    pp->spec.outdir = dir;
+    job_set js;
+    sinew_run *run = NULL;
+    sinew_run_result res;
+    double t0 = now_s();
+    int ret = jobs_new(ctx, a, pp, &js), rc = SINEW_OK;
+    if (ret == CLI_OK) {
+        pp->spec.npairs = (size_t)js.n < n ? (size_t)js.n : n; /* one round of jobs */
+        rc = sinew_run_new(ctx, &run, &pp->spec);
+        if (!rc)
+            rc = sinew_run_execute_jobs(run, js.n, js.ctx, sinew_run_pipeline_pair,
+                                        (void *const *)js.pl, NULL, NULL, &res);
+        jobs_free(&js);
+        if (rc)
+            ret = cli_status(CMD, ctx, rc);
+    }
+    *secs = now_s() - t0;
+    *nprobe = pp->spec.npairs;
+    sinew_run_free(run);
+    *bytes = 0;
+    for (size_t k = 0; ret == CLI_OK && k < *nprobe; k++) {
+        char name[SINEW_PAIR_NAME_MAX], pdir[4300];
+        snprintf(pdir, sizeof pdir, "%s/" SINEW_RUN_PAIRS_DIR "/%s", dir,
+                 sinew_pair_name(name, todo[k]));
+        DIR *d = opendir(pdir);
+        for (struct dirent *e; d && (e = readdir(d));) {
+            char f[4600];
+            struct stat fst;
+            snprintf(f, sizeof f, "%s/%s", pdir, e->d_name);
+            if (lstat(f, &fst) == 0 && S_ISREG(fst.st_mode))
+                *bytes += (double)fst.st_size;
+        }
+        if (d)
+            closedir(d);
+    }
+    nftw(dir, remove_entry, 8, FTW_DEPTH | FTW_PHYS);
+    free(pp);
+    free(todo);
+    return ret;
+}
+
+/* --dry-run: the owned pairs, every input file's header checked (missing, unreadable,
+ * damaged or wrongly sized ones listed by name, then exit 1); with --resume the pairs a
+ * resumed run would skip (their inputs and outputs hashed, as the run does); disk and
+ * time of the rest from a probe: the first pair to compute, run for real in a temporary
+ * folder. The run folder itself is not touched. */
+static int dry_run(sinew_ctx *ctx, const run_args *a, const run_plan *p)
+{
+    const sinew_run_spec *spec = &p->spec;
+    size_t bad = check_inputs(ctx, spec), done = 0;
+    if (bad)
+        return cli_error(CMD,
+                         "%zu input file%s missing, unreadable or wrongly sized (listed above)",
+                         bad, bad == 1 ? "" : "s");
+    sinew_pair_status *st = calloc(spec->npairs ? spec->npairs : 1, sizeof *st);
+    if (!st)
+        return cli_error(CMD, "out of memory for the pair list");
+    int rc = spec->resume ? sinew_run_peek(ctx, st, &done, spec) : SINEW_OK;
+    if (rc) {
+        free(st);
+        return cli_status(CMD, ctx, rc);
+    }
+    size_t owned = 0, todo = 0;
+    for (size_t q = 0; q < spec->npairs; q++) {
+        if (!sinew_shard_owns(q, spec->shard_k, spec->shard_n))
+            continue;
+        char name[SINEW_PAIR_NAME_MAX];
+        int skip = st[q] == SINEW_PAIR_SKIPPED;
+        printf("%s%s\n", sinew_pair_name(name, spec->pairs[q]), skip ? " done" : "");
+        owned++;
+        todo += !skip;
+    }
+    if (!todo) {
+        free(st);
+        printf("%zu pairs, %zu done, 0 to compute\n", owned, done);
+        return CLI_OK;
+    }
+    double secs = 0, bytes = 0;
+    size_t nprobe = 0;
+    int r = probe_pairs(ctx, a, p, st, &nprobe, &secs, &bytes);
+    free(st);
+    if (r != CLI_OK)
+        return r;
+    char eta[32], head[64] = "";
+    double per = secs / (double)(nprobe ? nprobe : 1);
+    fmt_eta(eta, sizeof eta, per * (double)todo);
+    if (spec->resume)
+        snprintf(head, sizeof head, " (%zu done, %zu to compute)", done, todo);
+    printf("%zu pairs%s; disk about %.1f MB; time about %s (probe: %zu pair%s at once took "
+           "%.2f s, %.2f MB)%s\n",
+           owned, head, bytes / (double)(nprobe ? nprobe : 1) * (double)todo / 1e6, eta, nprobe,
+           nprobe == 1 ? "" : "s", secs, bytes / 1e6,
+           p->stereo_calib[0] ? "; stereo depth maps not included" : "");
     return CLI_OK;
 }
 
@@ -1356,7 +1384,7 @@ int cmd_run(int argc, char **argv)
     if (ret == CLI_OK && !a.merge && (rc = sinew_run_pipeline_check(ctx, &p.spec, &a.pp)))
         ret = cli_status(CMD, ctx, rc);
     else if (ret == CLI_OK && a.dry)
-        ret = dry_run(ctx, &p.spec, &a.pp);
+        ret = dry_run(ctx, &a, &p);
     else if (ret == CLI_OK && (rc = sinew_run_new(ctx, &run, &p.spec)))
         ret = cli_status(CMD, ctx, rc);
     else if (ret == CLI_OK && a.merge && p.stereo_calib[0] &&

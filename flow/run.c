@@ -147,6 +147,17 @@ void sinew__run_pair_key(const sinew_run *run, size_t index, const sinew__input 
     const char *opt = run->spec.options ? run->spec.options : "";
     sinew_sha256_update(&s, opt, strlen(opt));
     sinew_sha256_update(&s, "\n", 1);
+    for (int end = 0; run->spec.poses_in_key && end < 2; end++) {
+        const sinew_run_frame *f =
+            &run->spec.frames[end ? run->spec.pairs[index].j : run->spec.pairs[index].i];
+        w = snprintf(line, sizeof line, "pose%d", end);
+        sinew_sha256_update(&s, line, (size_t)w);
+        for (int k = 0; k < 12 && f->has_pose; k++) {
+            w = snprintf(line, sizeof line, " %.17g", f->pose[k]);
+            sinew_sha256_update(&s, line, (size_t)w);
+        }
+        sinew_sha256_update(&s, f->has_pose ? "\n" : " none\n", f->has_pose ? 1 : 6);
+    }
     for (size_t k = 0; k < nin; k++) {
         char h[65];
         sinew_sha256_hex(in[k].digest, h);

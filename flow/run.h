@@ -138,6 +138,9 @@ typedef struct sinew_run_spec {
      * in every format), the outputs listed in its done record and their temporaries. */
     const char *const *outputs;
     size_t noutputs;
+    /* 1: the outputs depend on the frames' poses (e.g. matches in world coordinates), so
+     * each pair key also hashes its two frames' poses */
+    int poses_in_key;
 } sinew_run_spec;
 
 /* What the pair function receives. */

@@ -804,6 +804,7 @@ static int plan(sinew_ctx *ctx, run_args *a, run_plan *p)
     s->on_error = a->on_error;
     s->noutputs = sinew_run_pipeline_outputs(&a->pp, p->outputs);
     s->outputs = p->outputs;
+    s->poses_in_key = (a->pp.tuning.set & (1u << SINEW_TUNE_WORLD_FRAME)) != 0;
     return CLI_OK;
 }
 

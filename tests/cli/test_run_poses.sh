@@ -88,6 +88,20 @@ else
     fail "--world-frame maps X0 and X1 by the frames' poses, stored in options.json" "$(cat "$T/py" "$T/err")"
 fi
 
+# the poses are part of a world-frame pair's key: a changed pose of frame 2 redoes the one
+# pair that uses it, a camera-frame run keeps its keys
+"$PY" -c "
+import json, sys
+s = json.load(open(sys.argv[1]))
+s['frames'][2]['pose'][3] += 0.01
+json.dump(s, open(sys.argv[1], 'w'))" "$T/sc/sequence.json"
+if "$B" run "$T/sc" -o "$T/world" $OPT --resume >"$T/out" 2>"$T/err" \
+    && grep -q "2 pairs: 1 computed, 1 skipped" "$T/out" \
+    && "$B" run "$T/sc" -o "$T/cam" $OPT --resume >"$T/out" 2>"$T/err" \
+    && grep -q "2 pairs: 0 computed, 2 skipped" "$T/out"; then
+    pass "a changed pose redoes its world-frame pair only"
+else fail "a changed pose redoes its world-frame pair only" "$(cat "$T/out" "$T/err" | head -c 300)"; fi
+
 # a frame without a pose: refused before any pair, naming the frame
 "$PY" -c "
 import json, sys

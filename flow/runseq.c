@@ -15,6 +15,7 @@
 
 #include "flow/internal/base.h"
 #include "flow/internal/run.h"
+#include "flow/rigid.h"
 #include "flow/run.h"
 
 static int is_file(const char *p)
@@ -445,6 +446,106 @@ static int from_layout(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_ru
     return rc;
 }
 
+/* ---- the 7-Scenes layout ---- */
+
+#define FLAT_COLOR ".color.png"
+
+static int flat_color(const char *name)
+{
+    size_t n = strlen(name), s = strlen(FLAT_COLOR);
+    return name[0] != '.' && n > s && !strcmp(name + n - s, FLAT_COLOR);
+}
+
+/* DIR/STEM.SUFFIX into buf; 1 when it is a regular file, 0 when not, -1 when too long. */
+static int flat_file(char *buf, size_t n, const char *color, const char *suffix)
+{
+    size_t stem = strlen(color) - strlen(FLAT_COLOR);
+    int w = snprintf(buf, n, "%.*s%s", (int)stem, color, suffix);
+    if (w < 0 || (size_t)w >= n)
+        return -1;
+    return is_file(buf);
+}
+
+/* One folder of NAME.color.png, NAME.depth.png and NAME.pose.txt (camera-to-world 4x4,
+ * metres), the layout of the Microsoft 7-Scenes dataset (Shotton et al., CVPR 2013),
+ * with camera-intrinsics.txt (3x3 K) beside them. */
+static int from_flat(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_run_source *out)
+{
+    char **l = NULL;
+    size_t n = 0, kept = 0, posed = 0;
+    int rc = sinew__list_dir(ctx, dir, flat_color, 1, SINEW_RUN_MAX_FRAMES, &l, &n);
+    frame_key *ck = rc ? NULL : sinew__calloc(ctx, n ? n : 1, sizeof *ck);
+    if (!rc && (!ck || !(out->frames = sinew__calloc(ctx, n ? n : 1, sizeof *out->frames))))
+        rc = SINEW_ENOMEM;
+    char dp[SINEW__PATH_MAX], pp[SINEW__PATH_MAX];
+    for (size_t f = 0; !rc && f < n; f++) {
+        int hd = flat_file(dp, sizeof dp, l[f], ".depth.png");
+        int hp = flat_file(pp, sizeof pp, l[f], ".pose.txt");
+        if (hd < 0 || hp < 0) {
+            rc = sinew__fail(ctx, SINEW_ELIMIT, "%s: path too long", l[f]);
+            break;
+        }
+        if (!hd) {
+            if (!(flags & SINEW_RUN_SOURCE_DROP_UNMATCHED))
+                rc = sinew__fail(ctx, SINEW_ECONFIG,
+                                 "%s: no depth map %s (--drop-unmatched leaves such frames out)",
+                                 l[f], dp);
+            else
+                rc = warn(ctx, out, "%s: no depth map %s: frame left out", l[f], dp);
+            out->dropped++;
+            continue;
+        }
+        sinew_run_frame *fr = &out->frames[out->nframes++];
+        if (!(fr->color = sinew__strdup(ctx, l[f])) || !(fr->depth = sinew__strdup(ctx, dp))) {
+            rc = SINEW_ENOMEM;
+            break;
+        }
+        if (hp) {
+            sinew_rigid T;
+            if ((rc = sinew_rigid_load(ctx, &T, pp)))
+                break;
+            for (int r = 0; r < 3; r++) {
+                for (int c = 0; c < 3; c++)
+                    fr->pose[4 * r + c] = T.R[3 * r + c];
+                fr->pose[4 * r + 3] = T.t[r];
+            }
+            fr->has_pose = 1;
+            posed++;
+        }
+        key_of(l[f], f, &ck[kept++]);
+    }
+    if (!rc && posed && posed < out->nframes)
+        rc = warn(ctx, out,
+                  "%s: %zu of %zu frames have no pose file (NAME.pose.txt): no pose check "
+                  "for their pairs",
+                  dir, out->nframes - posed, out->nframes);
+    if (!rc && !out->nframes)
+        rc = sinew__fail(ctx, SINEW_ECONFIG, "%s: no colour image has a depth map", dir);
+    if (!rc)
+        rc = numbering_warnings(ctx, out, dir, ck, kept);
+    if (!rc && (rc = sinew__path_join(ctx, dp, sizeof dp, dir, "camera-intrinsics.txt")) == 0 &&
+        is_file(dp) && !(out->intrinsics = sinew__strdup(ctx, dp)))
+        rc = SINEW_ENOMEM;
+    sinew__free(ctx, ck);
+    sinew__free_names(ctx, l, n);
+    return rc;
+}
+
+/* Whether dir holds NAME.color.png files and no color/ folder (the 7-Scenes layout). */
+static int is_flat(sinew_ctx *ctx, const char *dir)
+{
+    char p[SINEW__PATH_MAX];
+    char **l = NULL;
+    size_t n = 0;
+    if (sinew__path_join(ctx, p, sizeof p, dir, "color") || is_dir(p) ||
+        sinew__list_dir(ctx, dir, flat_color, 0, SINEW_RUN_MAX_FRAMES, &l, &n)) {
+        sinew_ctx_clear(ctx);
+        return 0;
+    }
+    sinew__free_names(ctx, l, n);
+    return n > 0;
+}
+
 int sinew_run_source_from_folder(sinew_ctx *ctx, sinew_run_source *out, const char *dir,
                                  double max_dt, unsigned flags)
 {
@@ -460,6 +561,8 @@ int sinew_run_source_from_folder(sinew_ctx *ctx, sinew_run_source *out, const ch
         return rc;
     if (is_file(pa) && is_file(pb) && !(flags & SINEW_RUN_SOURCE_STEREO))
         rc = from_lists(ctx, dir, max_dt, out);
+    else if (!(flags & SINEW_RUN_SOURCE_STEREO) && is_flat(ctx, dir))
+        rc = from_flat(ctx, dir, flags, out);
     else
         rc = from_layout(ctx, dir, flags, out);
     if (!rc && (rc = sinew__path_join(ctx, pa, sizeof pa, dir, "intrinsics.json")) == 0 &&

@@ -1,7 +1,7 @@
 #!/bin/sh
 # SPDX-License-Identifier: MIT
 # End-to-end tests of camera poses in `sinew run` (issue 17): the pose check in each
-# pair's stats.json and --world-frame.
+# pair's stats.json, --world-frame, and the 7-Scenes folder layout that carries poses.
 #  - The pose check against published poses: Microsoft 7-Scenes frames 150-152 (Shotton et
 #    al., CVPR 2013; camera-to-world poses from KinectFusion, K = 585/585/320/240 from the
 #    dataset's camera-intrinsics.txt, depth in millimetres). The fitted rotation must be
@@ -113,26 +113,67 @@ expect_error "--world-frame needs every frame's pose" "$T/np/pairs" \
     "world-frame: frame 0 \(.*000000.png\) has no pose" \
     "$B" run "$T/sc/noposes.json" -o "$T/np" $OPT --world-frame
 
-# published poses: 7-Scenes
+# the 7-Scenes folder layout, built from the demo scene (frame-NNNNNN.color.png,
+# .depth.png, .pose.txt, camera-intrinsics.txt; no labels): the same flows, masks,
+# confidence, 3-D points and pose check as the sequence run
+mkdir -p "$T/flat"
+"$PY" - "$T" <<'EOF2'
+import json, shutil, sys
+T = sys.argv[1]
+s = json.load(open(f'{T}/sc/sequence.json'))
+k = s['intrinsics']
+open(f'{T}/flat/camera-intrinsics.txt', 'w').write(
+    '%r 0 %r\n0 %r %r\n0 0 1\n' % (k['fx'], k['cx'], k['fy'], k['cy']))
+for i, f in enumerate(s['frames']):
+    n = f'{T}/flat/frame-{i:06d}'
+    shutil.copy(f'{T}/sc/' + f['color'], n + '.color.png')
+    shutil.copy(f'{T}/sc/' + f['depth'], n + '.depth.png')
+    p = f['pose']
+    open(n + '.pose.txt', 'w').write(''.join('%r %r %r %r\n' % tuple(p[4 * r:4 * r + 4])
+                                             for r in range(3)) + '0 0 0 1\n')
+EOF2
+"$B" run "$T/flat" -o "$T/flatrun" $OPT >"$T/out" 2>"$T/err"
+ok=1
+for p in 000000-000001 000001-000002; do
+    for f in forward.flo backward.flo mask.png confidence.npy; do
+        cmp -s "$T/flatrun/pairs/$p/$f" "$T/cam/pairs/$p/$f" || ok=0
+    done
+    "$PY" - "$T/flatrun/pairs/$p" "$T/cam/pairs/$p" <<'EOF2' || ok=0
+import json, sys
+import numpy as np
+a, b = sys.argv[1:3]
+A, B = np.load(a + '/matches.npy'), np.load(b + '/matches.npy')
+assert A.shape[0] == B.shape[0] and np.array_equal(A[:, :11], B[:, :11])  # u0..Z1
+pa = json.load(open(a + '/stats.json'))['pose_check']
+pb = json.load(open(b + '/stats.json'))['pose_check']
+assert pa['rotation_error_deg'] == pb['rotation_error_deg'], (pa, pb)
+EOF2
+done
+if [ $ok -eq 1 ]; then
+    pass "7-Scenes folder layout: the sequence run's outputs, with the pose check"
+else fail "7-Scenes folder layout: the sequence run's outputs, with the pose check" "$(cat "$T/err")"; fi
+rm "$T/flat/frame-000001.pose.txt"
+if "$B" run "$T/flat" -o "$T/flatrun2" $OPT >"$T/out" 2>"$T/err" \
+    && grep -q "1 of 3 frames have no pose file" "$T/err" \
+    && ! grep -q '"pose_check"' "$T/flatrun2/pairs/000000-000001/stats.json"; then
+    pass "7-Scenes layout: a missing pose file is a warning, no pose check there"
+else fail "7-Scenes layout: a missing pose file is a warning, no pose check there" "$(cat "$T/err")"; fi
+rm "$T/flat/frame-000002.depth.png"
+expect_error "7-Scenes layout: a missing depth map is named" - \
+    "frame-000002.color.png: no depth map .*frame-000002.depth.png" "$B" run "$T/flat" -o "$T/flatrun3" $OPT
+
+# published poses: 7-Scenes, read from its own folder layout
 S="$SINEW_DATA/7scenes/tsdf-fusion-frames-150-154"
 if ! have_data 7scenes/tsdf-fusion-frames-150-154; then
     skip "pose check on 7-Scenes" "no data folder ($SINEW_DATA)"
     exit 0
 fi
-{
-    printf '{"version": 1, "intrinsics": {"fx": 585, "fy": 585, "cx": 320, "cy": 240, '
-    printf '"width": 640, "height": 480}, "depth_scale": 1000, "frames": ['
-    sep=""
-    for k in 150 151 152; do
-        p=$(awk 'NR <= 3 { for (i = 1; i <= 4; i++) printf "%s%s", (NR > 1 || i > 1) ? ", " : "", $i + 0 }' \
-            "$S/frame-000$k.pose.txt")
-        printf '%s{"color": "%s", "depth": "%s", "pose": [%s]}' "$sep" "$S/frame-000$k.color.png" \
-            "$S/frame-000$k.depth.png" "$p"
-        sep=", "
-    done
-    printf ']}\n'
-} >"$T/seven.json"
-"$B" run "$T/seven.json" -o "$T/seven" $OPT >/dev/null 2>"$T/err"
+mkdir -p "$T/seven_in"
+for k in 150 151 152; do
+    for x in color.png depth.png pose.txt; do ln -s "$S/frame-000$k.$x" "$T/seven_in/frame-000$k.$x"; done
+done
+ln -s "$S/camera-intrinsics.txt" "$T/seven_in/camera-intrinsics.txt"
+"$B" run "$T/seven_in" -o "$T/seven" $OPT >/dev/null 2>"$T/err"
 if ratios "$T/seven" >"$T/rat" 2>>"$T/err" && [ "$(wc -l <"$T/rat")" -eq 2 ] \
     && awk '{ if (!($2 < 0.5)) bad = 1 } END { exit bad }' "$T/rat"; then
     pass "pose check on 7-Scenes: fitted rotation within half the given rotation"

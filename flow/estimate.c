@@ -314,6 +314,12 @@ static int ensure_buffers(sinew_estimator *e, int w, int h, int channels)
         if (need > e->gp)
             e->gp = need;
         sinew__pm_grid(lw, lh, LM_STEP, &e->lm_nx, &e->lm_ny);
+        /* ... and, in the interpolation, two planes of the level plus the affine fits'
+         * scratch (one worker at least) in g's last two planes */
+        size_t lp = ((size_t)lw * (size_t)lh + 15u) & ~(size_t)15u;
+        need = lp + (lp + sinew__interp_scratch(e->lm_nx * e->lm_ny, 1) + 1) / 2;
+        if (need > e->gp)
+            e->gp = need;
         size_t ns = (size_t)e->lm_nx * (size_t)e->lm_ny;
         for (int d = 0; d < 2; d++) {
             for (int k = 0; k < 3; k++)
@@ -479,21 +485,29 @@ static int lm_match(sinew_estimator *e, const sinew__pyramid *a, const sinew__py
     return (float)k0 >= need && (float)k1 >= need;
 }
 
-/* The interpolation's label plane: g's fourth plane, used as ints (allocated storage,
- * written as int before it is read as int). */
-static int *lm_labels(sinew_estimator *e)
+/* Floats of one level plane in g, rounded up to 16. */
+static size_t lm_plane(const sinew__level *l)
 {
-    return (int *)(void *)(e->g + 3 * e->gp);
+    return ((size_t)l->w * (size_t)l->h + 15u) & ~(size_t)15u;
+}
+
+/* The interpolation's label plane: in g's third plane after the distances, used as ints
+ * (allocated storage, written as int before it is read as int). */
+static int *lm_labels(sinew_estimator *e, const sinew__level *l0)
+{
+    return (int *)(void *)(e->g + 2 * e->gp + lm_plane(l0));
 }
 
 /* Interpolate direction dir's kept seeds at level l0 into g (planes 0, 1: flow; 2:
- * geodesic distance; 3: labels). Returns the number of seeds used. */
+ * geodesic distance, then labels, then the fits' scratch to the end of g). Returns the
+ * number of seeds used. */
 static int lm_interpolate(sinew_estimator *e, const sinew__level *l0, int dir)
 {
     sinew__seeds sd = {e->lm_nx,        e->lm_ny,        LM_STEP,
                        e->lm_f[dir][0], e->lm_f[dir][1], e->lm_ok[dir]};
-    float *g = e->g;
-    return sinew__interpolate(g, g + e->gp, g + 2 * e->gp, lm_labels(e), l0->lum, l0->w, l0->h, &sd,
+    float *g = e->g, *tmp = g + 2 * e->gp + 2 * lm_plane(l0);
+    return sinew__interpolate(g, g + e->gp, g + 2 * e->gp, lm_labels(e, l0), tmp,
+                              2 * e->gp - 2 * lm_plane(l0), l0->lum, l0->w, l0->h, &sd,
                               sinew_ctx_threads(e->ctx));
 }
 
@@ -580,7 +594,7 @@ static void lm_level(sinew_estimator *e, float *u, float *v, sinew__level *l0, s
     int nt = sinew_ctx_threads(e->ctx);
     if (lm_interpolate(e, l0, dir)) {
         copy_flow(iu, iv, e->g, e->g + e->gp, n);
-        memcpy(lab, lm_labels(e), n * sizeof(int));
+        memcpy(lab, lm_labels(e, l0), n * sizeof(int));
         unsigned char *d0 = (unsigned char *)e->g, *d1 = d0 + n * SINEW__DESC_BYTES;
         sinew__describe(d0, l0->lum, l0->w, l0->h, e->work, e->work_floats, nt);
         sinew__describe(d1, l1->lum, l0->w, l0->h, e->work, e->work_floats, nt);

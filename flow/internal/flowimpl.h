@@ -227,8 +227,10 @@ typedef struct sinew__seeds {
 void sinew__geodesic_label(float *dist, int *label, const float *c, int w, int h);
 /* Dense (u, v) at a w x h level from the kept seeds, edge-preserving (flow/interpolate.c).
  * dist, label: w*h scratch each. Returns the number of seeds used (0: u, v untouched). */
-int sinew__interpolate(float *u, float *v, float *dist, int *label, const float *lum, int w, int h,
-                       const sinew__seeds *sd, int nt);
+int sinew__interpolate(float *u, float *v, float *dist, int *label, float *tmp, size_t tmp_floats,
+                       const float *lum, int w, int h, const sinew__seeds *sd, int nt);
+/* Scratch floats sinew__interpolate needs for its affine fits with `workers` threads. */
+size_t sinew__interp_scratch(int nseeds, int workers);
 
 /* Per pixel, d = C(ua, va) - C(uc, vc) + evidence, C the L1 distance between the
  * descriptor d0 at the pixel and d1 at its target rounded to the nearest pixel; 0 where

@@ -51,15 +51,15 @@ void sinew_check_params_default(sinew_check_params *p)
     p->conf_texture_scale = 4e-5;
     p->conf_boundary_scale = 6.0;
     /* Logistic calibration, printed by tools/fit_confidence (docs/methods.md). */
-    p->conf_bias = 5.9261;
-    p->conf_k_fb = 0.9974;
-    p->conf_k_photo = 0.9274;
-    p->conf_k_texture = 0.2319;
-    p->conf_k_boundary = 1.7372;
-    p->conf_k_motion = 0.6656;
-    p->conf_k_outside = 4.2917;
-    p->conf_k_saturated = 0.0037;
-    p->conf_k_fb_share = 5.7561;
+    p->conf_bias = 5.9122;
+    p->conf_k_fb = 1.0085;
+    p->conf_k_photo = 0.9710;
+    p->conf_k_texture = 0.2427;
+    p->conf_k_boundary = 1.7314;
+    p->conf_k_motion = 0.6448;
+    p->conf_k_outside = 4.1577;
+    p->conf_k_saturated = 0.0036;
+    p->conf_k_fb_share = 5.7260;
 }
 
 static const char *const feature_names[SINEW_CHECK_NFEATURES] = {

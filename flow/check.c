@@ -12,7 +12,8 @@
  *   4. smallest eigenvalue of the box-filtered structure tensor of frame 0;
  *   5. exact Euclidean distance to the nearest motion-boundary pixel (two 1-D passes
  *      of Felzenszwalb & Huttenlocher's lower-envelope transform);
- *   6. confidence as a product of smooth factors (see flow/check.h).
+ *   6. the neighbourhood FB cue (window sums, serial per row and column), then the
+ *      confidence: a logistic calibration of the cues (see flow/check.h).
  * All scratch memory is allocated before the first parallel region. */
 #include "flow/check.h"
 
@@ -51,19 +52,20 @@ void sinew_check_params_default(sinew_check_params *p)
     p->conf_texture_scale = 4e-5;
     p->conf_boundary_scale = 6.0;
     /* Logistic calibration, printed by tools/fit_confidence (docs/methods.md). */
-    p->conf_bias = 5.9122;
-    p->conf_k_fb = 1.0085;
-    p->conf_k_photo = 0.9710;
-    p->conf_k_texture = 0.2427;
-    p->conf_k_boundary = 1.7314;
-    p->conf_k_motion = 0.6448;
-    p->conf_k_outside = 4.1577;
-    p->conf_k_saturated = 0.0036;
-    p->conf_k_fb_share = 5.7260;
+    p->conf_bias = 5.2896;
+    p->conf_k_fb = 0.4090;
+    p->conf_k_photo = 1.0449;
+    p->conf_k_texture = 0.2612;
+    p->conf_k_boundary = 0.9185;
+    p->conf_k_motion = 0.3288;
+    p->conf_k_outside = 0.0000;
+    p->conf_k_saturated = 0.0025;
+    p->conf_k_fb_local = 0.7328;
+    p->conf_k_fb_share = 5.7211;
 }
 
 static const char *const feature_names[SINEW_CHECK_NFEATURES] = {
-    "fb", "photo", "texture", "boundary", "motion", "outside", "saturated", "fb_share",
+    "fb", "photo", "texture", "boundary", "motion", "outside", "saturated", "fb_local", "fb_share",
 };
 
 const char *sinew_check_feature_name(int i)
@@ -119,6 +121,7 @@ size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *o
         {"conf_k_motion", p->conf_k_motion},
         {"conf_k_outside", p->conf_k_outside},
         {"conf_k_saturated", p->conf_k_saturated},
+        {"conf_k_fb_local", p->conf_k_fb_local},
         {"conf_k_fb_share", p->conf_k_fb_share},
         {"conf_bias", p->conf_bias}, /* last: the only one that may be negative */
     };
@@ -332,6 +335,8 @@ typedef struct scratch {
     unsigned *hist;       /* residual histogram */
     float *range;         /* backward-flow splat density on frame 0 (range map) */
     float *crowd;         /* forward-flow splat density on frame 1, or z-buffer with depth */
+    float *local;         /* cue fb_local (pass 6a) */
+    float *lrow;          /* its horizontal window sums and counts, 2 per pixel */
     float *fb;            /* fb output if caller passed none */
     uint8_t *mask;        /* mask plane (contiguous) */
 } scratch;
@@ -340,12 +345,12 @@ typedef struct scratch {
 
 static void scratch_free(sinew_ctx *ctx, scratch *s)
 {
-    void **all[] = {(void **)&s->gray0,   (void **)&s->gray1, (void **)&s->warp1,
-                    (void **)&s->fbratio, (void **)&s->resid, (void **)&s->lmin,
-                    (void **)&s->t3a,     (void **)&s->t3b,   (void **)&s->dist2,
-                    (void **)&s->rows,    (void **)&s->dtbuf, (void **)&s->dtv,
-                    (void **)&s->hist,    (void **)&s->fb,    (void **)&s->mask,
-                    (void **)&s->range,   (void **)&s->crowd};
+    void **all[] = {
+        (void **)&s->gray0, (void **)&s->gray1, (void **)&s->warp1, (void **)&s->fbratio,
+        (void **)&s->resid, (void **)&s->lmin,  (void **)&s->t3a,   (void **)&s->t3b,
+        (void **)&s->dist2, (void **)&s->rows,  (void **)&s->dtbuf, (void **)&s->dtv,
+        (void **)&s->hist,  (void **)&s->fb,    (void **)&s->mask,  (void **)&s->range,
+        (void **)&s->crowd, (void **)&s->local, (void **)&s->lrow};
     for (size_t i = 0; i < sizeof all / sizeof all[0]; i++) {
         sinew__free(ctx, *all[i]);
         *all[i] = NULL;
@@ -382,6 +387,8 @@ static int scratch_alloc(sinew_ctx *ctx, scratch *s, int w, int h, int frames, i
     GET(mask, n, uint8_t);
     GET(range, n, float);
     GET(crowd, n, float);
+    GET(local, n, float);
+    GET(lrow, 2 * n, float);
 #undef GET
     s->big = (double)w * w + (double)h * h + 1;
     if (bad) {
@@ -751,6 +758,65 @@ static void pass_distance(scratch *s, int w, int h, int nthreads)
         dt_line(s, (size_t)x, (size_t)w, h, nmax); /* columns */
 }
 
+/* ---- pass 6a: neighbourhood FB cue ---- */
+
+#define LOCAL_RADIUS 3 /* 7x7 window (docs/methods.md, "Confidence") */
+
+/* The fb cue of pixel i for the window mean: the cue itself, `top` for a target outside
+ * frame 1, NaN (left out) for IGNORE and UNKNOWN pixels. */
+static inline float fb_cue_of(const scratch *s, size_t i, float top)
+{
+    uint8_t m = s->mask[i];
+    if (m & (SINEW_MASK_IGNORE | SINEW_MASK_UNKNOWN))
+        return NAN;
+    if (m & SINEW_MASK_OUTSIDE)
+        return top;
+    return isfinite(s->fbratio[i]) ? (float)log1p(sqrt(s->fbratio[i])) : NAN;
+}
+
+/* fb_local: the mean of fb_cue_of over the (2 LOCAL_RADIUS + 1)² window clipped at the
+ * border, 0 where no pixel of the window has a value. Horizontal sums and counts per
+ * row into lrow, then vertical sums; each sum is serial, so the result is the same for
+ * any thread count. */
+static void pass_local(const sinew_check_params *p, scratch *s, int w, int h, int nthreads)
+{
+    (void)nthreads; /* unused without OpenMP */
+    const int r = LOCAL_RADIUS;
+    double diag = sqrt((double)w * w + (double)h * h);
+    float top = (float)(p->conf_fb_beta > 0 ? log1p(diag / sqrt(p->conf_fb_beta))
+                                            : log1p(1 / sqrt(p->conf_fb_alpha)));
+    SINEW_PARALLEL_FOR(nthreads)
+    for (int y = 0; y < h; y++) {
+        float *o = s->lrow + 2 * (size_t)y * w;
+        for (int x = 0; x < w; x++) {
+            int a = x - r < 0 ? 0 : x - r, b = x + r > w - 1 ? w - 1 : x + r;
+            double sum = 0, cnt = 0;
+            for (int i = a; i <= b; i++) {
+                float v = fb_cue_of(s, (size_t)y * w + i, top);
+                if (!isnan(v)) {
+                    sum += v;
+                    cnt += 1;
+                }
+            }
+            o[2 * x] = (float)sum;
+            o[2 * x + 1] = (float)cnt;
+        }
+    }
+    SINEW_PARALLEL_FOR(nthreads)
+    for (int y = 0; y < h; y++) {
+        int a = y - r < 0 ? 0 : y - r, b = y + r > h - 1 ? h - 1 : y + r;
+        for (int x = 0; x < w; x++) {
+            double sum = 0, cnt = 0;
+            for (int i = a; i <= b; i++) {
+                const float *c = s->lrow + 2 * ((size_t)i * w + x);
+                sum += c[0];
+                cnt += c[1];
+            }
+            s->local[(size_t)y * w + x] = cnt > 0 ? (float)(sum / cnt) : 0.0f;
+        }
+    }
+}
+
 /* ---- pass 6: confidence ---- */
 
 static void pass_confidence(const sinew_check_input *in, const sinew_check_params *p, scratch *s,
@@ -765,8 +831,9 @@ static void pass_confidence(const sinew_check_input *in, const sinew_check_param
         incons += (s->mask[i] & SINEW_MASK_FB_ANY) != 0;
     const double share = (double)incons / (double)n;
     const double k[SINEW_CHECK_NFEATURES] = {
-        p->conf_k_fb,     p->conf_k_photo,   p->conf_k_texture,   p->conf_k_boundary,
-        p->conf_k_motion, p->conf_k_outside, p->conf_k_saturated, p->conf_k_fb_share};
+        p->conf_k_fb,        p->conf_k_photo,    p->conf_k_texture,
+        p->conf_k_boundary,  p->conf_k_motion,   p->conf_k_outside,
+        p->conf_k_saturated, p->conf_k_fb_local, p->conf_k_fb_share};
     SINEW_PARALLEL_FOR(nthreads)
     for (int y = 0; y < h; y++) {
         float *out = sinew_image_row_f32(conf, y);
@@ -794,7 +861,8 @@ static void pass_confidence(const sinew_check_input *in, const sinew_check_param
             f[4] = log1p(hypot(fr[2 * x], fr[2 * x + 1]));
             f[5] = outside;
             f[6] = (m & SINEW_MASK_SATURATED) != 0;
-            f[7] = share;
+            f[7] = s->local[i];
+            f[8] = share;
             double z = p->conf_bias;
             for (int c = 0; c < SINEW_CHECK_NFEATURES; c++) {
                 z -= k[c] * f[c];
@@ -889,6 +957,7 @@ int sinew_check_run(sinew_ctx *ctx, sinew_check_output *out, const sinew_check_i
         pass_texture(&s, w, h, params->texture_radius, nthreads);
     }
     pass_distance(&s, w, h, nthreads);
+    pass_local(params, &s, w, h, nthreads);
     pass_confidence(in, params, &s, conf, out->features, nthreads);
 
     stats.pixels = (int64_t)w * h;

@@ -90,6 +90,10 @@ typedef struct sinew_check_params {
      *   motion   log(1 + |w|) (|w| in px)
      *   outside  1 if the target leaves frame 1, else 0
      *   saturated 1 if SATURATED, else 0
+     *   fb_local the mean of the fb cue over the 7x7 window around x (clipped at the
+     *            border), a pixel whose target leaves frame 1 counting as the largest
+     *            possible FB error log(1 + D / sqrt(conf_fb_beta)), D the image diagonal
+     *            (px); IGNORE and UNKNOWN pixels left out; 0 if none is left
      *   fb_share the share of the image's pixels that are forward-backward inconsistent
      *            (OCCLUDED or MISMATCH), the same for every pixel of the pair: how well
      *            the flow held on this pair as a whole
@@ -100,7 +104,7 @@ typedef struct sinew_check_params {
     double conf_photo_scale, conf_texture_scale, conf_boundary_scale;
     double conf_bias;
     double conf_k_fb, conf_k_photo, conf_k_texture, conf_k_boundary, conf_k_motion, conf_k_outside,
-        conf_k_saturated, conf_k_fb_share;
+        conf_k_saturated, conf_k_fb_local, conf_k_fb_share;
 } sinew_check_params;
 
 /* Fill *p with the defaults listed above. */
@@ -112,7 +116,7 @@ typedef struct sinew_check_param {
     const char *name; /* static storage */
     double value;
 } sinew_check_param;
-#define SINEW_CHECK_NPARAMS 24
+#define SINEW_CHECK_NPARAMS 25
 /* Copy min(max, SINEW_CHECK_NPARAMS) pairs into out (may be NULL when max is 0); returns
  * SINEW_CHECK_NPARAMS. */
 size_t sinew_check_params_list(const sinew_check_params *p, sinew_check_param *out, size_t max);
@@ -144,7 +148,7 @@ typedef struct sinew_check_stats {
 } sinew_check_stats;
 
 /* Number of confidence cues (features), in the order listed above. */
-#define SINEW_CHECK_NFEATURES 8
+#define SINEW_CHECK_NFEATURES 9
 
 /* Outputs, allocated by the caller with the flow's width and height; each may be NULL
  * (then it is computed in scratch memory and dropped):

@@ -84,10 +84,14 @@ out = np.zeros((8, 12), bool); out[:, 11] = True; out[7, :] = True
 assert (m[out] == 2).all() and (m[~out] == 0).all(), m
 assert np.isnan(fb[out]).all() and (fb[~out] == 0).all()
 # confidence by hand: logistic calibration with the cues fb 0, motion log(1 + |w|),
-# outside 0 or 1 (docs/methods.md, Confidence)
+# outside 0 or 1, fb_local the 7x7 mean (clipped) of log(1 + diagonal / sqrt(conf_fb_beta))
+# on outside pixels and 0 elsewhere (docs/methods.md, Confidence)
 p = j['params']; z = p['conf_bias'] - p['conf_k_motion'] * np.log1p(np.hypot(1, 0.5))
-assert np.allclose(c[~out], 1 / (1 + np.exp(-z)), atol=1e-6), c
-assert np.allclose(c[out], 1 / (1 + np.exp(-(z - p['conf_k_outside']))), atol=1e-6), c
+v = np.where(out, np.log1p(np.hypot(12, 8) / np.sqrt(p['conf_fb_beta'])), 0)
+loc = np.array([[v[max(y - 3, 0):y + 4, max(x - 3, 0):x + 4].mean() for x in range(12)]
+                for y in range(8)])
+z = z - p['conf_k_fb_local'] * loc - p['conf_k_outside'] * out
+assert np.allclose(c, 1 / (1 + np.exp(-z)), atol=1e-6), c
 assert (c16 == np.round(c * 65535)).all()
 assert j['counts']['outside'] == 19 and j['counts']['kept'] == 77, j['counts']
 # Sundaram, Brox, Keutzer ECCV 2010 defaults

@@ -98,12 +98,34 @@ static void texture_u8(sinew_ctx *ctx, sinew_image *img, int w, int h, unsigned 
 static double conf_of(const sinew_check_params *p, const double f[SINEW_CHECK_NFEATURES])
 {
     const double k[SINEW_CHECK_NFEATURES] = {
-        p->conf_k_fb,     p->conf_k_photo,   p->conf_k_texture,   p->conf_k_boundary,
-        p->conf_k_motion, p->conf_k_outside, p->conf_k_saturated, p->conf_k_fb_share};
+        p->conf_k_fb,        p->conf_k_photo,    p->conf_k_texture,
+        p->conf_k_boundary,  p->conf_k_motion,   p->conf_k_outside,
+        p->conf_k_saturated, p->conf_k_fb_local, p->conf_k_fb_share};
     double z = p->conf_bias;
     for (int i = 0; i < SINEW_CHECK_NFEATURES; i++)
         z -= k[i] * f[i];
     return 1 / (1 + exp(-z));
+}
+
+/* Cue fb_local by hand: the mean of v (w x h, row-major; NaN = left out) over the 7x7
+ * window around (x, y) clipped at the border, 0 if nothing is left. */
+static double local_mean(const double *v, int w, int h, int x, int y)
+{
+    double sum = 0, n = 0;
+    for (int j = y - 3; j <= y + 3; j++)
+        for (int i = x - 3; i <= x + 3; i++)
+            if (i >= 0 && i < w && j >= 0 && j < h && !isnan(v[j * w + i])) {
+                sum += v[j * w + i];
+                n += 1;
+            }
+    return n > 0 ? sum / n : 0;
+}
+
+/* The value a pixel whose target leaves the frame takes in fb_local: the fb cue of an
+ * error as long as the image diagonal, log(1 + D / sqrt(conf_fb_beta)). */
+static double local_top(const sinew_check_params *p, int w, int h)
+{
+    return log1p(sqrt((double)w * w + (double)h * h) / sqrt(p->conf_fb_beta));
 }
 
 static void assert_conf_range(const sinew_image *c)
@@ -159,12 +181,17 @@ static void test_check_constant_consistent(void **state)
     assert_int_equal(run(ctx, &r, &f, &b, NULL, NULL, NULL, NULL), SINEW_OK);
     sinew_check_params p;
     sinew_check_params_default(&p);
-    /* cues: fb log(1 + 0) = 0, motion log(1 + |w|), outside 0 or 1, the rest 0 */
+    /* cues: fb log(1 + 0) = 0, motion log(1 + |w|), outside 0 or 1, fb_local the share
+     * of outside pixels in the window times the top value, the rest 0 */
     const double m = log1p(sqrt(1.25));
-    const double fin[SINEW_CHECK_NFEATURES] = {0, 0, 0, 0, m, 0, 0};
-    const double fout[SINEW_CHECK_NFEATURES] = {0, 0, 0, 0, m, 1, 0};
+    double v[48];
+    for (int k = 0; k < 48; k++)
+        v[k] = (k % 8 == 7 || k / 8 == 5) ? local_top(&p, 8, 6) : 0;
     for (int y = 0; y < 6; y++)
         for (int x = 0; x < 8; x++) {
+            double loc = local_mean(v, 8, 6, x, y);
+            const double fin[SINEW_CHECK_NFEATURES] = {0, 0, 0, 0, m, 0, 0, loc, 0};
+            const double fout[SINEW_CHECK_NFEATURES] = {0, 0, 0, 0, m, 1, 0, loc, 0};
             int out = x == 7 || y == 5;
             assert_int_equal(mk(&r.mask, x, y), out ? SINEW_MASK_OUTSIDE : 0);
             if (out) {
@@ -219,8 +246,15 @@ static void test_check_fb_hand_computed(void **state)
     double tol = sqrt(0.01 * (0.25 + 1.5625) + 0.5);
     /* fb_share: x = 2..6 inconsistent in each of the 3 rows, 15 of 24 pixels */
     assert_int_equal(r.o.stats.reason[0] + r.o.stats.reason[7], 15);
-    const double cue[SINEW_CHECK_NFEATURES] = {log1p(0.75 / tol), 0, 0, 0,
-                                               log1p(0.5),        0, 0, 15.0 / 24};
+    /* fb_local: the fb cue of columns 0..5 (every row alike), e = |0.25 - 0.5 x|, ŵ =
+     * -0.5 (x + 0.5); column 7 (target outside) is outside the window */
+    double v[24];
+    for (int k = 0; k < 24; k++) {
+        double x = k % 8, bw = -0.5 * (x + 0.5);
+        v[k] = log1p(fabs(0.25 - 0.5 * x) / sqrt(0.01 * (0.25 + bw * bw) + 0.5));
+    }
+    const double cue[SINEW_CHECK_NFEATURES] = {
+        log1p(0.75 / tol), 0, 0, 0, log1p(0.5), 0, 0, local_mean(v, 8, 3, 2, 1), 15.0 / 24};
     assert_float_equal(*fl(&r.conf, 2, 1), conf_of(&p, cue), 1e-6);
     /* The constants are tunable: a looser beta makes x = 2 consistent. */
     p.fb_beta = 0.6;
@@ -544,9 +578,13 @@ static void test_check_boundary_distance_exact(void **state)
                 if (dx * dx + dy * dy < d2)
                     d2 = dx * dx + dy * dy;
             }
-            /* fb_share: the bump itself is inconsistent (e = 1), 1 of w h pixels */
+            /* fb_share: the bump itself is inconsistent (e = 1), 1 of w h pixels;
+             * fb_local: its fb cue over the 49 pixels of a window that holds it (such
+             * windows lie inside the image) */
+            int near = abs(x - 10) <= 3 && abs(y - 10) <= 3;
+            double loc = near ? log1p(1 / sqrt(p.conf_fb_beta)) / 49 : 0;
             const double cue[SINEW_CHECK_NFEATURES] = {
-                0, 0, 0, exp(-sqrt(d2) / p.conf_boundary_scale), 0, 0, 0, 1.0 / (w * h)};
+                0, 0, 0, exp(-sqrt(d2) / p.conf_boundary_scale), 0, 0, 0, loc, 1.0 / (w * h)};
             double want = conf_of(&p, cue);
             assert_float_equal(*fl(&r.conf, x, y), want, 1e-6);
         }

@@ -428,7 +428,7 @@ static void test_hostile_check_parameters(void **state)
     sinew_check_input in = {&fw, &bw, NULL, NULL, NULL, NULL};
     const double bad[] = {NAN, INFINITY, -INFINITY, -1, -1e-300};
     for (int b = 0; b < 5; b++)
-        for (int field = 0; field < 23; field++) {
+        for (int field = 0; field < 24; field++) {
             sinew_check_params p;
             sinew_check_params_default(&p);
             /* every floating-point parameter of flow/check.h (conf_bias may be negative:
@@ -454,10 +454,11 @@ static void test_hostile_check_parameters(void **state)
                                 &p.conf_k_motion,
                                 &p.conf_k_outside,
                                 &p.conf_k_saturated,
+                                &p.conf_k_fb_local,
                                 &p.conf_k_fb_share,
                                 &p.conf_bias};
-            assert_int_equal(sizeof fields / sizeof fields[0], 23);
-            if (field == 22 && b >= 3)
+            assert_int_equal(sizeof fields / sizeof fields[0], 24);
+            if (field == 23 && b >= 3)
                 continue; /* a negative bias is valid */
             *fields[field] = bad[b];
             must_fail(ctx, sinew_check_run(ctx, &out, &in, &p), "hostile check parameter");

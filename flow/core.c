@@ -253,16 +253,22 @@ void *sinew__alloc(sinew_ctx *ctx, size_t n)
     return p;
 }
 
-void *sinew__calloc(sinew_ctx *ctx, size_t count, size_t size)
+void *sinew__alloc_array(sinew_ctx *ctx, size_t count, size_t size)
 {
     size_t n;
     if (sinew__mul_size(count, size, &n)) {
         sinew__fail(ctx, SINEW_EOVERFLOW, "allocation size overflow (%zu x %zu)", count, size);
         return NULL;
     }
-    void *p = sinew__alloc(ctx, n);
+    return sinew__alloc(ctx, n);
+}
+
+void *sinew__calloc(sinew_ctx *ctx, size_t count, size_t size)
+{
+    void *p = sinew__alloc_array(ctx, count, size);
+    size_t n = count * size; /* no overflow: checked above */
     if (p)
-        memset(p, 0, n ? n : 1);
+        memset(p, 0, n > 0 ? n : 1);
     return p;
 }
 

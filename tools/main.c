@@ -91,12 +91,18 @@ static void start_settings(char **argv)
  * from its heap (not one mmap each) and keeps up to 512 MiB of freed heap (the default
  * trims above 128 KiB). Peak memory is unchanged (freed blocks are reused, not added);
  * `sinew run --preset fast` on the 640x480 demo scene, one thread: 71k -> 15k page
- * faults, 2.75 -> 2.1 s CPU for 12 pairs (docs/benchmarks.md). */
+ * faults, 2.75 -> 2.1 s CPU for 12 pairs (docs/benchmarks.md). All threads share that
+ * one heap (M_ARENA_MAX 1): `run --jobs` workers otherwise get per-thread arenas, which
+ * hand whole freed sub-heaps back to the system after every pair (and get no huge
+ * pages): `sinew run --preset fast` at 1280x1024, 2 jobs, 4 pairs: 117k -> 1k page
+ * faults. The workers allocate a few large blocks per pair, so sharing costs nothing
+ * measurable. */
 static void malloc_policy(void)
 {
 #if defined(__GLIBC__)
     mallopt(M_MMAP_THRESHOLD, 32 << 20);
     mallopt(M_TRIM_THRESHOLD, 512 << 20);
+    mallopt(M_ARENA_MAX, 1);
 #endif
 }
 

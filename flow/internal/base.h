@@ -23,6 +23,9 @@ int sinew__fail(sinew_ctx *ctx, int status, const char *fmt, ...) SINEW__PRINTF(
 /* Allocation through the context's allocator; sets ENOMEM message on failure. */
 void *sinew__alloc(sinew_ctx *ctx, size_t n);
 void *sinew__calloc(sinew_ctx *ctx, size_t count, size_t size); /* zeroed, overflow-checked */
+/* count * size bytes, overflow-checked, NOT zeroed: for planes every pixel of which is
+ * written before it is read (a zeroed plane costs a full extra pass) */
+void *sinew__alloc_array(sinew_ctx *ctx, size_t count, size_t size);
 /* A copy of string s from the context's allocator; NULL for NULL or out of memory. */
 char *sinew__strdup(sinew_ctx *ctx, const char *s);
 void sinew__free(sinew_ctx *ctx, void *p);

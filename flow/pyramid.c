@@ -102,32 +102,9 @@ static void convert_frame(sinew__level *l, int channels, const sinew_image *f, i
     }
 }
 
-void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp, int nt)
+/* Normalised Gaussian taps k[0 .. 2r] for sigma; returns r (1..7). */
+static int blur_taps(float k[16], float sigma)
 {
-    sinew__level *l0 = &p->lv[0];
-    convert_frame(l0, p->channels, frame, nt);
-    int nplanes = p->channels > 1 ? p->channels + 1 : 1;
-    for (int l = 0; l < p->levels; l++) {
-        sinew__level *lv = &p->lv[l];
-        if (l > 0) {
-            sinew__level *up = &p->lv[l - 1];
-            size_t n = (size_t)up->w * (size_t)up->h;
-            for (int c = 0; c < nplanes; c++) {
-                int colour = c < p->channels && p->channels > 1;
-                const float *src = colour ? up->ch[c] : up->lum;
-                float *dst = colour ? lv->ch[c] : lv->lum;
-                /* anti-alias before the 2x2 box (see PYR_SIGMA0) */
-                sinew__blur(tmp, src, tmp + n, up->w, up->h, l == 1 ? PYR_SIGMA0 : PYR_SIGMA, nt);
-                sinew__halve(dst, tmp, up->w, up->h, nt);
-            }
-        }
-    }
-}
-
-void sinew__blur(float *dst, const float *src, float *tmp, int w, int h, float sigma, int nt)
-{
-    (void)nt; /* unused without OpenMP */
-    float k[16];
     int r = (int)ceilf(3.0f * sigma);
     if (r < 1)
         r = 1;
@@ -140,88 +117,129 @@ void sinew__blur(float *dst, const float *src, float *tmp, int w, int h, float s
     }
     for (int i = 0; i <= 2 * r; i++)
         k[i] /= sum;
-    /* vertical pass into tmp: unit-stride inner loop over x */
-    SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < h; y++) {
-        float *restrict out = tmp + (size_t)y * (size_t)w;
+    return r;
+}
+
+/* Vertical pass of row y (clamped rows): unit-stride inner loop over x. */
+static inline void blur_vrow(float *restrict out, const float *src, int w, int h, int y,
+                             const float *k, int r)
+{
+    for (int x = 0; x < w; x++)
+        out[x] = 0.f;
+    for (int i = -r; i <= r; i++) {
+        int yy = y + i < 0 ? 0 : (y + i >= h ? h - 1 : y + i);
+        const float *restrict in = src + (size_t)yy * (size_t)w;
+        float kk = k[i + r];
         for (int x = 0; x < w; x++)
-            out[x] = 0.f;
-        for (int i = -r; i <= r; i++) {
-            int yy = y + i < 0 ? 0 : (y + i >= h ? h - 1 : y + i);
-            const float *restrict in = src + (size_t)yy * (size_t)w;
-            float kk = k[i + r];
-            for (int x = 0; x < w; x++)
-                out[x] += kk * in[x];
+            out[x] += kk * in[x];
+    }
+}
+
+/* Horizontal pass of one row (clamped columns). */
+static inline void blur_hrow(float *restrict out, const float *restrict in, int w, const float *k,
+                             int r)
+{
+    for (int x = 0; x < w; x++) {
+        float s = 0.f;
+        if (x >= r && x < w - r) {
+            for (int i = -r; i <= r; i++)
+                s += k[i + r] * in[x + i];
+        } else {
+            for (int i = -r; i <= r; i++) {
+                int xx = x + i < 0 ? 0 : (x + i >= w ? w - 1 : x + i);
+                s += k[i + r] * in[xx];
+            }
+        }
+        out[x] = s;
+    }
+}
+
+/* Row of the 2x2 box halving from source rows a and b (b = a on an odd height's last
+ * row), clamped at an odd width's last column. */
+static inline void halve_row(float *restrict o, const float *a, const float *b, int sw, int dw)
+{
+    for (int x = 0; x < dw; x++) {
+        int x0 = 2 * x, x1 = 2 * x + 1 < sw ? 2 * x + 1 : sw - 1;
+        o[x] = 0.25f * ((a[x0] + a[x1]) + (b[x0] + b[x1]));
+    }
+}
+
+/* Each level in one parallel loop over its rows, all planes at once: output row y blurs
+ * (vertical, then horizontal) exactly the two source rows it averages, which no other
+ * output row uses, so the temporaries are rows 2y and 2y + 1 of two whole-level planes
+ * in tmp, and the bits are those of sinew__blur then sinew__halve per plane. A busy
+ * machine then sees one join per level instead of three per plane and level. */
+void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tmp, int nt)
+{
+    sinew__level *l0 = &p->lv[0];
+    convert_frame(l0, p->channels, frame, nt);
+    int nplanes = p->channels > 1 ? p->channels + 1 : 1;
+    for (int l = 1; l < p->levels; l++) {
+        sinew__level *lv = &p->lv[l], *up = &p->lv[l - 1];
+        int sw = up->w, sh = up->h, dw = lv->w, dh = lv->h;
+        size_t n = (size_t)sw * (size_t)sh;
+        float *ht = tmp, *vt = tmp + n;
+        float k[16];
+        /* anti-alias before the 2x2 box (see PYR_SIGMA0) */
+        int r = blur_taps(k, l == 1 ? PYR_SIGMA0 : PYR_SIGMA);
+        const float *src[SINEW__MAX_CH + 1];
+        float *dst[SINEW__MAX_CH + 1];
+        for (int c = 0; c < nplanes; c++) {
+            int colour = c < p->channels && p->channels > 1;
+            src[c] = colour ? up->ch[c] : up->lum;
+            dst[c] = colour ? lv->ch[c] : lv->lum;
+        }
+        SINEW_PARALLEL_FOR(nt)
+        for (int y = 0; y < dh; y++) {
+            int y0 = 2 * y, y1 = 2 * y + 1 < sh ? 2 * y + 1 : sh - 1;
+            float *h0 = ht + (size_t)y0 * (size_t)sw, *h1 = ht + (size_t)y1 * (size_t)sw;
+            for (int c = 0; c < nplanes; c++) {
+                for (int yy = y0; yy <= y1; yy++) {
+                    float *v = vt + (size_t)yy * (size_t)sw;
+                    blur_vrow(v, src[c], sw, sh, yy, k, r);
+                    blur_hrow(ht + (size_t)yy * (size_t)sw, v, sw, k, r);
+                }
+                halve_row(dst[c] + (size_t)y * (size_t)dw, h0, h1, sw, dw);
+            }
         }
     }
-    /* horizontal pass into dst */
-    SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < h; y++) {
-        const float *restrict in = tmp + (size_t)y * (size_t)w;
-        float *restrict out = dst + (size_t)y * (size_t)w;
+}
+
+void sinew__gradient_row(float *gx, float *gy, const float *src, int w, int h, int y)
+{
+    const float c1 = 8.0f / 12.0f, c2 = 1.0f / 12.0f;
+    const float *restrict r = src + (size_t)y * (size_t)w;
+    if (gx) {
+        float *restrict o = gx + (size_t)y * (size_t)w;
         for (int x = 0; x < w; x++) {
-            float s = 0.f;
-            if (x >= r && x < w - r) {
-                for (int i = -r; i <= r; i++)
-                    s += k[i + r] * in[x + i];
+            if (x >= 2 && x < w - 2) {
+                o[x] = c1 * (r[x + 1] - r[x - 1]) - c2 * (r[x + 2] - r[x - 2]);
             } else {
-                for (int i = -r; i <= r; i++) {
-                    int xx = x + i < 0 ? 0 : (x + i >= w ? w - 1 : x + i);
-                    s += k[i + r] * in[xx];
-                }
+                int xm1 = x - 1 < 0 ? 0 : x - 1, xm2 = x - 2 < 0 ? 0 : x - 2;
+                int xp1 = x + 1 >= w ? w - 1 : x + 1, xp2 = x + 2 >= w ? w - 1 : x + 2;
+                o[x] = c1 * (r[xp1] - r[xm1]) - c2 * (r[xp2] - r[xm2]);
             }
-            out[x] = s;
         }
+    }
+    if (gy) {
+        int ym1 = y - 1 < 0 ? 0 : y - 1, ym2 = y - 2 < 0 ? 0 : y - 2;
+        int yp1 = y + 1 >= h ? h - 1 : y + 1, yp2 = y + 2 >= h ? h - 1 : y + 2;
+        const float *restrict a1 = src + (size_t)yp1 * (size_t)w;
+        const float *restrict b1 = src + (size_t)ym1 * (size_t)w;
+        const float *restrict a2 = src + (size_t)yp2 * (size_t)w;
+        const float *restrict b2 = src + (size_t)ym2 * (size_t)w;
+        float *restrict o = gy + (size_t)y * (size_t)w;
+        for (int x = 0; x < w; x++)
+            o[x] = c1 * (a1[x] - b1[x]) - c2 * (a2[x] - b2[x]);
     }
 }
 
 void sinew__gradient(float *gx, float *gy, const float *src, int w, int h, int nt)
 {
     (void)nt; /* unused without OpenMP */
-    const float c1 = 8.0f / 12.0f, c2 = 1.0f / 12.0f;
     SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < h; y++) {
-        const float *restrict r = src + (size_t)y * (size_t)w;
-        if (gx) {
-            float *restrict o = gx + (size_t)y * (size_t)w;
-            for (int x = 0; x < w; x++) {
-                if (x >= 2 && x < w - 2) {
-                    o[x] = c1 * (r[x + 1] - r[x - 1]) - c2 * (r[x + 2] - r[x - 2]);
-                } else {
-                    int xm1 = x - 1 < 0 ? 0 : x - 1, xm2 = x - 2 < 0 ? 0 : x - 2;
-                    int xp1 = x + 1 >= w ? w - 1 : x + 1, xp2 = x + 2 >= w ? w - 1 : x + 2;
-                    o[x] = c1 * (r[xp1] - r[xm1]) - c2 * (r[xp2] - r[xm2]);
-                }
-            }
-        }
-        if (gy) {
-            int ym1 = y - 1 < 0 ? 0 : y - 1, ym2 = y - 2 < 0 ? 0 : y - 2;
-            int yp1 = y + 1 >= h ? h - 1 : y + 1, yp2 = y + 2 >= h ? h - 1 : y + 2;
-            const float *restrict a1 = src + (size_t)yp1 * (size_t)w;
-            const float *restrict b1 = src + (size_t)ym1 * (size_t)w;
-            const float *restrict a2 = src + (size_t)yp2 * (size_t)w;
-            const float *restrict b2 = src + (size_t)ym2 * (size_t)w;
-            float *restrict o = gy + (size_t)y * (size_t)w;
-            for (int x = 0; x < w; x++)
-                o[x] = c1 * (a1[x] - b1[x]) - c2 * (a2[x] - b2[x]);
-        }
-    }
-}
-
-void sinew__halve(float *dst, const float *src, int sw, int sh, int nt)
-{
-    (void)nt; /* unused without OpenMP */
-    int dw = (sw + 1) / 2, dh = (sh + 1) / 2;
-    SINEW_PARALLEL_FOR(nt)
-    for (int y = 0; y < dh; y++) {
-        int y0 = 2 * y, y1 = 2 * y + 1 < sh ? 2 * y + 1 : sh - 1;
-        const float *a = src + (size_t)y0 * (size_t)sw, *b = src + (size_t)y1 * (size_t)sw;
-        float *o = dst + (size_t)y * (size_t)dw;
-        for (int x = 0; x < dw; x++) {
-            int x0 = 2 * x, x1 = 2 * x + 1 < sw ? 2 * x + 1 : sw - 1;
-            o[x] = 0.25f * ((a[x0] + a[x1]) + (b[x0] + b[x1]));
-        }
-    }
+    for (int y = 0; y < h; y++)
+        sinew__gradient_row(gx, gy, src, w, h, y);
 }
 
 void sinew__flow_resize(sinew_image *out, const float *su, const float *sv, int sw, int sh, int nt)

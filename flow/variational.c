@@ -140,42 +140,38 @@ static inline size_t rb_row(const planes *P, int c, int y)
     return c ? (P->n + 1) / 2 + r : r;
 }
 
-/* dst = 0.5 * (a + b) */
-static void average(float *restrict dst, const float *restrict a, const float *restrict b, size_t n,
-                    int nt)
+/* dst = 0.5 * (a + b) on n elements */
+static inline void average_row(float *restrict dst, const float *restrict a,
+                               const float *restrict b, int n)
 {
-    (void)nt; /* unused without OpenMP */
-    SINEW_PARALLEL_FOR(nt)
-    for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
+    for (int i = 0; i < n; i++)
         dst[i] = 0.5f * (a[i] + b[i]);
 }
 
-/* dst -= b; masked pixels of all listed planes are zeroed by the caller. */
-static void subtract(float *restrict dst, const float *restrict b, size_t n, int nt)
+/* p = masked ? 0 : (p - sub) * s on n elements (sub may be NULL) */
+static inline void finish_row(float *restrict p, const float *restrict sub,
+                              const unsigned char *restrict mask, float s, int n)
 {
-    (void)nt; /* unused without OpenMP */
-    SINEW_PARALLEL_FOR(nt)
-    for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
-        dst[i] -= b[i];
-}
-
-static void scale_masked(float *restrict p, const unsigned char *restrict mask, float s, size_t n,
-                         int nt)
-{
-    (void)nt; /* unused without OpenMP */
-    SINEW_PARALLEL_FOR(nt)
-    for (ptrdiff_t i = 0; i < (ptrdiff_t)n; i++)
+    if (sub)
+        for (int i = 0; i < n; i++)
+            p[i] -= sub[i];
+    for (int i = 0; i < n; i++)
         p[i] = mask[i] ? 0.f : p[i] * s;
 }
 
 /* Warp frame 1 and compute all derivative planes. l0, u, v, mask: the band's rows, which
- * start at row y0 of the level; l1: the whole level of frame 1. */
+ * start at row y0 of the level; l1: the whole level of frame 1.
+ *
+ * Three parallel loops in all (the warp, the averages, then the gradients of the averages
+ * with the differences and the mask), so a busy machine sees three joins per warping
+ * step instead of one per plane operation (17 for gray, 29 for colour). The averages go
+ * to planes the solver fills only later (a12, b1, b2, inv1, inv2), one per channel plus
+ * the two luminance-gradient averages. */
 static void derivatives(planes *P, const float *u, const float *v, const sinew__level *l0,
                         const sinew__level *l1, int y0, int channels, unsigned char *mask, int nt)
 {
+    (void)nt; /* unused without OpenMP */
     int w = l0->w, h = l0->h;
-    size_t n = (size_t)w * (size_t)h;
-    float *tmp = P->a12;
     /* brightness constancy per channel, scaled by 1/sqrt(C) so the data weight does not
      * depend on the channel count */
     float cs = 1.0f / sqrtf((float)channels);
@@ -191,27 +187,43 @@ static void derivatives(planes *P, const float *u, const float *v, const sinew__
     wdst[channels + 1] = P->lyt;
     wsrc[channels + 1] = l1->gy;
     sinew__warp_n(wdst, wsrc, channels + 2, mask, u, v, w, h, y0, l1->h, nt);
+    /* averages: channels c < channels, then of gx and of gy */
+    float *avg[SINEW__MAX_CH + 2] = {P->a12, P->b1, P->b2, P->inv1, P->inv2};
+    const float *avg_a[SINEW__MAX_CH + 2], *avg_b[SINEW__MAX_CH + 2];
     for (int c = 0; c < channels; c++) {
-        const float *i0 = l0->ch[c];
-        average(tmp, i0, P->it[c], n, nt);
-        sinew__gradient(P->ix[c], P->iy[c], tmp, w, h, nt);
-        subtract(P->it[c], i0, n, nt);
-        scale_masked(P->ix[c], mask, cs, n, nt);
-        scale_masked(P->iy[c], mask, cs, n, nt);
-        scale_masked(P->it[c], mask, cs, n, nt);
+        avg_a[c] = l0->ch[c];
+        avg_b[c] = P->it[c];
     }
-    /* gradient constancy on the luminance (gradients of frame 1 warped above) */
-    average(tmp, l0->gx, P->lxt, n, nt);
-    sinew__gradient(P->lxx, P->lxy, tmp, w, h, nt);
-    average(tmp, l0->gy, P->lyt, n, nt);
-    sinew__gradient(NULL, P->lyy, tmp, w, h, nt);
-    subtract(P->lxt, l0->gx, n, nt);
-    subtract(P->lyt, l0->gy, n, nt);
-    scale_masked(P->lxt, mask, 1.f, n, nt);
-    scale_masked(P->lyt, mask, 1.f, n, nt);
-    scale_masked(P->lxx, mask, 1.f, n, nt);
-    scale_masked(P->lxy, mask, 1.f, n, nt);
-    scale_masked(P->lyy, mask, 1.f, n, nt);
+    avg_a[channels] = l0->gx;
+    avg_b[channels] = P->lxt;
+    avg_a[channels + 1] = l0->gy;
+    avg_b[channels + 1] = P->lyt;
+    const int navg = channels + 2;
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        size_t o = (size_t)y * (size_t)w;
+        for (int c = 0; c < navg; c++)
+            average_row(avg[c] + o, avg_a[c] + o, avg_b[c] + o, w);
+    }
+    SINEW_PARALLEL_FOR(nt)
+    for (int y = 0; y < h; y++) {
+        size_t o = (size_t)y * (size_t)w;
+        const unsigned char *m = mask + o;
+        for (int c = 0; c < channels; c++) {
+            sinew__gradient_row(P->ix[c], P->iy[c], avg[c], w, h, y);
+            finish_row(P->it[c] + o, l0->ch[c] + o, m, cs, w);
+            finish_row(P->ix[c] + o, NULL, m, cs, w);
+            finish_row(P->iy[c] + o, NULL, m, cs, w);
+        }
+        /* gradient constancy on the luminance (gradients of frame 1 warped above) */
+        sinew__gradient_row(P->lxx, P->lxy, avg[channels], w, h, y);
+        sinew__gradient_row(NULL, P->lyy, avg[channels + 1], w, h, y);
+        finish_row(P->lxt + o, l0->gx + o, m, 1.f, w);
+        finish_row(P->lyt + o, l0->gy + o, m, 1.f, w);
+        finish_row(P->lxx + o, NULL, m, 1.f, w);
+        finish_row(P->lxy + o, NULL, m, 1.f, w);
+        finish_row(P->lyy + o, NULL, m, 1.f, w);
+    }
 }
 
 /* Interior / border split of one colour row: pixel k = 0 has no left neighbour when
@@ -525,11 +537,14 @@ RB_CLONES static void sor_row(planes *P, int c, int y, float omega)
  * rows [a - j, a + j)). Chunks are at least 2 * stages rows tall so the triangles of
  * different boundaries never touch. */
 
-/* Stages per pass (4 sweeps). A pass keeps about stages + 2 rows of the nine split planes
- * in flight (~0.2 MB at 640 pixels wide). Measured on a 640x480 pair, single thread: 2
+/* Most stages per pass. A pass keeps about stages + 2 rows of the nine split planes in
+ * flight (~0.3 MB at 640 pixels wide). Measured on a 640x480 pair, single thread: 2
  * stages (red and black fused) already take 20% off the SOR time, 8 take 28%, 20 or 30
- * no more than 8. */
-#define SOR_STAGES 8
+ * no more than 8. Each pass costs two joins of the threads (trapezoids, then triangles),
+ * which on a busy machine means two waits for a descheduled thread, so the stages are
+ * split evenly (whole sweeps) over as few passes as this allows: the presets' 5, 10 and
+ * 15 sweeps (10, 20, 30 stages) take 1, 2 and 2 passes instead of 2, 3 and 4 with 8. */
+#define SOR_STAGES 16
 
 /* Stage j of the pass on row y of a chunk [a, b) or boundary region, if in range. */
 static void sor_trapezoid(planes *P, int a, int b, int stages, float omega)
@@ -557,9 +572,11 @@ static void sor_triangle(planes *P, int a, int stages, float omega)
 /* `sweeps` red-black sweeps (a sweep: all red pixels, then all black ones). */
 static void sor_sweeps(planes *P, int sweeps, float omega, int nt)
 {
-    int h = P->h;
-    for (int done = 0; done < 2 * sweeps; done += SOR_STAGES) {
-        int stages = 2 * sweeps - done < SOR_STAGES ? 2 * sweeps - done : SOR_STAGES;
+    /* whole sweeps per pass, so every pass starts with red */
+    int h = P->h, passes = (2 * sweeps + SOR_STAGES - 1) / SOR_STAGES, done = 0;
+    for (int q = 0; q < passes; q++) {
+        int stages = 2 * ((sweeps - done) / (passes - q));
+        done += stages / 2;
         int chunks = sinew__nthreads(nt);
         if (chunks > h / (2 * stages))
             chunks = h / (2 * stages);

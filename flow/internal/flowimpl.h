@@ -52,12 +52,10 @@ void sinew__pyramid_build(sinew__pyramid *p, const sinew_image *frame, float *tm
 /* Level size for a given full size: each level halves (rounding up). */
 void sinew__level_size(int w, int h, int level, int *lw, int *lh);
 
-/* Separable Gaussian blur, clamped borders. tmp: w*h floats. dst may equal src. */
-void sinew__blur(float *dst, const float *src, float *tmp, int w, int h, float sigma, int nt);
 /* 5-point derivatives (-1 8 0 -8 1)/12 with clamped borders; gx or gy may be NULL. */
 void sinew__gradient(float *gx, float *gy, const float *src, int w, int h, int nt);
-/* Halve: 2x2 box average (clamped) of src (sw x sh) into dst (ceil(sw/2) x ceil(sh/2)). */
-void sinew__halve(float *dst, const float *src, int sw, int sh, int nt);
+/* Row y of sinew__gradient (same bits), for callers that fuse it with other row work. */
+void sinew__gradient_row(float *gx, float *gy, const float *src, int w, int h, int y);
 /* Upsample a flow field from (sw, sh) to (dw, dh) = level below: bilinear, values x2. */
 void sinew__flow_up(float *du, float *dv, int dw, int dh, const float *su, const float *sv, int sw,
                     int sh, int nt);

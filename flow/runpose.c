@@ -62,6 +62,54 @@ static int cmp_ranked(const void *a, const void *b)
     return (x->i > y->i) - (x->i < y->i);
 }
 
+static int less(const ranked *a, const ranked *b)
+{
+    return cmp_ranked(a, b) < 0;
+}
+
+/* Reorder rk so that its first h entries are the h smallest (residual, then index: a
+ * strict order, so the set is unique whatever the algorithm): quickselect (Hoare 1961)
+ * with a median-of-three pivot, O(n) on average instead of sorting; ranges of up to 16
+ * entries are finished by insertion sort. */
+static void select_smallest(ranked *rk, size_t n, size_t h)
+{
+    size_t lo = 0, hi = n; /* the boundary h lies in [lo, hi] */
+    while (hi - lo > 16 && h > lo && h < hi) {
+        size_t mid = lo + (hi - lo) / 2, last = hi - 1;
+        ranked t;
+        if (less(&rk[mid], &rk[lo]))
+            t = rk[mid], rk[mid] = rk[lo], rk[lo] = t;
+        if (less(&rk[last], &rk[lo]))
+            t = rk[last], rk[last] = rk[lo], rk[lo] = t;
+        if (less(&rk[last], &rk[mid]))
+            t = rk[last], rk[last] = rk[mid], rk[mid] = t;
+        ranked pivot = rk[mid];
+        size_t i = lo, j = last;
+        for (;;) { /* Hoare partition: [lo, j] <= pivot <= [j + 1, hi) */
+            while (less(&rk[i], &pivot))
+                i++;
+            while (less(&pivot, &rk[j]))
+                j--;
+            if (i >= j)
+                break;
+            t = rk[i], rk[i] = rk[j], rk[j] = t;
+            i++;
+            j--;
+        }
+        if (h <= j)
+            hi = j + 1;
+        else
+            lo = j + 1;
+    }
+    for (size_t a = lo + 1; a < hi; a++) {
+        ranked t = rk[a];
+        size_t b = a;
+        for (; b > lo && less(&t, &rk[b - 1]); b--)
+            rk[b] = rk[b - 1];
+        rk[b] = t;
+    }
+}
+
 static double residual(const sinew_rigid *T, const float *p)
 {
     double a[3] = {p[0], p[1], p[2]}, b[3];
@@ -81,7 +129,7 @@ static int trimmed_fit(sinew_ctx *ctx, sinew_rigid *T, double *rms, float *pk, c
             rk[i].r = residual(T, pk + 7 * i);
             rk[i].i = i;
         }
-        qsort(rk, n, sizeof *rk, cmp_ranked);
+        select_smallest(rk, n, h);
         int changed = 0;
         for (size_t k = 0; k < n; k++) {
             unsigned char keep = k < h;

@@ -28,6 +28,31 @@ void sinew_rigid_apply(const sinew_rigid *T, const double x[3], double y[3])
     memcpy(y, r, sizeof r);
 }
 
+void sinew_rigid_rotate(const sinew_rigid *T, const double x[3], double y[3])
+{
+    sinew_rigid R = *T;
+    R.t[0] = R.t[1] = R.t[2] = 0;
+    sinew_rigid_apply(&R, x, y);
+}
+
+void sinew_rigid_from_pose(sinew_rigid *T, const double pose[12])
+{
+    for (int r = 0; r < 3; r++) {
+        for (int c = 0; c < 3; c++)
+            T->R[3 * r + c] = pose[4 * r + c];
+        T->t[r] = pose[4 * r + 3];
+    }
+}
+
+void sinew_rigid_to_pose(double pose[12], const sinew_rigid *T)
+{
+    for (int r = 0; r < 3; r++) {
+        for (int c = 0; c < 3; c++)
+            pose[4 * r + c] = T->R[3 * r + c];
+        pose[4 * r + 3] = T->t[r];
+    }
+}
+
 void sinew_rigid_invert(const sinew_rigid *T, sinew_rigid *inv)
 {
     sinew_rigid o;

@@ -25,6 +25,12 @@ typedef struct sinew_rigid {
 void sinew_rigid_identity(sinew_rigid *T);
 /* y = T x (y may alias x). */
 void sinew_rigid_apply(const sinew_rigid *T, const double x[3], double y[3]);
+/* y = R x, the rotation alone, e.g. for normals (y may alias x). */
+void sinew_rigid_rotate(const sinew_rigid *T, const double x[3], double y[3]);
+/* A pose as sequence.json and the run frames store it (3x4 row-major [R | t]) and
+ * back. */
+void sinew_rigid_from_pose(sinew_rigid *T, const double pose[12]);
+void sinew_rigid_to_pose(double pose[12], const sinew_rigid *T);
 /* Inverse transform. */
 void sinew_rigid_invert(const sinew_rigid *T, sinew_rigid *inv);
 /* c = a * b (apply b first). c may alias a or b. */

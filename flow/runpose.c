@@ -31,15 +31,6 @@
  * kept set can only shrink the trimmed sum, so the loop ends; this caps the cost). */
 #define POSE_CSTEPS 20
 
-void sinew__run_pose_rigid(sinew_rigid *T, const double pose[12])
-{
-    for (int r = 0; r < 3; r++) {
-        for (int c = 0; c < 3; c++)
-            T->R[3 * r + c] = pose[4 * r + c];
-        T->t[r] = pose[4 * r + 3];
-    }
-}
-
 /* Columns of the first point, the second point and the weight; 0 when not lifted. */
 static int lifted_columns(const sinew_matches *m, int *x0, int *x1, int *w)
 {
@@ -118,10 +109,11 @@ static double residual(const sinew_rigid *T, const float *p)
                 (b[2] - p[5]) * (b[2] - p[5]));
 }
 
-/* The trimmed fit over n packed rows (X0 X1 weight, stride 7; weights of trimmed rows
- * are set to 0 here). */
+/* The trimmed fit over n packed rows (X0 X1 weight, stride 7; every weight > 0 at the
+ * start, the trimmed rows' set to 0 here, so a row is kept exactly when its weight is
+ * not 0). */
 static int trimmed_fit(sinew_ctx *ctx, sinew_rigid *T, double *rms, float *pk, const float *w,
-                       size_t n, size_t h, ranked *rk, unsigned char *kept)
+                       size_t n, size_t h, ranked *rk)
 {
     int rc = sinew_rigid_fit(ctx, T, rms, pk, pk + 3, pk + 6, n, 7);
     for (int step = 0; !rc && step < POSE_CSTEPS; step++) {
@@ -132,12 +124,12 @@ static int trimmed_fit(sinew_ctx *ctx, sinew_rigid *T, double *rms, float *pk, c
         select_smallest(rk, n, h);
         int changed = 0;
         for (size_t k = 0; k < n; k++) {
-            unsigned char keep = k < h;
-            changed |= kept[rk[k].i] != keep;
-            kept[rk[k].i] = keep;
-            pk[7 * rk[k].i + 6] = keep ? w[rk[k].i] : 0.0f;
+            float *wk = &pk[7 * rk[k].i + 6];
+            int keep = k < h;
+            changed |= (*wk != 0.0f) != keep;
+            *wk = keep ? w[rk[k].i] : 0.0f;
         }
-        if (!changed && step > 0)
+        if (!changed)
             break;
         rc = sinew_rigid_fit(ctx, T, rms, pk, pk + 3, pk + 6, n, 7);
     }
@@ -159,8 +151,7 @@ int sinew__run_pose_check(sinew_ctx *ctx, cJSON *stats, const sinew_matches *m,
         return SINEW_OK;
     float *pk = sinew__alloc(ctx, n * 7 * sizeof *pk), *w = sinew__alloc(ctx, n * sizeof *w);
     ranked *rk = sinew__alloc(ctx, n * sizeof *rk);
-    unsigned char *kept = sinew__calloc(ctx, n, 1);
-    int rc = pk && w && rk && kept ? SINEW_OK : SINEW_ENOMEM;
+    int rc = pk && w && rk ? SINEW_OK : SINEW_ENOMEM;
     for (size_t r = 0, i = 0; !rc && r < m->rows; r++) {
         const float *row = m->data + r * (size_t)m->cols;
         if (!(row[cw] > 0 && isfinite(row[cw])))
@@ -174,19 +165,18 @@ int sinew__run_pose_check(sinew_ctx *ctx, cJSON *stats, const sinew_matches *m,
     double rms = NAN, dt, deg, gt, gdeg;
     size_t h = (n + 1) / 2;
     if (!rc)
-        rc = trimmed_fit(ctx, &fit, &rms, pk, w, n, h, rk, kept);
+        rc = trimmed_fit(ctx, &fit, &rms, pk, w, n, h, rk);
     sinew__free(ctx, pk);
     sinew__free(ctx, w);
     sinew__free(ctx, rk);
-    sinew__free(ctx, kept);
     if (rc == SINEW_ENOMEM)
         return rc;
     if (rc) { /* degenerate points (e.g. a flat wall seen edge-on): no check */
         sinew_ctx_clear(ctx);
         return SINEW_OK;
     }
-    sinew__run_pose_rigid(&P0, pose0);
-    sinew__run_pose_rigid(&P1, pose1);
+    sinew_rigid_from_pose(&P0, pose0);
+    sinew_rigid_from_pose(&P1, pose1);
     sinew_rigid_relative(&P0, &P1, &given);
     sinew_rigid_identity(&id);
     sinew_rigid_distance(&fit, &given, &dt, &deg);
@@ -203,18 +193,16 @@ int sinew__run_pose_check(sinew_ctx *ctx, cJSON *stats, const sinew_matches *m,
     return SINEW_OK;
 }
 
-/* Rotate (and, with move, translate) the 3-vector at p by T in place. */
+/* Map the 3-vector at p by T in place: a point (move) or a direction (rotation only). */
 static void map3(const sinew_rigid *T, float *p, int move)
 {
-    double a[3] = {p[0], p[1], p[2]}, b[3];
-    if (move) {
-        sinew_rigid_apply(T, a, b);
-    } else {
-        for (int r = 0; r < 3; r++)
-            b[r] = T->R[3 * r] * a[0] + T->R[3 * r + 1] * a[1] + T->R[3 * r + 2] * a[2];
-    }
+    double a[3] = {p[0], p[1], p[2]};
+    if (move)
+        sinew_rigid_apply(T, a, a);
+    else
+        sinew_rigid_rotate(T, a, a);
     for (int k = 0; k < 3; k++)
-        p[k] = (float)b[k];
+        p[k] = (float)a[k];
 }
 
 void sinew__run_to_world(sinew_matches *m, const double pose0[12], const double pose1[12])
@@ -223,8 +211,8 @@ void sinew__run_to_world(sinew_matches *m, const double pose0[12], const double 
     if (!lifted_columns(m, &c0, &c1, &cw))
         return;
     sinew_rigid P[2];
-    sinew__run_pose_rigid(&P[0], pose0);
-    sinew__run_pose_rigid(&P[1], pose1);
+    sinew_rigid_from_pose(&P[0], pose0);
+    sinew_rigid_from_pose(&P[1], pose1);
     int n0 = sinew_matches_column(m, "nx0"), n1 = sinew_matches_column(m, "nx1");
     for (size_t r = 0; r < m->rows; r++) {
         float *row = m->data + r * (size_t)m->cols;

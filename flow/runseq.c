@@ -504,11 +504,7 @@ static int from_flat(sinew_ctx *ctx, const char *dir, unsigned flags, sinew_run_
             sinew_rigid T;
             if ((rc = sinew_rigid_load(ctx, &T, pp)))
                 break;
-            for (int r = 0; r < 3; r++) {
-                for (int c = 0; c < 3; c++)
-                    fr->pose[4 * r + c] = T.R[3 * r + c];
-                fr->pose[4 * r + 3] = T.t[r];
-            }
+            sinew_rigid_to_pose(fr->pose, &T);
             fr->has_pose = 1;
             posed++;
         }

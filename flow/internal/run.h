@@ -61,8 +61,6 @@ struct sinew_matches;
 /* Camera poses in a run (flow/runpose.c). The pose check of a lifted match table
  * against the frames' camera-to-world poses into stats "pose_check" (nothing when the
  * table is not lifted or too small); ENOMEM is the only failure. */
-struct sinew_rigid;
-void sinew__run_pose_rigid(struct sinew_rigid *T, const double pose[12]);
 int sinew__run_pose_check(sinew_ctx *ctx, cJSON *stats, const struct sinew_matches *m,
                           const double pose0[12], const double pose1[12]);
 /* Map a lifted table's points and normals to world coordinates (X0 by pose0, X1 by

@@ -106,6 +106,18 @@ static void test_rigid_pose_file(void **state)
     assert_int_equal(sinew_rigid_load(ctx, &T, p), SINEW_OK);
     assert_near(T.t[0], 0.5, 0);
     assert_near(T.t[2], 2, 0);
+    /* the 3x4 [R | t] rows of a sequence.json pose, and back */
+    double pose[12], x[3] = {1, 2, 3}, y[3], z[3];
+    sinew_rigid_to_pose(pose, &T);
+    assert_true(pose[3] == 0.5 && pose[7] == -0.25 && pose[11] == 2 && pose[0] == 1);
+    sinew_rigid U;
+    sinew_rigid_from_pose(&U, pose);
+    assert_memory_equal(&U, &T, sizeof U);
+    /* rotation alone: the point moved minus the translation */
+    sinew_rigid_apply(&T, x, y);
+    sinew_rigid_rotate(&T, x, z);
+    for (int k = 0; k < 3; k++)
+        assert_true(z[k] == y[k] - T.t[k]);
     const char *bad = "2 0 0 0  0 1 0 0  0 0 1 0  0 0 0 1";
     tu_write_bytes(p, bad, strlen(bad));
     assert_int_equal(sinew_rigid_load(ctx, &T, p), SINEW_EVALUE);
